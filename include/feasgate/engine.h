@@ -1,0 +1,154 @@
+/*
+ * feasgate/engine.h -- checking a candidate decision against a compiled
+ * model (prefixes fg_pool_, fg_check_, fg_request_).
+ *
+ * The HTTP handlers and the offline command use exactly this interface:
+ *   1. fg_request_parse()  -- validate a check request body against a model;
+ *   2. fg_check_start()    -- queue the simulation on the worker pool;
+ *   3. fg_check_wait()     -- wait (bounded) for it to end;
+ *   4. fg_check_result_json() -- the API's result body.
+ * A check runs its samples in chunks on the pool's fixed workers; chunk
+ * tallies are merged in chunk order, so counts are independent of the
+ * number of workers and of the chunk size, and floating-point sums are
+ * independent of the number of workers.
+ *
+ * Thread use: every function may be called from any thread. A fg_check is
+ * reference counted (the pool holds one reference while it runs).
+ */
+#ifndef FEASGATE_ENGINE_H
+#define FEASGATE_ENGINE_H
+
+#include "feasgate/model.h"
+#include "feasgate/status.h"
+
+#include <stdbool.h>
+#include <stdint.h>
+
+struct cJSON;
+
+typedef enum fg_interval_method {
+  FG_INTERVAL_CLOPPER_PEARSON = 0,
+  FG_INTERVAL_WILSON,
+  FG_INTERVAL_JEFFREYS
+} fg_interval_method;
+
+typedef enum fg_sampling {
+  FG_SAMPLING_MONTE_CARLO = 0,
+  FG_SAMPLING_ANTITHETIC,
+  FG_SAMPLING_LATIN_HYPERCUBE,
+  FG_SAMPLING_SOBOL
+} fg_sampling;
+
+typedef enum fg_verdict {
+  FG_VERDICT_PASS = 0,
+  FG_VERDICT_FAIL = 1,
+  FG_VERDICT_INCONCLUSIVE = 2
+} fg_verdict;
+
+typedef enum fg_check_state {
+  FG_CHECK_QUEUED = 0,
+  FG_CHECK_RUNNING,
+  FG_CHECK_DONE,
+  FG_CHECK_CANCELLED,
+  FG_CHECK_TIMED_OUT,
+  FG_CHECK_FAILED,     /* internal fault */
+  FG_CHECK_INTERRUPTED /* found running at start-up (store only) */
+} fg_check_state;
+
+const char *fg_verdict_name(fg_verdict v);
+const char *fg_check_state_name(fg_check_state s);
+const char *fg_interval_method_name(fg_interval_method m);
+const char *fg_sampling_name(fg_sampling s);
+
+/* Server-side caps a request is checked against. */
+typedef struct fg_request_limits {
+  uint64_t max_samples;   /* --max-samples */
+  uint64_t max_scenarios; /* --max-scenarios (in_sample count) */
+  double max_wait_s;      /* --max-wait */
+} fg_request_limits;
+
+void fg_request_limits_default(fg_request_limits *l);
+
+typedef struct fg_check_request {
+  double *decision; /* model->decision_dims values, flattened */
+  int decision_dims;
+  uint64_t samples;
+  uint64_t seed;
+  bool seed_given; /* false: the caller must draw one (fg_seed_draw) */
+  double target, confidence;
+  fg_interval_method interval;
+  fg_sampling sampling;
+  bool stop_early;
+  char expect_digest[FG_DIGEST_MAX]; /* "" when absent */
+  bool has_in_sample;
+  uint64_t in_sample_seed, in_sample_count;
+  char label[FG_LABEL_MAX + 1]; /* "" when absent */
+  double wait_s;
+} fg_check_request;
+
+/* Validate `body` (a JSON object) against model `m`. Missing, extra,
+ * mis-sized or non-finite decision entries are each named. */
+fg_status fg_request_parse(const fg_model *m, const struct cJSON *body,
+                           const fg_request_limits *lim, fg_check_request *out,
+                           fg_problem *p);
+void fg_request_free(fg_check_request *r);
+/* The request as it will be replayed (seed filled in), for the log. */
+struct cJSON *fg_request_json(const fg_model *m, const fg_check_request *r);
+/* A fresh seed in [0, FG_SEED_MAX] from the system's entropy. */
+uint64_t fg_seed_draw(void);
+
+/* ---- worker pool ---- */
+typedef struct fg_pool fg_pool;
+/* workers: 1..FG_WORKERS_MAX; chunk: samples per task (multiple of
+ * FG_BLOCK, FG_CHUNK_MIN..FG_CHUNK_MAX); queue: checks waiting at most. */
+fg_status fg_pool_new(int workers, int chunk, int queue, fg_pool **out,
+                      fg_problem *p);
+/* Cancels what still runs, joins the workers, frees. */
+void fg_pool_free(fg_pool *pool);
+int fg_pool_workers(const fg_pool *pool);
+int fg_pool_busy(const fg_pool *pool);
+int fg_pool_queued(const fg_pool *pool);
+
+/* ---- checks ---- */
+typedef struct fg_check fg_check;
+
+/* Queue a check. Takes its own reference to the model and copies the
+ * request. FG_EBUSY when the queue is full. */
+fg_status fg_check_start(fg_pool *pool, fg_model *m,
+                         const fg_check_request *req, fg_check **out,
+                         fg_problem *p);
+/* Wait until the check ends or `timeout_s` passes (< 0: forever). True when
+ * it has ended. */
+bool fg_check_wait(fg_check *c, double timeout_s);
+/* Ask a running check to stop; workers see it within one block. */
+void fg_check_cancel(fg_check *c);
+fg_check_state fg_check_get_state(fg_check *c);
+fg_verdict fg_check_get_verdict(fg_check *c); /* valid once ended */
+/* Samples merged so far and satisfied among them. */
+void fg_check_progress(fg_check *c, uint64_t *done, uint64_t *satisfied);
+void fg_check_unref(fg_check *c);
+
+/* Identity and timing the caller attaches to the result body. */
+typedef struct fg_check_meta {
+  const char *id;          /* "chk_..."; NULL offline */
+  int model_version;       /* 0 offline */
+  const char *created_at;  /* RFC 3339 UTC */
+  const char *finished_at; /* NULL while running */
+  const char *key;         /* key name; NULL when none */
+} fg_check_meta;
+
+/* The result body of http-api.md (status, verdict, joint, constraints,
+ * deterministic, objective, failing_scenarios, ...). While running it
+ * carries "progress". */
+struct cJSON *fg_check_result_json(fg_check *c, const fg_check_meta *meta);
+
+/* Run a check to the end on a private pool (offline command, tests). */
+fg_status fg_check_run_sync(fg_model *m, const fg_check_request *req,
+                            int workers, int chunk, fg_check **out,
+                            fg_problem *p);
+
+/* RFC 3339 UTC time of now, e.g. "2026-12-01T21:40:00Z" (buf >= 32). */
+void fg_time_now_rfc3339(char *buf, size_t cap);
+double fg_time_monotonic(void);
+
+#endif

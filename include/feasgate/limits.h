@@ -1,0 +1,148 @@
+/*
+ * feasgate/limits.h -- every limit feasgate enforces, in one place.
+ *
+ * Each limit is a named constant with the reason it exists. A limit that a
+ * client can reach is checked in one helper per kind (fg_limit_exceeded in
+ * core/problem.c) so the error always names the limit and its value, and
+ * GET /v1/limits reports them all (see FG_LIMITS_TABLE below). Every value
+ * may be overridden at compile time with -DFG_...=N; runtime settings
+ * (--max-body, --max-samples, ...) are range-checked against the hard
+ * bounds given here.
+ */
+#ifndef FEASGATE_LIMITS_H
+#define FEASGATE_LIMITS_H
+
+/* Samples per interpreter block. Each register holds FG_BLOCK doubles, so an
+ * instruction is a tight loop of this length; 256 doubles = 2 KiB keeps a
+ * few dozen live registers inside L1/L2. Must be a power of two. */
+#ifndef FG_BLOCK
+#define FG_BLOCK 256
+#endif
+
+/* Default samples per chunk handed to a worker; a multiple of FG_BLOCK.
+ * Large enough that queue traffic is negligible, small enough that
+ * cancellation and progress are seen several times a second. */
+#ifndef FG_CHUNK_DEFAULT
+#define FG_CHUNK_DEFAULT 16384
+#endif
+#define FG_CHUNK_MIN FG_BLOCK
+#define FG_CHUNK_MAX (1 << 24)
+
+/* Bytes of one model document or request body. 16 MiB holds a scenario
+ * table of about a million numbers; larger bodies are refused before they
+ * are buffered whole. */
+#ifndef FG_MAX_BODY_DEFAULT
+#define FG_MAX_BODY_DEFAULT (16u * 1024u * 1024u)
+#endif
+#define FG_MAX_BODY_HARD (256u * 1024u * 1024u)
+
+/* Characters of one identifier (model document names and model names). */
+#define FG_NAME_MAX 64
+
+/* Characters of one expression: long enough for generated constraint
+ * rows, short enough that a parse is microseconds. */
+#ifndef FG_EXPR_MAX_LENGTH
+#define FG_EXPR_MAX_LENGTH 16384
+#endif
+
+/* Nesting depth of one expression (parentheses, calls, unary chains):
+ * bounds the recursive-descent parser's stack. */
+#ifndef FG_EXPR_MAX_DEPTH
+#define FG_EXPR_MAX_DEPTH 64
+#endif
+
+/* Elements of one vector value (decision, input, definition or literal). */
+#ifndef FG_VECTOR_MAX
+#define FG_VECTOR_MAX 100000
+#endif
+
+/* Total registers of one compiled program. Each costs FG_BLOCK doubles per
+ * worker (2 KiB), so 200k registers is 400 MiB a worker at worst. */
+#ifndef FG_PROGRAM_MAX_REGS
+#define FG_PROGRAM_MAX_REGS 200000
+#endif
+
+/* Instructions of one compiled program. */
+#ifndef FG_PROGRAM_MAX_INSNS
+#define FG_PROGRAM_MAX_INSNS 2000000
+#endif
+
+/* Total decision elements of one model. */
+#ifndef FG_DECISION_DIMS_MAX
+#define FG_DECISION_DIMS_MAX 100000
+#endif
+
+/* Total uncertain dimensions of one model (sum of input sizes). */
+#ifndef FG_UNCERTAIN_DIMS_MAX
+#define FG_UNCERTAIN_DIMS_MAX 10000
+#endif
+
+/* Constraint rows of one model (vector constraints count each element). */
+#ifndef FG_ROWS_MAX
+#define FG_ROWS_MAX 10000
+#endif
+
+/* Entries in decisions, uncertain, definitions, constraints (each). */
+#ifndef FG_MEMBERS_MAX
+#define FG_MEMBERS_MAX 10000
+#endif
+
+/* Values in one parameter array (discrete values, empirical data,
+ * scenario table cells). */
+#ifndef FG_TABLE_CELLS_MAX
+#define FG_TABLE_CELLS_MAX 2000000
+#endif
+
+/* Nesting depth of a JSON body: cJSON itself stops at CJSON_NESTING_LIMIT
+ * (1000); documents are shallow, so we refuse anything deeper than this. */
+#define FG_JSON_MAX_DEPTH 32
+
+/* Samples of one check: default cap and hard bound. */
+#ifndef FG_MAX_SAMPLES_DEFAULT
+#define FG_MAX_SAMPLES_DEFAULT 1000000000ull
+#endif
+#define FG_MAX_SAMPLES_HARD 100000000000ull
+#define FG_SAMPLES_DEFAULT 100000ull
+
+/* Scenarios handed out by one scenarios request, and in_sample count. */
+#ifndef FG_MAX_SCENARIOS_DEFAULT
+#define FG_MAX_SCENARIOS_DEFAULT 100000ull
+#endif
+
+/* Failing scenarios reported per check. */
+#define FG_FAILING_SCENARIOS 5
+
+/* Largest seed accepted: seeds travel as JSON numbers, which are exact
+ * integers up to 2^53. */
+#define FG_SEED_MAX 9007199254740991ull
+
+/* Checks listed by one GET /v1/checks page. */
+#define FG_LIST_LIMIT_DEFAULT 50
+#define FG_LIST_LIMIT_MAX 1000
+
+/* Characters of a check label. */
+#define FG_LABEL_MAX 256
+
+/* Worker threads. */
+#define FG_WORKERS_MAX 256
+
+/* The limits a client can run into, as (name, value) pairs for
+ * GET /v1/limits and for error messages. Runtime-configurable ones are
+ * reported from the server configuration instead (http/). */
+#define FG_LIMITS_TABLE(X)                                                     \
+  X("name_length", FG_NAME_MAX)                                                \
+  X("expression_length", FG_EXPR_MAX_LENGTH)                                   \
+  X("expression_depth", FG_EXPR_MAX_DEPTH)                                     \
+  X("vector_length", FG_VECTOR_MAX)                                            \
+  X("program_registers", FG_PROGRAM_MAX_REGS)                                  \
+  X("program_instructions", FG_PROGRAM_MAX_INSNS)                              \
+  X("decision_dimensions", FG_DECISION_DIMS_MAX)                               \
+  X("uncertain_dimensions", FG_UNCERTAIN_DIMS_MAX)                             \
+  X("constraint_rows", FG_ROWS_MAX)                                            \
+  X("members", FG_MEMBERS_MAX)                                                 \
+  X("table_cells", FG_TABLE_CELLS_MAX)                                         \
+  X("json_depth", FG_JSON_MAX_DEPTH)                                           \
+  X("label_length", FG_LABEL_MAX)                                              \
+  X("failing_scenarios", FG_FAILING_SCENARIOS)
+
+#endif

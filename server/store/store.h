@@ -1,0 +1,120 @@
+/*
+ * store/store.h -- the one storage interface (prefix fg_store_).
+ *
+ * Backends: SQLite (sqlite.c, "sqlite:PATH", the embedded default; WAL,
+ * foreign keys on, every statement prepared, every write inside a
+ * transaction). A PostgreSQL backend ("postgresql://...") may follow
+ * behind the same functions.
+ *
+ * What is kept:
+ *   models    -- name, retired flag
+ *   versions  -- (name, version) -> digest, canonical document, title,
+ *                created_at; versions count 1, 2, ... per name
+ *   checks    -- id, model name/version/digest, status, verdict, seed,
+ *                request JSON, result JSON, created_at, finished_at,
+ *                elapsed_ms, label, key name, joint probability and
+ *                interval (for list summaries)
+ *
+ * Thread use: one fg_store may be used by several threads; the backend
+ * serialises access internally (SQLite connection guarded by a mutex).
+ * Strings returned inside result structs are malloc'd and freed by the
+ * matching _clear / _free function.
+ */
+#ifndef FG_STORE_H
+#define FG_STORE_H
+
+#include "feasgate/model.h"
+#include "feasgate/status.h"
+
+#include <stdbool.h>
+#include <stdint.h>
+
+typedef struct fg_store fg_store;
+
+/* url: "sqlite:PATH" (PATH created if missing, parent folders too). */
+fg_status fg_store_open(const char *url, fg_store **out, fg_problem *p);
+void fg_store_close(fg_store *s);
+/* Health probe: a trivial query. */
+fg_status fg_store_ping(fg_store *s, fg_problem *p);
+
+typedef struct fg_store_version {
+  char name[FG_NAME_MAX + 1];
+  int version;
+  char digest[FG_DIGEST_MAX];
+  char created_at[32];
+  char *title;    /* may be NULL */
+  char *document; /* canonical text; NULL in list results */
+  bool retired;
+} fg_store_version;
+
+void fg_store_version_clear(fg_store_version *v);
+
+/* Register: when the latest version of `name` has the same digest, fill
+ * *out with it and set *created = false; otherwise add version latest+1
+ * (1 for a new name), fill *out, *created = true. A retired name is
+ * revived by a new registration. */
+fg_status fg_store_put_version(fg_store *s, const char *name,
+                               const char *digest, const char *canonical,
+                               const char *title, fg_store_version *out,
+                               bool *created, fg_problem *p);
+/* version 0 = latest. FG_ENOTFOUND when absent. */
+fg_status fg_store_get_version(fg_store *s, const char *name, int version,
+                               fg_store_version *out, fg_problem *p);
+/* Latest version of every model not retired, by name. *out is an array of
+ * *n entries (document NULL); free with fg_store_versions_free. */
+fg_status fg_store_list_models(fg_store *s, fg_store_version **out, int *n,
+                               fg_problem *p);
+void fg_store_versions_free(fg_store_version *v, int n);
+fg_status fg_store_retire_model(fg_store *s, const char *name, fg_problem *p);
+
+typedef struct fg_store_check {
+  char id[40];
+  char model[FG_NAME_MAX + 1];
+  int version;
+  char digest[FG_DIGEST_MAX];
+  char status[16];  /* running, done, cancelled, timed_out, failed, interrupted */
+  char verdict[16]; /* pass, fail, inconclusive, or "" */
+  uint64_t seed;
+  char created_at[32];
+  char finished_at[32]; /* "" while running */
+  double elapsed_ms;
+  char label[FG_LABEL_MAX + 1];
+  char key[FG_NAME_MAX + 1];
+  double probability, lower, upper; /* NAN while unknown */
+  char *request; /* JSON text */
+  char *result;  /* JSON text of the result body; may be NULL */
+} fg_store_check;
+
+void fg_store_check_clear(fg_store_check *c);
+
+/* Record a check when accepted (status running, result may be NULL). */
+fg_status fg_store_put_check(fg_store *s, const fg_store_check *c,
+                             fg_problem *p);
+/* Update status, verdict, finished_at, elapsed, probability/interval and
+ * result of an existing check. */
+fg_status fg_store_finish_check(fg_store *s, const fg_store_check *c,
+                                fg_problem *p);
+fg_status fg_store_get_check(fg_store *s, const char *id, fg_store_check *out,
+                             fg_problem *p);
+
+typedef struct fg_check_filter {
+  const char *model;   /* NULL = any */
+  const char *verdict; /* NULL = any */
+  const char *since;   /* RFC 3339; NULL = any */
+  const char *label;   /* exact; NULL = any */
+  const char *after;   /* cursor: list checks older than this id */
+  int limit;
+} fg_check_filter;
+
+/* Newest first (by created_at, then id). request/result are NULL in the
+ * listed entries. *next is set to a cursor when more remain ("" if not). */
+fg_status fg_store_list_checks(fg_store *s, const fg_check_filter *f,
+                               fg_store_check **out, int *n, char next[40],
+                               fg_problem *p);
+void fg_store_checks_free(fg_store_check *c, int n);
+
+/* At start-up: every check left "running" becomes "interrupted". Returns
+ * how many were changed in *count. */
+fg_status fg_store_mark_interrupted(fg_store *s, int *count, fg_problem *p);
+
+#endif
