@@ -1,0 +1,472 @@
+/*
+ * tests/unit/test_store.c -- the SQLite store against store/store.h.
+ *
+ * Covers: opening (parent folders created), model versions (idempotent
+ * registration of the same digest, a new version on change, latest and
+ * specific versions, not found), retiring and reviving, checks (put,
+ * finish, get, list newest first with every filter and with paging through
+ * the cursor), marking running checks interrupted, closing and reopening
+ * the file, and SQLite's own integrity check on the result.
+ *
+ * Single-threaded except the concurrency section, which runs a few writer
+ * threads against one fg_store to exercise its mutex.
+ */
+#include "check.h"
+#include "store/store.h"
+
+#include <math.h>
+#include <pthread.h>
+#include <sqlite3.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <unistd.h>
+
+static char dir[256], url[400], dbpath[320];
+
+static void make_check(fg_store_check *c, const char *id, const char *model,
+                       int version, const char *digest, const char *created,
+                       const char *label) {
+  memset(c, 0, sizeof *c);
+  snprintf(c->id, sizeof c->id, "%s", id);
+  snprintf(c->model, sizeof c->model, "%s", model);
+  c->version = version;
+  snprintf(c->digest, sizeof c->digest, "%s", digest);
+  snprintf(c->status, sizeof c->status, "running");
+  c->seed = 12345;
+  snprintf(c->created_at, sizeof c->created_at, "%s", created);
+  snprintf(c->label, sizeof c->label, "%s", label ? label : "");
+  c->probability = c->lower = c->upper = NAN;
+  c->elapsed_ms = NAN;
+  c->request = (char *)"{\"decision\":{\"x\":1}}";
+}
+
+static void test_versions(fg_store *s) {
+  fg_problem p;
+  fg_store_version v;
+  bool created = false;
+  const char *d1 = "sha256:1111111111111111111111111111111111111111111111111111"
+                   "111111111111";
+  const char *d2 = "sha256:2222222222222222222222222222222222222222222222222222"
+                   "222222222222";
+
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_put_version(s, "alpha", d1, "{\"a\":1}", "Alpha", &v,
+                                 &created, &p),
+            FG_OK);
+  CHECK(created);
+  CHECK_INT(v.version, 1);
+  CHECK_STR(v.digest, d1);
+  CHECK_STR(v.title, "Alpha");
+  CHECK_STR(v.document, "{\"a\":1}");
+  CHECK(strlen(v.created_at) == 20);
+  fg_store_version_clear(&v);
+
+  /* same digest again: the same version, not created */
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_put_version(s, "alpha", d1, "{\"a\":1}", "Alpha", &v,
+                                 &created, &p),
+            FG_OK);
+  CHECK(!created);
+  CHECK_INT(v.version, 1);
+  fg_store_version_clear(&v);
+
+  /* changed document: version 2 */
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_put_version(s, "alpha", d2, "{\"a\":2}", NULL, &v,
+                                 &created, &p),
+            FG_OK);
+  CHECK(created);
+  CHECK_INT(v.version, 2);
+  CHECK(v.title == NULL);
+  fg_store_version_clear(&v);
+
+  /* a second model */
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_put_version(s, "beta", d1, "{\"b\":1}", "Beta", &v,
+                                 &created, &p),
+            FG_OK);
+  CHECK_INT(v.version, 1);
+  fg_store_version_clear(&v);
+
+  /* latest and specific */
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_get_version(s, "alpha", 0, &v, &p), FG_OK);
+  CHECK_INT(v.version, 2);
+  CHECK_STR(v.document, "{\"a\":2}");
+  CHECK(!v.retired);
+  fg_store_version_clear(&v);
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_get_version(s, "alpha", 1, &v, &p), FG_OK);
+  CHECK_INT(v.version, 1);
+  CHECK_STR(v.digest, d1);
+  CHECK_STR(v.document, "{\"a\":1}");
+  fg_store_version_clear(&v);
+
+  /* not found */
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_get_version(s, "alpha", 3, &v, &p), FG_ENOTFOUND);
+  CHECK(strstr(p.detail, "alpha") != NULL);
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_get_version(s, "nobody", 0, &v, &p), FG_ENOTFOUND);
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_retire_model(s, "nobody", &p), FG_ENOTFOUND);
+
+  /* list: latest of each, by name */
+  fg_store_version *list = NULL;
+  int n = 0;
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_list_models(s, &list, &n, &p), FG_OK);
+  CHECK_INT(n, 2);
+  if (n == 2) {
+    CHECK_STR(list[0].name, "alpha");
+    CHECK_INT(list[0].version, 2);
+    CHECK(list[0].document == NULL);
+    CHECK_STR(list[1].name, "beta");
+    CHECK_STR(list[1].title, "Beta");
+  }
+  fg_store_versions_free(list, n);
+
+  /* retire beta: gone from the list, still readable, retired flag set */
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_retire_model(s, "beta", &p), FG_OK);
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_retire_model(s, "beta", &p), FG_OK); /* idempotent */
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_list_models(s, &list, &n, &p), FG_OK);
+  CHECK_INT(n, 1);
+  fg_store_versions_free(list, n);
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_get_version(s, "beta", 0, &v, &p), FG_OK);
+  CHECK(v.retired);
+  fg_store_version_clear(&v);
+
+  /* a new registration revives it */
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_put_version(s, "beta", d2, "{\"b\":2}", "Beta", &v,
+                                 &created, &p),
+            FG_OK);
+  CHECK(created);
+  CHECK_INT(v.version, 2);
+  CHECK(!v.retired);
+  fg_store_version_clear(&v);
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_retire_model(s, "beta", &p), FG_OK);
+}
+
+static void test_checks(fg_store *s) {
+  fg_problem p;
+  fg_store_check c;
+  const char *d2 = "sha256:2222222222222222222222222222222222222222222222222222"
+                   "222222222222";
+  /* ten checks: ids and times increasing; two share one second */
+  static const char *times[10] = {
+      "2026-01-01T00:00:00Z", "2026-01-01T00:00:01Z", "2026-01-01T00:00:02Z",
+      "2026-01-01T00:00:02Z", "2026-01-01T00:00:04Z", "2026-01-01T00:00:05Z",
+      "2026-01-01T00:00:06Z", "2026-01-01T00:00:07Z", "2026-01-01T00:00:08Z",
+      "2026-01-01T00:00:09Z"};
+  for (int i = 0; i < 10; i++) {
+    char id[40];
+    snprintf(id, sizeof id, "chk_%026d", i);
+    make_check(&c, id, "alpha", 2, d2, times[i], i % 2 ? "odd" : "even");
+    fg_problem_init(&p);
+    CHECK_INT(fg_store_put_check(s, &c, &p), FG_OK);
+  }
+  /* duplicate id is refused, nothing half-written */
+  make_check(&c, "chk_00000000000000000000000000", "alpha", 2, d2, times[0],
+             NULL);
+  fg_problem_init(&p);
+  CHECK(fg_store_put_check(s, &c, &p) != FG_OK);
+  /* unknown model version is refused by the foreign key */
+  make_check(&c, "chk_x", "alpha", 9, d2, times[0], NULL);
+  fg_problem_init(&p);
+  CHECK(fg_store_put_check(s, &c, &p) != FG_OK);
+
+  /* get a running one */
+  fg_store_check g;
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_get_check(s, "chk_00000000000000000000000003", &g, &p),
+            FG_OK);
+  CHECK_STR(g.status, "running");
+  CHECK_STR(g.verdict, "");
+  CHECK_STR(g.finished_at, "");
+  CHECK(isnan(g.probability));
+  CHECK(g.result == NULL);
+  CHECK_STR(g.request, "{\"decision\":{\"x\":1}}");
+  CHECK(g.seed == 12345);
+  CHECK_STR(g.label, "odd");
+  fg_store_check_clear(&g);
+
+  /* finish checks 0..7: even ones pass, odd ones fail */
+  for (int i = 0; i < 8; i++) {
+    char id[40];
+    snprintf(id, sizeof id, "chk_%026d", i);
+    make_check(&c, id, "alpha", 2, d2, times[i], NULL);
+    snprintf(c.status, sizeof c.status, "done");
+    snprintf(c.verdict, sizeof c.verdict, "%s", i % 2 ? "fail" : "pass");
+    snprintf(c.finished_at, sizeof c.finished_at, "2026-01-01T00:01:00Z");
+    c.elapsed_ms = 12.5;
+    c.probability = 0.9 + 0.001 * i;
+    c.lower = c.probability - 0.01;
+    c.upper = c.probability + 0.01;
+    c.result = (char *)"{\"status\":\"done\"}";
+    fg_problem_init(&p);
+    CHECK_INT(fg_store_finish_check(s, &c, &p), FG_OK);
+  }
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_finish_check(s, &(fg_store_check){.id = "chk_none"}, &p),
+            FG_ENOTFOUND);
+
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_get_check(s, "chk_00000000000000000000000002", &g, &p),
+            FG_OK);
+  CHECK_STR(g.status, "done");
+  CHECK_STR(g.verdict, "pass");
+  CHECK_NEAR(g.probability, 0.902, 1e-12);
+  CHECK_NEAR(g.lower, 0.892, 1e-12);
+  CHECK_NEAR(g.elapsed_ms, 12.5, 1e-12);
+  CHECK_STR(g.result, "{\"status\":\"done\"}");
+  CHECK_STR(g.finished_at, "2026-01-01T00:01:00Z");
+  fg_store_check_clear(&g);
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_get_check(s, "chk_nothing", &g, &p), FG_ENOTFOUND);
+
+  /* list all: newest first */
+  fg_store_check *list = NULL;
+  int n = 0;
+  char next[40];
+  fg_check_filter f = {.limit = 100};
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_list_checks(s, &f, &list, &n, next, &p), FG_OK);
+  CHECK_INT(n, 10);
+  CHECK_STR(next, "");
+  if (n == 10) {
+    CHECK_STR(list[0].id, "chk_00000000000000000000000009");
+    CHECK_STR(list[9].id, "chk_00000000000000000000000000");
+    /* same second: the larger id first */
+    CHECK_STR(list[6].id, "chk_00000000000000000000000003");
+    CHECK_STR(list[7].id, "chk_00000000000000000000000002");
+    CHECK(list[0].request == NULL && list[0].result == NULL);
+    CHECK_NEAR(list[9].probability, 0.9, 1e-12);
+  }
+  fg_store_checks_free(list, n);
+
+  /* paging by 3: 9 8 7 | 6 5 4 | 3 2 1 | 0 */
+  const char *after = NULL;
+  char cursor[40] = "";
+  int pages = 0, seen = 0, expect = 9;
+  for (;;) {
+    f = (fg_check_filter){.limit = 3, .after = after};
+    fg_problem_init(&p);
+    if (fg_store_list_checks(s, &f, &list, &n, next, &p) != FG_OK) {
+      CHECK(!"paging failed");
+      break;
+    }
+    pages++;
+    for (int i = 0; i < n; i++) {
+      char id[40];
+      snprintf(id, sizeof id, "chk_%026d", expect--);
+      CHECK_STR(list[i].id, id);
+      seen++;
+    }
+    fg_store_checks_free(list, n);
+    if (!next[0]) break;
+    snprintf(cursor, sizeof cursor, "%s", next);
+    after = cursor;
+    if (pages > 10) break;
+  }
+  CHECK_INT(pages, 4);
+  CHECK_INT(seen, 10);
+
+  /* filters */
+  f = (fg_check_filter){.verdict = "pass", .limit = 100};
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_list_checks(s, &f, &list, &n, next, &p), FG_OK);
+  CHECK_INT(n, 4); /* 0 2 4 6 */
+  fg_store_checks_free(list, n);
+  f = (fg_check_filter){.label = "odd", .limit = 100};
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_list_checks(s, &f, &list, &n, next, &p), FG_OK);
+  CHECK_INT(n, 5);
+  fg_store_checks_free(list, n);
+  f = (fg_check_filter){.since = "2026-01-01T00:00:05Z", .limit = 100};
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_list_checks(s, &f, &list, &n, next, &p), FG_OK);
+  CHECK_INT(n, 5);
+  fg_store_checks_free(list, n);
+  f = (fg_check_filter){.model = "beta", .limit = 100};
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_list_checks(s, &f, &list, &n, next, &p), FG_OK);
+  CHECK_INT(n, 0);
+  fg_store_checks_free(list, n);
+  f = (fg_check_filter){.model = "alpha", .verdict = "fail", .label = "odd",
+                        .limit = 2};
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_list_checks(s, &f, &list, &n, next, &p), FG_OK);
+  CHECK_INT(n, 2);
+  if (n == 2) {
+    CHECK_STR(list[0].id, "chk_00000000000000000000000007");
+    CHECK_STR(next, "chk_00000000000000000000000005");
+  }
+  fg_store_checks_free(list, n);
+  f = (fg_check_filter){.after = "chk_unknown", .limit = 2};
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_list_checks(s, &f, &list, &n, next, &p), FG_EINVAL);
+
+  /* two still running: 8 and 9 */
+  int count = -1;
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_mark_interrupted(s, &count, &p), FG_OK);
+  CHECK_INT(count, 2);
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_get_check(s, "chk_00000000000000000000000009", &g, &p),
+            FG_OK);
+  CHECK_STR(g.status, "interrupted");
+  CHECK(g.finished_at[0] != '\0');
+  fg_store_check_clear(&g);
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_mark_interrupted(s, &count, &p), FG_OK);
+  CHECK_INT(count, 0);
+}
+
+/* Several threads registering and recording at once. */
+typedef struct writer_arg {
+  fg_store *s;
+  int index;
+  int failures;
+} writer_arg;
+
+static void *writer(void *arg) {
+  writer_arg *w = arg;
+  for (int i = 0; i < 25; i++) {
+    fg_problem p;
+    fg_store_check c;
+    char id[40];
+    snprintf(id, sizeof id, "chk_t%d_%03d", w->index, i);
+    make_check(&c, id, "alpha", 1,
+               "sha256:11111111111111111111111111111111111111111111111111111"
+               "11111111111",
+               "2026-02-01T00:00:00Z", "thread");
+    fg_problem_init(&p);
+    if (fg_store_put_check(w->s, &c, &p) != FG_OK) w->failures++;
+    fg_store_version v;
+    fg_problem_init(&p);
+    if (fg_store_get_version(w->s, "alpha", 0, &v, &p) != FG_OK) w->failures++;
+    fg_store_version_clear(&v);
+  }
+  return NULL;
+}
+
+static void test_threads(fg_store *s) {
+  pthread_t t[4];
+  writer_arg args[4];
+  for (int i = 0; i < 4; i++) {
+    args[i] = (writer_arg){.s = s, .index = i};
+    pthread_create(&t[i], NULL, writer, &args[i]);
+  }
+  int failures = 0;
+  for (int i = 0; i < 4; i++) {
+    pthread_join(t[i], NULL);
+    failures += args[i].failures;
+  }
+  CHECK_INT(failures, 0);
+  fg_store_check *list = NULL;
+  int n = 0;
+  char next[40];
+  fg_problem p;
+  fg_problem_init(&p);
+  fg_check_filter f = {.label = "thread", .limit = 1000};
+  CHECK_INT(fg_store_list_checks(s, &f, &list, &n, next, &p), FG_OK);
+  CHECK_INT(n, 100);
+  fg_store_checks_free(list, n);
+}
+
+static void test_reopen(void) {
+  fg_store *s = NULL;
+  fg_problem p;
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_open(url, &s, &p), FG_OK);
+  if (!s) return;
+  fg_store_version v;
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_get_version(s, "alpha", 0, &v, &p), FG_OK);
+  CHECK_INT(v.version, 2);
+  CHECK_STR(v.document, "{\"a\":2}");
+  fg_store_version_clear(&v);
+  fg_store_check g;
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_get_check(s, "chk_00000000000000000000000004", &g, &p),
+            FG_OK);
+  CHECK_STR(g.verdict, "pass");
+  fg_store_check_clear(&g);
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_ping(s, &p), FG_OK);
+  fg_store_close(s);
+
+  /* SQLite's own verdict on the file */
+  sqlite3 *db = NULL;
+  CHECK_INT(sqlite3_open_v2(dbpath, &db, SQLITE_OPEN_READONLY, NULL),
+            SQLITE_OK);
+  sqlite3_stmt *st = NULL;
+  CHECK_INT(sqlite3_prepare_v2(db, "PRAGMA integrity_check", -1, &st, NULL),
+            SQLITE_OK);
+  CHECK_INT(sqlite3_step(st), SQLITE_ROW);
+  CHECK_STR((const char *)sqlite3_column_text(st, 0), "ok");
+  sqlite3_finalize(st);
+  CHECK_INT(sqlite3_prepare_v2(db, "SELECT version FROM schema_version", -1,
+                               &st, NULL),
+            SQLITE_OK);
+  CHECK_INT(sqlite3_step(st), SQLITE_ROW);
+  CHECK_INT(sqlite3_column_int(st, 0), 1);
+  sqlite3_finalize(st);
+  CHECK_INT(sqlite3_prepare_v2(db, "PRAGMA journal_mode", -1, &st, NULL),
+            SQLITE_OK);
+  CHECK_INT(sqlite3_step(st), SQLITE_ROW);
+  CHECK_STR((const char *)sqlite3_column_text(st, 0), "wal");
+  sqlite3_finalize(st);
+  sqlite3_close(db);
+}
+
+static void test_bad_urls(void) {
+  fg_store *s = NULL;
+  fg_problem p;
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_open("postgres://x", &s, &p), FG_EINVAL);
+  CHECK(s == NULL);
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_open("sqlite:", &s, &p), FG_EINVAL);
+  fg_problem_init(&p);
+  CHECK(fg_store_open("sqlite:/proc/no/such/place/x.db", &s, &p) != FG_OK);
+  CHECK(p.detail[0] != '\0');
+}
+
+int main(void) {
+  snprintf(dir, sizeof dir, "/tmp/fg_store_test_XXXXXX");
+  if (!mkdtemp(dir)) {
+    perror("mkdtemp");
+    return 1;
+  }
+  /* a nested folder that does not exist yet */
+  snprintf(dbpath, sizeof dbpath, "%s/a/b/t.db", dir);
+  snprintf(url, sizeof url, "sqlite:%s", dbpath);
+
+  fg_store *s = NULL;
+  fg_problem p;
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_open(url, &s, &p), FG_OK);
+  if (!s) {
+    fprintf(stderr, "open failed: %s\n", p.detail);
+    return fg_test_finish() ? 1 : 1;
+  }
+  test_versions(s);
+  test_checks(s);
+  test_threads(s);
+  fg_store_close(s);
+  test_reopen();
+  test_bad_urls();
+
+  char cmd[512];
+  snprintf(cmd, sizeof cmd, "rm -rf '%s'", dir);
+  if (system(cmd) != 0) fprintf(stderr, "could not remove %s\n", dir);
+  return fg_test_finish();
+}
