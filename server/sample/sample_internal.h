@@ -1,0 +1,199 @@
+/*
+ * sample/sample_internal.h -- what the files of sample/ share; nothing
+ * outside sample/ includes it.
+ *
+ * How the module is divided:
+ *   stream.c   Philox4x32-10 keys and counters, the GSL adaptor, uniforms
+ *              and standard normals drawn from one (sample, slot) stream.
+ *   param.c    reading distribution parameters from cJSON (scalar or
+ *              per-element array, lists, error pointers).
+ *   family.c   the family table, parameter checks of the element-wise
+ *              families, their draws and inverse CDFs.
+ *   mvn.c      matrices, the Cholesky factor with leading-minor reporting,
+ *              the multivariate normal family.
+ *   copula.c   the `dependence` entries (Gaussian copula).
+ *   sampler.c  build, dimensions, column names, the draw loop.
+ * A new family goes into family.c (element-wise) or its own file (joint).
+ *
+ * Invariants: after a successful build every parameter is finite and
+ * inside its family's domain, so the draw code never checks again; a built
+ * sampler is never written to.
+ */
+#ifndef FG_SAMPLE_INTERNAL_H
+#define FG_SAMPLE_INTERNAL_H
+
+#include "sample/sample.h"
+
+#include <gsl/gsl_randist.h>
+#include <gsl/gsl_rng.h>
+
+#include <stddef.h>
+#include <stdint.h>
+
+struct cJSON;
+
+/* ---- stream.c ------------------------------------------------------- */
+
+/* Philox key words for (seed, stream); see sample.h for the layout. */
+typedef struct fg_stream_key {
+  uint32_t k0, k1;
+} fg_stream_key;
+
+fg_stream_key fg_stream_key_make(uint64_t seed, fg_stream stream);
+/* A GSL generator backed by Philox; must be reset before each use. */
+gsl_rng *fg_stream_rng_new(void);
+/* Point r at the sub-stream of (sample, slot): draw counter 0. */
+void fg_stream_reset(gsl_rng *r, fg_stream_key key, uint64_t sample,
+                     uint32_t slot);
+/* One uniform in the open interval (0, 1) with 53 random bits, and its
+ * complement; u is exact when u < 1/2, uc is exact when u > 1/2, so
+ * inverse CDFs can use whichever tail is accurate. */
+void fg_stream_u01(gsl_rng *r, double *u, double *uc);
+/* One standard normal (GSL's ziggurat on the current sub-stream). */
+double fg_stream_normal(gsl_rng *r);
+
+/* ---- the parsed inputs ---------------------------------------------- */
+
+typedef enum fg_family_kind {
+  FG_FAM_NORMAL,
+  FG_FAM_LOGNORMAL,
+  FG_FAM_UNIFORM,
+  FG_FAM_TRIANGULAR,
+  FG_FAM_PERT,
+  FG_FAM_EXPONENTIAL,
+  FG_FAM_GAMMA,
+  FG_FAM_BETA,
+  FG_FAM_WEIBULL,
+  FG_FAM_STUDENT_T,
+  FG_FAM_POISSON,
+  FG_FAM_BINOMIAL,
+  FG_FAM_DISCRETE,
+  FG_FAM_EMPIRICAL,
+  FG_FAM_MVN,
+  FG_FAM_SCENARIO_TABLE
+} fg_family_kind;
+
+/* Per-element parameter arrays of one input (each `size` long). Their
+ * meaning per family is listed in family.c beside the parser. */
+#define FG_FAMILY_NPAR 8
+
+typedef struct fg_input {
+  char *name;
+  int size;      /* elements (1 for a scalar) */
+  int is_vector; /* `size` member present: columns are "name[e]" */
+  int base;      /* first dimension */
+  int ok;        /* distribution parsed and valid */
+  fg_family_kind kind;
+  const char *family; /* static family name */
+  int truncated;      /* normal with lower and/or upper */
+  double *par[FG_FAMILY_NPAR];
+  double *parbuf;
+  /* tables: discrete values, empirical data, scenario rows (row-major,
+   * nvalues rows of `size`) */
+  double *values;
+  int nvalues;
+  double *weights;         /* normalised, for scenario_table / discrete */
+  gsl_ran_discrete_t *alias;
+  /* discrete inverse CDF: support sorted ascending with P(X <= v_k) and
+   * P(X > v_k) */
+  double *sorted, *cdf_lo, *cdf_hi;
+  double *chol;            /* mvn: lower Cholesky factor, size x size */
+  unsigned char *integer;  /* per element: always integer valued */
+  int copula;              /* index of its dependence entry, or -1 */
+} fg_input;
+
+/* Reading parameters (param.c). */
+typedef struct fg_params {
+  const struct cJSON *dist; /* the distribution object */
+  const char *ptr;          /* its JSON Pointer */
+  int size;
+  const char *family;
+  fg_problem *p;
+  fg_status st; /* first error recorded through this context */
+} fg_params;
+
+const char *fg_family_json_type(const struct cJSON *v);
+/* Pointer of parameter `name`, or of its element e when it was given as
+ * an array (e < 0: the member itself). */
+void fg_family_param_pointer(const fg_params *c, const char *name, int e,
+                             char *buf, size_t cap);
+void fg_family_param_error(fg_params *c, fg_status st, const char *name,
+                           int e, const char *fmt, ...)
+    __attribute__((format(printf, 5, 6)));
+int fg_family_param_present(const fg_params *c, const char *name);
+/* A number or an array of `size` numbers into out[size]. Returns 1 when
+ * read, 0 when absent (out filled with dflt unless required, which is an
+ * error), -1 on error. */
+int fg_family_param_vec(fg_params *c, const char *name, double *out,
+                        int required, double dflt);
+/* An array of 1..FG_TABLE_CELLS_MAX numbers, allocated into *out. Returns
+ * 1 when read, 0 when absent and not required, -1 on error. */
+int fg_family_param_list(fg_params *c, const char *name, int required,
+                         double **out, int *n);
+/* Members other than "family" and the names in `allowed` are errors. */
+void fg_family_param_unknown(fg_params *c, const char *const *allowed);
+
+/* Families (family.c). */
+typedef struct fg_family_def {
+  const char *name;
+  fg_family_kind kind;
+  const char *const *params; /* NULL-terminated member names */
+  int supported;
+  int has_icdf; /* may be a Gaussian copula member */
+} fg_family_def;
+
+const fg_family_def *fg_family_find(const char *name);
+/* "normal, lognormal, ..." for error messages. */
+void fg_family_names(char *buf, size_t cap);
+/* Parse and check in->family's parameters; in->size is set. */
+fg_status fg_family_parse(fg_input *in, const fg_family_def *def,
+                          const struct cJSON *dist, const char *ptr,
+                          fg_problem *p);
+void fg_family_free(fg_input *in);
+/* One independent draw of element e (element-wise families only). */
+double fg_family_draw(const fg_input *in, int e, gsl_rng *r);
+/* Inverse CDF of element e at u (uc = 1 - u, each exact in its own half);
+ * families with has_icdf only. */
+double fg_family_icdf(const fg_input *in, int e, double u, double uc);
+
+/* Matrices and the multivariate normal (mvn.c). */
+/* Read an n x n matrix of finite numbers (array of n arrays of n). */
+int fg_family_matrix_read(const struct cJSON *m, int n, const char *ptr,
+                          double *out, fg_problem *p);
+/* 0 when symmetric, else -1 after reporting the first asymmetric pair. */
+int fg_family_matrix_symmetric(const double *a, int n, const char *ptr,
+                               const char *what, fg_problem *p);
+/* Factor a (row-major n x n, symmetric) in place into its lower Cholesky
+ * factor (upper triangle zeroed). Returns 0, or the 1-based order of the
+ * first leading minor that is not positive. */
+int fg_family_cholesky(double *a, int n);
+fg_status fg_family_mvn_parse(fg_input *in, fg_params *c);
+void fg_family_mvn_draw(const fg_input *in, gsl_rng *r, double *z,
+                        fg_stream_key key, uint64_t first, int n,
+                        double *out, size_t stride);
+
+/* Dependence entries (copula.c). */
+typedef enum fg_corr_form { FG_CORR_FULL, FG_CORR_EQUAL, FG_CORR_AR1 } fg_corr_form;
+
+typedef struct fg_copula {
+  int d;           /* dimensions tied */
+  int *dims;       /* their sampler dimensions, in member order */
+  int *input;      /* input index of each */
+  int *elem;       /* element of that input */
+  fg_corr_form form;
+  double *chol;    /* FULL: d x d lower factor */
+  double *c, *dd;  /* EQUAL: factor column value and diagonal */
+  double r, rc;    /* AR1: r and sqrt(1 - r^2) */
+} fg_copula;
+
+fg_status fg_sampler_copula_parse(fg_copula *cop, int index,
+                                  const struct cJSON *entry, const char *ptr,
+                                  fg_input *inputs, int ninputs,
+                                  fg_problem *p);
+void fg_sampler_copula_free(fg_copula *cop);
+void fg_sampler_copula_draw(const fg_copula *cop, const fg_input *inputs,
+                            gsl_rng *r, double *z, double *x,
+                            fg_stream_key key, uint64_t first, int n,
+                            double *out, size_t stride);
+
+#endif

@@ -1,0 +1,315 @@
+/*
+ * sample/sampler.c -- building a sampler and drawing blocks of samples.
+ *
+ * Design: fg_sampler_build walks `uncertain` (checking each entry
+ * defensively although model/ has checked names and sizes), parses every
+ * distribution through family.c / mvn.c, lays the inputs' elements out as
+ * dimensions in declaration order, then parses `dependence` (copula.c).
+ * All errors found are reported, not just the first; on any error nothing
+ * is returned.
+ *
+ * fg_sampler_draw fills a block of samples input by input: element-wise
+ * families element by element (slot = dimension), multivariate normals and
+ * scenario tables as one joint block each (standard normal k of a
+ * multivariate normal from slot base + k; the row of a scenario table from
+ * slot base), and copula entries last. Each (sample, slot) sub-stream is
+ * reset before use, so the values of sample i, dimension j depend only on
+ * (seed, stream, j, i) and on nothing drawn before: any chunking of the
+ * sample range gives the same numbers. The draw path does not allocate:
+ * the generator and vectors for joint blocks live in the scratch.
+ *
+ * GSL's error handler: GSL aborts on errors by default, which a daemon
+ * must never do on a client's input. The first build switches it off once
+ * for the process (pthread_once); every GSL result used here is checked or
+ * guarded by a prior validation.
+ *
+ * Thread use: a built sampler is immutable; any number of threads may draw
+ * from it at once, each with its own scratch.
+ */
+#include "sample/sample_internal.h"
+
+#include "feasgate/limits.h"
+
+#include <cjson/cJSON.h>
+#include <gsl/gsl_errno.h>
+
+#include <pthread.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+struct fg_sampler {
+  int ninputs;
+  fg_input *inputs;
+  int ncopulas;
+  fg_copula *copulas;
+  int dims;
+  char **columns;     /* per dimension, into colbuf */
+  char *colbuf;
+  unsigned char *integer; /* per dimension */
+  int joint_max;      /* largest joint block (mvn size, copula d), >= 1 */
+};
+
+struct fg_sample_scratch {
+  gsl_rng *rng;
+  double *z, *x; /* joint_max each */
+};
+
+static pthread_once_t gsl_once = PTHREAD_ONCE_INIT;
+static void gsl_quiet(void) { gsl_set_error_handler_off(); }
+
+void fg_sampler_free(fg_sampler *s) {
+  if (!s) return;
+  for (int i = 0; i < s->ninputs; i++) fg_family_free(&s->inputs[i]);
+  for (int i = 0; i < s->ncopulas; i++) fg_sampler_copula_free(&s->copulas[i]);
+  free(s->inputs);
+  free(s->copulas);
+  free(s->columns);
+  free(s->colbuf);
+  free(s->integer);
+  free(s);
+}
+
+/* The outer members of one `uncertain` entry; parses its distribution. */
+static fg_status parse_input(fg_input *in, const cJSON *u, const char *ptr,
+                             long *dims, fg_problem *p) {
+  char mptr[FG_POINTER_MAX];
+  in->copula = -1;
+  if (!cJSON_IsObject(u))
+    return fg_problem_add(p, FG_EINVAL, ptr, 0,
+                          "expected an uncertain-input object, found %s",
+                          fg_family_json_type(u));
+  const cJSON *name = cJSON_GetObjectItemCaseSensitive(u, "name");
+  fg_pointer_join(mptr, sizeof mptr, ptr, "name");
+  if (!cJSON_IsString(name) || !name->valuestring[0])
+    return fg_problem_add(p, FG_EINVAL, name ? mptr : ptr, 0,
+                          "expected a non-empty name string, found %s",
+                          name ? fg_family_json_type(name) : "none");
+  in->name = strdup(name->valuestring);
+  if (!in->name) return fg_problem_set(p, FG_ENOMEM, "out of memory");
+  in->size = 1;
+  const cJSON *size = cJSON_GetObjectItemCaseSensitive(u, "size");
+  fg_pointer_join(mptr, sizeof mptr, ptr, "size");
+  if (size) {
+    double v = cJSON_IsNumber(size) ? size->valuedouble : 0;
+    if (!cJSON_IsNumber(size) || v != (double)(long)v || v < 1)
+      return fg_problem_add(p, FG_EINVAL, mptr, 0,
+                            "expected an integer size >= 1, found %s",
+                            cJSON_IsNumber(size) ? "another number"
+                                                 : fg_family_json_type(size));
+    if (v > FG_VECTOR_MAX)
+      return fg_problem_limit(p, mptr, "vector_length", FG_VECTOR_MAX,
+                              "expected a size of at most %d, found %.0f",
+                              FG_VECTOR_MAX, v);
+    in->size = (int)v;
+    in->is_vector = 1;
+  }
+  *dims += in->size;
+  if (*dims > FG_UNCERTAIN_DIMS_MAX)
+    return fg_problem_limit(p, size ? mptr : ptr, "uncertain_dimensions",
+                            FG_UNCERTAIN_DIMS_MAX,
+                            "expected at most %d uncertain dimensions in "
+                            "all, found %ld by this input",
+                            FG_UNCERTAIN_DIMS_MAX, *dims);
+  const cJSON *dist = cJSON_GetObjectItemCaseSensitive(u, "distribution");
+  fg_pointer_join(mptr, sizeof mptr, ptr, "distribution");
+  if (!cJSON_IsObject(dist))
+    return fg_problem_add(p, FG_EINVAL, dist ? mptr : ptr, 0,
+                          "expected a distribution object, found %s",
+                          dist ? fg_family_json_type(dist) : "none");
+  const cJSON *fam = cJSON_GetObjectItemCaseSensitive(dist, "family");
+  char fptr[FG_POINTER_MAX];
+  fg_pointer_join(fptr, sizeof fptr, mptr, "family");
+  if (!cJSON_IsString(fam))
+    return fg_problem_add(p, FG_EINVAL, fam ? fptr : mptr, 0,
+                          "expected a family name string, found %s",
+                          fam ? fg_family_json_type(fam) : "none");
+  const fg_family_def *def = fg_family_find(fam->valuestring);
+  if (!def) {
+    char names[FG_MESSAGE_MAX];
+    fg_family_names(names, sizeof names);
+    return fg_problem_add(p, FG_EINVAL, fptr, 0,
+                          "unknown family '%.64s' (expected one of: %s)",
+                          fam->valuestring, names);
+  }
+  in->family = def->name;
+  if (!def->supported)
+    return fg_problem_add(p, FG_EUNSUPPORTED, fptr, 0,
+                          "family '%s' is not yet supported", def->name);
+  fg_status st = fg_family_parse(in, def, dist, mptr, p);
+  in->ok = st == FG_OK;
+  return st;
+}
+
+/* Column names "name" or "name[e]", one buffer for all. */
+static int make_columns(fg_sampler *s) {
+  size_t total = 0;
+  for (int i = 0; i < s->ninputs; i++)
+    total += (size_t)s->inputs[i].size * (strlen(s->inputs[i].name) + 16);
+  s->colbuf = malloc(total ? total : 1);
+  s->columns = calloc((size_t)(s->dims ? s->dims : 1), sizeof(char *));
+  s->integer = calloc((size_t)(s->dims ? s->dims : 1), 1);
+  if (!s->colbuf || !s->columns || !s->integer) return -1;
+  char *w = s->colbuf;
+  for (int i = 0; i < s->ninputs; i++) {
+    const fg_input *in = &s->inputs[i];
+    size_t cap = strlen(in->name) + 16;
+    for (int e = 0; e < in->size; e++) {
+      int j = in->base + e;
+      s->columns[j] = w;
+      int len = in->is_vector ? snprintf(w, cap, "%s[%d]", in->name, e)
+                              : snprintf(w, cap, "%s", in->name);
+      w += len + 1;
+      s->integer[j] = in->integer[e];
+    }
+  }
+  return 0;
+}
+
+fg_status fg_sampler_build(const cJSON *uncertain, const cJSON *dependence,
+                           fg_sampler **out, fg_problem *p) {
+  pthread_once(&gsl_once, gsl_quiet);
+  *out = NULL;
+  fg_status st = FG_OK;
+  if (uncertain && !cJSON_IsArray(uncertain))
+    return fg_problem_add(p, FG_EINVAL, "/uncertain", 0,
+                          "expected an array of uncertain inputs, found %s",
+                          fg_family_json_type(uncertain));
+  if (dependence && !cJSON_IsArray(dependence) && !cJSON_IsNull(dependence))
+    return fg_problem_add(p, FG_EINVAL, "/dependence", 0,
+                          "expected an array of dependence entries, found %s",
+                          fg_family_json_type(dependence));
+  fg_sampler *s = calloc(1, sizeof *s);
+  if (!s) return fg_problem_set(p, FG_ENOMEM, "out of memory");
+  int n = uncertain ? cJSON_GetArraySize(uncertain) : 0;
+  s->inputs = calloc((size_t)(n ? n : 1), sizeof *s->inputs);
+  if (!s->inputs) {
+    st = fg_problem_set(p, FG_ENOMEM, "out of memory");
+    goto fail;
+  }
+  s->ninputs = n;
+  long dims = 0;
+  int k = 0;
+  for (const cJSON *u = n ? uncertain->child : NULL; u; u = u->next, k++) {
+    char ptr[FG_POINTER_MAX];
+    fg_pointer_index(ptr, sizeof ptr, "/uncertain", k);
+    s->inputs[k].base = (int)dims;
+    fg_status ist = parse_input(&s->inputs[k], u, ptr, &dims, p);
+    if (ist != FG_OK && st == FG_OK) st = ist;
+    if (ist == FG_ELIMIT && dims > FG_UNCERTAIN_DIMS_MAX) break;
+  }
+  s->ninputs = k < n ? k + 1 : n;
+  /* entries without a valid name get "" so copula lookups stay safe */
+  for (int i = 0; i < s->ninputs; i++)
+    if (!s->inputs[i].name && !(s->inputs[i].name = strdup(""))) {
+      st = fg_problem_set(p, FG_ENOMEM, "out of memory");
+      goto fail;
+    }
+  s->dims = (int)dims;
+  s->joint_max = 1;
+  for (int i = 0; i < s->ninputs; i++)
+    if (s->inputs[i].kind == FG_FAM_MVN && s->inputs[i].size > s->joint_max)
+      s->joint_max = s->inputs[i].size;
+
+  int nd = cJSON_IsArray(dependence) ? cJSON_GetArraySize(dependence) : 0;
+  if (nd > 0 && !(st == FG_ELIMIT && dims > FG_UNCERTAIN_DIMS_MAX)) {
+    s->copulas = calloc((size_t)nd, sizeof *s->copulas);
+    if (!s->copulas) {
+      st = fg_problem_set(p, FG_ENOMEM, "out of memory");
+      goto fail;
+    }
+    int c = 0;
+    for (const cJSON *d = dependence->child; d; d = d->next, c++) {
+      char ptr[FG_POINTER_MAX];
+      fg_pointer_index(ptr, sizeof ptr, "/dependence", c);
+      fg_status cst = fg_sampler_copula_parse(&s->copulas[c], c, d, ptr,
+                                              s->inputs, s->ninputs, p);
+      s->ncopulas = c + 1;
+      if (cst != FG_OK && st == FG_OK) st = cst;
+      if (s->copulas[c].d > s->joint_max) s->joint_max = s->copulas[c].d;
+    }
+  }
+  if (st != FG_OK) goto fail;
+  if (make_columns(s) != 0) {
+    st = fg_problem_set(p, FG_ENOMEM, "out of memory");
+    goto fail;
+  }
+  *out = s;
+  return FG_OK;
+fail:
+  fg_sampler_free(s);
+  return st;
+}
+
+int fg_sampler_dims(const fg_sampler *s) { return s->dims; }
+
+const char *fg_sampler_column(const fg_sampler *s, int j) {
+  return j >= 0 && j < s->dims ? s->columns[j] : NULL;
+}
+
+int fg_sampler_integer_valued(const fg_sampler *s, int j) {
+  return j >= 0 && j < s->dims ? s->integer[j] : 0;
+}
+
+fg_sample_scratch *fg_sample_scratch_new(const fg_sampler *s) {
+  fg_sample_scratch *w = calloc(1, sizeof *w);
+  if (!w) return NULL;
+  w->rng = fg_stream_rng_new();
+  w->z = malloc((size_t)s->joint_max * sizeof(double));
+  w->x = malloc((size_t)s->joint_max * sizeof(double));
+  if (!w->rng || !w->z || !w->x) {
+    fg_sample_scratch_free(w);
+    return NULL;
+  }
+  return w;
+}
+
+void fg_sample_scratch_free(fg_sample_scratch *w) {
+  if (!w) return;
+  if (w->rng) gsl_rng_free(w->rng);
+  free(w->z);
+  free(w->x);
+  free(w);
+}
+
+static void draw_table(const fg_input *in, gsl_rng *r, fg_stream_key key,
+                       uint64_t first, int n, double *out, size_t stride) {
+  for (int t = 0; t < n; t++) {
+    fg_stream_reset(r, key, first + (uint64_t)t, (uint32_t)in->base);
+    size_t row = in->alias ? gsl_ran_discrete(r, in->alias)
+                           : gsl_rng_uniform_int(r, (unsigned long)in->nvalues);
+    const double *src = in->values + row * (size_t)in->size;
+    for (int e = 0; e < in->size; e++)
+      out[(size_t)(in->base + e) * stride + (size_t)t] = src[e];
+  }
+}
+
+void fg_sampler_draw(const fg_sampler *s, fg_sample_scratch *w, uint64_t seed,
+                     fg_stream stream, uint64_t first, int n, double *out,
+                     size_t stride) {
+  fg_stream_key key = fg_stream_key_make(seed, stream);
+  gsl_rng *r = w->rng;
+  for (int i = 0; i < s->ninputs; i++) {
+    const fg_input *in = &s->inputs[i];
+    if (in->copula >= 0) continue;
+    if (in->kind == FG_FAM_MVN) {
+      fg_family_mvn_draw(in, r, w->z, key, first, n, out, stride);
+      continue;
+    }
+    if (in->kind == FG_FAM_SCENARIO_TABLE) {
+      draw_table(in, r, key, first, n, out, stride);
+      continue;
+    }
+    for (int e = 0; e < in->size; e++) {
+      uint32_t slot = (uint32_t)(in->base + e);
+      double *col = out + (size_t)slot * stride;
+      for (int t = 0; t < n; t++) {
+        fg_stream_reset(r, key, first + (uint64_t)t, slot);
+        col[t] = fg_family_draw(in, e, r);
+      }
+    }
+  }
+  for (int c = 0; c < s->ncopulas; c++)
+    fg_sampler_copula_draw(&s->copulas[c], s->inputs, r, w->z, w->x, key,
+                           first, n, out, stride);
+}
