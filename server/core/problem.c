@@ -70,9 +70,14 @@ static void add_item(fg_problem *p, const char *pointer, int column,
   snprintf(it->pointer, sizeof it->pointer, "%s", pointer ? pointer : "");
   it->column = column;
   vsnprintf(it->message, sizeof it->message, fmt, ap);
-  if (p->detail[0] == '\0')
-    snprintf(p->detail, sizeof p->detail, "%s%s%s", it->message,
-             it->pointer[0] ? " at " : "", it->pointer);
+  if (p->detail[0] == '\0') {
+    /* detail = message, then " at pointer" when it fits */
+    size_t n = (size_t)snprintf(p->detail, sizeof p->detail, "%s", it->message);
+    if (it->pointer[0] && n + 4 + strlen(it->pointer) < sizeof p->detail) {
+      strcat(p->detail, " at ");
+      strcat(p->detail, it->pointer);
+    }
+  }
 }
 
 fg_status fg_problem_add(fg_problem *p, fg_status st, const char *pointer,

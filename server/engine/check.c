@@ -1,0 +1,357 @@
+/*
+ * engine/check.c -- one check: set-up, deterministic problems, the end-of-run
+ * statistics, waiting and cancelling.
+ *
+ * Life of a check: fg_check_start() copies the request, runs the setup
+ * stream once (decision arithmetic, deterministic rows), records decision
+ * bound and integrality problems, runs the in-sample evaluation if asked,
+ * and queues the check on the pool (state QUEUED). Workers move it to
+ * RUNNING and merge chunk tallies; when the last chunk is merged, or the
+ * check was cancelled or ran out of time and no worker is on it, the pool
+ * calls fg_check_finalize_locked() and signals done_cv.
+ *
+ * What "joint" counts: a sample is satisfied when every constraint row
+ * holds in it, deterministic rows included (they hold in all samples or in
+ * none). Decision bound and integrality problems do not change the counts;
+ * like failing deterministic rows they are listed under "deterministic" and
+ * make the verdict fail.
+ *
+ * Thread use: any thread; fields follow the rule in engine_internal.h.
+ */
+#include "engine/engine_internal.h"
+
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <time.h>
+
+void fg_pool_check_ended_locked(fg_pool *pool, struct fg_check *c);
+
+#define INTEGER_TOL 1e-6
+
+static void add_det(struct fg_check *c, const char *name, const char *fmt,
+                    ...) __attribute__((format(printf, 3, 4)));
+static void add_det(struct fg_check *c, const char *name, const char *fmt,
+                    ...) {
+  if (c->ndet >= FG_DET_PROBLEMS_MAX) {
+    c->ndet_dropped++;
+    return;
+  }
+  fg_det_problem *d = &c->det[c->ndet++];
+  snprintf(d->name, sizeof d->name, "%s", name);
+  va_list ap;
+  va_start(ap, fmt);
+  vsnprintf(d->message, sizeof d->message, fmt, ap);
+  va_end(ap);
+}
+
+/* Tolerance: 1e-6 absolute or relative, whichever is larger. */
+static double tol_of(double bound) {
+  return fmax(INTEGER_TOL, INTEGER_TOL * fabs(bound));
+}
+
+static void check_decisions(struct fg_check *c) {
+  const fg_model *m = c->model;
+  for (int d = 0; d < m->ndecisions; d++) {
+    const fg_decision *dd = &m->decisions[d];
+    for (int i = 0; i < dd->count; i++) {
+      double v = c->req.decision[dd->offset + i];
+      char name[FG_ROW_NAME_MAX];
+      if (dd->size == 0) snprintf(name, sizeof name, "%s", dd->name);
+      else snprintf(name, sizeof name, "%s[%d]", dd->name, i);
+      if (v < dd->lower[i] - tol_of(dd->lower[i]))
+        add_det(c, name, "decision %s = %.17g is below its lower bound %.17g",
+                name, v, dd->lower[i]);
+      if (v > dd->upper[i] + tol_of(dd->upper[i]))
+        add_det(c, name, "decision %s = %.17g is above its upper bound %.17g",
+                name, v, dd->upper[i]);
+      if (dd->integer && fabs(v - nearbyint(v)) > tol_of(v))
+        add_det(c, name, "decision %s = %.17g must be an integer", name, v);
+    }
+  }
+  for (int r = 0; r < c->info.nrows; r++) {
+    const fg_row *row = &c->info.rows[r];
+    if (!row->deterministic) continue;
+    double e = c->setup_regs[row->excess_reg];
+    if (!(e <= 0))
+      add_det(c, row->name,
+              "constraint row %s does not hold for this decision (excess "
+              "%.6g)",
+              row->name, e);
+  }
+}
+
+void fg_check_free_internal(struct fg_check *c) {
+  if (c->slots) {
+    for (int i = 0; i < c->window; i++) fg_tally_free(&c->slots[i]);
+    free(c->slots);
+  }
+  free(c->ready);
+  fg_tally_free(&c->total);
+  free(c->rows);
+  free(c->setup_regs);
+  fg_request_free(&c->req);
+  pthread_cond_destroy(&c->done_cv);
+  if (c->model) fg_model_unref(c->model);
+  free(c);
+}
+
+void fg_check_unref(fg_check *c) {
+  if (!c) return;
+  if (atomic_fetch_sub(&c->refs, 1) == 1) fg_check_free_internal(c);
+}
+
+static fg_interval interval_of(fg_interval_method m, uint64_t k, uint64_t n,
+                               double conf) {
+  switch (m) {
+  case FG_INTERVAL_WILSON: return fg_interval_wilson(k, n, conf);
+  case FG_INTERVAL_JEFFREYS: return fg_interval_jeffreys(k, n, conf);
+  default: return fg_interval_clopper_pearson(k, n, conf);
+  }
+}
+
+/* Rows worst first: highest violation count, ties by mean excess, then by
+ * row order so the listing is stable. */
+static int row_cmp(const void *pa, const void *pb) {
+  const fg_row_result *a = pa, *b = pb;
+  if (a->violated != b->violated) return a->violated > b->violated ? -1 : 1;
+  if (a->excess_mean != b->excess_mean)
+    return a->excess_mean > b->excess_mean ? -1 : 1;
+  return a->row - b->row;
+}
+
+void fg_check_finalize_locked(struct fg_check *c) {
+  const fg_tally *t = &c->total;
+  uint64_t n = t->n, k = t->satisfied;
+  c->elapsed_ms = (fg_time_monotonic() - c->t_start) * 1000.0;
+  c->probability = n ? (double)k / (double)n : NAN;
+  c->std_error = n ? sqrt(c->probability * (1 - c->probability) / (double)n)
+                   : NAN;
+  c->interval = interval_of(c->req.interval, k, n, c->req.confidence);
+  c->verdict = (fg_verdict)fg_verdict_rule(c->interval, c->req.target,
+                                           c->ndet > 0);
+  c->samples_to_settle = 0;
+  if (c->verdict == FG_VERDICT_INCONCLUSIVE && n > 0) {
+    double s = fg_samples_to_settle(k, n, c->req.target, c->req.confidence);
+    if (s > 0 && isfinite(s)) c->samples_to_settle = ceil(s);
+  }
+  c->rows = calloc((size_t)c->info.nrows + 1, sizeof *c->rows);
+  if (c->rows) {
+    for (int r = 0; r < c->info.nrows; r++) {
+      const fg_row_tally *rt = &t->rows[r];
+      fg_row_result *rr = &c->rows[r];
+      rr->row = r;
+      rr->violated = rt->violated;
+      rr->sole = rt->sole;
+      rr->nonfinite = rt->nonfinite;
+      rr->probability = n ? (double)rt->violated / (double)n : NAN;
+      rr->interval = interval_of(c->req.interval, rt->violated, n,
+                                 c->req.confidence);
+      rr->excess_mean = n ? rt->excess_sum / (double)n : 0;
+      uint64_t finite = rt->violated - rt->nonfinite;
+      rr->excess_mean_if_violated = finite ? rt->excess_sum / (double)finite : 0;
+      rr->excess_p95 = finite ? fg_hist_quantile(&rt->hist, 0.95) : 0;
+      rr->excess_max = finite ? rt->hist.max : 0;
+    }
+    qsort(c->rows, (size_t)c->info.nrows, sizeof *c->rows, row_cmp);
+  }
+  c->has_objective = c->info.objective_reg >= 0;
+  if (c->has_objective) {
+    if (c->info.objective_deterministic)
+      c->objective = c->setup_regs[c->info.objective_reg];
+    else
+      c->objective = n ? t->objective_sum / (double)n : NAN;
+  }
+}
+
+fg_status fg_check_start(fg_pool *pool, fg_model *m,
+                         const fg_check_request *req, fg_check **out,
+                         fg_problem *p) {
+  *out = NULL;
+  if (req->decision_dims != m->decision_dims)
+    return fg_problem_set(p, FG_EINTERNAL,
+                          "request was parsed for another model");
+  struct fg_check *c = calloc(1, sizeof *c);
+  if (!c) return fg_problem_set(p, FG_ENOMEM, "out of memory");
+  atomic_init(&c->refs, 1);
+  atomic_init(&c->cancel_flag, false);
+  atomic_init(&c->timeout_flag, false);
+  pthread_cond_init(&c->done_cv, NULL);
+  c->pool = pool;
+  c->model = fg_model_ref(m);
+  fg_program_get_info(m->program, &c->info);
+  c->req = *req;
+  c->req.decision =
+      calloc(m->decision_dims > 0 ? (size_t)m->decision_dims : 1, sizeof(double));
+  c->setup_regs = calloc(c->info.nregs > 0 ? (size_t)c->info.nregs : 1,
+                         sizeof(double));
+  if (!c->req.decision || !c->setup_regs) goto oom;
+  if (m->decision_dims > 0)
+    memcpy(c->req.decision, req->decision,
+           (size_t)m->decision_dims * sizeof(double));
+  c->chunk = pool->chunk;
+  c->nchunks = (req->samples + (uint64_t)c->chunk - 1) / (uint64_t)c->chunk;
+  c->window = 2 * pool->nworkers + 2;
+  if ((uint64_t)c->window > c->nchunks) c->window = (int)c->nchunks;
+  if (c->window < 1) c->window = 1;
+  c->slots = calloc((size_t)c->window, sizeof *c->slots);
+  c->ready = calloc((size_t)c->window, sizeof *c->ready);
+  if (!c->slots || !c->ready) goto oom;
+  for (int i = 0; i < c->window; i++)
+    if (fg_tally_init(&c->slots[i], c->info.nrows) != FG_OK) goto oom;
+  if (fg_tally_init(&c->total, c->info.nrows) != FG_OK) goto oom;
+  c->t_start = fg_time_monotonic();
+
+  /* Setup stream: decisions in, deterministic values out. */
+  for (int i = 0; i < c->info.ndecision; i++)
+    c->setup_regs[c->info.decision_base + i] = c->req.decision[i];
+  fg_program_run_setup(m->program, c->setup_regs);
+  check_decisions(c);
+
+  if (req->has_in_sample) {
+    fg_eval_ctx ctx = {0};
+    fg_tally t;
+    if (fg_tally_init(&t, c->info.nrows) != FG_OK) goto oom;
+    if (fg_eval_ctx_prepare(&ctx, c) != FG_OK) {
+      fg_tally_free(&t);
+      fg_eval_ctx_free(&ctx);
+      goto oom;
+    }
+    c->req.seed = req->in_sample_seed; /* the design stream of that seed */
+    fg_engine_run_range(c, ctx.sscratch, ctx.regs, ctx.excess, ctx.scratch,
+                        FG_STREAM_DESIGN, 0, req->in_sample_count, &t, NULL,
+                        NULL);
+    c->req.seed = req->seed;
+    c->has_in_sample = true;
+    c->in_sample_count = t.n;
+    c->in_sample_satisfied = t.satisfied;
+    fg_tally_free(&t);
+    fg_eval_ctx_free(&ctx);
+  }
+
+  pthread_mutex_lock(&pool->mu);
+  if (pool->stopping || pool->nchecks >= pool->queue_cap) {
+    bool stopping = pool->stopping;
+    pthread_mutex_unlock(&pool->mu);
+    fg_check_free_internal(c);
+    return fg_problem_set(p, FG_EBUSY,
+                          stopping ? "the server is shutting down"
+                                   : "the check queue is full (%d checks); "
+                                     "try again shortly",
+                          pool->queue_cap);
+  }
+  c->state = FG_CHECK_QUEUED;
+  atomic_fetch_add(&c->refs, 1); /* the pool's reference */
+  if (pool->tail) pool->tail->next_in_pool = c;
+  else pool->head = c;
+  pool->tail = c;
+  pool->nchecks++;
+  pthread_cond_broadcast(&pool->work_cv);
+  pthread_mutex_unlock(&pool->mu);
+  *out = c;
+  return FG_OK;
+oom:
+  fg_check_free_internal(c);
+  return fg_problem_set(p, FG_ENOMEM,
+                        "out of memory setting up the check (%d rows, %d "
+                        "registers)",
+                        c->info.nrows, c->info.nregs);
+}
+
+/* A check detached from its pool (fg_check_run_sync) has ended and no
+ * longer changes, so it needs no lock. */
+static void lock_of(fg_check *c) {
+  if (c->pool) pthread_mutex_lock(&c->pool->mu);
+}
+static void unlock_of(fg_check *c) {
+  if (c->pool) pthread_mutex_unlock(&c->pool->mu);
+}
+void fg_check_lock(fg_check *c);
+void fg_check_unlock(fg_check *c);
+void fg_check_lock(fg_check *c) {
+  lock_of(c);
+}
+void fg_check_unlock(fg_check *c) {
+  unlock_of(c);
+}
+
+static bool ended(fg_check_state s) {
+  return s != FG_CHECK_QUEUED && s != FG_CHECK_RUNNING;
+}
+
+bool fg_check_wait(fg_check *c, double timeout_s) {
+  fg_pool *pool = c->pool;
+  if (!pool) return true;
+  pthread_mutex_lock(&pool->mu);
+  if (timeout_s < 0) {
+    while (!ended(c->state)) pthread_cond_wait(&c->done_cv, &pool->mu);
+  } else {
+    struct timespec ts;
+    clock_gettime(CLOCK_REALTIME, &ts);
+    double whole = floor(timeout_s);
+    ts.tv_sec += (time_t)whole;
+    ts.tv_nsec += (long)((timeout_s - whole) * 1e9);
+    if (ts.tv_nsec >= 1000000000L) {
+      ts.tv_sec++;
+      ts.tv_nsec -= 1000000000L;
+    }
+    while (!ended(c->state))
+      if (pthread_cond_timedwait(&c->done_cv, &pool->mu, &ts) != 0) break;
+  }
+  bool e = ended(c->state);
+  pthread_mutex_unlock(&pool->mu);
+  return e;
+}
+
+void fg_check_cancel(fg_check *c) {
+  fg_pool *pool = c->pool;
+  if (!pool) return;
+  pthread_mutex_lock(&pool->mu);
+  if (!ended(c->state)) {
+    atomic_store(&c->cancel_flag, true);
+    c->stop = true;
+    fg_pool_check_ended_locked(pool, c);
+  }
+  pthread_mutex_unlock(&pool->mu);
+}
+
+fg_check_state fg_check_get_state(fg_check *c) {
+  lock_of(c);
+  fg_check_state s = c->state;
+  unlock_of(c);
+  return s;
+}
+
+fg_verdict fg_check_get_verdict(fg_check *c) {
+  lock_of(c);
+  fg_verdict v = c->verdict;
+  unlock_of(c);
+  return v;
+}
+
+void fg_check_progress(fg_check *c, uint64_t *done, uint64_t *satisfied) {
+  lock_of(c);
+  *done = c->total.n;
+  *satisfied = c->total.satisfied;
+  unlock_of(c);
+}
+
+fg_status fg_check_run_sync(fg_model *m, const fg_check_request *req,
+                            int workers, int chunk, fg_check **out,
+                            fg_problem *p) {
+  fg_pool *pool;
+  *out = NULL;
+  fg_status st = fg_pool_new(workers, chunk, 1, &pool, p);
+  if (st != FG_OK) return st;
+  fg_check *c;
+  st = fg_check_start(pool, m, req, &c, p);
+  if (st == FG_OK) {
+    fg_check_wait(c, -1);
+    *out = c;
+  }
+  fg_pool_free(pool);
+  /* The check outlives its pool; its state is final, so detach it. */
+  if (*out) (*out)->pool = NULL;
+  return st;
+}

@@ -1,0 +1,124 @@
+/*
+ * engine/engine_internal.h -- what the engine's files share.
+ *
+ * check.c owns the fg_check lifecycle and its statistics; pool.c owns the
+ * worker threads and the scheduling of chunks; request.c parses requests;
+ * result.c writes result bodies. The locking rule: every field of a check
+ * marked (pool) below is read and written only under pool->mu; the rest is
+ * set before the check is queued and never changes.
+ */
+#ifndef FG_ENGINE_INTERNAL_H
+#define FG_ENGINE_INTERNAL_H
+
+#include "estimate/estimate.h"
+#include "expr/expr.h"
+#include "feasgate/engine.h"
+#include "sample/sample.h"
+
+#include <pthread.h>
+#include <stdatomic.h>
+
+#define FG_DET_PROBLEMS_MAX 64
+
+typedef struct fg_det_problem {
+  char name[FG_ROW_NAME_MAX];
+  char message[192];
+} fg_det_problem;
+
+/* Per-row figures computed when a check ends. */
+typedef struct fg_row_result {
+  int row; /* index into the program's rows */
+  uint64_t violated, sole, nonfinite;
+  double probability; /* violation probability */
+  fg_interval interval;
+  double excess_mean, excess_mean_if_violated, excess_p95, excess_max;
+} fg_row_result;
+
+struct fg_check {
+  atomic_int refs;
+  struct fg_pool *pool;
+  fg_model *model;
+  fg_program_info info;
+  fg_check_request req; /* own copy; decision owned */
+  int chunk;
+  uint64_t nchunks;
+  double *setup_regs; /* info.nregs values after the setup stream */
+
+  int ndet;          /* deterministic problems (bounds, rows) */
+  int ndet_dropped;
+  fg_det_problem det[FG_DET_PROBLEMS_MAX];
+
+  bool has_in_sample;
+  uint64_t in_sample_satisfied, in_sample_count;
+
+  double t_start, deadline; /* monotonic seconds; deadline 0 = none */
+
+  /* (pool) scheduling */
+  struct fg_check *next_in_pool;
+  uint64_t next_chunk, merged_chunks;
+  int active;   /* workers on a chunk of this check now */
+  int window;   /* chunk results that may wait for merging */
+  fg_tally *slots;
+  bool *ready;
+  fg_tally total;
+  bool stop;    /* no more chunks will be claimed */
+  atomic_bool cancel_flag;
+  atomic_bool timeout_flag;
+  fg_check_state state;
+  pthread_cond_t done_cv;
+
+  /* (pool) results, valid once state is an end state */
+  double elapsed_ms;
+  fg_verdict verdict;
+  fg_interval interval;
+  double probability, std_error;
+  fg_row_result *rows; /* sorted worst first */
+  double objective;
+  bool has_objective;
+  double samples_to_settle;
+};
+
+struct fg_pool {
+  pthread_mutex_t mu;
+  pthread_cond_t work_cv;
+  int nworkers;
+  pthread_t *threads;
+  int nthreads_started;
+  int chunk;
+  int queue_cap;
+  struct fg_check *head, *tail; /* checks not yet ended, in arrival order */
+  int nchecks;
+  int busy;
+  bool stopping;
+};
+
+/* check.c */
+void fg_check_lock(struct fg_check *c);
+void fg_check_unlock(struct fg_check *c);
+void fg_check_finalize_locked(struct fg_check *c);
+void fg_check_free_internal(struct fg_check *c);
+
+/* Run samples [first, first + count) of `stream` into `t` with a private
+ * register file `regs` (info.nregs * FG_BLOCK doubles, already broadcast).
+ * Stops early (returning false) when `cancel` or `timeout` becomes true or
+ * the deadline passes. */
+bool fg_engine_run_range(const struct fg_check *c, fg_sample_scratch *w,
+                         double *regs, const double **excess, int *scratch,
+                         fg_stream stream, uint64_t first, uint64_t count,
+                         fg_tally *t, atomic_bool *cancel,
+                         atomic_bool *timeout);
+
+/* Per-thread evaluation state for one check. */
+typedef struct fg_eval_ctx {
+  double *regs;
+  size_t regs_cap; /* doubles */
+  const double **excess;
+  int *scratch;
+  fg_sample_scratch *sscratch;
+  const struct fg_check *for_check;
+} fg_eval_ctx;
+
+fg_status fg_eval_ctx_prepare(fg_eval_ctx *e, const struct fg_check *c);
+void fg_eval_ctx_free(fg_eval_ctx *e);
+
+#endif

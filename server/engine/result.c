@@ -1,0 +1,175 @@
+/*
+ * engine/result.c -- the result body of a check (http-api.md "Checks").
+ *
+ * Design: one function writes the body for the API, the store and the
+ * offline command alike, so the three never drift. Numbers that have no
+ * value yet (a running check's verdict, the objective of a model without
+ * one) are JSON null, never NaN. Rows are listed worst first (highest
+ * violation probability, ties by mean excess).
+ *
+ * Thread use: any thread; takes the check's lock while reading.
+ */
+#include "engine/engine_internal.h"
+
+#include <cjson/cJSON.h>
+#include <math.h>
+#include <string.h>
+
+static void add_num(cJSON *o, const char *k, double v) {
+  if (isfinite(v)) cJSON_AddNumberToObject(o, k, v);
+  else cJSON_AddNullToObject(o, k);
+}
+
+static cJSON *interval_json(fg_interval iv, const char *method) {
+  cJSON *o = cJSON_CreateObject();
+  add_num(o, "lower", iv.lower);
+  add_num(o, "upper", iv.upper);
+  if (method) cJSON_AddStringToObject(o, "method", method);
+  return o;
+}
+
+static void add_progress(cJSON *o, struct fg_check *c) {
+  cJSON *pr = cJSON_AddObjectToObject(o, "progress");
+  uint64_t n = c->total.n, k = c->total.satisfied;
+  cJSON_AddNumberToObject(pr, "samples_done", (double)n);
+  cJSON_AddNumberToObject(pr, "samples_total", (double)c->req.samples);
+  if (n > 0) {
+    cJSON_AddNumberToObject(pr, "probability", (double)k / (double)n);
+    fg_interval iv = fg_interval_clopper_pearson(k, n, c->req.confidence);
+    cJSON_AddItemToObject(pr, "interval",
+                          interval_json(iv, "clopper_pearson"));
+  } else {
+    cJSON_AddNullToObject(pr, "probability");
+    cJSON_AddNullToObject(pr, "interval");
+  }
+}
+
+static void add_rows(cJSON *o, struct fg_check *c) {
+  cJSON *arr = cJSON_AddArrayToObject(o, "constraints");
+  if (!c->rows) return;
+  const char *method = fg_interval_method_name(c->req.interval);
+  for (int i = 0; i < c->info.nrows; i++) {
+    const fg_row_result *rr = &c->rows[i];
+    const fg_row *row = &c->info.rows[rr->row];
+    cJSON *r = cJSON_CreateObject();
+    cJSON_AddStringToObject(r, "name", row->name);
+    cJSON_AddNumberToObject(r, "violated", (double)rr->violated);
+    add_num(r, "probability", rr->probability);
+    cJSON_AddItemToObject(r, "interval", interval_json(rr->interval, method));
+    cJSON *ex = cJSON_AddObjectToObject(r, "excess");
+    add_num(ex, "mean", rr->excess_mean);
+    add_num(ex, "mean_if_violated", rr->excess_mean_if_violated);
+    add_num(ex, "p95", rr->excess_p95);
+    add_num(ex, "max", rr->excess_max);
+    cJSON_AddNumberToObject(r, "sole_cause", (double)rr->sole);
+    if (rr->nonfinite)
+      cJSON_AddNumberToObject(r, "nonfinite", (double)rr->nonfinite);
+    cJSON_AddBoolToObject(r, "deterministic", row->deterministic);
+    cJSON_AddItemToArray(arr, r);
+  }
+}
+
+cJSON *fg_check_result_json(fg_check *c, const fg_check_meta *meta) {
+  cJSON *o = cJSON_CreateObject();
+  if (!o) return NULL;
+  fg_check_lock(c);
+  bool ended = c->state != FG_CHECK_QUEUED && c->state != FG_CHECK_RUNNING;
+  if (meta && meta->id) cJSON_AddStringToObject(o, "id", meta->id);
+  cJSON_AddStringToObject(o, "status", fg_check_state_name(c->state));
+  cJSON *mo = cJSON_AddObjectToObject(o, "model");
+  cJSON_AddStringToObject(mo, "name", c->model->name);
+  if (meta && meta->model_version > 0)
+    cJSON_AddNumberToObject(mo, "version", meta->model_version);
+  cJSON_AddStringToObject(mo, "digest", c->model->digest);
+  if (ended && c->state == FG_CHECK_DONE)
+    cJSON_AddStringToObject(o, "verdict", fg_verdict_name(c->verdict));
+  else cJSON_AddNullToObject(o, "verdict");
+  cJSON_AddNumberToObject(o, "target", c->req.target);
+  cJSON_AddNumberToObject(o, "confidence", c->req.confidence);
+  cJSON_AddNumberToObject(o, "seed", (double)c->req.seed);
+  cJSON_AddStringToObject(o, "sampling", fg_sampling_name(c->req.sampling));
+  cJSON_AddNumberToObject(o, "samples_requested", (double)c->req.samples);
+
+  if (ended) {
+    cJSON *j = cJSON_AddObjectToObject(o, "joint");
+    cJSON_AddNumberToObject(j, "samples", (double)c->total.n);
+    cJSON_AddNumberToObject(j, "satisfied", (double)c->total.satisfied);
+    add_num(j, "probability", c->probability);
+    add_num(j, "std_error", c->std_error);
+    cJSON_AddItemToObject(
+        j, "interval",
+        interval_json(c->interval, fg_interval_method_name(c->req.interval)));
+    add_rows(o, c);
+  } else {
+    cJSON_AddNullToObject(o, "joint");
+    cJSON_AddArrayToObject(o, "constraints");
+    add_progress(o, c);
+  }
+
+  cJSON *det = cJSON_AddObjectToObject(o, "deterministic");
+  cJSON_AddBoolToObject(det, "ok", c->ndet == 0);
+  cJSON *probs = cJSON_AddArrayToObject(det, "problems");
+  for (int i = 0; i < c->ndet; i++) {
+    cJSON *pr = cJSON_CreateObject();
+    cJSON_AddStringToObject(pr, "name", c->det[i].name);
+    cJSON_AddStringToObject(pr, "message", c->det[i].message);
+    cJSON_AddItemToArray(probs, pr);
+  }
+  if (c->ndet_dropped)
+    cJSON_AddNumberToObject(det, "problems_not_listed", c->ndet_dropped);
+
+  if (ended && c->has_objective) add_num(o, "objective", c->objective);
+  else cJSON_AddNullToObject(o, "objective");
+  if (c->info.objective_sense != FG_OBJECTIVE_NONE)
+    cJSON_AddStringToObject(o, "objective_sense",
+                            c->info.objective_sense == FG_OBJECTIVE_MINIMIZE
+                                ? "minimize"
+                                : "maximize");
+
+  cJSON *fs = cJSON_AddArrayToObject(o, "failing_scenarios");
+  if (ended) {
+    for (int i = 0; i < c->total.nfail; i++) {
+      const fg_fail_record *f = &c->total.fail[i];
+      cJSON *e = cJSON_CreateObject();
+      cJSON_AddNumberToObject(e, "index", (double)f->index);
+      cJSON *v = cJSON_AddArrayToObject(e, "violated");
+      int shown = f->nrows < FG_FAIL_ROWS_MAX ? f->nrows : FG_FAIL_ROWS_MAX;
+      for (int r = 0; r < shown; r++)
+        cJSON_AddItemToArray(
+            v, cJSON_CreateString(c->info.rows[f->rows[r]].name));
+      if (f->nrows > shown)
+        cJSON_AddNumberToObject(e, "rows_not_listed", f->nrows - shown);
+      cJSON_AddItemToArray(fs, e);
+    }
+  }
+
+  if (c->has_in_sample) {
+    cJSON *is = cJSON_AddObjectToObject(o, "in_sample");
+    cJSON_AddNumberToObject(is, "seed", (double)c->req.in_sample_seed);
+    cJSON_AddNumberToObject(is, "count", (double)c->in_sample_count);
+    cJSON_AddNumberToObject(is, "satisfied", (double)c->in_sample_satisfied);
+    add_num(is, "fraction", c->in_sample_count
+                                ? (double)c->in_sample_satisfied /
+                                      (double)c->in_sample_count
+                                : NAN);
+  } else {
+    cJSON_AddNullToObject(o, "in_sample");
+  }
+  if (ended && c->samples_to_settle > 0)
+    cJSON_AddNumberToObject(o, "samples_to_settle", c->samples_to_settle);
+  else cJSON_AddNullToObject(o, "samples_to_settle");
+  cJSON_AddBoolToObject(o, "stopped_early", false);
+  if (meta && meta->created_at)
+    cJSON_AddStringToObject(o, "created_at", meta->created_at);
+  if (meta && meta->finished_at && ended)
+    cJSON_AddStringToObject(o, "finished_at", meta->finished_at);
+  else cJSON_AddNullToObject(o, "finished_at");
+  if (ended) cJSON_AddNumberToObject(o, "elapsed_ms", round(c->elapsed_ms * 1000) / 1000);
+  else cJSON_AddNumberToObject(o, "elapsed_ms",
+                               round((fg_time_monotonic() - c->t_start) * 1e6) / 1000);
+  if (c->req.label[0]) cJSON_AddStringToObject(o, "label", c->req.label);
+  else cJSON_AddNullToObject(o, "label");
+  if (meta && meta->key) cJSON_AddStringToObject(o, "key", meta->key);
+  fg_check_unlock(c);
+  return o;
+}

@@ -1,0 +1,126 @@
+/*
+ * estimate/estimate.h -- the statistics of a check (prefixes fg_interval_,
+ * fg_hist_, fg_tally_).
+ *
+ * interval.c  binomial intervals (Clopper-Pearson, Wilson, Jeffreys), the
+ *             verdict rule and the samples-to-settle estimate;
+ * hist.c      a mergeable histogram of positive values with logarithmic
+ *             buckets (bounded relative error) for excess quantiles;
+ * tally.c     per-chunk counts: joint, per row, sole cause, excess sums,
+ *             first failing scenarios; merged in chunk order.
+ *
+ * Nothing here knows of HTTP, threads or storage. Functions are pure or act
+ * on caller-owned structs; any thread may call them on its own data.
+ */
+#ifndef FG_ESTIMATE_H
+#define FG_ESTIMATE_H
+
+#include "feasgate/limits.h"
+#include "feasgate/status.h"
+
+#include <stdbool.h>
+#include <stdint.h>
+
+typedef struct fg_interval {
+  double lower, upper;
+} fg_interval;
+
+/* Two-sided intervals at level `confidence` (0 < confidence < 1) for k
+ * successes in n > 0 trials. Clopper & Pearson (1934): lower =
+ * B^-1(a/2; k, n-k+1), upper = B^-1(1-a/2; k+1, n-k), with lower 0 at k = 0
+ * and upper 1 at k = n. */
+fg_interval fg_interval_clopper_pearson(uint64_t k, uint64_t n,
+                                        double confidence);
+/* Wilson (1927) score interval. */
+fg_interval fg_interval_wilson(uint64_t k, uint64_t n, double confidence);
+/* Jeffreys: quantiles of Beta(k+1/2, n-k+1/2), lower 0 at k = 0, upper 1
+ * at k = n (Brown, Cai & DasGupta 2001). */
+fg_interval fg_interval_jeffreys(uint64_t k, uint64_t n, double confidence);
+
+/* Beta quantile B^-1(q; a, b) for q in [0, 1], a, b > 0. GSL's
+ * gsl_cdf_beta_Pinv refined by a few safeguarded Newton/bisection steps on
+ * the regularised incomplete beta, so large n (1e9) stays accurate. */
+double fg_beta_quantile(double q, double a, double b);
+
+/* The verdict rule: 0 pass when lower >= target, 1 fail when upper <
+ * target or a deterministic problem exists, else 2 inconclusive (the
+ * values of fg_verdict in feasgate/engine.h). */
+int fg_verdict_rule(fg_interval iv, double target, bool deterministic_problem);
+
+/* Samples at which the interval would clear the target if the estimate
+ * held: z^2 p(1-p)/(p-t)^2, z the 1-a/2 normal quantile. Returns 0 when
+ * p == t (no finite answer) or p is 0 or 1 (the formula gives 0). */
+double fg_samples_to_settle(uint64_t k, uint64_t n, double target,
+                            double confidence);
+
+/* ---- histogram of positive values ----
+ * Bucket of x > 0: its binary exponent and the top FG_HIST_SUB_BITS bits of
+ * its mantissa, i.e. FG_HIST_SUB = 64 linear sub-buckets per octave. A
+ * bucket [lo, lo(1 + 1/64)) is represented by its midpoint, so a quantile
+ * read back is within 1/128 < 0.8% relative of a value in the bucket.
+ * Values below 2^FG_HIST_EXP_MIN (about 9e-13) fall in bucket 0, above
+ * 2^FG_HIST_EXP_MAX (about 1.2e18) in the last one; the histogram also
+ * keeps the exact minimum and maximum, and quantiles are clamped to them. */
+#define FG_HIST_SUB_BITS 6
+#define FG_HIST_SUB (1 << FG_HIST_SUB_BITS)
+#define FG_HIST_EXP_MIN (-40)
+#define FG_HIST_EXP_MAX 60
+#define FG_HIST_BUCKETS ((FG_HIST_EXP_MAX - FG_HIST_EXP_MIN) * FG_HIST_SUB + 2)
+#define FG_HIST_REL_ERROR (1.0 / (2.0 * FG_HIST_SUB))
+
+typedef struct fg_hist {
+  uint64_t *counts; /* FG_HIST_BUCKETS */
+  uint64_t total;
+  int lo, hi;       /* touched bucket range [lo, hi], lo > hi when empty */
+  double min, max;
+} fg_hist;
+
+fg_status fg_hist_init(fg_hist *h);
+void fg_hist_free(fg_hist *h);
+void fg_hist_reset(fg_hist *h);
+int fg_hist_bucket(double x);
+void fg_hist_add(fg_hist *h, double x);
+void fg_hist_merge(fg_hist *dst, const fg_hist *src);
+/* The value of rank ceil(q * total) (1-based) in sorted order, within
+ * FG_HIST_REL_ERROR relative; NAN when empty. */
+double fg_hist_quantile(const fg_hist *h, double q);
+
+/* ---- tallies ---- */
+#define FG_FAIL_ROWS_MAX 16 /* violated rows kept per failing scenario */
+
+typedef struct fg_row_tally {
+  uint64_t violated;  /* samples where the row does not hold */
+  uint64_t sole;      /* ... and is the only row that does not */
+  uint64_t nonfinite; /* violations whose excess was NaN */
+  double excess_sum;  /* sum of finite positive excess */
+  fg_hist hist;       /* positive finite excess values */
+} fg_row_tally;
+
+typedef struct fg_fail_record {
+  uint64_t index;    /* sample index in its stream */
+  int nrows;         /* rows violated (may exceed FG_FAIL_ROWS_MAX) */
+  int rows[FG_FAIL_ROWS_MAX];
+} fg_fail_record;
+
+typedef struct fg_tally {
+  uint64_t n, satisfied;
+  int nrows;
+  fg_row_tally *rows;
+  double objective_sum;
+  int nfail;
+  fg_fail_record fail[FG_FAILING_SCENARIOS];
+} fg_tally;
+
+fg_status fg_tally_init(fg_tally *t, int nrows);
+void fg_tally_free(fg_tally *t);
+void fg_tally_reset(fg_tally *t);
+/* Add `src` after `dst` (src's samples come later in the stream). */
+void fg_tally_merge(fg_tally *dst, const fg_tally *src);
+
+/* Tally a block: `excess[r]` points at row r's n excess values (lane t is
+ * sample first + t); `objective` at n values or NULL. `scratch` holds at
+ * least 2n ints. */
+void fg_tally_block(fg_tally *t, const double *const *excess, int n,
+                    uint64_t first, const double *objective, int *scratch);
+
+#endif

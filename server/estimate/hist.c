@@ -1,0 +1,105 @@
+/*
+ * estimate/hist.c -- mergeable histogram of positive values.
+ *
+ * Design: the bucket of x is read straight off its IEEE-754 bits: the
+ * binary exponent selects the octave, the top FG_HIST_SUB_BITS mantissa
+ * bits the linear sub-bucket. No logarithm on the hot path, and two
+ * histograms merge exactly by adding counts, so a result does not depend on
+ * how samples were split into chunks. Only the touched range [lo, hi] is
+ * cleared and merged, which keeps per-chunk cost small for rows that are
+ * rarely violated.
+ *
+ * Invariant: total == sum of counts; min/max are the exact extremes of the
+ * values added (NAN/INF are never added: the caller filters them).
+ * Thread use: one histogram per thread; merge under the caller's lock.
+ */
+#include "estimate/estimate.h"
+
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+fg_status fg_hist_init(fg_hist *h) {
+  h->counts = calloc(FG_HIST_BUCKETS, sizeof *h->counts);
+  if (!h->counts) return FG_ENOMEM;
+  h->total = 0;
+  h->lo = FG_HIST_BUCKETS;
+  h->hi = -1;
+  h->min = INFINITY;
+  h->max = -INFINITY;
+  return FG_OK;
+}
+
+void fg_hist_free(fg_hist *h) {
+  free(h->counts);
+  h->counts = NULL;
+}
+
+void fg_hist_reset(fg_hist *h) {
+  if (h->hi >= h->lo)
+    memset(h->counts + h->lo, 0, (size_t)(h->hi - h->lo + 1) * sizeof(uint64_t));
+  h->total = 0;
+  h->lo = FG_HIST_BUCKETS;
+  h->hi = -1;
+  h->min = INFINITY;
+  h->max = -INFINITY;
+}
+
+int fg_hist_bucket(double x) {
+  int e;
+  double m = frexp(x, &e); /* x = m 2^e, m in [0.5, 1) */
+  e -= 1;                  /* x = (2m) 2^e, 2m in [1, 2) */
+  if (!(x > 0) || e < FG_HIST_EXP_MIN) return 0;
+  if (e >= FG_HIST_EXP_MAX) return FG_HIST_BUCKETS - 1;
+  int sub = (int)((2.0 * m - 1.0) * FG_HIST_SUB);
+  if (sub >= FG_HIST_SUB) sub = FG_HIST_SUB - 1;
+  return 1 + (e - FG_HIST_EXP_MIN) * FG_HIST_SUB + sub;
+}
+
+/* Midpoint of bucket b (b in 1 .. FG_HIST_BUCKETS-2). */
+static double bucket_mid(int b) {
+  int e = (b - 1) / FG_HIST_SUB + FG_HIST_EXP_MIN;
+  int sub = (b - 1) % FG_HIST_SUB;
+  return ldexp(1.0 + (sub + 0.5) / FG_HIST_SUB, e);
+}
+
+void fg_hist_add(fg_hist *h, double x) {
+  int b = fg_hist_bucket(x);
+  h->counts[b]++;
+  h->total++;
+  if (b < h->lo) h->lo = b;
+  if (b > h->hi) h->hi = b;
+  if (x < h->min) h->min = x;
+  if (x > h->max) h->max = x;
+}
+
+void fg_hist_merge(fg_hist *dst, const fg_hist *src) {
+  if (src->total == 0) return;
+  for (int b = src->lo; b <= src->hi; b++) dst->counts[b] += src->counts[b];
+  dst->total += src->total;
+  if (src->lo < dst->lo) dst->lo = src->lo;
+  if (src->hi > dst->hi) dst->hi = src->hi;
+  if (src->min < dst->min) dst->min = src->min;
+  if (src->max > dst->max) dst->max = src->max;
+}
+
+double fg_hist_quantile(const fg_hist *h, double q) {
+  if (h->total == 0) return NAN;
+  double r = ceil(q * (double)h->total);
+  uint64_t rank = r < 1 ? 1 : (uint64_t)r;
+  if (rank > h->total) rank = h->total;
+  uint64_t seen = 0;
+  for (int b = h->lo; b <= h->hi; b++) {
+    seen += h->counts[b];
+    if (seen >= rank) {
+      double v;
+      if (b == 0) v = h->min;
+      else if (b == FG_HIST_BUCKETS - 1) v = h->max;
+      else v = bucket_mid(b);
+      if (v < h->min) v = h->min;
+      if (v > h->max) v = h->max;
+      return v;
+    }
+  }
+  return h->max;
+}

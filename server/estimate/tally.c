@@ -1,0 +1,127 @@
+/*
+ * estimate/tally.c -- the counts one chunk of samples produces, and their
+ * merge.
+ *
+ * Design: a block of samples arrives as one array of excess values per row
+ * (lane t = sample first + t). Rows are walked one at a time over all lanes
+ * (contiguous reads), counting per lane how many rows failed and which one
+ * failed last; a second pass over lanes turns those into the joint count,
+ * sole-cause counts and failing-scenario records. A row fails when its
+ * excess is not <= 0, so NaN fails (counted apart as non-finite).
+ *
+ * Merging: counts add; sums add in merge order (the engine merges chunks in
+ * chunk order, so sums do not depend on the number of workers); failing
+ * scenarios keep the first FG_FAILING_SCENARIOS by sample index, which is
+ * merge order too.
+ *
+ * Thread use: a tally belongs to one thread until it is merged under the
+ * engine's lock.
+ */
+#include "estimate/estimate.h"
+
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+fg_status fg_tally_init(fg_tally *t, int nrows) {
+  memset(t, 0, sizeof *t);
+  t->nrows = nrows;
+  t->rows = calloc(nrows > 0 ? (size_t)nrows : 1, sizeof *t->rows);
+  if (!t->rows) return FG_ENOMEM;
+  for (int r = 0; r < nrows; r++) {
+    if (fg_hist_init(&t->rows[r].hist) != FG_OK) {
+      fg_tally_free(t);
+      return FG_ENOMEM;
+    }
+  }
+  return FG_OK;
+}
+
+void fg_tally_free(fg_tally *t) {
+  if (!t->rows) return;
+  for (int r = 0; r < t->nrows; r++) fg_hist_free(&t->rows[r].hist);
+  free(t->rows);
+  t->rows = NULL;
+}
+
+void fg_tally_reset(fg_tally *t) {
+  t->n = t->satisfied = 0;
+  t->objective_sum = 0;
+  t->nfail = 0;
+  for (int r = 0; r < t->nrows; r++) {
+    fg_row_tally *rt = &t->rows[r];
+    rt->violated = rt->sole = rt->nonfinite = 0;
+    rt->excess_sum = 0;
+    fg_hist_reset(&rt->hist);
+  }
+}
+
+void fg_tally_merge(fg_tally *dst, const fg_tally *src) {
+  dst->n += src->n;
+  dst->satisfied += src->satisfied;
+  dst->objective_sum += src->objective_sum;
+  for (int r = 0; r < dst->nrows; r++) {
+    fg_row_tally *d = &dst->rows[r];
+    const fg_row_tally *s = &src->rows[r];
+    d->violated += s->violated;
+    d->sole += s->sole;
+    d->nonfinite += s->nonfinite;
+    d->excess_sum += s->excess_sum;
+    fg_hist_merge(&d->hist, &s->hist);
+  }
+  for (int i = 0; i < src->nfail && dst->nfail < FG_FAILING_SCENARIOS; i++)
+    dst->fail[dst->nfail++] = src->fail[i];
+}
+
+void fg_tally_block(fg_tally *t, const double *const *excess, int n,
+                    uint64_t first, const double *objective, int *scratch) {
+  int *nviol = scratch, *last = scratch + n;
+  memset(nviol, 0, (size_t)n * sizeof *nviol);
+  for (int r = 0; r < t->nrows; r++) {
+    const double *e = excess[r];
+    fg_row_tally *rt = &t->rows[r];
+    double sum = 0;
+    uint64_t v = 0;
+    for (int s = 0; s < n; s++) {
+      double x = e[s];
+      if (x <= 0) continue;
+      v++;
+      nviol[s]++;
+      last[s] = r;
+      if (isfinite(x)) {
+        sum += x;
+        fg_hist_add(&rt->hist, x);
+      } else {
+        rt->nonfinite++;
+      }
+    }
+    rt->violated += v;
+    rt->excess_sum += sum;
+  }
+  uint64_t sat = 0;
+  for (int s = 0; s < n; s++) {
+    if (nviol[s] == 0) {
+      sat++;
+      continue;
+    }
+    if (nviol[s] == 1) t->rows[last[s]].sole++;
+    if (t->nfail < FG_FAILING_SCENARIOS) {
+      fg_fail_record *f = &t->fail[t->nfail++];
+      f->index = first + (uint64_t)s;
+      f->nrows = 0;
+      for (int r = 0; r < t->nrows; r++) {
+        if (!(excess[r][s] <= 0)) {
+          if (f->nrows < FG_FAIL_ROWS_MAX) f->rows[f->nrows] = r;
+          f->nrows++;
+        }
+      }
+    }
+  }
+  t->satisfied += sat;
+  t->n += (uint64_t)n;
+  if (objective) {
+    double os = 0;
+    for (int s = 0; s < n; s++) os += objective[s];
+    t->objective_sum += os;
+  }
+}

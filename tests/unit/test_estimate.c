@@ -1,0 +1,174 @@
+/*
+ * tests/unit/test_estimate.c -- intervals, verdicts, histogram, tallies.
+ *
+ * Outside references here are closed forms; the full grid against
+ * statsmodels lives in tests/reference/test_intervals.py.
+ */
+#include "check.h"
+#include "estimate/estimate.h"
+
+#include <stdlib.h>
+
+static int cmp_double(const void *a, const void *b) {
+  double x = *(const double *)a, y = *(const double *)b;
+  return x < y ? -1 : x > y;
+}
+
+static void test_clopper_pearson_closed_forms(void) {
+  /* Closed forms of the Clopper-Pearson interval at the edges: with k = 0
+   * the upper end solves (1-p)^n = a/2, with k = n the lower end solves
+   * p^n = a/2 (from the binomial tail P(X = 0) and P(X = n)). */
+  int ns[] = {1, 10, 1000, 1000000};
+  for (size_t i = 0; i < sizeof ns / sizeof *ns; i++) {
+    double n = ns[i];
+    fg_interval a = fg_interval_clopper_pearson(0, (uint64_t)n, 0.95);
+    CHECK_NEAR(a.lower, 0.0, 0.0);
+    CHECK_NEAR(a.upper, -expm1(log(0.025) / n), 1e-12 * a.upper);
+    fg_interval b = fg_interval_clopper_pearson((uint64_t)n, (uint64_t)n, 0.95);
+    CHECK_NEAR(b.upper, 1.0, 0.0);
+    CHECK_NEAR(b.lower, pow(0.025, 1.0 / n), 1e-12);
+  }
+  /* k = 1 of n = 1: lower solves p = a/2 exactly. */
+  fg_interval c = fg_interval_clopper_pearson(1, 1, 0.9);
+  CHECK_NEAR(c.lower, 0.05, 1e-14);
+  /* Symmetry: the interval for k of n mirrors the one for n-k. */
+  fg_interval d = fg_interval_clopper_pearson(37, 120, 0.99);
+  fg_interval e = fg_interval_clopper_pearson(83, 120, 0.99);
+  CHECK_NEAR(d.lower, 1.0 - e.upper, 1e-13);
+  CHECK_NEAR(d.upper, 1.0 - e.lower, 1e-13);
+  /* Rule of three (common practice; Hanley & Lippman-Hand 1983): zero
+   * events in n gives a one-sided 95% upper bound near 3/n, i.e. the
+   * two-sided 90% Clopper-Pearson upper end: -ln(0.05)/n = 2.9957/n. */
+  fg_interval r = fg_interval_clopper_pearson(0, 100000, 0.90);
+  CHECK_NEAR(r.upper * 100000, 3.0, 0.01);
+  /* Large n: stays finite and brackets the estimate. */
+  fg_interval big = fg_interval_clopper_pearson(930000000, 1000000000, 0.95);
+  CHECK(big.lower < 0.93 && big.upper > 0.93);
+  CHECK(big.upper - big.lower < 4e-5 && big.upper - big.lower > 2e-5);
+}
+
+static void test_other_intervals(void) {
+  /* Wilson at k = 0: lower 0, upper z^2/(n+z^2) (closed form of the score
+   * interval at the edge, Wilson 1927). */
+  double z = 1.959963984540054;
+  fg_interval w = fg_interval_wilson(0, 50, 0.95);
+  CHECK_NEAR(w.lower, 0.0, 1e-15);
+  CHECK_NEAR(w.upper, z * z / (50 + z * z), 1e-12);
+  /* Jeffreys at k = 0 has lower 0; its upper end is below Clopper-Pearson's
+   * (it is not conservative). */
+  fg_interval j = fg_interval_jeffreys(0, 50, 0.95);
+  fg_interval cp = fg_interval_clopper_pearson(0, 50, 0.95);
+  CHECK_NEAR(j.lower, 0.0, 0.0);
+  CHECK(j.upper < cp.upper);
+  /* Beta quantile against a closed form: Beta(1, b) has CDF
+   * 1 - (1-x)^b, so B^-1(q; 1, b) = 1 - (1-q)^(1/b). */
+  CHECK_NEAR(fg_beta_quantile(0.3, 1.0, 7.5), 1 - pow(0.7, 1 / 7.5), 1e-14);
+  CHECK_NEAR(fg_beta_quantile(0.3, 1.0, 2e8), -expm1(log1p(-0.3) / 2e8),
+             1e-9 * 1.8e-9);
+}
+
+static void test_verdict(void) {
+  fg_interval iv = {0.91, 0.93};
+  CHECK_INT(fg_verdict_rule(iv, 0.90, false), 0);
+  CHECK_INT(fg_verdict_rule(iv, 0.91, false), 0); /* lower >= target */
+  CHECK_INT(fg_verdict_rule(iv, 0.92, false), 2);
+  CHECK_INT(fg_verdict_rule(iv, 0.95, false), 1);
+  CHECK_INT(fg_verdict_rule(iv, 0.90, true), 1);
+  /* samples to settle: z^2 p(1-p)/(p-t)^2 */
+  double s = fg_samples_to_settle(915, 1000, 0.9, 0.95);
+  double z = 1.959963984540054;
+  CHECK_NEAR(s, z * z * 0.915 * 0.085 / (0.015 * 0.015), 1e-6);
+  CHECK_NEAR(fg_samples_to_settle(900, 1000, 0.9, 0.95), 0.0, 0.0);
+}
+
+static void test_hist(void) {
+  fg_hist h, a, b;
+  CHECK(fg_hist_init(&h) == FG_OK);
+  CHECK(fg_hist_init(&a) == FG_OK);
+  CHECK(fg_hist_init(&b) == FG_OK);
+  enum { N = 20000 };
+  static double v[N];
+  srand(7);
+  for (int i = 0; i < N; i++) {
+    double u = (rand() + 1.0) / (RAND_MAX + 2.0);
+    v[i] = exp(10 * (u - 0.5)); /* spans e^-5 .. e^5 */
+    fg_hist_add(&h, v[i]);
+    fg_hist_add(i % 3 ? &a : &b, v[i]);
+  }
+  qsort(v, N, sizeof *v, cmp_double);
+  double qs[] = {0.01, 0.25, 0.5, 0.95, 0.999, 1.0};
+  for (size_t i = 0; i < sizeof qs / sizeof *qs; i++) {
+    size_t rank = (size_t)ceil(qs[i] * N);
+    double exact = v[rank - 1];
+    double est = fg_hist_quantile(&h, qs[i]);
+    CHECK_MSG(fabs(est - exact) <= FG_HIST_REL_ERROR * exact * 1.0000001,
+              "q=%g exact %.9g est %.9g", qs[i], exact, est);
+  }
+  fg_hist_merge(&a, &b);
+  CHECK_INT(a.total, h.total);
+  CHECK_NEAR(fg_hist_quantile(&a, 0.95), fg_hist_quantile(&h, 0.95), 0.0);
+  CHECK_NEAR(h.max, v[N - 1], 0.0);
+  CHECK_NEAR(fg_hist_quantile(&h, 1.0), v[N - 1], 0.0);
+  fg_hist_reset(&h);
+  CHECK_INT(h.total, 0);
+  CHECK(isnan(fg_hist_quantile(&h, 0.5)));
+  CHECK_INT(fg_hist_bucket(1e-300), 0);
+  CHECK_INT(fg_hist_bucket(1e300), FG_HIST_BUCKETS - 1);
+  fg_hist_free(&h);
+  fg_hist_free(&a);
+  fg_hist_free(&b);
+}
+
+static void test_tally(void) {
+  /* Two rows, 6 samples: excess values by hand. */
+  double r0[6] = {-1, 2, 0, 3, NAN, -2};
+  double r1[6] = {-1, -1, 1, 4, -1, -3};
+  const double *ex[2] = {r0, r1};
+  double obj[6] = {1, 2, 3, 4, 5, 6};
+  int scratch[12];
+  fg_tally whole, first, second;
+  CHECK(fg_tally_init(&whole, 2) == FG_OK);
+  CHECK(fg_tally_init(&first, 2) == FG_OK);
+  CHECK(fg_tally_init(&second, 2) == FG_OK);
+  fg_tally_block(&whole, ex, 6, 100, obj, scratch);
+  CHECK_INT(whole.n, 6);
+  CHECK_INT(whole.satisfied, 2); /* samples 0 and 5 */
+  CHECK_INT(whole.rows[0].violated, 3); /* 2, 3, NaN */
+  CHECK_INT(whole.rows[0].nonfinite, 1);
+  CHECK_INT(whole.rows[1].violated, 2);
+  CHECK_INT(whole.rows[0].sole, 2); /* samples 1 and 4 */
+  CHECK_INT(whole.rows[1].sole, 1); /* sample 2 */
+  CHECK_NEAR(whole.rows[0].excess_sum, 5.0, 0.0);
+  CHECK_NEAR(whole.objective_sum, 21.0, 0.0);
+  CHECK_INT(whole.nfail, 4);
+  CHECK_INT(whole.fail[0].index, 101);
+  CHECK_INT(whole.fail[2].index, 103);
+  CHECK_INT(whole.fail[2].nrows, 2);
+  /* The same samples in two blocks, merged in order, give the same. */
+  const double *ex1[2] = {r0, r1}, *ex2[2] = {r0 + 3, r1 + 3};
+  fg_tally_block(&first, ex1, 3, 100, obj, scratch);
+  fg_tally_block(&second, ex2, 3, 103, obj + 3, scratch);
+  fg_tally_merge(&first, &second);
+  CHECK_INT(first.satisfied, whole.satisfied);
+  CHECK_INT(first.rows[0].violated, whole.rows[0].violated);
+  CHECK_INT(first.rows[1].sole, whole.rows[1].sole);
+  CHECK_INT(first.nfail, whole.nfail);
+  CHECK_INT(first.fail[3].index, whole.fail[3].index);
+  CHECK_NEAR(fg_hist_quantile(&first.rows[0].hist, 0.95),
+             fg_hist_quantile(&whole.rows[0].hist, 0.95), 0.0);
+  fg_tally_reset(&first);
+  CHECK_INT(first.n, 0);
+  CHECK_INT(first.rows[0].hist.total, 0);
+  fg_tally_free(&whole);
+  fg_tally_free(&first);
+  fg_tally_free(&second);
+}
+
+int main(void) {
+  test_clopper_pearson_closed_forms();
+  test_other_intervals();
+  test_verdict();
+  test_hist();
+  test_tally();
+  return fg_test_finish();
+}
