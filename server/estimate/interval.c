@@ -210,8 +210,10 @@ fg_interval fg_interval_wilson(uint64_t k, uint64_t n, double confidence) {
   double z2 = z * z, denom = 1 + z2 / dn;
   double centre = (p + z2 / (2 * dn)) / denom;
   double half = z / denom * sqrt(p * (1 - p) / dn + z2 / (4 * dn * dn));
-  iv.lower = fmax(0.0, centre - half);
-  iv.upper = fmin(1.0, centre + half);
+  /* At the edges the score interval touches 0 (k = 0) or 1 (k = n)
+   * exactly; computing it would leave rounding noise of either sign. */
+  iv.lower = k == 0 ? 0.0 : fmax(0.0, centre - half);
+  iv.upper = k == n ? 1.0 : fmin(1.0, centre + half);
   return iv;
 }
 
