@@ -1,0 +1,603 @@
+/*
+ * http/checks.c -- running, reading and listing checks.
+ *
+ *   POST /v1/models/{name}/checks               against the latest version
+ *   POST /v1/models/{name}/versions/{n}/checks  against version n
+ *   GET  /v1/checks/{id}                        one check (live if running)
+ *   GET  /v1/checks?model=&verdict=&since=&label=&limit=&after=
+ *
+ * How a check is run (the order is the durability contract):
+ *   1. load the version (404, 410 when retired) and its compiled model;
+ *   2. parse the body (fg_json_parse: byte offset on malformed JSON) and
+ *      the request (fg_request_parse: pointers for every fault);
+ *   3. 409 when expect_digest names another digest;
+ *   4. draw a seed when none was given, so the log can replay the check;
+ *   5. record the check as `running` in the store -- before any work, so a
+ *      crash from here on leaves a record that the next start-up marks
+ *      `interrupted`;
+ *   6. queue it on the pool (503 + Retry-After when the queue is full; the
+ *      record is then closed as `failed`);
+ *   7. wait up to wait_s: ended -> record the result, 201 + Location;
+ *      still running -> 202 with the running body, and the registry
+ *      (registry.c) records it when it ends.
+ *
+ * Check ids: "chk_" + 26 Crockford base32 characters of a 128-bit value,
+ * 48 bits of Unix milliseconds then 80 random bits. Ids made in the same
+ * millisecond by this process increase by one in their random part, so ids
+ * sort in creation order and the list cursor can be an id. The generator's
+ * last value is the one piece of process-wide state here (mutex-guarded).
+ *
+ * Thread use: handlers on connection threads; fg_http_record_end also on
+ * the registry's watcher thread.
+ */
+#include "http/http_internal.h"
+
+#include <ctype.h>
+#include <errno.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/random.h>
+#include <time.h>
+
+/* ---- ids ---- */
+
+static const char crockford[] = "0123456789ABCDEFGHJKMNPQRSTVWXYZ";
+
+static pthread_mutex_t id_lock = PTHREAD_MUTEX_INITIALIZER;
+static uint64_t id_last_ms;
+static uint8_t id_last_rand[10];
+
+void fg_http_check_id(char out[40]) {
+  struct timespec ts;
+  clock_gettime(CLOCK_REALTIME, &ts);
+  uint64_t ms = (uint64_t)ts.tv_sec * 1000u + (uint64_t)ts.tv_nsec / 1000000u;
+  uint8_t rnd[10];
+  if (getrandom(rnd, sizeof rnd, 0) != (ssize_t)sizeof rnd) {
+    /* No entropy: fall back to the clock; monotonicity still holds. */
+    uint64_t x = (uint64_t)ts.tv_nsec * 0x9E3779B97F4A7C15ull;
+    for (size_t i = 0; i < sizeof rnd; i++) rnd[i] = (uint8_t)(x >> (i * 6));
+  }
+  pthread_mutex_lock(&id_lock);
+  if (ms <= id_last_ms) {
+    ms = id_last_ms;
+    memcpy(rnd, id_last_rand, sizeof rnd);
+    for (int i = (int)sizeof rnd - 1; i >= 0; i--)
+      if (++rnd[i] != 0) break;
+  }
+  id_last_ms = ms;
+  memcpy(id_last_rand, rnd, sizeof rnd);
+  pthread_mutex_unlock(&id_lock);
+
+  uint8_t bytes[16];
+  for (int i = 0; i < 6; i++) bytes[i] = (uint8_t)(ms >> (8 * (5 - i)));
+  memcpy(bytes + 6, rnd, sizeof rnd);
+  /* 26 groups of 5 bits over 130 bits: two zero bits, then the 128. */
+  memcpy(out, "chk_", 4);
+  for (int k = 0; k < 26; k++) {
+    int v = 0;
+    for (int b = k * 5 - 2; b < k * 5 + 3; b++) {
+      int bit = b < 0 ? 0 : (bytes[b / 8] >> (7 - b % 8)) & 1;
+      v = (v << 1) | bit;
+    }
+    out[4 + k] = crockford[v];
+  }
+  out[30] = '\0';
+}
+
+static bool is_check_id(const char *s) {
+  if (strncmp(s, "chk_", 4) != 0 || strlen(s) != 30) return false;
+  for (int i = 4; i < 30; i++)
+    if (!strchr(crockford, s[i]) || s[i] == '\0') return false;
+  return true;
+}
+
+/* ---- result bodies and records ---- */
+
+static double number_at(const cJSON *o, const char *a, const char *b,
+                        const char *c) {
+  const cJSON *v = cJSON_GetObjectItemCaseSensitive(o, a);
+  if (b) v = cJSON_GetObjectItemCaseSensitive(v, b);
+  if (c) v = cJSON_GetObjectItemCaseSensitive(v, c);
+  return cJSON_IsNumber(v) ? v->valuedouble : NAN;
+}
+
+static void add_number_or_null(cJSON *o, const char *name, double v) {
+  if (isfinite(v)) cJSON_AddNumberToObject(o, name, v);
+  else cJSON_AddNullToObject(o, name);
+}
+
+static void add_string_or_null(cJSON *o, const char *name, const char *s) {
+  if (s && s[0]) cJSON_AddStringToObject(o, name, s);
+  else cJSON_AddNullToObject(o, name);
+}
+
+/* The summary of a stored check, as listed (and as the body of a check
+ * that has no result body: interrupted, or failed to start). */
+static cJSON *check_summary(const fg_store_check *c) {
+  cJSON *o = cJSON_CreateObject();
+  if (!o) return NULL;
+  cJSON_AddStringToObject(o, "id", c->id);
+  cJSON_AddStringToObject(o, "status", c->status);
+  cJSON *m = cJSON_AddObjectToObject(o, "model");
+  if (m) {
+    cJSON_AddStringToObject(m, "name", c->model);
+    cJSON_AddNumberToObject(m, "version", c->version);
+    cJSON_AddStringToObject(m, "digest", c->digest);
+  }
+  add_string_or_null(o, "verdict", c->verdict);
+  cJSON *j = cJSON_AddObjectToObject(o, "joint");
+  if (j) {
+    add_number_or_null(j, "probability", c->probability);
+    cJSON *iv = cJSON_AddObjectToObject(j, "interval");
+    if (iv) {
+      add_number_or_null(iv, "lower", c->lower);
+      add_number_or_null(iv, "upper", c->upper);
+    }
+  }
+  cJSON_AddStringToObject(o, "created_at", c->created_at);
+  add_string_or_null(o, "finished_at", c->finished_at);
+  add_string_or_null(o, "label", c->label);
+  add_string_or_null(o, "key", c->key);
+  return o;
+}
+
+fg_status fg_http_record_end(fg_store *store, fg_check *c,
+                             const fg_store_check *rec, cJSON **body,
+                             fg_problem *p) {
+  if (body) *body = NULL;
+  char finished[32];
+  fg_time_now_rfc3339(finished, sizeof finished);
+  fg_check_meta meta = {.id = rec->id,
+                        .model_version = rec->version,
+                        .created_at = rec->created_at,
+                        .finished_at = finished,
+                        .key = rec->key[0] ? rec->key : NULL};
+  cJSON *res = fg_check_result_json(c, &meta);
+
+  fg_store_check fin = *rec;
+  fin.request = NULL;
+  fin.result = NULL;
+  snprintf(fin.finished_at, sizeof fin.finished_at, "%s", finished);
+  fg_check_state state = fg_check_get_state(c);
+  const cJSON *s = cJSON_GetObjectItemCaseSensitive(res, "status");
+  snprintf(fin.status, sizeof fin.status, "%s",
+           cJSON_IsString(s) ? s->valuestring : fg_check_state_name(state));
+  const cJSON *vd = cJSON_GetObjectItemCaseSensitive(res, "verdict");
+  if (cJSON_IsString(vd))
+    snprintf(fin.verdict, sizeof fin.verdict, "%s", vd->valuestring);
+  else if (!res && state == FG_CHECK_DONE)
+    snprintf(fin.verdict, sizeof fin.verdict, "%s",
+             fg_verdict_name(fg_check_get_verdict(c)));
+  else
+    fin.verdict[0] = '\0';
+  fin.probability = number_at(res, "joint", "probability", NULL);
+  fin.lower = number_at(res, "joint", "interval", "lower");
+  fin.upper = number_at(res, "joint", "interval", "upper");
+  fin.elapsed_ms = number_at(res, "elapsed_ms", NULL, NULL);
+  fin.result = res ? cJSON_PrintUnformatted(res) : NULL;
+
+  fg_status st = fg_store_finish_check(store, &fin, p);
+  free(fin.result);
+
+  cJSON *ev = cJSON_CreateObject();
+  if (ev) {
+    cJSON_AddStringToObject(ev, "event", "check");
+    cJSON_AddStringToObject(ev, "id", rec->id);
+    cJSON_AddStringToObject(ev, "model", rec->model);
+    cJSON_AddNumberToObject(ev, "version", rec->version);
+    cJSON_AddStringToObject(ev, "digest", rec->digest);
+    cJSON_AddStringToObject(ev, "status", fin.status);
+    add_string_or_null(ev, "verdict", fin.verdict);
+    add_number_or_null(ev, "probability", fin.probability);
+    cJSON *iv = cJSON_AddArrayToObject(ev, "interval");
+    if (iv) {
+      cJSON_AddItemToArray(iv, isfinite(fin.lower)
+                                   ? cJSON_CreateNumber(fin.lower)
+                                   : cJSON_CreateNull());
+      cJSON_AddItemToArray(iv, isfinite(fin.upper)
+                                   ? cJSON_CreateNumber(fin.upper)
+                                   : cJSON_CreateNull());
+    }
+    add_number_or_null(ev, "samples", number_at(res, "joint", "samples", NULL));
+    add_number_or_null(ev, "elapsed_ms", fin.elapsed_ms);
+    if (st != FG_OK) cJSON_AddStringToObject(ev, "store_error", p->detail);
+    fg_log_emit(st == FG_OK ? FG_LOG_INFO : FG_LOG_ERROR, ev);
+  }
+  if (body) *body = res;
+  else cJSON_Delete(res);
+  return st;
+}
+
+/* ---- POST .../checks ---- */
+
+static void close_unstarted(fg_store *store, const fg_store_check *rec) {
+  fg_store_check fin = *rec;
+  fin.request = fin.result = NULL;
+  snprintf(fin.status, sizeof fin.status, "failed");
+  fin.verdict[0] = '\0';
+  fg_time_now_rfc3339(fin.finished_at, sizeof fin.finished_at);
+  fg_problem p;
+  fg_problem_init(&p);
+  if (fg_store_finish_check(store, &fin, &p) != FG_OK)
+    fg_log_msg(FG_LOG_ERROR, "store_error", "closing check %s: %s", rec->id,
+               p.detail);
+}
+
+void fg_h_checks_create(fg_req *r, fg_resp *out) {
+  fg_server *srv = r->srv;
+  const char *name = r->params[0];
+  int version = 0;
+  if (r->nparams > 1) {
+    version = fg_http_parse_version(r->params[1]);
+    if (version < 1) {
+      fg_resp_error(out, 404, FG_ENOTFOUND,
+                    "model '%.64s' has no version '%.32s'", name,
+                    r->params[1]);
+      return;
+    }
+  }
+  if (atomic_load(&srv->stopping)) {
+    fg_resp_error(out, 503, FG_EBUSY, "the server is shutting down");
+    return;
+  }
+  fg_problem p;
+  fg_problem_init(&p);
+  fg_store_version v;
+  fg_model *m = NULL;
+  cJSON *json = NULL;
+  fg_check_request req;
+  memset(&req, 0, sizeof req);
+  bool have_req = false;
+  fg_store_check rec;
+  memset(&rec, 0, sizeof rec);
+  fg_check *c = NULL;
+
+  if (fg_http_load_model(srv, name, version, &v, &m, &p) != FG_OK) {
+    fg_resp_problem(out, &p, 0);
+    return;
+  }
+  if (v.retired) {
+    fg_resp_error(out, 410, FG_EGONE,
+                  "model '%s' is retired; register it again to check "
+                  "candidates against it",
+                  v.name);
+    goto done;
+  }
+  if (!r->body || r->len == 0) {
+    fg_problem_add(&p, FG_EINVAL, "", 0,
+                   "expected a check request object with at least "
+                   "\"decision\", found an empty body");
+    fg_resp_problem(out, &p, 0);
+    goto done;
+  }
+  if (fg_json_parse(r->body, r->len, &json, &p) != FG_OK) {
+    fg_resp_problem(out, &p, 0);
+    goto done;
+  }
+  have_req = true;
+  if (fg_request_parse(m, json, &srv->cfg.limits, &req, &p) != FG_OK) {
+    fg_resp_problem(out, &p, 0);
+    goto done;
+  }
+  if (req.expect_digest[0] && strcmp(req.expect_digest, v.digest) != 0) {
+    fg_problem_add(&p, FG_ECONFLICT, "/expect_digest", 0,
+                   "expected model digest %s, but %s version %d has digest %s",
+                   req.expect_digest, v.name, v.version, v.digest);
+    fg_resp_problem(out, &p, 0);
+    goto done;
+  }
+  if (!req.seed_given) {
+    req.seed = fg_seed_draw();
+    req.seed_given = true;
+  }
+  if (req.wait_s > srv->cfg.limits.max_wait_s)
+    req.wait_s = srv->cfg.limits.max_wait_s;
+  if (!(req.wait_s >= 0)) req.wait_s = 0;
+
+  fg_http_check_id(rec.id);
+  snprintf(rec.model, sizeof rec.model, "%s", v.name);
+  rec.version = v.version;
+  snprintf(rec.digest, sizeof rec.digest, "%s", v.digest);
+  snprintf(rec.status, sizeof rec.status, "running");
+  rec.seed = req.seed;
+  fg_time_now_rfc3339(rec.created_at, sizeof rec.created_at);
+  snprintf(rec.label, sizeof rec.label, "%s", req.label);
+  rec.probability = rec.lower = rec.upper = rec.elapsed_ms = NAN;
+  cJSON *rj = fg_request_json(m, &req);
+  rec.request = rj ? cJSON_PrintUnformatted(rj) : NULL;
+  cJSON_Delete(rj);
+  if (!rec.request) {
+    fg_resp_error(out, 503, FG_ENOMEM, "out of memory recording the check");
+    goto done;
+  }
+  if (fg_store_put_check(srv->store, &rec, &p) != FG_OK) {
+    fg_resp_problem(out, &p, 0);
+    goto done;
+  }
+  if (fg_check_start(srv->pool, m, &req, &c, &p) != FG_OK) {
+    close_unstarted(srv->store, &rec);
+    fg_resp_problem(out, &p, 0);
+    goto done;
+  }
+  snprintf(out->location, sizeof out->location, "/v1/checks/%s", rec.id);
+  if (fg_check_wait(c, req.wait_s)) {
+    cJSON *body = NULL;
+    fg_problem sp;
+    fg_problem_init(&sp);
+    fg_status st = fg_http_record_end(srv->store, c, &rec, &body, &sp);
+    fg_check_unref(c);
+    c = NULL;
+    if (st != FG_OK) {
+      cJSON_Delete(body);
+      out->location[0] = '\0';
+      fg_resp_problem(out, &sp, 0);
+      goto done;
+    }
+    fg_resp_json(out, 201, body);
+    goto done;
+  }
+  /* Still running: answer 202 with the running body, hand it over. */
+  fg_check_meta meta = {.id = rec.id,
+                        .model_version = rec.version,
+                        .created_at = rec.created_at,
+                        .finished_at = NULL,
+                        .key = NULL};
+  cJSON *running = fg_check_result_json(c, &meta);
+  if (fg_registry_add(srv->registry, c, &rec, &p) != FG_OK) {
+    /* Cannot keep it: stop it and record what it reached. */
+    fg_check_cancel(c);
+    fg_check_wait(c, -1);
+    fg_problem sp;
+    fg_problem_init(&sp);
+    fg_http_record_end(srv->store, c, &rec, NULL, &sp);
+    fg_check_unref(c);
+    c = NULL;
+    cJSON_Delete(running);
+    out->location[0] = '\0';
+    fg_resp_problem(out, &p, 0);
+    goto done;
+  }
+  c = NULL; /* the registry holds it now */
+  fg_resp_json(out, 202, running);
+
+done:
+  free(rec.request);
+  if (have_req) fg_request_free(&req);
+  cJSON_Delete(json);
+  fg_model_unref(m);
+  fg_store_version_clear(&v);
+}
+
+/* ---- GET /v1/checks/{id} ---- */
+
+void fg_h_check_get(fg_req *r, fg_resp *out) {
+  const char *id = r->params[0];
+  cJSON *live = fg_registry_live_json(r->srv->registry, id);
+  if (live) {
+    fg_resp_json(out, 200, live);
+    return;
+  }
+  fg_problem p;
+  fg_problem_init(&p);
+  fg_store_check c;
+  if (fg_store_get_check(r->srv->store, id, &c, &p) != FG_OK) {
+    fg_resp_problem(out, &p, 0);
+    return;
+  }
+  if (c.result) {
+    /* The stored body is the answer as given; send it as stored. */
+    out->status = 200;
+    out->body = c.result;
+    out->len = strlen(c.result);
+    out->content_type = FG_CT_JSON;
+    c.result = NULL;
+  } else {
+    fg_resp_json(out, 200, check_summary(&c));
+  }
+  fg_store_check_clear(&c);
+}
+
+/* ---- GET /v1/checks ---- */
+
+typedef struct list_query {
+  const char *model, *verdict, *since, *label, *limit, *after;
+  char unknown[64];
+  bool empty_name;
+} list_query;
+
+static enum MHD_Result collect_arg(void *cls, enum MHD_ValueKind kind,
+                                   const char *key, const char *value) {
+  list_query *q = cls;
+  const char **slot = NULL;
+  if (strcmp(key, "model") == 0) slot = &q->model;
+  else if (strcmp(key, "verdict") == 0) slot = &q->verdict;
+  else if (strcmp(key, "since") == 0) slot = &q->since;
+  else if (strcmp(key, "label") == 0) slot = &q->label;
+  else if (strcmp(key, "limit") == 0) slot = &q->limit;
+  else if (strcmp(key, "after") == 0) slot = &q->after;
+  if (!slot) {
+    if (!q->unknown[0]) {
+      if (key[0]) snprintf(q->unknown, sizeof q->unknown, "%s", key);
+      else q->empty_name = true;
+    }
+    return MHD_YES;
+  }
+  if (!*slot) *slot = value ? value : "";
+  return MHD_YES;
+}
+
+/* RFC 3339 date-time (or a plain date) -> "YYYY-MM-DDTHH:MM:SSZ" in UTC,
+ * the form created_at is stored in. Fractions of a second are dropped. */
+static bool normalise_time(const char *s, char out[32]) {
+  int y, mo, d, h = 0, mi = 0, se = 0, n = 0;
+  if (sscanf(s, "%4d-%2d-%2d%n", &y, &mo, &d, &n) != 3 || n != 10)
+    return false;
+  const char *t = s + n;
+  long offset_s = 0;
+  if (*t) {
+    if (*t != 'T' && *t != 't' && *t != ' ') return false;
+    t++;
+    int m = 0;
+    if (sscanf(t, "%2d:%2d:%2d%n", &h, &mi, &se, &m) != 3 || m != 8)
+      return false;
+    t += m;
+    if (*t == '.') {
+      t++;
+      if (!isdigit((unsigned char)*t)) return false;
+      while (isdigit((unsigned char)*t)) t++;
+    }
+    if (*t == 'Z' || *t == 'z') {
+      t++;
+    } else if (*t == '+' || *t == '-') {
+      int oh, om, k = 0;
+      if (sscanf(t + 1, "%2d:%2d%n", &oh, &om, &k) != 2 || k != 5 || oh > 23 ||
+          om > 59)
+        return false;
+      offset_s = (oh * 3600L + om * 60L) * (*t == '-' ? -1 : 1);
+      t += 6;
+    } else {
+      return false;
+    }
+    if (*t) return false;
+  }
+  if (mo < 1 || mo > 12 || d < 1 || d > 31 || h > 23 || mi > 59 || se > 60)
+    return false;
+  struct tm tm = {.tm_year = y - 1900, .tm_mon = mo - 1, .tm_mday = d,
+                  .tm_hour = h, .tm_min = mi, .tm_sec = se > 59 ? 59 : se};
+  time_t when = timegm(&tm);
+  if (when == (time_t)-1) return false;
+  if (tm.tm_mday != d || tm.tm_mon != mo - 1) return false; /* Feb 30 */
+  when -= offset_s;
+  struct tm u;
+  if (!gmtime_r(&when, &u)) return false;
+  strftime(out, 32, "%Y-%m-%dT%H:%M:%SZ", &u);
+  return true;
+}
+
+static bool valid_model_name(const char *s) {
+  size_t n = strlen(s);
+  if (n == 0 || n > FG_NAME_MAX) return false;
+  for (size_t i = 0; i < n; i++) {
+    char ch = s[i];
+    bool ok = (ch >= 'a' && ch <= 'z') || (ch >= '0' && ch <= '9') ||
+              (i > 0 && (ch == '_' || ch == '.' || ch == '-'));
+    if (!ok) return false;
+  }
+  return true;
+}
+
+static void bad_param(fg_resp *out, const char *name, const char *fmt,
+                      const char *value) {
+  fg_problem p;
+  fg_problem_init(&p);
+  char msg[FG_MESSAGE_MAX];
+  snprintf(msg, sizeof msg, fmt, value);
+  fg_problem_set(&p, FG_EINVAL, "query parameter '%s': %s", name, msg);
+  fg_resp_problem(out, &p, 400);
+}
+
+void fg_h_checks_list(fg_req *r, fg_resp *out) {
+  list_query q;
+  memset(&q, 0, sizeof q);
+  MHD_get_connection_values(r->conn, MHD_GET_ARGUMENT_KIND, collect_arg, &q);
+  if (q.unknown[0] || q.empty_name) {
+    bad_param(out, q.unknown[0] ? q.unknown : "",
+              "unknown parameter%s; expected model, verdict, since, label, "
+              "limit or after",
+              "");
+    return;
+  }
+  fg_check_filter f = {.limit = FG_LIST_LIMIT_DEFAULT};
+  if (q.model) {
+    if (!valid_model_name(q.model)) {
+      bad_param(out, "model",
+                "expected a model name ([a-z0-9][a-z0-9_.-]{0,63}), found "
+                "'%.64s'",
+                q.model);
+      return;
+    }
+    f.model = q.model;
+  }
+  if (q.verdict) {
+    if (strcmp(q.verdict, "pass") && strcmp(q.verdict, "fail") &&
+        strcmp(q.verdict, "inconclusive")) {
+      bad_param(out, "verdict",
+                "expected pass, fail or inconclusive, found '%.32s'",
+                q.verdict);
+      return;
+    }
+    f.verdict = q.verdict;
+  }
+  char since[32];
+  if (q.since) {
+    if (!normalise_time(q.since, since)) {
+      bad_param(out, "since",
+                "expected an RFC 3339 date-time such as "
+                "2026-12-01T21:40:00Z, found '%.64s'",
+                q.since);
+      return;
+    }
+    f.since = since;
+  }
+  if (q.label) {
+    if (strlen(q.label) > FG_LABEL_MAX) {
+      bad_param(out, "label", "longer than label_length%s", "");
+      return;
+    }
+    f.label = q.label;
+  }
+  if (q.limit) {
+    char *end = NULL;
+    errno = 0;
+    long lim = strtol(q.limit, &end, 10);
+    if (errno || !q.limit[0] || *end || lim < 1 || lim > FG_LIST_LIMIT_MAX) {
+      char msg[64];
+      snprintf(msg, sizeof msg, "%d", FG_LIST_LIMIT_MAX);
+      fg_problem p;
+      fg_problem_init(&p);
+      fg_problem_set(&p, FG_EINVAL,
+                     "query parameter 'limit': expected a whole number from 1 "
+                     "to %s, found '%.32s'",
+                     msg, q.limit);
+      fg_resp_problem(out, &p, 400);
+      return;
+    }
+    f.limit = (int)lim;
+  }
+  if (q.after) {
+    if (!is_check_id(q.after)) {
+      bad_param(out, "after",
+                "expected the id of the last check seen (chk_...), found "
+                "'%.40s'",
+                q.after);
+      return;
+    }
+    f.after = q.after;
+  }
+
+  fg_problem p;
+  fg_problem_init(&p);
+  fg_store_check *list = NULL;
+  int n = 0;
+  char next[40];
+  fg_status st = fg_store_list_checks(r->srv->store, &f, &list, &n, next, &p);
+  if (st == FG_EINVAL) {
+    bad_param(out, "after", "%s", p.detail);
+    return;
+  }
+  if (st != FG_OK) {
+    fg_resp_problem(out, &p, 0);
+    return;
+  }
+  cJSON *o = cJSON_CreateObject();
+  cJSON *arr = o ? cJSON_AddArrayToObject(o, "checks") : NULL;
+  for (int i = 0; arr && i < n; i++) {
+    cJSON *s = check_summary(&list[i]);
+    if (s) cJSON_AddItemToArray(arr, s);
+  }
+  fg_store_checks_free(list, n);
+  if (o) add_string_or_null(o, "next", next);
+  fg_resp_json(out, 200, o);
+}

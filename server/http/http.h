@@ -1,0 +1,90 @@
+/*
+ * http/http.h -- the HTTP daemon: `feasgate serve` (prefix fg_serve_,
+ * fg_http_).
+ *
+ * main.c hands the whole `serve` subcommand to fg_serve_command(); all the
+ * rest of the HTTP side (libmicrohttpd daemon, routing, problem documents,
+ * handlers, the log) is internal to this folder (http_internal.h).
+ *
+ * Configuration: every setting has a flag and an environment twin; the
+ * twin is read first and the flag wins. Every value is range-checked before
+ * anything starts, and a bad one ends the command with exit status 3 and a
+ * message naming the flag (or variable), what was expected and what was
+ * found.
+ *
+ *   flag             twin                     default
+ *   --listen H:P     FEASGATE_LISTEN          127.0.0.1:8080 (port 0: any)
+ *   --store URL      FEASGATE_STORE           sqlite:var/feasgate.db
+ *   --workers N      FEASGATE_WORKERS         online cores (1..FG_WORKERS_MAX)
+ *   --chunk N        FEASGATE_CHUNK           FG_CHUNK_DEFAULT
+ *   --queue N        FEASGATE_QUEUE           FG_HTTP_QUEUE_DEFAULT
+ *   --max-body B     FEASGATE_MAX_BODY        FG_MAX_BODY_DEFAULT (K/M/G ok)
+ *   --max-samples N  FEASGATE_MAX_SAMPLES     FG_MAX_SAMPLES_DEFAULT
+ *   --max-scenarios  FEASGATE_MAX_SCENARIOS   FG_MAX_SCENARIOS_DEFAULT
+ *   --max-wait S     FEASGATE_MAX_WAIT        60 seconds
+ *   --grace S        FEASGATE_GRACE           FG_HTTP_GRACE_DEFAULT seconds
+ *   --log-level L    FEASGATE_LOG_LEVEL       info (debug, info, warn, error)
+ *
+ * Exit status of fg_serve_command: 0 after a clean stop (SIGINT/SIGTERM),
+ * 3 for bad usage or a bad setting, 1 when start-up fails for another
+ * reason (address in use, store cannot be opened).
+ *
+ * Thread use: fg_serve_command runs on the main thread and owns the
+ * process's signal mask while it runs.
+ */
+#ifndef FG_HTTP_H
+#define FG_HTTP_H
+
+#include "feasgate/engine.h"
+#include "feasgate/limits.h"
+
+#include <stdbool.h>
+#include <stddef.h>
+#include <stdint.h>
+
+/* Checks waiting for a worker at most: enough to absorb a burst of
+ * pipeline jobs, small enough that a queued check starts within minutes. */
+#define FG_HTTP_QUEUE_DEFAULT 64
+#define FG_HTTP_QUEUE_MAX 65536
+/* Longest --max-wait and --grace: an HTTP client holding a request open
+ * for more than an hour is a misconfiguration, not a use. */
+#define FG_HTTP_WAIT_MAX_S 3600.0
+/* Running checks get this long to finish at shutdown before they are
+ * cancelled and recorded as cancelled. */
+#define FG_HTTP_GRACE_DEFAULT 30.0
+/* Hard bound of --max-scenarios: a scenario table of 10^8 rows is already
+ * gigabytes of JSON. */
+#define FG_HTTP_MAX_SCENARIOS_HARD 100000000ull
+/* Characters of --listen and --store values. */
+#define FG_HTTP_HOST_MAX 255
+#define FG_HTTP_URL_MAX 4096
+
+typedef enum fg_log_level {
+  FG_LOG_DEBUG = 0,
+  FG_LOG_INFO,
+  FG_LOG_WARN,
+  FG_LOG_ERROR
+} fg_log_level;
+
+typedef struct fg_http_config {
+  char host[FG_HTTP_HOST_MAX + 1]; /* without IPv6 brackets */
+  unsigned port;                   /* 0: the kernel picks one */
+  char store[FG_HTTP_URL_MAX + 1];
+  int workers, chunk, queue;
+  uint64_t max_body;
+  fg_request_limits limits; /* max_samples, max_scenarios, max_wait_s */
+  double grace_s;
+  fg_log_level log_level;
+} fg_http_config;
+
+/* Defaults, then environment twins, then flags (argv[0] is the subcommand
+ * name and is skipped). Returns 0 when the configuration is complete, 1 when
+ * --help was asked (usage printed to stdout), -1 on a bad value (message
+ * in err). */
+int fg_http_config_parse(int argc, char **argv, fg_http_config *cfg,
+                         char *err, size_t errcap);
+
+/* The whole `feasgate serve` subcommand (argv[0] = "serve"). */
+int fg_serve_command(int argc, char **argv);
+
+#endif

@@ -1,0 +1,79 @@
+/*
+ * http/ops.c -- operational endpoints.
+ *
+ *   GET /v1/health  200 {"status": "ok"} while the process serves
+ *   GET /v1/ready   200 {"status": "ready", ...} when the store answers and
+ *                   the work queue has room, else a 503 problem saying why
+ *   GET /v1/limits  {"limits": [{"name", "value"}, ...]}: every compiled-in
+ *                   limit of FG_LIMITS_TABLE and every runtime setting
+ *
+ * Thread use: handlers on connection threads; they only read.
+ */
+#include "http/http_internal.h"
+
+void fg_h_health(fg_req *r, fg_resp *out) {
+  cJSON *o = cJSON_CreateObject();
+  if (o) cJSON_AddStringToObject(o, "status", "ok");
+  fg_resp_json(out, 200, o);
+}
+
+void fg_h_ready(fg_req *r, fg_resp *out) {
+  fg_server *srv = r->srv;
+  if (atomic_load(&srv->stopping)) {
+    fg_resp_error(out, 503, FG_EBUSY, "the server is shutting down");
+    return;
+  }
+  fg_problem p;
+  fg_problem_init(&p);
+  if (fg_store_ping(srv->store, &p) != FG_OK) {
+    fg_resp_problem(out, &p, 503);
+    return;
+  }
+  int queued = fg_pool_queued(srv->pool);
+  if (queued >= srv->cfg.queue) {
+    fg_resp_error(out, 503, FG_EBUSY,
+                  "the work queue is full (%d of %d checks waiting)", queued,
+                  srv->cfg.queue);
+    return;
+  }
+  cJSON *o = cJSON_CreateObject();
+  if (o) {
+    cJSON_AddStringToObject(o, "status", "ready");
+    cJSON_AddNumberToObject(o, "workers", fg_pool_workers(srv->pool));
+    cJSON_AddNumberToObject(o, "workers_busy", fg_pool_busy(srv->pool));
+    cJSON_AddNumberToObject(o, "queued", queued);
+    cJSON_AddNumberToObject(o, "running_detached",
+                            fg_registry_count(srv->registry));
+  }
+  fg_resp_json(out, 200, o);
+}
+
+static void add_limit(cJSON *arr, const char *name, double value) {
+  cJSON *e = cJSON_CreateObject();
+  if (!e) return;
+  cJSON_AddStringToObject(e, "name", name);
+  cJSON_AddNumberToObject(e, "value", value);
+  cJSON_AddItemToArray(arr, e);
+}
+
+void fg_h_limits(fg_req *r, fg_resp *out) {
+  const fg_http_config *cfg = &r->srv->cfg;
+  cJSON *o = cJSON_CreateObject();
+  cJSON *arr = o ? cJSON_AddArrayToObject(o, "limits") : NULL;
+  if (arr) {
+#define FG_ADD_LIMIT(name, value) add_limit(arr, name, (double)(value));
+    FG_LIMITS_TABLE(FG_ADD_LIMIT)
+#undef FG_ADD_LIMIT
+    add_limit(arr, "max_body", (double)cfg->max_body);
+    add_limit(arr, "max_samples", (double)cfg->limits.max_samples);
+    add_limit(arr, "max_scenarios", (double)cfg->limits.max_scenarios);
+    add_limit(arr, "max_wait", cfg->limits.max_wait_s);
+    add_limit(arr, "samples_default", (double)FG_SAMPLES_DEFAULT);
+    add_limit(arr, "seed_max", (double)FG_SEED_MAX);
+    add_limit(arr, "list_limit", FG_LIST_LIMIT_MAX);
+    add_limit(arr, "workers", cfg->workers);
+    add_limit(arr, "chunk", cfg->chunk);
+    add_limit(arr, "queue", cfg->queue);
+  }
+  fg_resp_json(out, 200, o);
+}

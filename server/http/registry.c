@@ -1,0 +1,233 @@
+/*
+ * http/registry.c -- checks that outlived their request's wait_s.
+ *
+ * Design: a list of held checks under one mutex, and one watcher thread.
+ * The watcher wakes every FG_REGISTRY_POLL_MS (or when signalled), finds a
+ * held check that has ended, records its end in the store
+ * (fg_http_record_end) while the check is still listed -- so a GET in
+ * between sees the live body, never a half-written record -- and only
+ * then unlinks it and drops its reference. The store write happens outside
+ * the registry mutex; the `recording` flag keeps the entry the watcher's
+ * alone meanwhile.
+ *
+ * Locking rule: `lock` guards the list, `count`, `stop` and every entry's
+ * `recording`. A held check's reference belongs to the registry; live
+ * bodies are built under `lock`, so the check cannot be released while one
+ * is being built (engine.h has no fg_check_ref to take our own).
+ *
+ * Shutdown (fg_registry_shutdown, main thread): wait up to grace_s for held
+ * checks to end, cancel the rest, wait up to FG_REGISTRY_CANCEL_WAIT_S for
+ * them to stop and be recorded (as cancelled), then stop the watcher. A
+ * check that still has not ended stays `running` in the store and is marked
+ * `interrupted` at the next start-up.
+ *
+ * Thread use: any thread; the watcher is internal.
+ */
+#include "http/http_internal.h"
+
+#include <errno.h>
+#include <stdlib.h>
+#include <string.h>
+#include <time.h>
+
+/* How often the watcher looks for ended checks: a 202'd check is recorded
+ * at most this late. */
+#define FG_REGISTRY_POLL_MS 50
+/* How long cancelled checks get to stop at shutdown: workers test the
+ * cancel flag once per block, so this is generous. */
+#define FG_REGISTRY_CANCEL_WAIT_S 10.0
+
+typedef struct fg_held {
+  struct fg_held *next;
+  fg_check *check;
+  fg_store_check rec; /* request and result are NULL */
+  bool recording;
+} fg_held;
+
+struct fg_registry {
+  fg_store *store;
+  pthread_mutex_t lock;
+  pthread_cond_t wake;    /* watcher: something to look at */
+  pthread_cond_t changed; /* shutdown: an entry went away */
+  fg_held *head;
+  int count;
+  bool stop;
+  pthread_t watcher;
+  bool watcher_started;
+};
+
+static void deadline_in(struct timespec *ts, double seconds) {
+  clock_gettime(CLOCK_REALTIME, ts);
+  double whole = (double)(long)seconds;
+  ts->tv_sec += (time_t)whole;
+  ts->tv_nsec += (long)((seconds - whole) * 1e9);
+  if (ts->tv_nsec >= 1000000000L) {
+    ts->tv_sec++;
+    ts->tv_nsec -= 1000000000L;
+  }
+}
+
+/* An ended entry not yet being recorded, or NULL. Called under lock. */
+static fg_held *find_ended(fg_registry *g) {
+  for (fg_held *e = g->head; e; e = e->next)
+    if (!e->recording && fg_check_wait(e->check, 0)) return e;
+  return NULL;
+}
+
+static void unlink_entry(fg_registry *g, fg_held *target) {
+  for (fg_held **pp = &g->head; *pp; pp = &(*pp)->next) {
+    if (*pp == target) {
+      *pp = target->next;
+      g->count--;
+      return;
+    }
+  }
+}
+
+static void *watch(void *arg) {
+  fg_registry *g = arg;
+  pthread_mutex_lock(&g->lock);
+  while (!g->stop) {
+    fg_held *e = find_ended(g);
+    if (!e) {
+      struct timespec ts;
+      deadline_in(&ts, FG_REGISTRY_POLL_MS / 1000.0);
+      pthread_cond_timedwait(&g->wake, &g->lock, &ts);
+      continue;
+    }
+    e->recording = true;
+    pthread_mutex_unlock(&g->lock);
+    fg_problem p;
+    fg_problem_init(&p);
+    if (fg_http_record_end(g->store, e->check, &e->rec, NULL, &p) != FG_OK)
+      fg_log_msg(FG_LOG_ERROR, "store_error", "recording check %s: %s",
+                 e->rec.id, p.detail);
+    pthread_mutex_lock(&g->lock);
+    unlink_entry(g, e);
+    pthread_cond_broadcast(&g->changed);
+    pthread_mutex_unlock(&g->lock);
+    fg_check_unref(e->check);
+    free(e);
+    pthread_mutex_lock(&g->lock);
+  }
+  pthread_mutex_unlock(&g->lock);
+  return NULL;
+}
+
+fg_status fg_registry_new(fg_store *store, fg_registry **out, fg_problem *p) {
+  *out = NULL;
+  fg_registry *g = calloc(1, sizeof *g);
+  if (!g) return fg_problem_set(p, FG_ENOMEM, "registry: out of memory");
+  g->store = store;
+  pthread_mutex_init(&g->lock, NULL);
+  pthread_cond_init(&g->wake, NULL);
+  pthread_cond_init(&g->changed, NULL);
+  int rc = pthread_create(&g->watcher, NULL, watch, g);
+  if (rc != 0) {
+    fg_registry_free(g);
+    return fg_problem_set(p, FG_EINTERNAL,
+                          "registry: cannot start its thread: %s",
+                          strerror(rc));
+  }
+  g->watcher_started = true;
+  *out = g;
+  return FG_OK;
+}
+
+fg_status fg_registry_add(fg_registry *g, fg_check *c,
+                          const fg_store_check *rec, fg_problem *p) {
+  fg_held *e = calloc(1, sizeof *e);
+  if (!e)
+    return fg_problem_set(p, FG_ENOMEM,
+                          "out of memory keeping check %s running", rec->id);
+  e->check = c;
+  e->rec = *rec;
+  e->rec.request = NULL;
+  e->rec.result = NULL;
+  pthread_mutex_lock(&g->lock);
+  e->next = g->head;
+  g->head = e;
+  g->count++;
+  pthread_cond_signal(&g->wake);
+  pthread_mutex_unlock(&g->lock);
+  return FG_OK;
+}
+
+cJSON *fg_registry_live_json(fg_registry *g, const char *id) {
+  cJSON *body = NULL;
+  pthread_mutex_lock(&g->lock);
+  for (fg_held *e = g->head; e; e = e->next) {
+    if (strcmp(e->rec.id, id) != 0) continue;
+    fg_check_meta meta = {.id = e->rec.id,
+                          .model_version = e->rec.version,
+                          .created_at = e->rec.created_at,
+                          .finished_at = NULL,
+                          .key = e->rec.key[0] ? e->rec.key : NULL};
+    body = fg_check_result_json(e->check, &meta);
+    break;
+  }
+  pthread_mutex_unlock(&g->lock);
+  return body;
+}
+
+int fg_registry_count(fg_registry *g) {
+  pthread_mutex_lock(&g->lock);
+  int n = g->count;
+  pthread_mutex_unlock(&g->lock);
+  return n;
+}
+
+/* Wait (under lock) until no entry is held or `seconds` pass. */
+static void wait_empty(fg_registry *g, double seconds) {
+  struct timespec ts;
+  deadline_in(&ts, seconds);
+  while (g->count > 0) {
+    if (pthread_cond_timedwait(&g->changed, &g->lock, &ts) == ETIMEDOUT)
+      break;
+  }
+}
+
+void fg_registry_shutdown(fg_registry *g, double grace_s) {
+  if (!g) return;
+  pthread_mutex_lock(&g->lock);
+  if (g->count > 0) {
+    fg_log_msg(FG_LOG_INFO, "draining",
+               "%d running check(s); waiting up to %g s", g->count, grace_s);
+    wait_empty(g, grace_s);
+  }
+  if (g->count > 0) {
+    fg_log_msg(FG_LOG_WARN, "cancelling", "cancelling %d running check(s)",
+               g->count);
+    for (fg_held *e = g->head; e; e = e->next) fg_check_cancel(e->check);
+    pthread_cond_signal(&g->wake);
+    wait_empty(g, FG_REGISTRY_CANCEL_WAIT_S);
+  }
+  if (g->count > 0)
+    fg_log_msg(FG_LOG_ERROR, "abandoned",
+               "%d check(s) did not stop; they stay running in the store "
+               "and are marked interrupted at the next start",
+               g->count);
+  g->stop = true;
+  pthread_cond_signal(&g->wake);
+  pthread_mutex_unlock(&g->lock);
+  if (g->watcher_started) {
+    pthread_join(g->watcher, NULL);
+    g->watcher_started = false;
+  }
+}
+
+void fg_registry_free(fg_registry *g) {
+  if (!g) return;
+  if (g->watcher_started) fg_registry_shutdown(g, 0);
+  fg_held *e = g->head;
+  while (e) {
+    fg_held *next = e->next;
+    fg_check_unref(e->check);
+    free(e);
+    e = next;
+  }
+  pthread_cond_destroy(&g->wake);
+  pthread_cond_destroy(&g->changed);
+  pthread_mutex_destroy(&g->lock);
+  free(g);
+}

@@ -1,0 +1,440 @@
+/*
+ * http/server.c -- the libmicrohttpd daemon and `feasgate serve`.
+ *
+ * Design
+ *   libmicrohttpd runs one thread per connection (plus its listening
+ *   thread), so a handler waiting for a synchronous check (up to
+ *   --max-wait) holds only its own connection. Handlers never simulate:
+ *   checks run on the engine's worker pool.
+ *
+ *   The access handler is called several times per request:
+ *     1st call   set up an fg_req; a Content-Length above --max-body is
+ *                refused with 413 at once, before any of the body is read;
+ *     body calls append to r->body; as soon as the bytes received exceed
+ *                --max-body the buffer is dropped and 413 queued, so an
+ *                oversize body is never held whole;
+ *     last call  (no more data) route, run the handler, queue the answer.
+ *   The completion callback logs the request (method, route, status,
+ *   duration_ms) and frees the fg_req.
+ *
+ *   We create the listening socket ourselves (so port 0 can be resolved to
+ *   the bound address, which is the first log line) and hand it to
+ *   libmicrohttpd with MHD_OPTION_LISTEN_SOCKET.
+ *
+ * Start-up and shutdown (fg_serve_command, main thread)
+ *   parse settings (exit 3 on a bad one) -> block SIGINT/SIGTERM in every
+ *   thread -> bind -> open the store, mark checks left running as
+ *   interrupted -> worker pool, model cache, registry -> daemon -> log
+ *   "listening" -> sigwait. On SIGINT/SIGTERM: stop accepting (quiesce),
+ *   wait for requests in flight (bounded by --max-wait plus a margin),
+ *   stop the daemon, let detached checks finish within --grace (then
+ *   cancel and record them), free the pool, close the store, exit 0.
+ *
+ * Thread use: the access handler and completion callback run on
+ * libmicrohttpd's threads; fg_serve_command on the main thread only.
+ */
+#include "http/http_internal.h"
+
+#include <arpa/inet.h>
+#include <errno.h>
+#include <inttypes.h>
+#include <netdb.h>
+#include <netinet/in.h>
+#include <signal.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/socket.h>
+#include <unistd.h>
+
+/* Seconds libmicrohttpd keeps an idle connection open. */
+#define FG_HTTP_IDLE_TIMEOUT_S 120
+/* Connections at once: each is a thread; beyond this, new connections are
+ * refused by libmicrohttpd instead of exhausting threads. */
+#define FG_HTTP_CONNECTIONS_MAX 512
+/* Bytes of libmicrohttpd's per-connection buffer (request line, headers):
+ * limits header size. Bodies are ours and limited by --max-body. */
+#define FG_HTTP_CONN_MEMORY (64 * 1024)
+/* Seconds added to --max-wait when waiting for requests in flight at
+ * shutdown: time to record and answer after the wait itself. */
+#define FG_HTTP_DRAIN_MARGIN_S 10.0
+/* Initial body buffer; grows by doubling up to --max-body. */
+#define FG_HTTP_BODY_INITIAL 4096
+
+/* ---- responses ---- */
+
+static void queue(fg_req *r, fg_resp *resp) {
+  struct MHD_Response *mr;
+  if (resp->body && resp->len > 0) {
+    mr = MHD_create_response_from_buffer(resp->len, resp->body,
+                                         MHD_RESPMEM_MUST_FREE);
+    if (mr) resp->body = NULL; /* libmicrohttpd owns it now */
+  } else {
+    mr = MHD_create_response_from_buffer(0, (void *)"", MHD_RESPMEM_PERSISTENT);
+  }
+  free(resp->body);
+  resp->body = NULL;
+  if (!mr) {
+    r->responded = true;
+    return;
+  }
+  if (resp->content_type)
+    MHD_add_response_header(mr, MHD_HTTP_HEADER_CONTENT_TYPE,
+                            resp->content_type);
+  if (resp->location[0])
+    MHD_add_response_header(mr, MHD_HTTP_HEADER_LOCATION, resp->location);
+  if (resp->allow[0])
+    MHD_add_response_header(mr, MHD_HTTP_HEADER_ALLOW, resp->allow);
+  if (resp->retry_after > 0) {
+    char ra[16];
+    snprintf(ra, sizeof ra, "%d", resp->retry_after);
+    MHD_add_response_header(mr, MHD_HTTP_HEADER_RETRY_AFTER, ra);
+  }
+  MHD_add_response_header(mr, "Cache-Control", "no-store");
+  MHD_queue_response(r->conn, (unsigned int)resp->status, mr);
+  MHD_destroy_response(mr);
+  r->responded = true;
+}
+
+static void log_request(const fg_req *r, int status) {
+  cJSON *o = cJSON_CreateObject();
+  if (!o) return;
+  cJSON_AddStringToObject(o, "event", "request");
+  cJSON_AddStringToObject(o, "method", r->method);
+  cJSON_AddStringToObject(o, "route", r->route ? r->route : "(none)");
+  cJSON_AddStringToObject(o, "path", r->path);
+  cJSON_AddNumberToObject(o, "status", status);
+  double ms = (fg_http_now() - r->t0) * 1000.0;
+  cJSON_AddNumberToObject(o, "duration_ms", (double)(long)(ms * 1000) / 1000);
+  fg_log_emit(status >= 500 ? FG_LOG_WARN : FG_LOG_INFO, o);
+}
+
+static void respond(fg_req *r, fg_resp *resp) {
+  int status = resp->status;
+  queue(r, resp);
+  log_request(r, status);
+}
+
+static void refuse_too_large(fg_req *r, const char *how) {
+  fg_problem p;
+  fg_problem_init(&p);
+  fg_problem_limit(&p, "", "max_body", (double)r->srv->cfg.max_body,
+                   "request body %s the limit max_body = %" PRIu64 " bytes",
+                   how, r->srv->cfg.max_body);
+  fg_resp resp = {0};
+  fg_resp_problem(&resp, &p, 413);
+  r->route = "(body too large)";
+  respond(r, &resp);
+}
+
+/* ---- libmicrohttpd callbacks ---- */
+
+static enum MHD_Result on_request(void *cls, struct MHD_Connection *conn,
+                                  const char *url, const char *method,
+                                  const char *version, const char *upload,
+                                  size_t *upload_size, void **con_cls) {
+  fg_server *srv = cls;
+  fg_req *r = *con_cls;
+  if (!r) {
+    r = calloc(1, sizeof *r);
+    if (!r) return MHD_NO; /* libmicrohttpd closes the connection */
+    r->srv = srv;
+    r->conn = conn;
+    r->t0 = fg_http_now();
+    snprintf(r->method, sizeof r->method, "%s", method);
+    if (strlen(url) > FG_HTTP_PATH_MAX) r->path_too_long = true;
+    snprintf(r->path, sizeof r->path, "%s", url);
+    *con_cls = r;
+    pthread_mutex_lock(&srv->inflight_lock);
+    srv->inflight++;
+    pthread_mutex_unlock(&srv->inflight_lock);
+    const char *cl =
+        MHD_lookup_connection_value(conn, MHD_HEADER_KIND, "Content-Length");
+    if (cl) {
+      char *end = NULL;
+      errno = 0;
+      unsigned long long n = strtoull(cl, &end, 10);
+      if (errno == ERANGE || n > srv->cfg.max_body) {
+        r->too_large = true;
+        refuse_too_large(r, "declared in Content-Length exceeds");
+      }
+    }
+    return MHD_YES;
+  }
+  if (*upload_size > 0) {
+    size_t n = *upload_size;
+    *upload_size = 0; /* consumed (or discarded) */
+    if (r->too_large || r->responded) return MHD_YES;
+    if (r->len + n > srv->cfg.max_body) {
+      r->too_large = true;
+      free(r->body);
+      r->body = NULL;
+      r->len = r->cap = 0;
+      refuse_too_large(r, "exceeds");
+      return MHD_YES;
+    }
+    if (r->len + n + 1 > r->cap) {
+      size_t cap = r->cap ? r->cap : FG_HTTP_BODY_INITIAL;
+      while (cap < r->len + n + 1) cap *= 2;
+      if (cap > srv->cfg.max_body + 1) cap = (size_t)srv->cfg.max_body + 1;
+      char *grown = realloc(r->body, cap);
+      if (!grown) {
+        fg_resp resp = {0};
+        fg_resp_error(&resp, 503, FG_ENOMEM,
+                      "out of memory receiving the request body");
+        free(r->body);
+        r->body = NULL;
+        r->too_large = true; /* discard the rest */
+        respond(r, &resp);
+        return MHD_YES;
+      }
+      r->body = grown;
+      r->cap = cap;
+    }
+    memcpy(r->body + r->len, upload, n);
+    r->len += n;
+    r->body[r->len] = '\0';
+    return MHD_YES;
+  }
+  if (r->responded) return MHD_YES;
+  fg_resp resp = {0};
+  fg_handler *h = fg_route(r, &resp);
+  if (h) h(r, &resp);
+  if (resp.status == 0) fg_resp_error(&resp, 500, FG_EINTERNAL,
+                                      "handler for %s gave no answer",
+                                      r->route ? r->route : "?");
+  respond(r, &resp);
+  return MHD_YES;
+}
+
+static void on_completed(void *cls, struct MHD_Connection *conn,
+                         void **con_cls, enum MHD_RequestTerminationCode why) {
+  fg_server *srv = cls;
+  fg_req *r = *con_cls;
+  if (!r) return;
+  if (!r->responded)
+    fg_log_msg(FG_LOG_DEBUG, "request_aborted", "%s %.200s ended (code %d) "
+               "before an answer", r->method, r->path, (int)why);
+  free(r->body);
+  free(r);
+  *con_cls = NULL;
+  pthread_mutex_lock(&srv->inflight_lock);
+  srv->inflight--;
+  pthread_cond_broadcast(&srv->inflight_cv);
+  pthread_mutex_unlock(&srv->inflight_lock);
+}
+
+static void on_mhd_log(void *cls, const char *fmt, va_list ap) {
+  char msg[512];
+  vsnprintf(msg, sizeof msg, fmt, ap);
+  size_t n = strlen(msg);
+  while (n > 0 && (msg[n - 1] == '\n' || msg[n - 1] == '\r')) msg[--n] = '\0';
+  fg_log_msg(FG_LOG_WARN, "http_library", "%s", msg);
+}
+
+/* ---- listening socket ---- */
+
+static int bind_listener(const fg_http_config *cfg, char *addr, size_t cap,
+                         char *err, size_t errcap) {
+  struct addrinfo hints = {.ai_family = AF_UNSPEC,
+                           .ai_socktype = SOCK_STREAM,
+                           .ai_flags = AI_PASSIVE | AI_NUMERICSERV};
+  struct addrinfo *res = NULL;
+  char port[8];
+  snprintf(port, sizeof port, "%u", cfg->port);
+  int rc = getaddrinfo(cfg->host, port, &hints, &res);
+  if (rc != 0) {
+    snprintf(err, errcap, "--listen %s:%u: cannot resolve the host: %s",
+             cfg->host, cfg->port, gai_strerror(rc));
+    return -1;
+  }
+  int fd = -1, saved = 0;
+  for (struct addrinfo *ai = res; ai; ai = ai->ai_next) {
+    fd = socket(ai->ai_family, ai->ai_socktype | SOCK_CLOEXEC,
+                ai->ai_protocol);
+    if (fd < 0) {
+      saved = errno;
+      continue;
+    }
+    int one = 1;
+    setsockopt(fd, SOL_SOCKET, SO_REUSEADDR, &one, sizeof one);
+    if (bind(fd, ai->ai_addr, ai->ai_addrlen) == 0 && listen(fd, 128) == 0)
+      break;
+    saved = errno;
+    close(fd);
+    fd = -1;
+  }
+  freeaddrinfo(res);
+  if (fd < 0) {
+    snprintf(err, errcap, "--listen %s:%u: cannot listen: %s", cfg->host,
+             cfg->port, strerror(saved));
+    return -1;
+  }
+  struct sockaddr_storage ss;
+  socklen_t len = sizeof ss;
+  char host[INET6_ADDRSTRLEN] = "?";
+  unsigned bound = 0;
+  if (getsockname(fd, (struct sockaddr *)&ss, &len) == 0) {
+    if (ss.ss_family == AF_INET) {
+      struct sockaddr_in *in = (struct sockaddr_in *)&ss;
+      inet_ntop(AF_INET, &in->sin_addr, host, sizeof host);
+      bound = ntohs(in->sin_port);
+      snprintf(addr, cap, "%s:%u", host, bound);
+    } else if (ss.ss_family == AF_INET6) {
+      struct sockaddr_in6 *in6 = (struct sockaddr_in6 *)&ss;
+      inet_ntop(AF_INET6, &in6->sin6_addr, host, sizeof host);
+      bound = ntohs(in6->sin6_port);
+      snprintf(addr, cap, "[%s]:%u", host, bound);
+    }
+  }
+  return fd;
+}
+
+/* ---- the subcommand ---- */
+
+static void wait_inflight(fg_server *srv, double seconds) {
+  struct timespec ts;
+  clock_gettime(CLOCK_REALTIME, &ts);
+  ts.tv_sec += (time_t)seconds + 1;
+  pthread_mutex_lock(&srv->inflight_lock);
+  while (srv->inflight > 0) {
+    if (pthread_cond_timedwait(&srv->inflight_cv, &srv->inflight_lock, &ts) ==
+        ETIMEDOUT)
+      break;
+  }
+  int left = srv->inflight;
+  pthread_mutex_unlock(&srv->inflight_lock);
+  if (left > 0)
+    fg_log_msg(FG_LOG_WARN, "stopping", "%d request(s) still in flight; "
+               "closing their connections", left);
+}
+
+int fg_serve_command(int argc, char **argv) {
+  fg_server *srv = calloc(1, sizeof *srv);
+  if (!srv) {
+    fprintf(stderr, "feasgate serve: out of memory\n");
+    return 1;
+  }
+  char err[512];
+  int rc = fg_http_config_parse(argc, argv, &srv->cfg, err, sizeof err);
+  if (rc != 0) {
+    free(srv);
+    if (rc > 0) return 0; /* --help */
+    fprintf(stderr, "feasgate serve: %s\n", err);
+    return 3;
+  }
+  fg_log_set_level(srv->cfg.log_level);
+  pthread_mutex_init(&srv->inflight_lock, NULL);
+  pthread_cond_init(&srv->inflight_cv, NULL);
+  atomic_init(&srv->stopping, false);
+
+  /* Every thread started from here on inherits this mask; the signals
+   * are taken by sigwait below. */
+  sigset_t stop_signals;
+  sigemptyset(&stop_signals);
+  sigaddset(&stop_signals, SIGINT);
+  sigaddset(&stop_signals, SIGTERM);
+  pthread_sigmask(SIG_BLOCK, &stop_signals, NULL);
+  signal(SIGPIPE, SIG_IGN);
+
+  int status = 1;
+  int listen_fd = -1;
+  fg_problem p;
+  fg_problem_init(&p);
+  char address[INET6_ADDRSTRLEN + 16] = "";
+
+  listen_fd = bind_listener(&srv->cfg, address, sizeof address, err,
+                            sizeof err);
+  if (listen_fd < 0) {
+    fg_log_msg(FG_LOG_ERROR, "start_failed", "%s", err);
+    goto cleanup;
+  }
+  if (fg_store_open(srv->cfg.store, &srv->store, &p) != FG_OK) {
+    fg_log_msg(FG_LOG_ERROR, "start_failed", "--store %s: %s", srv->cfg.store,
+               p.detail);
+    goto cleanup;
+  }
+  int interrupted = 0;
+  fg_problem_init(&p);
+  if (fg_store_mark_interrupted(srv->store, &interrupted, &p) != FG_OK) {
+    fg_log_msg(FG_LOG_ERROR, "start_failed", "%s", p.detail);
+    goto cleanup;
+  }
+  fg_problem_init(&p);
+  if (fg_pool_new(srv->cfg.workers, srv->cfg.chunk, srv->cfg.queue,
+                  &srv->pool, &p) != FG_OK) {
+    fg_log_msg(FG_LOG_ERROR, "start_failed", "worker pool: %s", p.detail);
+    goto cleanup;
+  }
+  srv->cache = fg_model_cache_new(FG_HTTP_MODEL_CACHE);
+  if (!srv->cache) {
+    fg_log_msg(FG_LOG_ERROR, "start_failed", "model cache: out of memory");
+    goto cleanup;
+  }
+  fg_problem_init(&p);
+  if (fg_registry_new(srv->store, &srv->registry, &p) != FG_OK) {
+    fg_log_msg(FG_LOG_ERROR, "start_failed", "%s", p.detail);
+    goto cleanup;
+  }
+  srv->daemon = MHD_start_daemon(
+      MHD_USE_INTERNAL_POLLING_THREAD | MHD_USE_THREAD_PER_CONNECTION |
+          MHD_USE_POLL | MHD_USE_ERROR_LOG | MHD_USE_ITC,
+      0, NULL, NULL, on_request, srv, MHD_OPTION_LISTEN_SOCKET, listen_fd,
+      MHD_OPTION_NOTIFY_COMPLETED, on_completed, srv,
+      MHD_OPTION_EXTERNAL_LOGGER, on_mhd_log, srv,
+      MHD_OPTION_CONNECTION_TIMEOUT, (unsigned int)FG_HTTP_IDLE_TIMEOUT_S,
+      MHD_OPTION_CONNECTION_LIMIT, (unsigned int)FG_HTTP_CONNECTIONS_MAX,
+      MHD_OPTION_CONNECTION_MEMORY_LIMIT, (size_t)FG_HTTP_CONN_MEMORY,
+      MHD_OPTION_END);
+  if (!srv->daemon) {
+    fg_log_msg(FG_LOG_ERROR, "start_failed",
+               "the HTTP daemon did not start on %s", address);
+    goto cleanup;
+  }
+  listen_fd = -1; /* the daemon owns it until quiesce hands it back */
+
+  cJSON *ev = cJSON_CreateObject();
+  if (ev) {
+    cJSON_AddStringToObject(ev, "event", "listening");
+    cJSON_AddStringToObject(ev, "address", address);
+    cJSON_AddStringToObject(ev, "store", srv->cfg.store);
+    cJSON_AddNumberToObject(ev, "workers", srv->cfg.workers);
+    cJSON_AddNumberToObject(ev, "pid", (double)getpid());
+    /* Written whatever --log-level says: clients wait for this line. */
+    fg_log_force(FG_LOG_INFO, ev);
+  }
+  if (interrupted > 0)
+    fg_log_msg(FG_LOG_WARN, "interrupted_checks",
+               "%d check(s) left running by an earlier process are now "
+               "marked interrupted",
+               interrupted);
+
+  int sig = 0;
+  while (sigwait(&stop_signals, &sig) != 0) {
+  }
+  fg_log_msg(FG_LOG_INFO, "stopping", "signal %d: no new connections; "
+             "finishing requests in flight", sig);
+  atomic_store(&srv->stopping, true);
+  MHD_socket lfd = MHD_quiesce_daemon(srv->daemon);
+  if (lfd != MHD_INVALID_SOCKET) close(lfd);
+  wait_inflight(srv, srv->cfg.limits.max_wait_s + FG_HTTP_DRAIN_MARGIN_S);
+  MHD_stop_daemon(srv->daemon);
+  srv->daemon = NULL;
+  fg_registry_shutdown(srv->registry, srv->cfg.grace_s);
+  status = 0;
+
+cleanup:
+  if (srv->daemon) MHD_stop_daemon(srv->daemon);
+  if (listen_fd >= 0) close(listen_fd);
+  fg_registry_free(srv->registry);
+  if (srv->pool) fg_pool_free(srv->pool);
+  if (srv->cache) fg_model_cache_free(srv->cache);
+  fg_store_close(srv->store);
+  if (status == 0) fg_log_msg(FG_LOG_INFO, "stopped", "clean stop");
+  pthread_cond_destroy(&srv->inflight_cv);
+  pthread_mutex_destroy(&srv->inflight_lock);
+  free(srv);
+  /* The stop signals stay blocked: a second SIGTERM arriving now must not
+   * turn a clean stop into a killed process. */
+  return status;
+}
