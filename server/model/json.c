@@ -131,13 +131,20 @@ static bool is_hex(unsigned char c) {
   return is_digit(c) || (c >= 'a' && c <= 'f') || (c >= 'A' && c <= 'F');
 }
 
+/* Where a scan ended, for telling a truncated text from a wrong byte. */
+typedef struct scan_end {
+  int depth;           /* containers still open */
+  bool in_string;      /* inside a string */
+  size_t string_start; /* offset of that string's opening quote */
+} scan_end;
+
 /* Scan s[0, len) for the faults listed at the top; only faults before
- * `limit` matter to the caller, so the scan stops there. On return *depth
- * and *in_string tell whether the text ended inside something. */
+ * `limit` matter to the caller, so the scan stops there. */
 static void scan_text(const unsigned char *s, size_t len, size_t limit,
-                      scan_error *e, int *depth_out, bool *in_string_out) {
+                      scan_error *e, scan_end *end) {
   int depth = 0;
   bool in_string = false;
+  size_t string_start = 0;
   size_t i = 0;
   while (i < len && i < limit && i < e->offset) {
     unsigned char c = s[i];
@@ -180,6 +187,7 @@ static void scan_text(const unsigned char *s, size_t len, size_t limit,
     }
     if (c == '"') {
       in_string = true;
+      string_start = i;
     } else if (c == '[' || c == '{') {
       if (++depth > FG_JSON_MAX_DEPTH) {
         char msg[96];
@@ -203,8 +211,7 @@ static void scan_text(const unsigned char *s, size_t len, size_t limit,
     }
     i++;
   }
-  *depth_out = depth;
-  *in_string_out = in_string;
+  *end = (scan_end){depth, in_string, string_start};
 }
 
 static void describe_byte(char *buf, size_t cap, const unsigned char *s,
@@ -318,9 +325,8 @@ fg_status fg_json_parse(const char *text, size_t len, cJSON **out,
   if (stop > len) stop = len;
 
   scan_error e = {.offset = SIZE_MAX};
-  int depth = 0;
-  bool in_string = false;
-  scan_text(s, len, root ? stop : len, &e, &depth, &in_string);
+  scan_end se;
+  scan_text(s, len, root ? stop : len, &e, &se);
   if (e.offset != SIZE_MAX && (root || e.offset <= stop)) {
     cJSON_Delete(root);
     if (p) p->byte_offset = (long long)e.offset;
@@ -331,10 +337,18 @@ fg_status fg_json_parse(const char *text, size_t len, cJSON **out,
                           e.message, e.offset);
   }
   if (!root) {
-    /* cJSON points at the last byte when it ran out of input; the scan
-     * tells a text that ended inside a string or container apart. */
+    /* cJSON points at the last byte when it ran out of input, and at the
+     * opening quote's successor for a string that never closes; the full
+     * scan (which found nothing) tells those cases apart. */
     size_t at = stop;
-    if (at + 1 >= len && (depth > 0 || in_string)) at = len;
+    if (e.offset == SIZE_MAX && se.in_string && se.string_start <= stop) {
+      if (p) p->byte_offset = (long long)len;
+      return fg_problem_add(p, FG_EINVAL, "", 0,
+                            "malformed JSON at byte %zu: the end of the input "
+                            "inside the string that starts at byte %zu",
+                            len, se.string_start);
+    }
+    if (e.offset == SIZE_MAX && at + 1 >= len && se.depth > 0) at = len;
     char what[32];
     describe_byte(what, sizeof what, s, len, at);
     if (p) p->byte_offset = (long long)at;
