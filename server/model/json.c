@@ -1,32 +1,30 @@
 /*
  * model/json.c -- fg_json_parse: JSON with feasgate's rules, on top of cJSON.
  *
- * cJSON builds the tree; it is more lenient than RFC 8259 in a few places,
- * so a byte scan (scan_text) runs over the part cJSON accepted and refuses:
+ * Two passes. First a recognizer (scan_text) reads the bytes against the
+ * RFC 8259 grammar and refuses, with the exact byte offset of the fault:
+ *   - any syntax error, including text after the value;
  *   - bytes that are not UTF-8 (overlong forms, surrogates, > U+10FFFF,
- *     truncated sequences), checked here because cJSON copies bytes blindly;
- *   - raw control characters inside strings, and control characters other
- *     than the four JSON white-space ones outside them (cJSON skips every
- *     byte <= 0x20 as white space);
- *   - the escape \u0000, which cannot live in a C string;
- *   - numbers outside the JSON grammar (cJSON hands "01", "1." and "-01" to
- *     strtod);
- *   - nesting deeper than FG_JSON_MAX_DEPTH (counted at the brackets, so
- *     the error has a byte offset and cJSON is never asked to go deep).
- * Then the tree is walked for what only the tree shows: duplicate keys in
- * any object (named by JSON Pointer) and numbers that overflowed to an
- * infinity.
+ *     truncated sequences): cJSON copies string bytes blindly;
+ *   - raw control characters in strings, control characters other than the
+ *     four JSON white-space ones outside them (cJSON skips every byte
+ *     <= 0x20), lone surrogate escapes, and \u0000 (a C string cannot
+ *     hold it);
+ *   - numbers outside the JSON grammar ("01", "1.", "-01" would reach
+ *     strtod through cJSON);
+ *   - nesting deeper than FG_JSON_MAX_DEPTH (FG_ELIMIT, limit json_depth).
+ * The recognizer keeps its containers on a fixed stack, so hostile input
+ * costs one linear pass and no recursion. cJSON then builds the tree from
+ * text already known to be valid; it reports where it stopped through the
+ * end pointer of cJSON_ParseWithLengthOpts (the global error pointer is
+ * shared by all threads and never read), which only matters when it runs
+ * out of memory or meets a number longer than its internal buffer.
+ * Last, the tree is walked for what only the tree shows: duplicate keys in
+ * any object (each named once by JSON Pointer) and numbers that overflow a
+ * double ("1e999"), also named by pointer.
  *
- * Error offsets: cJSON reports where it stopped through the end pointer of
- * cJSON_ParseWithLengthOpts (the global error pointer is never read, it is
- * shared by all threads). The scan reports the first offending byte; when
- * both fail, the earlier offset wins, so the message names the first fault
- * in the text. The scan's view of "inside a string" is exact over any
- * prefix that cJSON accepted, which is the only part whose errors are used.
- *
- * A UTF-8 byte order mark at the start is ignored (cJSON skips it; RFC 8259
- * allows a parser to). A NULL return from cJSON caused by running out of
- * memory is indistinguishable from a syntax error and reported as one.
+ * A UTF-8 byte order mark at the very start is ignored (RFC 8259 allows a
+ * parser to; cJSON skips it too). Body size is the HTTP layer's concern.
  *
  * Thread use: reentrant; no global state is read or written here.
  */
@@ -131,97 +129,240 @@ static bool is_hex(unsigned char c) {
   return is_digit(c) || (c >= 'a' && c <= 'f') || (c >= 'A' && c <= 'F');
 }
 
-/* Where a scan ended, for telling a truncated text from a wrong byte. */
-typedef struct scan_end {
-  int depth;           /* containers still open */
-  bool in_string;      /* inside a string */
-  size_t string_start; /* offset of that string's opening quote */
-} scan_end;
+static unsigned hex4(const unsigned char *s) {
+  unsigned v = 0;
+  for (int k = 0; k < 4; k++) {
+    unsigned char c = s[k];
+    v = v * 16u + (unsigned)(is_digit(c) ? c - '0' : (c | 0x20) - 'a' + 10);
+  }
+  return v;
+}
 
-/* Scan s[0, len) for the faults listed at the top; only faults before
- * `limit` matter to the caller, so the scan stops there. */
-static void scan_text(const unsigned char *s, size_t len, size_t limit,
-                      scan_error *e, scan_end *end) {
-  int depth = 0;
-  bool in_string = false;
-  size_t string_start = 0;
-  size_t i = 0;
-  while (i < len && i < limit && i < e->offset) {
+/* The string whose opening quote is at s[i]. Returns the offset past the
+ * closing quote, or SIZE_MAX after recording the fault. */
+static size_t scan_string(const unsigned char *s, size_t i, size_t len,
+                          scan_error *e) {
+  size_t open = i++;
+  char msg[112];
+  while (i < len) {
     unsigned char c = s[i];
+    if (c == '"') return i + 1;
     if (c >= 0x80) {
       size_t n = utf8_sequence(s, i, len);
       if (n == 0) {
         scan_fail(e, i, FG_EINVAL, "invalid UTF-8");
-        break;
+        return SIZE_MAX;
       }
       i += n;
       continue;
     }
-    if (in_string) {
-      if (c == '"') {
-        in_string = false;
-      } else if (c == '\\') {
-        if (i + 1 < len && s[i + 1] == 'u') {
-          if (i + 5 < len && s[i + 2] == '0' && s[i + 3] == '0' &&
-              s[i + 4] == '0' && s[i + 5] == '0') {
-            scan_fail(e, i, FG_EINVAL,
-                      "the escape \\u0000 is not allowed in a string");
-            break;
-          }
-          size_t k = i + 2;
-          while (k < len && k < i + 6 && is_hex(s[k])) k++;
-          i = k;
-          continue;
-        }
-        i += 2;
-        continue;
-      } else if (c < 0x20) {
-        char msg[96];
-        snprintf(msg, sizeof msg,
-                 "unescaped control character U+%04X in a string", c);
-        scan_fail(e, i, FG_EINVAL, msg);
-        break;
-      }
+    if (c < 0x20) {
+      snprintf(msg, sizeof msg,
+               "unescaped control character U+%04X in a string", c);
+      scan_fail(e, i, FG_EINVAL, msg);
+      return SIZE_MAX;
+    }
+    if (c != '\\') {
       i++;
       continue;
     }
-    if (c == '"') {
-      in_string = true;
-      string_start = i;
-    } else if (c == '[' || c == '{') {
-      if (++depth > FG_JSON_MAX_DEPTH) {
+    if (i + 1 >= len) break;
+    unsigned char x = s[i + 1];
+    if (strchr("\"\\/bfnrt", x) && x != '\0') {
+      i += 2;
+      continue;
+    }
+    if (x != 'u') {
+      scan_fail(e, i, FG_EINVAL,
+                "invalid escape in a string (expected one of \\\" \\\\ \\/ "
+                "\\b \\f \\n \\r \\t \\uXXXX)");
+      return SIZE_MAX;
+    }
+    if (len - i < 6 || !is_hex(s[i + 2]) || !is_hex(s[i + 3]) ||
+        !is_hex(s[i + 4]) || !is_hex(s[i + 5])) {
+      scan_fail(e, i, FG_EINVAL, "invalid \\u escape: expected 4 hex digits");
+      return SIZE_MAX;
+    }
+    unsigned u = hex4(s + i + 2);
+    if (u == 0) {
+      scan_fail(e, i, FG_EINVAL,
+                "the escape \\u0000 is not allowed in a string");
+      return SIZE_MAX;
+    }
+    if (u >= 0xdc00 && u <= 0xdfff) {
+      scan_fail(e, i, FG_EINVAL,
+                "invalid \\u escape: a low surrogate without a high one");
+      return SIZE_MAX;
+    }
+    if (u >= 0xd800 && u <= 0xdbff) {
+      if (len - i < 12 || s[i + 6] != '\\' || s[i + 7] != 'u' ||
+          !is_hex(s[i + 8]) || !is_hex(s[i + 9]) || !is_hex(s[i + 10]) ||
+          !is_hex(s[i + 11]) || hex4(s + i + 8) < 0xdc00 ||
+          hex4(s + i + 8) > 0xdfff) {
+        scan_fail(e, i, FG_EINVAL,
+                  "invalid \\u escape: a high surrogate must be followed by "
+                  "a \\u low surrogate");
+        return SIZE_MAX;
+      }
+      i += 12;
+      continue;
+    }
+    i += 6;
+  }
+  snprintf(msg, sizeof msg,
+           "the end of the input inside the string that starts at byte %zu",
+           open);
+  scan_fail(e, len, FG_EINVAL, msg);
+  return SIZE_MAX;
+}
+
+/* What the recognizer expects next. */
+typedef enum scan_state {
+  EXPECT_VALUE,          /* top level, after ':' or after ',' in an array */
+  EXPECT_VALUE_OR_CLOSE, /* after '[' */
+  EXPECT_KEY_OR_CLOSE,   /* after '{' */
+  EXPECT_KEY,            /* after ',' in an object */
+  EXPECT_COLON,
+  EXPECT_COMMA_OR_CLOSE, /* after a value inside a container */
+  EXPECT_END             /* after the top-level value */
+} scan_state;
+
+static void unexpected(scan_error *e, const unsigned char *s, size_t len,
+                       size_t at, const char *expected) {
+  char msg[112];
+  if (at >= len)
+    snprintf(msg, sizeof msg, "expected %s, found the end of the input",
+             expected);
+  else if (s[at] >= 0x21 && s[at] < 0x7f)
+    snprintf(msg, sizeof msg, "expected %s, found '%c'", expected, s[at]);
+  else
+    snprintf(msg, sizeof msg, "expected %s, found byte 0x%02x", expected,
+             s[at]);
+  scan_fail(e, at, FG_EINVAL, msg);
+}
+
+/* Recognize s[0, len) as exactly one JSON value (RFC 8259) with the rules
+ * listed at the top, recording the first fault and its offset. Containers
+ * are kept on a stack of FG_JSON_MAX_DEPTH entries, so the scan uses no
+ * recursion and bounded memory whatever the input. */
+static void scan_text(const unsigned char *s, size_t len, scan_error *e) {
+  char stack[FG_JSON_MAX_DEPTH];
+  int depth = 0;
+  scan_state st = EXPECT_VALUE;
+  size_t i = 0;
+  if (len >= 3 && s[0] == 0xef && s[1] == 0xbb && s[2] == 0xbf) i = 3;
+  for (;;) {
+    while (i < len && (s[i] == ' ' || s[i] == '\t' || s[i] == '\n' ||
+                       s[i] == '\r'))
+      i++;
+    if (i >= len) {
+      if (st != EXPECT_END)
+        unexpected(e, s, len, len,
+                   st == EXPECT_COLON ? "':'"
+                   : st == EXPECT_COMMA_OR_CLOSE
+                       ? (stack[depth - 1] == '[' ? "',' or ']'"
+                                                  : "',' or '}'")
+                   : st == EXPECT_KEY || st == EXPECT_KEY_OR_CLOSE
+                       ? "a string key"
+                       : "a value");
+      return;
+    }
+    unsigned char c = s[i];
+    if (c < 0x20) {
+      char msg[96];
+      snprintf(msg, sizeof msg, "unexpected control character U+%04X", c);
+      scan_fail(e, i, FG_EINVAL, msg);
+      return;
+    }
+    switch (st) {
+    case EXPECT_END:
+      unexpected(e, s, len, i, "the end of the input after the value");
+      return;
+    case EXPECT_COLON:
+      if (c != ':') {
+        unexpected(e, s, len, i, "':' after the key");
+        return;
+      }
+      i++;
+      st = EXPECT_VALUE;
+      continue;
+    case EXPECT_COMMA_OR_CLOSE: {
+      char close = stack[depth - 1] == '[' ? ']' : '}';
+      if (c == ',') {
+        i++;
+        st = close == ']' ? EXPECT_VALUE : EXPECT_KEY;
+        continue;
+      }
+      if (c != (unsigned char)close) {
+        unexpected(e, s, len, i, close == ']' ? "',' or ']'" : "',' or '}'");
+        return;
+      }
+      i++;
+      depth--;
+      st = depth ? EXPECT_COMMA_OR_CLOSE : EXPECT_END;
+      continue;
+    }
+    case EXPECT_KEY_OR_CLOSE:
+    case EXPECT_KEY:
+      if (c == '}' && st == EXPECT_KEY_OR_CLOSE) {
+        i++;
+        depth--;
+        st = depth ? EXPECT_COMMA_OR_CLOSE : EXPECT_END;
+        continue;
+      }
+      if (c != '"') {
+        unexpected(e, s, len, i,
+                   st == EXPECT_KEY ? "a string key" : "a string key or '}'");
+        return;
+      }
+      i = scan_string(s, i, len, e);
+      if (i == SIZE_MAX) return;
+      st = EXPECT_COLON;
+      continue;
+    case EXPECT_VALUE_OR_CLOSE:
+      if (c == ']') {
+        i++;
+        depth--;
+        st = depth ? EXPECT_COMMA_OR_CLOSE : EXPECT_END;
+        continue;
+      }
+      /* fall through */
+    case EXPECT_VALUE:
+      break;
+    }
+    /* a value */
+    if (c == '[' || c == '{') {
+      if (depth == FG_JSON_MAX_DEPTH) {
         char msg[96];
         snprintf(msg, sizeof msg, "nesting deeper than %d levels",
                  FG_JSON_MAX_DEPTH);
         scan_fail(e, i, FG_ELIMIT, msg);
-        break;
+        return;
       }
-    } else if (c == ']' || c == '}') {
-      depth--;
-    } else if (c == '-' || is_digit(c)) {
-      size_t next = scan_number(s, i, len, e);
-      if (e->offset != SIZE_MAX) break;
-      i = next;
+      stack[depth++] = (char)c;
+      i++;
+      st = c == '[' ? EXPECT_VALUE_OR_CLOSE : EXPECT_KEY_OR_CLOSE;
       continue;
-    } else if (c < 0x20 && c != '\t' && c != '\n' && c != '\r') {
-      char msg[96];
-      snprintf(msg, sizeof msg, "unexpected control character U+%04X", c);
-      scan_fail(e, i, FG_EINVAL, msg);
-      break;
     }
-    i++;
+    if (c == '"') {
+      i = scan_string(s, i, len, e);
+      if (i == SIZE_MAX) return;
+    } else if (c == '-' || is_digit(c)) {
+      i = scan_number(s, i, len, e);
+      if (e->offset != SIZE_MAX) return;
+    } else if (len - i >= 4 && memcmp(s + i, "true", 4) == 0) {
+      i += 4;
+    } else if (len - i >= 5 && memcmp(s + i, "false", 5) == 0) {
+      i += 5;
+    } else if (len - i >= 4 && memcmp(s + i, "null", 4) == 0) {
+      i += 4;
+    } else {
+      unexpected(e, s, len, i, st == EXPECT_VALUE_OR_CLOSE ? "a value or ']'"
+                                                           : "a value");
+      return;
+    }
+    st = depth ? EXPECT_COMMA_OR_CLOSE : EXPECT_END;
   }
-  *end = (scan_end){depth, in_string, string_start};
-}
-
-static void describe_byte(char *buf, size_t cap, const unsigned char *s,
-                          size_t len, size_t at) {
-  if (at >= len)
-    snprintf(buf, cap, "the end of the input");
-  else if (s[at] >= 0x21 && s[at] < 0x7f)
-    snprintf(buf, cap, "'%c'", s[at]);
-  else
-    snprintf(buf, cap, "byte 0x%02x", s[at]);
 }
 
 /* ---- the tree walk: duplicate keys and infinities ---- */
@@ -319,56 +460,34 @@ fg_status fg_json_parse(const char *text, size_t len, cJSON **out,
                           "empty body: expected a JSON value");
   }
 
-  const char *end = text;
-  cJSON *root = cJSON_ParseWithLengthOpts(text, len, &end, 0);
-  size_t stop = (size_t)(end - text); /* where cJSON stopped */
-  if (stop > len) stop = len;
-
   scan_error e = {.offset = SIZE_MAX};
-  scan_end se;
-  scan_text(s, len, root ? stop : len, &e, &se);
-  if (e.offset != SIZE_MAX && (root || e.offset <= stop)) {
-    cJSON_Delete(root);
+  scan_text(s, len, &e);
+  if (e.offset != SIZE_MAX) {
     if (p) p->byte_offset = (long long)e.offset;
     if (e.status == FG_ELIMIT)
       return fg_problem_limit(p, "", "json_depth", FG_JSON_MAX_DEPTH,
                               "%s at byte %zu", e.message, e.offset);
-    return fg_problem_add(p, FG_EINVAL, "", 0, "malformed JSON: %s at byte %zu",
-                          e.message, e.offset);
+    return fg_problem_add(p, FG_EINVAL, "", 0, "malformed JSON at byte %zu: %s",
+                          e.offset, e.message);
   }
-  if (!root) {
-    /* cJSON points at the last byte when it ran out of input, and at the
-     * opening quote's successor for a string that never closes; the full
-     * scan (which found nothing) tells those cases apart. */
-    size_t at = stop;
-    if (e.offset == SIZE_MAX && se.in_string && se.string_start <= stop) {
-      if (p) p->byte_offset = (long long)len;
-      return fg_problem_add(p, FG_EINVAL, "", 0,
-                            "malformed JSON at byte %zu: the end of the input "
-                            "inside the string that starts at byte %zu",
-                            len, se.string_start);
-    }
-    if (e.offset == SIZE_MAX && at + 1 >= len && se.depth > 0) at = len;
-    char what[32];
-    describe_byte(what, sizeof what, s, len, at);
-    if (p) p->byte_offset = (long long)at;
-    return fg_problem_add(p, FG_EINVAL, "", 0,
-                          "malformed JSON at byte %zu: unexpected %s", at,
-                          what);
-  }
+
+  /* The text is valid JSON; cJSON only builds the tree. Should it still
+   * stop early (out of memory, or a number longer than its 63-byte
+   * buffer), the place it stopped is reported. */
+  const char *end = text;
+  cJSON *root = cJSON_ParseWithLengthOpts(text, len, &end, 0);
+  size_t stop = end >= text ? (size_t)(end - text) : 0;
   size_t k = stop;
-  while (k < len && (s[k] == ' ' || s[k] == '\t' || s[k] == '\n' ||
-                     s[k] == '\r'))
+  while (root && k < len &&
+         (s[k] == ' ' || s[k] == '\t' || s[k] == '\n' || s[k] == '\r'))
     k++;
-  if (k < len) {
+  if (!root || k != len) {
     cJSON_Delete(root);
-    char what[32];
-    describe_byte(what, sizeof what, s, len, k);
-    if (p) p->byte_offset = (long long)k;
+    if (p) p->byte_offset = (long long)stop;
     return fg_problem_add(p, FG_EINVAL, "", 0,
-                          "malformed JSON at byte %zu: expected the end of "
-                          "the input after the value, found %s",
-                          k, what);
+                          "JSON value could not be read at byte %zu (a "
+                          "number too long, or out of memory)",
+                          stop);
   }
 
   fg_model_ctx cx = {.p = p};

@@ -151,6 +151,23 @@ static void test_parse(void) {
   CHECK_INT(parse_fails("{\"a\": 1,, \"b\": 2}", FG_EINVAL, &p), 8);
   CHECK(p.nitems == 1 && strstr(p.items[0].message, "byte 8"));
   CHECK_INT(parse_fails("[1, 2,]", FG_EINVAL, &p), 6);
+  CHECK_INT(parse_fails("{\"a\" 1}", FG_EINVAL, &p), 5);
+  CHECK(strstr(p.items[0].message, "':'") != NULL);
+  CHECK_INT(parse_fails("{1: 2}", FG_EINVAL, &p), 1);
+  CHECK_INT(parse_fails("{\"a\": 1}}", FG_EINVAL, &p), 8);
+  CHECK_INT(parse_fails("{\"a\": 1,}", FG_EINVAL, &p), 8);
+  CHECK_INT(parse_fails("[1 2]", FG_EINVAL, &p), 3);
+  CHECK_INT(parse_fails("tru", FG_EINVAL, &p), 0);
+  CHECK_INT(parse_fails("[truex]", FG_EINVAL, &p), 5);
+  CHECK_INT(parse_fails("[", FG_EINVAL, &p), 1);
+  CHECK_INT(parse_fails("\"abc", FG_EINVAL, &p), 4);
+  CHECK(strstr(p.items[0].message, "starts at byte 0") != NULL);
+  CHECK_INT(parse_fails("[\xc3\xa9]", FG_EINVAL, &p), 1);
+  CHECK_INT(parse_fails("[\"\\x\"]", FG_EINVAL, &p), 2);
+  CHECK_INT(parse_fails("[\"\\u12G4\"]", FG_EINVAL, &p), 2);
+  CHECK_INT(parse_fails("[\"\\udc00\"]", FG_EINVAL, &p), 2);
+  CHECK_INT(parse_fails("[\"\\ud800x\"]", FG_EINVAL, &p), 2);
+  CHECK_INT(parse_fails("[\"\\ud800\\u0041\"]", FG_EINVAL, &p), 2);
   /* trailing garbage */
   CHECK_INT(parse_fails("{} x", FG_EINVAL, &p), 3);
   CHECK_INT(parse_fails("[1] [2]", FG_EINVAL, &p), 4);
@@ -183,8 +200,9 @@ static void test_parse(void) {
   CHECK_INT(parse_fails("[-01]", FG_EINVAL, &p), 3);
   CHECK_INT(parse_fails("[1.]", FG_EINVAL, &p), 3);
   CHECK_INT(parse_fails("[1.e5]", FG_EINVAL, &p), 3);
-  parse_fails("[-]", FG_EINVAL, &p);
-  CHECK_INT(parse_fails("[1e]", FG_EINVAL, &p), 2);
+  CHECK_INT(parse_fails("[-]", FG_EINVAL, &p), 2);
+  CHECK_INT(parse_fails("[1e]", FG_EINVAL, &p), 3);
+  CHECK_INT(parse_fails("[1.5.2]", FG_EINVAL, &p), 4);
   parse_fails("[NaN]", FG_EINVAL, &p);
   parse_fails("[Infinity]", FG_EINVAL, &p);
   parse_fails("[+1]", FG_EINVAL, &p);
