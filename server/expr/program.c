@@ -82,6 +82,14 @@ static bool select_live(fg_expr_compiler *c, int **order, int *norder,
   return true;
 }
 
+/* Setup instructions come first in `order`: the prefix whose results do
+ * not depend on an uncertain input. */
+static int nsetup_of(const int *order, int norder, const fg_expr_compiler *c) {
+  int n = 0;
+  while (n < norder && !c->vregs[c->insns[order[n]].d].uncertain) n++;
+  return n;
+}
+
 static int take_reg(alloc_state *as) {
   return as->nfree ? as->freelist[--as->nfree] : as->next++;
 }
@@ -104,6 +112,16 @@ static bool allocate(fg_expr_compiler *c, const int *order, int norder,
   for (int i = 0; i < c->nrows; i++)
     as->lastuse[c->rows[i].excess_reg] = INT_MAX;
   if (c->objective.reg >= 0) as->lastuse[c->objective.reg] = INT_MAX;
+  /* Inputs keep their places for good. A setup value the block stream
+   * reads must survive every run of the block stream, so it is never
+   * released either (the block stream runs once per block, and a reuse
+   * would overwrite the broadcast value before the next block reads it). */
+  for (int v = 0; v < nin && v < c->nvregs; v++) as->lastuse[v] = INT_MAX;
+  for (int i = 0; i < nsetup_of(order, norder, c); i++) {
+    int d = c->insns[order[i]].d;
+    if (as->lastuse[d] >= nsetup_of(order, norder, c))
+      as->lastuse[d] = INT_MAX;
+  }
   as->nfree = 0;
   as->next = nin;
   for (int i = 0; i < norder; i++) {
