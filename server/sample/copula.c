@@ -64,7 +64,8 @@ static fg_status parse_members(fg_copula *cop, int index, const cJSON *m,
       continue;
     }
     int i = 0;
-    while (i < ninputs && strcmp(inputs[i].name, x->valuestring) != 0) i++;
+    while (i < ninputs && strcmp(inputs[i].name, x->valuestring) != 0)
+      i++;
     if (i == ninputs) {
       st = fg_problem_add(p, FG_EINVAL, eptr, 0,
                           "expected the name of an uncertain input, found "
@@ -111,7 +112,8 @@ static fg_status parse_members(fg_copula *cop, int index, const cJSON *m,
   int t = 0;
   for (const cJSON *x = m->child; x; x = x->next) {
     int i = 0;
-    while (strcmp(inputs[i].name, x->valuestring) != 0) i++;
+    while (strcmp(inputs[i].name, x->valuestring) != 0)
+      i++;
     for (int e = 0; e < inputs[i].size; e++, t++) {
       cop->dims[t] = inputs[i].base + e;
       cop->input[t] = i;
@@ -201,15 +203,15 @@ static fg_status parse_full(fg_copula *cop, const cJSON *c, const char *ptr,
   if (fg_family_matrix_symmetric(cop->chol, d, ptr, "correlation", p) != 0)
     return FG_EINVAL;
   int k = fg_family_cholesky(cop->chol, d);
-  if (k < 0) return fg_problem_set(p, FG_ENOMEM, "out of memory factoring %s", ptr);
+  if (k < 0)
+    return fg_problem_set(p, FG_ENOMEM, "out of memory factoring %s", ptr);
   if (k > 0) return not_pd(p, ptr, k);
   return FG_OK;
 }
 
-fg_status fg_sampler_copula_parse(fg_copula *cop, int index,
-                                  const cJSON *entry, const char *ptr,
-                                  fg_input *inputs, int ninputs,
-                                  fg_problem *p) {
+fg_status fg_sampler_copula_parse(fg_copula *cop, int index, const cJSON *entry,
+                                  const char *ptr, fg_input *inputs,
+                                  int ninputs, fg_problem *p) {
   char mptr[FG_POINTER_MAX];
   memset(cop, 0, sizeof *cop);
   if (!cJSON_IsObject(entry))
@@ -222,8 +224,7 @@ fg_status fg_sampler_copula_parse(fg_copula *cop, int index,
     return bad(p, FG_EINVAL, ptr,
                "expected a member 'kind' (\"gaussian_copula\"), found none");
   if (!cJSON_IsString(kind))
-    return fg_problem_add(p, FG_EINVAL, mptr, 0,
-                          "expected a string, found %s",
+    return fg_problem_add(p, FG_EINVAL, mptr, 0, "expected a string, found %s",
                           fg_family_json_type(kind));
   if (strcmp(kind->valuestring, "t_copula") == 0)
     return bad(p, FG_EUNSUPPORTED, mptr,
@@ -275,9 +276,8 @@ void fg_sampler_copula_free(fg_copula *cop) {
 }
 
 void fg_sampler_copula_draw(const fg_copula *cop, const fg_input *inputs,
-                            gsl_rng *r, double *z, double *x,
-                            fg_stream_key key, uint64_t first, int n,
-                            double *out, size_t stride) {
+                            gsl_rng *r, double *z, double *x, fg_stream_key key,
+                            uint64_t first, int n, double *out, size_t stride) {
   int d = cop->d;
   for (int t = 0; t < n; t++) {
     uint64_t sample = first + (uint64_t)t;
@@ -290,7 +290,8 @@ void fg_sampler_copula_draw(const fg_copula *cop, const fg_input *inputs,
       for (int i = 0; i < d; i++) {
         const double *li = cop->chol + (size_t)i * (size_t)d;
         double s = 0;
-        for (int k = 0; k <= i; k++) s += li[k] * z[k];
+        for (int k = 0; k <= i; k++)
+          s += li[k] * z[k];
         x[i] = s;
       }
       break;
@@ -304,7 +305,8 @@ void fg_sampler_copula_draw(const fg_copula *cop, const fg_input *inputs,
     }
     case FG_CORR_AR1:
       x[0] = z[0];
-      for (int i = 1; i < d; i++) x[i] = cop->r * x[i - 1] + cop->rc * z[i];
+      for (int i = 1; i < d; i++)
+        x[i] = cop->r * x[i - 1] + cop->rc * z[i];
       break;
     }
     for (int k = 0; k < d; k++) {

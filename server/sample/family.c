@@ -30,6 +30,9 @@
  * uniform; gamma, beta/pert, student_t, poisson and binomial use GSL's
  * samplers; discrete and weighted scenario tables use Walker's alias table
  * (gsl_ran_discrete). Copula members always go through fg_family_icdf.
+ * GSL's ziggurat takes one 32-bit word per attempt (8 bits for the layer,
+ * 24 for the abscissa), ample for Monte Carlo frequencies; tail-sensitive
+ * uses (truncation, copulas) use 53-bit uniforms and inverse CDFs.
  *
  * Domain choices: poisson accepts mean >= 0 (0 is the point mass at 0);
  * counts must fit GSL's unsigned int, hence the caps below.
@@ -68,8 +71,8 @@ static const char *const p_poisson[] = {"mean", NULL};
 static const char *const p_binomial[] = {"trials", "p", NULL};
 static const char *const p_discrete[] = {"values", "weights", NULL};
 static const char *const p_empirical[] = {"data", NULL};
-static const char *const p_mvn[] = {"mean", "covariance", "sd",
-                                    "correlation", NULL};
+static const char *const p_mvn[] = {"mean", "covariance", "sd", "correlation",
+                                    NULL};
 static const char *const p_scenario[] = {"rows", "weights", NULL};
 
 static const fg_family_def families[] = {
@@ -117,8 +120,9 @@ static void need_positive(fg_params *c, const char *name, const double *v,
                           int strict) {
   for (int e = 0; e < c->size; e++) {
     if (strict ? v[e] > 0 : v[e] >= 0) continue;
-    fg_family_param_error(c, FG_EINVAL, name, e, "expected %s %s 0, found %.15g",
-                          name, strict ? ">" : ">=", v[e]);
+    fg_family_param_error(c, FG_EINVAL, name, e,
+                          "expected %s %s 0, found %.15g", name,
+                          strict ? ">" : ">=", v[e]);
     if (!is_array(c, name)) break;
   }
 }
@@ -129,8 +133,8 @@ static void need_less(fg_params *c, const char *lo_name, const double *lo,
     if (strict ? lo[e] < hi[e] : lo[e] <= hi[e]) continue;
     fg_family_param_error(c, FG_EINVAL, hi_name, e,
                           "expected %s %s %s, found %s = %.15g, %s = %.15g",
-                          lo_name, strict ? "<" : "<=", hi_name, lo_name,
-                          lo[e], hi_name, hi[e]);
+                          lo_name, strict ? "<" : "<=", hi_name, lo_name, lo[e],
+                          hi_name, hi[e]);
     if (!is_array(c, lo_name) && !is_array(c, hi_name)) break;
   }
 }
@@ -154,7 +158,9 @@ static void need_integer(fg_params *c, const char *name, const double *v) {
   }
 }
 
-static int integral(double v) { return v == floor(v) && fabs(v) < 9007199254740992.0; }
+static int integral(double v) {
+  return v == floor(v) && fabs(v) < 9007199254740992.0;
+}
 
 static int read_vec(fg_params *c, fg_input *in, int slot, const char *name,
                     int required, double dflt) {
@@ -209,8 +215,8 @@ static void parse_lognormal(fg_input *in, fg_params *c) {
   double **v = in->par;
   int logform = fg_family_param_present(c, "meanlog") ||
                 fg_family_param_present(c, "sdlog");
-  int natform = fg_family_param_present(c, "mean") ||
-                fg_family_param_present(c, "sd");
+  int natform =
+      fg_family_param_present(c, "mean") || fg_family_param_present(c, "sd");
   if (logform && natform) {
     fg_problem_add(c->p, FG_EINVAL, c->ptr, 0,
                    "expected either meanlog and sdlog or mean and sd (of "
@@ -394,7 +400,8 @@ static int parse_weights(fg_input *in, fg_params *c, int count,
     free(w);
     return -1;
   }
-  for (int k = 0; k < nw; k++) w[k] /= total;
+  for (int k = 0; k < nw; k++)
+    w[k] /= total;
   in->weights = w;
   in->alias = gsl_ran_discrete_preproc((size_t)nw, w);
   if (!in->alias) {
@@ -459,10 +466,10 @@ static void parse_discrete(fg_input *in, fg_params *c) {
 }
 
 static void parse_empirical(fg_input *in, fg_params *c) {
-  if (fg_family_param_list(c, "data", 1, &in->values, &in->nvalues) < 0)
-    return;
+  if (fg_family_param_list(c, "data", 1, &in->values, &in->nvalues) < 0) return;
   int allint = 1;
-  for (int k = 0; k < in->nvalues; k++) allint &= integral(in->values[k]);
+  for (int k = 0; k < in->nvalues; k++)
+    allint &= integral(in->values[k]);
   set_integer(in, allint);
 }
 
@@ -480,10 +487,9 @@ static void parse_scenario_table(fg_input *in, fg_params *c) {
   }
   int nrows = cJSON_IsArray(rows) ? cJSON_GetArraySize(rows) : 0;
   if (nrows < 1) {
-    fg_problem_add(c->p, FG_EINVAL, ptr, 0,
-                   "expected a non-empty array of rows, found %s",
-                   cJSON_IsArray(rows) ? "an empty array"
-                                       : fg_family_json_type(rows));
+    fg_problem_add(
+        c->p, FG_EINVAL, ptr, 0, "expected a non-empty array of rows, found %s",
+        cJSON_IsArray(rows) ? "an empty array" : fg_family_json_type(rows));
     c->st = c->st ? c->st : FG_EINVAL;
     return;
   }
@@ -514,11 +520,16 @@ static void parse_scenario_table(fg_input *in, fg_params *c) {
       continue;
     }
     if (!cJSON_IsArray(row) || cJSON_GetArraySize(row) != in->size) {
-      fg_problem_add(c->p, FG_EINVAL, rptr, 0,
-                     "expected a row of %d numbers (the input's size), "
-                     "found %s of %d",
-                     in->size, fg_family_json_type(row),
-                     cJSON_IsArray(row) ? cJSON_GetArraySize(row) : 1);
+      if (cJSON_IsArray(row))
+        fg_problem_add(c->p, FG_EINVAL, rptr, 0,
+                       "expected a row of %d numbers (the input's size), "
+                       "found an array of %d",
+                       in->size, cJSON_GetArraySize(row));
+      else
+        fg_problem_add(c->p, FG_EINVAL, rptr, 0,
+                       "expected a row of %d numbers (the input's size), "
+                       "found %s",
+                       in->size, fg_family_json_type(row));
       c->st = c->st ? c->st : FG_EINVAL;
       return;
     }
@@ -527,10 +538,9 @@ static void parse_scenario_table(fg_input *in, fg_params *c) {
       if (!cJSON_IsNumber(x) || !isfinite(x->valuedouble)) {
         char eptr[FG_POINTER_MAX];
         fg_pointer_index(eptr, sizeof eptr, rptr, e);
-        fg_problem_add(c->p, FG_EINVAL, eptr, 0,
-                       "expected a finite number, found %s",
-                       cJSON_IsNumber(x) ? "one out of range"
-                                         : fg_family_json_type(x));
+        fg_problem_add(
+            c->p, FG_EINVAL, eptr, 0, "expected a finite number, found %s",
+            cJSON_IsNumber(x) ? "one out of range" : fg_family_json_type(x));
         c->st = c->st ? c->st : FG_EINVAL;
         return;
       }
@@ -549,11 +559,16 @@ static void parse_scenario_table(fg_input *in, fg_params *c) {
 
 fg_status fg_family_parse(fg_input *in, const fg_family_def *def,
                           const cJSON *dist, const char *ptr, fg_problem *p) {
-  fg_params c = {.dist = dist, .ptr = ptr, .size = in->size,
-                 .family = def->name, .p = p, .st = FG_OK};
+  fg_params c = {.dist = dist,
+                 .ptr = ptr,
+                 .size = in->size,
+                 .family = def->name,
+                 .p = p,
+                 .st = FG_OK};
   in->kind = def->kind;
   in->family = def->name;
-  in->parbuf = calloc((size_t)FG_FAMILY_NPAR * (size_t)in->size, sizeof(double));
+  in->parbuf =
+      calloc((size_t)FG_FAMILY_NPAR * (size_t)in->size, sizeof(double));
   in->integer = calloc((size_t)in->size, 1);
   if (!in->parbuf || !in->integer)
     return fg_problem_set(p, FG_ENOMEM, "out of memory reading %s", ptr);
@@ -645,11 +660,15 @@ static double count_icdf(fg_cdf_fn P, fg_cdf_fn Q, const double *par,
   if (start > kmax) start = kmax;
   unsigned int k = (unsigned int)start;
   if (u < 0.5) {
-    while (k > 0 && P(k - 1, par) >= u) k--;
-    while (k < kmax && P(k, par) < u) k++;
+    while (k > 0 && P(k - 1, par) >= u)
+      k--;
+    while (k < kmax && P(k, par) < u)
+      k++;
   } else {
-    while (k > 0 && Q(k - 1, par) <= uc) k--;
-    while (k < kmax && Q(k, par) > uc) k++;
+    while (k > 0 && Q(k - 1, par) <= uc)
+      k--;
+    while (k < kmax && Q(k, par) > uc)
+      k++;
   }
   return (double)k;
 }
@@ -674,8 +693,7 @@ double fg_family_icdf(const fg_input *in, int e, double u, double uc) {
   case FG_FAM_NORMAL:
     if (in->truncated) return v[0][e] + v[1][e] * trunc_std(in, e, u, uc);
     return v[0][e] + v[1][e] * std_quantile(u, uc);
-  case FG_FAM_LOGNORMAL:
-    return exp(v[0][e] + v[1][e] * std_quantile(u, uc));
+  case FG_FAM_LOGNORMAL: return exp(v[0][e] + v[1][e] * std_quantile(u, uc));
   case FG_FAM_UNIFORM:
     return u < 0.5 ? v[0][e] + (v[1][e] - v[0][e]) * u
                    : v[1][e] - (v[1][e] - v[0][e]) * uc;
@@ -690,8 +708,7 @@ double fg_family_icdf(const fg_input *in, int e, double u, double uc) {
                        : gsl_cdf_beta_Qinv(uc, v[2][e], v[3][e]);
     return v[0][e] + v[1][e] * x;
   }
-  case FG_FAM_EXPONENTIAL:
-    return v[0][e] * (u < 0.5 ? -log1p(-u) : -log(uc));
+  case FG_FAM_EXPONENTIAL: return v[0][e] * (u < 0.5 ? -log1p(-u) : -log(uc));
   case FG_FAM_GAMMA:
     return u < 0.5 ? gsl_cdf_gamma_Pinv(u, v[0][e], v[1][e])
                    : gsl_cdf_gamma_Qinv(uc, v[0][e], v[1][e]);
@@ -704,8 +721,7 @@ double fg_family_icdf(const fg_input *in, int e, double u, double uc) {
     double par[1] = {v[0][e]};
     double mu = par[0];
     return count_icdf(pois_P, pois_Q, par, mu, sqrt(mu),
-                      mu > 0 ? 1 / sqrt(mu) : 0, FG_COUNT_PARAM_MAX * 2, u,
-                      uc);
+                      mu > 0 ? 1 / sqrt(mu) : 0, FG_COUNT_PARAM_MAX * 2, u, uc);
   }
   case FG_FAM_BINOMIAL: {
     double par[2] = {v[0][e], v[1][e]};
@@ -731,14 +747,12 @@ double fg_family_draw(const fg_input *in, int e, gsl_rng *r) {
   case FG_FAM_NORMAL:
     if (!in->truncated) return v[0][e] + v[1][e] * fg_stream_normal(r);
     break;
-  case FG_FAM_LOGNORMAL:
-    return exp(v[0][e] + v[1][e] * fg_stream_normal(r));
+  case FG_FAM_LOGNORMAL: return exp(v[0][e] + v[1][e] * fg_stream_normal(r));
   case FG_FAM_PERT:
   case FG_FAM_BETA:
     return v[0][e] + v[1][e] * gsl_ran_beta(r, v[2][e], v[3][e]);
   case FG_FAM_GAMMA: return gsl_ran_gamma(r, v[0][e], v[1][e]);
-  case FG_FAM_STUDENT_T:
-    return v[1][e] + v[2][e] * gsl_ran_tdist(r, v[0][e]);
+  case FG_FAM_STUDENT_T: return v[1][e] + v[2][e] * gsl_ran_tdist(r, v[0][e]);
   case FG_FAM_POISSON: return (double)gsl_ran_poisson(r, v[0][e]);
   case FG_FAM_BINOMIAL:
     return (double)gsl_ran_binomial(r, v[1][e], (unsigned int)v[0][e]);

@@ -32,8 +32,8 @@
 #include <stdlib.h>
 #include <string.h>
 
-int fg_family_matrix_read(const cJSON *m, int n, const char *ptr,
-                          double *out, fg_problem *p) {
+int fg_family_matrix_read(const cJSON *m, int n, const char *ptr, double *out,
+                          fg_problem *p) {
   if (!cJSON_IsArray(m) || cJSON_GetArraySize(m) != n) {
     if (cJSON_IsArray(m))
       fg_problem_add(p, FG_EINVAL, ptr, 0,
@@ -42,8 +42,8 @@ int fg_family_matrix_read(const cJSON *m, int n, const char *ptr,
                      n, n, cJSON_GetArraySize(m));
     else
       fg_problem_add(p, FG_EINVAL, ptr, 0,
-                     "expected a matrix of %d rows of %d numbers, found %s",
-                     n, n, fg_family_json_type(m));
+                     "expected a matrix of %d rows of %d numbers, found %s", n,
+                     n, fg_family_json_type(m));
     return -1;
   }
   int i = 0, bad = 0;
@@ -70,9 +70,9 @@ int fg_family_matrix_read(const cJSON *m, int n, const char *ptr,
       }
       char eptr[FG_POINTER_MAX];
       fg_pointer_index(eptr, sizeof eptr, rptr, j);
-      fg_problem_add(p, FG_EINVAL, eptr, 0, "expected a finite number, found %s",
-                     cJSON_IsNumber(x) ? "one out of range"
-                                       : fg_family_json_type(x));
+      fg_problem_add(
+          p, FG_EINVAL, eptr, 0, "expected a finite number, found %s",
+          cJSON_IsNumber(x) ? "one out of range" : fg_family_json_type(x));
       bad = 1;
     }
   }
@@ -106,14 +106,16 @@ static int first_bad_minor(double *a, int n) {
     double *rk = a + (size_t)k * (size_t)n;
     double diag = rk[k];
     double piv = diag;
-    for (int j = 0; j < k; j++) piv -= rk[j] * rk[j];
+    for (int j = 0; j < k; j++)
+      piv -= rk[j] * rk[j];
     if (!(piv > 16.0 * DBL_EPSILON * (double)n * fabs(diag))) return k + 1;
     double l = sqrt(piv);
     rk[k] = l;
     for (int i = k + 1; i < n; i++) {
       double *ri = a + (size_t)i * (size_t)n;
       double s = ri[k];
-      for (int j = 0; j < k; j++) s -= ri[j] * rk[j];
+      for (int j = 0; j < k; j++)
+        s -= ri[j] * rk[j];
       ri[k] = s / l;
     }
   }
@@ -186,7 +188,9 @@ fg_status fg_family_mvn_parse(fg_input *in, fg_params *c) {
     fg_problem_add(c->p, FG_EINVAL, c->ptr, 0,
                    "family 'multivariate_normal' needs 'covariance' or "
                    "both 'sd' and 'correlation', found %s",
-                   has_sd ? "only sd" : has_cor ? "only correlation" : "none");
+                   has_sd    ? "only sd"
+                   : has_cor ? "only correlation"
+                             : "none");
     return c->st = c->st ? c->st : FG_EINVAL;
   }
   const char *mname = has_cov ? "covariance" : "correlation";
@@ -235,8 +239,8 @@ fg_status fg_family_mvn_parse(fg_input *in, fg_params *c) {
 }
 
 void fg_family_mvn_draw(const fg_input *in, gsl_rng *r, double *z,
-                        fg_stream_key key, uint64_t first, int n,
-                        double *out, size_t stride) {
+                        fg_stream_key key, uint64_t first, int n, double *out,
+                        size_t stride) {
   int d = in->size;
   for (int t = 0; t < n; t++) {
     for (int k = 0; k < d; k++) {
@@ -246,7 +250,8 @@ void fg_family_mvn_draw(const fg_input *in, gsl_rng *r, double *z,
     for (int i = 0; i < d; i++) {
       const double *li = in->chol + (size_t)i * (size_t)d;
       double x = in->par[0][i];
-      for (int k = 0; k <= i; k++) x += li[k] * z[k];
+      for (int k = 0; k <= i; k++)
+        x += li[k] * z[k];
       out[(size_t)(in->base + i) * stride + (size_t)t] = x;
     }
   }

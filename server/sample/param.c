@@ -51,8 +51,8 @@ void fg_family_param_pointer(const fg_params *c, const char *name, int e,
   }
 }
 
-void fg_family_param_error(fg_params *c, fg_status st, const char *name,
-                           int e, const char *fmt, ...) {
+void fg_family_param_error(fg_params *c, fg_status st, const char *name, int e,
+                           const char *fmt, ...) {
   char ptr[FG_POINTER_MAX];
   char msg[FG_MESSAGE_MAX];
   va_list ap;
@@ -97,13 +97,15 @@ int fg_family_param_vec(fg_params *c, const char *name, double *out,
       if (c->st == FG_OK) c->st = FG_EINVAL;
       return -1;
     }
-    for (int e = 0; e < c->size; e++) out[e] = dflt;
+    for (int e = 0; e < c->size; e++)
+      out[e] = dflt;
     return 0;
   }
   if (cJSON_IsNumber(v)) {
     double x;
     if (finite_number(c, v, ptr, &x) != 0) return -1;
-    for (int e = 0; e < c->size; e++) out[e] = x;
+    for (int e = 0; e < c->size; e++)
+      out[e] = x;
     return 1;
   }
   if (!cJSON_IsArray(v)) {
@@ -164,8 +166,8 @@ int fg_family_param_list(fg_params *c, const char *name, int required,
   }
   if (n > FG_TABLE_CELLS_MAX) {
     fg_problem_limit(c->p, ptr, "table_cells", FG_TABLE_CELLS_MAX,
-                     "expected at most %d values, found %d",
-                     FG_TABLE_CELLS_MAX, n);
+                     "expected at most %d values, found %d", FG_TABLE_CELLS_MAX,
+                     n);
     if (c->st == FG_OK) c->st = FG_ELIMIT;
     return -1;
   }

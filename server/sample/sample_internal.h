@@ -92,14 +92,14 @@ typedef struct fg_input {
    * nvalues rows of `size`) */
   double *values;
   int nvalues;
-  double *weights;         /* normalised, for scenario_table / discrete */
+  double *weights; /* normalised, for scenario_table / discrete */
   gsl_ran_discrete_t *alias;
   /* discrete inverse CDF: support sorted ascending with P(X <= v_k) and
    * P(X > v_k) */
   double *sorted, *cdf_lo, *cdf_hi;
-  double *chol;            /* mvn: lower Cholesky factor, size x size */
-  unsigned char *integer;  /* per element: always integer valued */
-  int copula;              /* index of its dependence entry, or -1 */
+  double *chol;           /* mvn: lower Cholesky factor, size x size */
+  unsigned char *integer; /* per element: always integer valued */
+  int copula;             /* index of its dependence entry, or -1 */
 } fg_input;
 
 /* Reading parameters (param.c). */
@@ -117,8 +117,8 @@ const char *fg_family_json_type(const struct cJSON *v);
  * an array (e < 0: the member itself). */
 void fg_family_param_pointer(const fg_params *c, const char *name, int e,
                              char *buf, size_t cap);
-void fg_family_param_error(fg_params *c, fg_status st, const char *name,
-                           int e, const char *fmt, ...)
+void fg_family_param_error(fg_params *c, fg_status st, const char *name, int e,
+                           const char *fmt, ...)
     __attribute__((format(printf, 5, 6)));
 int fg_family_param_present(const fg_params *c, const char *name);
 /* A number or an array of `size` numbers into out[size]. Returns 1 when
@@ -169,31 +169,33 @@ int fg_family_matrix_symmetric(const double *a, int n, const char *ptr,
 int fg_family_cholesky(double *a, int n);
 fg_status fg_family_mvn_parse(fg_input *in, fg_params *c);
 void fg_family_mvn_draw(const fg_input *in, gsl_rng *r, double *z,
-                        fg_stream_key key, uint64_t first, int n,
-                        double *out, size_t stride);
+                        fg_stream_key key, uint64_t first, int n, double *out,
+                        size_t stride);
 
 /* Dependence entries (copula.c). */
-typedef enum fg_corr_form { FG_CORR_FULL, FG_CORR_EQUAL, FG_CORR_AR1 } fg_corr_form;
+typedef enum fg_corr_form {
+  FG_CORR_FULL,
+  FG_CORR_EQUAL,
+  FG_CORR_AR1
+} fg_corr_form;
 
 typedef struct fg_copula {
-  int d;           /* dimensions tied */
-  int *dims;       /* their sampler dimensions, in member order */
-  int *input;      /* input index of each */
-  int *elem;       /* element of that input */
+  int d;      /* dimensions tied */
+  int *dims;  /* their sampler dimensions, in member order */
+  int *input; /* input index of each */
+  int *elem;  /* element of that input */
   fg_corr_form form;
-  double *chol;    /* FULL: d x d lower factor */
-  double *c, *dd;  /* EQUAL: factor column value and diagonal */
-  double r, rc;    /* AR1: r and sqrt(1 - r^2) */
+  double *chol;   /* FULL: d x d lower factor */
+  double *c, *dd; /* EQUAL: factor column value and diagonal */
+  double r, rc;   /* AR1: r and sqrt(1 - r^2) */
 } fg_copula;
 
 fg_status fg_sampler_copula_parse(fg_copula *cop, int index,
                                   const struct cJSON *entry, const char *ptr,
-                                  fg_input *inputs, int ninputs,
-                                  fg_problem *p);
+                                  fg_input *inputs, int ninputs, fg_problem *p);
 void fg_sampler_copula_free(fg_copula *cop);
 void fg_sampler_copula_draw(const fg_copula *cop, const fg_input *inputs,
-                            gsl_rng *r, double *z, double *x,
-                            fg_stream_key key, uint64_t first, int n,
-                            double *out, size_t stride);
+                            gsl_rng *r, double *z, double *x, fg_stream_key key,
+                            uint64_t first, int n, double *out, size_t stride);
 
 #endif

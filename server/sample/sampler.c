@@ -33,6 +33,7 @@
 #include <cjson/cJSON.h>
 #include <gsl/gsl_errno.h>
 
+#include <math.h>
 #include <pthread.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -44,10 +45,10 @@ struct fg_sampler {
   int ncopulas;
   fg_copula *copulas;
   int dims;
-  char **columns;     /* per dimension, into colbuf */
+  char **columns; /* per dimension, into colbuf */
   char *colbuf;
   unsigned char *integer; /* per dimension */
-  int joint_max;      /* largest joint block (mvn size, copula d), >= 1 */
+  int joint_max;          /* largest joint block (mvn size, copula d), >= 1 */
 };
 
 struct fg_sample_scratch {
@@ -56,12 +57,16 @@ struct fg_sample_scratch {
 };
 
 static pthread_once_t gsl_once = PTHREAD_ONCE_INIT;
-static void gsl_quiet(void) { gsl_set_error_handler_off(); }
+static void gsl_quiet(void) {
+  gsl_set_error_handler_off();
+}
 
 void fg_sampler_free(fg_sampler *s) {
   if (!s) return;
-  for (int i = 0; i < s->ninputs; i++) fg_family_free(&s->inputs[i]);
-  for (int i = 0; i < s->ncopulas; i++) fg_sampler_copula_free(&s->copulas[i]);
+  for (int i = 0; i < s->ninputs; i++)
+    fg_family_free(&s->inputs[i]);
+  for (int i = 0; i < s->ncopulas; i++)
+    fg_sampler_copula_free(&s->copulas[i]);
   free(s->inputs);
   free(s->copulas);
   free(s->columns);
@@ -92,11 +97,15 @@ static fg_status parse_input(fg_input *in, const cJSON *u, const char *ptr,
   fg_pointer_join(mptr, sizeof mptr, ptr, "size");
   if (size) {
     double v = cJSON_IsNumber(size) ? size->valuedouble : 0;
-    if (!cJSON_IsNumber(size) || v != (double)(long)v || v < 1)
+    if (!cJSON_IsNumber(size) || !(v >= 1) || v != floor(v)) {
+      if (cJSON_IsNumber(size))
+        return fg_problem_add(p, FG_EINVAL, mptr, 0,
+                              "expected an integer size >= 1, found %.15g",
+                              size->valuedouble);
       return fg_problem_add(p, FG_EINVAL, mptr, 0,
                             "expected an integer size >= 1, found %s",
-                            cJSON_IsNumber(size) ? "another number"
-                                                 : fg_family_json_type(size));
+                            fg_family_json_type(size));
+    }
     if (v > FG_VECTOR_MAX)
       return fg_problem_limit(p, mptr, "vector_length", FG_VECTOR_MAX,
                               "expected a size of at most %d, found %.0f",
@@ -241,7 +250,9 @@ fail:
   return st;
 }
 
-int fg_sampler_dims(const fg_sampler *s) { return s->dims; }
+int fg_sampler_dims(const fg_sampler *s) {
+  return s->dims;
+}
 
 const char *fg_sampler_column(const fg_sampler *s, int j) {
   return j >= 0 && j < s->dims ? s->columns[j] : NULL;
@@ -310,6 +321,6 @@ void fg_sampler_draw(const fg_sampler *s, fg_sample_scratch *w, uint64_t seed,
     }
   }
   for (int c = 0; c < s->ncopulas; c++)
-    fg_sampler_copula_draw(&s->copulas[c], s->inputs, r, w->z, w->x, key,
-                           first, n, out, stride);
+    fg_sampler_copula_draw(&s->copulas[c], s->inputs, r, w->z, w->x, key, first,
+                           n, out, stride);
 }

@@ -21,8 +21,8 @@
  */
 #include "sample/sample_internal.h"
 
-#include <Random123/philox.h>
 #include <Random123/gsl_microrng.h>
+#include <Random123/philox.h>
 
 #include <gsl/gsl_randist.h>
 
@@ -36,12 +36,14 @@ fg_stream_key fg_stream_key_make(uint64_t seed, fg_stream stream) {
   return k;
 }
 
-gsl_rng *fg_stream_rng_new(void) { return gsl_rng_alloc(gsl_rng_fg_philox_micro); }
+gsl_rng *fg_stream_rng_new(void) {
+  return gsl_rng_alloc(gsl_rng_fg_philox_micro);
+}
 
 void fg_stream_reset(gsl_rng *r, fg_stream_key key, uint64_t sample,
                      uint32_t slot) {
-  philox4x32_ctr_t c = {{(uint32_t)(sample & 0xffffffffu),
-                         (uint32_t)(sample >> 32), slot, 0}};
+  philox4x32_ctr_t c = {
+      {(uint32_t)(sample & 0xffffffffu), (uint32_t)(sample >> 32), slot, 0}};
   philox4x32_key_t k = {{key.k0, key.k1}};
   fg_philox_micro_reset(r, c, k);
 }
@@ -58,4 +60,6 @@ void fg_stream_u01(gsl_rng *r, double *u, double *uc) {
   *uc = (double)((UINT64_C(1) << 54) - 2 * m - 1) * scale;
 }
 
-double fg_stream_normal(gsl_rng *r) { return gsl_ran_gaussian_ziggurat(r, 1.0); }
+double fg_stream_normal(gsl_rng *r) {
+  return gsl_ran_gaussian_ziggurat(r, 1.0);
+}
