@@ -50,7 +50,8 @@ fg_model_cache *fg_model_cache_new(int capacity) {
 
 void fg_model_cache_free(fg_model_cache *c) {
   if (!c) return;
-  for (int i = 0; i < c->capacity; i++) fg_model_unref(c->slots[i].model);
+  for (int i = 0; i < c->capacity; i++)
+    fg_model_unref(c->slots[i].model);
   pthread_mutex_destroy(&c->lock);
   free(c->slots);
   free(c);

@@ -42,7 +42,8 @@ static void put_bytes(text_buf *b, const char *s, size_t n) {
   if (b->oom) return;
   if (b->len + n + 1 > b->cap) {
     size_t cap = b->cap ? b->cap : 256;
-    while (b->len + n + 1 > cap) cap *= 2;
+    while (b->len + n + 1 > cap)
+      cap *= 2;
     char *d = realloc(b->data, cap);
     if (!d) {
       b->oom = true;
@@ -56,7 +57,9 @@ static void put_bytes(text_buf *b, const char *s, size_t n) {
   b->data[b->len] = '\0';
 }
 
-static void put_str(text_buf *b, const char *s) { put_bytes(b, s, strlen(s)); }
+static void put_str(text_buf *b, const char *s) {
+  put_bytes(b, s, strlen(s));
+}
 
 static void put_string(text_buf *b, const char *s) {
   put_bytes(b, "\"", 1);
@@ -126,7 +129,8 @@ static void put_value(text_buf *b, const cJSON *v);
 
 static void put_object(text_buf *b, const cJSON *v) {
   int n = 0;
-  for (const cJSON *c = v->child; c; c = c->next) n++;
+  for (const cJSON *c = v->child; c; c = c->next)
+    n++;
   put_bytes(b, "{", 1);
   if (n > 0) {
     member_ref *refs = malloc((size_t)n * sizeof *refs);

@@ -41,13 +41,19 @@ static void compile_expressions(const fg_model_plan *pl, fg_expr_compiler *c,
     fg_pointer_index(ptr, sizeof ptr, "/decisions", i);
     fg_status st = fg_expr_declare_decision(c, pl->decisions[i].name,
                                             pl->decisions[i].size, ptr, cx->p);
-    if (st != FG_OK) fg_model_note(cx, st), declared = false;
+    if (st != FG_OK) {
+      fg_model_note(cx, st);
+      declared = false;
+    }
   }
   for (int i = 0; i < pl->nuncertain; i++) {
     fg_pointer_index(ptr, sizeof ptr, "/uncertain", i);
     fg_status st = fg_expr_declare_uncertain(c, pl->inputs[i].name,
                                              pl->inputs[i].size, ptr, cx->p);
-    if (st != FG_OK) fg_model_note(cx, st), declared = false;
+    if (st != FG_OK) {
+      fg_model_note(cx, st);
+      declared = false;
+    }
   }
   if (!declared) return;
 
@@ -71,9 +77,9 @@ static void compile_expressions(const fg_model_plan *pl, fg_expr_compiler *c,
   for (int i = 0; i < pl->nconstraints; i++) {
     fg_pointer_index(ptr, sizeof ptr, "/constraints", i);
     fg_pointer_join(ptr, sizeof ptr, ptr, "require");
-    fg_model_note(cx, fg_expr_constraint(c, pl->constraints[i].name,
-                                         pl->constraints[i].require, ptr,
-                                         cx->p));
+    fg_model_note(cx,
+                  fg_expr_constraint(c, pl->constraints[i].name,
+                                     pl->constraints[i].require, ptr, cx->p));
   }
   if (pl->sense != FG_OBJECTIVE_NONE)
     fg_model_note(cx, fg_expr_objective(c, pl->sense, pl->objective,
@@ -158,8 +164,8 @@ fg_status fg_model_compile(const char *json, size_t len, fg_model **out,
   if (cx.first == FG_ENOMEM) goto done;
 
   if (plan.sampler_ok) {
-    fg_status sst = fg_sampler_build(plan.uncertain, plan.dependence, &sampler,
-                                     p);
+    fg_status sst =
+        fg_sampler_build(plan.uncertain, plan.dependence, &sampler, p);
     fg_model_note(&cx, sst);
     if (sst != FG_OK && sampler) {
       fg_sampler_free(sampler);

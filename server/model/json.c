@@ -75,7 +75,9 @@ static size_t utf8_sequence(const unsigned char *s, size_t i, size_t len) {
   return n;
 }
 
-static bool is_digit(unsigned char c) { return c >= '0' && c <= '9'; }
+static bool is_digit(unsigned char c) {
+  return c >= '0' && c <= '9';
+}
 
 /* Check the number token starting at s[i] against the JSON grammar
  *   -? (0 | [1-9][0-9]*) (. [0-9]+)? ([eE] [+-]? [0-9]+)?
@@ -96,7 +98,8 @@ static size_t scan_number(const unsigned char *s, size_t i, size_t len,
       return i;
     }
   } else {
-    while (i < len && is_digit(s[i])) i++;
+    while (i < len && is_digit(s[i]))
+      i++;
   }
   if (i < len && s[i] == '.') {
     i++;
@@ -105,7 +108,8 @@ static size_t scan_number(const unsigned char *s, size_t i, size_t len,
                 "malformed number: expected a digit after the decimal point");
       return i;
     }
-    while (i < len && is_digit(s[i])) i++;
+    while (i < len && is_digit(s[i]))
+      i++;
   }
   if (i < len && (s[i] == 'e' || s[i] == 'E')) {
     i++;
@@ -115,10 +119,11 @@ static size_t scan_number(const unsigned char *s, size_t i, size_t len,
                 "malformed number: expected a digit in the exponent");
       return i;
     }
-    while (i < len && is_digit(s[i])) i++;
+    while (i < len && is_digit(s[i]))
+      i++;
   }
-  if (i < len && (s[i] == '.' || s[i] == '+' || s[i] == '-' ||
-                  s[i] == 'e' || s[i] == 'E')) {
+  if (i < len && (s[i] == '.' || s[i] == '+' || s[i] == '-' || s[i] == 'e' ||
+                  s[i] == 'E')) {
     scan_fail(e, i, FG_EINVAL, "malformed number");
     return i;
   }
@@ -252,16 +257,15 @@ static void scan_text(const unsigned char *s, size_t len, scan_error *e) {
   size_t i = 0;
   if (len >= 3 && s[0] == 0xef && s[1] == 0xbb && s[2] == 0xbf) i = 3;
   for (;;) {
-    while (i < len && (s[i] == ' ' || s[i] == '\t' || s[i] == '\n' ||
-                       s[i] == '\r'))
+    while (i < len &&
+           (s[i] == ' ' || s[i] == '\t' || s[i] == '\n' || s[i] == '\r'))
       i++;
     if (i >= len) {
       if (st != EXPECT_END)
         unexpected(e, s, len, len,
                    st == EXPECT_COLON ? "':'"
                    : st == EXPECT_COMMA_OR_CLOSE
-                       ? (stack[depth - 1] == '[' ? "',' or ']'"
-                                                  : "',' or '}'")
+                       ? (stack[depth - 1] == '[' ? "',' or ']'" : "',' or '}'")
                    : st == EXPECT_KEY || st == EXPECT_KEY_OR_CLOSE
                        ? "a string key"
                        : "a value");
@@ -327,8 +331,7 @@ static void scan_text(const unsigned char *s, size_t len, scan_error *e) {
         continue;
       }
       /* fall through */
-    case EXPECT_VALUE:
-      break;
+    case EXPECT_VALUE: break;
     }
     /* a value */
     if (c == '[' || c == '{') {
@@ -357,8 +360,8 @@ static void scan_text(const unsigned char *s, size_t len, scan_error *e) {
     } else if (len - i >= 4 && memcmp(s + i, "null", 4) == 0) {
       i += 4;
     } else {
-      unexpected(e, s, len, i, st == EXPECT_VALUE_OR_CLOSE ? "a value or ']'"
-                                                           : "a value");
+      unexpected(e, s, len, i,
+                 st == EXPECT_VALUE_OR_CLOSE ? "a value or ']'" : "a value");
       return;
     }
     st = depth ? EXPECT_COMMA_OR_CLOSE : EXPECT_END;
@@ -393,7 +396,8 @@ static void report_duplicate(fg_model_ctx *cx, const char *base,
 static void check_duplicates(const cJSON *obj, const char *base,
                              fg_model_ctx *cx) {
   int n = 0;
-  for (const cJSON *c = obj->child; c; c = c->next) n++;
+  for (const cJSON *c = obj->child; c; c = c->next)
+    n++;
   if (n < 2) return;
   if (n <= 16) {
     int i = 0;

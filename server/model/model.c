@@ -27,8 +27,8 @@ void fg_model_note(fg_model_ctx *cx, fg_status st) {
   cx->errors++;
 }
 
-fg_status fg_model_error(fg_model_ctx *cx, const char *pointer,
-                         const char *fmt, ...) {
+fg_status fg_model_error(fg_model_ctx *cx, const char *pointer, const char *fmt,
+                         ...) {
   char msg[FG_MESSAGE_MAX];
   va_list ap;
   va_start(ap, fmt);
@@ -39,8 +39,7 @@ fg_status fg_model_error(fg_model_ctx *cx, const char *pointer,
 }
 
 fg_status fg_model_limit(fg_model_ctx *cx, const char *pointer,
-                         const char *name, double value, const char *fmt,
-                         ...) {
+                         const char *name, double value, const char *fmt, ...) {
   char msg[FG_MESSAGE_MAX];
   va_list ap;
   va_start(ap, fmt);
@@ -77,7 +76,8 @@ void fg_model_quote(char *dst, size_t cap, const char *s) {
       i++;
       continue;
     }
-    for (size_t k = 0; k < seq && u[i]; k++) dst[n++] = (char)u[i++];
+    for (size_t k = 0; k < seq && u[i]; k++)
+      dst[n++] = (char)u[i++];
   }
   if (u[i] && n + 3 < cap) {
     memcpy(dst + n, "...", 3);

@@ -6,7 +6,9 @@
  *   canonical.c  fg_json_canonical: the canonical text behind the digest
  *   sha256.c     fg_sha256_hex
  *   validate.c   member-by-member validation of a format-1 document into an
- *                fg_model_plan (no expression is compiled there)
+ *                fg_model_plan (no expression is compiled there), with
+ *   names.c      the checks every member shares and the one namespace, and
+ *   inputs.c     decisions, uncertain inputs, dependence
  *   document.c   fg_model_compile: parse, validate, build the sampler,
  *                compile the expressions, fill the fg_model
  *   model.c      reference counting, freeing, the summary as JSON
@@ -33,9 +35,8 @@ typedef struct fg_model_ctx {
 } fg_model_ctx;
 
 void fg_model_note(fg_model_ctx *cx, fg_status st);
-fg_status fg_model_error(fg_model_ctx *cx, const char *pointer,
-                         const char *fmt, ...)
-    __attribute__((format(printf, 3, 4)));
+fg_status fg_model_error(fg_model_ctx *cx, const char *pointer, const char *fmt,
+                         ...) __attribute__((format(printf, 3, 4)));
 fg_status fg_model_limit(fg_model_ctx *cx, const char *pointer,
                          const char *name, double value, const char *fmt, ...)
     __attribute__((format(printf, 5, 6)));
@@ -55,8 +56,8 @@ typedef struct fg_plan_uncertain {
 
 typedef struct fg_plan_definition {
   const char *name;
-  const char *value;          /* NULL when built from elements */
-  const char **elements;      /* nelements sources (malloc'd array) */
+  const char *value;     /* NULL when built from elements */
+  const char **elements; /* nelements sources (malloc'd array) */
   int nelements;
 } fg_plan_definition;
 
@@ -98,6 +99,34 @@ typedef struct fg_model_plan {
   bool names_ok;
   bool sampler_ok;
 } fg_model_plan;
+
+/* names.c: checks shared by every member. Each reports what it refuses
+ * and returns false / NULL then. `base` is the member object's pointer. */
+bool fg_model_check_members(const struct cJSON *obj, const char *base,
+                            const char *what, const char *const *allowed,
+                            const char *expected, fg_model_ctx *cx);
+bool fg_model_is_model_name(const char *s);
+void fg_model_missing(fg_model_ctx *cx, const char *base, const char *key,
+                      const char *expected);
+const char *fg_model_member_name(const struct cJSON *obj, const char *base,
+                                 fg_model_ctx *cx);
+bool fg_model_member_size(const struct cJSON *obj, const char *base, int *size,
+                          fg_model_ctx *cx);
+const char *fg_model_expression(const struct cJSON *v, const char *ptr,
+                                fg_model_ctx *cx);
+bool fg_model_members_array(const struct cJSON *v, const char *ptr,
+                            const char *what, int *count, fg_model_ctx *cx);
+bool fg_model_check_unique_names(const struct fg_model_plan *plan,
+                                 fg_model_ctx *cx);
+
+/* inputs.c: the decisions, uncertain and dependence arrays (arr may be
+ * NULL when the member is absent). */
+bool fg_model_validate_decisions(const struct cJSON *arr,
+                                 struct fg_model_plan *plan, fg_model_ctx *cx);
+bool fg_model_validate_uncertain(const struct cJSON *arr,
+                                 struct fg_model_plan *plan, fg_model_ctx *cx);
+bool fg_model_validate_dependence(const struct cJSON *arr,
+                                  struct fg_model_plan *plan, fg_model_ctx *cx);
 
 /* Validate every member of `doc` into `plan` (zeroed first). Returns FG_OK
  * or the first error status; errors are collected in cx. */

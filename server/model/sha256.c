@@ -69,7 +69,8 @@ void fg_sha256_hex(const void *data, size_t len, char hex[65]) {
                    0x510e527f, 0x9b05688c, 0x1f83d9ab, 0x5be0cd19};
   const unsigned char *msg = data;
   size_t full = len / 64;
-  for (size_t i = 0; i < full; i++) compress(h, msg + 64 * i);
+  for (size_t i = 0; i < full; i++)
+    compress(h, msg + 64 * i);
 
   /* tail: the remaining bytes, 0x80, zeros, the bit length (big-endian) */
   unsigned char tail[128] = {0};

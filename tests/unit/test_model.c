@@ -100,8 +100,7 @@ static void test_sha256(void) {
   fg_sha256_hex("", 0, hex);
   CHECK_STR(hex,
             "e3b0c44298fc1c149afbf4c8996fb92427ae41e4649b934ca495991b7852b855");
-  const char *m448 =
-      "abcdbcdecdefdefgefghfghighijhijkijkljklmklmnlmnomnopnopq";
+  const char *m448 = "abcdbcdecdefdefgefghfghighijhijkijkljklmklmnlmnomnopnopq";
   fg_sha256_hex(m448, strlen(m448), hex);
   CHECK_STR(hex,
             "248d6a61d20638b8e5c026930c3e6039a33ce45964ff2167f6ecedd419db06c1");
@@ -216,13 +215,17 @@ static void test_parse(void) {
   /* depth: FG_JSON_MAX_DEPTH containers are fine, one more is not */
   char deep[2 * FG_JSON_MAX_DEPTH + 8];
   size_t k = 0;
-  for (int i = 0; i < FG_JSON_MAX_DEPTH; i++) deep[k++] = '[';
-  for (int i = 0; i < FG_JSON_MAX_DEPTH; i++) deep[k++] = ']';
+  for (int i = 0; i < FG_JSON_MAX_DEPTH; i++)
+    deep[k++] = '[';
+  for (int i = 0; i < FG_JSON_MAX_DEPTH; i++)
+    deep[k++] = ']';
   deep[k] = '\0';
   parse_ok(deep);
   k = 0;
-  for (int i = 0; i < FG_JSON_MAX_DEPTH + 1; i++) deep[k++] = '[';
-  for (int i = 0; i < FG_JSON_MAX_DEPTH + 1; i++) deep[k++] = ']';
+  for (int i = 0; i < FG_JSON_MAX_DEPTH + 1; i++)
+    deep[k++] = '[';
+  for (int i = 0; i < FG_JSON_MAX_DEPTH + 1; i++)
+    deep[k++] = ']';
   deep[k] = '\0';
   CHECK_INT(parse_fails(deep, FG_ELIMIT, &p), FG_JSON_MAX_DEPTH);
   CHECK_STR(p.limit_name, "json_depth");
@@ -260,8 +263,9 @@ static void test_parse(void) {
 /* ---- fg_json_canonical ---- */
 
 static void test_canonical(void) {
-  check_canonical("{ \"b\" : 1 , \"a\" : [ 3 , { \"z\": null, \"y\": true } ] }",
-                  "{\"a\":[3,{\"y\":true,\"z\":null}],\"b\":1}");
+  check_canonical(
+      "{ \"b\" : 1 , \"a\" : [ 3 , { \"z\": null, \"y\": true } ] }",
+      "{\"a\":[3,{\"y\":true,\"z\":null}],\"b\":1}");
   /* byte order, not locale order: upper case first, then '_', lower */
   check_canonical("{\"b\":0,\"_\":0,\"B\":0,\"a\":0,\"\xc3\xa9\":0}",
                   "{\"B\":0,\"_\":0,\"a\":0,\"b\":0,\"\xc3\xa9\":0}");
@@ -283,8 +287,14 @@ static void test_canonical(void) {
   check_canonical("{\"a\":{},\"b\":[[]]}", "{\"a\":{},\"b\":[[]]}");
 
   /* every number printed reads back exactly */
-  double xs[] = {1.0 / 3, 2.0 / 3, 1e-300, 123.456, 6.02214076e23, -1e-5,
-                 4503599627370497.0, 0.1 + 0.2};
+  double xs[] = {1.0 / 3,
+                 2.0 / 3,
+                 1e-300,
+                 123.456,
+                 6.02214076e23,
+                 -1e-5,
+                 4503599627370497.0,
+                 0.1 + 0.2};
   for (size_t i = 0; i < sizeof xs / sizeof xs[0]; i++) {
     cJSON *n = cJSON_CreateNumber(xs[i]);
     char *s = fg_json_canonical(n, NULL);
@@ -312,7 +322,8 @@ static const char *valid_model =
     "{\"format\": 1, \"name\": \"unit-demo.v1\", \"title\": \"Unit demo\",\n"
     " \"description\": \"used by test_model\",\n"
     " \"decisions\": [\n"
-    "   {\"name\": \"x\", \"size\": 3, \"lower\": 0, \"upper\": [10, 20, 30]},\n"
+    "   {\"name\": \"x\", \"size\": 3, \"lower\": 0, \"upper\": [10, 20, "
+    "30]},\n"
     "   {\"name\": \"k\", \"lower\": 0, \"upper\": 5, \"integer\": true},\n"
     "   {\"name\": \"y\"}],\n"
     " \"uncertain\": [\n"
@@ -387,7 +398,7 @@ static void test_compile_valid(void) {
   CHECK_INT(s->uncertain_dims, 1);
   CHECK_INT(s->definitions, 2);
   CHECK_INT(s->constraints, 2);
-  CHECK_INT(s->rows, 4);              /* cap[0..2] and budget */
+  CHECK_INT(s->rows, 4);               /* cap[0..2] and budget */
   CHECK_INT(s->deterministic_rows, 1); /* budget has no random input */
   CHECK(s->objective);
 
@@ -396,8 +407,10 @@ static void test_compile_valid(void) {
   if (sj) {
     cJSON *rows = cJSON_GetObjectItemCaseSensitive(sj, "rows");
     CHECK(cJSON_IsNumber(rows) && rows->valuedouble == 4);
-    CHECK(cJSON_IsNumber(cJSON_GetObjectItemCaseSensitive(sj, "decision_dims")));
-    CHECK(cJSON_IsNumber(cJSON_GetObjectItemCaseSensitive(sj, "uncertain_dims")));
+    CHECK(
+        cJSON_IsNumber(cJSON_GetObjectItemCaseSensitive(sj, "decision_dims")));
+    CHECK(
+        cJSON_IsNumber(cJSON_GetObjectItemCaseSensitive(sj, "uncertain_dims")));
     CHECK(cJSON_IsNumber(
         cJSON_GetObjectItemCaseSensitive(sj, "deterministic_rows")));
     CHECK(cJSON_IsTrue(cJSON_GetObjectItemCaseSensitive(sj, "objective")));
@@ -558,8 +571,7 @@ static void test_compile_errors(void) {
   long_name[FG_NAME_MAX + 3] = '\0';
   char member[FG_NAME_MAX + 32];
   snprintf(member, sizeof member, "\"name\": %s", long_name);
-  edited_fails("\"name\": \"y\"", member, FG_ELIMIT, "/decisions/2/name",
-               &p);
+  edited_fails("\"name\": \"y\"", member, FG_ELIMIT, "/decisions/2/name", &p);
   CHECK_STR(p.limit_name, "name_length");
   /* the same 65 letters as a model name: too long */
   edited_fails("\"unit-demo.v1\"", long_name, FG_EINVAL, "/name", &p);
@@ -578,8 +590,7 @@ static void test_compile_errors(void) {
   if (i >= 0) CHECK(strstr(p.items[i].message, "found 2") != NULL);
   edited_fails("\"format\": 1", "\"format\": \"1\"", FG_EINVAL, "/format", &p);
   edited_fails("\"format\": 1, ", "", FG_EINVAL, "/format", &p);
-  i = edited_fails("\"unit-demo.v1\"", "\"Unit Demo\"", FG_EINVAL, "/name",
-                   &p);
+  i = edited_fails("\"unit-demo.v1\"", "\"Unit Demo\"", FG_EINVAL, "/name", &p);
   if (i >= 0) CHECK(strstr(p.items[i].message, "'Unit Demo'") != NULL);
   edited_fails("\"unit-demo.v1\"", "\"-lead\"", FG_EINVAL, "/name", &p);
   edited_fails("\"Unit demo\"", "[\"Unit demo\"]", FG_EINVAL, "/title", &p);
@@ -587,11 +598,11 @@ static void test_compile_errors(void) {
                &p);
 
   /* unknown members, top level and inside the objects model/ owns */
-  i = edited_fails("\"format\": 1,", "\"format\": 1, \"extra\": 3,",
-                   FG_EINVAL, "/extra", &p);
+  i = edited_fails("\"format\": 1,", "\"format\": 1, \"extra\": 3,", FG_EINVAL,
+                   "/extra", &p);
   if (i >= 0) CHECK(strstr(p.items[i].message, "'extra'") != NULL);
-  edited_fails("\"upper\": 5,", "\"uper\": 5,", FG_EINVAL,
-               "/decisions/1/uper", &p);
+  edited_fails("\"upper\": 5,", "\"uper\": 5,", FG_EINVAL, "/decisions/1/uper",
+               &p);
   edited_fails("\"require\": \"acc <= 50\"",
                "\"require\": \"acc <= 50\", \"note\": \"\"", FG_EINVAL,
                "/constraints/0/note", &p);
@@ -636,8 +647,7 @@ static void test_compile_errors(void) {
   edited_fails("\"size\": 3, \"lower\": 0", "\"size\": 1e9, \"lower\": 0",
                FG_ELIMIT, "/decisions/0/size", &p);
   CHECK_STR(p.limit_name, "vector_length");
-  edited_fails("[10, 20, 30]", "[10, 20]", FG_EINVAL, "/decisions/0/upper",
-               &p);
+  edited_fails("[10, 20, 30]", "[10, 20]", FG_EINVAL, "/decisions/0/upper", &p);
   edited_fails("[10, 20, 30]", "[10, \"20\", 30]", FG_EINVAL,
                "/decisions/0/upper/1", &p);
   i = edited_fails("[10, 20, 30]", "[10, -1, 30]", FG_EINVAL,
@@ -650,8 +660,8 @@ static void test_compile_errors(void) {
   edited_fails("\"integer\": true", "\"integer\": 1", FG_EINVAL,
                "/decisions/1/integer", &p);
   edited_fails("{\"name\": \"y\"}", "\"y\"", FG_EINVAL, "/decisions/2", &p);
-  edited_fails("\"decisions\": [", "\"decisions\": {\"a\": [", FG_EINVAL,
-               "", &p); /* breaks the JSON itself */
+  edited_fails("\"decisions\": [", "\"decisions\": {\"a\": [", FG_EINVAL, "",
+               &p); /* breaks the JSON itself */
 
   /* uncertain inputs and dependence */
   edited_fails("\"uncertain\": [", "\"uncertainties\": [", FG_EINVAL,
@@ -664,8 +674,8 @@ static void test_compile_errors(void) {
                "{\"name\": \"z\", \"size\": -1, \"distribution\"", FG_EINVAL,
                "/uncertain/0/size", &p);
   edited_fails("{\"name\": \"z\", \"distribution\"",
-               "{\"name\": \"z\", \"size\": 20000, \"distribution\"",
-               FG_ELIMIT, "/uncertain", &p);
+               "{\"name\": \"z\", \"size\": 20000, \"distribution\"", FG_ELIMIT,
+               "/uncertain", &p);
   CHECK_STR(p.limit_name, "uncertain_dimensions");
   edited_fails("{\"name\": \"z\", \"distribution\"",
                "{\"name\": \"z\", \"size\": 200000, \"distribution\"",
@@ -673,8 +683,7 @@ static void test_compile_errors(void) {
   CHECK_STR(p.limit_name, "vector_length");
   edited_fails("{\"name\": \"z\", \"distribution\": {\"family\": \"normal\", "
                "\"mean\": 0, \"sd\": 1}}",
-               "{\"name\": \"z\"}", FG_EINVAL, "/uncertain/0/distribution",
-               &p);
+               "{\"name\": \"z\"}", FG_EINVAL, "/uncertain/0/distribution", &p);
   edited_fails("\"definitions\": [", "\"dependence\": [3], \"definitions\": [",
                FG_EINVAL, "/dependence/0", &p);
   edited_fails("\"definitions\": [", "\"dependence\": {}, \"definitions\": [",
@@ -689,13 +698,13 @@ static void test_compile_errors(void) {
                "{\"name\": \"total\"}", FG_EINVAL, "/definitions/1", &p);
   edited_fails("\"value\": \"sum(x) + k\"", "\"value\": 3", FG_EINVAL,
                "/definitions/1/value", &p);
-  edited_fails("[\"x[0] + z\", \"acc[0] + x[1]\"", "[\"x[0] + z\", 5", FG_EINVAL,
-               "/definitions/0/elements/1", &p);
+  edited_fails("[\"x[0] + z\", \"acc[0] + x[1]\"", "[\"x[0] + z\", 5",
+               FG_EINVAL, "/definitions/0/elements/1", &p);
   edited_fails("\"elements\": [\"x[0] + z\", \"acc[0] + x[1]\", \"acc[1] + "
                "x[2]\"]",
                "\"elements\": []", FG_EINVAL, "/definitions/0/elements", &p);
-  edited_fails("\"definitions\": [", "\"definitions\": 1, \"x_\": [",
-               FG_EINVAL, "/definitions", &p);
+  edited_fails("\"definitions\": [", "\"definitions\": 1, \"x_\": [", FG_EINVAL,
+               "/definitions", &p);
 
   /* constraints */
   {
