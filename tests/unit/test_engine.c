@@ -1,0 +1,229 @@
+/*
+ * tests/unit/test_engine.c -- the engine: request validation, determinism
+ * across workers and chunk sizes, deterministic problems, objective,
+ * failing scenarios, cancellation and the result body.
+ */
+#include "check.h"
+#include "feasgate/engine.h"
+#include "feasgate/model.h"
+
+#include <cjson/cJSON.h>
+#include <stdlib.h>
+#include <unistd.h>
+
+static const char *MODEL =
+    "{\"format\":1,\"name\":\"engine-test\","
+    "\"decisions\":[{\"name\":\"cap\",\"size\":3,\"lower\":0,\"upper\":50},"
+    "{\"name\":\"crew\",\"lower\":0,\"upper\":3,\"integer\":true}],"
+    "\"uncertain\":[{\"name\":\"load\",\"size\":3,\"distribution\":"
+    "{\"family\":\"gamma\",\"shape\":[4,5,6],\"scale\":2}},"
+    "{\"name\":\"gust\",\"distribution\":{\"family\":\"normal\",\"mean\":0,"
+    "\"sd\":1}}],"
+    "\"definitions\":[{\"name\":\"queue\",\"elements\":[\"pos(load[0] - cap[0])\","
+    "\"pos(queue[0] + load[1] - cap[1])\",\"pos(queue[1] + load[2] - cap[2])\"]}],"
+    "\"constraints\":[{\"name\":\"backlog\",\"require\":\"queue <= 2 * crew\"},"
+    "{\"name\":\"wind\",\"require\":\"gust <= 1.5\"},"
+    "{\"name\":\"budget\",\"require\":\"sum(cap) + 10 * crew <= 60\"}],"
+    "\"objective\":{\"minimize\":\"sum(cap) + 10 * crew\"}}";
+
+static fg_model *model(void) {
+  fg_problem p;
+  fg_problem_init(&p);
+  fg_model *m = NULL;
+  fg_status st = fg_model_compile(MODEL, strlen(MODEL), &m, &p);
+  CHECK_MSG(st == FG_OK, "compile: %s", p.detail);
+  return m;
+}
+
+static fg_status parse(fg_model *m, const char *json, fg_check_request *r,
+                       fg_problem *p) {
+  fg_problem_init(p);
+  cJSON *body = cJSON_Parse(json);
+  fg_request_limits lim;
+  fg_request_limits_default(&lim);
+  lim.max_samples = 5000000;
+  fg_status st = fg_request_parse(m, body, &lim, r, p);
+  cJSON_Delete(body);
+  return st;
+}
+
+static bool has_pointer(const fg_problem *p, const char *ptr) {
+  for (int i = 0; i < p->nitems; i++)
+    if (strcmp(p->items[i].pointer, ptr) == 0) return true;
+  return false;
+}
+
+static void test_request_errors(fg_model *m) {
+  fg_check_request r;
+  fg_problem p;
+  CHECK(parse(m, "{\"decision\":{\"cap\":[1,2],\"crew\":1,\"extra\":3},"
+                 "\"samples\":0,\"colour\":1}",
+              &r, &p) == FG_EINVAL);
+  CHECK(has_pointer(&p, "/decision/cap"));   /* wrong size */
+  CHECK(has_pointer(&p, "/decision/extra")); /* not a decision */
+  CHECK(has_pointer(&p, "/samples"));
+  CHECK(has_pointer(&p, "/colour"));
+  CHECK(parse(m, "{\"decision\":{\"cap\":[1,2,1e999]}}", &r, &p) != FG_OK);
+  CHECK(has_pointer(&p, "/decision/cap/2")); /* non-finite */
+  CHECK(has_pointer(&p, "/decision/crew"));  /* missing */
+  CHECK(parse(m, "{\"decision\":{\"cap\":[1,2,3],\"crew\":1},"
+                 "\"samples\":6000000}",
+              &r, &p) == FG_ELIMIT);
+  CHECK_STR(p.limit_name, "max_samples");
+  CHECK(parse(m, "{\"decision\":{\"cap\":[1,2,3],\"crew\":1},"
+                 "\"sampling\":\"sobol\"}",
+              &r, &p) == FG_EUNSUPPORTED);
+  CHECK(parse(m, "{\"decision\":{\"cap\":[1,2,3],\"crew\":1},"
+                 "\"target\":1.5,\"seed\":-1}",
+              &r, &p) == FG_EINVAL);
+  CHECK(has_pointer(&p, "/target") && has_pointer(&p, "/seed"));
+  CHECK(parse(m, "[1]", &r, &p) == FG_EINVAL);
+}
+
+typedef struct counts {
+  uint64_t n, k;
+  cJSON *res;
+} counts;
+
+static counts run(fg_model *m, const char *req, int workers, int chunk) {
+  fg_check_request r;
+  fg_problem p;
+  counts out = {0};
+  if (parse(m, req, &r, &p) != FG_OK) {
+    CHECK_MSG(0, "parse: %s", p.detail);
+    return out;
+  }
+  fg_check *c = NULL;
+  fg_problem_init(&p);
+  CHECK(fg_check_run_sync(m, &r, workers, chunk, &c, &p) == FG_OK);
+  fg_request_free(&r);
+  if (!c) return out;
+  CHECK(fg_check_get_state(c) == FG_CHECK_DONE);
+  fg_check_progress(c, &out.n, &out.k);
+  fg_check_meta meta = {.id = "chk_test", .created_at = "2026-01-01T00:00:00Z",
+                        .finished_at = "2026-01-01T00:00:01Z"};
+  out.res = fg_check_result_json(c, &meta);
+  fg_check_unref(c);
+  return out;
+}
+
+static double num(const cJSON *o, const char *path1, const char *path2) {
+  const cJSON *v = cJSON_GetObjectItem(o, path1);
+  if (path2) v = cJSON_GetObjectItem(v, path2);
+  return cJSON_GetNumberValue(v);
+}
+
+static void test_determinism(fg_model *m) {
+  const char *req = "{\"decision\":{\"cap\":[10,11,12],\"crew\":1},"
+                    "\"samples\":100000,\"seed\":42}";
+  counts a = run(m, req, 1, 256);
+  counts b = run(m, req, 2, 16384);
+  counts c = run(m, req, 2, 4096);
+  counts d = run(m, req, 1, 16384);
+  CHECK_INT(a.n, 100000);
+  CHECK_INT(a.k, b.k);
+  CHECK_INT(a.k, c.k);
+  CHECK(a.k > 1000 && a.k < 99000); /* the rows really bind */
+  /* Per-row counts and failing scenarios agree too. */
+  char *sa = cJSON_PrintUnformatted(cJSON_GetObjectItem(a.res, "failing_scenarios"));
+  char *sc = cJSON_PrintUnformatted(cJSON_GetObjectItem(c.res, "failing_scenarios"));
+  CHECK_STR(sa, sc);
+  free(sa);
+  free(sc);
+  const cJSON *ra = cJSON_GetObjectItem(a.res, "constraints");
+  const cJSON *rc = cJSON_GetObjectItem(c.res, "constraints");
+  CHECK_INT(cJSON_GetArraySize(ra), 5); /* backlog[0..2], wind, budget */
+  for (int i = 0; i < cJSON_GetArraySize(ra); i++) {
+    CHECK_INT(num(cJSON_GetArrayItem(ra, i), "violated", NULL),
+              num(cJSON_GetArrayItem(rc, i), "violated", NULL));
+    CHECK_STR(cJSON_GetStringValue(cJSON_GetObjectItem(cJSON_GetArrayItem(ra, i), "name")),
+              cJSON_GetStringValue(cJSON_GetObjectItem(cJSON_GetArrayItem(rc, i), "name")));
+  }
+  /* Same chunk size, other worker count: floating-point sums identical. */
+  const cJSON *rb = cJSON_GetObjectItem(b.res, "constraints");
+  const cJSON *rd = cJSON_GetObjectItem(d.res, "constraints");
+  for (int i = 0; i < cJSON_GetArraySize(rb); i++)
+    CHECK_NEAR(num(cJSON_GetArrayItem(rb, i), "excess", "mean"),
+               num(cJSON_GetArrayItem(rd, i), "excess", "mean"), 0.0);
+  /* A different seed gives different counts. */
+  counts e = run(m, "{\"decision\":{\"cap\":[10,11,12],\"crew\":1},"
+                    "\"samples\":100000,\"seed\":43}",
+                 2, 16384);
+  CHECK(e.k != a.k);
+  /* wind holds with P = Phi(1.5) = 0.933193 (standard normal table). */
+  for (int i = 0; i < cJSON_GetArraySize(ra); i++) {
+    const cJSON *row = cJSON_GetArrayItem(ra, i);
+    if (strcmp(cJSON_GetStringValue(cJSON_GetObjectItem(row, "name")), "wind"))
+      continue;
+    double pv = num(row, "probability", NULL);
+    CHECK_NEAR(pv, 1 - 0.9331928, 4 * sqrt(0.0668 * 0.9332 / 100000));
+  }
+  /* The verdict follows the interval rule, objective is deterministic. */
+  CHECK_NEAR(num(a.res, "objective", NULL), 43.0, 1e-12);
+  const cJSON *iv = cJSON_GetObjectItem(cJSON_GetObjectItem(a.res, "joint"), "interval");
+  double l = num(iv, "lower", NULL), u = num(iv, "upper", NULL), p = num(a.res, "joint", "probability");
+  CHECK(l <= p && p <= u);
+  const char *v = cJSON_GetStringValue(cJSON_GetObjectItem(a.res, "verdict"));
+  CHECK_STR(v, l >= 0.9 ? "pass" : (u < 0.9 ? "fail" : "inconclusive"));
+  cJSON *all[] = {a.res, b.res, c.res, d.res, e.res};
+  for (size_t i = 0; i < 5; i++) cJSON_Delete(all[i]);
+}
+
+static void test_deterministic_problems(fg_model *m) {
+  /* crew 2.5 is not an integer, cap[2] = 60 is above its bound, and the
+   * budget row fails whatever the sample. */
+  counts a = run(m, "{\"decision\":{\"cap\":[10,11,60],\"crew\":2.5},"
+                    "\"samples\":2000,\"seed\":1}",
+                 2, 1024);
+  const cJSON *det = cJSON_GetObjectItem(a.res, "deterministic");
+  CHECK(cJSON_IsFalse(cJSON_GetObjectItem(det, "ok")));
+  CHECK_INT(cJSON_GetArraySize(cJSON_GetObjectItem(det, "problems")), 3);
+  CHECK_STR(cJSON_GetStringValue(cJSON_GetObjectItem(a.res, "verdict")), "fail");
+  CHECK_INT(a.k, 0); /* the budget row fails in every sample */
+  CHECK_INT(cJSON_GetArraySize(cJSON_GetObjectItem(a.res, "failing_scenarios")),
+            FG_FAILING_SCENARIOS);
+  CHECK_NEAR(num(cJSON_GetArrayItem(cJSON_GetObjectItem(a.res, "failing_scenarios"), 0),
+                 "index", NULL), 0, 0);
+  cJSON_Delete(a.res);
+}
+
+static void test_cancel(fg_model *m) {
+  fg_check_request r;
+  fg_problem p;
+  CHECK(parse(m, "{\"decision\":{\"cap\":[10,11,12],\"crew\":1},"
+                 "\"samples\":5000000,\"seed\":3}",
+              &r, &p) == FG_OK);
+  fg_pool *pool;
+  fg_problem_init(&p);
+  CHECK(fg_pool_new(2, 4096, 1, &pool, &p) == FG_OK);
+  fg_check *c, *c2;
+  CHECK(fg_check_start(pool, m, &r, &c, &p) == FG_OK);
+  /* The queue holds one check: a second is refused as busy. */
+  fg_problem_init(&p);
+  CHECK(fg_check_start(pool, m, &r, &c2, &p) == FG_EBUSY);
+  CHECK(!fg_check_wait(c, 0.01));
+  fg_check_cancel(c);
+  CHECK(fg_check_wait(c, 10));
+  CHECK(fg_check_get_state(c) == FG_CHECK_CANCELLED);
+  uint64_t n, k;
+  fg_check_progress(c, &n, &k);
+  CHECK(n < 5000000 && n % 4096 == 0); /* partial counts, whole chunks */
+  cJSON *res = fg_check_result_json(c, NULL);
+  CHECK_STR(cJSON_GetStringValue(cJSON_GetObjectItem(res, "status")), "cancelled");
+  CHECK(cJSON_IsNull(cJSON_GetObjectItem(res, "verdict")));
+  cJSON_Delete(res);
+  fg_check_unref(c);
+  fg_pool_free(pool);
+  fg_request_free(&r);
+}
+
+int main(void) {
+  fg_model *m = model();
+  if (!m) return fg_test_finish() | 1;
+  test_request_errors(m);
+  test_determinism(m);
+  test_deterministic_problems(m);
+  test_cancel(m);
+  fg_model_unref(m);
+  return fg_test_finish();
+}
