@@ -11,6 +11,7 @@
 #include <cJSON.h>
 
 #include <math.h>
+#include <pthread.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -751,6 +752,58 @@ static void test_compile_errors(void) {
   compile_fails("\"model\"", FG_EINVAL, "", &p);
 }
 
+/* ---- limits on counts and dimensions ---- */
+
+static void test_limits(void) {
+  fg_problem p;
+  /* FG_MEMBERS_MAX + 1 constraints: refused by count, entries not walked */
+  size_t cap = (size_t)(FG_MEMBERS_MAX + 1) * 40 + 256;
+  char *doc = malloc(cap);
+  size_t k = (size_t)snprintf(doc, cap,
+                              "{\"format\":1,\"name\":\"big\",\"decisions\":"
+                              "[{\"name\":\"a\"}],\"uncertain\":[],"
+                              "\"constraints\":[");
+  for (int i = 0; i <= FG_MEMBERS_MAX; i++)
+    k += (size_t)snprintf(doc + k, cap - k,
+                          "%s{\"name\":\"c%d\",\"require\":\"a<=1\"}",
+                          i ? "," : "", i);
+  snprintf(doc + k, cap - k, "]}");
+  compile_fails(doc, FG_ELIMIT, "/constraints", &p);
+  CHECK_STR(p.limit_name, "members");
+  CHECK_NEAR(p.limit_value, FG_MEMBERS_MAX, 0);
+  CHECK_INT(p.nitems, 1);
+  free(doc);
+
+  /* decision elements in all */
+  char text[512];
+  snprintf(text, sizeof text,
+           "{\"format\":1,\"name\":\"wide\",\"decisions\":["
+           "{\"name\":\"a\",\"size\":%d},{\"name\":\"b\",\"size\":%d}],"
+           "\"uncertain\":[],\"constraints\":[{\"name\":\"c\","
+           "\"require\":\"sum(a) <= 1\"}]}",
+           FG_DECISION_DIMS_MAX / 2 + 1, FG_DECISION_DIMS_MAX / 2);
+  compile_fails(text, FG_ELIMIT, "/decisions", &p);
+  CHECK_STR(p.limit_name, "decision_dimensions");
+
+  /* an expression longer than FG_EXPR_MAX_LENGTH */
+  size_t n = FG_EXPR_MAX_LENGTH + 1;
+  char *expr = malloc(n + 1);
+  memset(expr, ' ', n);
+  memcpy(expr, "a", 1);
+  memcpy(expr + n - 4, "<=1", 3);
+  expr[n] = '\0';
+  doc = malloc(n + 256);
+  snprintf(doc, n + 256,
+           "{\"format\":1,\"name\":\"long\",\"decisions\":[{\"name\":"
+           "\"a\"}],\"uncertain\":[],\"constraints\":[{\"name\":\"c\","
+           "\"require\":\"%s\"}]}",
+           expr);
+  compile_fails(doc, FG_ELIMIT, "/constraints/0/require", &p);
+  CHECK_STR(p.limit_name, "expression_length");
+  free(doc);
+  free(expr);
+}
+
 /* ---- the cache ---- */
 
 static fg_model *model_named(const char *name) {
@@ -811,6 +864,48 @@ static void test_cache(void) {
   fg_model_unref(d);
 }
 
+/* Several threads getting, putting and dropping the same few models: the
+ * counts must come back exactly (run under the sanitizer build too). */
+typedef struct cache_job {
+  fg_model_cache *cache;
+  fg_model *models[3];
+} cache_job;
+
+static void *cache_worker(void *arg) {
+  cache_job *job = arg;
+  for (int i = 0; i < 20000; i++) {
+    fg_model *m = job->models[i % 3];
+    if (i % 4 == 0) {
+      fg_model_cache_put(job->cache, m);
+    } else {
+      fg_model *got = fg_model_cache_get(job->cache, m->digest);
+      if (got && got != m) return (void *)1;
+      fg_model_unref(got);
+    }
+  }
+  return NULL;
+}
+
+static void test_cache_threads(void) {
+  cache_job job = {
+      fg_model_cache_new(2),
+      {model_named("\"t1\""), model_named("\"t2\""), model_named("\"t3\"")}};
+  if (!job.cache || !job.models[0] || !job.models[1] || !job.models[2]) return;
+  pthread_t th[4];
+  for (int i = 0; i < 4; i++)
+    CHECK(pthread_create(&th[i], NULL, cache_worker, &job) == 0);
+  for (int i = 0; i < 4; i++) {
+    void *r = NULL;
+    pthread_join(th[i], &r);
+    CHECK(r == NULL);
+  }
+  fg_model_cache_free(job.cache);
+  for (int i = 0; i < 3; i++) {
+    CHECK_INT(job.models[i]->refs, 1);
+    fg_model_unref(job.models[i]);
+  }
+}
+
 int main(void) {
   test_sha256();
   test_parse();
@@ -818,6 +913,8 @@ int main(void) {
   test_compile_valid();
   test_compile_minimal();
   test_compile_errors();
+  test_limits();
   test_cache();
+  test_cache_threads();
   return fg_test_finish();
 }
