@@ -858,6 +858,129 @@ static void test_copula(void) {
   }
 }
 
+/* The other continuous families as copula members: their inverse CDFs
+ * keep the closed-form moments used in test_moments. */
+static void test_copula_icdfs(void) {
+  fg_sampler *s = build_ok(
+      "[{\"name\":\"p\",\"distribution\":{\"family\":\"pert\",\"low\":2,"
+      "\"mode\":3,\"high\":10}},"
+      "{\"name\":\"w\",\"distribution\":{\"family\":\"weibull\",\"shape\":"
+      "1.5,\"scale\":3}},"
+      "{\"name\":\"t\",\"distribution\":{\"family\":\"student_t\",\"df\":10,"
+      "\"location\":1,\"scale\":2}},"
+      "{\"name\":\"l\",\"distribution\":{\"family\":\"lognormal\","
+      "\"meanlog\":1,\"sdlog\":0.5}},"
+      "{\"name\":\"r\",\"distribution\":{\"family\":\"triangular\",\"low\":"
+      "1,\"mode\":2,\"high\":7}},"
+      "{\"name\":\"e\",\"distribution\":{\"family\":\"exponential\","
+      "\"mean\":2.5}},"
+      "{\"name\":\"b\",\"distribution\":{\"family\":\"beta\",\"a\":0.5,"
+      "\"b\":0.5}}]",
+      "[{\"kind\":\"gaussian_copula\",\"members\":[\"p\",\"w\",\"t\",\"l\","
+      "\"r\",\"e\",\"b\"],\"correlation\":{\"ar1\":0.5}}]");
+  if (!s) return;
+  double *x = draw_big(s, 77);
+  double mu = (2 + 4 * 3 + 10) / 6.0;
+  check_moments(x, NBIG, mu, (mu - 2) * (10 - mu) / 7, "copula pert");
+  double g1 = tgamma(1 + 1 / 1.5), g2 = tgamma(1 + 2 / 1.5);
+  check_moments(x + NBIG, NBIG, 3 * g1, 9 * (g2 - g1 * g1), "copula weibull");
+  check_moments(x + 2 * NBIG, NBIG, 1, 5, "copula student_t");
+  check_moments(x + 3 * NBIG, NBIG, exp(1.125), expm1(0.25) * exp(2.25),
+                "copula lognormal");
+  check_moments(x + 4 * NBIG, NBIG, 10 / 3.0, (1 + 49 + 4 - 7 - 2 - 14) / 18.0,
+                "copula triangular");
+  check_moments(x + 5 * NBIG, NBIG, 2.5, 6.25, "copula exponential");
+  check_moments(x + 6 * NBIG, NBIG, 0.5, 0.125, "copula beta(0.5, 0.5)");
+  free(x);
+  fg_sampler_free(s);
+  fg_sampler *b =
+      build_ok("[{\"name\":\"n\",\"distribution\":{\"family\":\"binomial\","
+               "\"trials\":5,\"p\":0.5}},{\"name\":\"e\",\"distribution\":{"
+               "\"family\":\"empirical\",\"data\":[1,2.5]}},{\"name\":\"f\","
+               "\"distribution\":{\"family\":\"empirical\",\"data\":[1,2]}}]",
+               NULL);
+  if (b) {
+    CHECK(fg_sampler_integer_valued(b, 0));
+    CHECK(!fg_sampler_integer_valued(b, 1));
+    CHECK(fg_sampler_integer_valued(b, 2));
+    fg_sampler_free(b);
+  }
+}
+
+/* The slot rules, pinned by equalities that hold only if they are kept:
+ * standard normal k of a multivariate normal and of a copula comes from
+ * the slot of its own dimension, so an identity covariance (or a zero
+ * correlation with normal members) reproduces independent normals drawn
+ * at the same dimensions; and the structured correlation forms are the
+ * exact Cholesky factor of the matrix they stand for. */
+static void test_slots(void) {
+  const int n = 2000;
+  fg_sampler *ind = build_ok(
+      "[{\"name\":\"z\",\"size\":3,\"distribution\":{\"family\":\"normal\","
+      "\"mean\":0,\"sd\":1}}]",
+      NULL);
+  fg_sampler *mv = build_ok(
+      "[{\"name\":\"z\",\"size\":3,\"distribution\":{\"family\":"
+      "\"multivariate_normal\",\"mean\":0,\"covariance\":[[1,0,0],[0,1,0],"
+      "[0,0,1]]}}]",
+      NULL);
+  fg_sampler *cop = build_ok(
+      "[{\"name\":\"z\",\"size\":3,\"distribution\":{\"family\":\"normal\","
+      "\"mean\":0,\"sd\":1}}]",
+      "[{\"kind\":\"gaussian_copula\",\"members\":[\"z\"],\"correlation\":"
+      "{\"equal\":0}}]");
+  if (ind && mv && cop) {
+    double *a = draw_range(ind, 8, FG_STREAM_VALIDATION, 500, n, FG_BLOCK);
+    double *b = draw_range(mv, 8, FG_STREAM_VALIDATION, 500, n, FG_BLOCK);
+    double *c = draw_range(cop, 8, FG_STREAM_VALIDATION, 500, n, FG_BLOCK);
+    double dmv = 0, dcop = 0;
+    for (int i = 0; i < 3 * n; i++) {
+      dmv = fmax(dmv, fabs(a[i] - b[i]));
+      dcop = fmax(dcop, fabs(a[i] - c[i]));
+    }
+    CHECK_NEAR(dmv, 0, 0);
+    CHECK_NEAR(dcop, 0, 1e-9); /* through Phi and its inverse */
+    free(a);
+    free(b);
+    free(c);
+  }
+  fg_sampler_free(ind);
+  fg_sampler_free(mv);
+  fg_sampler_free(cop);
+
+  const char *in4 = "[{\"name\":\"w\",\"size\":4,\"distribution\":{\"family\":"
+                    "\"exponential\",\"mean\":2}}]";
+  const char *pairs[2][2] = {
+      {"{\"equal\":0.4}", "[[1,0.4,0.4,0.4],[0.4,1,0.4,0.4],[0.4,0.4,1,0.4],"
+                          "[0.4,0.4,0.4,1]]"},
+      {"{\"ar1\":-0.5}", "[[1,-0.5,0.25,-0.125],[-0.5,1,-0.5,0.25],"
+                         "[0.25,-0.5,1,-0.5],[-0.125,0.25,-0.5,1]]"}};
+  for (int k = 0; k < 2; k++) {
+    char d1[256], d2[256];
+    snprintf(d1, sizeof d1,
+             "[{\"kind\":\"gaussian_copula\",\"members\":[\"w\"],"
+             "\"correlation\":%s}]",
+             pairs[k][0]);
+    snprintf(d2, sizeof d2,
+             "[{\"kind\":\"gaussian_copula\",\"members\":[\"w\"],"
+             "\"correlation\":%s}]",
+             pairs[k][1]);
+    fg_sampler *s1 = build_ok(in4, d1), *s2 = build_ok(in4, d2);
+    if (s1 && s2) {
+      double *a = draw_range(s1, 3, FG_STREAM_DESIGN, 0, n, FG_BLOCK);
+      double *b = draw_range(s2, 3, FG_STREAM_DESIGN, 0, n, FG_BLOCK);
+      double diff = 0;
+      for (int i = 0; i < 4 * n; i++)
+        diff = fmax(diff, fabs(a[i] - b[i]) / (1 + fabs(a[i])));
+      CHECK_NEAR(diff, 0, 1e-9);
+      free(a);
+      free(b);
+    }
+    fg_sampler_free(s1);
+    fg_sampler_free(s2);
+  }
+}
+
 int main(void) {
   test_determinism();
   test_columns();
@@ -866,5 +989,7 @@ int main(void) {
   test_truncated();
   test_mvn();
   test_copula();
+  test_slots();
+  test_copula_icdfs();
   return fg_test_finish();
 }
