@@ -301,7 +301,7 @@ fg_status fg_expr_define(fg_expr_compiler *c, const char *name,
                          fg_problem *p) {
   int si = add_sym(c, name, FG_SYM_DEFINITION, 0, pointer, p);
   if (si < 0) return p ? p->status : FG_EINVAL;
-  c->syms[si].order = c->nitems;
+  c->syms[si].order = c->ndefinitions++;
   return add_item(c, FG_ITEM_DEFINE, si, &src, 1, pointer, p);
 }
 
@@ -313,7 +313,7 @@ fg_status fg_expr_define_elements(fg_expr_compiler *c, const char *name,
                           "expected at least one element but found none");
   int si = add_sym(c, name, FG_SYM_DEFINITION, n, pointer, p);
   if (si < 0) return p ? p->status : FG_EINVAL;
-  c->syms[si].order = c->nitems;
+  c->syms[si].order = c->ndefinitions++;
   return add_item(c, FG_ITEM_ELEMENTS, si, srcs, n, pointer, p);
 }
 

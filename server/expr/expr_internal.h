@@ -235,7 +235,7 @@ struct fg_expr_compiler {
 
   fg_item *items;
   int nitems, capitems;
-  int nconstraints;
+  int nconstraints, ndefinitions;
   bool has_objective;
 
   char **pointers; /* source pointers; spans refer to these */
