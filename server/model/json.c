@@ -426,10 +426,13 @@ static void check_duplicates(const cJSON *obj, const char *base,
   for (const cJSON *c = obj->child; c; c = c->next, m++)
     refs[m] = (key_ref){c->string ? c->string : "", m};
   qsort(refs, (size_t)n, sizeof *refs, key_ref_cmp);
-  for (int i = 1; i < n; i++)
-    if (strcmp(refs[i].key, refs[i - 1].key) == 0 &&
-        (i < 2 || strcmp(refs[i].key, refs[i - 2].key) != 0))
-      report_duplicate(cx, base, refs[i].key);
+  /* equal keys are adjacent now; report each run of them once */
+  bool in_run = false;
+  for (int i = 1; i < n; i++) {
+    bool same = strcmp(refs[i].key, refs[i - 1].key) == 0;
+    if (same && !in_run) report_duplicate(cx, base, refs[i].key);
+    in_run = same;
+  }
   free(refs);
 }
 

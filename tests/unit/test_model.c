@@ -252,7 +252,7 @@ static void test_parse(void) {
   k = (size_t)snprintf(many, sizeof many, "{");
   for (int i = 0; i < 40; i++)
     k += (size_t)snprintf(many + k, sizeof many - k, "\"k%d\": %d,", i, i);
-  snprintf(many + k, sizeof many - k, "\"k17\": 0}");
+  snprintf(many + k, sizeof many - k, "\"k17\": 0, \"k17\": 1}");
   parse_fails(many, FG_EINVAL, &p);
   CHECK_INT(p.nitems, 1);
   CHECK_STR(p.items[0].pointer, "/k17");
