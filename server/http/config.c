@@ -211,13 +211,24 @@ static void usage(FILE *f) {
   fprintf(f, "\nA flag wins over its environment variable.\n");
 }
 
+static bool flag_given(int argc, char **argv, const char *flag) {
+  size_t n = strlen(flag);
+  for (int a = 1; a < argc; a++)
+    if (strncmp(argv[a], flag, n) == 0 && (argv[a][n] == '\0' ||
+                                            argv[a][n] == '='))
+      return true;
+  return false;
+}
+
 int fg_http_config_parse(int argc, char **argv, fg_http_config *cfg,
                          char *err, size_t errcap) {
   defaults(cfg);
   err[0] = '\0';
+  /* A twin is not even read when its flag is given: the flag wins, also
+   * over a twin that would not parse. */
   for (size_t i = 0; i < NOPTIONS; i++) {
     const char *v = getenv(options[i].env);
-    if (!v) continue;
+    if (!v || flag_given(argc, argv, options[i].flag)) continue;
     char where[64];
     snprintf(where, sizeof where, "environment %s", options[i].env);
     if (set_value(cfg, &options[i], where, v, err, errcap) != 0) return -1;

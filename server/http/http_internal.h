@@ -72,6 +72,7 @@ typedef struct fg_req {
   char *body; /* NUL-terminated; NULL when empty */
   size_t len, cap;
   bool too_large;
+  size_t discarded; /* bytes of a refused body thrown away */
   bool responded;
   double t0; /* monotonic seconds at the first call */
   const char *route; /* the matched pattern, for the log */

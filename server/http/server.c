@@ -11,8 +11,11 @@
  *     1st call   set up an fg_req; a Content-Length above --max-body is
  *                refused with 413 at once, before any of the body is read;
  *     body calls append to r->body; as soon as the bytes received exceed
- *                --max-body the buffer is dropped and 413 queued, so an
- *                oversize body is never held whole;
+ *                --max-body the buffer is dropped and the rest discarded
+ *                (up to FG_HTTP_DISCARD_MAX, then the connection is
+ *                closed), so an oversize body is never held whole; the
+ *                413 goes out on the last call, as libmicrohttpd takes
+ *                no response in the middle of a body;
  *     last call  (no more data) route, run the handler, queue the answer.
  *   The completion callback logs the request (method, route, status,
  *   duration_ms) and frees the fg_req.
@@ -58,6 +61,10 @@
 /* Seconds added to --max-wait when waiting for requests in flight at
  * shutdown: time to record and answer after the wait itself. */
 #define FG_HTTP_DRAIN_MARGIN_S 10.0
+/* Bytes of a refused body (beyond --max-body) read and thrown away so
+ * that the client still gets its 413; past this the connection is closed.
+ * Bounds the work an endless chunked upload can cause. */
+#define FG_HTTP_DISCARD_MAX (8 * 1024 * 1024)
 /* Initial body buffer; grows by doubling up to --max-body. */
 #define FG_HTTP_BODY_INITIAL 4096
 
@@ -91,9 +98,11 @@ static void queue(fg_req *r, fg_resp *resp) {
     MHD_add_response_header(mr, MHD_HTTP_HEADER_RETRY_AFTER, ra);
   }
   MHD_add_response_header(mr, "Cache-Control", "no-store");
-  MHD_queue_response(r->conn, (unsigned int)resp->status, mr);
+  /* libmicrohttpd takes a response only on the first call or the last;
+   * `responded` records whether this one was taken. */
+  r->responded =
+      MHD_queue_response(r->conn, (unsigned int)resp->status, mr) == MHD_YES;
   MHD_destroy_response(mr);
-  r->responded = true;
 }
 
 static void log_request(const fg_req *r, int status) {
@@ -112,7 +121,7 @@ static void log_request(const fg_req *r, int status) {
 static void respond(fg_req *r, fg_resp *resp) {
   int status = resp->status;
   queue(r, resp);
-  log_request(r, status);
+  if (r->responded) log_request(r, status);
 }
 
 static void refuse_too_large(fg_req *r, const char *how) {
@@ -155,6 +164,8 @@ static enum MHD_Result on_request(void *cls, struct MHD_Connection *conn,
       errno = 0;
       unsigned long long n = strtoull(cl, &end, 10);
       if (errno == ERANGE || n > srv->cfg.max_body) {
+        /* Answered now, before any of the body is read; libmicrohttpd
+         * then closes the connection instead of reading the body. */
         r->too_large = true;
         refuse_too_large(r, "declared in Content-Length exceeds");
       }
@@ -164,13 +175,28 @@ static enum MHD_Result on_request(void *cls, struct MHD_Connection *conn,
   if (*upload_size > 0) {
     size_t n = *upload_size;
     *upload_size = 0; /* consumed (or discarded) */
-    if (r->too_large || r->responded) return MHD_YES;
+    if (r->too_large || r->responded) {
+      /* Discarding the rest of a refused body, so that the client reads
+       * the 413 at the end; a client that keeps sending far beyond the
+       * limit loses the connection instead. */
+      r->discarded += n;
+      if (r->discarded > FG_HTTP_DISCARD_MAX) {
+        fg_log_msg(FG_LOG_WARN, "request_aborted",
+                   "%s %.200s: body goes on past max_body + %d bytes; "
+                   "connection closed",
+                   r->method, r->path, FG_HTTP_DISCARD_MAX);
+        return MHD_NO;
+      }
+      return MHD_YES;
+    }
     if (r->len + n > srv->cfg.max_body) {
+      /* Drop what was kept at once; the 413 goes out on the last call
+       * (libmicrohttpd takes no response in the middle of a body). */
       r->too_large = true;
       free(r->body);
       r->body = NULL;
+      r->discarded = r->len + n;
       r->len = r->cap = 0;
-      refuse_too_large(r, "exceeds");
       return MHD_YES;
     }
     if (r->len + n + 1 > r->cap) {
@@ -179,14 +205,11 @@ static enum MHD_Result on_request(void *cls, struct MHD_Connection *conn,
       if (cap > srv->cfg.max_body + 1) cap = (size_t)srv->cfg.max_body + 1;
       char *grown = realloc(r->body, cap);
       if (!grown) {
-        fg_resp resp = {0};
-        fg_resp_error(&resp, 503, FG_ENOMEM,
-                      "out of memory receiving the request body");
-        free(r->body);
-        r->body = NULL;
-        r->too_large = true; /* discard the rest */
-        respond(r, &resp);
-        return MHD_YES;
+        /* No answer is possible mid-body: close the connection. */
+        fg_log_msg(FG_LOG_ERROR, "request_aborted",
+                   "%s %.200s: out of memory receiving %zu body bytes",
+                   r->method, r->path, r->len + n);
+        return MHD_NO;
       }
       r->body = grown;
       r->cap = cap;
@@ -197,6 +220,10 @@ static enum MHD_Result on_request(void *cls, struct MHD_Connection *conn,
     return MHD_YES;
   }
   if (r->responded) return MHD_YES;
+  if (r->too_large) {
+    refuse_too_large(r, "exceeds");
+    return r->responded ? MHD_YES : MHD_NO;
+  }
   fg_resp resp = {0};
   fg_handler *h = fg_route(r, &resp);
   if (h) h(r, &resp);
@@ -204,7 +231,7 @@ static enum MHD_Result on_request(void *cls, struct MHD_Connection *conn,
                                       "handler for %s gave no answer",
                                       r->route ? r->route : "?");
   respond(r, &resp);
-  return MHD_YES;
+  return r->responded ? MHD_YES : MHD_NO;
 }
 
 static void on_completed(void *cls, struct MHD_Connection *conn,
@@ -379,9 +406,10 @@ int fg_serve_command(int argc, char **argv) {
   srv->daemon = MHD_start_daemon(
       MHD_USE_INTERNAL_POLLING_THREAD | MHD_USE_THREAD_PER_CONNECTION |
           MHD_USE_POLL | MHD_USE_ERROR_LOG | MHD_USE_ITC,
-      0, NULL, NULL, on_request, srv, MHD_OPTION_LISTEN_SOCKET, listen_fd,
-      MHD_OPTION_NOTIFY_COMPLETED, on_completed, srv,
-      MHD_OPTION_EXTERNAL_LOGGER, on_mhd_log, srv,
+      0, NULL, NULL, on_request, srv,
+      /* the logger first, so that no message escapes it */
+      MHD_OPTION_EXTERNAL_LOGGER, on_mhd_log, srv, MHD_OPTION_LISTEN_SOCKET,
+      listen_fd, MHD_OPTION_NOTIFY_COMPLETED, on_completed, srv,
       MHD_OPTION_CONNECTION_TIMEOUT, (unsigned int)FG_HTTP_IDLE_TIMEOUT_S,
       MHD_OPTION_CONNECTION_LIMIT, (unsigned int)FG_HTTP_CONNECTIONS_MAX,
       MHD_OPTION_CONNECTION_MEMORY_LIMIT, (size_t)FG_HTTP_CONN_MEMORY,
