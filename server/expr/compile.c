@@ -87,13 +87,15 @@ static bool map(fg_expr_compiler *c, int op, const fg_value *const *args,
   fg_operand zero = {.reg = -1, .k = 0};
   fg_operand o[3] = {zero, zero, zero};
   if (n == 0) {
-    for (int j = 0; j < nargs; j++) o[j] = args[j]->s;
+    for (int j = 0; j < nargs; j++)
+      o[j] = args[j]->s;
     *out = (fg_value){0};
     return fg_expr_emit(c, op, &o[0], &o[1], &o[2], col, &out->s);
   }
   if (!alloc_vec(c, out, n)) return false;
   for (int i = 0; i < n; i++) {
-    for (int j = 0; j < nargs; j++) o[j] = fg_value_at(args[j], i);
+    for (int j = 0; j < nargs; j++)
+      o[j] = fg_value_at(args[j], i);
     if (!fg_expr_emit(c, op, &o[0], &o[1], &o[2], col, &out->e[i])) {
       fg_expr_value_free(out);
       return false;
@@ -103,7 +105,7 @@ static bool map(fg_expr_compiler *c, int op, const fg_value *const *args,
 }
 
 bool fg_expr_map2(fg_expr_compiler *c, int op, fg_value *a, fg_value *b,
-                 int col, fg_value *out) {
+                  int col, fg_value *out) {
   const fg_value *args[2] = {a, b};
   bool ok = map(c, op, args, col, out);
   fg_expr_value_free(a);
@@ -112,7 +114,7 @@ bool fg_expr_map2(fg_expr_compiler *c, int op, fg_value *a, fg_value *b,
 }
 
 bool fg_expr_map1(fg_expr_compiler *c, int op, fg_value *a, int col,
-                 fg_value *out) {
+                  fg_value *out) {
   const fg_value *args[1] = {a};
   bool ok = map(c, op, args, col, out);
   fg_expr_value_free(a);
@@ -193,8 +195,8 @@ static bool self_elements(fg_expr_compiler *c, const fg_node *n,
                           const fg_sym *s, fg_value *out) {
   int hi = n->kind == FG_N_SLICE ? n->i1 : n->i0 + 1;
   if (n->kind == FG_N_SLICE && n->i0 >= n->i1)
-    return fail(c, n->col, "empty slice [%d:%d]: expected start < end",
-                n->i0, n->i1);
+    return fail(c, n->col, "empty slice [%d:%d]: expected start < end", n->i0,
+                n->i1);
   if (hi > c->self_k) {
     if (c->self_k == 0)
       return fail(c, n->col,
@@ -335,7 +337,8 @@ static bool compile_ternary(fg_expr_compiler *c, const fg_node *n,
       *out = *pick;
       pick->owned = false; /* ownership moved to *out */
     } else if (alloc_vec(c, out, shape)) {
-      for (int i = 0; i < shape; i++) out->e[i] = pick->s;
+      for (int i = 0; i < shape; i++)
+        out->e[i] = pick->s;
     } else {
       ok = false;
     }
@@ -344,7 +347,8 @@ static bool compile_ternary(fg_expr_compiler *c, const fg_node *n,
   } else {
     ok = false;
   }
-  for (int i = 0; i < got; i++) fg_expr_value_free(&v[i]);
+  for (int i = 0; i < got; i++)
+    fg_expr_value_free(&v[i]);
   return ok;
 }
 
@@ -392,8 +396,7 @@ static bool dot(fg_expr_compiler *c, fg_value *u, fg_value *v, int col,
   return ok;
 }
 
-static bool compile_call(fg_expr_compiler *c, const fg_node *n,
-                         fg_value *out) {
+static bool compile_call(fg_expr_compiler *c, const fg_node *n, fg_value *out) {
   fg_value a[3], acc;
   int col = n->col;
   if (n->fn == FG_FN_MIN || n->fn == FG_FN_MAX) {
@@ -414,7 +417,8 @@ static bool compile_call(fg_expr_compiler *c, const fg_node *n,
   }
   for (int i = 0; i < n->nkids; i++) {
     if (!fg_expr_compile_node(c, n->kids[i], &a[i])) {
-      while (i-- > 0) fg_expr_value_free(&a[i]);
+      while (i-- > 0)
+        fg_expr_value_free(&a[i]);
       return false;
     }
   }
@@ -439,7 +443,8 @@ static bool compile_call(fg_expr_compiler *c, const fg_node *n,
   case FG_FN_CLAMP: {
     const fg_value *args[3] = {&a[0], &a[1], &a[2]};
     bool ok = map(c, FG_OP_CLAMP, args, col, out);
-    for (int i = 0; i < 3; i++) fg_expr_value_free(&a[i]);
+    for (int i = 0; i < 3; i++)
+      fg_expr_value_free(&a[i]);
     return ok;
   }
   default: return fg_expr_map1(c, elementwise_op[n->fn], &a[0], col, out);
@@ -462,8 +467,8 @@ bool fg_expr_compile_node(fg_expr_compiler *c, const fg_node *n,
   case FG_N_NOT: {
     fg_value v;
     if (!fg_expr_compile_node(c, n->kids[0], &v)) return false;
-    return fg_expr_map1(c, n->kind == FG_N_NEG ? FG_OP_NEG : FG_OP_NOT, &v, n->col,
-                out);
+    return fg_expr_map1(c, n->kind == FG_N_NEG ? FG_OP_NEG : FG_OP_NOT, &v,
+                        n->col, out);
   }
   case FG_N_POW: {
     fg_value a, b;
@@ -479,6 +484,7 @@ bool fg_expr_compile_node(fg_expr_compiler *c, const fg_node *n,
   case FG_N_CALL: return compile_call(c, n, out);
   case FG_N_CONSTRAINT: break;
   }
-  return fail(c, n->col, "a comparison chain is allowed only at the top of "
-                         "a constraint");
+  return fail(c, n->col,
+              "a comparison chain is allowed only at the top of "
+              "a constraint");
 }

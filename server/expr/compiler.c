@@ -37,19 +37,23 @@ fg_expr_compiler *fg_expr_compiler_new(void) {
 }
 
 static void free_item(fg_item *it) {
-  for (int i = 0; i < it->nsrc; i++) free(it->srcs[i]);
+  for (int i = 0; i < it->nsrc; i++)
+    free(it->srcs[i]);
   free(it->srcs);
   free(it->src_ids);
 }
 
 void fg_expr_compiler_free(fg_expr_compiler *c) {
   if (!c) return;
-  for (int i = 0; i < c->nsyms; i++) free(c->syms[i].val);
+  for (int i = 0; i < c->nsyms; i++)
+    free(c->syms[i].val);
   free(c->syms);
   free(c->slots);
-  for (int i = 0; i < c->nitems; i++) free_item(&c->items[i]);
+  for (int i = 0; i < c->nitems; i++)
+    free_item(&c->items[i]);
   free(c->items);
-  for (int i = 0; i < c->npointers; i++) free(c->pointers[i]);
+  for (int i = 0; i < c->npointers; i++)
+    free(c->pointers[i]);
   free(c->pointers);
   free(c->vregs);
   free(c->insns);
@@ -62,12 +66,12 @@ void fg_expr_compiler_free(fg_expr_compiler *c) {
 /* ---- symbol table: open addressing on the name ---- */
 static size_t hash_name(const char *s, size_t len) {
   size_t h = 1469598103934665603ULL;
-  for (size_t i = 0; i < len; i++) h = (h ^ (unsigned char)s[i]) * 1099511628211ULL;
+  for (size_t i = 0; i < len; i++)
+    h = (h ^ (unsigned char)s[i]) * 1099511628211ULL;
   return h;
 }
 
-int fg_expr_sym_find(const fg_expr_compiler *c, const char *name,
-                     size_t len) {
+int fg_expr_sym_find(const fg_expr_compiler *c, const char *name, size_t len) {
   if (!c->capslots || len > FG_NAME_MAX) return -1;
   size_t mask = (size_t)c->capslots - 1, h = hash_name(name, len) & mask;
   while (c->slots[h] >= 0) {
@@ -84,19 +88,22 @@ static bool slots_insert(fg_expr_compiler *c, int si) {
     int ncap = c->capslots ? c->capslots * 2 : 64;
     int *t = malloc(sizeof *t * (size_t)ncap);
     if (!t) return false;
-    for (int i = 0; i < ncap; i++) t[i] = -1;
+    for (int i = 0; i < ncap; i++)
+      t[i] = -1;
     free(c->slots);
     c->slots = t;
     c->capslots = ncap;
     for (int i = 0; i < si; i++) {
       size_t h = hash_name(c->syms[i].name, strlen(c->syms[i].name));
-      while (t[h & (size_t)(ncap - 1)] >= 0) h++;
+      while (t[h & (size_t)(ncap - 1)] >= 0)
+        h++;
       t[h & (size_t)(ncap - 1)] = i;
     }
   }
   size_t mask = (size_t)c->capslots - 1;
   size_t h = hash_name(c->syms[si].name, strlen(c->syms[si].name)) & mask;
-  while (c->slots[h] >= 0) h = (h + 1) & mask;
+  while (c->slots[h] >= 0)
+    h = (h + 1) & mask;
   c->slots[h] = si;
   return true;
 }
@@ -184,8 +191,7 @@ nomem:
 }
 
 static fg_status declare(fg_expr_compiler *c, const char *name, int size,
-                         const char *pointer, fg_problem *p,
-                         fg_sym_kind kind) {
+                         const char *pointer, fg_problem *p, fg_sym_kind kind) {
   if (kind == FG_SYM_DECISION && c->seen_uncertain)
     return fg_problem_add(p, FG_EINTERNAL, pointer, 0,
                           "decision '%s' declared after an uncertain input",
@@ -259,8 +265,8 @@ static bool check_source(const char *src, const char *pointer, bool cons,
 
 /* Records an item with `n` sources; pointers[i] per source. */
 static fg_status add_item(fg_expr_compiler *c, fg_item_kind kind, int sym,
-                          const char *const *srcs, int n,
-                          const char *pointer, fg_problem *p) {
+                          const char *const *srcs, int n, const char *pointer,
+                          fg_problem *p) {
   if (c->nitems == c->capitems) {
     int ncap = c->capitems ? c->capitems * 2 : 32;
     fg_item *ni = realloc(c->items, sizeof *ni * (size_t)ncap);
@@ -296,9 +302,8 @@ static fg_status add_item(fg_expr_compiler *c, fg_item_kind kind, int sym,
   return st;
 }
 
-fg_status fg_expr_define(fg_expr_compiler *c, const char *name,
-                         const char *src, const char *pointer,
-                         fg_problem *p) {
+fg_status fg_expr_define(fg_expr_compiler *c, const char *name, const char *src,
+                         const char *pointer, fg_problem *p) {
   int si = add_sym(c, name, FG_SYM_DEFINITION, 0, pointer, p);
   if (si < 0) return p ? p->status : FG_EINVAL;
   c->syms[si].order = c->ndefinitions++;

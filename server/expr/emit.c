@@ -40,7 +40,8 @@ static bool grow(fg_expr_compiler *c, void **arr, int *cap, int need,
                  size_t elem) {
   if (need <= *cap) return true;
   int ncap = *cap ? *cap : 64;
-  while (ncap < need) ncap *= 2;
+  while (ncap < need)
+    ncap *= 2;
   void *p = realloc(*arr, (size_t)ncap * elem);
   if (!p) {
     fg_expr_nomem(c);
@@ -64,8 +65,8 @@ bool fg_expr_operand_uncertain(const fg_expr_compiler *c, fg_operand o) {
 }
 
 /* Appends one instruction writing a new virtual register. */
-static bool push_insn(fg_expr_compiler *c, fg_insn in, bool uncertain,
-                      int col, int *reg) {
+static bool push_insn(fg_expr_compiler *c, fg_insn in, bool uncertain, int col,
+                      int *reg) {
   if (c->ninsns >= FG_PROGRAM_MAX_INSNS) {
     if (!c->limit_hit)
       fg_problem_limit(c->p, c->pointer, "program_instructions",
@@ -123,12 +124,14 @@ static bool ctab_grow(fg_expr_compiler *c) {
     fg_expr_nomem(c);
     return false;
   }
-  for (int i = 0; i < ncap; i++) t[i] = -1;
+  for (int i = 0; i < ncap; i++)
+    t[i] = -1;
   for (int i = 0; i < c->capctab; i++) {
     int v = c->ctab[i];
     if (v < 0) continue;
     size_t h = hash_bits(bits_of(c->insns[c->vregs[v].def].imm));
-    while (t[h & (size_t)(ncap - 1)] >= 0) h++;
+    while (t[h & (size_t)(ncap - 1)] >= 0)
+      h++;
     t[h & (size_t)(ncap - 1)] = v;
   }
   free(c->ctab);
@@ -172,7 +175,8 @@ bool fg_expr_emit(fg_expr_compiler *c, int op, const fg_operand *a,
   }
   if (all_const) {
     double regs[4] = {0, 0, 0, 0};
-    for (int i = 0; i < nsrc; i++) regs[i] = src[i]->k;
+    for (int i = 0; i < nsrc; i++)
+      regs[i] = src[i]->k;
     fg_insn in = {.op = op, .d = 3, .a = 0, .b = 1, .c = 2};
     fg_expr_run(&in, 1, regs, 1, 1);
     if (isfinite(regs[3])) {

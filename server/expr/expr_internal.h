@@ -101,19 +101,19 @@ typedef enum fg_func {
 const char *fg_expr_function_name(fg_func f);
 
 typedef enum fg_node_kind {
-  FG_N_NUM,        /* num */
-  FG_N_NAME,       /* name, namelen */
-  FG_N_VEC,        /* [kids...] */
-  FG_N_INDEX,      /* kids[0][i0] */
-  FG_N_SLICE,      /* kids[0][i0:i1] */
-  FG_N_NEG,        /* -kids[0] */
-  FG_N_NOT,        /* !kids[0] */
-  FG_N_POW,        /* kids[0] ^ kids[1] */
-  FG_N_CHAIN,      /* kids[0] ops[0] kids[1] ops[1] ... (left to right) */
-  FG_N_TERNARY,    /* kids[0] ? kids[1] : kids[2] */
-  FG_N_CALL,       /* fn(kids...) */
-  FG_N_CONSTRAINT  /* top of a constraint: kids[0] ops[0] kids[1] [ops[1]
-                      kids[2]] with comparison operators */
+  FG_N_NUM,       /* num */
+  FG_N_NAME,      /* name, namelen */
+  FG_N_VEC,       /* [kids...] */
+  FG_N_INDEX,     /* kids[0][i0] */
+  FG_N_SLICE,     /* kids[0][i0:i1] */
+  FG_N_NEG,       /* -kids[0] */
+  FG_N_NOT,       /* !kids[0] */
+  FG_N_POW,       /* kids[0] ^ kids[1] */
+  FG_N_CHAIN,     /* kids[0] ops[0] kids[1] ops[1] ... (left to right) */
+  FG_N_TERNARY,   /* kids[0] ? kids[1] : kids[2] */
+  FG_N_CALL,      /* fn(kids...) */
+  FG_N_CONSTRAINT /* top of a constraint: kids[0] ops[0] kids[1] [ops[1]
+                     kids[2]] with comparison operators */
 } fg_node_kind;
 
 typedef struct fg_node {
@@ -184,9 +184,9 @@ typedef enum fg_sym_kind {
 typedef struct fg_sym {
   char name[FG_NAME_MAX + 1];
   fg_sym_kind kind;
-  int size;  /* 0 scalar */
-  int order; /* definitions: index in document order */
-  int base;  /* inputs: first element's offset within its kind */
+  int size;        /* 0 scalar */
+  int order;       /* definitions: index in document order */
+  int base;        /* inputs: first element's offset within its kind */
   fg_operand *val; /* definitions, once compiled: max(size, 1) operands */
   bool compiled, failed;
 } fg_sym;
@@ -201,7 +201,7 @@ typedef enum fg_item_kind {
 /* An expression handed over and compiled by fg_expr_finish. */
 typedef struct fg_item {
   fg_item_kind kind;
-  int sym; /* definition or constraint symbol; -1 for the objective */
+  int sym;        /* definition or constraint symbol; -1 for the objective */
   int constraint; /* constraint index in document order */
   int nsrc;
   char **srcs;
@@ -280,8 +280,7 @@ bool fg_expr_operand_uncertain(const fg_expr_compiler *c, fg_operand o);
 void fg_expr_nomem(fg_expr_compiler *c);
 
 /* compile.c */
-bool fg_expr_compile_node(fg_expr_compiler *c, const fg_node *n,
-                          fg_value *out);
+bool fg_expr_compile_node(fg_expr_compiler *c, const fg_node *n, fg_value *out);
 void fg_expr_value_free(fg_value *v);
 /* Element-wise op over one or two values with broadcasting; consumes
  * (frees) the operands. */
@@ -300,7 +299,7 @@ fg_status fg_expr_build_program(fg_expr_compiler *c, fg_program **out,
 
 /* interp.c: runs `n` instructions on registers at stride `stride` over
  * lanes [0, lanes). */
-void fg_expr_run(const fg_insn *insns, int n, double *regs, size_t stride,
+void fg_expr_run(const fg_insn *insns, int count, double *regs, size_t stride,
                  int lanes);
 
 /* The finished program. */

@@ -26,7 +26,8 @@
 #include <string.h>
 
 void fg_expr_run(const fg_insn *insns, int count, double *regs, size_t stride,
-                 int n) {
+                 int lanes) {
+  const int n = lanes;
   for (int k = 0; k < count; k++) {
     const fg_insn *in = &insns[k];
     double *restrict d = regs + (size_t)in->d * stride;
@@ -36,56 +37,73 @@ void fg_expr_run(const fg_insn *insns, int count, double *regs, size_t stride,
     switch ((fg_opcode)in->op) {
     case FG_OP_CONST: {
       double v = in->imm;
-      for (int i = 0; i < n; i++) d[i] = v;
+      for (int i = 0; i < n; i++)
+        d[i] = v;
       break;
     }
     case FG_OP_NEG:
-      for (int i = 0; i < n; i++) d[i] = -a[i];
+      for (int i = 0; i < n; i++)
+        d[i] = -a[i];
       break;
     case FG_OP_NOT:
-      for (int i = 0; i < n; i++) d[i] = a[i] == 0.0 ? 1.0 : 0.0;
+      for (int i = 0; i < n; i++)
+        d[i] = a[i] == 0.0 ? 1.0 : 0.0;
       break;
     case FG_OP_ABS:
-      for (int i = 0; i < n; i++) d[i] = fabs(a[i]);
+      for (int i = 0; i < n; i++)
+        d[i] = fabs(a[i]);
       break;
     case FG_OP_SQRT:
-      for (int i = 0; i < n; i++) d[i] = sqrt(a[i]);
+      for (int i = 0; i < n; i++)
+        d[i] = sqrt(a[i]);
       break;
     case FG_OP_EXP:
-      for (int i = 0; i < n; i++) d[i] = exp(a[i]);
+      for (int i = 0; i < n; i++)
+        d[i] = exp(a[i]);
       break;
     case FG_OP_LOG:
-      for (int i = 0; i < n; i++) d[i] = log(a[i]);
+      for (int i = 0; i < n; i++)
+        d[i] = log(a[i]);
       break;
     case FG_OP_LOG10:
-      for (int i = 0; i < n; i++) d[i] = log10(a[i]);
+      for (int i = 0; i < n; i++)
+        d[i] = log10(a[i]);
       break;
     case FG_OP_FLOOR:
-      for (int i = 0; i < n; i++) d[i] = floor(a[i]);
+      for (int i = 0; i < n; i++)
+        d[i] = floor(a[i]);
       break;
     case FG_OP_CEIL:
-      for (int i = 0; i < n; i++) d[i] = ceil(a[i]);
+      for (int i = 0; i < n; i++)
+        d[i] = ceil(a[i]);
       break;
     case FG_OP_ROUND:
-      for (int i = 0; i < n; i++) d[i] = round(a[i]);
+      for (int i = 0; i < n; i++)
+        d[i] = round(a[i]);
       break;
     case FG_OP_POS:
-      for (int i = 0; i < n; i++) d[i] = a[i] < 0.0 ? 0.0 : a[i];
+      for (int i = 0; i < n; i++)
+        d[i] = a[i] < 0.0 ? 0.0 : a[i];
       break;
     case FG_OP_ADD:
-      for (int i = 0; i < n; i++) d[i] = a[i] + b[i];
+      for (int i = 0; i < n; i++)
+        d[i] = a[i] + b[i];
       break;
     case FG_OP_SUB:
-      for (int i = 0; i < n; i++) d[i] = a[i] - b[i];
+      for (int i = 0; i < n; i++)
+        d[i] = a[i] - b[i];
       break;
     case FG_OP_MUL:
-      for (int i = 0; i < n; i++) d[i] = a[i] * b[i];
+      for (int i = 0; i < n; i++)
+        d[i] = a[i] * b[i];
       break;
     case FG_OP_DIV:
-      for (int i = 0; i < n; i++) d[i] = a[i] / b[i];
+      for (int i = 0; i < n; i++)
+        d[i] = a[i] / b[i];
       break;
     case FG_OP_POW:
-      for (int i = 0; i < n; i++) d[i] = pow(a[i], b[i]);
+      for (int i = 0; i < n; i++)
+        d[i] = pow(a[i], b[i]);
       break;
     case FG_OP_MIN:
       for (int i = 0; i < n; i++) {
@@ -100,33 +118,40 @@ void fg_expr_run(const fg_insn *insns, int count, double *regs, size_t stride,
       }
       break;
     case FG_OP_LT:
-      for (int i = 0; i < n; i++) d[i] = a[i] < b[i] ? 1.0 : 0.0;
+      for (int i = 0; i < n; i++)
+        d[i] = a[i] < b[i] ? 1.0 : 0.0;
       break;
     case FG_OP_LE:
-      for (int i = 0; i < n; i++) d[i] = a[i] <= b[i] ? 1.0 : 0.0;
+      for (int i = 0; i < n; i++)
+        d[i] = a[i] <= b[i] ? 1.0 : 0.0;
       break;
     case FG_OP_GT:
-      for (int i = 0; i < n; i++) d[i] = a[i] > b[i] ? 1.0 : 0.0;
+      for (int i = 0; i < n; i++)
+        d[i] = a[i] > b[i] ? 1.0 : 0.0;
       break;
     case FG_OP_GE:
-      for (int i = 0; i < n; i++) d[i] = a[i] >= b[i] ? 1.0 : 0.0;
+      for (int i = 0; i < n; i++)
+        d[i] = a[i] >= b[i] ? 1.0 : 0.0;
       break;
     case FG_OP_EQ:
-      for (int i = 0; i < n; i++) d[i] = a[i] == b[i] ? 1.0 : 0.0;
+      for (int i = 0; i < n; i++)
+        d[i] = a[i] == b[i] ? 1.0 : 0.0;
       break;
     case FG_OP_NE:
-      for (int i = 0; i < n; i++) d[i] = a[i] != b[i] ? 1.0 : 0.0;
+      for (int i = 0; i < n; i++)
+        d[i] = a[i] != b[i] ? 1.0 : 0.0;
       break;
     case FG_OP_AND:
       for (int i = 0; i < n; i++)
-        d[i] = (a[i] != 0.0) & (b[i] != 0.0) ? 1.0 : 0.0;
+        d[i] = ((a[i] != 0.0) & (b[i] != 0.0)) ? 1.0 : 0.0;
       break;
     case FG_OP_OR:
       for (int i = 0; i < n; i++)
-        d[i] = (a[i] != 0.0) | (b[i] != 0.0) ? 1.0 : 0.0;
+        d[i] = ((a[i] != 0.0) | (b[i] != 0.0)) ? 1.0 : 0.0;
       break;
     case FG_OP_SELECT:
-      for (int i = 0; i < n; i++) d[i] = a[i] != 0.0 ? b[i] : c[i];
+      for (int i = 0; i < n; i++)
+        d[i] = a[i] != 0.0 ? b[i] : c[i];
       break;
     case FG_OP_CLAMP:
       for (int i = 0; i < n; i++) {
@@ -157,7 +182,8 @@ void fg_program_broadcast(const fg_program *prog, const double *setup_regs,
     int r = prog->bcast[k];
     double v = setup_regs[r];
     double *restrict d = block_regs + (size_t)r * FG_BLOCK;
-    for (int i = 0; i < FG_BLOCK; i++) d[i] = v;
+    for (int i = 0; i < FG_BLOCK; i++)
+      d[i] = v;
   }
 }
 

@@ -36,9 +36,10 @@ static bool parse_again(fg_expr_compiler *c, const fg_item *it, int i,
                             &out->arena, &err);
   if (!out->node) { /* cannot happen: the text parsed before */
     fg_expr_arena_free(&out->arena);
-    if (err.nomem) fg_expr_nomem(c);
-    else fg_problem_add(c->p, FG_EINTERNAL, c->pointer, err.col, "%s",
-                        err.msg);
+    if (err.nomem)
+      fg_expr_nomem(c);
+    else
+      fg_problem_add(c->p, FG_EINTERNAL, c->pointer, err.col, "%s", err.msg);
     return false;
   }
   return true;
@@ -47,8 +48,7 @@ static bool parse_again(fg_expr_compiler *c, const fg_item *it, int i,
 static bool keep_elements(fg_expr_compiler *c, fg_sym *s, int count) {
   c->def_elements += count;
   if (c->def_elements > FG_PROGRAM_MAX_REGS) {
-    fg_problem_limit(c->p, c->pointer, "program_registers",
-                     FG_PROGRAM_MAX_REGS,
+    fg_problem_limit(c->p, c->pointer, "program_registers", FG_PROGRAM_MAX_REGS,
                      "definitions hold more than %d elements in total "
                      "(limit program_registers)",
                      FG_PROGRAM_MAX_REGS);
@@ -63,7 +63,6 @@ static bool keep_elements(fg_expr_compiler *c, fg_sym *s, int count) {
 }
 
 static bool compile_define(fg_expr_compiler *c, const fg_item *it) {
-  fg_sym *s = &c->syms[it->sym];
   parsed ps;
   if (!parse_again(c, it, 0, &ps)) return false;
   fg_value v;
@@ -73,9 +72,10 @@ static bool compile_define(fg_expr_compiler *c, const fg_item *it) {
   fg_expr_arena_free(&ps.arena);
   if (!ok) return false;
   int count = v.n ? v.n : 1;
-  s = &c->syms[it->sym];
+  fg_sym *s = &c->syms[it->sym];
   if (keep_elements(c, s, count)) {
-    for (int i = 0; i < count; i++) s->val[i] = fg_value_at(&v, i);
+    for (int i = 0; i < count; i++)
+      s->val[i] = fg_value_at(&v, i);
     s->size = v.n;
   } else {
     ok = false;
@@ -165,8 +165,8 @@ static bool excess_of(fg_expr_compiler *c, const fg_node *n, fg_value *v,
                      "range lo <= e <= hi");
       return false;
     }
-    if (op0 == FG_TOK_EQ && (any_uncertain(c, &v[0]) ||
-                             any_uncertain(c, &v[1]))) {
+    if (op0 == FG_TOK_EQ &&
+        (any_uncertain(c, &v[0]) || any_uncertain(c, &v[1]))) {
       fg_problem_add(c->p, FG_EINVAL, c->pointer, col,
                      "'==' on an uncertain quantity is refused: it holds "
                      "with probability zero for continuous inputs; use a "
@@ -243,7 +243,8 @@ static bool compile_constraint(fg_expr_compiler *c, const fg_item *it) {
   if (ok) ok = excess_of(c, n, v, &kind, &ex);
   int col = n->opcols[0];
   fg_expr_arena_free(&ps.arena);
-  for (int i = 0; i < 3; i++) fg_expr_value_free(&v[i]);
+  for (int i = 0; i < 3; i++)
+    fg_expr_value_free(&v[i]);
   if (!ok) return false;
   for (int i = 0; ok && i < (ex.n ? ex.n : 1); i++)
     ok = add_row(c, it, ex.n ? i : -1, kind, fg_value_at(&ex, i), col);
@@ -295,8 +296,7 @@ static bool make_inputs(fg_expr_compiler *c) {
   return true;
 }
 
-fg_status fg_expr_finish(fg_expr_compiler *c, fg_program **out,
-                         fg_problem *p) {
+fg_status fg_expr_finish(fg_expr_compiler *c, fg_program **out, fg_problem *p) {
   *out = NULL;
   fg_problem local;
   if (!p) {

@@ -82,14 +82,15 @@ void fg_expr_token_describe(const fg_token *tok, char *buf, size_t cap) {
 
 /* Scans a number starting at s; returns false with a message if it is
  * malformed or out of range. */
-static bool scan_number(fg_lexer *lx, fg_token *tok, char *err,
-                        size_t errcap) {
+static bool scan_number(fg_lexer *lx, fg_token *tok, char *err, size_t errcap) {
   const char *s = lx->src + lx->pos;
   size_t i = 0;
-  while (is_digit(s[i])) i++;
+  while (is_digit(s[i]))
+    i++;
   if (s[i] == '.') {
     i++;
-    while (is_digit(s[i])) i++;
+    while (is_digit(s[i]))
+      i++;
   }
   if (s[i] == 'e' || s[i] == 'E') {
     size_t j = i + 1;
@@ -97,11 +98,12 @@ static bool scan_number(fg_lexer *lx, fg_token *tok, char *err,
     if (!is_digit(s[j])) {
       snprintf(err, errcap,
                "expected digits after the exponent of '%.*s' but found %s",
-               (int)(j > 40 ? 40 : j), s, s[j] ? "another character"
-                                               : "end of expression");
+               (int)(j > 40 ? 40 : j), s,
+               s[j] ? "another character" : "end of expression");
       return false;
     }
-    while (is_digit(s[j])) j++;
+    while (is_digit(s[j]))
+      j++;
     i = j;
   }
   tok->kind = FG_TOK_NUM;
@@ -136,13 +138,13 @@ static bool scan_operator(fg_lexer *lx, fg_token *tok, char *err,
     char text[3];
     fg_tok_kind kind;
   } ops[] = {
-      {"<=", FG_TOK_LE}, {">=", FG_TOK_GE}, {"==", FG_TOK_EQ},
-      {"!=", FG_TOK_NE}, {"&&", FG_TOK_AND}, {"||", FG_TOK_OR},
-      {"+", FG_TOK_PLUS}, {"-", FG_TOK_MINUS}, {"*", FG_TOK_STAR},
-      {"/", FG_TOK_SLASH}, {"^", FG_TOK_CARET}, {"(", FG_TOK_LPAREN},
+      {"<=", FG_TOK_LE},    {">=", FG_TOK_GE},    {"==", FG_TOK_EQ},
+      {"!=", FG_TOK_NE},    {"&&", FG_TOK_AND},   {"||", FG_TOK_OR},
+      {"+", FG_TOK_PLUS},   {"-", FG_TOK_MINUS},  {"*", FG_TOK_STAR},
+      {"/", FG_TOK_SLASH},  {"^", FG_TOK_CARET},  {"(", FG_TOK_LPAREN},
       {")", FG_TOK_RPAREN}, {"[", FG_TOK_LBRACK}, {"]", FG_TOK_RBRACK},
-      {",", FG_TOK_COMMA}, {":", FG_TOK_COLON}, {"?", FG_TOK_QUESTION},
-      {"<", FG_TOK_LT}, {">", FG_TOK_GT}, {"!", FG_TOK_NOT},
+      {",", FG_TOK_COMMA},  {":", FG_TOK_COLON},  {"?", FG_TOK_QUESTION},
+      {"<", FG_TOK_LT},     {">", FG_TOK_GT},     {"!", FG_TOK_NOT},
   };
   for (size_t i = 0; i < sizeof ops / sizeof ops[0]; i++) {
     size_t n = strlen(ops[i].text);
@@ -170,8 +172,8 @@ static bool scan_operator(fg_lexer *lx, fg_token *tok, char *err,
 bool fg_expr_lex(fg_lexer *lx, fg_token *tok, int *err_col, char *err,
                  size_t errcap) {
   const char *src = lx->src;
-  while (src[lx->pos] == ' ' || src[lx->pos] == '\t' ||
-         src[lx->pos] == '\n' || src[lx->pos] == '\r')
+  while (src[lx->pos] == ' ' || src[lx->pos] == '\t' || src[lx->pos] == '\n' ||
+         src[lx->pos] == '\r')
     lx->pos++;
   memset(tok, 0, sizeof *tok);
   tok->start = src + lx->pos;
@@ -186,7 +188,8 @@ bool fg_expr_lex(fg_lexer *lx, fg_token *tok, int *err_col, char *err,
     return scan_number(lx, tok, err, errcap);
   if (is_name_start(ch)) {
     size_t i = lx->pos;
-    while (is_name_char(src[i])) i++;
+    while (is_name_char(src[i]))
+      i++;
     tok->kind = FG_TOK_NAME;
     tok->len = (int)(i - lx->pos);
     lx->pos = i;

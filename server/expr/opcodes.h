@@ -81,12 +81,12 @@ typedef struct fg_opcode_desc {
 } fg_opcode_desc;
 
 static const fg_opcode_desc fg_opcode_table[] = {
-    {"const", 0}, {"neg", 1},    {"not", 1},    {"abs", 1},   {"sqrt", 1},
-    {"exp", 1},   {"log", 1},    {"log10", 1},  {"floor", 1}, {"ceil", 1},
-    {"round", 1}, {"pos", 1},    {"add", 2},    {"sub", 2},   {"mul", 2},
-    {"div", 2},   {"pow", 2},    {"min", 2},    {"max", 2},   {"lt", 2},
-    {"le", 2},    {"gt", 2},     {"ge", 2},     {"eq", 2},    {"ne", 2},
-    {"and", 2},   {"or", 2},     {"select", 3}, {"clamp", 3}, {"muladd", 3},
+    {"const", 0}, {"neg", 1}, {"not", 1},    {"abs", 1},   {"sqrt", 1},
+    {"exp", 1},   {"log", 1}, {"log10", 1},  {"floor", 1}, {"ceil", 1},
+    {"round", 1}, {"pos", 1}, {"add", 2},    {"sub", 2},   {"mul", 2},
+    {"div", 2},   {"pow", 2}, {"min", 2},    {"max", 2},   {"lt", 2},
+    {"le", 2},    {"gt", 2},  {"ge", 2},     {"eq", 2},    {"ne", 2},
+    {"and", 2},   {"or", 2},  {"select", 3}, {"clamp", 3}, {"muladd", 3},
 };
 
 _Static_assert(sizeof fg_opcode_table / sizeof fg_opcode_table[0] ==

@@ -62,13 +62,13 @@ static const struct {
   fg_func fn;
   int min_args, max_args; /* max -1: any number */
 } functions[] = {
-    {"abs", FG_FN_ABS, 1, 1},     {"sqrt", FG_FN_SQRT, 1, 1},
-    {"exp", FG_FN_EXP, 1, 1},     {"log", FG_FN_LOG, 1, 1},
-    {"log10", FG_FN_LOG10, 1, 1}, {"floor", FG_FN_FLOOR, 1, 1},
-    {"ceil", FG_FN_CEIL, 1, 1},   {"round", FG_FN_ROUND, 1, 1},
-    {"pos", FG_FN_POS, 1, 1},     {"min", FG_FN_MIN, 1, -1},
-    {"max", FG_FN_MAX, 1, -1},    {"sum", FG_FN_SUM, 1, 1},
-    {"mean", FG_FN_MEAN, 1, 1},   {"dot", FG_FN_DOT, 2, 2},
+    {"abs", FG_FN_ABS, 1, 1},       {"sqrt", FG_FN_SQRT, 1, 1},
+    {"exp", FG_FN_EXP, 1, 1},       {"log", FG_FN_LOG, 1, 1},
+    {"log10", FG_FN_LOG10, 1, 1},   {"floor", FG_FN_FLOOR, 1, 1},
+    {"ceil", FG_FN_CEIL, 1, 1},     {"round", FG_FN_ROUND, 1, 1},
+    {"pos", FG_FN_POS, 1, 1},       {"min", FG_FN_MIN, 1, -1},
+    {"max", FG_FN_MAX, 1, -1},      {"sum", FG_FN_SUM, 1, 1},
+    {"mean", FG_FN_MEAN, 1, 1},     {"dot", FG_FN_DOT, 2, 2},
     {"length", FG_FN_LENGTH, 1, 1}, {"running_sum", FG_FN_RUNNING_SUM, 1, 1},
     {"clamp", FG_FN_CLAMP, 3, 3},
 };
@@ -100,11 +100,12 @@ static const struct {
   fg_tok_kind tok;
   int level;
 } binops[] = {
-    {FG_TOK_OR, LEVEL_OR},   {FG_TOK_AND, LEVEL_AND}, {FG_TOK_LT, LEVEL_CMP},
-    {FG_TOK_LE, LEVEL_CMP},  {FG_TOK_GT, LEVEL_CMP},  {FG_TOK_GE, LEVEL_CMP},
-    {FG_TOK_EQ, LEVEL_CMP},  {FG_TOK_NE, LEVEL_CMP},  {FG_TOK_PLUS, LEVEL_ADD},
-    {FG_TOK_MINUS, LEVEL_ADD}, {FG_TOK_STAR, LEVEL_MUL},
-    {FG_TOK_SLASH, LEVEL_MUL},
+    {FG_TOK_OR, LEVEL_OR},    {FG_TOK_AND, LEVEL_AND},
+    {FG_TOK_LT, LEVEL_CMP},   {FG_TOK_LE, LEVEL_CMP},
+    {FG_TOK_GT, LEVEL_CMP},   {FG_TOK_GE, LEVEL_CMP},
+    {FG_TOK_EQ, LEVEL_CMP},   {FG_TOK_NE, LEVEL_CMP},
+    {FG_TOK_PLUS, LEVEL_ADD}, {FG_TOK_MINUS, LEVEL_ADD},
+    {FG_TOK_STAR, LEVEL_MUL}, {FG_TOK_SLASH, LEVEL_MUL},
 };
 
 static int binop_level(fg_tok_kind k) {
@@ -334,7 +335,8 @@ static fg_node *parse_primary(parser *ps) {
 /* postfix := primary { '[' INT [':' INT] ']' } */
 static fg_node *parse_postfix(parser *ps) {
   fg_node *n = parse_primary(ps);
-  while (n && ps->tok.kind == FG_TOK_LBRACK) {
+  if (!n) return NULL;
+  while (ps->tok.kind == FG_TOK_LBRACK) {
     int col = ps->tok.col;
     advance(ps);
     /* the node's column is the index's own, where range errors point */
@@ -345,8 +347,8 @@ static fg_node *parse_postfix(parser *ps) {
       ix->kind = FG_N_SLICE;
       if (!parse_int_index(ps, &ix->i1)) return NULL;
     }
-    if (!expect(ps, FG_TOK_RBRACK, ix->kind == FG_N_SLICE ? "']'"
-                                                          : "':' or ']'"))
+    if (!expect(ps, FG_TOK_RBRACK,
+                ix->kind == FG_N_SLICE ? "']'" : "':' or ']'"))
       return NULL;
     ix->nkids = 1;
     ix->kids = fg_expr_arena_alloc(ps->arena, sizeof *ix->kids);

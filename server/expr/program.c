@@ -4,20 +4,22 @@
  * program's accessors and listing.
  *
  * Design, in passes over the SSA instruction list emit.c produced:
- *   1. liveness from the roots (row excesses, the objective) backwards;
+ *   1. a post-order walk from the roots (row excesses, the objective):
  *      instructions nobody needs are dropped (an unused definition, the
- *      argument of length());
+ *      argument of length()), the rest are ordered so that each value is
+ *      computed close to its first use;
  *   2. split: deterministic instructions form the setup stream, the rest
- *      the block stream, each in its original order;
+ *      the block stream, each keeping the walk's order;
  *   3. last use of every virtual register over setup ++ block;
  *   4. linear scan: each instruction takes a free physical register for
  *      its result *before* its operands that die there are released, so a
  *      destination never aliases a source (interp.c's restrict contract).
  *      Input registers keep their fixed places [0, ndecision + nuncertain)
  *      and roots are never released, so rows and the objective stay
- *      readable after a run. A setup register that dies inside setup may be
- *      reused by the block stream: broadcast copies it, the block stream
- *      writes it before reading it.
+ *      readable after a run; nor is a setup value the block stream reads,
+ *      since every block run needs the broadcast copy again. A setup
+ *      register that dies inside setup may be reused by the block stream:
+ *      broadcast copies it, the block stream writes it before reading it.
  * The result is a few live registers per vector pipeline rather than one
  * per element ever computed, which keeps the block register file
  * (nregs * FG_BLOCK doubles per worker) small.
@@ -48,46 +50,66 @@ static int srcs_of(const fg_insn *in, int out[3]) {
   return n;
 }
 
-/* Pass 1: marks needed instructions; returns the ordered index list of
- * setup ++ block in *order and the setup count. */
-static bool select_live(fg_expr_compiler *c, int **order, int *norder,
-                        int *nsetup) {
-  bool *need = calloc((size_t)c->nvregs + 1, sizeof *need);
+/* Passes 1 and 2: a post-order walk from the roots (rows in order, then
+ * the objective) lists every needed instruction after the instructions it
+ * reads; instructions the walk never reaches are dead. Walking from the
+ * roots rather than keeping emission order interleaves element-wise
+ * pipelines element by element (a vector expression is emitted operator by
+ * operator), so temporaries die right after they are made. The list is
+ * then split, stably, into setup (deterministic) and block instructions;
+ * deterministic instructions read only deterministic ones, so both halves
+ * stay in dependency order. The walk uses an explicit stack: a reduction
+ * over a long vector is a chain as long as the vector. */
+static bool schedule(fg_expr_compiler *c, int **order, int *norder,
+                     int *nsetup) {
+  unsigned char *state = calloc((size_t)c->ninsns + 1, 1);
+  int *stack = malloc(sizeof *stack * (3 * (size_t)c->ninsns + 2));
+  int *post = malloc(sizeof *post * ((size_t)c->ninsns + 1));
   int *ord = malloc(sizeof *ord * ((size_t)c->ninsns + 1));
-  if (!need || !ord) {
-    free(need);
+  if (!state || !stack || !post || !ord) {
+    free(state);
+    free(stack);
+    free(post);
     free(ord);
     return false;
   }
-  for (int i = 0; i < c->nrows; i++) need[c->rows[i].excess_reg] = true;
-  if (c->objective.reg >= 0) need[c->objective.reg] = true;
-  for (int k = c->ninsns - 1; k >= 0; k--) {
-    const fg_insn *in = &c->insns[k];
-    if (!need[in->d]) continue;
-    int s[3], n = srcs_of(in, s);
-    for (int j = 0; j < n; j++) need[s[j]] = true;
+  int npost = 0;
+  for (int root = 0; root <= c->nrows; root++) {
+    int reg = root < c->nrows ? c->rows[root].excess_reg : c->objective.reg;
+    if (reg < 0 || c->vregs[reg].def < 0) continue;
+    int top = 0;
+    stack[top++] = c->vregs[reg].def;
+    while (top > 0) {
+      int k = stack[top - 1];
+      if (state[k] == 0) { /* first visit: operands first */
+        state[k] = 1;
+        int s[3], n = srcs_of(&c->insns[k], s);
+        for (int j = n - 1; j >= 0; j--) {
+          int d = c->vregs[s[j]].def;
+          if (d >= 0 && state[d] == 0) stack[top++] = d;
+        }
+      } else {
+        top--;
+        if (state[k] == 1) { /* operands done */
+          state[k] = 2;
+          post[npost++] = k;
+        }
+      }
+    }
   }
   int n = 0;
   for (int pass = 0; pass < 2; pass++) {
-    for (int k = 0; k < c->ninsns; k++) {
-      const fg_insn *in = &c->insns[k];
-      if (need[in->d] && c->vregs[in->d].uncertain == (pass == 1))
-        ord[n++] = k;
-    }
+    for (int i = 0; i < npost; i++)
+      if (c->vregs[c->insns[post[i]].d].uncertain == (pass == 1))
+        ord[n++] = post[i];
     if (pass == 0) *nsetup = n;
   }
-  free(need);
+  free(state);
+  free(stack);
+  free(post);
   *order = ord;
   *norder = n;
   return true;
-}
-
-/* Setup instructions come first in `order`: the prefix whose results do
- * not depend on an uncertain input. */
-static int nsetup_of(const int *order, int norder, const fg_expr_compiler *c) {
-  int n = 0;
-  while (n < norder && !c->vregs[c->insns[order[n]].d].uncertain) n++;
-  return n;
 }
 
 static int take_reg(alloc_state *as) {
@@ -95,7 +117,7 @@ static int take_reg(alloc_state *as) {
 }
 
 static bool allocate(fg_expr_compiler *c, const int *order, int norder,
-                     alloc_state *as) {
+                     int nsetup, alloc_state *as) {
   int nin = c->ndecision + c->nuncertain;
   as->phys = malloc(sizeof *as->phys * ((size_t)c->nvregs + 1));
   as->lastuse = malloc(sizeof *as->lastuse * ((size_t)c->nvregs + 1));
@@ -103,24 +125,26 @@ static bool allocate(fg_expr_compiler *c, const int *order, int norder,
   if (!as->phys || !as->lastuse || !as->freelist) return false;
   for (int v = 0; v < c->nvregs; v++) {
     as->phys[v] = v < nin ? v : -1;
-    as->lastuse[v] = v < nin ? INT_MAX : -1;
+    as->lastuse[v] = -1;
   }
   for (int i = 0; i < norder; i++) {
     int s[3], n = srcs_of(&c->insns[order[i]], s);
-    for (int j = 0; j < n; j++) as->lastuse[s[j]] = i;
+    for (int j = 0; j < n; j++)
+      as->lastuse[s[j]] = i;
   }
   for (int i = 0; i < c->nrows; i++)
     as->lastuse[c->rows[i].excess_reg] = INT_MAX;
   if (c->objective.reg >= 0) as->lastuse[c->objective.reg] = INT_MAX;
-  /* Inputs keep their places for good. A setup value the block stream
-   * reads must survive every run of the block stream, so it is never
-   * released either (the block stream runs once per block, and a reuse
-   * would overwrite the broadcast value before the next block reads it). */
-  for (int v = 0; v < nin && v < c->nvregs; v++) as->lastuse[v] = INT_MAX;
-  for (int i = 0; i < nsetup_of(order, norder, c); i++) {
+  for (int v = 0; v < nin; v++)
+    as->lastuse[v] = INT_MAX;
+  /* Inputs keep their places for good (above). A setup value the
+   * block stream reads must survive every run of the block stream, so it
+   * is never released either: the block stream runs once per block, and a
+   * reuse would overwrite the broadcast value before the next block reads
+   * it. */
+  for (int i = 0; i < nsetup; i++) {
     int d = c->insns[order[i]].d;
-    if (as->lastuse[d] >= nsetup_of(order, norder, c))
-      as->lastuse[d] = INT_MAX;
+    if (as->lastuse[d] >= nsetup) as->lastuse[d] = INT_MAX;
   }
   as->nfree = 0;
   as->next = nin;
@@ -130,17 +154,18 @@ static bool allocate(fg_expr_compiler *c, const int *order, int norder,
     int s[3], n = srcs_of(in, s);
     for (int j = 0; j < n; j++) {
       bool dup = false;
-      for (int q = 0; q < j; q++) dup |= s[q] == s[j];
-      if (!dup && as->lastuse[s[j]] == i) as->freelist[as->nfree++] =
-          as->phys[s[j]];
+      for (int q = 0; q < j; q++)
+        dup |= s[q] == s[j];
+      if (!dup && as->lastuse[s[j]] == i)
+        as->freelist[as->nfree++] = as->phys[s[j]];
     }
   }
   return true;
 }
 
-static fg_status build(fg_expr_compiler *c, fg_program *prog,
-                       const int *order, int norder, int nsetup,
-                       const alloc_state *as, fg_problem *p) {
+static fg_status build(fg_expr_compiler *c, fg_program *prog, const int *order,
+                       int norder, int nsetup, const alloc_state *as,
+                       fg_problem *p) {
   fg_program_info *info = &prog->info;
   info->nregs = as->next;
   if (info->nregs > FG_PROGRAM_MAX_REGS)
@@ -179,7 +204,8 @@ static fg_status build(fg_expr_compiler *c, fg_program *prog,
     prog->setup_span[i] = c->spans[order[i]];
     if (i < nsetup) written[in.d] = true;
   }
-  for (int r = 0; r < c->ndecision; r++) written[r] = true;
+  for (int r = 0; r < c->ndecision; r++)
+    written[r] = true;
   prog->nbcast = 0;
   for (int r = 0; r < info->nregs; r++)
     if (written[r]) prog->bcast[prog->nbcast++] = r;
@@ -211,8 +237,8 @@ fg_status fg_expr_build_program(fg_expr_compiler *c, fg_program **out,
   int *order = NULL, norder = 0, nsetup = 0;
   alloc_state as = {0};
   fg_status st = FG_OK;
-  if (!prog || !select_live(c, &order, &norder, &nsetup) ||
-      !allocate(c, order, norder, &as)) {
+  if (!prog || !schedule(c, &order, &norder, &nsetup) ||
+      !allocate(c, order, norder, nsetup, &as)) {
     st = fg_problem_set(p, FG_ENOMEM, "out of memory");
     goto done;
   }
@@ -236,7 +262,8 @@ void fg_program_free(fg_program *prog) {
   free(prog->setup_span);
   free(prog->rows);
   free(prog->bcast);
-  for (int i = 0; i < prog->npointers; i++) free(prog->pointers[i]);
+  for (int i = 0; i < prog->npointers; i++)
+    free(prog->pointers[i]);
   free(prog->pointers);
   free(prog);
 }
