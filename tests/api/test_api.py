@@ -6,8 +6,9 @@ SQLite store (the binary comes from $FEASGATE_BIN), reads the bound address
 from the first line of its standard error, and exercises the API contract:
 model registration and versions, synchronous and asynchronous checks, the
 check log with filters and paging, problem documents for bad input, routing
-errors, body limits, retiring, start-up settings, a clean stop on SIGTERM
-and the store surviving a restart.
+errors, body limits, retiring, start-up settings, a clean stop on SIGTERM,
+the store surviving a restart, and a SIGKILL while a check runs (answered
+checks kept, the running one marked interrupted, the file intact).
 
 Standard library only. Prints one line per failed check and
 "N passed, N failed" as the last line; exits non-zero on any failure.
@@ -17,6 +18,7 @@ import json
 import os
 import re
 import signal
+import sqlite3
 import subprocess
 import sys
 import tempfile
@@ -26,6 +28,9 @@ import time
 BIN = os.environ.get("FEASGATE_BIN", "build/feasgate")
 START_TIMEOUT_S = 20
 STOP_TIMEOUT_S = 60
+# Large enough that a check asked to wait 0 s is still running when
+# answered (202), small enough to end within seconds on 2 cores.
+ASYNC_SAMPLES = 20000000
 
 passed = 0
 failed = 0
@@ -268,7 +273,9 @@ def test_checks(d, name, d1, d2):
                            "expect_digest": d1, "label": "api v1"})
     check(st == 201 and b3.get("model", {}).get("version") == 1,
           "check version 1: 201, got %s" % st)
-    check(isinstance(b3.get("seed"), int), "drawn seed reported")
+    seed = b3.get("seed")
+    check(isinstance(seed, (int, float)) and seed == int(seed)
+          and 0 <= seed <= 2 ** 53 - 1, "drawn seed reported, got %r" % seed)
     st, h, b4 = d.request("POST", "/v1/models/%s/checks" % name,
                           {"decision": CANDIDATE, "samples": 5000,
                            "expect_digest": d1})
@@ -406,7 +413,7 @@ def test_bad_input(d, name):
 
 def test_async(d, name):
     st, h, b = d.request("POST", "/v1/models/%s/checks" % name,
-                         {"decision": CANDIDATE, "samples": 3000000,
+                         {"decision": CANDIDATE, "samples": ASYNC_SAMPLES,
                           "seed": 3, "wait_s": 0})
     check(st in (201, 202), "async check: 201 or 202, got %s" % st)
     cid = b.get("id") if isinstance(b, dict) else None
@@ -423,7 +430,7 @@ def test_async(d, name):
             time.sleep(0.2)
         check(last.get("status") == "done", "async check ends done, got %r"
               % last.get("status"))
-        check(last.get("joint", {}).get("samples") == 3000000,
+        check(last.get("joint", {}).get("samples") == ASYNC_SAMPLES,
               "async check: all samples")
 
 
@@ -542,6 +549,46 @@ def test_usage(tmp):
     check(d.stop() == 0, "twin test: exit 0")
 
 
+def test_crash(tmp):
+    """SIGKILL while a check runs: answered checks stay, the running one
+    becomes interrupted at the next start, the file is intact."""
+    path = "%s/crash.db" % tmp
+    d = Daemon("sqlite:" + path)
+    if not check(d.address is not None, "crash daemon started"):
+        d.stop()
+        return
+    d.request("POST", "/v1/models", model_doc("api-crash"))
+    st, h, done = d.request("POST", "/v1/models/api-crash/checks",
+                            {"decision": CANDIDATE, "samples": 10000,
+                             "seed": 1})
+    check(st == 201, "crash: finished check 201")
+    st, h, running = d.request("POST", "/v1/models/api-crash/checks",
+                               {"decision": CANDIDATE, "samples": 900000000,
+                                "seed": 2, "wait_s": 0})
+    check(st == 202, "crash: long check 202, got %s" % st)
+    d.proc.kill()
+    d.proc.wait()
+    d.thread.join(5)
+    d = Daemon("sqlite:" + path)
+    if check(d.address is not None, "restart after SIGKILL"):
+        st, h, b = d.request("GET", "/v1/checks/" + done.get("id", "?"))
+        check(st == 200 and b == done, "answered check kept across a crash")
+        st, h, b = d.request("GET", "/v1/checks/" + running.get("id", "?"))
+        check(st == 200 and b.get("status") == "interrupted",
+              "running check marked interrupted, got %s %r"
+              % (st, b.get("status") if isinstance(b, dict) else b))
+        st, h, b = d.request("GET", "/v1/checks?model=api-crash")
+        check(st == 200 and len(b.get("checks", [])) == 2,
+              "crash: both checks listed")
+    check(d.stop() == 0, "restarted after crash: exit 0")
+    db = sqlite3.connect(path)
+    try:
+        row = db.execute("PRAGMA integrity_check").fetchone()
+    finally:
+        db.close()
+    check(row == ("ok",), "store integrity after a crash, got %r" % (row,))
+
+
 def main():
     if not os.path.exists(BIN):
         print("FEASGATE_BIN %s does not exist" % BIN)
@@ -589,6 +636,7 @@ def main():
 
         test_body_limit(tmp)
         test_usage(tmp)
+        test_crash(tmp)
     print("%d passed, %d failed" % (passed, failed))
     return 1 if failed else 0
 
