@@ -9,7 +9,10 @@
  *   compile.c  syntax tree -> values (arrays of operands), asking emit.c
  *              for every instruction;
  *   emit.c     virtual registers, constants, constant folding, emission;
- *   compiler.c the public entry points, the symbol table, rows;
+ *   compiler.c the public entry points: symbol table, names, handing
+ *              over expressions (length and syntax checked at once);
+ *   items.c    fg_expr_finish: every expression compiled in document
+ *              order, definitions kept, constraint rows, the objective;
  *   program.c  finishing: dead code removal, setup/block split, register
  *              allocation, limits, listing;
  *   interp.c   the batched interpreter (also used by the folder).
