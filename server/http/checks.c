@@ -57,7 +57,8 @@ void fg_http_check_id(char out[40]) {
   if (getrandom(rnd, sizeof rnd, 0) != (ssize_t)sizeof rnd) {
     /* No entropy: fall back to the clock; monotonicity still holds. */
     uint64_t x = (uint64_t)ts.tv_nsec * 0x9E3779B97F4A7C15ull;
-    for (size_t i = 0; i < sizeof rnd; i++) rnd[i] = (uint8_t)(x >> (i * 6));
+    for (size_t i = 0; i < sizeof rnd; i++)
+      rnd[i] = (uint8_t)(x >> (i * 6));
   }
   pthread_mutex_lock(&id_lock);
   if (ms <= id_last_ms) {
@@ -71,7 +72,8 @@ void fg_http_check_id(char out[40]) {
   pthread_mutex_unlock(&id_lock);
 
   uint8_t bytes[16];
-  for (int i = 0; i < 6; i++) bytes[i] = (uint8_t)(ms >> (8 * (5 - i)));
+  for (int i = 0; i < 6; i++)
+    bytes[i] = (uint8_t)(ms >> (8 * (5 - i)));
   memcpy(bytes + 6, rnd, sizeof rnd);
   /* 26 groups of 5 bits over 130 bits: two zero bits, then the 128. */
   memcpy(out, "chk_", 4);
@@ -104,13 +106,17 @@ static double number_at(const cJSON *o, const char *a, const char *b,
 }
 
 static void add_number_or_null(cJSON *o, const char *name, double v) {
-  if (isfinite(v)) cJSON_AddNumberToObject(o, name, v);
-  else cJSON_AddNullToObject(o, name);
+  if (isfinite(v))
+    cJSON_AddNumberToObject(o, name, v);
+  else
+    cJSON_AddNullToObject(o, name);
 }
 
 static void add_string_or_null(cJSON *o, const char *name, const char *s) {
-  if (s && s[0]) cJSON_AddStringToObject(o, name, s);
-  else cJSON_AddNullToObject(o, name);
+  if (s && s[0])
+    cJSON_AddStringToObject(o, name, s);
+  else
+    cJSON_AddNullToObject(o, name);
 }
 
 /* The summary of a stored check, as listed (and as the body of a check
@@ -205,8 +211,10 @@ fg_status fg_http_record_end(fg_store *store, fg_check *c,
     if (st != FG_OK) cJSON_AddStringToObject(ev, "store_error", p->detail);
     fg_log_emit(st == FG_OK ? FG_LOG_INFO : FG_LOG_ERROR, ev);
   }
-  if (body) *body = res;
-  else cJSON_Delete(res);
+  if (body)
+    *body = res;
+  else
+    cJSON_Delete(res);
   return st;
 }
 
@@ -233,8 +241,7 @@ void fg_h_checks_create(fg_req *r, fg_resp *out) {
     version = fg_http_parse_version(r->params[1]);
     if (version < 1) {
       fg_resp_error(out, 404, FG_ENOTFOUND,
-                    "model '%.64s' has no version '%.32s'", name,
-                    r->params[1]);
+                    "model '%.64s' has no version '%.32s'", name, r->params[1]);
       return;
     }
   }
@@ -411,16 +418,24 @@ static enum MHD_Result collect_arg(void *cls, enum MHD_ValueKind kind,
                                    const char *key, const char *value) {
   list_query *q = cls;
   const char **slot = NULL;
-  if (strcmp(key, "model") == 0) slot = &q->model;
-  else if (strcmp(key, "verdict") == 0) slot = &q->verdict;
-  else if (strcmp(key, "since") == 0) slot = &q->since;
-  else if (strcmp(key, "label") == 0) slot = &q->label;
-  else if (strcmp(key, "limit") == 0) slot = &q->limit;
-  else if (strcmp(key, "after") == 0) slot = &q->after;
+  if (strcmp(key, "model") == 0)
+    slot = &q->model;
+  else if (strcmp(key, "verdict") == 0)
+    slot = &q->verdict;
+  else if (strcmp(key, "since") == 0)
+    slot = &q->since;
+  else if (strcmp(key, "label") == 0)
+    slot = &q->label;
+  else if (strcmp(key, "limit") == 0)
+    slot = &q->limit;
+  else if (strcmp(key, "after") == 0)
+    slot = &q->after;
   if (!slot) {
     if (!q->unknown[0]) {
-      if (key[0]) snprintf(q->unknown, sizeof q->unknown, "%s", key);
-      else q->empty_name = true;
+      if (key[0])
+        snprintf(q->unknown, sizeof q->unknown, "%s", key);
+      else
+        q->empty_name = true;
     }
     return MHD_YES;
   }
@@ -432,8 +447,7 @@ static enum MHD_Result collect_arg(void *cls, enum MHD_ValueKind kind,
  * the form created_at is stored in. Fractions of a second are dropped. */
 static bool normalise_time(const char *s, char out[32]) {
   int y, mo, d, h = 0, mi = 0, se = 0, n = 0;
-  if (sscanf(s, "%4d-%2d-%2d%n", &y, &mo, &d, &n) != 3 || n != 10)
-    return false;
+  if (sscanf(s, "%4d-%2d-%2d%n", &y, &mo, &d, &n) != 3 || n != 10) return false;
   const char *t = s + n;
   long offset_s = 0;
   if (*t) {
@@ -446,7 +460,8 @@ static bool normalise_time(const char *s, char out[32]) {
     if (*t == '.') {
       t++;
       if (!isdigit((unsigned char)*t)) return false;
-      while (isdigit((unsigned char)*t)) t++;
+      while (isdigit((unsigned char)*t))
+        t++;
     }
     if (*t == 'Z' || *t == 'z') {
       t++;
@@ -464,8 +479,12 @@ static bool normalise_time(const char *s, char out[32]) {
   }
   if (mo < 1 || mo > 12 || d < 1 || d > 31 || h > 23 || mi > 59 || se > 60)
     return false;
-  struct tm tm = {.tm_year = y - 1900, .tm_mon = mo - 1, .tm_mday = d,
-                  .tm_hour = h, .tm_min = mi, .tm_sec = se > 59 ? 59 : se};
+  struct tm tm = {.tm_year = y - 1900,
+                  .tm_mon = mo - 1,
+                  .tm_mday = d,
+                  .tm_hour = h,
+                  .tm_min = mi,
+                  .tm_sec = se > 59 ? 59 : se};
   time_t when = timegm(&tm);
   if (when == (time_t)-1) return false;
   if (tm.tm_mday != d || tm.tm_mon != mo - 1) return false; /* Feb 30 */

@@ -46,17 +46,16 @@ static const opt_def options[] = {
      "HOST:PORT to listen on (port 0: any free port)"},
     {"--store", "FEASGATE_STORE", OPT_STRING, OFF(store), 1, FG_HTTP_URL_MAX,
      "store URL, sqlite:PATH"},
-    {"--workers", "FEASGATE_WORKERS", OPT_INT, OFF(workers), 1,
-     FG_WORKERS_MAX, "simulation worker threads"},
+    {"--workers", "FEASGATE_WORKERS", OPT_INT, OFF(workers), 1, FG_WORKERS_MAX,
+     "simulation worker threads"},
     {"--chunk", "FEASGATE_CHUNK", OPT_INT, OFF(chunk), FG_CHUNK_MIN,
      FG_CHUNK_MAX, "samples per worker task (a multiple of FG_BLOCK)"},
     {"--queue", "FEASGATE_QUEUE", OPT_INT, OFF(queue), 1, FG_HTTP_QUEUE_MAX,
      "checks waiting for a worker at most"},
     {"--max-body", "FEASGATE_MAX_BODY", OPT_BYTES, OFF(max_body), 1,
      (double)FG_MAX_BODY_HARD, "largest request body in bytes (K, M, G ok)"},
-    {"--max-samples", "FEASGATE_MAX_SAMPLES", OPT_U64,
-     OFF(limits.max_samples), 1, (double)FG_MAX_SAMPLES_HARD,
-     "most samples one check may ask for"},
+    {"--max-samples", "FEASGATE_MAX_SAMPLES", OPT_U64, OFF(limits.max_samples),
+     1, (double)FG_MAX_SAMPLES_HARD, "most samples one check may ask for"},
     {"--max-scenarios", "FEASGATE_MAX_SCENARIOS", OPT_U64,
      OFF(limits.max_scenarios), 1, (double)FG_HTTP_MAX_SCENARIOS_HARD,
      "most scenarios one request may ask for"},
@@ -150,8 +149,8 @@ static int set_value(fg_http_config *cfg, const opt_def *o, const char *where,
     if (!v[0] || *end || errno || n < (long)o->min || n > (long)o->max)
       return fail(err, cap, where, v, expected);
     if (o->offset == OFF(chunk) && n % FG_BLOCK != 0) {
-      snprintf(expected, sizeof expected,
-               "a multiple of %d from %.0f to %.0f", FG_BLOCK, o->min, o->max);
+      snprintf(expected, sizeof expected, "a multiple of %d from %.0f to %.0f",
+               FG_BLOCK, o->min, o->max);
       return fail(err, cap, where, v, expected);
     }
     *(int *)(void *)field = (int)n;
@@ -160,18 +159,23 @@ static int set_value(fg_http_config *cfg, const opt_def *o, const char *where,
   case OPT_U64:
   case OPT_BYTES: {
     snprintf(expected, sizeof expected, "a whole number from %.0f to %.0f%s",
-             o->min, o->max, o->kind == OPT_BYTES ? " (suffix K, M or G for "
-                                                    "KiB, MiB, GiB)"
-                                                  : "");
+             o->min, o->max,
+             o->kind == OPT_BYTES ? " (suffix K, M or G for "
+                                    "KiB, MiB, GiB)"
+                                  : "");
     if (!v[0] || v[0] == '-') return fail(err, cap, where, v, expected);
     unsigned long long n = strtoull(v, &end, 10);
     if (errno || end == v) return fail(err, cap, where, v, expected);
     unsigned long long mult = 1;
     if (o->kind == OPT_BYTES && *end) {
-      if (*end == 'K' || *end == 'k') mult = 1ull << 10;
-      else if (*end == 'M' || *end == 'm') mult = 1ull << 20;
-      else if (*end == 'G' || *end == 'g') mult = 1ull << 30;
-      else return fail(err, cap, where, v, expected);
+      if (*end == 'K' || *end == 'k')
+        mult = 1ull << 10;
+      else if (*end == 'M' || *end == 'm')
+        mult = 1ull << 20;
+      else if (*end == 'G' || *end == 'g')
+        mult = 1ull << 30;
+      else
+        return fail(err, cap, where, v, expected);
       end++;
     }
     if (*end || n > (unsigned long long)o->max / mult ||
@@ -214,14 +218,14 @@ static void usage(FILE *f) {
 static bool flag_given(int argc, char **argv, const char *flag) {
   size_t n = strlen(flag);
   for (int a = 1; a < argc; a++)
-    if (strncmp(argv[a], flag, n) == 0 && (argv[a][n] == '\0' ||
-                                            argv[a][n] == '='))
+    if (strncmp(argv[a], flag, n) == 0 &&
+        (argv[a][n] == '\0' || argv[a][n] == '='))
       return true;
   return false;
 }
 
-int fg_http_config_parse(int argc, char **argv, fg_http_config *cfg,
-                         char *err, size_t errcap) {
+int fg_http_config_parse(int argc, char **argv, fg_http_config *cfg, char *err,
+                         size_t errcap) {
   defaults(cfg);
   err[0] = '\0';
   /* A twin is not even read when its flag is given: the flag wins, also

@@ -81,8 +81,8 @@ typedef struct fg_http_config {
  * name and is skipped). Returns 0 when the configuration is complete, 1 when
  * --help was asked (usage printed to stdout), -1 on a bad value (message
  * in err). */
-int fg_http_config_parse(int argc, char **argv, fg_http_config *cfg,
-                         char *err, size_t errcap);
+int fg_http_config_parse(int argc, char **argv, fg_http_config *cfg, char *err,
+                         size_t errcap);
 
 /* The whole `feasgate serve` subcommand (argv[0] = "serve"). */
 int fg_serve_command(int argc, char **argv);

@@ -74,7 +74,7 @@ typedef struct fg_req {
   bool too_large;
   size_t discarded; /* bytes of a refused body thrown away */
   bool responded;
-  double t0; /* monotonic seconds at the first call */
+  double t0;         /* monotonic seconds at the first call */
   const char *route; /* the matched pattern, for the log */
   int nparams;
   char params[FG_ROUTE_PARAMS][FG_HTTP_PATH_MAX + 1];
@@ -107,8 +107,8 @@ void fg_resp_json(fg_resp *out, int status, cJSON *body);
 /* The problem document of `p`; http_status 0 = fg_status_http(p->status). */
 void fg_resp_problem(fg_resp *out, const fg_problem *p, int http_status);
 /* A whole-request problem in one call. */
-void fg_resp_error(fg_resp *out, int http_status, fg_status st,
-                   const char *fmt, ...) __attribute__((format(printf, 4, 5)));
+void fg_resp_error(fg_resp *out, int http_status, fg_status st, const char *fmt,
+                   ...) __attribute__((format(printf, 4, 5)));
 /* The problem document as a cJSON object (for tests and the log). */
 cJSON *fg_problem_json(const fg_problem *p, int http_status);
 
@@ -135,8 +135,7 @@ int fg_http_parse_version(const char *s);
 /* The stored version `version` (0 = latest) of `name` and its compiled
  * model (from the cache, or compiled and cached). */
 fg_status fg_http_load_model(fg_server *srv, const char *name, int version,
-                             fg_store_version *v, fg_model **m,
-                             fg_problem *p);
+                             fg_store_version *v, fg_model **m, fg_problem *p);
 
 /* ---- checks.c ---- */
 void fg_h_checks_create(fg_req *r, fg_resp *out);

@@ -32,9 +32,13 @@ static const char *level_name(fg_log_level l) {
   return "info";
 }
 
-void fg_log_set_level(fg_log_level level) { threshold = level; }
+void fg_log_set_level(fg_log_level level) {
+  threshold = level;
+}
 
-bool fg_log_enabled(fg_log_level level) { return level >= threshold; }
+bool fg_log_enabled(fg_log_level level) {
+  return level >= threshold;
+}
 
 double fg_http_now(void) {
   struct timespec ts;

@@ -35,8 +35,7 @@ int fg_http_parse_version(const char *s) {
 }
 
 fg_status fg_http_load_model(fg_server *srv, const char *name, int version,
-                             fg_store_version *v, fg_model **m,
-                             fg_problem *p) {
+                             fg_store_version *v, fg_model **m, fg_problem *p) {
   *m = NULL;
   fg_status st = fg_store_get_version(srv->store, name, version, v, p);
   if (st != FG_OK) return st;
@@ -74,8 +73,10 @@ static cJSON *registration_body(const fg_store_version *v, const fg_model *m) {
   cJSON_AddStringToObject(o, "digest", v->digest);
   cJSON_AddStringToObject(o, "created_at", v->created_at);
   cJSON *summary = fg_model_summary_json(m);
-  if (summary) cJSON_AddItemToObject(o, "summary", summary);
-  else cJSON_AddNullToObject(o, "summary");
+  if (summary)
+    cJSON_AddItemToObject(o, "summary", summary);
+  else
+    cJSON_AddNullToObject(o, "summary");
   return o;
 }
 
@@ -109,8 +110,8 @@ void fg_h_models_register(fg_req *r, fg_resp *out) {
   fg_log_level lvl = FG_LOG_INFO;
   cJSON *ev = cJSON_CreateObject();
   if (ev) {
-    cJSON_AddStringToObject(ev, "event", created ? "model_registered"
-                                                 : "model_unchanged");
+    cJSON_AddStringToObject(ev, "event",
+                            created ? "model_registered" : "model_unchanged");
     cJSON_AddStringToObject(ev, "model", v.name);
     cJSON_AddNumberToObject(ev, "version", v.version);
     cJSON_AddStringToObject(ev, "digest", v.digest);
@@ -139,8 +140,10 @@ void fg_h_models_list(fg_req *r, fg_resp *out) {
     cJSON_AddNumberToObject(e, "version", list[i].version);
     cJSON_AddStringToObject(e, "digest", list[i].digest);
     cJSON_AddStringToObject(e, "created_at", list[i].created_at);
-    if (list[i].title) cJSON_AddStringToObject(e, "title", list[i].title);
-    else cJSON_AddNullToObject(e, "title");
+    if (list[i].title)
+      cJSON_AddStringToObject(e, "title", list[i].title);
+    else
+      cJSON_AddNullToObject(e, "title");
     cJSON_AddItemToArray(arr, e);
   }
   fg_store_versions_free(list, n);
@@ -154,8 +157,7 @@ static void respond_version(fg_req *r, fg_resp *out, int version) {
   fg_problem_init(&p);
   fg_store_version v;
   fg_model *m = NULL;
-  if (fg_http_load_model(r->srv, r->params[0], version, &v, &m, &p) !=
-      FG_OK) {
+  if (fg_http_load_model(r->srv, r->params[0], version, &v, &m, &p) != FG_OK) {
     fg_resp_problem(out, &p, 0);
     return;
   }
@@ -165,22 +167,30 @@ static void respond_version(fg_req *r, fg_resp *out, int version) {
     cJSON_AddNumberToObject(o, "version", v.version);
     cJSON_AddStringToObject(o, "digest", v.digest);
     cJSON_AddStringToObject(o, "created_at", v.created_at);
-    if (v.title) cJSON_AddStringToObject(o, "title", v.title);
-    else cJSON_AddNullToObject(o, "title");
+    if (v.title)
+      cJSON_AddStringToObject(o, "title", v.title);
+    else
+      cJSON_AddNullToObject(o, "title");
     cJSON_AddBoolToObject(o, "retired", v.retired);
     cJSON *doc = cJSON_Parse(v.document);
-    if (doc) cJSON_AddItemToObject(o, "document", doc);
-    else cJSON_AddNullToObject(o, "document");
+    if (doc)
+      cJSON_AddItemToObject(o, "document", doc);
+    else
+      cJSON_AddNullToObject(o, "document");
     cJSON *summary = fg_model_summary_json(m);
-    if (summary) cJSON_AddItemToObject(o, "summary", summary);
-    else cJSON_AddNullToObject(o, "summary");
+    if (summary)
+      cJSON_AddItemToObject(o, "summary", summary);
+    else
+      cJSON_AddNullToObject(o, "summary");
   }
   fg_model_unref(m);
   fg_store_version_clear(&v);
   fg_resp_json(out, 200, o);
 }
 
-void fg_h_model_get(fg_req *r, fg_resp *out) { respond_version(r, out, 0); }
+void fg_h_model_get(fg_req *r, fg_resp *out) {
+  respond_version(r, out, 0);
+}
 
 void fg_h_model_version_get(fg_req *r, fg_resp *out) {
   int n = fg_http_parse_version(r->params[1]);

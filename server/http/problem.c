@@ -73,11 +73,11 @@ cJSON *fg_problem_json(const fg_problem *p, int http_status) {
              problem_kind(p->status));
   }
   cJSON_AddStringToObject(o, "type", type);
-  cJSON_AddStringToObject(o, "title", p->title[0] ? p->title
-                                                  : reason_phrase(status));
+  cJSON_AddStringToObject(o, "title",
+                          p->title[0] ? p->title : reason_phrase(status));
   cJSON_AddNumberToObject(o, "status", status);
-  cJSON_AddStringToObject(o, "detail", p->detail[0] ? p->detail
-                                                    : reason_phrase(status));
+  cJSON_AddStringToObject(o, "detail",
+                          p->detail[0] ? p->detail : reason_phrase(status));
   if (p->nitems > 0) {
     cJSON *errs = cJSON_AddArrayToObject(o, "errors");
     for (int i = 0; errs && i < p->nitems; i++) {
@@ -150,8 +150,8 @@ void fg_resp_problem(fg_resp *out, const fg_problem *p, int http_status) {
     out->retry_after = FG_HTTP_RETRY_AFTER_S;
 }
 
-void fg_resp_error(fg_resp *out, int http_status, fg_status st,
-                   const char *fmt, ...) {
+void fg_resp_error(fg_resp *out, int http_status, fg_status st, const char *fmt,
+                   ...) {
   fg_problem p;
   fg_problem_init(&p);
   p.status = st;

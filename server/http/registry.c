@@ -125,9 +125,8 @@ fg_status fg_registry_new(fg_store *store, fg_registry **out, fg_problem *p) {
   int rc = pthread_create(&g->watcher, NULL, watch, g);
   if (rc != 0) {
     fg_registry_free(g);
-    return fg_problem_set(p, FG_EINTERNAL,
-                          "registry: cannot start its thread: %s",
-                          strerror(rc));
+    return fg_problem_set(
+        p, FG_EINTERNAL, "registry: cannot start its thread: %s", strerror(rc));
   }
   g->watcher_started = true;
   *out = g;
@@ -182,8 +181,7 @@ static void wait_empty(fg_registry *g, double seconds) {
   struct timespec ts;
   deadline_in(&ts, seconds);
   while (g->count > 0) {
-    if (pthread_cond_timedwait(&g->changed, &g->lock, &ts) == ETIMEDOUT)
-      break;
+    if (pthread_cond_timedwait(&g->changed, &g->lock, &ts) == ETIMEDOUT) break;
   }
 }
 
@@ -198,7 +196,8 @@ void fg_registry_shutdown(fg_registry *g, double grace_s) {
   if (g->count > 0) {
     fg_log_msg(FG_LOG_WARN, "cancelling", "cancelling %d running check(s)",
                g->count);
-    for (fg_held *e = g->head; e; e = e->next) fg_check_cancel(e->check);
+    for (fg_held *e = g->head; e; e = e->next)
+      fg_check_cancel(e->check);
     pthread_cond_signal(&g->wake);
     wait_empty(g, FG_REGISTRY_CANCEL_WAIT_S);
   }

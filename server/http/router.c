@@ -106,8 +106,9 @@ fg_handler *fg_route(fg_req *r, fg_resp *out) {
     fg_problem p;
     fg_problem_init(&p);
     snprintf(p.title, sizeof p.title, "method not allowed");
-    snprintf(p.detail, sizeof p.detail, "%s is not allowed on %.200s; allowed: %s",
-             r->method, r->path, allow);
+    snprintf(p.detail, sizeof p.detail,
+             "%s is not allowed on %.200s; allowed: %s", r->method, r->path,
+             allow);
     fg_resp_problem(out, &p, 405);
     snprintf(out->allow, sizeof out->allow, "%s", allow);
     return NULL;

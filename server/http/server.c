@@ -201,7 +201,8 @@ static enum MHD_Result on_request(void *cls, struct MHD_Connection *conn,
     }
     if (r->len + n + 1 > r->cap) {
       size_t cap = r->cap ? r->cap : FG_HTTP_BODY_INITIAL;
-      while (cap < r->len + n + 1) cap *= 2;
+      while (cap < r->len + n + 1)
+        cap *= 2;
       if (cap > srv->cfg.max_body + 1) cap = (size_t)srv->cfg.max_body + 1;
       char *grown = realloc(r->body, cap);
       if (!grown) {
@@ -227,21 +228,23 @@ static enum MHD_Result on_request(void *cls, struct MHD_Connection *conn,
   fg_resp resp = {0};
   fg_handler *h = fg_route(r, &resp);
   if (h) h(r, &resp);
-  if (resp.status == 0) fg_resp_error(&resp, 500, FG_EINTERNAL,
-                                      "handler for %s gave no answer",
-                                      r->route ? r->route : "?");
+  if (resp.status == 0)
+    fg_resp_error(&resp, 500, FG_EINTERNAL, "handler for %s gave no answer",
+                  r->route ? r->route : "?");
   respond(r, &resp);
   return r->responded ? MHD_YES : MHD_NO;
 }
 
-static void on_completed(void *cls, struct MHD_Connection *conn,
-                         void **con_cls, enum MHD_RequestTerminationCode why) {
+static void on_completed(void *cls, struct MHD_Connection *conn, void **con_cls,
+                         enum MHD_RequestTerminationCode why) {
   fg_server *srv = cls;
   fg_req *r = *con_cls;
   if (!r) return;
   if (!r->responded)
-    fg_log_msg(FG_LOG_DEBUG, "request_aborted", "%s %.200s ended (code %d) "
-               "before an answer", r->method, r->path, (int)why);
+    fg_log_msg(FG_LOG_DEBUG, "request_aborted",
+               "%s %.200s ended (code %d) "
+               "before an answer",
+               r->method, r->path, (int)why);
   free(r->body);
   free(r);
   *con_cls = NULL;
@@ -255,7 +258,8 @@ static void on_mhd_log(void *cls, const char *fmt, va_list ap) {
   char msg[512];
   vsnprintf(msg, sizeof msg, fmt, ap);
   size_t n = strlen(msg);
-  while (n > 0 && (msg[n - 1] == '\n' || msg[n - 1] == '\r')) msg[--n] = '\0';
+  while (n > 0 && (msg[n - 1] == '\n' || msg[n - 1] == '\r'))
+    msg[--n] = '\0';
   fg_log_msg(FG_LOG_WARN, "http_library", "%s", msg);
 }
 
@@ -277,8 +281,7 @@ static int bind_listener(const fg_http_config *cfg, char *addr, size_t cap,
   }
   int fd = -1, saved = 0;
   for (struct addrinfo *ai = res; ai; ai = ai->ai_next) {
-    fd = socket(ai->ai_family, ai->ai_socktype | SOCK_CLOEXEC,
-                ai->ai_protocol);
+    fd = socket(ai->ai_family, ai->ai_socktype | SOCK_CLOEXEC, ai->ai_protocol);
     if (fd < 0) {
       saved = errno;
       continue;
@@ -332,8 +335,10 @@ static void wait_inflight(fg_server *srv, double seconds) {
   int left = srv->inflight;
   pthread_mutex_unlock(&srv->inflight_lock);
   if (left > 0)
-    fg_log_msg(FG_LOG_WARN, "stopping", "%d request(s) still in flight; "
-               "closing their connections", left);
+    fg_log_msg(FG_LOG_WARN, "stopping",
+               "%d request(s) still in flight; "
+               "closing their connections",
+               left);
 }
 
 int fg_serve_command(int argc, char **argv) {
@@ -370,8 +375,8 @@ int fg_serve_command(int argc, char **argv) {
   fg_problem_init(&p);
   char address[INET6_ADDRSTRLEN + 16] = "";
 
-  listen_fd = bind_listener(&srv->cfg, address, sizeof address, err,
-                            sizeof err);
+  listen_fd =
+      bind_listener(&srv->cfg, address, sizeof address, err, sizeof err);
   if (listen_fd < 0) {
     fg_log_msg(FG_LOG_ERROR, "start_failed", "%s", err);
     goto cleanup;
@@ -388,8 +393,8 @@ int fg_serve_command(int argc, char **argv) {
     goto cleanup;
   }
   fg_problem_init(&p);
-  if (fg_pool_new(srv->cfg.workers, srv->cfg.chunk, srv->cfg.queue,
-                  &srv->pool, &p) != FG_OK) {
+  if (fg_pool_new(srv->cfg.workers, srv->cfg.chunk, srv->cfg.queue, &srv->pool,
+                  &p) != FG_OK) {
     fg_log_msg(FG_LOG_ERROR, "start_failed", "worker pool: %s", p.detail);
     goto cleanup;
   }
@@ -440,8 +445,10 @@ int fg_serve_command(int argc, char **argv) {
   int sig = 0;
   while (sigwait(&stop_signals, &sig) != 0) {
   }
-  fg_log_msg(FG_LOG_INFO, "stopping", "signal %d: no new connections; "
-             "finishing requests in flight", sig);
+  fg_log_msg(FG_LOG_INFO, "stopping",
+             "signal %d: no new connections; "
+             "finishing requests in flight",
+             sig);
   atomic_store(&srv->stopping, true);
   MHD_socket lfd = MHD_quiesce_daemon(srv->daemon);
   if (lfd != MHD_INVALID_SOCKET) close(lfd);

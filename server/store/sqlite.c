@@ -120,7 +120,7 @@ enum stmt_id {
 };
 
 #define CHECK_COLUMNS                                                          \
-  "id, model, version, digest, status, verdict, seed, created_at,"            \
+  "id, model, version, digest, status, verdict, seed, created_at,"             \
   " finished_at, elapsed_ms, label, key, probability, lower, upper"
 
 static const char *const stmt_sql[ST_COUNT] = {
@@ -249,9 +249,13 @@ static int exec_stmt(sqlite3_stmt *st) {
   return rc == SQLITE_DONE ? SQLITE_OK : rc;
 }
 
-static int tx_begin(fg_store *s) { return exec_stmt(s->stmt[ST_BEGIN]); }
+static int tx_begin(fg_store *s) {
+  return exec_stmt(s->stmt[ST_BEGIN]);
+}
 
-static int tx_commit(fg_store *s) { return exec_stmt(s->stmt[ST_COMMIT]); }
+static int tx_commit(fg_store *s) {
+  return exec_stmt(s->stmt[ST_COMMIT]);
+}
 
 static void tx_rollback(fg_store *s) {
   if (!sqlite3_get_autocommit(s->db)) exec_stmt(s->stmt[ST_ROLLBACK]);
@@ -302,8 +306,8 @@ static fg_status setup_schema(fg_store *s, fg_problem *p) {
   /* One row in schema_version: insert it for a new file, refuse a newer. */
   sqlite3_stmt *st = NULL;
   long long have = -1;
-  rc = sqlite3_prepare_v2(s->db, "SELECT MAX(version) FROM schema_version",
-                          -1, &st, NULL);
+  rc = sqlite3_prepare_v2(s->db, "SELECT MAX(version) FROM schema_version", -1,
+                          &st, NULL);
   if (rc == SQLITE_OK && sqlite3_step(st) == SQLITE_ROW &&
       sqlite3_column_type(st, 0) != SQLITE_NULL)
     have = sqlite3_column_int64(st, 0);
@@ -333,8 +337,7 @@ static fg_status setup_schema(fg_store *s, fg_problem *p) {
 fg_status fg_store_open(const char *url, fg_store **out, fg_problem *p) {
   *out = NULL;
   if (!url || strncmp(url, "sqlite:", 7) != 0 || url[7] == '\0')
-    return fg_problem_set(p, FG_EINVAL,
-                          "store URL '%s': expected sqlite:PATH",
+    return fg_problem_set(p, FG_EINVAL, "store URL '%s': expected sqlite:PATH",
                           url ? url : "(null)");
   const char *path = url + 7;
   if (strlen(path) >= FG_STORE_PATH_MAX)
@@ -352,10 +355,9 @@ fg_status fg_store_open(const char *url, fg_store **out, fg_problem *p) {
                         path, strerror(errno));
     goto fail;
   }
-  rc = sqlite3_open_v2(path, &s->db,
-                       SQLITE_OPEN_READWRITE | SQLITE_OPEN_CREATE |
-                           SQLITE_OPEN_NOMUTEX,
-                       NULL);
+  rc = sqlite3_open_v2(
+      path, &s->db,
+      SQLITE_OPEN_READWRITE | SQLITE_OPEN_CREATE | SQLITE_OPEN_NOMUTEX, NULL);
   if (rc != SQLITE_OK) {
     st = db_fault(s, p, "open", rc);
     goto fail;
@@ -382,7 +384,8 @@ fail:
 
 void fg_store_close(fg_store *s) {
   if (!s) return;
-  for (int i = 0; i < ST_COUNT; i++) sqlite3_finalize(s->stmt[i]);
+  for (int i = 0; i < ST_COUNT; i++)
+    sqlite3_finalize(s->stmt[i]);
   if (s->db) sqlite3_close(s->db);
   pthread_mutex_destroy(&s->lock);
   free(s);
@@ -409,7 +412,8 @@ void fg_store_version_clear(fg_store_version *v) {
 
 void fg_store_versions_free(fg_store_version *v, int n) {
   if (!v) return;
-  for (int i = 0; i < n; i++) fg_store_version_clear(&v[i]);
+  for (int i = 0; i < n; i++)
+    fg_store_version_clear(&v[i]);
   free(v);
 }
 
@@ -442,8 +446,8 @@ static fg_status get_version_locked(fg_store *s, const char *name, int version,
   if (rc == SQLITE_ROW) {
     if (!read_version_row(st, out, true)) {
       fg_store_version_clear(out);
-      res = fg_problem_set(p, FG_ENOMEM, "store: out of memory reading %s",
-                           name);
+      res =
+          fg_problem_set(p, FG_ENOMEM, "store: out of memory reading %s", name);
     }
   } else if (rc == SQLITE_DONE) {
     if (version > 0)
@@ -537,8 +541,8 @@ fg_status fg_store_get_version(fg_store *s, const char *name, int version,
                                fg_store_version *out, fg_problem *p) {
   memset(out, 0, sizeof *out);
   if (version < 0)
-    return fg_problem_set(p, FG_ENOTFOUND, "model '%s' has no version %d",
-                          name, version);
+    return fg_problem_set(p, FG_ENOTFOUND, "model '%s' has no version %d", name,
+                          version);
   pthread_mutex_lock(&s->lock);
   fg_status res = get_version_locked(s, name, version, out, p);
   pthread_mutex_unlock(&s->lock);
@@ -560,8 +564,9 @@ fg_status fg_store_list_models(fg_store *s, fg_store_version **out, int *n,
       int ncap = cap ? cap * 2 : 16;
       fg_store_version *grown = realloc(arr, (size_t)ncap * sizeof *arr);
       if (!grown) {
-        res = fg_problem_set(p, FG_ENOMEM, "store: out of memory listing "
-                                           "models");
+        res = fg_problem_set(p, FG_ENOMEM,
+                             "store: out of memory listing "
+                             "models");
         break;
       }
       arr = grown;
@@ -629,7 +634,8 @@ void fg_store_check_clear(fg_store_check *c) {
 
 void fg_store_checks_free(fg_store_check *c, int n) {
   if (!c) return;
-  for (int i = 0; i < n; i++) fg_store_check_clear(&c[i]);
+  for (int i = 0; i < n; i++)
+    fg_store_check_clear(&c[i]);
   free(c);
 }
 
@@ -747,8 +753,7 @@ fg_status fg_store_get_check(fg_store *s, const char *id, fg_store_check *out,
     if (!out->request ||
         (sqlite3_column_type(st, 16) != SQLITE_NULL && !out->result)) {
       fg_store_check_clear(out);
-      res = fg_problem_set(p, FG_ENOMEM, "store: out of memory reading %s",
-                           id);
+      res = fg_problem_set(p, FG_ENOMEM, "store: out of memory reading %s", id);
     }
   } else if (rc == SQLITE_DONE) {
     res = fg_problem_set(p, FG_ENOTFOUND, "no check with id '%s'", id);
@@ -782,8 +787,8 @@ fg_status fg_store_list_checks(fg_store *s, const fg_check_filter *f,
     if (rc == SQLITE_ROW)
       copy_text(cursor_time, sizeof cursor_time, cs, 0);
     else if (rc == SQLITE_DONE)
-      res = fg_problem_set(p, FG_EINVAL, "cursor '%s' names no check",
-                           f->after);
+      res =
+          fg_problem_set(p, FG_EINVAL, "cursor '%s' names no check", f->after);
     else
       res = db_fault(s, p, "reading the list cursor", rc);
     done_stmt(cs);
@@ -797,7 +802,8 @@ fg_status fg_store_list_checks(fg_store *s, const fg_check_filter *f,
     bind_filter(st, 5, cursor_time);
     bind_filter(st, 6, f->after);
     sqlite3_bind_int(st, 7, limit + 1); /* one more tells if more remain */
-    while ((rc = sqlite3_step(st)) == SQLITE_ROW) read_check_row(st, &arr[count++]);
+    while ((rc = sqlite3_step(st)) == SQLITE_ROW)
+      read_check_row(st, &arr[count++]);
     if (rc != SQLITE_DONE) res = db_fault(s, p, "listing checks", rc);
     done_stmt(st);
   }

@@ -73,9 +73,9 @@ static void test_versions(fg_store *s) {
 
   /* changed document: version 2 */
   fg_problem_init(&p);
-  CHECK_INT(fg_store_put_version(s, "alpha", d2, "{\"a\":2}", NULL, &v,
-                                 &created, &p),
-            FG_OK);
+  CHECK_INT(
+      fg_store_put_version(s, "alpha", d2, "{\"a\":2}", NULL, &v, &created, &p),
+      FG_OK);
   CHECK(created);
   CHECK_INT(v.version, 2);
   CHECK(v.title == NULL);
@@ -299,8 +299,8 @@ static void test_checks(fg_store *s) {
   CHECK_INT(fg_store_list_checks(s, &f, &list, &n, next, &p), FG_OK);
   CHECK_INT(n, 0);
   fg_store_checks_free(list, n);
-  f = (fg_check_filter){.model = "alpha", .verdict = "fail", .label = "odd",
-                        .limit = 2};
+  f = (fg_check_filter){
+      .model = "alpha", .verdict = "fail", .label = "odd", .limit = 2};
   fg_problem_init(&p);
   CHECK_INT(fg_store_list_checks(s, &f, &list, &n, next, &p), FG_OK);
   CHECK_INT(n, 2);
