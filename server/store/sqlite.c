@@ -37,6 +37,10 @@
  * with a detail naming the operation and SQLite's message. Absent records
  * are FG_ENOTFOUND, an unknown cursor FG_EINVAL.
  *
+ * Test seam: fg_store_inject_write_fault() makes the n-th data write from
+ * then on fail as an I/O error inside its transaction, so tests can show
+ * that a failed write leaves no half-written record.
+ *
  * Thread use: any thread; see the mutex above.
  */
 #include "store/store.h"
@@ -178,6 +182,7 @@ struct fg_store {
   sqlite3 *db;
   sqlite3_stmt *stmt[ST_COUNT];
   char path[FG_STORE_PATH_MAX];
+  int fail_countdown; /* test seam: > 0 = writes until an injected fault */
 };
 
 /* ---- small helpers ---- */
@@ -247,6 +252,16 @@ static int exec_stmt(sqlite3_stmt *st) {
   int rc = sqlite3_step(st);
   done_stmt(st);
   return rc == SQLITE_DONE ? SQLITE_OK : rc;
+}
+
+/* A data write (never BEGIN/COMMIT/ROLLBACK): where an injected fault
+ * strikes, as an I/O error inside the open transaction. */
+static int write_step(fg_store *s, sqlite3_stmt *st) {
+  if (s->fail_countdown > 0 && --s->fail_countdown == 0) {
+    done_stmt(st);
+    return SQLITE_IOERR;
+  }
+  return exec_stmt(st);
 }
 
 static int tx_begin(fg_store *s) {
@@ -501,7 +516,7 @@ fg_status fg_store_put_version(fg_store *s, const char *name,
   st = s->stmt[ST_MODEL_UPSERT];
   bind_text(st, 1, name);
   bind_text(st, 2, now);
-  rc = exec_stmt(st);
+  rc = write_step(s, st);
   if (rc != SQLITE_OK) {
     res = db_fault(s, p, "writing the model", rc);
     goto rollback;
@@ -514,7 +529,7 @@ fg_status fg_store_put_version(fg_store *s, const char *name,
     bind_text(st, 4, canonical);
     bind_text(st, 5, title);
     bind_text(st, 6, now);
-    rc = exec_stmt(st);
+    rc = write_step(s, st);
     if (rc != SQLITE_OK) {
       res = db_fault(s, p, "writing the version", rc);
       goto rollback;
@@ -600,7 +615,7 @@ fg_status fg_store_retire_model(fg_store *s, const char *name, fg_problem *p) {
   }
   sqlite3_stmt *st = s->stmt[ST_RETIRE];
   bind_text(st, 1, name);
-  rc = exec_stmt(st);
+  rc = write_step(s, st);
   if (rc != SQLITE_OK) {
     res = db_fault(s, p, "retiring a model", rc);
     tx_rollback(s);
@@ -669,7 +684,7 @@ static fg_status write_one(fg_store *s, sqlite3_stmt *st, const char *what,
     done_stmt(st);
     return db_fault(s, p, what, rc);
   }
-  rc = exec_stmt(st);
+  rc = write_step(s, st);
   if (rc != SQLITE_OK) {
     if ((rc & 0xff) == SQLITE_CONSTRAINT)
       res = fg_problem_set(p, FG_ECONFLICT, "store %s %s: %s", what, id,
@@ -832,7 +847,7 @@ fg_status fg_store_mark_interrupted(fg_store *s, int *count, fg_problem *p) {
   if (rc == SQLITE_OK) {
     sqlite3_stmt *st = s->stmt[ST_MARK_INTERRUPTED];
     bind_text(st, 1, now);
-    rc = exec_stmt(st);
+    rc = write_step(s, st);
     if (rc == SQLITE_OK) *count = sqlite3_changes(s->db);
   }
   if (rc == SQLITE_OK) rc = tx_commit(s);
@@ -843,4 +858,10 @@ fg_status fg_store_mark_interrupted(fg_store *s, int *count, fg_problem *p) {
   }
   pthread_mutex_unlock(&s->lock);
   return res;
+}
+
+void fg_store_inject_write_fault(fg_store *s, int nth) {
+  pthread_mutex_lock(&s->lock);
+  s->fail_countdown = nth > 0 ? nth : 0;
+  pthread_mutex_unlock(&s->lock);
 }

@@ -72,7 +72,8 @@ typedef struct fg_store_check {
   char model[FG_NAME_MAX + 1];
   int version;
   char digest[FG_DIGEST_MAX];
-  char status[16];  /* running, done, cancelled, timed_out, failed, interrupted */
+  char
+      status[16]; /* running, done, cancelled, timed_out, failed, interrupted */
   char verdict[16]; /* pass, fail, inconclusive, or "" */
   uint64_t seed;
   char created_at[32];
@@ -81,8 +82,8 @@ typedef struct fg_store_check {
   char label[FG_LABEL_MAX + 1];
   char key[FG_NAME_MAX + 1];
   double probability, lower, upper; /* NAN while unknown */
-  char *request; /* JSON text */
-  char *result;  /* JSON text of the result body; may be NULL */
+  char *request;                    /* JSON text */
+  char *result; /* JSON text of the result body; may be NULL */
 } fg_store_check;
 
 void fg_store_check_clear(fg_store_check *c);
@@ -116,5 +117,9 @@ void fg_store_checks_free(fg_store_check *c, int n);
 /* At start-up: every check left "running" becomes "interrupted". Returns
  * how many were changed in *count. */
 fg_status fg_store_mark_interrupted(fg_store *s, int *count, fg_problem *p);
+
+/* Test seam: the n-th data write from now on (1 = the next) fails as an
+ * I/O error inside its transaction, which is rolled back; 0 disarms. */
+void fg_store_inject_write_fault(fg_store *s, int nth);
 
 #endif

@@ -6,7 +6,8 @@
  * specific versions, not found), retiring and reviving, checks (put,
  * finish, get, list newest first with every filter and with paging through
  * the cursor), marking running checks interrupted, closing and reopening
- * the file, and SQLite's own integrity check on the result.
+ * the file, injected write faults leaving nothing half-written, and
+ * SQLite's own integrity check on the result.
  *
  * Single-threaded except the concurrency section, which runs a few writer
  * threads against one fg_store to exercise its mutex.
@@ -381,6 +382,72 @@ static void test_threads(fg_store *s) {
   fg_store_checks_free(list, n);
 }
 
+/* Injected write faults: each failed call leaves the store as it was. */
+static void test_faults(fg_store *s) {
+  fg_problem p;
+  fg_store_version v;
+  bool created = true;
+  const char *d3 = "sha256:33333333333333333333333333333333333333333333333333"
+                   "33333333333333";
+  /* the second write of a registration (the version row) fails: the model
+   * row written just before is rolled back with it */
+  fg_store_inject_write_fault(s, 2);
+  fg_problem_init(&p);
+  CHECK_INT(
+      fg_store_put_version(s, "gamma", d3, "{\"g\":1}", NULL, &v, &created, &p),
+      FG_EIO);
+  CHECK(!created);
+  CHECK(strstr(p.detail, "store") != NULL);
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_get_version(s, "gamma", 0, &v, &p), FG_ENOTFOUND);
+  fg_store_version *list = NULL;
+  int n = 0;
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_list_models(s, &list, &n, &p), FG_OK);
+  for (int i = 0; i < n; i++)
+    CHECK(strcmp(list[i].name, "gamma") != 0);
+  fg_store_versions_free(list, n);
+
+  /* a failed check record is absent; a failed finish keeps "running" */
+  fg_store_check c;
+  make_check(&c, "chk_fault_1", "alpha", 1,
+             "sha256:111111111111111111111111111111111111111111111111111111"
+             "1111111111",
+             "2026-03-01T00:00:00Z", NULL);
+  fg_store_inject_write_fault(s, 1);
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_put_check(s, &c, &p), FG_EIO);
+  fg_store_check g;
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_get_check(s, "chk_fault_1", &g, &p), FG_ENOTFOUND);
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_put_check(s, &c, &p), FG_OK);
+  snprintf(c.status, sizeof c.status, "done");
+  snprintf(c.verdict, sizeof c.verdict, "pass");
+  c.result = (char *)"{}";
+  fg_store_inject_write_fault(s, 1);
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_finish_check(s, &c, &p), FG_EIO);
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_get_check(s, "chk_fault_1", &g, &p), FG_OK);
+  CHECK_STR(g.status, "running");
+  CHECK(g.result == NULL);
+  fg_store_check_clear(&g);
+  /* disarmed: the same calls succeed again */
+  fg_store_inject_write_fault(s, 0);
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_finish_check(s, &c, &p), FG_OK);
+  fg_problem_init(&p);
+  CHECK_INT(
+      fg_store_put_version(s, "gamma", d3, "{\"g\":1}", NULL, &v, &created, &p),
+      FG_OK);
+  CHECK(created);
+  CHECK_INT(v.version, 1);
+  fg_store_version_clear(&v);
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_retire_model(s, "gamma", &p), FG_OK);
+}
+
 static void test_reopen(void) {
   fg_store *s = NULL;
   fg_problem p;
@@ -461,6 +528,7 @@ int main(void) {
   test_versions(s);
   test_checks(s);
   test_threads(s);
+  test_faults(s);
   fg_store_close(s);
   test_reopen();
   test_bad_urls();
