@@ -84,6 +84,9 @@ typedef struct fg_check_request {
   uint64_t in_sample_seed, in_sample_count;
   char label[FG_LABEL_MAX + 1]; /* "" when absent */
   double wait_s;
+  /* Not part of the request body: set by callers that need every sample's
+   * joint outcome afterwards (comparisons). Costs samples/8 bytes. */
+  bool keep_outcomes;
 } fg_check_request;
 
 /* Validate `body` (a JSON object) against model `m`. Missing, extra,
@@ -127,6 +130,12 @@ fg_verdict fg_check_get_verdict(fg_check *c); /* valid once ended */
 /* Samples merged so far and satisfied among them. */
 void fg_check_progress(fg_check *c, uint64_t *done, uint64_t *satisfied);
 void fg_check_unref(fg_check *c);
+/* With req.keep_outcomes: bit i of the returned words is 1 when sample i
+ * satisfied every row; *n is the number of samples merged. Valid once the
+ * check has ended; NULL otherwise. */
+const uint64_t *fg_check_outcomes(fg_check *c, uint64_t *n);
+/* True when the check stopped early on its confidence sequence. */
+bool fg_check_stopped_early(fg_check *c);
 
 /* Identity and timing the caller attaches to the result body. */
 typedef struct fg_check_meta {

@@ -30,6 +30,13 @@ void fg_pool_check_ended_locked(fg_pool *pool, struct fg_check *c);
 
 #define INTEGER_TOL 1e-6
 
+static void lock_of_check(fg_check *c) {
+  if (c->pool) pthread_mutex_lock(&c->pool->mu);
+}
+static void unlock_of_check(fg_check *c) {
+  if (c->pool) pthread_mutex_unlock(&c->pool->mu);
+}
+
 static void add_det(struct fg_check *c, const char *name, const char *fmt,
                     ...) __attribute__((format(printf, 3, 4)));
 static void add_det(struct fg_check *c, const char *name, const char *fmt,
@@ -82,7 +89,73 @@ static void check_decisions(struct fg_check *c) {
   }
 }
 
+void fg_check_chunk_range(const struct fg_check *c, uint64_t idx,
+                          uint64_t *first, uint64_t *count) {
+  if (c->bounds) {
+    *first = c->bounds[idx];
+    *count = c->bounds[idx + 1] - c->bounds[idx];
+    return;
+  }
+  *first = idx * (uint64_t)c->chunk;
+  *count = c->req.samples - *first;
+  if (*count > (uint64_t)c->chunk) *count = (uint64_t)c->chunk;
+}
+
+/* Chunk bounds for a check that stops early: the regular grid plus the
+ * look points, merged in order. */
+static bool build_bounds(struct fg_check *c) {
+  uint64_t n = c->req.samples, step = (uint64_t)c->chunk;
+  uint64_t cap = n / step + 2 + 64;
+  c->bounds = malloc(cap * sizeof *c->bounds);
+  if (!c->bounds) return false;
+  uint64_t m = 0, grid = step, look = FG_CS_FIRST_ROUND;
+  c->bounds[m++] = 0;
+  while (c->bounds[m - 1] < n && m < cap) {
+    uint64_t next = grid < look ? grid : look;
+    if (next >= n) next = n;
+    if (next == grid) grid += step;
+    if (next == look) look *= 2;
+    if (next > c->bounds[m - 1]) c->bounds[m++] = next;
+  }
+  c->nchunks = m - 1;
+  c->next_look = FG_CS_FIRST_ROUND < n ? FG_CS_FIRST_ROUND : n;
+  return true;
+}
+
+bool fg_check_look_locked(struct fg_check *c) {
+  uint64_t n = c->total.n;
+  if (c->next_look == 0 || n < c->next_look) return false;
+  /* A look point (or the end) was reached: tighten the running
+   * intersection and see whether it lies wholly on one side. */
+  fg_interval iv = fg_cs_interval(c->total.satisfied, n, c->req.confidence,
+                                  c->req.target);
+  if (iv.lower > c->cs.lower) c->cs.lower = iv.lower;
+  if (iv.upper < c->cs.upper) c->cs.upper = iv.upper;
+  c->next_look = n >= c->req.samples ? 0 : (n * 2 < c->req.samples ? n * 2
+                                                                    : c->req.samples);
+  return c->cs.lower >= c->req.target || c->cs.upper < c->req.target ||
+         c->ndet > 0;
+}
+
+const uint64_t *fg_check_outcomes(fg_check *c, uint64_t *n) {
+  lock_of_check(c);
+  bool ended = c->state != FG_CHECK_QUEUED && c->state != FG_CHECK_RUNNING;
+  *n = c->total.n;
+  const uint64_t *bits = ended ? c->outcomes : NULL;
+  unlock_of_check(c);
+  return bits;
+}
+
+bool fg_check_stopped_early(fg_check *c) {
+  lock_of_check(c);
+  bool v = c->stopped_early;
+  unlock_of_check(c);
+  return v;
+}
+
 void fg_check_free_internal(struct fg_check *c) {
+  free(c->bounds);
+  free(c->outcomes);
   if (c->slots) {
     for (int i = 0; i < c->window; i++) fg_tally_free(&c->slots[i]);
     free(c->slots);
@@ -128,7 +201,12 @@ void fg_check_finalize_locked(struct fg_check *c) {
   c->probability = n ? (double)k / (double)n : NAN;
   c->std_error = n ? sqrt(c->probability * (1 - c->probability) / (double)n)
                    : NAN;
-  c->interval = interval_of(c->req.interval, k, n, c->req.confidence);
+  if (c->req.stop_early) {
+    fg_check_look_locked(c); /* a last look at the final count */
+    c->interval = c->cs;
+  } else {
+    c->interval = interval_of(c->req.interval, k, n, c->req.confidence);
+  }
   c->verdict = (fg_verdict)fg_verdict_rule(c->interval, c->req.target,
                                            c->ndet > 0);
   c->samples_to_settle = 0;
@@ -192,6 +270,13 @@ fg_status fg_check_start(fg_pool *pool, fg_model *m,
            (size_t)m->decision_dims * sizeof(double));
   c->chunk = pool->chunk;
   c->nchunks = (req->samples + (uint64_t)c->chunk - 1) / (uint64_t)c->chunk;
+  c->cs.lower = 0.0;
+  c->cs.upper = 1.0;
+  if (req->stop_early && !build_bounds(c)) goto oom;
+  if (req->keep_outcomes) {
+    c->outcomes = calloc((size_t)((req->samples + 63) / 64) + 1, sizeof(uint64_t));
+    if (!c->outcomes) goto oom;
+  }
   c->window = 2 * pool->nworkers + 2;
   if ((uint64_t)c->window > c->nchunks) c->window = (int)c->nchunks;
   if (c->window < 1) c->window = 1;
@@ -221,7 +306,7 @@ fg_status fg_check_start(fg_pool *pool, fg_model *m,
     c->req.seed = req->in_sample_seed; /* the design stream of that seed */
     fg_engine_run_range(c, ctx.sscratch, ctx.regs, ctx.excess, ctx.scratch,
                         FG_STREAM_DESIGN, 0, req->in_sample_count, &t, NULL,
-                        NULL);
+                        NULL, NULL);
     c->req.seed = req->seed;
     c->has_in_sample = true;
     c->in_sample_count = t.n;

@@ -42,6 +42,13 @@ struct fg_check {
   fg_check_request req; /* own copy; decision owned */
   int chunk;
   uint64_t nchunks;
+  /* With stop_early, chunk c covers [bounds[c], bounds[c+1]): the regular
+   * chunk grid with the look points FG_CS_FIRST_ROUND * 2^j added, so the
+   * sequence is looked at in the same places whatever the chunk size.
+   * NULL otherwise (chunk c covers [c*chunk, (c+1)*chunk)). */
+  uint64_t *bounds;
+  uint64_t next_look; /* (pool) next look point; 0 when none is left */
+  uint64_t *outcomes; /* with keep_outcomes: one bit per sample */
   double *setup_regs; /* info.nregs values after the setup stream */
 
   int ndet;          /* deterministic problems (bounds, rows) */
@@ -62,6 +69,9 @@ struct fg_check {
   bool *ready;
   fg_tally total;
   bool stop;    /* no more chunks will be claimed */
+  bool frozen;  /* decided early: later chunk results are not merged */
+  bool stopped_early;
+  fg_interval cs; /* (pool) running intersection of the sequence */
   atomic_bool cancel_flag;
   atomic_bool timeout_flag;
   fg_check_state state;
@@ -106,7 +116,13 @@ bool fg_engine_run_range(const struct fg_check *c, fg_sample_scratch *w,
                          double *regs, const double **excess, int *scratch,
                          fg_stream stream, uint64_t first, uint64_t count,
                          fg_tally *t, atomic_bool *cancel,
-                         atomic_bool *timeout);
+                         atomic_bool *timeout, uint64_t *outcomes);
+/* Sample range of chunk idx. */
+void fg_check_chunk_range(const struct fg_check *c, uint64_t idx,
+                          uint64_t *first, uint64_t *count);
+/* Under pool->mu after a merge: look at the confidence sequence if a look
+ * point was reached; true when the check is decided. */
+bool fg_check_look_locked(struct fg_check *c);
 
 /* Per-thread evaluation state for one check. */
 typedef struct fg_eval_ctx {

@@ -65,7 +65,7 @@ bool fg_engine_run_range(const struct fg_check *c, fg_sample_scratch *w,
                          double *regs, const double **excess, int *scratch,
                          fg_stream stream, uint64_t first, uint64_t count,
                          fg_tally *t, atomic_bool *cancel,
-                         atomic_bool *timeout) {
+                         atomic_bool *timeout, uint64_t *outcomes) {
   const fg_program_info *in = &c->info;
   double *ureg = regs + (size_t)in->uncertain_base * FG_BLOCK;
   const double *obj = NULL;
@@ -87,6 +87,15 @@ bool fg_engine_run_range(const struct fg_check *c, fg_sample_scratch *w,
                       n, ureg, FG_BLOCK);
     fg_program_run_block(c->model->program, regs, n);
     fg_tally_block(t, excess, n, first + done, obj, scratch);
+    if (outcomes) {
+      /* Blocks start on multiples of 64 samples (chunk bounds are
+       * multiples of FG_BLOCK), so each block owns whole words and
+       * concurrent chunks never write the same word. */
+      uint64_t base = first + done;
+      for (int s = 0; s < n; s++)
+        if (scratch[s] == 0)
+          outcomes[(base + (uint64_t)s) >> 6] |= 1ull << ((base + (uint64_t)s) & 63);
+    }
     done += (uint64_t)n;
   }
   return true;
@@ -119,9 +128,10 @@ static void unlink_check(fg_pool *pool, struct fg_check *c) {
 /* Called under pool->mu when a check may have ended. */
 static void maybe_end(fg_pool *pool, struct fg_check *c) {
   bool all = c->merged_chunks == c->nchunks;
+  if (c->frozen && c->active > 0) return; /* wait for the last workers */
   if (!(all || (c->stop && c->active == 0))) return;
   if (c->state != FG_CHECK_QUEUED && c->state != FG_CHECK_RUNNING) return;
-  if (all) c->state = FG_CHECK_DONE;
+  if (all || c->frozen) c->state = FG_CHECK_DONE;
   else if (atomic_load(&c->timeout_flag)) c->state = FG_CHECK_TIMED_OUT;
   else c->state = FG_CHECK_CANCELLED;
   fg_check_finalize_locked(c);
@@ -162,25 +172,30 @@ static void *worker_main(void *arg) {
     int slot = (int)(idx % (uint64_t)c->window);
     fg_tally *t = &c->slots[slot];
     fg_tally_reset(t);
-    uint64_t first = idx * (uint64_t)c->chunk;
-    uint64_t count = c->req.samples - first;
-    if (count > (uint64_t)c->chunk) count = (uint64_t)c->chunk;
+    uint64_t first, count;
+    fg_check_chunk_range(c, idx, &first, &count);
     if (ok)
       ok = fg_engine_run_range(c, ctx.sscratch, ctx.regs, ctx.excess,
                                ctx.scratch, FG_STREAM_VALIDATION, first, count,
-                               t, &c->cancel_flag, &c->timeout_flag);
+                               t, &c->cancel_flag, &c->timeout_flag,
+                               c->outcomes);
 
     pthread_mutex_lock(&pool->mu);
     pool->busy--;
     c->active--;
     if (ok) {
       c->ready[slot] = true;
-      while (c->merged_chunks < c->nchunks) {
+      while (c->merged_chunks < c->nchunks && !c->frozen) {
         int s = (int)(c->merged_chunks % (uint64_t)c->window);
         if (!c->ready[s]) break;
         fg_tally_merge(&c->total, &c->slots[s]);
         c->ready[s] = false;
         c->merged_chunks++;
+        if (c->req.stop_early && fg_check_look_locked(c)) {
+          c->frozen = true;
+          c->stop = true;
+          c->stopped_early = c->merged_chunks < c->nchunks;
+        }
       }
     } else {
       c->stop = true;

@@ -221,9 +221,7 @@ fg_status fg_request_parse(const fg_model *m, const cJSON *body,
     if (!cJSON_IsBool(v))
       fg_problem_add(p, FG_EINVAL, "/stop_early", 0,
                      "stop_early must be true or false");
-    else if (cJSON_IsTrue(v))
-      fg_problem_add(p, FG_EUNSUPPORTED, "/stop_early", 0,
-                     "stop_early is not yet supported by this server");
+    else out->stop_early = cJSON_IsTrue(v);
   }
   if ((v = cJSON_GetObjectItemCaseSensitive(body, "expect_digest"))) {
     const char *s = cJSON_GetStringValue(v);

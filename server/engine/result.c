@@ -98,7 +98,9 @@ cJSON *fg_check_result_json(fg_check *c, const fg_check_meta *meta) {
     add_num(j, "std_error", c->std_error);
     cJSON_AddItemToObject(
         j, "interval",
-        interval_json(c->interval, fg_interval_method_name(c->req.interval)));
+        interval_json(c->interval, c->req.stop_early
+                                       ? "confidence_sequence"
+                                       : fg_interval_method_name(c->req.interval)));
     add_rows(o, c);
   } else {
     cJSON_AddNullToObject(o, "joint");
@@ -158,7 +160,7 @@ cJSON *fg_check_result_json(fg_check *c, const fg_check_meta *meta) {
   if (ended && c->samples_to_settle > 0)
     cJSON_AddNumberToObject(o, "samples_to_settle", c->samples_to_settle);
   else cJSON_AddNullToObject(o, "samples_to_settle");
-  cJSON_AddBoolToObject(o, "stopped_early", false);
+  cJSON_AddBoolToObject(o, "stopped_early", c->stopped_early);
   if (meta && meta->created_at)
     cJSON_AddStringToObject(o, "created_at", meta->created_at);
   if (meta && meta->finished_at && ended)

@@ -42,6 +42,26 @@ fg_interval fg_interval_jeffreys(uint64_t k, uint64_t n, double confidence);
  * the regularised incomplete beta, so large n (1e9) stays accurate. */
 double fg_beta_quantile(double q, double a, double b);
 
+/* log B(a, b), without cancellation for large arguments. */
+double fg_log_beta(double a, double b);
+
+/* ---- confidence sequence (cs.c) ----
+ * The beta-binomial mixture martingale (Robbins 1970; Howard, Ramdas,
+ * McAuliffe & Sekhon 2021): with a Beta(a0, b0) mixing prior,
+ *   M_n(p) = [B(a0 + k, b0 + n - k) / B(a0, b0)] / [p^k (1 - p)^(n - k)],
+ * and CS_n = { p : M_n(p) < 2 / alpha } holds the true p at every n at once
+ * with probability at least 1 - alpha/2 (Ville's inequality), so each of
+ * the two wrong verdicts has probability at most alpha/2, as with the
+ * fixed-n interval. The prior is centred on the target with strength
+ * FG_CS_PRIOR_STRENGTH pseudo-samples, which keeps the sequence tight where
+ * the verdict is decided. */
+#define FG_CS_PRIOR_STRENGTH 10.0
+/* First look after this many samples, then after every doubling. */
+#define FG_CS_FIRST_ROUND 4096
+
+fg_interval fg_cs_interval(uint64_t k, uint64_t n, double confidence,
+                           double prior_mean);
+
 /* The verdict rule: 0 pass when lower >= target, 1 fail when upper <
  * target or a deterministic problem exists, else 2 inconclusive (the
  * values of fg_verdict in feasgate/engine.h). */

@@ -78,7 +78,7 @@ static double log_dbinom_raw(double x, double n, double p, double q) {
 }
 
 /* log B(a, b), accurate when one or both arguments are large. */
-static double log_beta(double a, double b) {
+double fg_log_beta(double a, double b) {
   double p = fmin(a, b), q = fmax(a, b);
   if (p >= 16) {
     /* lgamma(x) = (x - 0.5) log x - x + log sqrt(2 pi) + c(x), where
@@ -100,7 +100,7 @@ static double log_beta(double a, double b) {
  * two is exact (forming 1 - x loses the digits of a small x). */
 static double log_dbeta(double x, double y, double lx, double ly, double a,
                         double b) {
-  if (a <= 2 || b <= 2) return (a - 1) * lx + (b - 1) * ly - log_beta(a, b);
+  if (a <= 2 || b <= 2) return (a - 1) * lx + (b - 1) * ly - fg_log_beta(a, b);
   return log(a + b - 1) + log_dbinom_raw(a - 1, a + b - 2, x, y);
 }
 

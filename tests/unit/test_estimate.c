@@ -7,6 +7,8 @@
 #include "check.h"
 #include "estimate/estimate.h"
 
+#include <gsl/gsl_randist.h>
+#include <gsl/gsl_rng.h>
 #include <stdlib.h>
 
 static int cmp_double(const void *a, const void *b) {
@@ -164,7 +166,92 @@ static void test_tally(void) {
   fg_tally_free(&second);
 }
 
+/* Early stopping must keep its error rate: simulate many Bernoulli streams,
+ * look at the confidence sequence at the engine's look points
+ * (FG_CS_FIRST_ROUND, then every doubling) and stop when it clears the
+ * target. Ville's inequality bounds each wrong verdict by (1-c)/2. */
+typedef struct cs_sim {
+  int pass, fail, undecided;
+  double mean_samples;
+} cs_sim;
+
+static cs_sim simulate_cs(gsl_rng *r, double p, double target, double conf,
+                          uint64_t max_n, int streams) {
+  cs_sim out = {0};
+  for (int s = 0; s < streams; s++) {
+    uint64_t n = 0, k = 0, look = FG_CS_FIRST_ROUND;
+    fg_interval run = {0, 1};
+    int verdict = 2;
+    while (n < max_n) {
+      uint64_t to = look < max_n ? look : max_n;
+      k += gsl_ran_binomial(r, p, (unsigned)(to - n));
+      n = to;
+      fg_interval iv = fg_cs_interval(k, n, conf, target);
+      if (iv.lower > run.lower) run.lower = iv.lower;
+      if (iv.upper < run.upper) run.upper = iv.upper;
+      verdict = fg_verdict_rule(run, target, false);
+      if (verdict != 2) break;
+      look *= 2;
+    }
+    if (verdict == 0) out.pass++;
+    else if (verdict == 1) out.fail++;
+    else out.undecided++;
+    out.mean_samples += (double)n / streams;
+  }
+  return out;
+}
+
+static void test_confidence_sequence(void) {
+  gsl_rng *r = gsl_rng_alloc(gsl_rng_mt19937);
+  gsl_rng_set(r, 12345);
+  const double t = 0.9, conf = 0.95, bound = (1 - conf) / 2;
+  const uint64_t max_n = 1u << 21;
+  const int streams = 1500;
+  /* Binomial tolerance on the observed rate: bound + 3 sd of a rate of
+   * `bound` over `streams` trials. */
+  double tol = bound + 3 * sqrt(bound * (1 - bound) / streams);
+  double deltas[] = {-0.002, 0.0, 0.002};
+  for (int i = 0; i < 3; i++) {
+    double p = t + deltas[i];
+    cs_sim sim = simulate_cs(r, p, t, conf, max_n, streams);
+    /* wrong verdicts: pass when p < t, fail when p >= t */
+    int wrong = p < t ? sim.pass : sim.fail;
+    double rate = (double)wrong / streams;
+    printf("confidence sequence at p = t%+.3f: pass %d, fail %d, undecided %d; "
+           "wrong-verdict rate %.4f (bound %.3f)\n",
+           deltas[i], sim.pass, sim.fail, sim.undecided, rate, bound);
+    CHECK_MSG(rate <= tol, "wrong-verdict rate %.4f above %.4f at p=%g", rate,
+              tol, p);
+  }
+  /* Clear cases stop long before the requested samples. */
+  double clear[] = {0.93, 0.86};
+  for (int i = 0; i < 2; i++) {
+    cs_sim sim = simulate_cs(r, clear[i], t, conf, max_n, 300);
+    printf("clear case p = %.2f: mean samples used %.0f of %llu (%.1f%% saved), "
+           "right verdicts %d/300\n",
+           clear[i], sim.mean_samples, (unsigned long long)max_n,
+           100.0 * (1 - sim.mean_samples / (double)max_n),
+           clear[i] > t ? sim.pass : sim.fail);
+    CHECK(sim.mean_samples < 0.1 * (double)max_n);
+    CHECK((clear[i] > t ? sim.pass : sim.fail) == 300);
+  }
+  /* The sequence always contains the sample proportion and is wider than
+   * the fixed-n Clopper-Pearson interval at the same n (it pays for
+   * looking many times). */
+  fg_interval cs = fg_cs_interval(9300, 10000, 0.95, 0.9);
+  fg_interval cp = fg_interval_clopper_pearson(9300, 10000, 0.95);
+  CHECK(cs.lower < 0.93 && cs.upper > 0.93);
+  CHECK(cs.lower < cp.lower && cs.upper > cp.upper);
+  fg_interval z = fg_cs_interval(0, 5000, 0.95, 0.9);
+  CHECK_NEAR(z.lower, 0.0, 0.0);
+  /* with the prior centred far away (0.9) the sequence pays for it at the
+   * opposite edge, but stays informative */
+  CHECK(z.upper > 0 && z.upper < 0.02);
+  gsl_rng_free(r);
+}
+
 int main(void) {
+  test_confidence_sequence();
   test_clopper_pearson_closed_forms();
   test_other_intervals();
   test_verdict();
