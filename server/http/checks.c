@@ -15,8 +15,9 @@
  *   5. record the check as `running` in the store -- before any work, so a
  *      crash from here on leaves a record that the next start-up marks
  *      `interrupted`;
- *   6. queue it on the pool (503 + Retry-After when the queue is full; the
- *      record is then closed as `failed`);
+ *   6. queue it on the pool (503 + Retry-After when the queue is full:
+ *      checked before step 5 too, so a refused check normally leaves no
+ *      record; one refused by the pool after all is closed as `failed`);
  *   7. wait up to wait_s: ended -> record the result, 201 + Location;
  *      still running -> 202 with the running body, and the registry
  *      (registry.c) records it when it ends.
@@ -303,6 +304,16 @@ void fg_h_checks_create(fg_req *r, fg_resp *out) {
     req.wait_s = srv->cfg.limits.max_wait_s;
   if (!(req.wait_s >= 0)) req.wait_s = 0;
 
+  /* Refuse before recording when the queue is visibly full, so that a
+   * 503 leaves no record; a burst that races past this is closed as
+   * `failed` below. */
+  if (fg_pool_queued(srv->pool) >= srv->cfg.queue) {
+    fg_resp_error(out, 503, FG_EBUSY,
+                  "the check queue is full (%d checks waiting or running); "
+                  "try again shortly",
+                  srv->cfg.queue);
+    goto done;
+  }
   fg_http_check_id(rec.id);
   snprintf(rec.model, sizeof rec.model, "%s", v.name);
   rec.version = v.version;

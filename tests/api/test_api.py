@@ -549,6 +549,40 @@ def test_usage(tmp):
     check(d.stop() == 0, "twin test: exit 0")
 
 
+def test_overload(tmp):
+    """One worker, room for one check: the next is a 503 with Retry-After
+    and leaves no record."""
+    d = Daemon("sqlite:%s/busy.db" % tmp, "--queue", "1", "--grace", "0")
+    if not check(d.address is not None, "busy daemon started"):
+        d.stop()
+        return
+    d.request("POST", "/v1/models", model_doc("api-busy"))
+    st, h, b = d.request("POST", "/v1/models/api-busy/checks",
+                         {"decision": CANDIDATE, "samples": 900000000,
+                          "wait_s": 0})
+    check(st == 202, "busy: first long check 202, got %s" % st)
+    st, h, b = d.request("POST", "/v1/models/api-busy/checks",
+                         {"decision": CANDIDATE, "samples": 1000})
+    check(is_problem(st, h, b, 503), "queue full: 503 problem, got %s" % st)
+    check(h.get("retry-after", "").isdigit(), "503: Retry-After header")
+    st, h, b = d.request("GET", "/v1/ready")
+    check(is_problem(st, h, b, 503), "ready: 503 while the queue is full")
+    st, h, b = d.request("GET", "/v1/checks?model=api-busy")
+    check(st == 200 and len(b.get("checks", [])) == 1,
+          "refused check left no record")
+    st, h, b = d.request("GET", "/v1/health")
+    check(st == 200, "busy daemon healthy")
+    check(d.stop() == 0, "busy daemon: exit 0 (running check cancelled)")
+    d = Daemon("sqlite:%s/busy.db" % tmp)
+    if d.address:
+        st, h, b = d.request("GET", "/v1/checks?model=api-busy")
+        rows = b.get("checks", []) if isinstance(b, dict) else []
+        check(len(rows) == 1 and rows[0].get("status") == "cancelled",
+              "check cancelled at shutdown is recorded cancelled, got %r"
+              % [r.get("status") for r in rows])
+    d.stop()
+
+
 def test_crash(tmp):
     """SIGKILL while a check runs: answered checks stay, the running one
     becomes interrupted at the next start, the file is intact."""
@@ -636,6 +670,7 @@ def main():
 
         test_body_limit(tmp)
         test_usage(tmp)
+        test_overload(tmp)
         test_crash(tmp)
     print("%d passed, %d failed" % (passed, failed))
     return 1 if failed else 0
