@@ -5,6 +5,9 @@
  *   feasgate check MODEL.json REQUEST.json     one check offline, same engine
  *            [--samples N] [--seed S] [--workers N] [--chunk N] [--summary]
  *   feasgate register --store URL FILE...      add model documents to a store
+ *   feasgate scenarios MODEL.json --count N    a model's scenarios, JSON or
+ *            [--seed S] [--start I] [--stream design|validation] [--csv]
+ *            [--max M]                         CSV (engine/scenarios.c)
  *   feasgate version
  *
  * Exit status of `check`: 0 pass, 1 fail, 2 inconclusive, 3 usage or input
@@ -34,6 +37,8 @@ static void usage(FILE *f) {
           "  feasgate check MODEL.json REQUEST.json [--samples N] [--seed S]\n"
           "                 [--workers N] [--chunk N] [--summary]\n"
           "  feasgate register --store URL FILE...\n"
+          "  feasgate scenarios MODEL.json --count N [--seed S] [--start I]\n"
+          "                 [--stream design|validation] [--csv] [--max M]\n"
           "  feasgate version\n"
           "`feasgate serve --help` lists the daemon's settings.\n");
 }
@@ -289,6 +294,124 @@ out:
   return rc;
 }
 
+/* ---- feasgate scenarios ---- */
+
+static bool stdout_sink(void *ctx, const char *text, size_t len) {
+  return fwrite(text, 1, len, (FILE *)ctx) == len;
+}
+
+static void scenarios_usage(FILE *f) {
+  fprintf(f,
+          "usage: feasgate scenarios MODEL.json --count N [--seed S] "
+          "[--start I]\n"
+          "                          [--stream design|validation] [--csv] "
+          "[--max M]\n"
+          "Prints scenarios I .. I+N-1 of the model's random inputs as JSON\n"
+          "{\"columns\", \"rows\", \"seed\", \"stream\", \"start\"} or, with "
+          "--csv, as CSV\n"
+          "with a header row. N is at most %llu unless a larger --max M is "
+          "given.\n"
+          "Without --seed a seed is drawn and printed on standard error.\n",
+          (unsigned long long)FG_MAX_SCENARIOS_DEFAULT);
+}
+
+static int cmd_scenarios(int argc, char **argv) {
+  const char *file = NULL;
+  fg_scenarios_params q = {0};
+  uint64_t max = FG_MAX_SCENARIOS_DEFAULT;
+  bool has_count = false, has_seed = false;
+  for (int i = 1; i < argc; i++) {
+    const char *a = argv[i], *v = i + 1 < argc ? argv[i + 1] : NULL;
+    if (strcmp(a, "--help") == 0) {
+      scenarios_usage(stdout);
+      return 0;
+    } else if (strcmp(a, "--csv") == 0) {
+      q.csv = true;
+    } else if (strcmp(a, "--count") == 0 && v) {
+      if (!parse_u64(argv[++i], FG_SEED_MAX, &q.count) || !q.count) {
+        fprintf(stderr, "feasgate scenarios: --count expects a whole number "
+                        "from 1, found '%s'\n", v);
+        return EXIT_USAGE;
+      }
+      has_count = true;
+    } else if (strcmp(a, "--seed") == 0 && v) {
+      if (!parse_u64(argv[++i], FG_SEED_MAX, &q.seed)) {
+        fprintf(stderr, "feasgate scenarios: --seed expects 0 to 2^53-1, "
+                        "found '%s'\n", v);
+        return EXIT_USAGE;
+      }
+      has_seed = true;
+    } else if (strcmp(a, "--start") == 0 && v) {
+      if (!parse_u64(argv[++i], FG_SEED_MAX, &q.start)) {
+        fprintf(stderr, "feasgate scenarios: --start expects 0 to 2^53-1, "
+                        "found '%s'\n", v);
+        return EXIT_USAGE;
+      }
+    } else if (strcmp(a, "--max") == 0 && v) {
+      if (!parse_u64(argv[++i], FG_SEED_MAX, &max) || !max) {
+        fprintf(stderr, "feasgate scenarios: --max expects a whole number "
+                        "from 1, found '%s'\n", v);
+        return EXIT_USAGE;
+      }
+    } else if (strcmp(a, "--stream") == 0 && v) {
+      i++;
+      if (strcmp(v, "design") == 0) q.validation = false;
+      else if (strcmp(v, "validation") == 0) q.validation = true;
+      else {
+        fprintf(stderr, "feasgate scenarios: --stream expects design or "
+                        "validation, found '%s'\n", v);
+        return EXIT_USAGE;
+      }
+    } else if (a[0] == '-' && a[1]) {
+      fprintf(stderr, "feasgate scenarios: unknown or incomplete option "
+                      "'%s'\n", a);
+      scenarios_usage(stderr);
+      return EXIT_USAGE;
+    } else if (!file) {
+      file = a;
+    } else {
+      fprintf(stderr, "feasgate scenarios: too many arguments ('%s')\n", a);
+      return EXIT_USAGE;
+    }
+  }
+  if (!file || !has_count) {
+    fprintf(stderr, "feasgate scenarios: %s\n",
+            file ? "--count N is required" : "a model file is required");
+    scenarios_usage(stderr);
+    return EXIT_USAGE;
+  }
+  if (q.count > max) {
+    fprintf(stderr, "feasgate scenarios: --count %llu exceeds the cap of "
+                    "%llu scenarios; give --max %llu to allow it\n",
+            (unsigned long long)q.count, (unsigned long long)max,
+            (unsigned long long)q.count);
+    return EXIT_USAGE;
+  }
+  if (q.count > FG_SEED_MAX + 1 - q.start) {
+    fprintf(stderr, "feasgate scenarios: --start %llu + --count %llu goes "
+                    "beyond scenario index 2^53\n",
+            (unsigned long long)q.start, (unsigned long long)q.count);
+    return EXIT_USAGE;
+  }
+  if (!has_seed) {
+    q.seed = fg_seed_draw();
+    fprintf(stderr, "feasgate scenarios: seed %llu\n",
+            (unsigned long long)q.seed);
+  }
+  fg_model *m = load_model(file);
+  if (!m) return EXIT_USAGE;
+  fg_problem p;
+  fg_problem_init(&p);
+  int rc = 0;
+  if (fg_scenarios_write(m, &q, stdout_sink, stdout, &p) != FG_OK ||
+      fflush(stdout) != 0) {
+    print_problem("scenarios", &p);
+    rc = 1;
+  }
+  fg_model_unref(m);
+  return rc;
+}
+
 static int cmd_register(int argc, char **argv) {
   const char *url = getenv("FEASGATE_STORE");
   int first = 1;
@@ -342,6 +465,7 @@ int main(int argc, char **argv) {
   if (strcmp(cmd, "serve") == 0) return fg_serve_command(argc - 1, argv + 1);
   if (strcmp(cmd, "check") == 0) return cmd_check(argc - 1, argv + 1);
   if (strcmp(cmd, "register") == 0) return cmd_register(argc - 1, argv + 1);
+  if (strcmp(cmd, "scenarios") == 0) return cmd_scenarios(argc - 1, argv + 1);
   if (strcmp(cmd, "version") == 0 || strcmp(cmd, "--version") == 0) {
     printf("feasgate 0.1.0\n");
     return 0;

@@ -160,4 +160,28 @@ fg_status fg_check_run_sync(fg_model *m, const fg_check_request *req,
 void fg_time_now_rfc3339(char *buf, size_t cap);
 double fg_time_monotonic(void);
 
+/* ---- scenarios (scenarios.c) ---- */
+/* Scenarios start .. start+count-1 of (seed, stream) as text: the JSON
+ * body {"columns", "rows", "seed", "stream", "start"} or RFC 4180 CSV with
+ * a header row. Scenario i is the same whatever start and count select it;
+ * the design and validation streams never share a scenario. */
+typedef struct fg_scenarios_params {
+  uint64_t seed;   /* <= FG_SEED_MAX */
+  bool validation; /* false: the design stream */
+  uint64_t start;  /* first scenario index */
+  uint64_t count;  /* start + count <= FG_SEED_MAX + 1 */
+  bool csv;
+} fg_scenarios_params;
+
+/* Receives the text piece by piece; false stops the writer (FG_EIO). */
+typedef bool fg_text_sink(void *ctx, const char *text, size_t len);
+
+/* Stream the text to `sink` (offline command: no size limit). */
+fg_status fg_scenarios_write(const fg_model *m, const fg_scenarios_params *q,
+                             fg_text_sink *sink, void *ctx, fg_problem *p);
+/* The whole text in one malloc'd, NUL-terminated buffer (*out, *len);
+ * FG_ELIMIT beyond FG_SCENARIO_CELLS_MAX values. */
+fg_status fg_scenarios_render(const fg_model *m, const fg_scenarios_params *q,
+                              char **out, size_t *len, fg_problem *p);
+
 #endif

@@ -109,6 +109,10 @@
 #define FG_MAX_SCENARIOS_DEFAULT 100000ull
 #endif
 
+/* Values (scenarios x columns) in one scenarios response held in memory:
+ * about 25 bytes each printed, so the largest body stays near 100 MB. */
+#define FG_SCENARIO_CELLS_MAX 4000000ull
+
 /* Failing scenarios reported per check. */
 #define FG_FAILING_SCENARIOS 5
 
@@ -143,6 +147,7 @@
   X("table_cells", FG_TABLE_CELLS_MAX)                                         \
   X("json_depth", FG_JSON_MAX_DEPTH)                                           \
   X("label_length", FG_LABEL_MAX)                                              \
-  X("failing_scenarios", FG_FAILING_SCENARIOS)
+  X("failing_scenarios", FG_FAILING_SCENARIOS)                                \
+  X("scenario_cells", FG_SCENARIO_CELLS_MAX)
 
 #endif
