@@ -624,7 +624,7 @@ static void test_moments(void) {
   {
     const char *g =
         input1(2, "{\"family\":\"gamma\",\"shape\":[0.5,4],\"scale\":[2,0.5]}");
-    char doc[512];
+    char doc[4096]; /* as large as input1's buffer */
     snprintf(doc, sizeof doc, "%s", g);
     family_moments(doc, 0, 1.0, 2.0, "gamma shape 0.5");
     family_moments(doc, 1, 2.0, 1.0, "gamma shape 4");
