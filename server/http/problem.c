@@ -12,7 +12,7 @@
  *           inside the body, plus "errors_dropped" when more were found
  *           than kept;
  *   limit   {name, value} when a named limit was exceeded;
- *   byte_offset  where parsing stopped, for malformed JSON.
+ *   offset  the byte offset where parsing stopped, for malformed JSON.
  *
  * Building a response never fails its caller: when memory runs out the
  * body falls back to a fixed text.
@@ -100,7 +100,7 @@ cJSON *fg_problem_json(const fg_problem *p, int http_status) {
     }
   }
   if (p->byte_offset >= 0)
-    cJSON_AddNumberToObject(o, "byte_offset", (double)p->byte_offset);
+    cJSON_AddNumberToObject(o, "offset", (double)p->byte_offset);
   return o;
 }
 

@@ -375,9 +375,9 @@ def test_bad_input(d, name):
 
     st, h, b = d.request("POST", "/v1/models", '{"format": 1, "name": ')
     check(is_problem(st, h, b, 400), "malformed JSON: 400 problem")
-    check(isinstance(b, dict) and isinstance(b.get("byte_offset"), int)
-          and b["byte_offset"] >= 0,
-          "malformed JSON: byte offset, got %r" % b)
+    check(isinstance(b, dict) and isinstance(b.get("offset"), int)
+          and b["offset"] >= 0,
+          "malformed JSON: byte offset (offset), got %r" % b)
     st, h, b = d.request("POST", "/v1/models", "")
     check(is_problem(st, h, b, 400), "empty body: 400")
 
@@ -393,7 +393,7 @@ def test_bad_input(d, name):
           "missing decision: 400 naming it")
     st, h, b = d.request("POST", "/v1/models/%s/checks" % name,
                          '{"decision": {"x": 1, "y": [1, 2]}')
-    check(is_problem(st, h, b, 400) and isinstance(b.get("byte_offset"), int),
+    check(is_problem(st, h, b, 400) and isinstance(b.get("offset"), int),
           "malformed check body: byte offset")
     st, h, b = d.request("POST", "/v1/models/%s/checks" % name,
                          {"decision": CANDIDATE, "samples": 10 ** 12})
