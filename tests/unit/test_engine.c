@@ -1,6 +1,6 @@
 /*
  * tests/unit/test_engine.c -- the engine: request validation, determinism
- * across workers and chunk sizes, deterministic problems, objective,
+ * across workers and chunk sizes, pinned counts for fixed seeds,
  * failing scenarios, cancellation and the result body.
  */
 #include "check.h"
@@ -217,6 +217,97 @@ static void test_cancel(fg_model *m) {
   fg_request_free(&r);
 }
 
+/* Pinned counts: exact joint and per-row counts for fixed seeds on models
+ * covering every sampling path the engine optimises (ziggurat normals and
+ * lognormals, GSL gamma and poisson, the multivariate normal, a full and an
+ * equal-correlation Gaussian copula, a scenario table). A speed-up that
+ * keeps the random streams keeps these numbers; a change of stream must
+ * change them once, on purpose, with the reason in the commit. Rows are
+ * listed in declaration order (row i of the compiled model), 2 workers,
+ * chunk 4096 (the determinism test shows the counts do not depend on it). */
+static void pin_counts(const char *doc, const char *req, uint64_t joint,
+                       const uint64_t *rows, const char *names,
+                       const char *what) {
+  int nrows = (int)strlen(names);
+  fg_problem p;
+  fg_problem_init(&p);
+  fg_model *m = NULL;
+  CHECK_MSG(fg_model_compile(doc, strlen(doc), &m, &p) == FG_OK, "%s: %s", what,
+            p.detail);
+  if (!m) return;
+  counts a = run(m, req, 2, 4096);
+  const cJSON *rs = cJSON_GetObjectItem(a.res, "constraints");
+  CHECK_MSG(a.k == joint, "%s: joint %llu, pinned %llu", what,
+            (unsigned long long)a.k, (unsigned long long)joint);
+  CHECK_INT(cJSON_GetArraySize(rs), nrows);
+  /* The body lists rows worst first; rows are named by one letter each,
+   * and `names` lists them in the order of `rows`. */
+  for (int i = 0; i < cJSON_GetArraySize(rs) && i < nrows; i++) {
+    const cJSON *row = cJSON_GetArrayItem(rs, i);
+    const char *name = cJSON_GetStringValue(cJSON_GetObjectItem(row, "name"));
+    const char *at = name && name[0] && !name[1] ? strchr(names, name[0]) : NULL;
+    CHECK_MSG(at != NULL, "%s: unexpected row %s", what, name ? name : "?");
+    if (!at) continue;
+    uint64_t v = (uint64_t)num(row, "violated", NULL);
+    CHECK_MSG(v == rows[at - names], "%s: row %s violated %llu, pinned %llu",
+              what, name, (unsigned long long)v,
+              (unsigned long long)rows[at - names]);
+  }
+  cJSON_Delete(a.res);
+  fg_model_unref(m);
+}
+
+static void test_pinned_counts(void) {
+  static const char *independent =
+      "{\"format\":1,\"name\":\"pin-a\",\"decisions\":[{\"name\":\"x\"}],"
+      "\"uncertain\":["
+      "{\"name\":\"n\",\"size\":2,\"distribution\":{\"family\":\"normal\","
+      "\"mean\":[1,2],\"sd\":[1,0.5]}},"
+      "{\"name\":\"ln\",\"distribution\":{\"family\":\"lognormal\","
+      "\"mean\":10,\"sd\":4}},"
+      "{\"name\":\"g\",\"size\":2,\"distribution\":{\"family\":\"gamma\","
+      "\"shape\":[0.7,3],\"scale\":2}},"
+      "{\"name\":\"k\",\"distribution\":{\"family\":\"poisson\",\"mean\":3.5}}],"
+      "\"constraints\":[{\"name\":\"a\",\"require\":\"n[0] + n[1] <= x\"},"
+      "{\"name\":\"b\",\"require\":\"ln <= 4 * x\"},"
+      "{\"name\":\"c\",\"require\":\"g[0] + g[1] <= 3 * x\"},"
+      "{\"name\":\"d\",\"require\":\"k <= x + 2\"}]}";
+  static const char *joint =
+      "{\"format\":1,\"name\":\"pin-b\",\"decisions\":[{\"name\":\"x\"}],"
+      "\"uncertain\":["
+      "{\"name\":\"m\",\"size\":3,\"distribution\":{\"family\":"
+      "\"multivariate_normal\",\"mean\":[0,1,2],\"covariance\":"
+      "[[1,0.5,0.2],[0.5,2,0.3],[0.2,0.3,1.5]]}},"
+      "{\"name\":\"cg\",\"distribution\":{\"family\":\"gamma\",\"shape\":2,"
+      "\"scale\":1}},"
+      "{\"name\":\"cl\",\"distribution\":{\"family\":\"lognormal\","
+      "\"meanlog\":0,\"sdlog\":0.5}},"
+      "{\"name\":\"ck\",\"distribution\":{\"family\":\"poisson\",\"mean\":2}},"
+      "{\"name\":\"e\",\"size\":4,\"distribution\":{\"family\":\"normal\","
+      "\"mean\":0,\"sd\":1}},"
+      "{\"name\":\"s\",\"size\":2,\"distribution\":{\"family\":"
+      "\"scenario_table\",\"rows\":[[1,2],[3,1],[0,5]],"
+      "\"weights\":[0.5,0.3,0.2]}}],"
+      "\"dependence\":[{\"kind\":\"gaussian_copula\",\"members\":"
+      "[\"cg\",\"cl\",\"ck\"],\"correlation\":[[1,0.6,0.3],[0.6,1,0.2],"
+      "[0.3,0.2,1]]},"
+      "{\"kind\":\"gaussian_copula\",\"members\":[\"e\"],"
+      "\"correlation\":{\"equal\":0.4}}],"
+      "\"constraints\":[{\"name\":\"a\",\"require\":\"m[0] + m[2] <= x + 2\"},"
+      "{\"name\":\"b\",\"require\":\"m[1] <= x\"},"
+      "{\"name\":\"c\",\"require\":\"cg + cl + ck <= 3 * x + 1\"},"
+      "{\"name\":\"d\",\"require\":\"sum(e) <= 2 * x\"},"
+      "{\"name\":\"f\",\"require\":\"s[0] + s[1] <= x + 3\"}]}";
+  static const uint64_t rows_a[] = {30258, 15274, 17232, 8713};
+  pin_counts(independent, "{\"decision\":{\"x\":3},\"samples\":60000,"
+                          "\"seed\":20261201}",
+             13543, rows_a, "abcd", "independent families");
+  static const uint64_t rows_b[] = {11443, 21740, 23170, 9262, 12113};
+  pin_counts(joint, "{\"decision\":{\"x\":1.5},\"samples\":60000,"
+                    "\"seed\":77}",
+             13784, rows_b, "abcdf", "joint families");
+}
+
 int main(void) {
   fg_model *m = model();
   if (!m) return fg_test_finish() | 1;
@@ -224,6 +315,7 @@ int main(void) {
   test_determinism(m);
   test_deterministic_problems(m);
   test_cancel(m);
+  test_pinned_counts();
   fg_model_unref(m);
   return fg_test_finish();
 }
