@@ -1,6 +1,7 @@
 /*
  * tests/unit/test_engine.c -- the engine: request validation, determinism
  * across workers and chunk sizes, pinned counts for fixed seeds,
+ * deterministic problems, objective,
  * failing scenarios, cancellation and the result body.
  */
 #include "check.h"
