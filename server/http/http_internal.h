@@ -5,7 +5,8 @@
  *   server.c  libmicrohttpd access handler: one fg_req per request, body
  *             accumulated up to --max-body (413 beyond), then
  *   router.c  method + path -> handler (404 unknown path, 405 + Allow),
- *   models.c / checks.c / ops.c  the handlers: each fills one fg_resp,
+ *   models.c / checks.c / scenarios.c / ops.c  the handlers: each fills
+ *             one fg_resp,
  *   problem.c fg_problem -> RFC 9457 problem document, JSON responses,
  *   server.c  queues the fg_resp and writes the request log line (log.c).
  *   registry.c keeps checks that outlived their request's wait and records
@@ -162,6 +163,9 @@ int fg_registry_count(fg_registry *g);
  * stop the watcher thread. */
 void fg_registry_shutdown(fg_registry *g, double grace_s);
 void fg_registry_free(fg_registry *g);
+
+/* ---- scenarios.c ---- */
+void fg_h_model_scenarios(fg_req *r, fg_resp *out);
 
 /* ---- ops.c ---- */
 void fg_h_health(fg_req *r, fg_resp *out);

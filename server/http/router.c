@@ -30,6 +30,7 @@ static const fg_route_entry routes[] = {
     {"GET", "/v1/models/{name}", fg_h_model_get},
     {"DELETE", "/v1/models/{name}", fg_h_model_retire},
     {"GET", "/v1/models/{name}/versions/{n}", fg_h_model_version_get},
+    {"GET", "/v1/models/{name}/scenarios", fg_h_model_scenarios},
     {"POST", "/v1/models/{name}/checks", fg_h_checks_create},
     {"POST", "/v1/models/{name}/versions/{n}/checks", fg_h_checks_create},
     {"GET", "/v1/checks", fg_h_checks_list},

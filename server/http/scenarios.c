@@ -1,0 +1,235 @@
+/*
+ * http/scenarios.c -- a model's scenarios over HTTP.
+ *
+ *   GET /v1/models/{name}/scenarios?count=200&seed=7&start=0&stream=design
+ *
+ * Answers the JSON body {"columns", "rows", "seed", "stream", "start"}, or
+ * RFC 4180 CSV with a header row when the client's Accept header prefers
+ * text/csv. The text comes from engine/scenarios.c, the same writer as
+ * `feasgate scenarios`, so the daemon and the offline command print the
+ * same bytes for the same model, seed, stream and range.
+ *
+ * Parameters: count (required, 1 .. --max-scenarios; above it a 400 naming
+ * the limit max_scenarios), seed (0 .. 2^53-1; drawn and echoed when
+ * absent), start (default 0; start + count <= 2^53), stream (design, the
+ * default, or validation). An unknown, repeated-but-empty or malformed
+ * parameter is a 400 naming it. The model must exist (404) and not be
+ * retired (410). One response holds at most FG_SCENARIO_CELLS_MAX values
+ * (scenario_cells).
+ *
+ * Thread use: handlers on connection threads; drawing happens on the
+ * connection thread (it is bounded by the caps above and does no
+ * simulation of constraints, so it does not go through the worker pool).
+ */
+#include "http/http_internal.h"
+
+#include <ctype.h>
+#include <errno.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <strings.h>
+
+#define FG_CT_CSV "text/csv; charset=utf-8; header=present"
+
+typedef struct scen_query {
+  const char *count, *seed, *start, *stream;
+  char unknown[64];
+  bool empty_name;
+} scen_query;
+
+static enum MHD_Result collect(void *cls, enum MHD_ValueKind kind,
+                               const char *key, const char *value) {
+  scen_query *q = cls;
+  const char **slot = NULL;
+  if (strcmp(key, "count") == 0) slot = &q->count;
+  else if (strcmp(key, "seed") == 0) slot = &q->seed;
+  else if (strcmp(key, "start") == 0) slot = &q->start;
+  else if (strcmp(key, "stream") == 0) slot = &q->stream;
+  if (!slot) {
+    if (!q->unknown[0]) {
+      if (key[0]) snprintf(q->unknown, sizeof q->unknown, "%s", key);
+      else q->empty_name = true;
+    }
+    return MHD_YES;
+  }
+  if (!*slot) *slot = value ? value : "";
+  return MHD_YES;
+}
+
+static void bad_param(fg_resp *out, const char *name, const char *msg) {
+  fg_problem p;
+  fg_problem_init(&p);
+  fg_problem_set(&p, FG_EINVAL, "query parameter '%s': %s", name, msg);
+  fg_resp_problem(out, &p, 400);
+}
+
+/* A plain decimal whole number (digits only) up to `max`. */
+static bool parse_whole(const char *s, uint64_t max, uint64_t *out) {
+  if (!s || !*s) return false;
+  for (const char *t = s; *t; t++)
+    if (!isdigit((unsigned char)*t)) return false;
+  errno = 0;
+  char *end = NULL;
+  unsigned long long v = strtoull(s, &end, 10);
+  if (errno || *end || v > max) return false;
+  *out = v;
+  return true;
+}
+
+/* The q value of one media range's parameters ("; q=0.5"); 1 when absent,
+ * 0 when malformed. */
+static double quality(const char *params, size_t len) {
+  const char *t = params, *end = params + len;
+  while (t < end) {
+    const char *semi = memchr(t, ';', (size_t)(end - t));
+    const char *pe = semi ? semi : end;
+    while (t < pe && (*t == ' ' || *t == '\t')) t++;
+    if (pe - t >= 2 && (t[0] == 'q' || t[0] == 'Q') && t[1] == '=') {
+      char num[16];
+      size_t n = (size_t)(pe - t - 2);
+      if (n == 0 || n >= sizeof num) return 0;
+      memcpy(num, t + 2, n);
+      num[n] = '\0';
+      char *e = NULL;
+      double q = strtod(num, &e);
+      while (*e == ' ' || *e == '\t') e++;
+      return (*e || !(q >= 0 && q <= 1)) ? 0 : q;
+    }
+    t = semi ? semi + 1 : end;
+  }
+  return 1;
+}
+
+/* True when the Accept header prefers text/csv to JSON (RFC 9110 section
+ * 12.5.1: the highest q wins; JSON wins ties, being the default). */
+static bool wants_csv(const char *accept) {
+  if (!accept) return false;
+  double q_csv = -1, q_json = -1;
+  const char *t = accept;
+  while (*t) {
+    const char *comma = strchr(t, ',');
+    size_t len = comma ? (size_t)(comma - t) : strlen(t);
+    const char *s = t;
+    while (len && (*s == ' ' || *s == '\t')) s++, len--;
+    const char *semi = memchr(s, ';', len);
+    size_t tlen = semi ? (size_t)(semi - s) : len;
+    while (tlen && (s[tlen - 1] == ' ' || s[tlen - 1] == '\t')) tlen--;
+    double q = semi ? quality(semi + 1, len - (size_t)(semi + 1 - s)) : 1;
+    if (tlen == 8 && strncasecmp(s, "text/csv", 8) == 0) {
+      if (q > q_csv) q_csv = q;
+    } else if ((tlen == 16 && strncasecmp(s, "application/json", 16) == 0) ||
+               (tlen == 3 && strncmp(s, "*/*", 3) == 0) ||
+               (tlen == 13 && strncasecmp(s, "application/*", 13) == 0)) {
+      if (q > q_json) q_json = q;
+    }
+    t = comma ? comma + 1 : t + strlen(t);
+  }
+  return q_csv > 0 && q_csv > q_json;
+}
+
+void fg_h_model_scenarios(fg_req *r, fg_resp *out) {
+  fg_server *srv = r->srv;
+  scen_query q;
+  memset(&q, 0, sizeof q);
+  MHD_get_connection_values(r->conn, MHD_GET_ARGUMENT_KIND, collect, &q);
+  if (q.unknown[0] || q.empty_name) {
+    bad_param(out, q.unknown[0] ? q.unknown : "",
+              "unknown parameter; expected count, seed, start or stream");
+    return;
+  }
+  fg_scenarios_params sp = {0};
+  char msg[FG_MESSAGE_MAX];
+  uint64_t max = srv->cfg.limits.max_scenarios;
+  if (!q.count) {
+    snprintf(msg, sizeof msg,
+             "required: the number of scenarios, 1 to %llu",
+             (unsigned long long)max);
+    bad_param(out, "count", msg);
+    return;
+  }
+  if (!parse_whole(q.count, FG_SEED_MAX, &sp.count) || sp.count == 0) {
+    snprintf(msg, sizeof msg,
+             "expected a whole number from 1 to %llu, found '%.32s'",
+             (unsigned long long)max, q.count);
+    bad_param(out, "count", msg);
+    return;
+  }
+  if (sp.count > max) {
+    fg_problem p;
+    fg_problem_init(&p);
+    fg_problem_set(&p, FG_ELIMIT,
+                   "query parameter 'count': %llu scenarios exceed "
+                   "max_scenarios = %llu",
+                   (unsigned long long)sp.count, (unsigned long long)max);
+    p.limit_name = "max_scenarios";
+    p.limit_value = (double)max;
+    fg_resp_problem(out, &p, 400);
+    return;
+  }
+  if (q.seed) {
+    if (!parse_whole(q.seed, FG_SEED_MAX, &sp.seed)) {
+      snprintf(msg, sizeof msg,
+               "expected a whole number from 0 to %llu, found '%.32s'",
+               (unsigned long long)FG_SEED_MAX, q.seed);
+      bad_param(out, "seed", msg);
+      return;
+    }
+  } else {
+    sp.seed = fg_seed_draw();
+  }
+  if (q.start) {
+    if (!parse_whole(q.start, FG_SEED_MAX, &sp.start) ||
+        sp.count > FG_SEED_MAX + 1 - sp.start) {
+      snprintf(msg, sizeof msg,
+               "expected a whole number from 0 with start + count at most "
+               "2^53, found '%.32s'",
+               q.start);
+      bad_param(out, "start", msg);
+      return;
+    }
+  }
+  if (q.stream) {
+    if (strcmp(q.stream, "design") == 0) {
+      sp.validation = false;
+    } else if (strcmp(q.stream, "validation") == 0) {
+      sp.validation = true;
+    } else {
+      snprintf(msg, sizeof msg,
+               "expected design or validation, found '%.32s'", q.stream);
+      bad_param(out, "stream", msg);
+      return;
+    }
+  }
+  sp.csv = wants_csv(
+      MHD_lookup_connection_value(r->conn, MHD_HEADER_KIND, "Accept"));
+
+  fg_problem p;
+  fg_problem_init(&p);
+  fg_store_version v;
+  fg_model *m = NULL;
+  if (fg_http_load_model(srv, r->params[0], 0, &v, &m, &p) != FG_OK) {
+    fg_resp_problem(out, &p, 0);
+    return;
+  }
+  if (v.retired) {
+    fg_resp_error(out, 410, FG_EGONE,
+                  "model '%s' is retired; register it again to draw its "
+                  "scenarios",
+                  v.name);
+  } else {
+    char *text = NULL;
+    size_t len = 0;
+    if (fg_scenarios_render(m, &sp, &text, &len, &p) != FG_OK) {
+      fg_resp_problem(out, &p, 0);
+    } else {
+      free(out->body);
+      out->body = text;
+      out->len = len;
+      out->status = 200;
+      out->content_type = sp.csv ? FG_CT_CSV : FG_CT_JSON;
+    }
+  }
+  fg_store_version_clear(&v);
+  fg_model_unref(m);
+}
