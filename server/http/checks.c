@@ -134,13 +134,22 @@ static cJSON *check_summary(const fg_store_check *c) {
     cJSON_AddStringToObject(m, "digest", c->digest);
   }
   add_string_or_null(o, "verdict", c->verdict);
-  cJSON *j = cJSON_AddObjectToObject(o, "joint");
-  if (j) {
-    add_number_or_null(j, "probability", c->probability);
-    cJSON *iv = cJSON_AddObjectToObject(j, "interval");
-    if (iv) {
-      add_number_or_null(iv, "lower", c->lower);
-      add_number_or_null(iv, "upper", c->upper);
+  /* joint: null before anything was merged; interval null until known */
+  bool have_p = isfinite(c->probability);
+  bool have_iv = isfinite(c->lower) && isfinite(c->upper);
+  if (!have_p && !have_iv) {
+    cJSON_AddNullToObject(o, "joint");
+  } else {
+    cJSON *j = cJSON_AddObjectToObject(o, "joint");
+    if (j) {
+      add_number_or_null(j, "probability", c->probability);
+      cJSON *iv = have_iv ? cJSON_AddObjectToObject(j, "interval") : NULL;
+      if (iv) {
+        cJSON_AddNumberToObject(iv, "lower", c->lower);
+        cJSON_AddNumberToObject(iv, "upper", c->upper);
+      } else if (!have_iv) {
+        cJSON_AddNullToObject(j, "interval");
+      }
     }
   }
   cJSON_AddStringToObject(o, "created_at", c->created_at);
