@@ -68,4 +68,45 @@ void fg_sampler_draw(const fg_sampler *s, fg_sample_scratch *w, uint64_t seed,
                      fg_stream stream, uint64_t first, int n, double *out,
                      size_t stride);
 
+/* ---- sampling designs (design.c) ----
+ * A design decides where the uniforms behind each scenario come from;
+ * every input is then mapped through its inverse CDF (multivariate normal
+ * and copula members through normal quantiles and their factor; empirical
+ * and scenario_table by index), so marginals and dependence stay as
+ * declared.
+ *   FG_DESIGN_ANTITHETIC  samples 2m and 2m+1 are a pair: uniforms u of
+ *                         pair m's counter draw and 1 - u.
+ *   FG_DESIGN_LATIN_HYPERCUBE  within a replicate of `rep_size` samples,
+ *                         every dimension has one sample per stratum
+ *                         [k/rep_size, (k+1)/rep_size), strata assigned by
+ *                         an independent pseudo-random permutation per
+ *                         (replicate, dimension) computed on the fly
+ *                         (no tables), jittered inside the stratum.
+ *   FG_DESIGN_SOBOL       Sobol points, index i within the replicate, with
+ *                         a random digital shift per (replicate,
+ *                         dimension); at most fg_design_sobol_max_dims()
+ *                         dimensions.
+ * Replicate r covers global sample indices [r*rep_size, (r+1)*rep_size).
+ * Every value is a pure function of (seed, stream, design, rep_size,
+ * global index, dimension), so chunking and workers do not matter. */
+typedef enum fg_design {
+  FG_DESIGN_MONTE_CARLO = 0,
+  FG_DESIGN_ANTITHETIC,
+  FG_DESIGN_LATIN_HYPERCUBE,
+  FG_DESIGN_SOBOL
+} fg_design;
+
+int fg_design_sobol_max_dims(void);
+/* FG_OK when sampler s can be drawn with design d (Sobol: dimension
+ * limit, reported as a limit "sobol_dimensions"). */
+fg_status fg_sampler_design_check(const fg_sampler *s, fg_design d,
+                                  fg_problem *p);
+/* Like fg_sampler_draw, for design d (FG_DESIGN_MONTE_CARLO falls back to
+ * fg_sampler_draw). first..first+n-1 are global sample indices; a call
+ * never crosses a replicate boundary (the engine aligns chunks). */
+void fg_sampler_draw_design(const fg_sampler *s, fg_sample_scratch *w,
+                            uint64_t seed, fg_stream stream, fg_design d,
+                            uint64_t rep_size, uint64_t first, int n,
+                            double *out, size_t stride);
+
 #endif
