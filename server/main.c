@@ -5,7 +5,7 @@
  *   feasgate check MODEL.json REQUEST.json     one check offline, same engine
  *            [--samples N] [--seed S] [--workers N] [--chunk N] [--summary]
  *   feasgate register --store URL FILE...      add model documents to a store
- *   feasgate scenarios MODEL.json --count N    a model's scenarios, JSON or
+ *   feasgate scenarios MODEL.json [--count N]  a model's scenarios, JSON or
  *            [--seed S] [--start I] [--stream design|validation] [--csv]
  *            [--max M]                         CSV (engine/scenarios.c)
  *   feasgate version
@@ -37,7 +37,7 @@ static void usage(FILE *f) {
           "  feasgate check MODEL.json REQUEST.json [--samples N] [--seed S]\n"
           "                 [--workers N] [--chunk N] [--summary]\n"
           "  feasgate register --store URL FILE...\n"
-          "  feasgate scenarios MODEL.json --count N [--seed S] [--start I]\n"
+          "  feasgate scenarios MODEL.json [--count N] [--seed S] [--start I]\n"
           "                 [--stream design|validation] [--csv] [--max M]\n"
           "  feasgate version\n"
           "`feasgate serve --help` lists the daemon's settings.\n");
@@ -302,24 +302,25 @@ static bool stdout_sink(void *ctx, const char *text, size_t len) {
 
 static void scenarios_usage(FILE *f) {
   fprintf(f,
-          "usage: feasgate scenarios MODEL.json --count N [--seed S] "
+          "usage: feasgate scenarios MODEL.json [--count N] [--seed S] "
           "[--start I]\n"
           "                          [--stream design|validation] [--csv] "
           "[--max M]\n"
           "Prints scenarios I .. I+N-1 of the model's random inputs as JSON\n"
           "{\"columns\", \"rows\", \"seed\", \"stream\", \"start\"} or, with "
           "--csv, as CSV\n"
-          "with a header row. N is at most %llu unless a larger --max M is "
-          "given.\n"
+          "with a header row. N is %llu by default and at most %llu unless "
+          "a\nlarger --max M is given.\n"
           "Without --seed a seed is drawn and printed on standard error.\n",
+          (unsigned long long)FG_SCENARIOS_COUNT_DEFAULT,
           (unsigned long long)FG_MAX_SCENARIOS_DEFAULT);
 }
 
 static int cmd_scenarios(int argc, char **argv) {
   const char *file = NULL;
-  fg_scenarios_params q = {0};
+  fg_scenarios_params q = {.count = FG_SCENARIOS_COUNT_DEFAULT};
   uint64_t max = FG_MAX_SCENARIOS_DEFAULT;
-  bool has_count = false, has_seed = false;
+  bool has_seed = false;
   for (int i = 1; i < argc; i++) {
     const char *a = argv[i], *v = i + 1 < argc ? argv[i + 1] : NULL;
     if (strcmp(a, "--help") == 0) {
@@ -333,7 +334,6 @@ static int cmd_scenarios(int argc, char **argv) {
                         "from 1, found '%s'\n", v);
         return EXIT_USAGE;
       }
-      has_count = true;
     } else if (strcmp(a, "--seed") == 0 && v) {
       if (!parse_u64(argv[++i], FG_SEED_MAX, &q.seed)) {
         fprintf(stderr, "feasgate scenarios: --seed expects 0 to 2^53-1, "
@@ -374,9 +374,8 @@ static int cmd_scenarios(int argc, char **argv) {
       return EXIT_USAGE;
     }
   }
-  if (!file || !has_count) {
-    fprintf(stderr, "feasgate scenarios: %s\n",
-            file ? "--count N is required" : "a model file is required");
+  if (!file) {
+    fprintf(stderr, "feasgate scenarios: a model file is required\n");
     scenarios_usage(stderr);
     return EXIT_USAGE;
   }

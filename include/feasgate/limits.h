@@ -109,6 +109,10 @@
 #define FG_MAX_SCENARIOS_DEFAULT 100000ull
 #endif
 
+/* Scenarios a scenarios request returns when it names no count (never
+ * more than the configured cap). */
+#define FG_SCENARIOS_COUNT_DEFAULT 100ull
+
 /* Values (scenarios x columns) in one scenarios response held in memory:
  * about 25 bytes each printed, so the largest body stays near 100 MB. */
 #define FG_SCENARIO_CELLS_MAX 4000000ull
@@ -130,6 +134,26 @@
 /* Worker threads. */
 #define FG_WORKERS_MAX 256
 
+/* Sample-size calculations (GET /v1/sample-size): decision variables and
+ * discarded scenarios of a scenario-approach query (each term of the
+ * binomial tail is summed, so the cost grows with decisions + discarded),
+ * scenarios searched or given (the bound is evaluated in double precision,
+ * which stays exact for whole numbers far beyond this), and the largest
+ * sample count reported (beyond it the answer is no practical plan). */
+#define FG_SIZE_DECISIONS_MAX 1000000ull
+#define FG_SIZE_DISCARDED_MAX 1000000ull
+#define FG_SIZE_SCENARIOS_MAX 1000000000000ull
+#define FG_SIZE_SAMPLES_MAX 1000000000000000ull
+
+/* Candidates of one comparison: pairs grow as the square (16 give 120). */
+#define FG_COMPARE_CANDIDATES_MAX 16
+/* Samples of one comparison: every candidate keeps one outcome bit per
+ * sample until the pairs are counted, samples/8 bytes each (25 MB at this
+ * cap, 400 MB for 16 candidates). */
+#ifndef FG_COMPARE_SAMPLES_MAX
+#define FG_COMPARE_SAMPLES_MAX 200000000ull
+#endif
+
 /* The limits a client can run into, as (name, value) pairs for
  * GET /v1/limits and for error messages. Runtime-configurable ones are
  * reported from the server configuration instead (http/). */
@@ -147,6 +171,12 @@
   X("table_cells", FG_TABLE_CELLS_MAX)                                         \
   X("json_depth", FG_JSON_MAX_DEPTH)                                           \
   X("label_length", FG_LABEL_MAX)                                              \
+  X("sample_size_decisions", FG_SIZE_DECISIONS_MAX)                            \
+  X("sample_size_discarded", FG_SIZE_DISCARDED_MAX)                            \
+  X("sample_size_scenarios", FG_SIZE_SCENARIOS_MAX)                            \
+  X("sample_size_samples", FG_SIZE_SAMPLES_MAX)                                \
+  X("comparison_candidates", FG_COMPARE_CANDIDATES_MAX)                        \
+  X("comparison_samples", FG_COMPARE_SAMPLES_MAX)                              \
   X("failing_scenarios", FG_FAILING_SCENARIOS)                                \
   X("scenario_cells", FG_SCENARIO_CELLS_MAX)
 

@@ -9,8 +9,8 @@
  * `feasgate scenarios`, so the daemon and the offline command print the
  * same bytes for the same model, seed, stream and range.
  *
- * Parameters: count (required, 1 .. --max-scenarios; above it a 400 naming
- * the limit max_scenarios), seed (0 .. 2^53-1; drawn and echoed when
+ * Parameters: count (1 .. --max-scenarios, above it a 400 naming the limit
+ * max_scenarios; FG_SCENARIOS_COUNT_DEFAULT or the cap when absent), seed (0 .. 2^53-1; drawn and echoed when
  * absent), start (default 0; start + count <= 2^53), stream (design, the
  * default, or validation). An unknown, repeated-but-empty or malformed
  * parameter is a 400 naming it. The model must exist (404) and not be
@@ -142,13 +142,9 @@ void fg_h_model_scenarios(fg_req *r, fg_resp *out) {
   char msg[FG_MESSAGE_MAX];
   uint64_t max = srv->cfg.limits.max_scenarios;
   if (!q.count) {
-    snprintf(msg, sizeof msg,
-             "required: the number of scenarios, 1 to %llu",
-             (unsigned long long)max);
-    bad_param(out, "count", msg);
-    return;
-  }
-  if (!parse_whole(q.count, FG_SEED_MAX, &sp.count) || sp.count == 0) {
+    sp.count = max < FG_SCENARIOS_COUNT_DEFAULT ? max
+                                                : FG_SCENARIOS_COUNT_DEFAULT;
+  } else if (!parse_whole(q.count, FG_SEED_MAX, &sp.count) || sp.count == 0) {
     snprintf(msg, sizeof msg,
              "expected a whole number from 1 to %llu, found '%.32s'",
              (unsigned long long)max, q.count);
