@@ -12,6 +12,8 @@
 #include <stdlib.h>
 #include <unistd.h>
 
+#define FG_CS_FIRST_ROUND_FOR_TEST 4096 /* estimate.h: FG_CS_FIRST_ROUND */
+
 static const char *MODEL =
     "{\"format\":1,\"name\":\"engine-test\","
     "\"decisions\":[{\"name\":\"cap\",\"size\":3,\"lower\":0,\"upper\":50},"
@@ -309,6 +311,46 @@ static void test_pinned_counts(void) {
              13784, rows_b, "abcdf", "joint families");
 }
 
+/* Early stopping: the same look points whatever the chunk size and worker
+ * count, a clear case stops at the first look, and the reported interval
+ * is the confidence sequence's. */
+static void test_stop_early(fg_model *m) {
+  /* wind holds with probability Phi(1.5) = 0.933; with cap large and crew 3
+   * the other rows hold, so the joint is about 0.933. */
+  const char *clear = "{\"decision\":{\"cap\":[20,20,20],\"crew\":0},"
+                      "\"samples\":2000000,\"seed\":9,\"stop_early\":true,"
+                      "\"target\":0.8}";
+  counts a = run(m, clear, 1, 256);
+  counts b = run(m, clear, 2, 16384);
+  CHECK_INT(a.n, FG_CS_FIRST_ROUND_FOR_TEST);
+  CHECK_INT(a.n, b.n);
+  CHECK_INT(a.k, b.k);
+  CHECK(cJSON_IsTrue(cJSON_GetObjectItem(a.res, "stopped_early")));
+  const cJSON *iv = cJSON_GetObjectItem(cJSON_GetObjectItem(a.res, "joint"), "interval");
+  CHECK_STR(cJSON_GetStringValue(cJSON_GetObjectItem(iv, "method")),
+            "confidence_sequence");
+  CHECK_STR(cJSON_GetStringValue(cJSON_GetObjectItem(a.res, "verdict")), "pass");
+  /* A target right at the estimate cannot be settled: all samples are
+   * used, in the same places for both schedules. */
+  counts ref = run(m, "{\"decision\":{\"cap\":[20,20,20],\"crew\":0},"
+                      "\"samples\":300000,\"seed\":9}", 2, 16384);
+  char close[256];
+  snprintf(close, sizeof close,
+           "{\"decision\":{\"cap\":[20,20,20],\"crew\":0},"
+           "\"samples\":300000,\"seed\":9,\"stop_early\":true,"
+           "\"target\":%.6f}", (double)ref.k / (double)ref.n);
+  cJSON_Delete(ref.res);
+  counts c = run(m, close, 2, 4096);
+  counts d = run(m, close, 1, 16384);
+  CHECK_INT(c.n, 300000);
+  CHECK_INT(c.k, d.k);
+  CHECK(cJSON_IsFalse(cJSON_GetObjectItem(c.res, "stopped_early")));
+  CHECK_STR(cJSON_GetStringValue(cJSON_GetObjectItem(c.res, "verdict")),
+            "inconclusive");
+  cJSON *all[] = {a.res, b.res, c.res, d.res};
+  for (size_t i = 0; i < 4; i++) cJSON_Delete(all[i]);
+}
+
 int main(void) {
   fg_model *m = model();
   if (!m) return fg_test_finish() | 1;
@@ -317,6 +359,7 @@ int main(void) {
   test_deterministic_problems(m);
   test_cancel(m);
   test_pinned_counts();
+  test_stop_early(m);
   fg_model_unref(m);
   return fg_test_finish();
 }
