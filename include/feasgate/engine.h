@@ -130,6 +130,8 @@ fg_verdict fg_check_get_verdict(fg_check *c); /* valid once ended */
 /* Samples merged so far and satisfied among them. */
 void fg_check_progress(fg_check *c, uint64_t *done, uint64_t *satisfied);
 void fg_check_unref(fg_check *c);
+/* Take another reference (returns c). */
+fg_check *fg_check_ref(fg_check *c);
 /* With req.keep_outcomes: bit i of the returned words is 1 when sample i
  * satisfied every row; *n is the number of samples merged. Valid once the
  * check has ended; NULL otherwise. */

@@ -170,6 +170,11 @@ void fg_check_free_internal(struct fg_check *c) {
   free(c);
 }
 
+fg_check *fg_check_ref(fg_check *c) {
+  if (c) atomic_fetch_add(&c->refs, 1);
+  return c;
+}
+
 void fg_check_unref(fg_check *c) {
   if (!c) return;
   if (atomic_fetch_sub(&c->refs, 1) == 1) fg_check_free_internal(c);

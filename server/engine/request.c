@@ -312,7 +312,9 @@ cJSON *fg_request_json(const fg_model *m, const fg_check_request *r) {
     }
   }
   cJSON_AddNumberToObject(o, "samples", (double)r->samples);
-  cJSON_AddNumberToObject(o, "seed", (double)r->seed);
+  char seed[32];
+  snprintf(seed, sizeof seed, "%llu", (unsigned long long)r->seed);
+  cJSON_AddRawToObject(o, "seed", seed);
   cJSON_AddNumberToObject(o, "target", r->target);
   cJSON_AddNumberToObject(o, "confidence", r->confidence);
   cJSON_AddStringToObject(o, "interval", fg_interval_method_name(r->interval));
@@ -322,7 +324,8 @@ cJSON *fg_request_json(const fg_model *m, const fg_check_request *r) {
     cJSON_AddStringToObject(o, "expect_digest", r->expect_digest);
   if (r->has_in_sample) {
     cJSON *is = cJSON_AddObjectToObject(o, "in_sample");
-    cJSON_AddNumberToObject(is, "seed", (double)r->in_sample_seed);
+    snprintf(seed, sizeof seed, "%llu", (unsigned long long)r->in_sample_seed);
+    cJSON_AddRawToObject(is, "seed", seed);
     cJSON_AddNumberToObject(is, "count", (double)r->in_sample_count);
   }
   if (r->label[0]) cJSON_AddStringToObject(o, "label", r->label);

@@ -13,11 +13,20 @@
 
 #include <cjson/cJSON.h>
 #include <math.h>
+#include <stdio.h>
 #include <string.h>
 
 static void add_num(cJSON *o, const char *k, double v) {
   if (isfinite(v)) cJSON_AddNumberToObject(o, k, v);
   else cJSON_AddNullToObject(o, k);
+}
+
+/* Whole numbers beyond 10^15 (seeds go to 2^53) would print in exponent
+ * form through cJSON's %.15g; write them as integer text. */
+static void add_u64(cJSON *o, const char *k, uint64_t v) {
+  char buf[32];
+  snprintf(buf, sizeof buf, "%llu", (unsigned long long)v);
+  cJSON_AddRawToObject(o, k, buf);
 }
 
 static cJSON *interval_json(fg_interval iv, const char *method) {
@@ -86,7 +95,7 @@ cJSON *fg_check_result_json(fg_check *c, const fg_check_meta *meta) {
   else cJSON_AddNullToObject(o, "verdict");
   cJSON_AddNumberToObject(o, "target", c->req.target);
   cJSON_AddNumberToObject(o, "confidence", c->req.confidence);
-  cJSON_AddNumberToObject(o, "seed", (double)c->req.seed);
+  add_u64(o, "seed", c->req.seed);
   cJSON_AddStringToObject(o, "sampling", fg_sampling_name(c->req.sampling));
   cJSON_AddNumberToObject(o, "samples_requested", (double)c->req.samples);
 
@@ -103,7 +112,19 @@ cJSON *fg_check_result_json(fg_check *c, const fg_check_meta *meta) {
                                        : fg_interval_method_name(c->req.interval)));
     add_rows(o, c);
   } else {
-    cJSON_AddNullToObject(o, "joint");
+    /* Running: the joint figures so far (merged chunks), no verdict. */
+    uint64_t n = c->total.n, k = c->total.satisfied;
+    cJSON *j = cJSON_AddObjectToObject(o, "joint");
+    cJSON_AddNumberToObject(j, "samples", (double)n);
+    cJSON_AddNumberToObject(j, "satisfied", (double)k);
+    double pr = n ? (double)k / (double)n : NAN;
+    add_num(j, "probability", pr);
+    add_num(j, "std_error", n ? sqrt(pr * (1 - pr) / (double)n) : NAN);
+    cJSON_AddItemToObject(
+        j, "interval",
+        interval_json(n ? fg_interval_clopper_pearson(k, n, c->req.confidence)
+                        : (fg_interval){0.0, 1.0},
+                      "clopper_pearson"));
     cJSON_AddArrayToObject(o, "constraints");
     add_progress(o, c);
   }
@@ -147,7 +168,7 @@ cJSON *fg_check_result_json(fg_check *c, const fg_check_meta *meta) {
 
   if (c->has_in_sample) {
     cJSON *is = cJSON_AddObjectToObject(o, "in_sample");
-    cJSON_AddNumberToObject(is, "seed", (double)c->req.in_sample_seed);
+    add_u64(is, "seed", c->req.in_sample_seed);
     cJSON_AddNumberToObject(is, "count", (double)c->in_sample_count);
     cJSON_AddNumberToObject(is, "satisfied", (double)c->in_sample_satisfied);
     add_num(is, "fraction", c->in_sample_count
@@ -166,9 +187,8 @@ cJSON *fg_check_result_json(fg_check *c, const fg_check_meta *meta) {
   if (meta && meta->finished_at && ended)
     cJSON_AddStringToObject(o, "finished_at", meta->finished_at);
   else cJSON_AddNullToObject(o, "finished_at");
-  if (ended) cJSON_AddNumberToObject(o, "elapsed_ms", round(c->elapsed_ms * 1000) / 1000);
-  else cJSON_AddNumberToObject(o, "elapsed_ms",
-                               round((fg_time_monotonic() - c->t_start) * 1e6) / 1000);
+  double ms = ended ? c->elapsed_ms : (fg_time_monotonic() - c->t_start) * 1e3;
+  cJSON_AddNumberToObject(o, "elapsed_ms", round(ms));
   if (c->req.label[0]) cJSON_AddStringToObject(o, "label", c->req.label);
   else cJSON_AddNullToObject(o, "label");
   if (meta && meta->key) cJSON_AddStringToObject(o, "key", meta->key);
