@@ -3,6 +3,8 @@
 Each reference test compares feasgate with an outside reference (SciPy,
 statsmodels, closed-form laws) and names the source beside each check.
 Results are counted and the closing line reads "N passed, N failed".
+run_check and run_scenarios drive the offline commands `feasgate check`
+and `feasgate scenarios`.
 """
 import json
 import os
@@ -45,3 +47,21 @@ def run_check(model, request, workers=2, extra=()):
         if p.returncode == 3:
             raise RuntimeError("feasgate check failed: " + p.stderr)
         return p.returncode, json.loads(p.stdout)
+
+
+def run_scenarios(model, count, seed, start=0, stream="design", csv=False):
+    """Run `feasgate scenarios` offline; returns its standard output (the
+    JSON text, or the CSV text with `csv`). Counts above the default cap
+    are allowed with --max."""
+    with tempfile.TemporaryDirectory() as d:
+        mp = os.path.join(d, "m.json")
+        with open(mp, "w") as f:
+            json.dump(model, f)
+        args = [BIN, "scenarios", mp, "--count", str(count), "--seed", str(seed),
+                "--start", str(start), "--stream", stream, "--max", str(max(count, 1))]
+        if csv:
+            args.append("--csv")
+        p = subprocess.run(args, capture_output=True, text=True, timeout=900)
+        if p.returncode != 0:
+            raise RuntimeError("feasgate scenarios failed: " + p.stderr)
+        return p.stdout
