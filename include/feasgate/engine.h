@@ -186,4 +186,51 @@ fg_status fg_scenarios_write(const fg_model *m, const fg_scenarios_params *q,
 fg_status fg_scenarios_render(const fg_model *m, const fg_scenarios_params *q,
                               char **out, size_t *len, fg_problem *p);
 
+/* ---- comparisons (compare.c) ----
+ * Several candidates judged on the same scenarios (common random numbers:
+ * one seed on the validation stream for all), then every pair compared
+ * scenario by scenario from the per-sample outcome bits. */
+typedef struct fg_compare_request {
+  int ncandidates; /* 2..FG_COMPARE_CANDIDATES_MAX */
+  /* One check request per candidate: its decision and label, the shared
+   * members (samples, seed, target, ...) and keep_outcomes set. */
+  fg_check_request candidates[FG_COMPARE_CANDIDATES_MAX];
+} fg_compare_request;
+
+/* Validate a comparison body {"candidates": [{"label", "decision"}, ...],
+ * "samples", "seed", "target", "confidence", "interval", ...} against `m`.
+ * Faults in a candidate are reported at /candidates/i/...; samples are
+ * capped by FG_COMPARE_SAMPLES_MAX as well as by lim->max_samples. */
+fg_status fg_compare_parse(const fg_model *m, const struct cJSON *body,
+                           const fg_request_limits *lim,
+                           fg_compare_request *out, fg_problem *p);
+void fg_compare_request_free(fg_compare_request *r);
+/* Give every candidate the same seed (the caller draws one when none was
+ * given). */
+void fg_compare_set_seed(fg_compare_request *r, uint64_t seed);
+
+/* Scenario-by-scenario counts of two candidates' joint outcomes. */
+typedef struct fg_compare_pair {
+  uint64_t n, both, a_only, b_only, neither;
+  double difference; /* (a_only - b_only) / n */
+  double lower, upper; /* Newcombe (1998) method 10 at `confidence` */
+} fg_compare_pair;
+
+/* Count a pair by popcount over the outcome bitmaps. Both checks must have
+ * ended `done` with keep_outcomes on the same number of samples. */
+fg_status fg_compare_count(fg_check *a, fg_check *b, double confidence,
+                           fg_compare_pair *out, fg_problem *p);
+/* The "pairs" array of the comparison body: every pair (i, j), i < j in
+ * list order, as {"a", "b", "a_only", "b_only", "both", "neither",
+ * "difference", "interval": {"lower", "upper", "method"}}. */
+fg_status fg_compare_pairs_json(fg_check *const *checks,
+                                const char *const *labels, int n,
+                                double confidence, struct cJSON **out,
+                                fg_problem *p);
+/* Run every candidate to the end on one private pool (tests, offline);
+ * out[] receives r->ncandidates checks, detached like fg_check_run_sync's. */
+fg_status fg_compare_run_sync(fg_model *m, const fg_compare_request *r,
+                              int workers, int chunk, fg_check **out,
+                              fg_problem *p);
+
 #endif

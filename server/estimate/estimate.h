@@ -143,4 +143,96 @@ void fg_tally_merge(fg_tally *dst, const fg_tally *src);
 void fg_tally_block(fg_tally *t, const double *const *excess, int n,
                     uint64_t first, const double *objective, int *scratch);
 
+/* ---- sample sizes (sizes.c) ----
+ * Normal-approximation sizes for a binomial proportion and the
+ * scenario-approach bounds for convex design problems (Campi & Garatti
+ * 2008, SIAM J. Optim. 19:1211; with discarded scenarios, Campi & Garatti
+ * 2011, J. Optim. Theory Appl. 148:257). Each returns FG_EINVAL (or
+ * FG_ELIMIT with the limit's name) for inputs outside its domain, naming
+ * the parameter. Results are whole numbers held in doubles. */
+
+/* Samples for a two-sided interval of half-width h at level `confidence`:
+ * ceil(z^2 p(1-p) / h^2), z the 1-a/2 normal quantile; p < 0 means
+ * unknown (p = 1/2, the worst case). */
+fg_status fg_size_half_width(double h, double confidence, double p,
+                             double *samples, fg_problem *pr);
+/* Samples for a pass with probability `power` when the true value is
+ * p > target: ceil(((z_{1-a/2} sqrt(t(1-t)) + z_power sqrt(p(1-p))) /
+ * (p - t))^2). */
+fg_status fg_size_power(double target, double p, double confidence,
+                        double power, double *samples, fg_problem *pr);
+
+/* log of the scenario-approach bound with N scenarios, violation level
+ * eps, d decision variables and k discarded scenarios:
+ *   C(k+d-1, k) * sum_{i <= k+d-1} C(N, i) eps^i (1-eps)^(N-i)
+ * (for k = 0 the 2008 bound sum_{i<d} ...). The tail is summed in log
+ * space from its largest terms, so tiny bounds (1e-300 and below) keep
+ * their relative accuracy. Needs d >= 1, 0 < eps < 1; when N <= k+d-1
+ * the tail is 1 and the result is log C(k+d-1, k) >= 0. */
+double fg_scenario_log_bound(double n, double eps, uint64_t d, uint64_t k);
+/* Smallest N <= FG_SIZE_SCENARIOS_MAX with bound(N) <= beta. */
+fg_status fg_scenario_size(double eps, double beta, uint64_t d, uint64_t k,
+                           uint64_t *n, fg_problem *pr);
+/* Smallest eps (to 1e-12 relative) with bound(N, eps) <= beta. */
+fg_status fg_scenario_epsilon(uint64_t n, double beta, uint64_t d, uint64_t k,
+                              double *eps, fg_problem *pr);
+
+/* The GET /v1/sample-size query and `feasgate sample-size`: parameters by
+ * name, then one of four forms chosen by which parameters are present. */
+typedef enum fg_size_param {
+  FG_SZ_HALF_WIDTH = 0,
+  FG_SZ_CONFIDENCE,
+  FG_SZ_PROBABILITY,
+  FG_SZ_TARGET,
+  FG_SZ_POWER,
+  FG_SZ_EPSILON,
+  FG_SZ_BETA,
+  FG_SZ_DECISIONS,
+  FG_SZ_DISCARDED,
+  FG_SZ_SCENARIOS,
+  FG_SZ_NPARAMS
+} fg_size_param;
+
+typedef struct fg_size_query {
+  bool given[FG_SZ_NPARAMS];
+  double value[FG_SZ_NPARAMS];
+} fg_size_query;
+
+typedef enum fg_size_method {
+  FG_SIZE_NORMAL_HALF_WIDTH = 0,
+  FG_SIZE_NORMAL_POWER,
+  FG_SIZE_CAMPI_GARATTI_2008,
+  FG_SIZE_CAMPI_GARATTI_2011
+} fg_size_method;
+
+typedef struct fg_size_answer {
+  fg_size_method method;
+  bool gives_epsilon; /* scenario form with `scenarios` given */
+  double samples;     /* normal forms */
+  uint64_t scenarios; /* scenario form, epsilon given */
+  double epsilon;     /* scenario form, scenarios given */
+  double bound;       /* scenario forms: the bound at the answer */
+} fg_size_answer;
+
+/* "half_width", "confidence", ... ; NULL out of range. */
+const char *fg_size_param_name(int param);
+const char *fg_size_method_name(fg_size_method m);
+/* Set parameter `name` from its text (a decimal number); an unknown name,
+ * a repeated one or an unreadable value is recorded in `p`. */
+fg_status fg_size_query_set(fg_size_query *q, const char *name,
+                            const char *text, fg_problem *p);
+/* Choose the form and compute it; ambiguous, missing or stray parameters
+ * are named in `p`. */
+fg_status fg_size_query_solve(const fg_size_query *q, fg_size_answer *a,
+                              fg_problem *p);
+
+/* ---- paired proportions (paired.c) ----
+ * Two candidates judged on the same n scenarios: `both` hold in both,
+ * `a_only` only A, `b_only` only B, `neither`. The interval for
+ * P(A holds) - P(B holds) is Newcombe's hybrid score interval (Newcombe
+ * 1998, Statistics in Medicine 17:2635, method 10): Wilson limits for
+ * each marginal combined with the phi correlation of the 2x2 table. */
+fg_interval fg_newcombe_paired(uint64_t both, uint64_t a_only, uint64_t b_only,
+                               uint64_t neither, double confidence);
+
 #endif
