@@ -1,0 +1,207 @@
+#!/usr/bin/env python3
+"""tests/bench/bench.py -- feasgate's throughput benchmarks.
+
+Usage: /usr/bin/python3 tests/bench/bench.py [--bin build/feasgate]
+       [--quick] [--only affine,chain,...]
+(or `cmake --build build --target bench`). Prints figures; never fails on
+speed, and ctest never runs it.
+
+What it measures, per workload of workloads.py (affine, chain, table,
+theatre, microgrid):
+  offline   `feasgate check MODEL REQUEST --workers N --samples S` for N = 1
+            and 2. The simulation time is the result's `elapsed_ms` (from
+            queueing the check to its final tally, excluding process start,
+            parsing and model compilation); the rest of the process's wall
+            time is reported as `setup` (compile and start-up). Best of
+            REPEAT runs.
+  numpy     numpy_side.py on the same law and rows, same invocation, in a
+            subprocess with OPENBLAS_CORETYPE and OPENBLAS_L2_SIZE unset.
+            The ratio is feasgate samples/s over NumPy samples/s.
+  http      a daemon started here (`feasgate serve --listen 127.0.0.1:0`,
+            2 workers, temporary store; the bound address is read from its
+            first stderr JSON line): the end-to-end wall time of one
+            4,000,000-sample synchronous check of affine and chain, and the
+            median overhead (wall time minus `elapsed_ms`) of 10,000-sample
+            checks of the theatre demo.
+Both sides' joint probabilities are printed so a reader sees the two
+implementations simulate the same thing.
+
+Thread use: a single-threaded driver of subprocesses.
+"""
+
+import argparse
+import http.client
+import json
+import os
+import shutil
+import statistics
+import subprocess
+import sys
+import tempfile
+import time
+
+HERE = os.path.dirname(os.path.abspath(__file__))
+sys.path.insert(0, HERE)
+import workloads  # noqa: E402
+
+PYTHON = "/usr/bin/python3"
+SAMPLES = {"affine": 2000000, "chain": 4000000, "table": 4000000,
+           "theatre": 4000000, "microgrid": 4000000}
+NUMPY_SAMPLES = {"affine": 1000000, "chain": 1000000, "table": 1000000,
+                 "theatre": 1000000, "microgrid": 1000000}
+REPEAT = 3
+
+
+def offline(binary, paths, workers, samples):
+    best = None
+    for _ in range(REPEAT):
+        t0 = time.perf_counter()
+        proc = subprocess.run(
+            [binary, "check", paths["model"], paths["request"],
+             "--workers", str(workers), "--samples", str(samples)],
+            capture_output=True, text=True)
+        wall = time.perf_counter() - t0
+        if proc.returncode > 2:
+            sys.exit("feasgate check failed: " + proc.stderr)
+        res = json.loads(proc.stdout)
+        sim = res["elapsed_ms"] / 1000.0
+        if best is None or sim < best[0]:
+            best = (sim, wall - sim, res["joint"]["satisfied"] / samples)
+    return best
+
+
+def numpy_side(name, paths, samples):
+    env = dict(os.environ)
+    env.pop("OPENBLAS_CORETYPE", None)
+    env.pop("OPENBLAS_L2_SIZE", None)
+    proc = subprocess.run(
+        [PYTHON, os.path.join(HERE, "numpy_side.py"), name, paths["params"],
+         str(samples)], capture_output=True, text=True, env=env)
+    if proc.returncode != 0:
+        sys.exit("numpy side failed: " + proc.stderr)
+    return json.loads(proc.stdout)
+
+
+class Daemon:
+    def __init__(self, binary, workers):
+        self.dir = tempfile.mkdtemp(prefix="fgbench-")
+        self.proc = subprocess.Popen(
+            [binary, "serve", "--listen", "127.0.0.1:0", "--workers",
+             str(workers), "--store", "sqlite:" + os.path.join(self.dir, "s.db"),
+             "--max-wait", "600", "--log-level", "warn"],
+            stderr=subprocess.PIPE, text=True)
+        first = json.loads(self.proc.stderr.readline())
+        host, port = first["address"].rsplit(":", 1)
+        self.host, self.port = host, int(port)
+
+    def post(self, path, body):
+        data = json.dumps(body).encode()
+        conn = http.client.HTTPConnection(self.host, self.port, timeout=900)
+        t0 = time.perf_counter()
+        conn.request("POST", path, data, {"Content-Type": "application/json"})
+        resp = conn.getresponse()
+        out = resp.read()
+        wall = time.perf_counter() - t0
+        conn.close()
+        if resp.status not in (200, 201):
+            sys.exit("HTTP %d on %s: %s" % (resp.status, path, out[:300]))
+        return json.loads(out), wall
+
+    def close(self):
+        self.proc.terminate()
+        try:
+            self.proc.wait(timeout=30)
+        except subprocess.TimeoutExpired:
+            self.proc.kill()
+        shutil.rmtree(self.dir, ignore_errors=True)
+
+
+def fmt_rate(x):
+    return "%.3g M/s" % (x / 1e6)
+
+
+def main():
+    ap = argparse.ArgumentParser()
+    ap.add_argument("--bin", default=os.path.join(workloads.ROOT, "build",
+                                                  "feasgate"))
+    ap.add_argument("--quick", action="store_true",
+                    help="a tenth of the samples, one repeat")
+    ap.add_argument("--only", default="")
+    args = ap.parse_args()
+    global REPEAT
+    scale = 10 if args.quick else 1
+    if args.quick:
+        REPEAT = 1
+    names = [n for n in workloads.BUILDERS
+             if not args.only or n in args.only.split(",")]
+    tmp = tempfile.mkdtemp(prefix="fgbench-docs-")
+    paths = workloads.write_all(tmp, names)
+    with open("/proc/cpuinfo") as f:
+        cpu = next((ln.split(":", 1)[1].strip() for ln in f
+                    if ln.startswith("model name")), "?")
+    print("machine: nproc %d, %s" % (os.cpu_count(), cpu))
+    print("%-10s %7s %11s %11s %9s %11s %8s %8s %9s" % (
+        "workload", "workers", "samples", "feasgate", "setup", "numpy",
+        "ratio", "2w/1w", "P f/np"))
+    rates = {}
+    for name in names:
+        s = SAMPLES[name] // scale
+        npres = numpy_side(name, paths[name], NUMPY_SAMPLES[name] // scale)
+        np_rate = npres["samples"] / npres["seconds"]
+        np_p = npres["joint"] / npres["samples"]
+        one = None
+        for w in (1, 2):
+            sim, setup, p = offline(args.bin, paths[name], w, s)
+            rate = s / sim
+            rates[(name, w)] = rate
+            one = rate if w == 1 else one
+            print("%-10s %7d %11d %11s %8.0fms %11s %7.1fx %8s %9s" % (
+                name, w, s, fmt_rate(rate), setup * 1000, fmt_rate(np_rate),
+                rate / np_rate, "%.2fx" % (rate / one) if w == 2 else "",
+                "%.4f/%.4f" % (p, np_p)))
+        sys.stdout.flush()
+
+    http_names = [n for n in ("affine", "chain", "theatre") if n in names]
+    if http_names:
+        d = Daemon(args.bin, 2)
+        try:
+            for name in http_names:
+                with open(paths[name]["model"]) as f:
+                    d.post("/v1/models", json.load(f))
+            for name in (n for n in ("affine", "chain") if n in names):
+                with open(paths[name]["request"]) as f:
+                    req = json.load(f)
+                mname = "bench-" + name
+                n = 4000000 // scale
+                req.update(samples=n, wait_s=600)
+                npres = numpy_side(name, paths[name], NUMPY_SAMPLES[name] // scale)
+                np_rate = npres["samples"] / npres["seconds"]
+                res, wall = d.post("/v1/models/%s/checks" % mname, req)
+                print("http %-8s %d samples: %.3f s end to end (%s), "
+                      "simulation %.3f s, %.1fx NumPy" % (
+                          name, n, wall, fmt_rate(n / wall),
+                          res["elapsed_ms"] / 1000, (n / wall) / np_rate))
+            if "theatre" in names:
+                with open(paths["theatre"]["request"]) as f:
+                    req = json.load(f)
+                req.update(samples=10000)
+                over, walls = [], []
+                for i in range(41):
+                    req["seed"] = 1000 + i
+                    res, wall = d.post("/v1/models/theatre-list/checks", req)
+                    if i == 0:
+                        continue  # first request warms the model cache
+                    over.append(wall * 1000 - res["elapsed_ms"])
+                    walls.append(wall * 1000)
+                print("http theatre 10000 samples: median %.2f ms end to end, "
+                      "median overhead %.2f ms beyond simulation "
+                      "(min %.2f, max %.2f)" % (
+                          statistics.median(walls), statistics.median(over),
+                          min(over), max(over)))
+        finally:
+            d.close()
+    shutil.rmtree(tmp, ignore_errors=True)
+
+
+if __name__ == "__main__":
+    main()
