@@ -8,6 +8,7 @@
  *   feasgate scenarios MODEL.json [--count N]  a model's scenarios, JSON or
  *            [--seed S] [--start I] [--stream design|validation] [--csv]
  *            [--max M]                         CSV (engine/scenarios.c)
+ *   feasgate sample-size --half-width H ...    sample sizes (estimate/sizes.c)
  *   feasgate version
  *
  * Exit status of `check`: 0 pass, 1 fail, 2 inconclusive, 3 usage or input
@@ -411,6 +412,68 @@ static int cmd_scenarios(int argc, char **argv) {
   return rc;
 }
 
+/* ---- feasgate sample-size ---- */
+
+/* Parameters of one sample-size question at most (each --name value). */
+#define SAMPLE_SIZE_ARGS_MAX 16
+
+static void sample_size_usage(FILE *f) {
+  fprintf(f,
+          "usage: feasgate sample-size --half-width H --confidence C "
+          "[--probability P]\n"
+          "       feasgate sample-size --target T --probability P "
+          "--confidence C --power Q\n"
+          "       feasgate sample-size --epsilon E --beta B --decisions D "
+          "[--discarded K]\n"
+          "       feasgate sample-size --scenarios N --beta B --decisions D "
+          "[--discarded K]\n"
+          "Prints the same JSON as GET /v1/sample-size.\n");
+}
+
+static int cmd_sample_size(int argc, char **argv) {
+  char names[SAMPLE_SIZE_ARGS_MAX][32];
+  const char *np[SAMPLE_SIZE_ARGS_MAX], *vp[SAMPLE_SIZE_ARGS_MAX];
+  int n = 0;
+  for (int i = 1; i < argc; i++) {
+    const char *a = argv[i];
+    if (strcmp(a, "--help") == 0) {
+      sample_size_usage(stdout);
+      return 0;
+    }
+    if (strncmp(a, "--", 2) != 0 || !a[2] || i + 1 >= argc ||
+        strlen(a + 2) >= sizeof names[0]) {
+      fprintf(stderr, "feasgate sample-size: expected --name value pairs, "
+                      "found '%s'\n", a);
+      sample_size_usage(stderr);
+      return EXIT_USAGE;
+    }
+    if (n >= SAMPLE_SIZE_ARGS_MAX) {
+      fprintf(stderr, "feasgate sample-size: more than %d parameters\n",
+              SAMPLE_SIZE_ARGS_MAX);
+      return EXIT_USAGE;
+    }
+    /* --half-width -> half_width, the query parameter's name. */
+    snprintf(names[n], sizeof names[n], "%s", a + 2);
+    for (char *c = names[n]; *c; c++)
+      if (*c == '-') *c = '_';
+    np[n] = names[n];
+    vp[n] = argv[++i];
+    n++;
+  }
+  fg_problem p;
+  fg_problem_init(&p);
+  cJSON *res = NULL;
+  if (fg_sample_size_json(n, np, vp, &res, &p) != FG_OK) {
+    print_problem("sample-size", &p);
+    return EXIT_USAGE;
+  }
+  char *s = cJSON_Print(res);
+  if (s) puts(s);
+  free(s);
+  cJSON_Delete(res);
+  return s ? 0 : 1;
+}
+
 static int cmd_register(int argc, char **argv) {
   const char *url = getenv("FEASGATE_STORE");
   int first = 1;
@@ -465,6 +528,7 @@ int main(int argc, char **argv) {
   if (strcmp(cmd, "check") == 0) return cmd_check(argc - 1, argv + 1);
   if (strcmp(cmd, "register") == 0) return cmd_register(argc - 1, argv + 1);
   if (strcmp(cmd, "scenarios") == 0) return cmd_scenarios(argc - 1, argv + 1);
+  if (strcmp(cmd, "sample-size") == 0) return cmd_sample_size(argc - 1, argv + 1);
   if (strcmp(cmd, "version") == 0 || strcmp(cmd, "--version") == 0) {
     printf("feasgate 0.1.0\n");
     return 0;

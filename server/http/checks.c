@@ -230,19 +230,6 @@ fg_status fg_http_record_end(fg_store *store, fg_check *c,
 
 /* ---- POST .../checks ---- */
 
-static void close_unstarted(fg_store *store, const fg_store_check *rec) {
-  fg_store_check fin = *rec;
-  fin.request = fin.result = NULL;
-  snprintf(fin.status, sizeof fin.status, "failed");
-  fin.verdict[0] = '\0';
-  fg_time_now_rfc3339(fin.finished_at, sizeof fin.finished_at);
-  fg_problem p;
-  fg_problem_init(&p);
-  if (fg_store_finish_check(store, &fin, &p) != FG_OK)
-    fg_log_msg(FG_LOG_ERROR, "store_error", "closing check %s: %s", rec->id,
-               p.detail);
-}
-
 void fg_h_checks_create(fg_req *r, fg_resp *out) {
   fg_server *srv = r->srv;
   const char *name = r->params[0];
@@ -323,28 +310,12 @@ void fg_h_checks_create(fg_req *r, fg_resp *out) {
                   srv->cfg.queue);
     goto done;
   }
-  fg_http_check_id(rec.id);
-  snprintf(rec.model, sizeof rec.model, "%s", v.name);
-  rec.version = v.version;
-  snprintf(rec.digest, sizeof rec.digest, "%s", v.digest);
-  snprintf(rec.status, sizeof rec.status, "running");
-  rec.seed = req.seed;
-  fg_time_now_rfc3339(rec.created_at, sizeof rec.created_at);
-  snprintf(rec.label, sizeof rec.label, "%s", req.label);
-  rec.probability = rec.lower = rec.upper = rec.elapsed_ms = NAN;
-  cJSON *rj = fg_request_json(m, &req);
-  rec.request = rj ? cJSON_PrintUnformatted(rj) : NULL;
-  cJSON_Delete(rj);
-  if (!rec.request) {
-    fg_resp_error(out, 503, FG_ENOMEM, "out of memory recording the check");
-    goto done;
-  }
-  if (fg_store_put_check(srv->store, &rec, &p) != FG_OK) {
+  if (fg_http_record_start(srv->store, &v, m, &req, &rec, &p) != FG_OK) {
     fg_resp_problem(out, &p, 0);
     goto done;
   }
   if (fg_check_start(srv->pool, m, &req, &c, &p) != FG_OK) {
-    close_unstarted(srv->store, &rec);
+    fg_http_record_unstarted(srv->store, &rec);
     fg_resp_problem(out, &p, 0);
     goto done;
   }

@@ -87,4 +87,13 @@ int fg_http_config_parse(int argc, char **argv, fg_http_config *cfg, char *err,
 /* The whole `feasgate serve` subcommand (argv[0] = "serve"). */
 int fg_serve_command(int argc, char **argv);
 
+/* The sample-size answer (GET /v1/sample-size, `feasgate sample-size`)
+ * for `n` parameters given by name and text: the inputs echoed, "method"
+ * and "samples" or "scenarios"/"epsilon" (http/sizes.c). Unknown,
+ * repeated, ambiguous, missing or out-of-range parameters are named in
+ * `p`. */
+fg_status fg_sample_size_json(int n, const char *const *names,
+                              const char *const *values, struct cJSON **out,
+                              fg_problem *p);
+
 #endif

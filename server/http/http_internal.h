@@ -150,6 +150,22 @@ fg_status fg_http_record_end(fg_store *store, fg_check *c,
                              const fg_store_check *rec, cJSON **body,
                              fg_problem *p);
 
+/* ---- record.c ---- */
+/* Fill *rec for a check of version `v` about to start (new id, status
+ * running, seed, label, the replayable request) and put it in the store;
+ * rec->request is malloc'd and the caller frees it. */
+fg_status fg_http_record_start(fg_store *store, const fg_store_version *v,
+                               const fg_model *m, const fg_check_request *req,
+                               fg_store_check *rec, fg_problem *p);
+/* Close the record of a check the pool refused as `failed`. */
+void fg_http_record_unstarted(fg_store *store, const fg_store_check *rec);
+
+/* ---- compare.c ---- */
+void fg_h_comparisons_create(fg_req *r, fg_resp *out);
+
+/* ---- sizes.c ---- */
+void fg_h_sample_size(fg_req *r, fg_resp *out);
+
 /* ---- registry.c ---- */
 fg_status fg_registry_new(fg_store *store, fg_registry **out, fg_problem *p);
 /* Hand over a check still running (takes the caller's reference) with its

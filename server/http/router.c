@@ -33,11 +33,13 @@ static const fg_route_entry routes[] = {
     {"GET", "/v1/models/{name}/scenarios", fg_h_model_scenarios},
     {"POST", "/v1/models/{name}/checks", fg_h_checks_create},
     {"POST", "/v1/models/{name}/versions/{n}/checks", fg_h_checks_create},
+    {"POST", "/v1/models/{name}/comparisons", fg_h_comparisons_create},
     {"GET", "/v1/checks", fg_h_checks_list},
     {"GET", "/v1/checks/{id}", fg_h_check_get},
     {"GET", "/v1/health", fg_h_health},
     {"GET", "/v1/ready", fg_h_ready},
     {"GET", "/v1/limits", fg_h_limits},
+    {"GET", "/v1/sample-size", fg_h_sample_size},
 };
 
 #define NROUTES (sizeof routes / sizeof *routes)
