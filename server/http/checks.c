@@ -32,6 +32,7 @@
  * the registry's watcher thread.
  */
 #include "http/http_internal.h"
+#include "http/metrics.h"
 
 #include <ctype.h>
 #include <errno.h>
@@ -196,6 +197,9 @@ fg_status fg_http_record_end(fg_store *store, fg_check *c,
 
   fg_status st = fg_store_finish_check(store, &fin, p);
   free(fin.result);
+  fg_metrics_check_ended(fin.status, fin.verdict,
+                         number_at(res, "joint", "samples", NULL),
+                         fin.elapsed_ms / 1000.0);
 
   cJSON *ev = cJSON_CreateObject();
   if (ev) {

@@ -14,6 +14,7 @@
  * Thread use: any thread; the table is constant.
  */
 #include "http/http_internal.h"
+#include "http/metrics.h"
 
 #include <stdio.h>
 #include <string.h>
@@ -39,6 +40,8 @@ static const fg_route_entry routes[] = {
     {"GET", "/v1/health", fg_h_health},
     {"GET", "/v1/ready", fg_h_ready},
     {"GET", "/v1/limits", fg_h_limits},
+    {"GET", "/v1/openapi.json", fg_h_openapi},
+    {"GET", "/metrics", fg_h_metrics},
     {"GET", "/v1/sample-size", fg_h_sample_size},
 };
 

@@ -37,6 +37,7 @@
  * libmicrohttpd's threads; fg_serve_command on the main thread only.
  */
 #include "http/http_internal.h"
+#include "http/metrics.h"
 
 #include <arpa/inet.h>
 #include <errno.h>
@@ -106,6 +107,7 @@ static void queue(fg_req *r, fg_resp *resp) {
 }
 
 static void log_request(const fg_req *r, int status) {
+  fg_metrics_request(r->method, r->route, status);
   cJSON *o = cJSON_CreateObject();
   if (!o) return;
   cJSON_AddStringToObject(o, "event", "request");
@@ -356,6 +358,7 @@ int fg_serve_command(int argc, char **argv) {
     return 3;
   }
   fg_log_set_level(srv->cfg.log_level);
+  fg_metrics_start();
   pthread_mutex_init(&srv->inflight_lock, NULL);
   pthread_cond_init(&srv->inflight_cv, NULL);
   atomic_init(&srv->stopping, false);
