@@ -1,6 +1,6 @@
 /*
  * sample/sample_internal.h -- what the files of sample/ share; nothing
- * outside sample/ includes it.
+ * outside sample/ includes it (but its unit test, for design internals).
  *
  * How the module is divided:
  *   stream.c   Philox4x32-10 keys and counters, the GSL adaptor, uniforms
@@ -13,6 +13,7 @@
  *              the multivariate normal family.
  *   copula.c   the `dependence` entries (Gaussian copula).
  *   sampler.c  build, dimensions, column names, the draw loop.
+ *   design.c   sampling designs (antithetic, Latin hypercube, Sobol).
  * A new family goes into family.c (element-wise) or its own file (joint).
  *
  * Invariants: after a successful build every parameter is finite and
@@ -197,5 +198,21 @@ void fg_sampler_copula_free(fg_copula *cop);
 void fg_sampler_copula_draw(const fg_copula *cop, const fg_input *inputs,
                             gsl_rng *r, double *z, double *x, fg_stream_key key,
                             uint64_t first, int n, double *out, size_t stride);
+
+/* ---- for the sampling designs (design.c) ----------------------------- */
+
+/* The parsed inputs and dependence entries of a built sampler, and a
+ * scratch's two joint-block vectors (sampler.c). */
+const fg_input *fg_sampler_inputs(const fg_sampler *s, int *n);
+const fg_copula *fg_sampler_copulas(const fg_sampler *s, int *n);
+void fg_sample_scratch_vectors(fg_sample_scratch *w, double **z, double **x);
+/* Tables the designs map through, made at build: empirical data sorted
+ * into in->sorted; a scenario table's cumulative row weights into
+ * in->cdf_lo (P(row <= k)) and in->cdf_hi (P(row > k)). -1 when out of
+ * memory. */
+int fg_design_prepare_input(fg_input *in);
+/* Unshifted Sobol point q of coordinate c as a 53-bit integer (the value
+ * is x / 2^53); c < fg_design_sobol_max_dims(). For the unit test. */
+uint64_t fg_design_sobol_point(int c, uint64_t q);
 
 #endif

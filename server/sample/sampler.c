@@ -239,6 +239,11 @@ fg_status fg_sampler_build(const cJSON *uncertain, const cJSON *dependence,
     }
   }
   if (st != FG_OK) goto fail;
+  for (int i = 0; i < s->ninputs; i++)
+    if (fg_design_prepare_input(&s->inputs[i]) != 0) {
+      st = fg_problem_set(p, FG_ENOMEM, "out of memory");
+      goto fail;
+    }
   if (make_columns(s) != 0) {
     st = fg_problem_set(p, FG_ENOMEM, "out of memory");
     goto fail;
@@ -323,4 +328,21 @@ void fg_sampler_draw(const fg_sampler *s, fg_sample_scratch *w, uint64_t seed,
   for (int c = 0; c < s->ncopulas; c++)
     fg_sampler_copula_draw(&s->copulas[c], s->inputs, r, w->z, w->x, key, first,
                            n, out, stride);
+}
+
+/* ---- for design.c ------------------------------------------------------ */
+
+const fg_input *fg_sampler_inputs(const fg_sampler *s, int *n) {
+  *n = s->ninputs;
+  return s->inputs;
+}
+
+const fg_copula *fg_sampler_copulas(const fg_sampler *s, int *n) {
+  *n = s->ncopulas;
+  return s->copulas;
+}
+
+void fg_sample_scratch_vectors(fg_sample_scratch *w, double **z, double **x) {
+  *z = w->z;
+  *x = w->x;
 }
