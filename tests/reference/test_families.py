@@ -33,7 +33,8 @@ with fixed seeds, so every figure printed here is reproducible.
      lognormal tails (Phi((ln c - mu) / sigma), scipy.stats.norm.cdf).
   5. Determinism: scenario i alone equals row i in bulk (across block
      boundaries), design and validation share no scenario, and checks give
-     the same counts with 1 and 2 workers and with chunks of 256 and 16384.
+     the same counts with 1 and 2 workers and with chunks of 256 and 16384;
+     the JSON answer follows schemas/scenarios.schema.json (jsonschema).
 
 Prints one line per figure and "N passed, N failed" last.
 """
@@ -42,8 +43,11 @@ import io
 import json
 import math
 
+import os
+
+import jsonschema
 import numpy as np
-from refcommon import Counter, run_check, run_scenarios
+from refcommon import ROOT, Counter, run_check, run_scenarios
 from scipy import integrate, stats
 
 c = Counter()
@@ -55,6 +59,8 @@ CHI_P_MIN = 1e-4
 MOMENT_SE = 5.0
 SPEARMAN_TOL = 0.02
 JOINT_SE = 4.0
+with open(os.path.join(ROOT, "schemas", "scenarios.schema.json")) as _f:
+    SCHEMA = jsonschema.Draft202012Validator(json.load(_f))
 
 
 def table(model, count=N, seed=SEED, start=0, stream="design"):
@@ -511,6 +517,9 @@ def test_determinism():
     for model, seed in ((FAMILIES, 5), (COPULA, 6)):
         bulk = json.loads(run_scenarios(model, 600, seed))
         rows = bulk["rows"]
+        errs = list(SCHEMA.iter_errors(bulk))
+        c.check(not errs, "%s: the JSON answer follows schemas/scenarios.schema.json: %s"
+                % (model["name"], errs[:1]))
         same = True
         for i in (0, 1, 255, 256, 257, 511, 599):
             one = json.loads(run_scenarios(model, 1, seed, start=i))
