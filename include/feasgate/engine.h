@@ -87,6 +87,10 @@ typedef struct fg_check_request {
   /* Not part of the request body: set by callers that need every sample's
    * joint outcome afterwards (comparisons). Costs samples/8 bytes. */
   bool keep_outcomes;
+  /* Not part of the body either: the server's deadline (--max-check-time).
+   * Seconds from fg_check_start after which the check ends `timed_out`
+   * with its partial counts; 0 = no deadline. */
+  double max_seconds;
 } fg_check_request;
 
 /* Validate `body` (a JSON object) against model `m`. Missing, extra,

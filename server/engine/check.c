@@ -20,6 +20,7 @@
  */
 #include "engine/engine_internal.h"
 
+#include <gsl/gsl_cdf.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -101,25 +102,84 @@ void fg_check_chunk_range(const struct fg_check *c, uint64_t idx,
   if (*count > (uint64_t)c->chunk) *count = (uint64_t)c->chunk;
 }
 
-/* Chunk bounds for a check that stops early: the regular grid plus the
- * look points, merged in order. */
-static bool build_bounds(struct fg_check *c) {
+/* Chunk bounds for a check that stops early or is drawn in replicates:
+ * the regular chunk grid merged with extra points -- the look points
+ * FG_CS_FIRST_ROUND * 2^j (doubling), or the replicate boundaries
+ * r * rep_size -- so no chunk straddles one, whatever the chunk size. */
+static bool build_bounds(struct fg_check *c, bool doubling, uint64_t first,
+                         uint64_t every) {
   uint64_t n = c->req.samples, step = (uint64_t)c->chunk;
-  uint64_t cap = n / step + 2 + 64;
+  uint64_t cap = n / step + 2 + (doubling ? 64 : (uint64_t)c->nrep + 1);
   c->bounds = malloc(cap * sizeof *c->bounds);
   if (!c->bounds) return false;
-  uint64_t m = 0, grid = step, look = FG_CS_FIRST_ROUND;
+  uint64_t m = 0, grid = step, extra = first;
   c->bounds[m++] = 0;
   while (c->bounds[m - 1] < n && m < cap) {
-    uint64_t next = grid < look ? grid : look;
+    uint64_t next = grid < extra ? grid : extra;
     if (next >= n) next = n;
     if (next == grid) grid += step;
-    if (next == look) look *= 2;
+    if (next == extra) extra = doubling ? extra * 2 : extra + every;
     if (next > c->bounds[m - 1]) c->bounds[m++] = next;
   }
   c->nchunks = m - 1;
-  c->next_look = FG_CS_FIRST_ROUND < n ? FG_CS_FIRST_ROUND : n;
   return true;
+}
+
+void fg_check_merged_chunk_locked(struct fg_check *c, uint64_t idx,
+                                  const fg_tally *t) {
+  if (!c->rep_sat || c->rep_size == 0) return;
+  uint64_t first, count;
+  fg_check_chunk_range(c, idx, &first, &count);
+  uint64_t r = first / c->rep_size;
+  if (r >= (uint64_t)c->nrep) return;
+  c->rep_sat[r] += t->satisfied;
+  for (int i = 0; i < c->info.nrows; i++)
+    c->rep_viol[r * (uint64_t)c->info.nrows + (uint64_t)i] += t->rows[i].violated;
+}
+
+/* Student-t interval from m independent unit estimates with the given
+ * sum and sum of squares; falls back to Clopper-Pearson on the pooled
+ * count when the units agree exactly (a zero spread says nothing about
+ * the width). */
+static fg_interval t_interval(double m, double sum, double sumsq, uint64_t k,
+                              uint64_t n, double conf, double *se) {
+  double mean = sum / m;
+  double var = (sumsq - m * mean * mean) / (m - 1);
+  if (var < 0) var = 0;
+  *se = sqrt(var / m);
+  if (!(var > 0)) return fg_interval_clopper_pearson(k, n, conf);
+  double tq = gsl_cdf_tdist_Pinv(1 - (1 - conf) / 2, m - 1);
+  fg_interval iv = {mean - tq * *se, mean + tq * *se};
+  if (iv.lower < 0) iv.lower = 0;
+  if (iv.upper > 1) iv.upper = 1;
+  return iv;
+}
+
+/* Joint (row < 0) or row interval for a coupled design. */
+static fg_interval design_interval(struct fg_check *c, int row, double *se) {
+  const fg_tally *t = &c->total;
+  uint64_t n = t->n;
+  if (c->design == FG_DESIGN_ANTITHETIC) {
+    double m = (double)(n / 2);
+    uint64_t both = row < 0 ? t->pair_both : t->rows[row].pair_both;
+    uint64_t one = row < 0 ? t->pair_one : t->rows[row].pair_one;
+    uint64_t k = row < 0 ? t->satisfied : t->rows[row].violated;
+    /* pair means are 1, 1/2 or 0 */
+    return t_interval(m, (double)both + 0.5 * (double)one,
+                      (double)both + 0.25 * (double)one, k, n,
+                      c->req.confidence, se);
+  }
+  double sum = 0, sumsq = 0, rs = (double)c->rep_size;
+  for (int r = 0; r < c->nrep; r++) {
+    uint64_t k = row < 0 ? c->rep_sat[r]
+                         : c->rep_viol[(uint64_t)r * (uint64_t)c->info.nrows +
+                                       (uint64_t)row];
+    double pr = (double)k / rs;
+    sum += pr;
+    sumsq += pr * pr;
+  }
+  uint64_t k = row < 0 ? t->satisfied : t->rows[row].violated;
+  return t_interval((double)c->nrep, sum, sumsq, k, n, c->req.confidence, se);
 }
 
 bool fg_check_look_locked(struct fg_check *c) {
@@ -156,6 +216,8 @@ bool fg_check_stopped_early(fg_check *c) {
 void fg_check_free_internal(struct fg_check *c) {
   free(c->bounds);
   free(c->outcomes);
+  free(c->rep_sat);
+  free(c->rep_viol);
   if (c->slots) {
     for (int i = 0; i < c->window; i++) fg_tally_free(&c->slots[i]);
     free(c->slots);
@@ -209,11 +271,16 @@ void fg_check_finalize_locked(struct fg_check *c) {
   if (c->req.stop_early) {
     fg_check_look_locked(c); /* a last look at the final count */
     c->interval = c->cs;
+  } else if (c->design != FG_DESIGN_MONTE_CARLO && n > 2) {
+    c->interval = design_interval(c, -1, &c->std_error);
   } else {
     c->interval = interval_of(c->req.interval, k, n, c->req.confidence);
   }
   c->verdict = (fg_verdict)fg_verdict_rule(c->interval, c->req.target,
                                            c->ndet > 0);
+  /* Coupled designs' sample indices are not scenarios of the validation
+   * stream that GET .../scenarios could hand out: report none. */
+  if (c->design != FG_DESIGN_MONTE_CARLO) c->total.nfail = 0;
   c->samples_to_settle = 0;
   if (c->verdict == FG_VERDICT_INCONCLUSIVE && n > 0) {
     double s = fg_samples_to_settle(k, n, c->req.target, c->req.confidence);
@@ -229,8 +296,12 @@ void fg_check_finalize_locked(struct fg_check *c) {
       rr->sole = rt->sole;
       rr->nonfinite = rt->nonfinite;
       rr->probability = n ? (double)rt->violated / (double)n : NAN;
-      rr->interval = interval_of(c->req.interval, rt->violated, n,
-                                 c->req.confidence);
+      double se_row;
+      if (c->design != FG_DESIGN_MONTE_CARLO && n > 2 && !c->req.stop_early)
+        rr->interval = design_interval(c, r, &se_row);
+      else
+        rr->interval = interval_of(c->req.interval, rt->violated, n,
+                                   c->req.confidence);
       rr->excess_mean = n ? rt->excess_sum / (double)n : 0;
       uint64_t finite = rt->violated - rt->nonfinite;
       rr->excess_mean_if_violated = finite ? rt->excess_sum / (double)finite : 0;
@@ -277,7 +348,30 @@ fg_status fg_check_start(fg_pool *pool, fg_model *m,
   c->nchunks = (req->samples + (uint64_t)c->chunk - 1) / (uint64_t)c->chunk;
   c->cs.lower = 0.0;
   c->cs.upper = 1.0;
-  if (req->stop_early && !build_bounds(c)) goto oom;
+  c->design = (fg_design)req->sampling;
+  c->samples_requested = req->samples;
+  if (c->design == FG_DESIGN_ANTITHETIC) {
+    c->req.samples = req->samples & ~1ull; /* whole pairs */
+    c->nchunks = (c->req.samples + (uint64_t)c->chunk - 1) / (uint64_t)c->chunk;
+  } else if (c->design != FG_DESIGN_MONTE_CARLO) {
+    /* Whole replicates, each a multiple of FG_BLOCK samples when the
+     * request is large enough (so blocks never straddle a replicate). */
+    c->nrep = FG_DESIGN_REPLICATES;
+    uint64_t per = req->samples / (uint64_t)c->nrep;
+    if (per >= FG_BLOCK) per -= per % FG_BLOCK;
+    c->rep_size = per;
+    c->req.samples = per * (uint64_t)c->nrep;
+    c->rep_sat = calloc((size_t)c->nrep, sizeof *c->rep_sat);
+    c->rep_viol = calloc((size_t)c->nrep * ((size_t)c->info.nrows + 1),
+                         sizeof *c->rep_viol);
+    if (!c->rep_sat || !c->rep_viol) goto oom;
+    if (!build_bounds(c, false, per, per)) goto oom;
+  }
+  if (req->stop_early) {
+    if (!build_bounds(c, true, FG_CS_FIRST_ROUND, 0)) goto oom;
+    c->next_look = FG_CS_FIRST_ROUND < c->req.samples ? FG_CS_FIRST_ROUND
+                                                      : c->req.samples;
+  }
   if (req->keep_outcomes) {
     c->outcomes = calloc((size_t)((req->samples + 63) / 64) + 1, sizeof(uint64_t));
     if (!c->outcomes) goto oom;
@@ -291,7 +385,12 @@ fg_status fg_check_start(fg_pool *pool, fg_model *m,
   for (int i = 0; i < c->window; i++)
     if (fg_tally_init(&c->slots[i], c->info.nrows) != FG_OK) goto oom;
   if (fg_tally_init(&c->total, c->info.nrows) != FG_OK) goto oom;
+  if (c->design == FG_DESIGN_ANTITHETIC) {
+    c->total.pairs = true;
+    for (int i = 0; i < c->window; i++) c->slots[i].pairs = true;
+  }
   c->t_start = fg_time_monotonic();
+  if (req->max_seconds > 0) c->deadline = c->t_start + req->max_seconds;
 
   /* Setup stream: decisions in, deterministic values out. */
   for (int i = 0; i < c->info.ndecision; i++)

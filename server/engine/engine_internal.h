@@ -20,6 +20,12 @@
 
 #define FG_DET_PROBLEMS_MAX 64
 
+/* Independent replicates of a Latin hypercube or Sobol design: the
+ * Student-t interval on their estimates has R - 1 degrees of freedom;
+ * 16 keeps the t quantile within 7% of the normal one while each
+ * replicate stays a large design. */
+#define FG_DESIGN_REPLICATES 16
+
 typedef struct fg_det_problem {
   char name[FG_ROW_NAME_MAX];
   char message[192];
@@ -49,6 +55,13 @@ struct fg_check {
   uint64_t *bounds;
   uint64_t next_look; /* (pool) next look point; 0 when none is left */
   uint64_t *outcomes; /* with keep_outcomes: one bit per sample */
+  fg_design design;    /* how the inputs are drawn */
+  uint64_t samples_requested; /* req.samples as asked; req.samples is what
+                                 the design uses (pairs, whole replicates) */
+  uint64_t rep_size;   /* samples per replicate (LHS, Sobol); 0 otherwise */
+  int nrep;
+  uint64_t *rep_sat;   /* (pool) satisfied per replicate */
+  uint64_t *rep_viol;  /* (pool) violations per replicate and row */
   double *setup_regs; /* info.nregs values after the setup stream */
 
   int ndet;          /* deterministic problems (bounds, rows) */
@@ -123,6 +136,9 @@ void fg_check_chunk_range(const struct fg_check *c, uint64_t idx,
 /* Under pool->mu after a merge: look at the confidence sequence if a look
  * point was reached; true when the check is decided. */
 bool fg_check_look_locked(struct fg_check *c);
+/* Under pool->mu when chunk idx is merged: per-replicate counts. */
+void fg_check_merged_chunk_locked(struct fg_check *c, uint64_t idx,
+                                  const fg_tally *t);
 
 /* Per-thread evaluation state for one check. */
 typedef struct fg_eval_ctx {

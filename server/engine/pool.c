@@ -82,9 +82,15 @@ bool fg_engine_run_range(const struct fg_check *c, fg_sample_scratch *w,
       }
     }
     int n = (count - done) < FG_BLOCK ? (int)(count - done) : FG_BLOCK;
-    if (in->nuncertain > 0)
-      fg_sampler_draw(c->model->sampler, w, c->req.seed, stream, first + done,
-                      n, ureg, FG_BLOCK);
+    if (in->nuncertain > 0) {
+      if (c->design == FG_DESIGN_MONTE_CARLO || stream != FG_STREAM_VALIDATION)
+        fg_sampler_draw(c->model->sampler, w, c->req.seed, stream,
+                        first + done, n, ureg, FG_BLOCK);
+      else
+        fg_sampler_draw_design(c->model->sampler, w, c->req.seed, stream,
+                               c->design, c->rep_size, first + done, n, ureg,
+                               FG_BLOCK);
+    }
     fg_program_run_block(c->model->program, regs, n);
     fg_tally_block(t, excess, n, first + done, obj, scratch);
     if (outcomes) {
@@ -189,6 +195,7 @@ static void *worker_main(void *arg) {
         int s = (int)(c->merged_chunks % (uint64_t)c->window);
         if (!c->ready[s]) break;
         fg_tally_merge(&c->total, &c->slots[s]);
+        fg_check_merged_chunk_locked(c, c->merged_chunks, &c->slots[s]);
         c->ready[s] = false;
         c->merged_chunks++;
         if (c->req.stop_early && fg_check_look_locked(c)) {

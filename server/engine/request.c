@@ -203,19 +203,19 @@ fg_status fg_request_parse(const fg_model *m, const cJSON *body,
   }
   if ((v = cJSON_GetObjectItemCaseSensitive(body, "sampling"))) {
     const char *s = cJSON_GetStringValue(v);
-    if (s && strcmp(s, "monte_carlo") == 0)
-      out->sampling = FG_SAMPLING_MONTE_CARLO;
-    else if (s && (strcmp(s, "antithetic") == 0 ||
-                   strcmp(s, "latin_hypercube") == 0 ||
-                   strcmp(s, "sobol") == 0))
-      fg_problem_add(p, FG_EUNSUPPORTED, "/sampling", 0,
-                     "sampling '%s' is not yet supported by this server "
-                     "(supported: monte_carlo)",
-                     s);
-    else
+    static const char *const names[] = {"monte_carlo", "antithetic",
+                                        "latin_hypercube", "sobol"};
+    int found = -1;
+    for (int i = 0; s && i < 4; i++)
+      if (strcmp(s, names[i]) == 0) found = i;
+    if (found < 0)
       fg_problem_add(p, FG_EINVAL, "/sampling", 0,
                      "sampling must be one of monte_carlo, antithetic, "
                      "latin_hypercube, sobol");
+    else {
+      out->sampling = (fg_sampling)found;
+      fg_sampler_design_check(m->sampler, (fg_design)found, p);
+    }
   }
   if ((v = cJSON_GetObjectItemCaseSensitive(body, "stop_early"))) {
     if (!cJSON_IsBool(v))
@@ -285,6 +285,26 @@ fg_status fg_request_parse(const fg_model *m, const cJSON *body,
                        v->valuedouble, lim->max_wait_s);
     else out->wait_s = v->valuedouble;
   }
+  if (out->stop_early && out->sampling != FG_SAMPLING_MONTE_CARLO)
+    fg_problem_add(p, FG_EINVAL, "/stop_early", 0,
+                   "stop_early works with sampling monte_carlo only (its "
+                   "confidence sequence needs independent samples)");
+  if (out->sampling == FG_SAMPLING_LATIN_HYPERCUBE ||
+      out->sampling == FG_SAMPLING_SOBOL) {
+    if (out->samples < 2 * FG_DESIGN_REPLICATES)
+      fg_problem_add(p, FG_EINVAL, "/samples", 0,
+                     "sampling %s runs %d replicates: samples must be at "
+                     "least %d",
+                     fg_sampling_name(out->sampling), FG_DESIGN_REPLICATES,
+                     2 * FG_DESIGN_REPLICATES);
+  } else if (out->sampling == FG_SAMPLING_ANTITHETIC && out->samples < 4) {
+    fg_problem_add(p, FG_EINVAL, "/samples", 0,
+                   "sampling antithetic draws pairs: samples must be at "
+                   "least 4");
+  }
+  if (out->keep_outcomes && out->sampling != FG_SAMPLING_MONTE_CARLO)
+    fg_problem_add(p, FG_EINVAL, "/sampling", 0,
+                   "comparisons use sampling monte_carlo");
   if (p->nitems > before || p->status != FG_OK) goto fail;
   return FG_OK;
 fail:

@@ -53,10 +53,20 @@ static void add_progress(cJSON *o, struct fg_check *c) {
   }
 }
 
+/* The interval method a check reports: the request's binomial interval
+ * for Monte Carlo, the confidence sequence when stopping early, Student-t
+ * intervals for coupled designs. */
+static const char *method_of(const struct fg_check *c) {
+  if (c->req.stop_early) return "confidence_sequence";
+  if (c->design == FG_DESIGN_ANTITHETIC) return "antithetic_pairs_t";
+  if (c->design != FG_DESIGN_MONTE_CARLO) return "replicates_t";
+  return fg_interval_method_name(c->req.interval);
+}
+
 static void add_rows(cJSON *o, struct fg_check *c) {
   cJSON *arr = cJSON_AddArrayToObject(o, "constraints");
   if (!c->rows) return;
-  const char *method = fg_interval_method_name(c->req.interval);
+  const char *method = method_of(c);
   for (int i = 0; i < c->info.nrows; i++) {
     const fg_row_result *rr = &c->rows[i];
     const fg_row *row = &c->info.rows[rr->row];
@@ -97,7 +107,9 @@ cJSON *fg_check_result_json(fg_check *c, const fg_check_meta *meta) {
   cJSON_AddNumberToObject(o, "confidence", c->req.confidence);
   add_u64(o, "seed", c->req.seed);
   cJSON_AddStringToObject(o, "sampling", fg_sampling_name(c->req.sampling));
-  cJSON_AddNumberToObject(o, "samples_requested", (double)c->req.samples);
+  cJSON_AddNumberToObject(o, "samples_requested",
+                          (double)(c->samples_requested ? c->samples_requested
+                                                        : c->req.samples));
 
   if (ended) {
     cJSON *j = cJSON_AddObjectToObject(o, "joint");
@@ -107,9 +119,11 @@ cJSON *fg_check_result_json(fg_check *c, const fg_check_meta *meta) {
     add_num(j, "std_error", c->std_error);
     cJSON_AddItemToObject(
         j, "interval",
-        interval_json(c->interval, c->req.stop_early
-                                       ? "confidence_sequence"
-                                       : fg_interval_method_name(c->req.interval)));
+        interval_json(c->interval, method_of(c)));
+    if (c->nrep > 0) {
+      cJSON_AddNumberToObject(j, "replicates", c->nrep);
+      cJSON_AddNumberToObject(j, "replicate_size", (double)c->rep_size);
+    }
     add_rows(o, c);
   } else {
     /* Running: the joint figures so far (merged chunks), no verdict. */

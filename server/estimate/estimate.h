@@ -109,6 +109,7 @@ double fg_hist_quantile(const fg_hist *h, double q);
 #define FG_FAIL_ROWS_MAX 16 /* violated rows kept per failing scenario */
 
 typedef struct fg_row_tally {
+  uint64_t pair_both, pair_one; /* paired tallies: pairs with 2 / 1 violations */
   uint64_t violated;  /* samples where the row does not hold */
   uint64_t sole;      /* ... and is the only row that does not */
   uint64_t nonfinite; /* violations whose excess was NaN */
@@ -123,6 +124,11 @@ typedef struct fg_fail_record {
 } fg_fail_record;
 
 typedef struct fg_tally {
+  /* Paired tallies (antithetic sampling): lanes 2m and 2m+1 of a block are
+   * one pair; pair_both / pair_one count pairs in which both / exactly one
+   * sample held, so the variance of pair means is known exactly. */
+  bool pairs;
+  uint64_t pair_both, pair_one;
   uint64_t n, satisfied;
   int nrows;
   fg_row_tally *rows;

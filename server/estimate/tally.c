@@ -46,11 +46,13 @@ void fg_tally_free(fg_tally *t) {
 
 void fg_tally_reset(fg_tally *t) {
   t->n = t->satisfied = 0;
+  t->pair_both = t->pair_one = 0;
   t->objective_sum = 0;
   t->nfail = 0;
   for (int r = 0; r < t->nrows; r++) {
     fg_row_tally *rt = &t->rows[r];
     rt->violated = rt->sole = rt->nonfinite = 0;
+    rt->pair_both = rt->pair_one = 0;
     rt->excess_sum = 0;
     fg_hist_reset(&rt->hist);
   }
@@ -59,11 +61,15 @@ void fg_tally_reset(fg_tally *t) {
 void fg_tally_merge(fg_tally *dst, const fg_tally *src) {
   dst->n += src->n;
   dst->satisfied += src->satisfied;
+  dst->pair_both += src->pair_both;
+  dst->pair_one += src->pair_one;
   dst->objective_sum += src->objective_sum;
   for (int r = 0; r < dst->nrows; r++) {
     fg_row_tally *d = &dst->rows[r];
     const fg_row_tally *s = &src->rows[r];
     d->violated += s->violated;
+    d->pair_both += s->pair_both;
+    d->pair_one += s->pair_one;
     d->sole += s->sole;
     d->nonfinite += s->nonfinite;
     d->excess_sum += s->excess_sum;
@@ -97,6 +103,26 @@ void fg_tally_block(fg_tally *t, const double *const *excess, int n,
     }
     rt->violated += v;
     rt->excess_sum += sum;
+  }
+  if (t->pairs) {
+    /* Blocks start on even sample indices, so lanes (2m, 2m+1) are a pair;
+     * an odd last lane has no partner and is not paired. */
+    for (int r = 0; r < t->nrows; r++) {
+      const double *e = excess[r];
+      uint64_t both = 0, one = 0;
+      for (int s = 0; s + 1 < n; s += 2) {
+        int v = !(e[s] <= 0) + !(e[s + 1] <= 0);
+        both += v == 2;
+        one += v == 1;
+      }
+      t->rows[r].pair_both += both;
+      t->rows[r].pair_one += one;
+    }
+    for (int s = 0; s + 1 < n; s += 2) {
+      int h = (nviol[s] == 0) + (nviol[s + 1] == 0);
+      t->pair_both += h == 2;
+      t->pair_one += h == 1;
+    }
   }
   uint64_t sat = 0;
   for (int s = 0; s < n; s++) {

@@ -74,8 +74,17 @@ static void test_request_errors(fg_model *m) {
               &r, &p) == FG_ELIMIT);
   CHECK_STR(p.limit_name, "max_samples");
   CHECK(parse(m, "{\"decision\":{\"cap\":[1,2,3],\"crew\":1},"
-                 "\"sampling\":\"sobol\"}",
-              &r, &p) == FG_EUNSUPPORTED);
+                 "\"sampling\":\"grid\"}",
+              &r, &p) == FG_EINVAL);
+  CHECK(has_pointer(&p, "/sampling"));
+  CHECK(parse(m, "{\"decision\":{\"cap\":[1,2,3],\"crew\":1},"
+                 "\"sampling\":\"sobol\",\"stop_early\":true}",
+              &r, &p) == FG_EINVAL);
+  CHECK(has_pointer(&p, "/stop_early"));
+  CHECK(parse(m, "{\"decision\":{\"cap\":[1,2,3],\"crew\":1},"
+                 "\"sampling\":\"latin_hypercube\",\"samples\":20}",
+              &r, &p) == FG_EINVAL);
+  CHECK(has_pointer(&p, "/samples"));
   CHECK(parse(m, "{\"decision\":{\"cap\":[1,2,3],\"crew\":1},"
                  "\"target\":1.5,\"seed\":-1}",
               &r, &p) == FG_EINVAL);
@@ -351,6 +360,42 @@ static void test_stop_early(fg_model *m) {
   for (size_t i = 0; i < 4; i++) cJSON_Delete(all[i]);
 }
 
+/* Sampling designs: deterministic across workers and chunk sizes, whole
+ * pairs or replicates, Student-t intervals named as such, no failing
+ * scenarios (their indices are not validation-stream scenarios). */
+static void test_designs(fg_model *m) {
+  const char *names[] = {"antithetic", "latin_hypercube", "sobol"};
+  const char *methods[] = {"antithetic_pairs_t", "replicates_t", "replicates_t"};
+  for (int i = 0; i < 3; i++) {
+    char req[256];
+    snprintf(req, sizeof req,
+             "{\"decision\":{\"cap\":[10,11,12],\"crew\":1},"
+             "\"samples\":100001,\"seed\":5,\"sampling\":\"%s\"}",
+             names[i]);
+    counts a = run(m, req, 1, 256);
+    counts b = run(m, req, 2, 16384);
+    counts c = run(m, req, 2, 4096);
+    CHECK_INT(a.k, b.k);
+    CHECK_INT(a.k, c.k);
+    CHECK_INT(a.n, b.n);
+    if (i == 0) CHECK_INT(a.n, 100000);          /* whole pairs */
+    else CHECK_INT(a.n, 16 * (100001 / 16 / 256 * 256)); /* whole replicates */
+    const cJSON *j = cJSON_GetObjectItem(a.res, "joint");
+    const cJSON *iv = cJSON_GetObjectItem(j, "interval");
+    CHECK_STR(cJSON_GetStringValue(cJSON_GetObjectItem(iv, "method")), methods[i]);
+    double p = num(a.res, "joint", "probability");
+    CHECK(num(iv, "lower", NULL) <= p && p <= num(iv, "upper", NULL));
+    CHECK_INT(cJSON_GetArraySize(cJSON_GetObjectItem(a.res, "failing_scenarios")), 0);
+    CHECK_STR(cJSON_GetStringValue(cJSON_GetObjectItem(a.res, "sampling")), names[i]);
+    /* Interval endpoints agree exactly across schedules too. */
+    const cJSON *ivc = cJSON_GetObjectItem(cJSON_GetObjectItem(c.res, "joint"), "interval");
+    CHECK_NEAR(num(iv, "lower", NULL), num(ivc, "lower", NULL), 0.0);
+    cJSON_Delete(a.res);
+    cJSON_Delete(b.res);
+    cJSON_Delete(c.res);
+  }
+}
+
 int main(void) {
   fg_model *m = model();
   if (!m) return fg_test_finish() | 1;
@@ -360,6 +405,7 @@ int main(void) {
   test_cancel(m);
   test_pinned_counts();
   test_stop_early(m);
+  test_designs(m);
   fg_model_unref(m);
   return fg_test_finish();
 }
