@@ -225,9 +225,13 @@ fg_status fg_request_parse(const fg_model *m, const cJSON *body,
   }
   if ((v = cJSON_GetObjectItemCaseSensitive(body, "expect_digest"))) {
     const char *s = cJSON_GetStringValue(v);
-    if (!s || strlen(s) >= sizeof out->expect_digest)
+    /* A malformed digest can match no version: a 400, not a 409. */
+    bool form = s && strlen(s) == 71 && strncmp(s, "sha256:", 7) == 0 &&
+                strspn(s + 7, "0123456789abcdef") == 64;
+    if (!form)
       fg_problem_add(p, FG_EINVAL, "/expect_digest", 0,
-                     "expect_digest must be a string \"sha256:<64 hex>\"");
+                     "expect_digest must be a string \"sha256:<64 lower-case "
+                     "hex digits>\"");
     else snprintf(out->expect_digest, sizeof out->expect_digest, "%s", s);
   }
   if ((v = cJSON_GetObjectItemCaseSensitive(body, "in_sample"))) {

@@ -374,6 +374,28 @@ done:
 
 /* ---- GET /v1/checks/{id} ---- */
 
+/* The body of a stored check that has no result body (left running by a
+ * dead process and marked interrupted, or closed failed before it
+ * started), in check-result.schema.json's shape: the summary, the run
+ * settings from the stored request, and no "joint" (nothing was merged). */
+static cJSON *stored_body(const fg_store_check *c) {
+  cJSON *o = check_summary(c);
+  if (!o) return NULL;
+  cJSON_DeleteItemFromObjectCaseSensitive(o, "joint");
+  cJSON *req = c->request ? cJSON_Parse(c->request) : NULL;
+  static const char *const settings[] = {"target", "confidence"};
+  for (size_t i = 0; i < sizeof settings / sizeof *settings; i++) {
+    const cJSON *v = cJSON_GetObjectItemCaseSensitive(req, settings[i]);
+    if (cJSON_IsNumber(v))
+      cJSON_AddNumberToObject(o, settings[i], v->valuedouble);
+  }
+  cJSON_Delete(req);
+  char seed[24]; /* as integer text: doubles print 2^53 in exponent form */
+  snprintf(seed, sizeof seed, "%llu", (unsigned long long)c->seed);
+  cJSON_AddRawToObject(o, "seed", seed);
+  return o;
+}
+
 void fg_h_check_get(fg_req *r, fg_resp *out) {
   const char *id = r->params[0];
   cJSON *live = fg_registry_live_json(r->srv->registry, id);
@@ -396,7 +418,7 @@ void fg_h_check_get(fg_req *r, fg_resp *out) {
     out->content_type = FG_CT_JSON;
     c.result = NULL;
   } else {
-    fg_resp_json(out, 200, check_summary(&c));
+    fg_resp_json(out, 200, stored_body(&c));
   }
   fg_store_check_clear(&c);
 }

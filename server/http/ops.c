@@ -2,8 +2,9 @@
  * http/ops.c -- operational endpoints.
  *
  *   GET /v1/health  200 {"status": "ok"} while the process serves
- *   GET /v1/ready   200 {"status": "ready", ...} when the store answers and
- *                   the work queue has room, else a 503 problem saying why
+ *   GET /v1/ready   200 {"status": "ok", "workers", ...} (health.schema.json)
+ *                   when the store answers and the work queue has room,
+ *                   else a 503 problem saying why
  *   GET /v1/limits  {"limits": [{"name", "value"}, ...]}: every compiled-in
  *                   limit of FG_LIMITS_TABLE and every runtime setting
  *
@@ -38,7 +39,7 @@ void fg_h_ready(fg_req *r, fg_resp *out) {
   }
   cJSON *o = cJSON_CreateObject();
   if (o) {
-    cJSON_AddStringToObject(o, "status", "ready");
+    cJSON_AddStringToObject(o, "status", "ok");
     cJSON_AddNumberToObject(o, "workers", fg_pool_workers(srv->pool));
     cJSON_AddNumberToObject(o, "workers_busy", fg_pool_busy(srv->pool));
     cJSON_AddNumberToObject(o, "queued", queued);

@@ -8,9 +8,11 @@ model registration and versions, synchronous and asynchronous checks, the
 check log with filters and paging, problem documents for bad input, routing
 errors, body limits, retiring, start-up settings, a clean stop on SIGTERM,
 the store surviving a restart, and a SIGKILL while a check runs (answered
-checks kept, the running one marked interrupted, the file intact).
+checks kept, the running one marked interrupted, the file intact). Every
+answer body is checked against its schema in schemas/ (apicommon.py; needs
+python3-jsonschema).
 
-Standard library only. Prints one line per failed check and
+Prints one line per failed check and
 "N passed, N failed" as the last line; exits non-zero on any failure.
 """
 import http.client
@@ -24,6 +26,8 @@ import sys
 import tempfile
 import threading
 import time
+
+import apicommon
 
 BIN = os.environ.get("FEASGATE_BIN", "build/feasgate")
 START_TIMEOUT_S = 20
@@ -102,6 +106,10 @@ class Daemon:
                 parsed = json.loads(raw)
             except ValueError:
                 parsed = raw
+        # every answer is checked against its schema in schemas/
+        msgs = apicommon.schemas().problems(method, path, resp.status,
+                                            out_headers, parsed)
+        check(not msgs, "; ".join(msgs))
         return resp.status, out_headers, parsed
 
     def stop(self):
