@@ -77,9 +77,13 @@ static void add_rows(cJSON *o, struct fg_check *c) {
     cJSON_AddItemToObject(r, "interval", interval_json(rr->interval, method));
     cJSON *ex = cJSON_AddObjectToObject(r, "excess");
     add_num(ex, "mean", rr->excess_mean);
-    add_num(ex, "mean_if_violated", rr->excess_mean_if_violated);
-    add_num(ex, "p95", rr->excess_p95);
-    add_num(ex, "max", rr->excess_max);
+    /* Given violation: undefined (null) for a row never violated. The
+     * 95th percentile comes from the log histogram, within
+     * FG_HIST_REL_ERROR (1/128) relative; mean and maximum are exact. */
+    bool any = rr->violated > rr->nonfinite;
+    add_num(ex, "mean_if_violated", any ? rr->excess_mean_if_violated : NAN);
+    add_num(ex, "p95", any ? rr->excess_p95 : NAN);
+    add_num(ex, "max", any ? rr->excess_max : NAN);
     cJSON_AddNumberToObject(r, "sole_cause", (double)rr->sole);
     if (rr->nonfinite)
       cJSON_AddNumberToObject(r, "nonfinite", (double)rr->nonfinite);
