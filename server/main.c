@@ -9,6 +9,9 @@
  *            [--seed S] [--start I] [--stream design|validation] [--csv]
  *            [--max M]                         CSV (engine/scenarios.c)
  *   feasgate sample-size --half-width H ...    sample sizes (estimate/sizes.c)
+ *   feasgate check --server URL [--key KEY]    the same gate run by a daemon
+ *            MODEL_NAME REQUEST.json           (http/remote.c)
+ *   feasgate keys add|list|revoke ...          API keys (http/keys_cli.c)
  *   feasgate version
  *
  * Exit status of `check`: 0 pass, 1 fail, 2 inconclusive, 3 usage or input
@@ -37,6 +40,10 @@ static void usage(FILE *f) {
           "...\n"
           "  feasgate check MODEL.json REQUEST.json [--samples N] [--seed S]\n"
           "                 [--workers N] [--chunk N] [--summary]\n"
+          "  feasgate check --server URL [--key KEY] [--timeout S] MODEL_NAME "
+          "REQUEST.json\n"
+          "  feasgate keys add NAME --role ROLE | list | revoke NAME "
+          "[--store URL]\n"
           "  feasgate register --store URL FILE...\n"
           "  feasgate scenarios MODEL.json [--count N] [--seed S] [--start I]\n"
           "                 [--stream design|validation] [--csv] [--max M]\n"
@@ -155,13 +162,16 @@ static void print_summary(cJSON *res) {
   cJSON_ArrayForEach(r, cJSON_GetObjectItem(res, "constraints")) {
     if (shown++ >= 20) break;
     const cJSON *ex = cJSON_GetObjectItem(r, "excess");
-    printf("%-28s %12.6f %10.0f %12.4g %12.4g %12.4g\n",
+    char p95[32] = "-", mx[32] = "-";
+    const cJSON *v95 = cJSON_GetObjectItem(ex, "p95");
+    const cJSON *vmax = cJSON_GetObjectItem(ex, "max");
+    if (cJSON_IsNumber(v95)) snprintf(p95, sizeof p95, "%.4g", v95->valuedouble);
+    if (cJSON_IsNumber(vmax)) snprintf(mx, sizeof mx, "%.4g", vmax->valuedouble);
+    printf("%-28s %12.6f %10.0f %12.4g %12s %12s\n",
            cJSON_GetStringValue(cJSON_GetObjectItem(r, "name")),
            cJSON_GetNumberValue(cJSON_GetObjectItem(r, "probability")),
            cJSON_GetNumberValue(cJSON_GetObjectItem(r, "sole_cause")),
-           cJSON_GetNumberValue(cJSON_GetObjectItem(ex, "mean")),
-           cJSON_GetNumberValue(cJSON_GetObjectItem(ex, "p95")),
-           cJSON_GetNumberValue(cJSON_GetObjectItem(ex, "max")));
+           cJSON_GetNumberValue(cJSON_GetObjectItem(ex, "mean")), p95, mx);
   }
   const cJSON *obj = cJSON_GetObjectItem(res, "objective");
   if (cJSON_IsNumber(obj)) printf("\nobjective  %.6g\n", obj->valuedouble);
@@ -525,7 +535,14 @@ int main(int argc, char **argv) {
   }
   const char *cmd = argv[1];
   if (strcmp(cmd, "serve") == 0) return fg_serve_command(argc - 1, argv + 1);
-  if (strcmp(cmd, "check") == 0) return cmd_check(argc - 1, argv + 1);
+  if (strcmp(cmd, "check") == 0) {
+    for (int i = 2; i < argc; i++)
+      if (strcmp(argv[i], "--server") == 0 ||
+          strncmp(argv[i], "--server=", 9) == 0)
+        return fg_remote_check_command(argc - 1, argv + 1);
+    return cmd_check(argc - 1, argv + 1);
+  }
+  if (strcmp(cmd, "keys") == 0) return fg_keys_command(argc - 1, argv + 1);
   if (strcmp(cmd, "register") == 0) return cmd_register(argc - 1, argv + 1);
   if (strcmp(cmd, "scenarios") == 0) return cmd_scenarios(argc - 1, argv + 1);
   if (strcmp(cmd, "sample-size") == 0) return cmd_sample_size(argc - 1, argv + 1);

@@ -4,6 +4,7 @@
  *   POST /v1/models/{name}/checks               against the latest version
  *   POST /v1/models/{name}/versions/{n}/checks  against version n
  *   GET  /v1/checks/{id}                        one check (live if running)
+ *   DELETE /v1/checks/{id}                      cancel a running check
  *   GET  /v1/checks?model=&verdict=&since=&label=&limit=&after=
  *
  * How a check is run (the order is the durability contract):
@@ -314,12 +315,25 @@ void fg_h_checks_create(fg_req *r, fg_resp *out) {
                   srv->cfg.queue);
     goto done;
   }
-  if (fg_http_record_start(srv->store, &v, m, &req, &rec, &p) != FG_OK) {
+  req.max_seconds = srv->cfg.max_check_s;
+  if (fg_http_record_start(srv->store, &v, m, &req, r->key_name, &rec, &p) !=
+      FG_OK) {
     fg_resp_problem(out, &p, 0);
     goto done;
   }
   if (fg_check_start(srv->pool, m, &req, &c, &p) != FG_OK) {
     fg_http_record_unstarted(srv->store, &rec);
+    fg_resp_problem(out, &p, 0);
+    goto done;
+  }
+  /* Listed at once, so that DELETE finds it while this handler waits. */
+  if (fg_registry_watch(srv->registry, c, &rec, &p) != FG_OK) {
+    fg_check_cancel(c);
+    fg_check_wait(c, -1);
+    fg_problem sp;
+    fg_problem_init(&sp);
+    fg_http_record_end(srv->store, c, &rec, NULL, &sp);
+    fg_check_unref(c);
     fg_resp_problem(out, &p, 0);
     goto done;
   }
@@ -329,6 +343,7 @@ void fg_h_checks_create(fg_req *r, fg_resp *out) {
     fg_problem sp;
     fg_problem_init(&sp);
     fg_status st = fg_http_record_end(srv->store, c, &rec, &body, &sp);
+    fg_registry_drop(srv->registry, rec.id);
     fg_check_unref(c);
     c = NULL;
     if (st != FG_OK) {
@@ -345,23 +360,11 @@ void fg_h_checks_create(fg_req *r, fg_resp *out) {
                         .model_version = rec.version,
                         .created_at = rec.created_at,
                         .finished_at = NULL,
-                        .key = NULL};
+                        .key = rec.key[0] ? rec.key : NULL};
   cJSON *running = fg_check_result_json(c, &meta);
-  if (fg_registry_add(srv->registry, c, &rec, &p) != FG_OK) {
-    /* Cannot keep it: stop it and record what it reached. */
-    fg_check_cancel(c);
-    fg_check_wait(c, -1);
-    fg_problem sp;
-    fg_problem_init(&sp);
-    fg_http_record_end(srv->store, c, &rec, NULL, &sp);
-    fg_check_unref(c);
-    c = NULL;
-    cJSON_Delete(running);
-    out->location[0] = '\0';
-    fg_resp_problem(out, &p, 0);
-    goto done;
-  }
-  c = NULL; /* the registry holds it now */
+  fg_registry_hand_over(srv->registry, rec.id); /* it records the end */
+  fg_check_unref(c);
+  c = NULL;
   fg_resp_json(out, 202, running);
 
 done:
@@ -419,6 +422,55 @@ void fg_h_check_get(fg_req *r, fg_resp *out) {
     c.result = NULL;
   } else {
     fg_resp_json(out, 200, stored_body(&c));
+  }
+  fg_store_check_clear(&c);
+}
+
+/* ---- DELETE /v1/checks/{id} ---- */
+
+/* How long DELETE waits for a cancelled check to stop and be recorded:
+ * workers test the cancel flag once per block, so this is generous. */
+#define FG_HTTP_CANCEL_WAIT_S 10.0
+
+void fg_h_check_cancel(fg_req *r, fg_resp *out) {
+  const char *id = r->params[0];
+  fg_registry_cancel_result res =
+      fg_registry_cancel(r->srv->registry, id, FG_HTTP_CANCEL_WAIT_S);
+  if (res == FG_REGISTRY_CANCEL_PENDING) {
+    fg_resp_error(out, 503, FG_EBUSY,
+                  "check %s was told to stop but has not stopped within %g s; "
+                  "GET it shortly",
+                  id, FG_HTTP_CANCEL_WAIT_S);
+    return;
+  }
+  fg_problem p;
+  fg_problem_init(&p);
+  fg_store_check c;
+  if (fg_store_get_check(r->srv->store, id, &c, &p) != FG_OK) {
+    fg_resp_problem(out, &p, 0); /* 404 for an unknown id */
+    return;
+  }
+  if (res != FG_REGISTRY_CANCELLED || strcmp(c.status, "cancelled") != 0) {
+    /* Ended before the cancel reached it (or not running here at all). */
+    if (strcmp(c.status, "running") == 0)
+      fg_resp_error(out, 409, FG_ECONFLICT,
+                    "check %s is ending (or runs in another process) and "
+                    "can no longer be cancelled here",
+                    id);
+    else
+      fg_resp_error(out, 409, FG_ECONFLICT,
+                    "check %s is not running: it ended %s", id, c.status);
+    fg_store_check_clear(&c);
+    return;
+  }
+  if (c.result) {
+    out->status = 200;
+    out->body = c.result;
+    out->len = strlen(c.result);
+    out->content_type = FG_CT_JSON;
+    c.result = NULL;
+  } else {
+    fg_resp_json(out, 200, check_summary(&c));
   }
   fg_store_check_clear(&c);
 }

@@ -106,8 +106,9 @@ void fg_h_comparisons_create(fg_req *r, fg_resp *out) {
   }
   double t0 = fg_time_monotonic();
   for (; started < n; started++) {
+    cr.candidates[started].max_seconds = srv->cfg.max_check_s;
     if (fg_http_record_start(srv->store, &v, m, &cr.candidates[started],
-                             &rec[started], &p) != FG_OK)
+                             r->key_name, &rec[started], &p) != FG_OK)
       break;
     if (fg_check_start(srv->pool, m, &cr.candidates[started],
                        &checks[started], &p) != FG_OK) {

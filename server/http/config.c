@@ -27,7 +27,8 @@ typedef enum opt_kind {
   OPT_U64,
   OPT_BYTES,
   OPT_SECONDS,
-  OPT_LEVEL
+  OPT_LEVEL,
+  OPT_BOOL /* a flag alone is true; --flag=V and the twin take a value */
 } opt_kind;
 
 typedef struct opt_def {
@@ -65,6 +66,15 @@ static const opt_def options[] = {
      FG_HTTP_WAIT_MAX_S, "seconds running checks get at shutdown"},
     {"--log-level", "FEASGATE_LOG_LEVEL", OPT_LEVEL, OFF(log_level), 0, 0,
      "debug, info, warn or error"},
+    {"--max-check-time", "FEASGATE_MAX_CHECK_TIME", OPT_SECONDS,
+     OFF(max_check_s), 0.001, FG_HTTP_CHECK_TIME_MAX_S,
+     "seconds a check may run before it ends timed_out"},
+    {"--tls-cert", "FEASGATE_TLS_CERT", OPT_STRING, OFF(tls_cert), 1,
+     FG_HTTP_URL_MAX, "PEM certificate (chain) file: serve HTTPS"},
+    {"--tls-key", "FEASGATE_TLS_KEY", OPT_STRING, OFF(tls_key), 1,
+     FG_HTTP_URL_MAX, "PEM private key file of --tls-cert"},
+    {"--insecure", "FEASGATE_INSECURE", OPT_BOOL, OFF(insecure), 0, 0,
+     "allow a non-loopback --listen while the store holds no key"},
 };
 
 #define NOPTIONS (sizeof options / sizeof *options)
@@ -84,6 +94,7 @@ static void defaults(fg_http_config *cfg) {
   fg_request_limits_default(&cfg->limits);
   cfg->grace_s = FG_HTTP_GRACE_DEFAULT;
   cfg->log_level = FG_LOG_INFO;
+  cfg->max_check_s = FG_HTTP_CHECK_TIME_DEFAULT;
 }
 
 static int fail(char *err, size_t cap, const char *where, const char *value,
@@ -203,6 +214,16 @@ static int set_value(fg_http_config *cfg, const opt_def *o, const char *where,
     }
     return fail(err, cap, where, v, "one of debug, info, warn, error");
   }
+  case OPT_BOOL:
+    if (!strcmp(v, "1") || !strcmp(v, "true") || !strcmp(v, "yes")) {
+      *(bool *)(void *)field = true;
+      return 0;
+    }
+    if (!strcmp(v, "0") || !strcmp(v, "false") || !strcmp(v, "no")) {
+      *(bool *)(void *)field = false;
+      return 0;
+    }
+    return fail(err, cap, where, v, "1, true, yes, 0, false or no");
   }
   return fail(err, cap, where, v, "a known setting");
 }
@@ -259,6 +280,7 @@ int fg_http_config_parse(int argc, char **argv, fg_http_config *cfg, char *err,
       snprintf(err, errcap, "unknown option '%s' (try --help)", arg);
       return -1;
     }
+    if (!value && o->kind == OPT_BOOL) value = "true";
     if (!value) {
       if (a + 1 >= argc) {
         snprintf(err, errcap, "%s needs a value: %s", o->flag, o->help);
@@ -267,6 +289,13 @@ int fg_http_config_parse(int argc, char **argv, fg_http_config *cfg, char *err,
       value = argv[++a];
     }
     if (set_value(cfg, o, o->flag, value, err, errcap) != 0) return -1;
+  }
+  if (!cfg->tls_cert[0] != !cfg->tls_key[0]) {
+    snprintf(err, errcap, "%s needs %s as well: HTTPS takes a certificate "
+             "and its private key",
+             cfg->tls_cert[0] ? "--tls-cert" : "--tls-key",
+             cfg->tls_cert[0] ? "--tls-key" : "--tls-cert");
+    return -1;
   }
   return 0;
 }

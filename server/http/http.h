@@ -24,6 +24,11 @@
  *   --max-wait S     FEASGATE_MAX_WAIT        60 seconds
  *   --grace S        FEASGATE_GRACE           FG_HTTP_GRACE_DEFAULT seconds
  *   --log-level L    FEASGATE_LOG_LEVEL       info (debug, info, warn, error)
+ *   --max-check-time FEASGATE_MAX_CHECK_TIME  3600 seconds (deadline of a check)
+ *   --tls-cert FILE  FEASGATE_TLS_CERT        none (PEM; HTTPS with --tls-key)
+ *   --tls-key FILE   FEASGATE_TLS_KEY         none (PEM private key)
+ *   --insecure       FEASGATE_INSECURE        off (allow a non-loopback
+ *                                             listener with no key)
  *
  * Exit status of fg_serve_command: 0 after a clean stop (SIGINT/SIGTERM),
  * 3 for bad usage or a bad setting, 1 when start-up fails for another
@@ -55,7 +60,11 @@
 /* Hard bound of --max-scenarios: a scenario table of 10^8 rows is already
  * gigabytes of JSON. */
 #define FG_HTTP_MAX_SCENARIOS_HARD 100000000ull
-/* Characters of --listen and --store values. */
+/* --max-check-time: default one hour; at most a week, beyond which a
+ * check is a batch job, not a gate. */
+#define FG_HTTP_CHECK_TIME_DEFAULT 3600.0
+#define FG_HTTP_CHECK_TIME_MAX_S (7 * 86400.0)
+/* Characters of --listen and --store values (and of file paths). */
 #define FG_HTTP_HOST_MAX 255
 #define FG_HTTP_URL_MAX 4096
 
@@ -75,6 +84,10 @@ typedef struct fg_http_config {
   fg_request_limits limits; /* max_samples, max_scenarios, max_wait_s */
   double grace_s;
   fg_log_level log_level;
+  double max_check_s;                 /* --max-check-time */
+  char tls_cert[FG_HTTP_URL_MAX + 1]; /* "" = plain HTTP */
+  char tls_key[FG_HTTP_URL_MAX + 1];
+  bool insecure;
 } fg_http_config;
 
 /* Defaults, then environment twins, then flags (argv[0] is the subcommand
@@ -86,6 +99,15 @@ int fg_http_config_parse(int argc, char **argv, fg_http_config *cfg, char *err,
 
 /* The whole `feasgate serve` subcommand (argv[0] = "serve"). */
 int fg_serve_command(int argc, char **argv);
+
+/* `feasgate keys add|list|revoke` (argv[0] = "keys"; keys_cli.c): 0 done,
+ * 1 store or system fault, 3 usage, unknown or duplicate name. */
+int fg_keys_command(int argc, char **argv);
+
+/* `feasgate check --server URL [--key KEY] MODEL_NAME REQUEST.json`
+ * (argv[0] = "check"; remote.c): the check run by a daemon, the result
+ * printed; 0 pass, 1 fail, 2 inconclusive, 3 anything else. */
+int fg_remote_check_command(int argc, char **argv);
 
 /* The sample-size answer (GET /v1/sample-size, `feasgate sample-size`)
  * for `n` parameters given by name and text: the inputs echoed, "method"

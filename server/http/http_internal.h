@@ -49,6 +49,7 @@
 #define FG_HTTP_RETRY_AFTER_S 2
 
 typedef struct fg_registry fg_registry;
+typedef struct fg_keyring fg_keyring;
 
 typedef struct fg_server {
   fg_http_config cfg;
@@ -56,6 +57,9 @@ typedef struct fg_server {
   fg_pool *pool;
   fg_model_cache *cache;
   fg_registry *registry;
+  fg_keyring *keys;   /* live API keys (keys.c) */
+  bool keys_required; /* non-loopback without --insecure: keys even when
+                         the store holds none (then nothing keyed opens) */
   struct MHD_Daemon *daemon;
   /* Requests between the first access-handler call and completion. */
   pthread_mutex_t inflight_lock;
@@ -79,6 +83,8 @@ typedef struct fg_req {
   const char *route; /* the matched pattern, for the log */
   int nparams;
   char params[FG_ROUTE_PARAMS][FG_HTTP_PATH_MAX + 1];
+  bool authorized;                 /* fg_auth_request said yes */
+  char key_name[FG_NAME_MAX + 1]; /* the caller's key; "" when none */
 } fg_req;
 
 typedef struct fg_resp {
@@ -89,6 +95,7 @@ typedef struct fg_resp {
   char location[FG_HTTP_PATH_MAX + 1];
   char allow[64];
   int retry_after; /* seconds; 0 = no header */
+  char www_authenticate[64]; /* "" = no header */
 } fg_resp;
 
 typedef void fg_handler(fg_req *r, fg_resp *out);
@@ -142,6 +149,7 @@ fg_status fg_http_load_model(fg_server *srv, const char *name, int version,
 void fg_h_checks_create(fg_req *r, fg_resp *out);
 void fg_h_check_get(fg_req *r, fg_resp *out);
 void fg_h_checks_list(fg_req *r, fg_resp *out);
+void fg_h_check_cancel(fg_req *r, fg_resp *out);
 /* A new time-sortable check id "chk_" + 26 base32 characters. */
 void fg_http_check_id(char out[40]);
 /* Record the end of check `c` (status, verdict, estimate, result body) in
@@ -152,11 +160,13 @@ fg_status fg_http_record_end(fg_store *store, fg_check *c,
 
 /* ---- record.c ---- */
 /* Fill *rec for a check of version `v` about to start (new id, status
- * running, seed, label, the replayable request) and put it in the store;
- * rec->request is malloc'd and the caller frees it. */
+ * running, seed, label, the caller's key name -- "" or NULL when none --,
+ * the replayable request) and put it in the store; rec->request is
+ * malloc'd and the caller frees it. */
 fg_status fg_http_record_start(fg_store *store, const fg_store_version *v,
                                const fg_model *m, const fg_check_request *req,
-                               fg_store_check *rec, fg_problem *p);
+                               const char *key, fg_store_check *rec,
+                               fg_problem *p);
 /* Close the record of a check the pool refused as `failed`. */
 void fg_http_record_unstarted(fg_store *store, const fg_store_check *rec);
 
@@ -172,6 +182,26 @@ fg_status fg_registry_new(fg_store *store, fg_registry **out, fg_problem *p);
  * record (request/result are not used). */
 fg_status fg_registry_add(fg_registry *g, fg_check *c,
                           const fg_store_check *rec, fg_problem *p);
+/* List a check just started whose handler waits for it (takes its own
+ * reference): GET shows it live and fg_registry_cancel finds it, but the
+ * watcher does not record it. The handler then calls exactly one of: */
+fg_status fg_registry_watch(fg_registry *g, fg_check *c,
+                            const fg_store_check *rec, fg_problem *p);
+/* ... the handler recorded its end: unlist it and drop the reference; */
+void fg_registry_drop(fg_registry *g, const char *id);
+/* ... it still runs after wait_s: the watcher records it when it ends. */
+void fg_registry_hand_over(fg_registry *g, const char *id);
+
+typedef enum fg_registry_cancel_result {
+  FG_REGISTRY_CANCELLED = 0,  /* cancelled; its end is in the store */
+  FG_REGISTRY_NOT_HELD,       /* no running check of that id here */
+  FG_REGISTRY_ENDED,          /* it had ended already */
+  FG_REGISTRY_CANCEL_PENDING  /* cancelled, not yet recorded in wait_s */
+} fg_registry_cancel_result;
+/* Cancel the running check `id` and wait up to wait_s for its end to be
+ * recorded. */
+fg_registry_cancel_result fg_registry_cancel(fg_registry *g, const char *id,
+                                             double wait_s);
 /* The live result body of check `id`, or NULL when not held here. */
 cJSON *fg_registry_live_json(fg_registry *g, const char *id);
 int fg_registry_count(fg_registry *g);
@@ -179,6 +209,51 @@ int fg_registry_count(fg_registry *g);
  * stop the watcher thread. */
 void fg_registry_shutdown(fg_registry *g, double grace_s);
 void fg_registry_free(fg_registry *g);
+
+/* ---- keys.c: API keys, roles, the cache of live keys ---- */
+/* A key: prefix + FG_KEY_BYTES random bytes in unpadded base64url. */
+#define FG_KEY_PREFIX "fgk_"
+#define FG_KEY_BYTES 32
+/* Longest Authorization token looked at; longer ones are malformed. */
+#define FG_KEY_TEXT_MAX 128
+
+typedef enum fg_role {
+  FG_ROLE_NONE = 0, /* open routes */
+  FG_ROLE_READER,
+  FG_ROLE_CHECKER,
+  FG_ROLE_AUTHOR,
+  FG_ROLE_ADMIN
+} fg_role;
+
+typedef enum fg_auth_result {
+  FG_AUTH_OK = 0,
+  FG_AUTH_WRONG,      /* matches no live key */
+  FG_AUTH_UNAVAILABLE /* the keys could never be read */
+} fg_auth_result;
+
+const char *fg_role_name(fg_role r);
+fg_role fg_role_parse(const char *s); /* FG_ROLE_NONE when unknown */
+/* The least role for `method` on router pattern `route`. */
+fg_role fg_route_role(const char *method, const char *route);
+/* [A-Za-z0-9][A-Za-z0-9_.-]{0,63} */
+bool fg_key_name_valid(const char *s);
+/* hash (FG_STORE_KEY_HASH bytes) = SHA-256(salt || text). */
+fg_status fg_key_hash(const char *text, const uint8_t *salt, uint8_t *hash,
+                      fg_problem *p);
+/* A new key's text (cap >= 64) and its salt and hash in *k. */
+fg_status fg_key_generate(char *text, size_t cap, fg_store_key *k,
+                          fg_problem *p);
+
+fg_status fg_keyring_new(fg_store *store, fg_keyring **out, fg_problem *p);
+void fg_keyring_free(fg_keyring *k);
+/* Live keys now (reloading when stale); -1 when never readable. */
+int fg_keyring_live(fg_keyring *k);
+fg_auth_result fg_keyring_check(fg_keyring *k, const char *text,
+                                char name[FG_NAME_MAX + 1], fg_role *role);
+/* May request `r` (routed: a handler matched r->method and r->route) go
+ * on? Fills r->key_name; false with *out set to 401 (missing, malformed,
+ * wrong or revoked key), 403 (role too low) or 503 (keys unreadable). */
+bool fg_auth_request(fg_req *r, bool routed, fg_resp *out);
 
 /* ---- scenarios.c ---- */
 void fg_h_model_scenarios(fg_req *r, fg_resp *out);

@@ -19,7 +19,8 @@
 
 fg_status fg_http_record_start(fg_store *store, const fg_store_version *v,
                                const fg_model *m, const fg_check_request *req,
-                               fg_store_check *rec, fg_problem *p) {
+                               const char *key, fg_store_check *rec,
+                               fg_problem *p) {
   memset(rec, 0, sizeof *rec);
   fg_http_check_id(rec->id);
   snprintf(rec->model, sizeof rec->model, "%s", v->name);
@@ -29,6 +30,7 @@ fg_status fg_http_record_start(fg_store *store, const fg_store_version *v,
   rec->seed = req->seed;
   fg_time_now_rfc3339(rec->created_at, sizeof rec->created_at);
   snprintf(rec->label, sizeof rec->label, "%s", req->label);
+  snprintf(rec->key, sizeof rec->key, "%s", key ? key : "");
   rec->probability = rec->lower = rec->upper = rec->elapsed_ms = NAN;
   cJSON *rj = fg_request_json(m, req);
   rec->request = rj ? cJSON_PrintUnformatted(rj) : NULL;

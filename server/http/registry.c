@@ -1,5 +1,7 @@
 /*
- * http/registry.c -- checks that outlived their request's wait_s.
+ * http/registry.c -- checks that outlived their request's wait_s, and
+ * checks whose request is still waiting for them (so that DELETE
+ * /v1/checks/{id} and GET find every running check of this process).
  *
  * Design: a list of held checks under one mutex, and one watcher thread.
  * The watcher wakes every FG_REGISTRY_POLL_MS (or when signalled), finds a
@@ -10,10 +12,24 @@
  * the registry mutex; the `recording` flag keeps the entry the watcher's
  * alone meanwhile.
  *
- * Locking rule: `lock` guards the list, `count`, `stop` and every entry's
- * `recording`. A held check's reference belongs to the registry; live
- * bodies are built under `lock`, so the check cannot be released while one
- * is being built (engine.h has no fg_check_ref to take our own).
+ * Waited entries (fg_registry_watch): the handler that started a check
+ * lists it at once with its own reference and `waited` set; the watcher
+ * leaves such an entry alone. The handler then either records the end
+ * itself and drops the entry (fg_registry_drop), or answers 202 and hands
+ * it over (fg_registry_hand_over: `waited` cleared, the watcher records
+ * it). `count` counts held (handed-over) entries only, as before;
+ * `nwaited` the others.
+ *
+ * Cancelling (fg_registry_cancel): find the entry, cancel the check, then
+ * wait on `changed` until the entry is gone -- recorded by the watcher or
+ * by its handler -- so the caller reads the cancelled record from the
+ * store.
+ *
+ * Locking rule: `lock` guards the list, `count`, `nwaited`, `stop` and
+ * every entry's `recording` and `waited`. A listed check's reference
+ * belongs to the registry; live bodies are built under `lock`. Lock order:
+ * registry lock, then the engine's pool lock (fg_check_*), never the
+ * reverse.
  *
  * Shutdown (fg_registry_shutdown, main thread): wait up to grace_s for held
  * checks to end, cancel the rest, wait up to FG_REGISTRY_CANCEL_WAIT_S for
@@ -42,6 +58,7 @@ typedef struct fg_held {
   fg_check *check;
   fg_store_check rec; /* request and result are NULL */
   bool recording;
+  bool waited; /* its handler records it; the watcher leaves it alone */
 } fg_held;
 
 struct fg_registry {
@@ -50,7 +67,8 @@ struct fg_registry {
   pthread_cond_t wake;    /* watcher: something to look at */
   pthread_cond_t changed; /* shutdown: an entry went away */
   fg_held *head;
-  int count;
+  int count;   /* held entries (not waited) */
+  int nwaited; /* waited entries */
   bool stop;
   pthread_t watcher;
   bool watcher_started;
@@ -70,7 +88,7 @@ static void deadline_in(struct timespec *ts, double seconds) {
 /* An ended entry not yet being recorded, or NULL. Called under lock. */
 static fg_held *find_ended(fg_registry *g) {
   for (fg_held *e = g->head; e; e = e->next)
-    if (!e->recording && fg_check_wait(e->check, 0)) return e;
+    if (!e->recording && !e->waited && fg_check_wait(e->check, 0)) return e;
   return NULL;
 }
 
@@ -78,10 +96,20 @@ static void unlink_entry(fg_registry *g, fg_held *target) {
   for (fg_held **pp = &g->head; *pp; pp = &(*pp)->next) {
     if (*pp == target) {
       *pp = target->next;
-      g->count--;
+      if (target->waited)
+        g->nwaited--;
+      else
+        g->count--;
       return;
     }
   }
+}
+
+/* The entry of check `id`, or NULL. Called under lock. */
+static fg_held *find_id(fg_registry *g, const char *id) {
+  for (fg_held *e = g->head; e; e = e->next)
+    if (strcmp(e->rec.id, id) == 0) return e;
+  return NULL;
 }
 
 static void *watch(void *arg) {
@@ -152,6 +180,79 @@ fg_status fg_registry_add(fg_registry *g, fg_check *c,
   return FG_OK;
 }
 
+fg_status fg_registry_watch(fg_registry *g, fg_check *c,
+                            const fg_store_check *rec, fg_problem *p) {
+  fg_held *e = calloc(1, sizeof *e);
+  if (!e)
+    return fg_problem_set(p, FG_ENOMEM,
+                          "out of memory listing check %s as running", rec->id);
+  e->check = fg_check_ref(c);
+  e->rec = *rec;
+  e->rec.request = NULL;
+  e->rec.result = NULL;
+  e->waited = true;
+  pthread_mutex_lock(&g->lock);
+  e->next = g->head;
+  g->head = e;
+  g->nwaited++;
+  pthread_mutex_unlock(&g->lock);
+  return FG_OK;
+}
+
+void fg_registry_hand_over(fg_registry *g, const char *id) {
+  pthread_mutex_lock(&g->lock);
+  fg_held *e = find_id(g, id);
+  if (e && e->waited) {
+    e->waited = false;
+    g->nwaited--;
+    g->count++;
+    pthread_cond_signal(&g->wake);
+  }
+  pthread_mutex_unlock(&g->lock);
+}
+
+void fg_registry_drop(fg_registry *g, const char *id) {
+  pthread_mutex_lock(&g->lock);
+  fg_held *e = find_id(g, id);
+  if (e && e->waited)
+    unlink_entry(g, e);
+  else
+    e = NULL;
+  pthread_cond_broadcast(&g->changed);
+  pthread_mutex_unlock(&g->lock);
+  if (e) {
+    fg_check_unref(e->check);
+    free(e);
+  }
+}
+
+fg_registry_cancel_result fg_registry_cancel(fg_registry *g, const char *id,
+                                             double wait_s) {
+  pthread_mutex_lock(&g->lock);
+  fg_held *e = find_id(g, id);
+  if (!e) {
+    pthread_mutex_unlock(&g->lock);
+    return FG_REGISTRY_NOT_HELD;
+  }
+  if (e->recording || fg_check_wait(e->check, 0)) {
+    pthread_mutex_unlock(&g->lock);
+    return FG_REGISTRY_ENDED;
+  }
+  fg_check_cancel(e->check);
+  pthread_cond_signal(&g->wake);
+  struct timespec ts;
+  deadline_in(&ts, wait_s);
+  while (find_id(g, id)) {
+    if (pthread_cond_timedwait(&g->changed, &g->lock, &ts) == ETIMEDOUT) {
+      bool still = find_id(g, id) != NULL;
+      pthread_mutex_unlock(&g->lock);
+      return still ? FG_REGISTRY_CANCEL_PENDING : FG_REGISTRY_CANCELLED;
+    }
+  }
+  pthread_mutex_unlock(&g->lock);
+  return FG_REGISTRY_CANCELLED;
+}
+
 cJSON *fg_registry_live_json(fg_registry *g, const char *id) {
   cJSON *body = NULL;
   pthread_mutex_lock(&g->lock);
@@ -182,11 +283,11 @@ int fg_registry_count(fg_registry *g) {
   return n;
 }
 
-/* Wait (under lock) until no entry is held or `seconds` pass. */
+/* Wait (under lock) until no entry is listed or `seconds` pass. */
 static void wait_empty(fg_registry *g, double seconds) {
   struct timespec ts;
   deadline_in(&ts, seconds);
-  while (g->count > 0) {
+  while (g->count + g->nwaited > 0) {
     if (pthread_cond_timedwait(&g->changed, &g->lock, &ts) == ETIMEDOUT) break;
   }
 }

@@ -10,24 +10,36 @@
  *   The access handler is called several times per request:
  *     1st call   set up an fg_req; a Content-Length above --max-body is
  *                refused with 413 at once, before any of the body is read;
+ *                so is a request without the key its route needs (401,
+ *                403: keys.c), so no body is read for an unknown caller;
  *     body calls append to r->body; as soon as the bytes received exceed
  *                --max-body the buffer is dropped and the rest discarded
  *                (up to FG_HTTP_DISCARD_MAX, then the connection is
  *                closed), so an oversize body is never held whole; the
  *                413 goes out on the last call, as libmicrohttpd takes
  *                no response in the middle of a body;
- *     last call  (no more data) route, run the handler, queue the answer.
+ *     last call  (no more data) route, authorise (again, unless the 1st
+ *                call did), run the handler, queue the answer.
  *   The completion callback logs the request (method, route, status,
  *   duration_ms) and frees the fg_req.
  *
  *   We create the listening socket ourselves (so port 0 can be resolved to
  *   the bound address, which is the first log line) and hand it to
- *   libmicrohttpd with MHD_OPTION_LISTEN_SOCKET.
+ *   libmicrohttpd with MHD_OPTION_LISTEN_SOCKET. A listener that is not
+ *   loopback (127.0.0.0/8, ::1) is refused (exit 3) while the store holds
+ *   no live key, unless --insecure; without --insecure it then also keeps
+ *   requiring keys should every key be revoked later.
+ *
+ *   HTTPS: with --tls-cert and --tls-key both PEM files are read at
+ *   start-up (at most FG_HTTP_TLS_FILE_MAX bytes each) and handed to
+ *   libmicrohttpd (MHD_USE_TLS, GnuTLS underneath) from memory.
  *
  * Start-up and shutdown (fg_serve_command, main thread)
- *   parse settings (exit 3 on a bad one) -> block SIGINT/SIGTERM in every
- *   thread -> bind -> open the store, mark checks left running as
- *   interrupted -> worker pool, model cache, registry -> daemon -> log
+ *   parse settings (exit 3 on a bad one) -> read the TLS files (exit 3)
+ *   -> block SIGINT/SIGTERM in every thread -> bind -> open the store,
+ *   mark checks left running as interrupted -> load the keys, refuse a
+ *   keyless non-loopback listener (exit 3) -> worker pool, model cache,
+ *   registry -> daemon -> log
  *   "listening" -> sigwait. On SIGINT/SIGTERM: stop accepting (quiesce),
  *   wait for requests in flight (bounded by --max-wait plus a margin),
  *   stop the daemon, let detached checks finish within --grace (then
@@ -68,6 +80,9 @@
 #define FG_HTTP_DISCARD_MAX (8 * 1024 * 1024)
 /* Initial body buffer; grows by doubling up to --max-body. */
 #define FG_HTTP_BODY_INITIAL 4096
+/* Bytes of a --tls-cert or --tls-key file at most: a long certificate
+ * chain is a few tens of KiB. */
+#define FG_HTTP_TLS_FILE_MAX (1024 * 1024)
 
 /* ---- responses ---- */
 
@@ -93,6 +108,9 @@ static void queue(fg_req *r, fg_resp *resp) {
     MHD_add_response_header(mr, MHD_HTTP_HEADER_LOCATION, resp->location);
   if (resp->allow[0])
     MHD_add_response_header(mr, MHD_HTTP_HEADER_ALLOW, resp->allow);
+  if (resp->www_authenticate[0])
+    MHD_add_response_header(mr, MHD_HTTP_HEADER_WWW_AUTHENTICATE,
+                            resp->www_authenticate);
   if (resp->retry_after > 0) {
     char ra[16];
     snprintf(ra, sizeof ra, "%d", resp->retry_after);
@@ -115,6 +133,10 @@ static void log_request(const fg_req *r, int status) {
   cJSON_AddStringToObject(o, "route", r->route ? r->route : "(none)");
   cJSON_AddStringToObject(o, "path", r->path);
   cJSON_AddNumberToObject(o, "status", status);
+  if (r->key_name[0])
+    cJSON_AddStringToObject(o, "key", r->key_name);
+  else
+    cJSON_AddNullToObject(o, "key");
   double ms = (fg_http_now() - r->t0) * 1000.0;
   cJSON_AddNumberToObject(o, "duration_ms", (double)(long)(ms * 1000) / 1000);
   fg_log_emit(status >= 500 ? FG_LOG_WARN : FG_LOG_INFO, o);
@@ -171,6 +193,17 @@ static enum MHD_Result on_request(void *cls, struct MHD_Connection *conn,
         r->too_large = true;
         refuse_too_large(r, "declared in Content-Length exceeds");
       }
+    }
+    if (!r->responded) {
+      /* Refuse a caller without the right key before reading its body. */
+      fg_resp routed = {0};
+      fg_handler *h = fg_route(r, &routed);
+      free(routed.body);
+      fg_resp denied = {0};
+      if (fg_auth_request(r, h != NULL, &denied))
+        r->authorized = true;
+      else
+        respond(r, &denied);
     }
     return MHD_YES;
   }
@@ -229,6 +262,15 @@ static enum MHD_Result on_request(void *cls, struct MHD_Connection *conn,
   }
   fg_resp resp = {0};
   fg_handler *h = fg_route(r, &resp);
+  if (!r->authorized) {
+    /* The 1st call's refusal was not taken: refuse now. */
+    fg_resp denied = {0};
+    if (!fg_auth_request(r, h != NULL, &denied)) {
+      free(resp.body);
+      resp = denied;
+      h = NULL;
+    }
+  }
   if (h) h(r, &resp);
   if (resp.status == 0)
     fg_resp_error(&resp, 500, FG_EINTERNAL, "handler for %s gave no answer",
@@ -322,6 +364,66 @@ static int bind_listener(const fg_http_config *cfg, char *addr, size_t cap,
   return fd;
 }
 
+/* True when the socket is bound to a loopback address (127.0.0.0/8, ::1,
+ * or ::ffff:127.x.y.z). */
+static bool bound_to_loopback(int fd) {
+  struct sockaddr_storage ss;
+  socklen_t len = sizeof ss;
+  if (getsockname(fd, (struct sockaddr *)&ss, &len) != 0) return false;
+  if (ss.ss_family == AF_INET) {
+    const struct sockaddr_in *in = (const struct sockaddr_in *)&ss;
+    return (ntohl(in->sin_addr.s_addr) >> 24) == 127;
+  }
+  if (ss.ss_family == AF_INET6) {
+    const struct in6_addr *a = &((const struct sockaddr_in6 *)&ss)->sin6_addr;
+    if (IN6_IS_ADDR_LOOPBACK(a)) return true;
+    return IN6_IS_ADDR_V4MAPPED(a) && a->s6_addr[12] == 127;
+  }
+  return false;
+}
+
+/* A whole PEM file as a NUL-terminated string; NULL with err set. */
+static char *read_pem(const char *flag, const char *path, char *err,
+                      size_t errcap) {
+  FILE *f = fopen(path, "rb");
+  if (!f) {
+    snprintf(err, errcap, "%s %s: cannot read it: %s", flag, path,
+             strerror(errno));
+    return NULL;
+  }
+  char *buf = malloc(FG_HTTP_TLS_FILE_MAX + 1);
+  size_t n = buf ? fread(buf, 1, FG_HTTP_TLS_FILE_MAX + 1, f) : 0;
+  bool bad = ferror(f) != 0;
+  fclose(f);
+  if (!buf || bad || n == 0 || n > FG_HTTP_TLS_FILE_MAX) {
+    snprintf(err, errcap, "%s %s: %s", flag, path,
+             !buf  ? "out of memory"
+             : bad ? "read error"
+             : n == 0
+                 ? "the file is empty; expected PEM text"
+                 : "larger than FG_HTTP_TLS_FILE_MAX (1 MiB); expected PEM");
+    free(buf);
+    return NULL;
+  }
+  buf[n] = '\0';
+  if (!strstr(buf, "-----BEGIN ")) {
+    snprintf(err, errcap, "%s %s: no PEM block (-----BEGIN ...) in it",
+             flag, path);
+    free(buf);
+    return NULL;
+  }
+  return buf;
+}
+
+/* Free PEM text after wiping it (the key is a secret). */
+static void free_pem(char *pem) {
+  if (!pem) return;
+  volatile char *v = pem;
+  while (*v)
+    *v++ = '\0';
+  free(pem);
+}
+
 /* ---- the subcommand ---- */
 
 static void wait_inflight(fg_server *srv, double seconds) {
@@ -358,6 +460,25 @@ int fg_serve_command(int argc, char **argv) {
     return 3;
   }
   fg_log_set_level(srv->cfg.log_level);
+  char *tls_cert = NULL, *tls_key = NULL;
+  if (srv->cfg.tls_cert[0]) {
+    if (MHD_is_feature_supported(MHD_FEATURE_TLS) != MHD_YES) {
+      fprintf(stderr, "feasgate serve: --tls-cert: this libmicrohttpd was "
+                      "built without TLS; serve plain HTTP behind a TLS "
+                      "proxy instead\n");
+      free(srv);
+      return 3;
+    }
+    tls_cert = read_pem("--tls-cert", srv->cfg.tls_cert, err, sizeof err);
+    if (tls_cert)
+      tls_key = read_pem("--tls-key", srv->cfg.tls_key, err, sizeof err);
+    if (!tls_key) {
+      fprintf(stderr, "feasgate serve: %s\n", err);
+      free_pem(tls_cert);
+      free(srv);
+      return 3;
+    }
+  }
   fg_metrics_start();
   pthread_mutex_init(&srv->inflight_lock, NULL);
   pthread_cond_init(&srv->inflight_cv, NULL);
@@ -396,6 +517,21 @@ int fg_serve_command(int argc, char **argv) {
     goto cleanup;
   }
   fg_problem_init(&p);
+  if (fg_keyring_new(srv->store, &srv->keys, &p) != FG_OK) {
+    fg_log_msg(FG_LOG_ERROR, "start_failed", "reading the keys: %s", p.detail);
+    goto cleanup;
+  }
+  srv->keys_required = !srv->cfg.insecure && !bound_to_loopback(listen_fd);
+  if (srv->keys_required && fg_keyring_live(srv->keys) == 0) {
+    fg_log_msg(FG_LOG_ERROR, "start_refused",
+               "--listen %s is not a loopback address and the store %s holds "
+               "no live key: add one with `feasgate keys add NAME --role "
+               "admin --store %s`, or give --insecure to serve without keys",
+               address, srv->cfg.store, srv->cfg.store);
+    status = 3;
+    goto cleanup;
+  }
+  fg_problem_init(&p);
   if (fg_pool_new(srv->cfg.workers, srv->cfg.chunk, srv->cfg.queue, &srv->pool,
                   &p) != FG_OK) {
     fg_log_msg(FG_LOG_ERROR, "start_failed", "worker pool: %s", p.detail);
@@ -411,9 +547,15 @@ int fg_serve_command(int argc, char **argv) {
     fg_log_msg(FG_LOG_ERROR, "start_failed", "%s", p.detail);
     goto cleanup;
   }
+  struct MHD_OptionItem tls_opts[] = {
+      {MHD_OPTION_HTTPS_MEM_KEY, 0, tls_key},
+      {MHD_OPTION_HTTPS_MEM_CERT, 0, tls_cert},
+      {MHD_OPTION_END, 0, NULL}};
+  struct MHD_OptionItem no_opts[] = {{MHD_OPTION_END, 0, NULL}};
   srv->daemon = MHD_start_daemon(
       MHD_USE_INTERNAL_POLLING_THREAD | MHD_USE_THREAD_PER_CONNECTION |
-          MHD_USE_POLL | MHD_USE_ERROR_LOG | MHD_USE_ITC,
+          MHD_USE_POLL | MHD_USE_ERROR_LOG | MHD_USE_ITC |
+          (tls_key ? MHD_USE_TLS : 0),
       0, NULL, NULL, on_request, srv,
       /* the logger first, so that no message escapes it */
       MHD_OPTION_EXTERNAL_LOGGER, on_mhd_log, srv, MHD_OPTION_LISTEN_SOCKET,
@@ -421,10 +563,13 @@ int fg_serve_command(int argc, char **argv) {
       MHD_OPTION_CONNECTION_TIMEOUT, (unsigned int)FG_HTTP_IDLE_TIMEOUT_S,
       MHD_OPTION_CONNECTION_LIMIT, (unsigned int)FG_HTTP_CONNECTIONS_MAX,
       MHD_OPTION_CONNECTION_MEMORY_LIMIT, (size_t)FG_HTTP_CONN_MEMORY,
-      MHD_OPTION_END);
+      MHD_OPTION_ARRAY, tls_key ? tls_opts : no_opts, MHD_OPTION_END);
   if (!srv->daemon) {
     fg_log_msg(FG_LOG_ERROR, "start_failed",
-               "the HTTP daemon did not start on %s", address);
+               "the HTTP daemon did not start on %s%s", address,
+               tls_key ? " (check that --tls-cert and --tls-key are a PEM "
+                         "certificate and its matching private key)"
+                       : "");
     goto cleanup;
   }
   listen_fd = -1; /* the daemon owns it until quiesce hands it back */
@@ -435,6 +580,8 @@ int fg_serve_command(int argc, char **argv) {
     cJSON_AddStringToObject(ev, "address", address);
     cJSON_AddStringToObject(ev, "store", srv->cfg.store);
     cJSON_AddNumberToObject(ev, "workers", srv->cfg.workers);
+    cJSON_AddBoolToObject(ev, "tls", tls_key != NULL);
+    cJSON_AddNumberToObject(ev, "keys", fg_keyring_live(srv->keys));
     cJSON_AddNumberToObject(ev, "pid", (double)getpid());
     /* Written whatever --log-level says: clients wait for this line. */
     fg_log_force(FG_LOG_INFO, ev);
@@ -467,7 +614,10 @@ cleanup:
   fg_registry_free(srv->registry);
   if (srv->pool) fg_pool_free(srv->pool);
   if (srv->cache) fg_model_cache_free(srv->cache);
+  fg_keyring_free(srv->keys);
   fg_store_close(srv->store);
+  free_pem(tls_key);
+  free_pem(tls_cert);
   if (status == 0) fg_log_msg(FG_LOG_INFO, "stopped", "clean stop");
   pthread_cond_destroy(&srv->inflight_cv);
   pthread_mutex_destroy(&srv->inflight_lock);

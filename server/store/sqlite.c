@@ -17,13 +17,18 @@
  *   missing; `schema_version` holds one row with FG_STORE_SCHEMA_VERSION,
  *   and a file with a newer version is refused rather than misread.
  *
- * Schema (version 1)
+ * Schema (version 2; version 1 lacked `keys`)
  *   models   (name PK, retired, created_at)
  *   versions (name -> models, version, digest, document, title, created_at;
  *             PK (name, version))
  *   checks   (id PK, (model, version) -> versions, digest, status, verdict,
  *             seed, request, result, created_at, finished_at, elapsed_ms,
  *             label, key, probability, lower, upper)
+ *   keys     (name PK, role, salt BLOB, hash BLOB = SHA-256(salt || key),
+ *             created_at, revoked_at '' while live)
+ *   Migration: every CREATE is IF NOT EXISTS, so opening a version-1 file
+ *   adds the missing tables and raises schema_version to 2 in the same
+ *   transaction; no existing row changes.
  *   NaN probabilities are stored as NULL (SQLite itself would turn a NaN
  *   into NULL; we do it explicitly) and read back as NAN.
  *
@@ -56,7 +61,7 @@
 #include <time.h>
 
 /* The schema this file writes and understands. */
-#define FG_STORE_SCHEMA_VERSION 1
+#define FG_STORE_SCHEMA_VERSION 2
 /* How long a statement waits for a lock held by another connection before
  * giving up with FG_EBUSY: long enough to ride out a checkpoint or a CLI
  * reader, short enough that an HTTP request does not hang. */
@@ -100,7 +105,14 @@ static const char *const schema_sql =
     "  FOREIGN KEY (model, version) REFERENCES versions(name, version));"
     "CREATE INDEX IF NOT EXISTS checks_by_time ON checks(created_at, id);"
     "CREATE INDEX IF NOT EXISTS checks_by_model ON checks(model, created_at);"
-    "CREATE INDEX IF NOT EXISTS checks_by_status ON checks(status);";
+    "CREATE INDEX IF NOT EXISTS checks_by_status ON checks(status);"
+    "CREATE TABLE IF NOT EXISTS keys ("
+    "  name TEXT PRIMARY KEY,"
+    "  role TEXT NOT NULL,"
+    "  salt BLOB NOT NULL,"
+    "  hash BLOB NOT NULL,"
+    "  created_at TEXT NOT NULL,"
+    "  revoked_at TEXT NOT NULL DEFAULT '');";
 
 /* Every statement the backend runs, prepared once at open. */
 enum stmt_id {
@@ -120,6 +132,10 @@ enum stmt_id {
   ST_CHECK_CURSOR,
   ST_CHECKS_LIST,
   ST_MARK_INTERRUPTED,
+  ST_KEY_EXISTS,
+  ST_KEY_INSERT,
+  ST_KEYS_LIST,
+  ST_KEY_REVOKE,
   ST_COUNT
 };
 
@@ -175,6 +191,15 @@ static const char *const stmt_sql[ST_COUNT] = {
     [ST_MARK_INTERRUPTED] =
         "UPDATE checks SET status = 'interrupted', finished_at = ?1"
         " WHERE status = 'running'",
+    [ST_KEY_EXISTS] = "SELECT revoked_at FROM keys WHERE name = ?1",
+    [ST_KEY_INSERT] = "INSERT INTO keys(name, role, salt, hash, created_at)"
+                      " VALUES (?1, ?2, ?3, ?4, ?5)",
+    /* ?1 = 1: live keys only. */
+    [ST_KEYS_LIST] = "SELECT name, role, salt, hash, created_at, revoked_at"
+                     " FROM keys WHERE ?1 = 0 OR revoked_at = ''"
+                     " ORDER BY name",
+    [ST_KEY_REVOKE] = "UPDATE keys SET revoked_at = ?2 WHERE name = ?1"
+                      " AND revoked_at = ''",
 };
 
 struct fg_store {
@@ -330,6 +355,13 @@ static fg_status setup_schema(fg_store *s, fg_problem *p) {
   if (rc == SQLITE_OK && have < 0) {
     char sql[96];
     snprintf(sql, sizeof sql, "INSERT INTO schema_version VALUES (%d)",
+             FG_STORE_SCHEMA_VERSION);
+    rc = sqlite3_exec(s->db, sql, NULL, NULL, NULL);
+  }
+  if (rc == SQLITE_OK && have >= 1 && have < FG_STORE_SCHEMA_VERSION) {
+    /* An older file: the CREATEs above added what it lacked. */
+    char sql[96];
+    snprintf(sql, sizeof sql, "UPDATE schema_version SET version = %d",
              FG_STORE_SCHEMA_VERSION);
     rc = sqlite3_exec(s->db, sql, NULL, NULL, NULL);
   }
@@ -864,4 +896,158 @@ void fg_store_inject_write_fault(fg_store *s, int nth) {
   pthread_mutex_lock(&s->lock);
   s->fail_countdown = nth > 0 ? nth : 0;
   pthread_mutex_unlock(&s->lock);
+}
+
+/* ---- keys ---- */
+
+fg_status fg_store_put_key(fg_store *s, const fg_store_key *k, fg_problem *p) {
+  char now[32];
+  if (k->created_at[0])
+    snprintf(now, sizeof now, "%s", k->created_at);
+  else
+    now_rfc3339(now);
+  pthread_mutex_lock(&s->lock);
+  fg_status res = FG_OK;
+  int rc = tx_begin(s);
+  if (rc != SQLITE_OK) {
+    res = db_fault(s, p, "begin (add key)", rc);
+    goto out;
+  }
+  sqlite3_stmt *st = s->stmt[ST_KEY_EXISTS];
+  bind_text(st, 1, k->name);
+  rc = sqlite3_step(st);
+  done_stmt(st);
+  if (rc == SQLITE_ROW) {
+    res = fg_problem_set(p, FG_ECONFLICT,
+                         "a key named '%s' exists already; names are never "
+                         "reused, also after revocation",
+                         k->name);
+    goto rollback;
+  }
+  if (rc != SQLITE_DONE) {
+    res = db_fault(s, p, "looking up a key", rc);
+    goto rollback;
+  }
+  st = s->stmt[ST_KEY_INSERT];
+  bind_text(st, 1, k->name);
+  bind_text(st, 2, k->role);
+  sqlite3_bind_blob(st, 3, k->salt, FG_STORE_KEY_SALT, SQLITE_TRANSIENT);
+  sqlite3_bind_blob(st, 4, k->hash, FG_STORE_KEY_HASH, SQLITE_TRANSIENT);
+  bind_text(st, 5, now);
+  rc = write_step(s, st);
+  if (rc != SQLITE_OK) {
+    res = db_fault(s, p, "writing a key", rc);
+    goto rollback;
+  }
+  rc = tx_commit(s);
+  if (rc != SQLITE_OK) {
+    res = db_fault(s, p, "commit (add key)", rc);
+    goto rollback;
+  }
+  goto out;
+rollback:
+  tx_rollback(s);
+out:
+  pthread_mutex_unlock(&s->lock);
+  return res;
+}
+
+/* A blob column into a fixed buffer; false when its size is not `n`. */
+static bool copy_blob(uint8_t *dst, size_t n, sqlite3_stmt *st, int col) {
+  const void *b = sqlite3_column_blob(st, col);
+  if (!b || (size_t)sqlite3_column_bytes(st, col) != n) return false;
+  memcpy(dst, b, n);
+  return true;
+}
+
+fg_status fg_store_list_keys(fg_store *s, bool live_only, fg_store_key **out,
+                             int *n, fg_problem *p) {
+  *out = NULL;
+  *n = 0;
+  fg_store_key *arr = NULL;
+  int count = 0, cap = 0, rc;
+  fg_status res = FG_OK;
+  pthread_mutex_lock(&s->lock);
+  sqlite3_stmt *st = s->stmt[ST_KEYS_LIST];
+  sqlite3_bind_int(st, 1, live_only ? 1 : 0);
+  while ((rc = sqlite3_step(st)) == SQLITE_ROW) {
+    if (count == cap) {
+      int ncap = cap ? cap * 2 : 16;
+      fg_store_key *grown = realloc(arr, (size_t)ncap * sizeof *arr);
+      if (!grown) {
+        res = fg_problem_set(p, FG_ENOMEM, "store: out of memory listing keys");
+        break;
+      }
+      arr = grown;
+      cap = ncap;
+    }
+    fg_store_key *k = &arr[count];
+    memset(k, 0, sizeof *k);
+    copy_text(k->name, sizeof k->name, st, 0);
+    copy_text(k->role, sizeof k->role, st, 1);
+    copy_text(k->created_at, sizeof k->created_at, st, 4);
+    copy_text(k->revoked_at, sizeof k->revoked_at, st, 5);
+    if (!copy_blob(k->salt, sizeof k->salt, st, 2) ||
+        !copy_blob(k->hash, sizeof k->hash, st, 3)) {
+      /* A damaged row (salt or hash of the wrong size) can match no key:
+       * it is left out, so it neither lets anyone in nor counts as live. */
+      continue;
+    }
+    count++;
+  }
+  if (res == FG_OK && rc != SQLITE_DONE) res = db_fault(s, p, "listing keys", rc);
+  done_stmt(st);
+  pthread_mutex_unlock(&s->lock);
+  if (res != FG_OK) {
+    free(arr);
+    return res;
+  }
+  *out = arr;
+  *n = count;
+  return FG_OK;
+}
+
+fg_status fg_store_revoke_key(fg_store *s, const char *name, fg_problem *p) {
+  char now[32];
+  now_rfc3339(now);
+  pthread_mutex_lock(&s->lock);
+  fg_status res = FG_OK;
+  int rc = tx_begin(s);
+  if (rc != SQLITE_OK) {
+    res = db_fault(s, p, "begin (revoke key)", rc);
+    goto out;
+  }
+  sqlite3_stmt *st = s->stmt[ST_KEY_REVOKE];
+  bind_text(st, 1, name);
+  bind_text(st, 2, now);
+  rc = write_step(s, st);
+  if (rc != SQLITE_OK) {
+    res = db_fault(s, p, "revoking a key", rc);
+    goto rollback;
+  }
+  if (sqlite3_changes(s->db) == 0) {
+    st = s->stmt[ST_KEY_EXISTS];
+    bind_text(st, 1, name);
+    rc = sqlite3_step(st);
+    done_stmt(st);
+    if (rc == SQLITE_ROW)
+      res = fg_problem_set(p, FG_ECONFLICT, "key '%s' is revoked already",
+                           name);
+    else if (rc == SQLITE_DONE)
+      res = fg_problem_set(p, FG_ENOTFOUND, "no key named '%s'", name);
+    else
+      res = db_fault(s, p, "looking up a key", rc);
+    goto rollback;
+  }
+  rc = tx_commit(s);
+  if (rc != SQLITE_OK) {
+    res = db_fault(s, p, "commit (revoke key)", rc);
+    goto rollback;
+  }
+  goto out;
+rollback:
+  tx_rollback(s);
+out:
+  pthread_mutex_unlock(&s->lock);
+  return res;
 }

@@ -14,6 +14,8 @@
  *                request JSON, result JSON, created_at, finished_at,
  *                elapsed_ms, label, key name, joint probability and
  *                interval (for list summaries)
+ *   keys      -- API keys: name, role, salt, SHA-256(salt || key),
+ *                created_at, revoked_at; never the key itself
  *
  * Thread use: one fg_store may be used by several threads; the backend
  * serialises access internally (SQLite connection guarded by a mutex).
@@ -121,5 +123,33 @@ fg_status fg_store_mark_interrupted(fg_store *s, int *count, fg_problem *p);
 /* Test seam: the n-th data write from now on (1 = the next) fails as an
  * I/O error inside its transaction, which is rolled back; 0 disarms. */
 void fg_store_inject_write_fault(fg_store *s, int nth);
+
+
+/* ---- API keys (http/keys.c decides what a role may do) ---- */
+
+/* Bytes of a key's salt and of its hash (SHA-256). */
+#define FG_STORE_KEY_SALT 16
+#define FG_STORE_KEY_HASH 32
+
+typedef struct fg_store_key {
+  char name[FG_NAME_MAX + 1];
+  char role[16]; /* reader, checker, author, admin */
+  char created_at[32];
+  char revoked_at[32]; /* "" while live */
+  uint8_t salt[FG_STORE_KEY_SALT];
+  uint8_t hash[FG_STORE_KEY_HASH];
+} fg_store_key;
+
+/* Add a live key. FG_ECONFLICT when a key of that name exists, revoked or
+ * not: names are never reused, so the check log's key names stay
+ * unambiguous. created_at is set by the store when empty. */
+fg_status fg_store_put_key(fg_store *s, const fg_store_key *k, fg_problem *p);
+/* Every key by name (live_only: only those not revoked). *out is a malloc'd
+ * array of *n entries (free()); NULL when there are none. */
+fg_status fg_store_list_keys(fg_store *s, bool live_only, fg_store_key **out,
+                             int *n, fg_problem *p);
+/* Mark a key revoked now. FG_ENOTFOUND when no key has that name,
+ * FG_ECONFLICT when it was revoked already. */
+fg_status fg_store_revoke_key(fg_store *s, const char *name, fg_problem *p);
 
 #endif
