@@ -97,16 +97,16 @@
 _Static_assert(FG_UNCERTAIN_DIMS_MAX < (1 << 24),
                "coordinates must fit the low 24 bits of a design slot");
 
-#define SOBOL_BITS 53   /* bits of a point and of the shift */
-#define SOBOL_READ 18   /* m_k read from GSL directly: 2^18 points */
+#define SOBOL_BITS 53     /* bits of a point and of the shift */
+#define SOBOL_READ 18     /* m_k read from GSL directly: 2^18 points */
 #define SOBOL_GSL_BITS 30 /* GSL's numerators are multiples of 2^-30 */
-#define SOBOL_DEG_MAX 9 /* largest recurrence degree tried (< SOBOL_READ/2) */
+#define SOBOL_DEG_MAX 9   /* largest recurrence degree tried (< SOBOL_READ/2) */
 #define SOBOL_DIMS_CAP 64
 
 /* ---- Philox words and uniforms ---------------------------------------- */
 
-static void words(fg_stream_key key, uint64_t idx, uint32_t slot,
-                  uint32_t draw, uint32_t w[4]) {
+static void words(fg_stream_key key, uint64_t idx, uint32_t slot, uint32_t draw,
+                  uint32_t w[4]) {
   philox4x32_ctr_t c = {
       {(uint32_t)(idx & 0xffffffffu), (uint32_t)(idx >> 32), slot, draw}};
   philox4x32_key_t k = {{key.k0, key.k1}};
@@ -375,8 +375,7 @@ static void mvn_apply(const fg_input *in, const double *z, double *out,
 
 /* x = L z with the correlation factor copula.c made at build, in each of
  * its three forms (see copula.c for the factors). */
-static void copula_correlate(const fg_copula *cop, const double *z,
-                             double *x) {
+static void copula_correlate(const fg_copula *cop, const double *z, double *x) {
   int d = cop->d;
   switch (cop->form) {
   case FG_CORR_FULL:
@@ -447,8 +446,8 @@ static void map_input(const fg_input *in, double *z, int n, double *out,
       double nv = (double)in->nvalues;
       for (int t = 0; t < n; t++) {
         dec(col[t], &u, &uc);
-        long k = u < 0.5 ? (long)(u * nv)
-                         : (long)in->nvalues - 1 - (long)(uc * nv);
+        long k =
+            u < 0.5 ? (long)(u * nv) : (long)in->nvalues - 1 - (long)(uc * nv);
         if (k < 0) k = 0;
         if (k >= in->nvalues) k = in->nvalues - 1;
         col[t] = in->sorted[k];
