@@ -146,12 +146,11 @@ fg_status fg_compare_parse(const fg_model *m, const cJSON *body,
   if (cJSON_IsNumber(samples) &&
       samples->valuedouble > (double)FG_COMPARE_SAMPLES_MAX &&
       samples->valuedouble <= (double)lim->max_samples)
-    fg_problem_limit(p, "/samples", "comparison_samples",
-                     (double)FG_COMPARE_SAMPLES_MAX,
-                     "samples %.0f exceeds comparison_samples = %llu (each "
-                     "candidate keeps one bit per sample)",
-                     samples->valuedouble,
-                     (unsigned long long)FG_COMPARE_SAMPLES_MAX);
+    fg_problem_limit(
+        p, "/samples", "comparison_samples", (double)FG_COMPARE_SAMPLES_MAX,
+        "samples %.0f exceeds comparison_samples = %llu (each "
+        "candidate keeps one bit per sample)",
+        samples->valuedouble, (unsigned long long)FG_COMPARE_SAMPLES_MAX);
   const cJSON *stop = cJSON_GetObjectItemCaseSensitive(body, "stop_early");
   if (cJSON_IsTrue(stop))
     fg_problem_add(p, FG_EINVAL, "/stop_early", 0,
@@ -175,8 +174,8 @@ fg_status fg_compare_parse(const fg_model *m, const cJSON *body,
     if (ncand > FG_COMPARE_CANDIDATES_MAX) {
       fg_problem_limit(p, "/candidates", "comparison_candidates",
                        FG_COMPARE_CANDIDATES_MAX,
-                       "%d candidates exceed comparison_candidates = %d",
-                       ncand, FG_COMPARE_CANDIDATES_MAX);
+                       "%d candidates exceed comparison_candidates = %d", ncand,
+                       FG_COMPARE_CANDIDATES_MAX);
       ncand = 0;
     } else if (ncand < 2) {
       fg_problem_add(p, FG_EINVAL, "/candidates", 0,
@@ -200,8 +199,7 @@ fg_status fg_compare_parse(const fg_model *m, const cJSON *body,
     }
     for (cJSON *it = body->child; it; it = it->next)
       if (is_shared(it->string) && strcmp(it->string, "stop_early") != 0 &&
-          !(strcmp(it->string, "samples") == 0 &&
-            cJSON_IsNumber(it) &&
+          !(strcmp(it->string, "samples") == 0 && cJSON_IsNumber(it) &&
             it->valuedouble > (double)FG_COMPARE_SAMPLES_MAX &&
             it->valuedouble <= (double)lim->max_samples))
         cJSON_AddItemReferenceToObject(o, it->string, it);
@@ -300,10 +298,24 @@ static void add_count(cJSON *o, const char *k, uint64_t v) {
   cJSON_AddRawToObject(o, k, buf);
 }
 
+/* A finite double in the shortest text that reads back as the same
+ * double (cJSON's own printing may lose the last bit). */
+static void add_exact(cJSON *o, const char *k, double v) {
+  if (!isfinite(v)) {
+    cJSON_AddNullToObject(o, k);
+    return;
+  }
+  char buf[40];
+  for (int digits = 15; digits <= 17; digits++) {
+    snprintf(buf, sizeof buf, "%.*g", digits, v);
+    if (strtod(buf, NULL) == v) break;
+  }
+  cJSON_AddRawToObject(o, k, buf);
+}
+
 fg_status fg_compare_pairs_json(fg_check *const *checks,
                                 const char *const *labels, int n,
-                                double confidence, cJSON **out,
-                                fg_problem *p) {
+                                double confidence, cJSON **out, fg_problem *p) {
   *out = NULL;
   cJSON *arr = cJSON_CreateArray();
   if (!arr) return fg_problem_set(p, FG_ENOMEM, "out of memory");
@@ -327,11 +339,11 @@ fg_status fg_compare_pairs_json(fg_check *const *checks,
       add_count(o, "b_only", pr.b_only);
       add_count(o, "both", pr.both);
       add_count(o, "neither", pr.neither);
-      cJSON_AddNumberToObject(o, "difference", pr.difference);
+      add_exact(o, "difference", pr.difference);
       cJSON *iv = cJSON_AddObjectToObject(o, "interval");
       if (iv) {
-        cJSON_AddNumberToObject(iv, "lower", pr.lower);
-        cJSON_AddNumberToObject(iv, "upper", pr.upper);
+        add_exact(iv, "lower", pr.lower);
+        add_exact(iv, "upper", pr.upper);
         cJSON_AddStringToObject(iv, "method", "newcombe_paired");
       }
     }
@@ -343,7 +355,8 @@ fg_status fg_compare_run_sync(fg_model *m, const fg_compare_request *r,
                               int workers, int chunk, fg_check **out,
                               fg_problem *p) {
   int n = r->ncandidates;
-  for (int i = 0; i < n; i++) out[i] = NULL;
+  for (int i = 0; i < n; i++)
+    out[i] = NULL;
   fg_pool *pool;
   fg_status st = fg_pool_new(workers, chunk, n > 0 ? n : 1, &pool, p);
   if (st != FG_OK) return st;

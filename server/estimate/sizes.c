@@ -74,7 +74,8 @@ fg_status fg_size_half_width(double h, double confidence, double p,
                           "confidence must be strictly between 0 and 1, "
                           "found %g",
                           confidence);
-  if (p < 0) p = 0.5;
+  if (p < 0)
+    p = 0.5;
   else if (!open_unit(p))
     return fg_problem_add(pr, FG_EINVAL, "", 0,
                           "probability must be strictly between 0 and 1, "
@@ -134,15 +135,15 @@ fg_status fg_size_power(double target, double p, double confidence,
 
 /* log C(N, i) + i log eps + (N-i) log(1-eps). */
 static double log_term(double n, double i, double leps, double l1m) {
-  return -log(n + 1) - fg_log_beta(n - i + 1, i + 1) + i * leps +
-         (n - i) * l1m;
+  return -log(n + 1) - fg_log_beta(n - i + 1, i + 1) + i * leps + (n - i) * l1m;
 }
 
 double fg_scenario_log_bound(double n, double eps, uint64_t d, uint64_t k) {
   double m = (double)(k + d - 1); /* the tail runs over i = 0..m */
   /* log C(k+d-1, k) = -log(k+d) - log B(d, k+1). */
-  double log_c = k == 0 ? 0.0 : -log((double)(k + d)) -
-                                    fg_log_beta((double)d, (double)k + 1);
+  double log_c =
+      k == 0 ? 0.0
+             : -log((double)(k + d)) - fg_log_beta((double)d, (double)k + 1);
   if (n <= m) return log_c; /* the tail is 1 */
   double leps = log(eps), l1m = log1p(-eps);
   double mode = floor((n + 1) * eps);
@@ -177,19 +178,17 @@ static fg_status check_scenario_inputs(double beta, uint64_t d, uint64_t k,
                           "decisions must be at least 1, found %llu",
                           (unsigned long long)d);
   if (d > FG_SIZE_DECISIONS_MAX)
-    return fg_problem_limit(pr, "", "sample_size_decisions",
-                            (double)FG_SIZE_DECISIONS_MAX,
-                            "decisions %llu exceeds sample_size_decisions = "
-                            "%llu",
-                            (unsigned long long)d,
-                            (unsigned long long)FG_SIZE_DECISIONS_MAX);
+    return fg_problem_limit(
+        pr, "", "sample_size_decisions", (double)FG_SIZE_DECISIONS_MAX,
+        "decisions %llu exceeds sample_size_decisions = "
+        "%llu",
+        (unsigned long long)d, (unsigned long long)FG_SIZE_DECISIONS_MAX);
   if (k > FG_SIZE_DISCARDED_MAX)
-    return fg_problem_limit(pr, "", "sample_size_discarded",
-                            (double)FG_SIZE_DISCARDED_MAX,
-                            "discarded %llu exceeds sample_size_discarded = "
-                            "%llu",
-                            (unsigned long long)k,
-                            (unsigned long long)FG_SIZE_DISCARDED_MAX);
+    return fg_problem_limit(
+        pr, "", "sample_size_discarded", (double)FG_SIZE_DISCARDED_MAX,
+        "discarded %llu exceeds sample_size_discarded = "
+        "%llu",
+        (unsigned long long)k, (unsigned long long)FG_SIZE_DISCARDED_MAX);
   return FG_OK;
 }
 
@@ -217,8 +216,10 @@ fg_status fg_scenario_size(double eps, double beta, uint64_t d, uint64_t k,
   }
   for (int it = 0; hi - lo > 1 && it < BISECT_MAX; it++) {
     uint64_t mid = lo + (hi - lo) / 2;
-    if (fg_scenario_log_bound((double)mid, eps, d, k) > lb) lo = mid;
-    else hi = mid;
+    if (fg_scenario_log_bound((double)mid, eps, d, k) > lb)
+      lo = mid;
+    else
+      hi = mid;
   }
   *n = hi;
   return FG_OK;
@@ -230,12 +231,11 @@ fg_status fg_scenario_epsilon(uint64_t n, double beta, uint64_t d, uint64_t k,
   fg_status st = check_scenario_inputs(beta, d, k, pr);
   if (st != FG_OK) return st;
   if (n > FG_SIZE_SCENARIOS_MAX)
-    return fg_problem_limit(pr, "", "sample_size_scenarios",
-                            (double)FG_SIZE_SCENARIOS_MAX,
-                            "scenarios %llu exceeds sample_size_scenarios = "
-                            "%llu",
-                            (unsigned long long)n,
-                            (unsigned long long)FG_SIZE_SCENARIOS_MAX);
+    return fg_problem_limit(
+        pr, "", "sample_size_scenarios", (double)FG_SIZE_SCENARIOS_MAX,
+        "scenarios %llu exceeds sample_size_scenarios = "
+        "%llu",
+        (unsigned long long)n, (unsigned long long)FG_SIZE_SCENARIOS_MAX);
   if (n <= k + d - 1)
     return fg_problem_add(pr, FG_EINVAL, "", 0,
                           "scenarios must exceed decisions + discarded - 1 = "
@@ -266,8 +266,8 @@ fg_status fg_scenario_epsilon(uint64_t n, double beta, uint64_t d, uint64_t k,
                             beta, (unsigned long long)n);
   } else {
     lo = hi / 2;
-    for (int it = 0; it < BISECT_MAX && fg_scenario_log_bound(nn, lo, d, k) <= lb;
-         it++) {
+    for (int it = 0;
+         it < BISECT_MAX && fg_scenario_log_bound(nn, lo, d, k) <= lb; it++) {
       hi = lo;
       lo /= 2;
       if (lo == 0) break;
@@ -275,8 +275,10 @@ fg_status fg_scenario_epsilon(uint64_t n, double beta, uint64_t d, uint64_t k,
   }
   for (int it = 0; it < BISECT_MAX && hi - lo > EPS_REL_PRECISION * hi; it++) {
     double mid = lo + (hi - lo) / 2;
-    if (fg_scenario_log_bound(nn, mid, d, k) > lb) lo = mid;
-    else hi = mid;
+    if (fg_scenario_log_bound(nn, mid, d, k) > lb)
+      lo = mid;
+    else
+      hi = mid;
   }
   *eps = hi;
   return FG_OK;
@@ -328,7 +330,8 @@ fg_status fg_size_query_set(fg_size_query *q, const char *name,
                           "parameter '%s': expected a finite decimal number, "
                           "found '%.40s'",
                           name, text ? text : "");
-  if (is_whole_param(idx) && (v != floor(v) || v < 0 || v > 9.007199254740991e15))
+  if (is_whole_param(idx) &&
+      (v != floor(v) || v < 0 || v > 9.007199254740991e15))
     return fg_problem_add(p, FG_EINVAL, "", 0,
                           "parameter '%s': expected a whole number of at "
                           "least 0, found '%.40s'",
@@ -348,15 +351,21 @@ typedef struct size_form {
 } size_form;
 
 static const size_form forms[] = {
-    {FG_SZ_HALF_WIDTH, {FG_SZ_HALF_WIDTH, FG_SZ_CONFIDENCE}, 2,
+    {FG_SZ_HALF_WIDTH,
+     {FG_SZ_HALF_WIDTH, FG_SZ_CONFIDENCE},
+     2,
      FG_SZ_PROBABILITY},
     {FG_SZ_TARGET,
      {FG_SZ_TARGET, FG_SZ_PROBABILITY, FG_SZ_CONFIDENCE, FG_SZ_POWER},
      4,
      -1},
-    {FG_SZ_EPSILON, {FG_SZ_EPSILON, FG_SZ_BETA, FG_SZ_DECISIONS}, 3,
+    {FG_SZ_EPSILON,
+     {FG_SZ_EPSILON, FG_SZ_BETA, FG_SZ_DECISIONS},
+     3,
      FG_SZ_DISCARDED},
-    {FG_SZ_SCENARIOS, {FG_SZ_SCENARIOS, FG_SZ_BETA, FG_SZ_DECISIONS}, 3,
+    {FG_SZ_SCENARIOS,
+     {FG_SZ_SCENARIOS, FG_SZ_BETA, FG_SZ_DECISIONS},
+     3,
      FG_SZ_DISCARDED},
 };
 #define NFORMS (sizeof forms / sizeof *forms)
@@ -390,10 +399,9 @@ fg_status fg_size_query_solve(const fg_size_query *q, fg_size_answer *a,
   fg_status st = FG_OK;
   for (int r = 0; r < f->nrequired; r++)
     if (!q->given[f->required[r]])
-      st = fg_problem_add(p, FG_EINVAL, "", 0,
-                          "missing parameter '%s' (needed with '%s')",
-                          param_names[f->required[r]],
-                          param_names[f->selector]);
+      st = fg_problem_add(
+          p, FG_EINVAL, "", 0, "missing parameter '%s' (needed with '%s')",
+          param_names[f->required[r]], param_names[f->selector]);
   for (int i = 0; i < FG_SZ_NPARAMS; i++) {
     if (!q->given[i] || i == f->optional) continue;
     bool needed = false;
@@ -427,8 +435,8 @@ fg_status fg_size_query_solve(const fg_size_query *q, fg_size_answer *a,
     st = fg_scenario_size(v[FG_SZ_EPSILON], v[FG_SZ_BETA], d, k, &a->scenarios,
                           p);
     if (st == FG_OK)
-      a->bound = exp(fg_scenario_log_bound((double)a->scenarios,
-                                           v[FG_SZ_EPSILON], d, k));
+      a->bound = exp(
+          fg_scenario_log_bound((double)a->scenarios, v[FG_SZ_EPSILON], d, k));
     return st;
   }
   a->gives_epsilon = true;
@@ -440,7 +448,6 @@ fg_status fg_size_query_solve(const fg_size_query *q, fg_size_answer *a,
                             "%llu",
                             n, (unsigned long long)FG_SIZE_SCENARIOS_MAX);
   st = fg_scenario_epsilon((uint64_t)n, v[FG_SZ_BETA], d, k, &a->epsilon, p);
-  if (st == FG_OK)
-    a->bound = exp(fg_scenario_log_bound(n, a->epsilon, d, k));
+  if (st == FG_OK) a->bound = exp(fg_scenario_log_bound(n, a->epsilon, d, k));
   return st;
 }

@@ -100,8 +100,8 @@ void fg_h_comparisons_create(fg_req *r, fg_resp *out) {
     fg_resp_error(out, 503, FG_EBUSY,
                   "the check queue has room for %d of the %d candidates "
                   "(%d of %d places taken); try again shortly",
-                  srv->cfg.queue - queued > 0 ? srv->cfg.queue - queued : 0,
-                  n, queued, srv->cfg.queue);
+                  srv->cfg.queue - queued > 0 ? srv->cfg.queue - queued : 0, n,
+                  queued, srv->cfg.queue);
     goto done;
   }
   double t0 = fg_time_monotonic();
@@ -110,8 +110,8 @@ void fg_h_comparisons_create(fg_req *r, fg_resp *out) {
     if (fg_http_record_start(srv->store, &v, m, &cr.candidates[started],
                              r->key_name, &rec[started], &p) != FG_OK)
       break;
-    if (fg_check_start(srv->pool, m, &cr.candidates[started],
-                       &checks[started], &p) != FG_OK) {
+    if (fg_check_start(srv->pool, m, &cr.candidates[started], &checks[started],
+                       &p) != FG_OK) {
       fg_http_record_unstarted(srv->store, &rec[started]);
       break;
     }
@@ -173,10 +173,11 @@ void fg_h_comparisons_create(fg_req *r, fg_resp *out) {
     }
 
   const char *labels[FG_COMPARE_CANDIDATES_MAX];
-  for (int i = 0; i < n; i++) labels[i] = cr.candidates[i].label;
+  for (int i = 0; i < n; i++)
+    labels[i] = cr.candidates[i].label;
   cJSON *pairs = NULL;
-  if (fg_compare_pairs_json(checks, labels, n, first->confidence, &pairs,
-                            &p) != FG_OK) {
+  if (fg_compare_pairs_json(checks, labels, n, first->confidence, &pairs, &p) !=
+      FG_OK) {
     fg_resp_problem(out, &p, 0);
     goto done;
   }

@@ -62,8 +62,10 @@ fg_status fg_sample_size_json(int n, const char *const *names,
   case FG_SIZE_NORMAL_HALF_WIDTH:
   case FG_SIZE_NORMAL_POWER: add_whole(o, "samples", a.samples); break;
   default:
-    if (a.gives_epsilon) cJSON_AddNumberToObject(o, "epsilon", a.epsilon);
-    else add_whole(o, "scenarios", (double)a.scenarios);
+    if (a.gives_epsilon)
+      cJSON_AddNumberToObject(o, "epsilon", a.epsilon);
+    else
+      add_whole(o, "scenarios", (double)a.scenarios);
     cJSON_AddNumberToObject(o, "bound", a.bound);
     break;
   }

@@ -123,7 +123,8 @@ static void test_parse(fg_model *m) {
 
 static uint64_t popcount_bits(const uint64_t *w, uint64_t n) {
   uint64_t k = 0;
-  for (uint64_t i = 0; i < n; i++) k += (w[i >> 6] >> (i & 63)) & 1;
+  for (uint64_t i = 0; i < n; i++)
+    k += (w[i >> 6] >> (i & 63)) & 1;
   return k;
 }
 
@@ -178,7 +179,7 @@ static void test_counts(fg_model *m) {
   fg_compare_pair pr;
   CHECK(fg_compare_count(c2[0], c2[1], 0.95, &pr, &p) == FG_OK);
   CHECK_INT(pr.n, 20037);
-  CHECK_INT(pr.b_only, 0);          /* u <= 0 implies u <= 1 */
+  CHECK_INT(pr.b_only, 0); /* u <= 0 implies u <= 1 */
   CHECK_INT(pr.both, k[1]);
   CHECK_INT(pr.a_only, k[0] - k[1]);
   CHECK_INT(pr.neither, 20037 - k[0]);
@@ -192,8 +193,8 @@ static void test_counts(fg_model *m) {
   cJSON *pairs = NULL;
   CHECK(fg_compare_pairs_json(c2, labels, 3, 0.95, &pairs, &p) == FG_OK);
   CHECK_INT(cJSON_GetArraySize(pairs), 3);
-  const char *order[3][2] = {{"wide", "narrow"}, {"wide", "mid"},
-                             {"narrow", "mid"}};
+  const char *order[3][2] = {
+      {"wide", "narrow"}, {"wide", "mid"}, {"narrow", "mid"}};
   int i = 0;
   const cJSON *it;
   cJSON_ArrayForEach(it, pairs) {

@@ -42,8 +42,8 @@ static void test_normal_forms(void) {
   CHECK_NEAR(n, ceil(Z975 * Z975 * 0.09 / 0.0025), 1);
   CHECK(p.status == FG_OK);
 
-  const double bad[][4] = {{0, 0.95, -1, 0}, {1, 0.95, -1, 0},
-                           {0.01, 1, -1, 0}, {0.01, 0.95, 1, 0}};
+  const double bad[][4] = {
+      {0, 0.95, -1, 0}, {1, 0.95, -1, 0}, {0.01, 1, -1, 0}, {0.01, 0.95, 1, 0}};
   for (size_t i = 0; i < sizeof bad / sizeof *bad; i++) {
     fg_problem_init(&p);
     CHECK(fg_size_half_width(bad[i][0], bad[i][1], bad[i][2], &n, &p) ==
@@ -115,14 +115,16 @@ static void test_scenario_inverse(void) {
     for (size_t j = 0; j < 4; j++) {
       double want = ceil(log(betas[j]) / log1p(-eps[i]));
       CHECK(fg_scenario_size(eps[i], betas[j], 1, 0, &n, &p) == FG_OK);
-      CHECK_MSG((double)n == want, "eps %g beta %g: N %llu, want %.0f",
-                eps[i], betas[j], (unsigned long long)n, want);
+      CHECK_MSG((double)n == want, "eps %g beta %g: N %llu, want %.0f", eps[i],
+                betas[j], (unsigned long long)n, want);
       /* The inverse: eps = 1 - beta^(1/N). */
       double e;
       CHECK(fg_scenario_epsilon(n, betas[j], 1, 0, &e, &p) == FG_OK);
       double ew = -expm1(log(betas[j]) / (double)n);
-      CHECK_MSG(fabs(e - ew) <= 2e-12 * ew, "N %llu beta %g: eps %.17g want "
-                "%.17g", (unsigned long long)n, betas[j], e, ew);
+      CHECK_MSG(fabs(e - ew) <= 2e-12 * ew,
+                "N %llu beta %g: eps %.17g want "
+                "%.17g",
+                (unsigned long long)n, betas[j], e, ew);
       CHECK(e <= eps[i] * (1 + 1e-12));
     }
   /* Minimality with more decisions and discarded scenarios. */
@@ -164,7 +166,8 @@ static fg_status query(const char *const *kv, fg_size_answer *a,
   fg_size_query q;
   memset(&q, 0, sizeof q);
   fg_problem_init(p);
-  for (int i = 0; kv[i]; i += 2) fg_size_query_set(&q, kv[i], kv[i + 1], p);
+  for (int i = 0; kv[i]; i += 2)
+    fg_size_query_set(&q, kv[i], kv[i + 1], p);
   if (p->status != FG_OK) return p->status;
   return fg_size_query_solve(&q, a, p);
 }
@@ -176,13 +179,13 @@ static void test_query(void) {
   CHECK(query(hw, &a, &p) == FG_OK);
   CHECK(a.method == FG_SIZE_NORMAL_HALF_WIDTH && a.samples == 240092);
   CHECK_STR(fg_size_method_name(a.method), "normal_half_width");
-  const char *sc[] = {"epsilon", "0.05", "beta", "1e-6", "decisions", "12",
-                      NULL};
+  const char *sc[] = {"epsilon",   "0.05", "beta", "1e-6",
+                      "decisions", "12",   NULL};
   CHECK(query(sc, &a, &p) == FG_OK);
   CHECK(a.method == FG_SIZE_CAMPI_GARATTI_2008 && !a.gives_epsilon);
   CHECK(a.bound <= 1e-6 && a.scenarios > 12);
-  const char *sk[] = {"scenarios", "1000", "beta", "1e-6", "decisions", "12",
-                      "discarded", "3", NULL};
+  const char *sk[] = {"scenarios", "1000",      "beta", "1e-6", "decisions",
+                      "12",        "discarded", "3",    NULL};
   CHECK(query(sk, &a, &p) == FG_OK);
   CHECK(a.method == FG_SIZE_CAMPI_GARATTI_2011 && a.gives_epsilon);
   CHECK(a.epsilon > 0 && a.epsilon < 1 && a.bound <= 1e-6);
@@ -194,8 +197,8 @@ static void test_query(void) {
   const char *miss[] = {"target", "0.9", "confidence", "0.95", NULL};
   CHECK(query(miss, &a, &p) == FG_EINVAL);
   CHECK_INT(p.nitems, 2); /* probability and power */
-  const char *stray[] = {"half_width", "0.01", "confidence", "0.95", "beta",
-                         "0.1", NULL};
+  const char *stray[] = {"half_width", "0.01", "confidence", "0.95",
+                         "beta",       "0.1",  NULL};
   CHECK(query(stray, &a, &p) == FG_EINVAL);
   CHECK(strstr(p.detail, "beta") != NULL);
   const char *twice[] = {"beta", "0.1", "beta", "0.2", NULL};
@@ -206,8 +209,8 @@ static void test_query(void) {
   CHECK(strstr(p.detail, "alpha") != NULL);
   const char *nan[] = {"half_width", "nan", "confidence", "0.95", NULL};
   CHECK(query(nan, &a, &p) == FG_EINVAL);
-  const char *frac[] = {"epsilon", "0.05", "beta", "0.1", "decisions", "1.5",
-                        NULL};
+  const char *frac[] = {"epsilon",   "0.05", "beta", "0.1",
+                        "decisions", "1.5",  NULL};
   CHECK(query(frac, &a, &p) == FG_EINVAL);
   const char *none[] = {NULL};
   CHECK(query(none, &a, &p) == FG_EINVAL);
@@ -242,9 +245,9 @@ static fg_interval newcombe_def(double e, double f, double g, double h,
 }
 
 static void test_newcombe(void) {
-  const uint64_t tables[][4] = {{800, 100, 50, 50}, {10, 3, 1, 6},
-                                {0, 5, 5, 0},       {50, 0, 0, 50},
-                                {1, 0, 0, 0},       {930000, 12000, 8000, 50000}};
+  const uint64_t tables[][4] = {
+      {800, 100, 50, 50}, {10, 3, 1, 6}, {0, 5, 5, 0},
+      {50, 0, 0, 50},     {1, 0, 0, 0},  {930000, 12000, 8000, 50000}};
   for (size_t i = 0; i < sizeof tables / sizeof *tables; i++) {
     const uint64_t *t = tables[i];
     fg_interval iv = fg_newcombe_paired(t[0], t[1], t[2], t[3], 0.95);
@@ -252,8 +255,8 @@ static void test_newcombe(void) {
                                     (double)t[3], Z975);
     CHECK_NEAR(iv.lower, fmax(-1, want.lower), 1e-9);
     CHECK_NEAR(iv.upper, fmin(1, want.upper), 1e-9);
-    double d = ((double)t[1] - (double)t[2]) /
-               (double)(t[0] + t[1] + t[2] + t[3]);
+    double d =
+        ((double)t[1] - (double)t[2]) / (double)(t[0] + t[1] + t[2] + t[3]);
     CHECK(iv.lower <= d + 1e-15 && d <= iv.upper + 1e-15);
     /* Swapping A and B mirrors the interval. */
     fg_interval sw = fg_newcombe_paired(t[0], t[2], t[1], t[3], 0.95);
