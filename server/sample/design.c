@@ -54,9 +54,10 @@
  *   Direction numbers are read out of GSL's gsl_qrng_sobol at first use
  *   (pthread_once): GSL returns points 1, 2, ... in Gray-code order with
  *   30-bit numerators, so point k xor point k-1 is the direction number of
- *   bit ctz(k); the first 2^18 points give m_0 .. m_17 of every GSL
- *   dimension. Higher m_k (needed from 2^18 points per replicate on) come
- *   from the Sobol recurrence of Bratley & Fox 1988 (ACM TOMS 14:88),
+ *   bit ctz(k); the first 2^16 points give m_0 .. m_15 of every GSL
+ *   dimension (about 30 ms, once). Higher m_k (needed from 2^16 points
+ *   per replicate on) come from the Sobol recurrence of Bratley & Fox
+ *   1988 (ACM TOMS 14:88),
  *     m_k = 2 a_1 m_{k-1} ^ 4 a_2 m_{k-2} ^ ... ^ 2^s m_{k-s} ^ m_{k-s},
  *   whose degree s and coefficients a are recovered as the lowest-degree
  *   recurrence that reproduces every recovered m_k; coordinate 0 is the
@@ -69,7 +70,8 @@
  * rep_size, global index, dimension); rep_size 0 is read as 1. A call
  * that spans a replicate boundary is split at it, so any chunking gives
  * the same numbers. Sobol coordinates beyond the limit give NaN (callers
- * check with fg_sampler_design_check first).
+ * check with fg_sampler_design_check first); an unknown design draws
+ * Monte Carlo.
  *
  * Thread use: the direction table is built once under pthread_once and
  * then only read; draws use the caller's scratch and are otherwise pure.
@@ -98,9 +100,9 @@ _Static_assert(FG_UNCERTAIN_DIMS_MAX < (1 << 24),
                "coordinates must fit the low 24 bits of a design slot");
 
 #define SOBOL_BITS 53     /* bits of a point and of the shift */
-#define SOBOL_READ 18     /* m_k read from GSL directly: 2^18 points */
+#define SOBOL_READ 16     /* m_k read from GSL directly: 2^16 points */
 #define SOBOL_GSL_BITS 30 /* GSL's numerators are multiples of 2^-30 */
-#define SOBOL_DEG_MAX 9   /* largest recurrence degree tried (< SOBOL_READ/2) */
+#define SOBOL_DEG_MAX 8   /* largest degree tried (<= SOBOL_READ / 2) */
 #define SOBOL_DIMS_CAP 64
 
 /* ---- Philox words and uniforms ---------------------------------------- */

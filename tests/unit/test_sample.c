@@ -1192,7 +1192,7 @@ static void test_lhs_strata(void) {
 }
 
 /* Sobol: the skip-ahead points equal GSL's gsl_qrng_sobol sequence (points
- * 1 .. 2^20 - 1, beyond the 2^18 points the direction numbers were read
+ * 1 .. 2^20 - 1, beyond the 2^16 points the direction numbers were read
  * from: all of them in dimensions 0, 1, 2 and the last, every 61st in the
  * others); shifted points of a replicate of
  * 2^10 put exactly 2^(10-k) points in each dyadic interval of length 2^-k;
