@@ -6,6 +6,9 @@
 #
 #   fg_setup_packages runtime|test   install what is missing
 #   fg_build [extra cmake args...]   configure + build build/ (Release)
+#   fg_build_in DIR [cmake args...] [-- targets...]
+#                                    configure + build another folder
+#                                    (the sanitizer and fuzzing builds)
 
 FG_ROOT="$(cd "$(dirname "${BASH_SOURCE[0]}")/../.." && pwd)"
 
@@ -14,7 +17,7 @@ libsqlite3-dev libgsl-dev librandom123-dev libcurl4-openssl-dev \
 libgnutls28-dev"
 FG_PKGS_RUN="curl sqlite3"
 FG_PKGS_TEST="python3 python3-scipy python3-numpy python3-statsmodels \
-python3-jsonschema openssl"
+python3-jsonschema openssl clang libclang-rt-14-dev"
 
 fg_missing_packages() {
   local missing=() p
@@ -49,4 +52,18 @@ fg_build() {
   local dir="$FG_ROOT/build"
   cmake -S "$FG_ROOT" -B "$dir" -DCMAKE_BUILD_TYPE=Release "$@" >&2
   cmake --build "$dir" -j "$(nproc)" >&2
+}
+
+fg_build_in() {
+  local dir="$FG_ROOT/$1"
+  shift
+  local args=() targets=()
+  while [ $# -gt 0 ] && [ "$1" != "--" ]; do args+=("$1"); shift; done
+  if [ "${1:-}" = "--" ]; then shift; targets=("$@"); fi
+  cmake -S "$FG_ROOT" -B "$dir" "${args[@]}" >&2
+  if [ ${#targets[@]} -gt 0 ]; then
+    cmake --build "$dir" -j "$(nproc)" --target "${targets[@]}" >&2
+  else
+    cmake --build "$dir" -j "$(nproc)" >&2
+  fi
 }
