@@ -69,6 +69,7 @@ void fg_h_limits(fg_req *r, fg_resp *out) {
     add_limit(arr, "max_samples", (double)cfg->limits.max_samples);
     add_limit(arr, "max_scenarios", (double)cfg->limits.max_scenarios);
     add_limit(arr, "max_wait", cfg->limits.max_wait_s);
+    add_limit(arr, "max_check_time", cfg->max_check_s);
     add_limit(arr, "samples_default", (double)FG_SAMPLES_DEFAULT);
     add_limit(arr, "seed_max", (double)FG_SEED_MAX);
     add_limit(arr, "list_limit", FG_LIST_LIMIT_MAX);
