@@ -154,6 +154,10 @@
 #define FG_COMPARE_SAMPLES_MAX 200000000ull
 #endif
 
+/* Dimensions of a Sobol design: GSL's gsl_qrng_sobol carries direction
+ * numbers for 40 (sample/design.c recovers them from it). */
+#define FG_SOBOL_DIMS_MAX 40
+
 /* The limits a client can run into, as (name, value) pairs for
  * GET /v1/limits and for error messages. Runtime-configurable ones are
  * reported from the server configuration instead (http/). */
@@ -177,7 +181,8 @@
   X("sample_size_samples", FG_SIZE_SAMPLES_MAX)                                \
   X("comparison_candidates", FG_COMPARE_CANDIDATES_MAX)                        \
   X("comparison_samples", FG_COMPARE_SAMPLES_MAX)                              \
-  X("failing_scenarios", FG_FAILING_SCENARIOS)                                \
+  X("failing_scenarios", FG_FAILING_SCENARIOS)                               \
+  X("sobol_dimensions", FG_SOBOL_DIMS_MAX)                                \
   X("scenario_cells", FG_SCENARIO_CELLS_MAX)
 
 #endif
