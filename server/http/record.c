@@ -11,6 +11,7 @@
  * Thread use: connection threads; the store locks itself.
  */
 #include "http/http_internal.h"
+#include "http/metrics.h"
 
 #include <math.h>
 #include <stdio.h>
@@ -52,4 +53,5 @@ void fg_http_record_unstarted(fg_store *store, const fg_store_check *rec) {
   if (fg_store_finish_check(store, &fin, &p) != FG_OK)
     fg_log_msg(FG_LOG_ERROR, "store_error", "closing check %s: %s", rec->id,
                p.detail);
+  fg_metrics_check_ended(fin.status, NULL, NAN, NAN); /* never ran */
 }
