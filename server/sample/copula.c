@@ -7,7 +7,9 @@
  * per tied element is drawn from the slot of that element's own sampler
  * dimension; x = L z with L the Cholesky factor of C; each element is then
  * F^-1(Phi(x)) under its own family, with Phi taken from the tail where it
- * is exact, so every marginal is exactly the declared one.
+ * is exact, so every marginal is exactly the declared one (for untruncated
+ * normal and lognormal members F^-1(Phi(x)) is an affine map of x, taken
+ * directly).
  *
  * C forms and their factors, all O(d) or O(d^2) per sample:
  *   full matrix     d x d, symmetric, unit diagonal, factored by
@@ -275,52 +277,48 @@ void fg_sampler_copula_free(fg_copula *cop) {
   memset(cop, 0, sizeof *cop);
 }
 
+/* A block at a time: the members' standard normals go straight into
+ * their output columns (member k's from the slot of its own dimension),
+ * the correlation factor is applied in place over those columns (FULL by
+ * fg_family_lower_apply; EQUAL and AR1 by their recursions, lane-parallel
+ * with one running value per lane), then each column is mapped through its
+ * member's marginal (fg_family_from_normal). Per lane the arithmetic is
+ * the same whatever n and the block's position. */
 void fg_sampler_copula_draw(const fg_copula *cop, const fg_input *inputs,
-                            gsl_rng *r, double *z, double *x, fg_stream_key key,
-                            uint64_t first, int n, double *out, size_t stride) {
-  int d = cop->d;
-  for (int t = 0; t < n; t++) {
-    uint64_t sample = first + (uint64_t)t;
-    for (int k = 0; k < d; k++) {
-      fg_stream_reset(r, key, sample, (uint32_t)cop->dims[k]);
-      z[k] = fg_stream_normal(r);
-    }
-    switch (cop->form) {
-    case FG_CORR_FULL:
-      for (int i = 0; i < d; i++) {
-        const double *li = cop->chol + (size_t)i * (size_t)d;
-        double s = 0;
-        for (int k = 0; k <= i; k++)
-          s += li[k] * z[k];
-        x[i] = s;
-      }
-      break;
-    case FG_CORR_EQUAL: {
-      double acc = 0;
-      for (int i = 0; i < d; i++) {
-        x[i] = acc + cop->dd[i] * z[i];
-        acc += cop->c[i] * z[i];
-      }
-      break;
-    }
-    case FG_CORR_AR1:
-      x[0] = z[0];
-      for (int i = 1; i < d; i++)
-        x[i] = cop->r * x[i - 1] + cop->rc * z[i];
-      break;
-    }
-    for (int k = 0; k < d; k++) {
-      double u, uc;
-      if (x[k] < 0) {
-        u = gsl_cdf_ugaussian_P(x[k]);
-        uc = 1 - u;
-      } else {
-        uc = gsl_cdf_ugaussian_Q(x[k]);
-        u = 1 - uc;
-      }
-      const fg_input *in = &inputs[cop->input[k]];
-      out[(size_t)cop->dims[k] * stride + (size_t)t] =
-          fg_family_icdf(in, cop->elem[k], u, uc);
-    }
+                            const fg_draw_ctx *dc, double *out, size_t stride) {
+  const int d = cop->d, n = dc->n;
+  double **cols = dc->cols;
+  for (int k = 0; k < d; k++) {
+    cols[k] = out + (size_t)cop->dims[k] * stride;
+    fg_stream_normals(dc->key, dc->first, n, (uint32_t)cop->dims[k], dc->words,
+                      cols[k]);
   }
+  switch (cop->form) {
+  case FG_CORR_FULL: fg_family_lower_apply(cop->chol, NULL, d, n, cols); break;
+  case FG_CORR_EQUAL: {
+    double *restrict acc = dc->tmp;
+    for (int t = 0; t < n; t++)
+      acc[t] = 0;
+    for (int i = 0; i < d; i++) {
+      double *restrict x = cols[i];
+      const double di = cop->dd[i], ci = cop->c[i];
+      for (int t = 0; t < n; t++) {
+        double z = x[t];
+        x[t] = acc[t] + di * z;
+        acc[t] += ci * z;
+      }
+    }
+    break;
+  }
+  case FG_CORR_AR1:
+    for (int i = 1; i < d; i++) {
+      const double *restrict prev = cols[i - 1];
+      double *restrict x = cols[i];
+      for (int t = 0; t < n; t++)
+        x[t] = cop->r * prev[t] + cop->rc * x[t];
+    }
+    break;
+  }
+  for (int k = 0; k < d; k++)
+    fg_family_from_normal(&inputs[cop->input[k]], cop->elem[k], dc, cols[k]);
 }

@@ -23,16 +23,16 @@
  *   scenario_table  rows (nvalues x size), optional weights
  * multivariate_normal lives in mvn.c.
  *
- * Draw methods (documented choice): plain normals and lognormals use GSL's
- * ziggurat (gsl_ran_gaussian_ziggurat) on the sub-stream, being several
- * times cheaper than an inverse CDF; truncated normals, uniform,
- * triangular, exponential and weibull use their inverse CDF on one 53-bit
- * uniform; gamma, beta/pert, student_t, poisson and binomial use GSL's
- * samplers; discrete and weighted scenario tables use Walker's alias table
- * (gsl_ran_discrete). Copula members always go through fg_family_icdf.
- * GSL's ziggurat takes one 32-bit word per attempt (8 bits for the layer,
- * 24 for the abscissa), ample for Monte Carlo frequencies; tail-sensitive
- * uses (truncation, copulas) use 53-bit uniforms and inverse CDFs.
+ * Draw methods (documented choice), per block of samples
+ * (fg_family_draw_block): plain normals and lognormals use stream.c's
+ * ziggurat (53-bit abscissa, exact), several times cheaper than an inverse
+ * CDF; truncated normals, uniform, triangular, exponential and weibull use
+ * their inverse CDF on one 53-bit uniform; gamma, beta/pert, student_t,
+ * poisson and binomial use GSL's samplers through the Random123 adaptor;
+ * discrete and weighted scenario tables use Walker's alias table
+ * (gsl_ran_discrete). Copula members go through fg_family_icdf of Phi(x),
+ * except untruncated normal and lognormal members, whose F^-1(Phi(x)) is
+ * the affine map of x itself (fg_family_from_normal).
  *
  * Domain choices: poisson accepts mean >= 0 (0 is the point mass at 0);
  * counts must fit GSL's unsigned int, hence the caps below.
@@ -740,14 +740,11 @@ double fg_family_icdf(const fg_input *in, int e, double u, double uc) {
 
 /* ---- independent draws ------------------------------------------------ */
 
-double fg_family_draw(const fg_input *in, int e, gsl_rng *r) {
+/* One draw of element e through GSL's samplers on the (sample, slot)
+ * sub-stream r was reset to: the families without a per-block path. */
+static double gsl_draw(const fg_input *in, int e, gsl_rng *r) {
   double *const *v = in->par;
-  double u, uc;
   switch (in->kind) {
-  case FG_FAM_NORMAL:
-    if (!in->truncated) return v[0][e] + v[1][e] * fg_stream_normal(r);
-    break;
-  case FG_FAM_LOGNORMAL: return exp(v[0][e] + v[1][e] * fg_stream_normal(r));
   case FG_FAM_PERT:
   case FG_FAM_BETA:
     return v[0][e] + v[1][e] * gsl_ran_beta(r, v[2][e], v[3][e]);
@@ -759,13 +756,102 @@ double fg_family_draw(const fg_input *in, int e, gsl_rng *r) {
   case FG_FAM_DISCRETE: return in->values[gsl_ran_discrete(r, in->alias)];
   case FG_FAM_EMPIRICAL:
     return in->values[gsl_rng_uniform_int(r, (unsigned long)in->nvalues)];
+  default: return NAN; /* per-block families and joint blocks: not here */
+  }
+}
+
+/* The per-block paths: plain normals and lognormals from the block's
+ * ziggurat normals, then one vectorisable affine (and exp) pass; the
+ * inverse-CDF families from the block's uniforms, one switch per block
+ * and a tight loop per family. Everything else goes through GSL per
+ * sample (a reset and GSL's own function-pointer calls per word): those
+ * samplers are not on the common path, and rewriting them would change
+ * their streams for little gain. */
+void fg_family_draw_block(const fg_input *in, int e, uint32_t slot,
+                          const fg_draw_ctx *dc, double *out) {
+  double *const *v = in->par;
+  const int n = dc->n;
+  double *restrict u = dc->u, *restrict uc = dc->uc;
+  switch (in->kind) {
+  case FG_FAM_NORMAL:
+    if (in->truncated) break;
+    fg_stream_normals(dc->key, dc->first, n, slot, dc->words, out);
+    {
+      double m = v[0][e], sd = v[1][e];
+      for (int t = 0; t < n; t++)
+        out[t] = m + sd * out[t];
+    }
+    return;
+  case FG_FAM_LOGNORMAL:
+    fg_stream_normals(dc->key, dc->first, n, slot, dc->words, out);
+    {
+      double m = v[0][e], sd = v[1][e];
+      for (int t = 0; t < n; t++)
+        out[t] = exp(m + sd * out[t]);
+    }
+    return;
   case FG_FAM_UNIFORM:
   case FG_FAM_TRIANGULAR:
   case FG_FAM_EXPONENTIAL:
   case FG_FAM_WEIBULL: break;
-  case FG_FAM_MVN:
-  case FG_FAM_SCENARIO_TABLE: return NAN; /* drawn jointly */
+  default:
+    for (int t = 0; t < n; t++) {
+      fg_stream_reset(dc->rng, dc->key, dc->first + (uint64_t)t, slot);
+      out[t] = gsl_draw(in, e, dc->rng);
+    }
+    return;
   }
-  fg_stream_u01(r, &u, &uc);
-  return fg_family_icdf(in, e, u, uc);
+  fg_stream_u01s(dc->key, dc->first, n, slot, dc->words, u, uc);
+  switch (in->kind) {
+  case FG_FAM_UNIFORM: {
+    double lo = v[0][e], hi = v[1][e], w = hi - lo;
+    for (int t = 0; t < n; t++)
+      out[t] = u[t] < 0.5 ? lo + w * u[t] : hi - w * uc[t];
+    return;
+  }
+  case FG_FAM_TRIANGULAR: {
+    /* the products in fg_family_icdf's order, so values stay identical */
+    double a = v[0][e], m = v[1][e], b = v[2][e], fm = v[3][e];
+    for (int t = 0; t < n; t++)
+      out[t] = u[t] < fm ? a + sqrt(u[t] * (b - a) * (m - a))
+                         : b - sqrt(uc[t] * (b - a) * (b - m));
+    return;
+  }
+  default:
+    for (int t = 0; t < n; t++)
+      out[t] = fg_family_icdf(in, e, u[t], uc[t]);
+    return;
+  }
+}
+
+void fg_family_from_normal(const fg_input *in, int e, const fg_draw_ctx *dc,
+                           double *col) {
+  double *const *v = in->par;
+  const int n = dc->n;
+  /* Normal and lognormal members: F^-1(Phi(x)) is x itself, so the
+   * affine map (and exp) gives the same law without two special-function
+   * calls and their rounding. */
+  if (in->kind == FG_FAM_NORMAL && !in->truncated) {
+    double m = v[0][e], sd = v[1][e];
+    for (int t = 0; t < n; t++)
+      col[t] = m + sd * col[t];
+    return;
+  }
+  if (in->kind == FG_FAM_LOGNORMAL) {
+    double m = v[0][e], sd = v[1][e];
+    for (int t = 0; t < n; t++)
+      col[t] = exp(m + sd * col[t]);
+    return;
+  }
+  for (int t = 0; t < n; t++) {
+    double x = col[t], u, uc;
+    if (x < 0) {
+      u = gsl_cdf_ugaussian_P(x);
+      uc = 1 - u;
+    } else {
+      uc = gsl_cdf_ugaussian_Q(x);
+      u = 1 - uc;
+    }
+    col[t] = fg_family_icdf(in, e, u, uc);
+  }
 }

@@ -13,9 +13,10 @@
  * multivariate_normal: `mean` (number or array of size) with either
  * `covariance` (size x size) or `sd` (number or array) with `correlation`
  * (size x size, unit diagonal); the factor of the covariance is then
- * diag(sd) times the factor of the correlation. A draw takes one standard
- * normal per element, element k from slot base + k (its dimension), and
- * returns mean + L z.
+ * diag(sd) times the factor of the correlation, computed once when the
+ * model is built. A draw takes one standard normal per element, element k
+ * from slot base + k (its dimension), and returns mean + L z, a whole
+ * block of samples at a time (fg_family_lower_apply).
  *
  * Thread use: parsing in the building thread; draws read only.
  */
@@ -238,21 +239,87 @@ fg_status fg_family_mvn_parse(fg_input *in, fg_params *c) {
   return c->st;
 }
 
-void fg_family_mvn_draw(const fg_input *in, gsl_rng *r, double *z,
-                        fg_stream_key key, uint64_t first, int n, double *out,
+/* x_i = mean_i + sum_{k <= i} L_ik z_k for every lane, in place over the
+ * columns that hold z (cols[k] = z_k). The lanes go in tiles of TILE = 8
+ * (one cache line per column); within a tile rows go from the last to the
+ * first, so row i still finds z_0 .. z_i unchanged, and the row's
+ * accumulators stay in vector registers while its factor entries stream
+ * past. A tile's d cache lines stay in L1 through all d rows, where a
+ * row-by-row sweep over whole columns would stream d^2/2 columns from L2.
+ * Per lane the sum runs over k in increasing order from the mean, exactly
+ * as a scalar loop would (SSE2's packed multiply and add are the same
+ * IEEE operations, and no fused multiply-add is used): the values do not
+ * depend on the tile a lane falls in, on n, or on the block's position.
+ * Deliberately not done: skipping zero factor entries (sparse factors are
+ * rare and the branch would cost the dense case), and sums in another
+ * order (they would change the values with the block size). */
+#define TILE 8
+
+#if defined(__SSE2__)
+#include <emmintrin.h>
+
+static void lower_tile(const double *chol, const double *mean, int d, int t0,
+                       double *const *cols) {
+  for (int i = d - 1; i >= 0; i--) {
+    const double *li = chol + (size_t)i * (size_t)d;
+    __m128d a0 = _mm_set1_pd(mean ? mean[i] : 0.0);
+    __m128d a1 = a0, a2 = a0, a3 = a0;
+    for (int k = 0; k <= i; k++) {
+      const double *zk = cols[k] + t0;
+      __m128d l = _mm_set1_pd(li[k]);
+      a0 = _mm_add_pd(a0, _mm_mul_pd(l, _mm_loadu_pd(zk)));
+      a1 = _mm_add_pd(a1, _mm_mul_pd(l, _mm_loadu_pd(zk + 2)));
+      a2 = _mm_add_pd(a2, _mm_mul_pd(l, _mm_loadu_pd(zk + 4)));
+      a3 = _mm_add_pd(a3, _mm_mul_pd(l, _mm_loadu_pd(zk + 6)));
+    }
+    double *xi = cols[i] + t0;
+    _mm_storeu_pd(xi, a0);
+    _mm_storeu_pd(xi + 2, a1);
+    _mm_storeu_pd(xi + 4, a2);
+    _mm_storeu_pd(xi + 6, a3);
+  }
+}
+#else
+static void lower_tile(const double *chol, const double *mean, int d, int t0,
+                       double *const *cols) {
+  for (int i = d - 1; i >= 0; i--) {
+    const double *li = chol + (size_t)i * (size_t)d;
+    double acc[TILE];
+    for (int q = 0; q < TILE; q++)
+      acc[q] = mean ? mean[i] : 0.0;
+    for (int k = 0; k <= i; k++)
+      for (int q = 0; q < TILE; q++)
+        acc[q] += li[k] * cols[k][t0 + q];
+    for (int q = 0; q < TILE; q++)
+      cols[i][t0 + q] = acc[q];
+  }
+}
+#endif
+
+void fg_family_lower_apply(const double *chol, const double *mean, int d,
+                           int n, double *const *cols) {
+  int t0 = 0;
+  for (; t0 + TILE <= n; t0 += TILE)
+    lower_tile(chol, mean, d, t0, cols);
+  for (int t = t0; t < n; t++) /* the last lanes of a short block */
+    for (int i = d - 1; i >= 0; i--) {
+      const double *li = chol + (size_t)i * (size_t)d;
+      double acc = mean ? mean[i] : 0.0;
+      for (int k = 0; k <= i; k++)
+        acc += li[k] * cols[k][t];
+      cols[i][t] = acc;
+    }
+}
+
+void fg_family_mvn_draw(const fg_input *in, const fg_draw_ctx *dc, double *out,
                         size_t stride) {
   int d = in->size;
-  for (int t = 0; t < n; t++) {
-    for (int k = 0; k < d; k++) {
-      fg_stream_reset(r, key, first + (uint64_t)t, (uint32_t)(in->base + k));
-      z[k] = fg_stream_normal(r);
-    }
-    for (int i = 0; i < d; i++) {
-      const double *li = in->chol + (size_t)i * (size_t)d;
-      double x = in->par[0][i];
-      for (int k = 0; k <= i; k++)
-        x += li[k] * z[k];
-      out[(size_t)(in->base + i) * stride + (size_t)t] = x;
-    }
-  }
+  for (int k = 0; k < d; k++)
+    fg_stream_normals(dc->key, dc->first, dc->n, (uint32_t)(in->base + k),
+                      dc->words, out + (size_t)(in->base + k) * stride);
+  /* column pointers: at most FG_UNCERTAIN_DIMS_MAX, kept in the scratch */
+  double **cols = dc->cols;
+  for (int k = 0; k < d; k++)
+    cols[k] = out + (size_t)(in->base + k) * stride;
+  fg_family_lower_apply(in->chol, in->par[0], d, dc->n, cols);
 }

@@ -25,6 +25,8 @@
 
 #include "sample/sample.h"
 
+#include "feasgate/limits.h"
+
 #include <gsl/gsl_randist.h>
 #include <gsl/gsl_rng.h>
 
@@ -50,8 +52,43 @@ void fg_stream_reset(gsl_rng *r, fg_stream_key key, uint64_t sample,
  * complement; u is exact when u < 1/2, uc is exact when u > 1/2, so
  * inverse CDFs can use whichever tail is accurate. */
 void fg_stream_u01(gsl_rng *r, double *u, double *uc);
-/* One standard normal (GSL's ziggurat on the current sub-stream). */
-double fg_stream_normal(gsl_rng *r);
+
+/* The four Philox output words of each lane of a block. */
+typedef struct fg_stream_words {
+  uint32_t w[4][FG_BLOCK];
+} fg_stream_words;
+
+/* Sets up the normal generator's tables and picks the cipher's code path
+ * (also done on first use). */
+void fg_stream_init(void);
+/* Tests only: on = 1 runs the portable (SSE2 / scalar) cipher path even
+ * where AVX2 exists, on = 0 restores the choice. Not thread-safe. */
+void fg_stream_force_portable(int on);
+/* Philox4x32-10 of counters {first + t, slot, draw}, t < n <= FG_BLOCK. */
+void fg_stream_philox(fg_stream_key key, uint64_t first, int n, uint32_t slot,
+                      uint32_t draw, fg_stream_words *w);
+/* Per lane t < n the uniform of (first + t, slot) that fg_stream_u01
+ * gives after fg_stream_reset, and its complement; w is scratch. */
+void fg_stream_u01s(fg_stream_key key, uint64_t first, int n, uint32_t slot,
+                    fg_stream_words *w, double *u, double *uc);
+/* Per lane t < n the standard normal of (first + t, slot) (ziggurat, see
+ * stream.c); w is scratch. */
+void fg_stream_normals(fg_stream_key key, uint64_t first, int n, uint32_t slot,
+                       fg_stream_words *w, double *out);
+/* The same normal for one sample. */
+double fg_stream_normal_one(fg_stream_key key, uint64_t sample, uint32_t slot);
+
+/* What one block draw passes down to the families (sampler.c owns it):
+ * the stream, the samples, and per-thread scratch of FG_BLOCK lanes. */
+typedef struct fg_draw_ctx {
+  fg_stream_key key;
+  uint64_t first;
+  int n;
+  gsl_rng *rng; /* for GSL's samplers */
+  fg_stream_words *words;
+  double *u, *uc, *tmp; /* FG_BLOCK each */
+  double **cols;        /* one column pointer per dimension of a block */
+} fg_draw_ctx;
 
 /* ---- the parsed inputs ---------------------------------------------- */
 
@@ -151,8 +188,14 @@ fg_status fg_family_parse(fg_input *in, const fg_family_def *def,
                           const struct cJSON *dist, const char *ptr,
                           fg_problem *p);
 void fg_family_free(fg_input *in);
-/* One independent draw of element e (element-wise families only). */
-double fg_family_draw(const fg_input *in, int e, gsl_rng *r);
+/* Element e of an element-wise input for the block's samples, from slot
+ * `slot`, into out[0..n). */
+void fg_family_draw_block(const fg_input *in, int e, uint32_t slot,
+                          const fg_draw_ctx *dc, double *out);
+/* Element e given the standard normal x of a Gaussian copula, for the
+ * block's samples, in place in col[0..n). */
+void fg_family_from_normal(const fg_input *in, int e, const fg_draw_ctx *dc,
+                           double *col);
 /* Inverse CDF of element e at u (uc = 1 - u, each exact in its own half);
  * families with has_icdf only. */
 double fg_family_icdf(const fg_input *in, int e, double u, double uc);
@@ -169,9 +212,12 @@ int fg_family_matrix_symmetric(const double *a, int n, const char *ptr,
  * first leading minor that is not positive. */
 int fg_family_cholesky(double *a, int n);
 fg_status fg_family_mvn_parse(fg_input *in, fg_params *c);
-void fg_family_mvn_draw(const fg_input *in, gsl_rng *r, double *z,
-                        fg_stream_key key, uint64_t first, int n, double *out,
-                        size_t stride);
+/* cols[i] = mean_i + sum_{k <= i} L_ik cols[k], in place for lanes
+ * [0, n), L lower d x d row-major; mean may be NULL (zero). */
+void fg_family_lower_apply(const double *chol, const double *mean, int d,
+                           int n, double *const *cols);
+void fg_family_mvn_draw(const fg_input *in, const fg_draw_ctx *dc,
+                        double *out, size_t stride);
 
 /* Dependence entries (copula.c). */
 typedef enum fg_corr_form {
@@ -196,8 +242,7 @@ fg_status fg_sampler_copula_parse(fg_copula *cop, int index,
                                   fg_input *inputs, int ninputs, fg_problem *p);
 void fg_sampler_copula_free(fg_copula *cop);
 void fg_sampler_copula_draw(const fg_copula *cop, const fg_input *inputs,
-                            gsl_rng *r, double *z, double *x, fg_stream_key key,
-                            uint64_t first, int n, double *out, size_t stride);
+                            const fg_draw_ctx *dc, double *out, size_t stride);
 
 /* ---- for the sampling designs (design.c) ----------------------------- */
 

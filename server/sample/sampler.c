@@ -12,11 +12,15 @@
  * families element by element (slot = dimension), multivariate normals and
  * scenario tables as one joint block each (standard normal k of a
  * multivariate normal from slot base + k; the row of a scenario table from
- * slot base), and copula entries last. Each (sample, slot) sub-stream is
- * reset before use, so the values of sample i, dimension j depend only on
- * (seed, stream, j, i) and on nothing drawn before: any chunking of the
- * sample range gives the same numbers. The draw path does not allocate:
- * the generator and vectors for joint blocks live in the scratch.
+ * slot base), and copula entries last. Each is drawn for the whole block
+ * at once -- the Philox words of every lane, then the transform as a loop
+ * over lanes (stream.c, family.c, mvn.c, copula.c) -- with no per-sample
+ * function-pointer call except inside GSL's own samplers. Every (sample,
+ * slot) sub-stream starts from its own counter, so the values of sample
+ * i, dimension j depend only on (seed, stream, j, i) and on nothing drawn
+ * before: any chunking of the sample range gives the same numbers. The
+ * draw path does not allocate or lock: the generator, the word and lane
+ * buffers live in the scratch.
  *
  * GSL's error handler: GSL aborts on errors by default, which a daemon
  * must never do on a client's input. The first build switches it off once
@@ -51,9 +55,15 @@ struct fg_sampler {
   int joint_max;          /* largest joint block (mvn size, copula d), >= 1 */
 };
 
+/* Per-thread draw state: the GSL generator for GSL's samplers, the
+ * Philox words of one block, three lane buffers and the column pointers
+ * of the largest joint block. About 30 KiB, allocated once per worker. */
 struct fg_sample_scratch {
   gsl_rng *rng;
-  double *z, *x; /* joint_max each */
+  fg_stream_words *words;
+  double *u, *uc, *tmp; /* FG_BLOCK each */
+  double **cols;        /* joint_max */
+  double *z, *x;        /* joint_max each: per-sample vectors (design.c) */
 };
 
 static pthread_once_t gsl_once = PTHREAD_ONCE_INIT;
@@ -268,12 +278,21 @@ int fg_sampler_integer_valued(const fg_sampler *s, int j) {
 }
 
 fg_sample_scratch *fg_sample_scratch_new(const fg_sampler *s) {
+  fg_stream_init();
   fg_sample_scratch *w = calloc(1, sizeof *w);
   if (!w) return NULL;
   w->rng = fg_stream_rng_new();
+  void *words = NULL, *lanes = NULL;
+  if (posix_memalign(&words, 64, sizeof *w->words) == 0) w->words = words;
+  if (posix_memalign(&lanes, 64, 3 * FG_BLOCK * sizeof(double)) == 0) {
+    w->u = lanes;
+    w->uc = w->u + FG_BLOCK;
+    w->tmp = w->uc + FG_BLOCK;
+  }
+  w->cols = malloc((size_t)s->joint_max * sizeof *w->cols);
   w->z = malloc((size_t)s->joint_max * sizeof(double));
   w->x = malloc((size_t)s->joint_max * sizeof(double));
-  if (!w->rng || !w->z || !w->x) {
+  if (!w->rng || !w->words || !w->u || !w->cols || !w->z || !w->x) {
     fg_sample_scratch_free(w);
     return NULL;
   }
@@ -283,6 +302,9 @@ fg_sample_scratch *fg_sample_scratch_new(const fg_sampler *s) {
 void fg_sample_scratch_free(fg_sample_scratch *w) {
   if (!w) return;
   if (w->rng) gsl_rng_free(w->rng);
+  free(w->words);
+  free(w->u);
+  free(w->cols);
   free(w->z);
   free(w->x);
   free(w);
@@ -303,31 +325,34 @@ static void draw_table(const fg_input *in, gsl_rng *r, fg_stream_key key,
 void fg_sampler_draw(const fg_sampler *s, fg_sample_scratch *w, uint64_t seed,
                      fg_stream stream, uint64_t first, int n, double *out,
                      size_t stride) {
-  fg_stream_key key = fg_stream_key_make(seed, stream);
-  gsl_rng *r = w->rng;
+  if (n > FG_BLOCK) n = FG_BLOCK; /* the lane buffers' size; callers obey */
+  fg_draw_ctx dc = {.key = fg_stream_key_make(seed, stream),
+                    .first = first,
+                    .n = n,
+                    .rng = w->rng,
+                    .words = w->words,
+                    .u = w->u,
+                    .uc = w->uc,
+                    .tmp = w->tmp,
+                    .cols = w->cols};
   for (int i = 0; i < s->ninputs; i++) {
     const fg_input *in = &s->inputs[i];
     if (in->copula >= 0) continue;
     if (in->kind == FG_FAM_MVN) {
-      fg_family_mvn_draw(in, r, w->z, key, first, n, out, stride);
+      fg_family_mvn_draw(in, &dc, out, stride);
       continue;
     }
     if (in->kind == FG_FAM_SCENARIO_TABLE) {
-      draw_table(in, r, key, first, n, out, stride);
+      draw_table(in, w->rng, dc.key, first, n, out, stride);
       continue;
     }
     for (int e = 0; e < in->size; e++) {
       uint32_t slot = (uint32_t)(in->base + e);
-      double *col = out + (size_t)slot * stride;
-      for (int t = 0; t < n; t++) {
-        fg_stream_reset(r, key, first + (uint64_t)t, slot);
-        col[t] = fg_family_draw(in, e, r);
-      }
+      fg_family_draw_block(in, e, slot, &dc, out + (size_t)slot * stride);
     }
   }
   for (int c = 0; c < s->ncopulas; c++)
-    fg_sampler_copula_draw(&s->copulas[c], s->inputs, r, w->z, w->x, key, first,
-                           n, out, stride);
+    fg_sampler_copula_draw(&s->copulas[c], s->inputs, &dc, out, stride);
 }
 
 /* ---- for design.c ------------------------------------------------------ */

@@ -1,30 +1,77 @@
 /*
- * sample/stream.c -- counter-based random streams (Philox4x32-10).
+ * sample/stream.c -- counter-based random streams (Philox4x32-10) and the
+ * per-block uniform and normal generators on them.
  *
  * Design: every random number feasgate uses is Philox4x32-10 applied to
  *   key     = { seed & 0xffffffff, (seed >> 32) | (stream << 24) }
  *   counter = { i & 0xffffffff, i >> 32, slot, draw }
- * for sample i. A GSL generator type made with Random123's GSL adaptor
- * (GSL_MICRORNG) is reset to { i lo, i hi, slot, 0 } before the values of
- * one (sample, slot) are drawn; the adaptor itself puts its call count into
- * the fourth word, which is the `draw` number, and hands out the four
- * 32-bit words of each block in turn. So GSL's samplers (ziggurat normals,
- * gamma, beta, Walker tables, rejection samplers) draw as many uniforms as
- * they need from a sub-stream that belongs to that sample and slot alone.
+ * for sample i. Two ways of reading these blocks exist:
+ *
+ *  - Per block of samples, in this file (the hot path). fg_stream_philox
+ *    evaluates the cipher for all lanes of a block at once, as plain loops
+ *    over lane arrays that the compiler vectorises (no function pointers,
+ *    no state). On top of it:
+ *      fg_stream_u01s     one 53-bit uniform per lane from draw 0, words 3
+ *                         and 2 -- the very words Random123's GSL adaptor
+ *                         handed out first, so inverse-CDF families drew
+ *                         the same numbers before the per-block path;
+ *      fg_stream_normals  one standard normal per lane by the ziggurat
+ *                         below.
+ *  - Through GSL (fg_stream_rng_new / fg_stream_reset): a GSL generator
+ *    type made with Random123's adaptor (GSL_MICRORNG), reset to
+ *    { i lo, i hi, slot, 0 } per (sample, slot); the adaptor puts its call
+ *    count into the fourth word (the draw number) and hands out words 3,
+ *    2, 1, 0 of each block. GSL's samplers (gamma, beta, t, poisson,
+ *    binomial, Walker tables) draw from it, one function-pointer call per
+ *    32-bit word; they are rarer and keep their streams that way.
+ *
+ * The normal generator (a ziggurat of 256 layers, Marsaglia & Tsang 2000,
+ * J. Stat. Softw. 5(8), in this file's own formulation): f(x) = e^{-x^2/2}
+ * on x >= 0 is covered by 256 horizontal slabs of equal area v. Slab 0 is
+ * the rectangle [0, X0] x [0, f(r)] with X0 = v / f(r), whose part beyond
+ * r stands for the tail; slab i >= 1 is [0, X_i] x [f(X_i), f(X_{i+1})]
+ * with X_1 = r, X_{i+1} = f^-1(f(X_i) + v / X_i) and X_256 = 0. An attempt
+ * takes one 64-bit word: bits 0-7 pick the slab, bit 8 the sign, bits
+ * 11-63 a uniform u in (0, 1), x = u X_i. When x < X_{i+1} (u below the
+ * slab's ratio, about 99% of attempts) x lies under the curve and is the
+ * answer; otherwise the wedge (slab i >= 1: accept when a uniform height
+ * in the slab falls under f(x)) or the tail (slab 0: Marsaglia's
+ * exponential method beyond r) decide, drawing further words, and a
+ * rejected attempt starts over with a new word. r and v solve the slab
+ * recursion so that slab 255 ends at f(0) = 1 exactly in double precision
+ * (bisection at first use, pthread_once; the tables depend only on libm's
+ * exp, log, erfc and sqrt, like every other result of feasgate).
+ * The method is exact: accepted points are uniform under the curve.
+ *
+ * Word order of a normal on (sample, slot): draw 0 gives w0 = word0 |
+ * word1 << 32 (the first attempt) and w1 = word2 | word3 << 32; draws 1,
+ * 2, ... give two more each. The fast path reads w0 only and the rare
+ * slow path continues with w1, then the next draws, so all four words of
+ * the block serve one normal's attempts. Deliberately not done: packing
+ * the normals of two slots into one block (halving the cipher work) would
+ * make one dimension's fallback words depend on another's; the cipher is
+ * not the largest cost after vectorisation.
  *
  * Invariants: the values of (seed, stream, slot, sample) never depend on
- * what was drawn before; seeds must be below 2^56 for the stream bits to
- * stay apart (feasgate's seeds are at most 2^53).
+ * what was drawn before, on the block position of the sample, or on n;
+ * seeds must be below 2^56 for the stream bits to stay apart (feasgate's
+ * seeds are at most 2^53).
  *
- * Thread use: the key functions are pure; a gsl_rng made here belongs to
- * one thread's scratch.
+ * Thread use: everything is pure except the one-time table set-up (guarded
+ * by pthread_once); a gsl_rng made here belongs to one thread's scratch.
  */
 #include "sample/sample_internal.h"
+
+#include "feasgate/limits.h"
 
 #include <Random123/gsl_microrng.h>
 #include <Random123/philox.h>
 
 #include <gsl/gsl_randist.h>
+
+#include <math.h>
+#include <pthread.h>
+#include <string.h>
 
 GSL_MICRORNG(fg_philox_micro, philox4x32);
 
@@ -48,18 +95,367 @@ void fg_stream_reset(gsl_rng *r, fg_stream_key key, uint64_t sample,
   fg_philox_micro_reset(r, c, k);
 }
 
-void fg_stream_u01(gsl_rng *r, double *u, double *uc) {
-  /* 53 bits m from two words; u = (2m + 1) / 2^54 lies in (0, 1). The
-   * numerator of u (2m + 1) or of 1 - u (2^54 - 2m - 1) is below 2^53 in
-   * the half where that value is below 1/2, so each is exact there. */
-  uint64_t hi = (uint64_t)gsl_rng_get(r) & 0xffffffffu;
-  uint64_t lo = (uint64_t)gsl_rng_get(r) & 0xffffffffu;
-  uint64_t m = (hi << 21) | (lo >> 11);
-  const double scale = 1.0 / 18014398509481984.0; /* 2^-54 */
-  *u = (double)(2 * m + 1) * scale;
-  *uc = (double)((UINT64_C(1) << 54) - 2 * m - 1) * scale;
+/* ---- the cipher, lane-parallel ---------------------------------------- */
+
+/* Philox4x32 constants (Salmon et al., SC'11): round multipliers and the
+ * Weyl increments of the key. */
+#define PHILOX_M0 UINT32_C(0xD2511F53)
+#define PHILOX_M1 UINT32_C(0xCD9E8D57)
+#define PHILOX_W0 UINT32_C(0x9E3779B9)
+#define PHILOX_W1 UINT32_C(0xBB67AE85)
+
+/* Ten rounds on one counter: the scalar form (lanes left over by the SSE2
+ * path, other processors, and single draws). */
+static inline void philox10(uint32_t c[4], uint32_t k0, uint32_t k1) {
+  uint32_t x0 = c[0], x1 = c[1], x2 = c[2], x3 = c[3];
+  for (int r = 0; r < 10; r++) {
+    uint64_t p0 = (uint64_t)PHILOX_M0 * x0;
+    uint64_t p1 = (uint64_t)PHILOX_M1 * x2;
+    uint32_t y0 = (uint32_t)(p1 >> 32) ^ x1 ^ k0;
+    uint32_t y2 = (uint32_t)(p0 >> 32) ^ x3 ^ k1;
+    x1 = (uint32_t)p1;
+    x3 = (uint32_t)p0;
+    x0 = y0;
+    x2 = y2;
+    k0 += PHILOX_W0;
+    k1 += PHILOX_W1;
+  }
+  c[0] = x0;
+  c[1] = x1;
+  c[2] = x2;
+  c[3] = x3;
 }
 
-double fg_stream_normal(gsl_rng *r) {
-  return gsl_ran_gaussian_ziggurat(r, 1.0);
+#if defined(__SSE2__)
+/* Four lanes per step with SSE2, which every x86-64 processor has (so no
+ * -march is needed and all machines compute the same integers). The
+ * unsigned 32 x 32 -> 64-bit multiply (pmuludq) takes lanes 0 and 2;
+ * lanes 1 and 3 are shifted down first; the halves are then regrouped
+ * into a vector of low words and one of high words. */
+#include <emmintrin.h>
+
+static inline void mulhilo4(__m128i a, __m128i m, __m128i *hi, __m128i *lo) {
+  const __m128i low = _mm_set_epi32(0, -1, 0, -1);
+  __m128i p02 = _mm_mul_epu32(a, m);
+  __m128i p13 = _mm_mul_epu32(_mm_srli_epi64(a, 32), m);
+  *lo = _mm_or_si128(_mm_and_si128(p02, low), _mm_slli_epi64(p13, 32));
+  *hi = _mm_or_si128(_mm_srli_epi64(p02, 32), _mm_andnot_si128(low, p13));
+}
+
+static void philox_sse2(uint32_t *w0, uint32_t *w1, uint32_t *w2,
+                        uint32_t *w3, int n, fg_stream_key key) {
+  const __m128i m0 = _mm_set1_epi32((int)PHILOX_M0);
+  const __m128i m1 = _mm_set1_epi32((int)PHILOX_M1);
+  for (int t = 0; t + 4 <= n; t += 4) {
+    __m128i x0 = _mm_loadu_si128((const __m128i *)(w0 + t));
+    __m128i x1 = _mm_loadu_si128((const __m128i *)(w1 + t));
+    __m128i x2 = _mm_loadu_si128((const __m128i *)(w2 + t));
+    __m128i x3 = _mm_loadu_si128((const __m128i *)(w3 + t));
+    uint32_t k0 = key.k0, k1 = key.k1;
+    for (int r = 0; r < 10; r++) {
+      __m128i hi0, lo0, hi1, lo1;
+      mulhilo4(x0, m0, &hi0, &lo0);
+      mulhilo4(x2, m1, &hi1, &lo1);
+      x0 = _mm_xor_si128(_mm_xor_si128(hi1, x1), _mm_set1_epi32((int)k0));
+      x2 = _mm_xor_si128(_mm_xor_si128(hi0, x3), _mm_set1_epi32((int)k1));
+      x1 = lo1;
+      x3 = lo0;
+      k0 += PHILOX_W0;
+      k1 += PHILOX_W1;
+    }
+    _mm_storeu_si128((__m128i *)(w0 + t), x0);
+    _mm_storeu_si128((__m128i *)(w1 + t), x1);
+    _mm_storeu_si128((__m128i *)(w2 + t), x2);
+    _mm_storeu_si128((__m128i *)(w3 + t), x3);
+  }
+}
+#endif
+
+#if defined(__x86_64__) && defined(__GNUC__)
+/* The same rounds eight lanes at a time where the processor has AVX2,
+ * chosen at run time (fg_stream_init). Only this integer function is
+ * compiled for AVX2: its output is the same bits on every path (the unit
+ * test compares all paths' words with Random123's), so results still agree
+ * across machines; no floating-point code is compiled for a particular
+ * processor. */
+#include <immintrin.h>
+
+__attribute__((target("avx2"))) static void
+philox_avx2(uint32_t *w0, uint32_t *w1, uint32_t *w2, uint32_t *w3, int n,
+            fg_stream_key key) {
+  const __m256i m0 = _mm256_set1_epi32((int)PHILOX_M0);
+  const __m256i m1 = _mm256_set1_epi32((int)PHILOX_M1);
+  const __m256i low = _mm256_set1_epi64x(0xffffffffLL);
+  for (int t = 0; t + 8 <= n; t += 8) {
+    __m256i x0 = _mm256_loadu_si256((const __m256i *)(w0 + t));
+    __m256i x1 = _mm256_loadu_si256((const __m256i *)(w1 + t));
+    __m256i x2 = _mm256_loadu_si256((const __m256i *)(w2 + t));
+    __m256i x3 = _mm256_loadu_si256((const __m256i *)(w3 + t));
+    uint32_t k0 = key.k0, k1 = key.k1;
+    for (int r = 0; r < 10; r++) {
+      __m256i p02 = _mm256_mul_epu32(x0, m0);
+      __m256i p13 = _mm256_mul_epu32(_mm256_srli_epi64(x0, 32), m0);
+      __m256i lo0 = _mm256_or_si256(_mm256_and_si256(p02, low),
+                                    _mm256_slli_epi64(p13, 32));
+      __m256i hi0 = _mm256_or_si256(_mm256_srli_epi64(p02, 32),
+                                    _mm256_andnot_si256(low, p13));
+      p02 = _mm256_mul_epu32(x2, m1);
+      p13 = _mm256_mul_epu32(_mm256_srli_epi64(x2, 32), m1);
+      __m256i lo1 = _mm256_or_si256(_mm256_and_si256(p02, low),
+                                    _mm256_slli_epi64(p13, 32));
+      __m256i hi1 = _mm256_or_si256(_mm256_srli_epi64(p02, 32),
+                                    _mm256_andnot_si256(low, p13));
+      x0 = _mm256_xor_si256(_mm256_xor_si256(hi1, x1),
+                            _mm256_set1_epi32((int)k0));
+      x2 = _mm256_xor_si256(_mm256_xor_si256(hi0, x3),
+                            _mm256_set1_epi32((int)k1));
+      x1 = lo1;
+      x3 = lo0;
+      k0 += PHILOX_W0;
+      k1 += PHILOX_W1;
+    }
+    _mm256_storeu_si256((__m256i *)(w0 + t), x0);
+    _mm256_storeu_si256((__m256i *)(w1 + t), x1);
+    _mm256_storeu_si256((__m256i *)(w2 + t), x2);
+    _mm256_storeu_si256((__m256i *)(w3 + t), x3);
+  }
+}
+#define FG_HAVE_AVX2_PATH 1
+#endif
+
+/* Which cipher path runs: set once by fg_stream_init, read by all. Tests
+ * may force the portable paths (fg_stream_force_portable). */
+static int use_avx2;
+
+void fg_stream_philox(fg_stream_key key, uint64_t first, int n, uint32_t slot,
+                      uint32_t draw, fg_stream_words *w) {
+  /* counters first, in place; the rounds then run over the arrays */
+  for (int t = 0; t < n; t++) {
+    uint64_t i = first + (uint64_t)t;
+    w->w[0][t] = (uint32_t)i;
+    w->w[1][t] = (uint32_t)(i >> 32);
+    w->w[2][t] = slot;
+    w->w[3][t] = draw;
+  }
+  int t0 = 0;
+#if defined(FG_HAVE_AVX2_PATH)
+  if (use_avx2) {
+    philox_avx2(w->w[0], w->w[1], w->w[2], w->w[3], n, key);
+    t0 = n & ~7;
+  }
+#endif
+#if defined(__SSE2__)
+  if (t0 == 0) {
+    philox_sse2(w->w[0], w->w[1], w->w[2], w->w[3], n, key);
+    t0 = n & ~3;
+  }
+#endif
+  for (int t = t0; t < n; t++) {
+    uint32_t c[4] = {w->w[0][t], w->w[1][t], w->w[2][t], w->w[3][t]};
+    philox10(c, key.k0, key.k1);
+    w->w[0][t] = c[0];
+    w->w[1][t] = c[1];
+    w->w[2][t] = c[2];
+    w->w[3][t] = c[3];
+  }
+}
+
+/* One block for one (sample, slot, draw): the scalar form, for the slow
+ * paths. */
+static void philox_one(fg_stream_key key, uint64_t sample, uint32_t slot,
+                       uint32_t draw, uint32_t out[4]) {
+  out[0] = (uint32_t)sample;
+  out[1] = (uint32_t)(sample >> 32);
+  out[2] = slot;
+  out[3] = draw;
+  philox10(out, key.k0, key.k1);
+}
+
+/* ---- uniforms --------------------------------------------------------- */
+
+/* 53 bits m from (hi, lo); u = (2m + 1) / 2^54 lies in (0, 1). The
+ * numerator of u (2m + 1) or of 1 - u (2^54 - 2m - 1) is below 2^53 in the
+ * half where that value is below 1/2, so each is exact there. */
+static inline void u01_of(uint32_t hi, uint32_t lo, double *u, double *uc) {
+  uint64_t m = ((uint64_t)hi << 21) | (lo >> 11);
+  const double scale = 1.0 / 18014398509481984.0; /* 2^-54 */
+  *u = (double)(int64_t)(2 * m + 1) * scale;
+  *uc = (double)(int64_t)((UINT64_C(1) << 54) - 2 * m - 1) * scale;
+}
+
+void fg_stream_u01(gsl_rng *r, double *u, double *uc) {
+  uint32_t hi = (uint32_t)gsl_rng_get(r);
+  uint32_t lo = (uint32_t)gsl_rng_get(r);
+  u01_of(hi, lo, u, uc);
+}
+
+void fg_stream_u01s(fg_stream_key key, uint64_t first, int n, uint32_t slot,
+                    fg_stream_words *w, double *u, double *uc) {
+  fg_stream_philox(key, first, n, slot, 0, w);
+  /* the adaptor's first two words were 3 then 2 */
+  for (int t = 0; t < n; t++)
+    u01_of(w->w[3][t], w->w[2][t], &u[t], &uc[t]);
+}
+
+/* ---- the ziggurat ----------------------------------------------------- */
+
+#define ZIG_LAYERS 256
+
+static struct {
+  double x[ZIG_LAYERS + 1]; /* X_i; x[0] = v / f(r) (slab 0 with tail) */
+  double ratio[ZIG_LAYERS]; /* X_{i+1} / X_i: fast acceptance bound of u */
+  double f[ZIG_LAYERS + 1]; /* f(X_i); f[0] = 0 (slab 0 starts at y = 0) */
+  double r;                 /* X_1, where the tail begins */
+} zig;
+
+static pthread_once_t zig_once = PTHREAD_ONCE_INIT;
+
+static double zig_f(double x) {
+  return exp(-0.5 * x * x);
+}
+
+/* Builds the slabs for a trial r; returns how far the last slab's top
+ * misses f(0) = 1 in area: > 0 when r is too large (slabs too thin), < 0
+ * when too small (the curve's top reached early). */
+static double zig_build(double r) {
+  const double sqrt_half_pi = 1.2533141373155002512; /* sqrt(pi / 2) */
+  double v = r * zig_f(r) + sqrt_half_pi * erfc(r / 1.4142135623730950488);
+  zig.r = r;
+  zig.x[0] = v / zig_f(r);
+  zig.f[0] = 0;
+  zig.x[1] = r;
+  zig.f[1] = zig_f(r);
+  for (int i = 1; i < ZIG_LAYERS - 1; i++) {
+    double y = zig.f[i] + v / zig.x[i];
+    if (y >= 1) return -1.0 - (ZIG_LAYERS - i); /* ran out of curve */
+    zig.x[i + 1] = sqrt(-2 * log(y));
+    zig.f[i + 1] = zig_f(zig.x[i + 1]);
+  }
+  return zig.x[ZIG_LAYERS - 1] * (1 - zig.f[ZIG_LAYERS - 1]) - v;
+}
+
+static void zig_init(void) {
+#if defined(FG_HAVE_AVX2_PATH)
+  __builtin_cpu_init();
+  use_avx2 = __builtin_cpu_supports("avx2");
+#endif
+  double lo = 3.0, hi = 4.5; /* brackets r for 256 slabs */
+  for (int it = 0; it < 200 && hi - lo > 0; it++) {
+    double mid = 0.5 * (lo + hi);
+    if (mid <= lo || mid >= hi) break;
+    if (zig_build(mid) > 0)
+      hi = mid;
+    else
+      lo = mid;
+  }
+  zig_build(lo); /* the largest r whose slabs still reach the top */
+  zig.x[ZIG_LAYERS] = 0;
+  zig.f[ZIG_LAYERS] = 1;
+  for (int i = 0; i < ZIG_LAYERS; i++)
+    zig.ratio[i] = zig.x[i + 1] / zig.x[i];
+}
+
+void fg_stream_init(void) {
+  pthread_once(&zig_once, zig_init);
+}
+
+void fg_stream_force_portable(int on) {
+  fg_stream_init();
+#if defined(FG_HAVE_AVX2_PATH)
+  use_avx2 = on ? 0 : __builtin_cpu_supports("avx2");
+#else
+  (void)on;
+#endif
+}
+
+/* u in (0, 1) from the top 53 bits of a word. */
+static inline double u53(uint64_t w) {
+  return ((double)(int64_t)(w >> 11) + 0.5) * (1.0 / 9007199254740992.0);
+}
+
+/* The words after an attempt's first: w1 of draw 0, then draws 1, 2, ... */
+typedef struct zig_cursor {
+  fg_stream_key key;
+  uint64_t sample;
+  uint32_t slot, draw;
+  uint32_t buf[4];
+  int half; /* next 64-bit half of buf to hand out; 2 = empty */
+} zig_cursor;
+
+static uint64_t zig_next(zig_cursor *c) {
+  if (c->half == 2) {
+    philox_one(c->key, c->sample, c->slot, ++c->draw, c->buf);
+    c->half = 0;
+  }
+  int h = c->half++;
+  return (uint64_t)c->buf[2 * h] | ((uint64_t)c->buf[2 * h + 1] << 32);
+}
+
+/* The rest of one normal whose first attempt (word a) missed the fast
+ * path. Rare (about 1 in 100), so plain scalar code. */
+static double zig_slow(zig_cursor *c, uint64_t a) {
+  for (;;) {
+    int i = (int)(a & (ZIG_LAYERS - 1));
+    double sign = (a & ZIG_LAYERS) ? -1.0 : 1.0;
+    double u = u53(a);
+    double x = u * zig.x[i];
+    if (u < zig.ratio[i]) return sign * x;
+    if (i == 0) {
+      /* the tail beyond r: x = r + e1/r with e1, e2 exponential, kept
+       * when 2 e2 > (e1/r)^2 */
+      double s, e;
+      do {
+        s = -log(u53(zig_next(c))) / zig.r;
+        e = -log(u53(zig_next(c)));
+      } while (e + e <= s * s);
+      return sign * (zig.r + s);
+    }
+    double y = zig.f[i] + u53(zig_next(c)) * (zig.f[i + 1] - zig.f[i]);
+    if (y < zig_f(x)) return sign * x;
+    a = zig_next(c);
+  }
+}
+
+void fg_stream_normals(fg_stream_key key, uint64_t first, int n, uint32_t slot,
+                       fg_stream_words *w, double *out) {
+  fg_stream_init();
+  fg_stream_philox(key, first, n, slot, 0, w);
+  int slow[FG_BLOCK], nslow = 0;
+  for (int t = 0; t < n; t++) {
+    uint64_t a = (uint64_t)w->w[0][t] | ((uint64_t)w->w[1][t] << 32);
+    int i = (int)(a & (ZIG_LAYERS - 1));
+    double u = u53(a);
+    /* the sign as a bit flip, not a branch: a coin-flip branch would be
+     * mispredicted every other lane */
+    uint64_t bits;
+    double x = u * zig.x[i];
+    memcpy(&bits, &x, sizeof bits);
+    bits ^= (a & ZIG_LAYERS) << (63 - 8);
+    memcpy(&out[t], &bits, sizeof bits);
+    slow[nslow] = t;
+    nslow += !(u < zig.ratio[i]);
+  }
+  for (int k = 0; k < nslow; k++) {
+    int t = slow[k];
+    zig_cursor c = {.key = key,
+                    .sample = first + (uint64_t)t,
+                    .slot = slot,
+                    .draw = 0,
+                    .buf = {0, 0, w->w[2][t], w->w[3][t]},
+                    .half = 1};
+    out[t] = zig_slow(&c, (uint64_t)w->w[0][t] | ((uint64_t)w->w[1][t] << 32));
+  }
+}
+
+double fg_stream_normal_one(fg_stream_key key, uint64_t sample, uint32_t slot) {
+  fg_stream_init();
+  uint32_t blk[4];
+  philox_one(key, sample, slot, 0, blk);
+  zig_cursor c = {.key = key,
+                  .sample = sample,
+                  .slot = slot,
+                  .draw = 0,
+                  .buf = {0, 0, blk[2], blk[3]},
+                  .half = 1};
+  return zig_slow(&c, (uint64_t)blk[0] | ((uint64_t)blk[1] << 32));
 }

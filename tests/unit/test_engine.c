@@ -242,7 +242,11 @@ static void test_cancel(fg_model *m) {
  * keeps the random streams keeps these numbers; a change of stream must
  * change them once, on purpose, with the reason in the commit. Rows are
  * listed in declaration order (row i of the compiled model), 2 workers,
- * chunk 4096 (the determinism test shows the counts do not depend on it). */
+ * chunk 4096 (the determinism test shows the counts do not depend on it).
+ * History: re-pinned once when normals moved from GSL's ziggurat through
+ * the Random123 adaptor to feasgate's per-block ziggurat (stream.c); the
+ * gamma, poisson, scenario-table and inverse-CDF streams were kept, so
+ * rows c and d of the first model and row f of the second did not move. */
 static void pin_counts(const char *doc, const char *req, uint64_t joint,
                        const uint64_t *rows, const char *names,
                        const char *what) {
@@ -316,14 +320,14 @@ static void test_pinned_counts(void) {
       "{\"name\":\"c\",\"require\":\"cg + cl + ck <= 3 * x + 1\"},"
       "{\"name\":\"d\",\"require\":\"sum(e) <= 2 * x\"},"
       "{\"name\":\"f\",\"require\":\"s[0] + s[1] <= x + 3\"}]}";
-  static const uint64_t rows_a[] = {30258, 15274, 17232, 8713};
+  static const uint64_t rows_a[] = {29912, 15141, 17232, 8713};
   pin_counts(independent, "{\"decision\":{\"x\":3},\"samples\":60000,"
                           "\"seed\":20261201}",
-             13543, rows_a, "abcd", "independent families");
-  static const uint64_t rows_b[] = {11443, 21740, 23170, 9262, 12113};
+             13818, rows_a, "abcd", "independent families");
+  static const uint64_t rows_b[] = {11356, 21850, 23255, 9430, 12113};
   pin_counts(joint, "{\"decision\":{\"x\":1.5},\"samples\":60000,"
                     "\"seed\":77}",
-             13784, rows_b, "abcdf", "joint families");
+             13654, rows_b, "abcdf", "joint families");
 }
 
 /* Early stopping: the same look points whatever the chunk size and worker

@@ -16,12 +16,15 @@
  *   - sampling designs: determinism under any chunking, antithetic
  *     mirrors, one sample per Latin hypercube stratum, Sobol points equal
  *     to GSL's and stratified after shifting, marginal means far closer
- *     to closed forms than Monte Carlo gets.
+ *     to closed forms than Monte Carlo gets;
+ *   - the per-block cipher against Random123's, the ziggurat's law.
  * The draws are deterministic for the fixed seeds used, so a pass is a
  * pass on every run.
  */
 #include "sample/sample.h"
-#include "sample/sample_internal.h" /* fg_design_sobol_point */
+#include "sample/sample_internal.h"
+
+#include <Random123/philox.h>
 
 #include "feasgate/limits.h"
 #include "feasgate/status.h"
@@ -987,6 +990,91 @@ static void test_slots(void) {
   }
 }
 
+/* ---- the per-block streams (stream.c) -------------------------------- */
+
+/* The lane-parallel cipher equals Random123's Philox4x32-10 (the
+ * reference implementation of Salmon et al.), including a block whose
+ * sample index crosses 2^32; the block's u01 equals the GSL adaptor's
+ * first uniform; a normal regenerated alone equals its block value; and
+ * the ziggurat's law: the empirical CDF of 2^21 normals at eleven points
+ * within 5 binomial standard errors of Phi (values of Phi from the
+ * standard normal table, erfc here), the fourth moment 3 within 5
+ * standard errors, and values in the tail beyond the base slab appear at
+ * their expected rate. */
+static void test_block_streams(void) {
+  fg_stream_key key = fg_stream_key_make(987654321987ull, FG_STREAM_VALIDATION);
+  static fg_stream_words w;
+  const uint64_t firsts[2] = {12345, (UINT64_C(1) << 32) - 100};
+  int same_cipher = 1;
+  /* every code path (AVX2 where present, SSE2, scalar), every lane count */
+  for (int f = 0; f < 4; f++) {
+    fg_stream_force_portable(f & 1);
+    int n = f < 2 ? FG_BLOCK : FG_BLOCK - 5;
+    fg_stream_philox(key, firsts[f >> 1], n, 77, 3, &w);
+    for (int t = 0; t < n; t++) {
+      uint64_t i = firsts[f >> 1] + (uint64_t)t;
+      philox4x32_ctr_t c = {{(uint32_t)i, (uint32_t)(i >> 32), 77, 3}};
+      philox4x32_key_t k = {{key.k0, key.k1}};
+      philox4x32_ctr_t r = philox4x32(c, k);
+      for (int j = 0; j < 4; j++) same_cipher &= r.v[j] == w.w[j][t];
+    }
+  }
+  fg_stream_force_portable(0);
+  CHECK(same_cipher);
+
+  double u[FG_BLOCK], uc[FG_BLOCK];
+  fg_stream_u01s(key, 5000, 100, 9, &w, u, uc);
+  gsl_rng *g = fg_stream_rng_new();
+  int same_u = 1;
+  for (int t = 0; t < 100; t++) {
+    double a, b;
+    fg_stream_reset(g, key, 5000 + (uint64_t)t, 9);
+    fg_stream_u01(g, &a, &b);
+    same_u &= a == u[t] && b == uc[t];
+  }
+  gsl_rng_free(g);
+  CHECK(same_u);
+
+  const int n = 1 << 21;
+  double *z = malloc((size_t)n * sizeof *z);
+  if (!z) abort();
+  for (int t0 = 0; t0 < n; t0 += FG_BLOCK)
+    fg_stream_normals(key, (uint64_t)t0, FG_BLOCK, 4, &w, z + t0);
+  int alone = 1;
+  for (int i = 0; i < n; i += 9973)
+    alone &= fg_stream_normal_one(key, (uint64_t)i, 4) == z[i];
+  CHECK(alone);
+  const double at[11] = {-4, -3, -2, -1.5, -0.5, 0, 0.3, 1, 2.2, 3.3, 3.9};
+  int cdf_ok = 1;
+  for (int a = 0; a < 11; a++) {
+    long below = 0;
+    for (int i = 0; i < n; i++) below += z[i] <= at[a];
+    double p = 0.5 * erfc(-at[a] / sqrt(2.0));
+    double se = sqrt(p * (1 - p) / n);
+    double got = (double)below / n;
+    if (fabs(got - p) > 5 * se + 1e-12) {
+      cdf_ok = 0;
+      printf("normal CDF at %g: %.7f, expected %.7f (se %.2g)\n", at[a], got, p,
+             se);
+    }
+  }
+  CHECK(cdf_ok);
+  double m4 = 0, m8 = 0;
+  long tail = 0;
+  for (int i = 0; i < n; i++) {
+    double q = z[i] * z[i];
+    m4 += q * q;
+    m8 += q * q * q * q;
+    tail += fabs(z[i]) > 3.7;
+  }
+  m4 /= n;
+  m8 /= n;
+  CHECK_NEAR(m4, 3.0, 5 * sqrt((m8 - m4 * m4) / n));
+  double pt = erfc(3.7 / sqrt(2.0)); /* P(|Z| > 3.7) */
+  CHECK_NEAR((double)tail / n, pt, 5 * sqrt(pt / n));
+  free(z);
+}
+
 /* ---- sampling designs --------------------------------------------------- */
 
 /* Like draw_range, for design d with replicates of rep samples. */
@@ -1394,6 +1482,7 @@ int main(void) {
   test_copula();
   test_slots();
   test_copula_icdfs();
+  test_block_streams();
   test_design_determinism();
   test_antithetic();
   test_lhs_strata();
