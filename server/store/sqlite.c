@@ -147,7 +147,7 @@ static const char *const stmt_sql[ST_COUNT] = {
     [ST_BEGIN] = "BEGIN IMMEDIATE",
     [ST_COMMIT] = "COMMIT",
     [ST_ROLLBACK] = "ROLLBACK",
-    [ST_PING] = "SELECT 1",
+    [ST_PING] = "SELECT count(*) FROM sqlite_schema",
     [ST_LATEST] = "SELECT version, digest FROM versions WHERE name = ?1"
                   " ORDER BY version DESC LIMIT 1",
     [ST_MODEL_UPSERT] =
