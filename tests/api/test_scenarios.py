@@ -31,6 +31,8 @@ import tempfile
 import threading
 import urllib.parse
 
+import apicommon
+
 BIN = os.environ.get("FEASGATE_BIN", "build/feasgate")
 START_TIMEOUT_S = 20
 MAX_SCENARIOS = 600
@@ -92,6 +94,10 @@ class Daemon:
         raw = resp.read()
         out = {k.lower(): v for k, v in resp.getheaders()}
         conn.close()
+        # every answer is checked against its schema in schemas/
+        msgs = apicommon.schemas().problems(method, path, resp.status, out,
+                                            raw)
+        check(not msgs, "; ".join(msgs))
         return resp.status, out, raw
 
     def stop(self):
