@@ -100,6 +100,8 @@ void fg_hist_free(fg_hist *h);
 void fg_hist_reset(fg_hist *h);
 int fg_hist_bucket(double x);
 void fg_hist_add(fg_hist *h, double x);
+/* fg_hist_add of x[0..m) in turn, in one pass (the tallies' hot path). */
+void fg_hist_add_many(fg_hist *h, const double *x, int m);
 void fg_hist_merge(fg_hist *dst, const fg_hist *src);
 /* The value of rank ceil(q * total) (1-based) in sorted order, within
  * FG_HIST_REL_ERROR relative; NAN when empty. */

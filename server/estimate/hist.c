@@ -3,7 +3,8 @@
  *
  * Design: the bucket of x is read straight off its IEEE-754 bits: the
  * binary exponent selects the octave, the top FG_HIST_SUB_BITS mantissa
- * bits the linear sub-bucket. No logarithm on the hot path, and two
+ * bits the linear sub-bucket. No logarithm or libm call on the hot path
+ * (fg_hist_add_many takes a whole block's values of one row), and two
  * histograms merge exactly by adding counts, so a result does not depend on
  * how samples were split into chunks. Only the touched range [lo, hi] is
  * cleared and merged, which keeps per-chunk cost small for rows that are
@@ -45,15 +46,23 @@ void fg_hist_reset(fg_hist *h) {
   h->max = -INFINITY;
 }
 
-int fg_hist_bucket(double x) {
-  int e;
-  double m = frexp(x, &e); /* x = m 2^e, m in [0.5, 1) */
-  e -= 1;                  /* x = (2m) 2^e, 2m in [1, 2) */
-  if (!(x > 0) || e < FG_HIST_EXP_MIN) return 0;
+/* The exponent and top mantissa bits are read off the IEEE-754 bits: for a
+ * normal x = (1 + f) 2^e, f's top FG_HIST_SUB_BITS bits are
+ * floor(f * FG_HIST_SUB); subnormals have e < FG_HIST_EXP_MIN and land in
+ * bucket 0. (The same buckets as frexp would give, without a libm call.) */
+static inline int bucket_of(double x) {
+  if (!(x > 0)) return 0;
+  uint64_t bits;
+  memcpy(&bits, &x, sizeof bits);
+  int e = (int)((bits >> 52) & 0x7ff) - 1023;
+  if (e < FG_HIST_EXP_MIN) return 0;
   if (e >= FG_HIST_EXP_MAX) return FG_HIST_BUCKETS - 1;
-  int sub = (int)((2.0 * m - 1.0) * FG_HIST_SUB);
-  if (sub >= FG_HIST_SUB) sub = FG_HIST_SUB - 1;
+  int sub = (int)((bits >> (52 - FG_HIST_SUB_BITS)) & (FG_HIST_SUB - 1));
   return 1 + (e - FG_HIST_EXP_MIN) * FG_HIST_SUB + sub;
+}
+
+int fg_hist_bucket(double x) {
+  return bucket_of(x);
 }
 
 /* Midpoint of bucket b (b in 1 .. FG_HIST_BUCKETS-2). */
@@ -64,13 +73,32 @@ static double bucket_mid(int b) {
 }
 
 void fg_hist_add(fg_hist *h, double x) {
-  int b = fg_hist_bucket(x);
+  int b = bucket_of(x);
   h->counts[b]++;
   h->total++;
   if (b < h->lo) h->lo = b;
   if (b > h->hi) h->hi = b;
   if (x < h->min) h->min = x;
   if (x > h->max) h->max = x;
+}
+
+void fg_hist_add_many(fg_hist *h, const double *x, int m) {
+  if (m <= 0) return;
+  int lo = h->lo, hi = h->hi;
+  double mn = h->min, mx = h->max;
+  for (int i = 0; i < m; i++) {
+    int b = bucket_of(x[i]);
+    h->counts[b]++;
+    lo = b < lo ? b : lo;
+    hi = b > hi ? b : hi;
+    mn = x[i] < mn ? x[i] : mn;
+    mx = x[i] > mx ? x[i] : mx;
+  }
+  h->total += (uint64_t)m;
+  h->lo = lo;
+  h->hi = hi;
+  h->min = mn;
+  h->max = mx;
 }
 
 void fg_hist_merge(fg_hist *dst, const fg_hist *src) {
