@@ -7,7 +7,8 @@ keys are made with `feasgate keys add`, and checks:
     form (fgk_ + 43 base64url characters), `list` naming keys without ever
     showing a key, `revoke`, FEASGATE_STORE as the twin of --store, names
     never reused, bad roles and names refused (exit 3), only a salted
-    hash in the store file, and an old (schema 1) store file migrated;
+    hash in the store file (SHA-256(salt || key), recomputed with
+    hashlib), and an old (schema 1) store file migrated;
   - the role matrix: every route with every role -- an allowed role gets
     its route's ordinary answer (2xx, or a 4xx other than 401/403), a
     lower role 403 -- and the open routes without any key;
@@ -25,6 +26,7 @@ Standard library (plus apicommon's jsonschema checks of every answer).
 Prints one line per failed check and "N passed, N failed" as the last line;
 exits non-zero on any failure.
 """
+import hashlib
 import json
 import os
 import re
@@ -134,6 +136,12 @@ def test_cli(tmp):
                    ("pipeline", "checker", 16, 32, "")]
           and rows[0][4] != "", "keys table rows: %r" % rows)
     check(ver == [(2,)], "schema_version is 2: %r" % ver)
+    db = sqlite3.connect(path)
+    salt, digest = db.execute("SELECT salt, hash FROM keys WHERE name ="
+                              " 'pipeline'").fetchone()
+    db.close()
+    check(hashlib.sha256(salt + key.encode()).digest() == digest,
+          "the stored hash is SHA-256(salt || key) (hashlib)")
 
     # An old file (schema 1, no keys table) is migrated on open.
     old = os.path.join(tmp, "old.db")
