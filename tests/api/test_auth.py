@@ -9,7 +9,9 @@ keys are made with `feasgate keys add`, and checks:
     never reused, bad roles and names refused (exit 3), only a salted
     hash in the store file (SHA-256(salt || key), recomputed with
     hashlib), and an old (schema 1) store file migrated;
-  - the role matrix: every route with every role -- an allowed role gets
+  - the role matrix: every route with every role (the routes and their
+    least roles checked against the x-feasgate-role of every operation in
+    schemas/openapi.json) -- an allowed role gets
     its route's ordinary answer (2xx, or a 4xx other than 401/403), a
     lower role 403 -- and the open routes without any key;
   - 401 with WWW-Authenticate: Bearer for a missing, malformed, wrong or
@@ -36,7 +38,7 @@ import sys
 import tempfile
 import time
 
-from apicommon import BIN, Daemon, Results, is_problem
+from apicommon import BIN, ROOT, Daemon, Results, is_problem
 
 R = Results()
 check = R.check
@@ -209,6 +211,27 @@ def test_matrix(d, store, keys):
         ("POST", "/v1/models", model_doc(name), "author"),
         ("DELETE", "/v1/models/retire-me", None, "author"),
     ]
+    # The matrix covers every operation of the OpenAPI document, with the
+    # least role its x-feasgate-role names.
+    with open(os.path.join(ROOT, "schemas", "openapi.json")) as f:
+        spec = json.load(f)
+    subs = {"{name}": name, "{n}": "1", "{id}": ended}
+    documented = {}
+    for template, ops in spec["paths"].items():
+        concrete = template
+        for k, v in subs.items():
+            concrete = concrete.replace(k, v)
+        for m, op in ops.items():
+            if isinstance(op, dict) and "operationId" in op:
+                documented[(m.upper(), concrete)] = op.get("x-feasgate-role")
+    covered = {(m, p.split("?")[0].replace("retire-me", name)): least
+               for m, p, _, least in routes}
+    for (m, p), role in sorted(documented.items()):
+        if role is None:
+            continue  # open routes, checked below
+        check(covered.get((m, p)) == role,
+              "%s %s: the matrix says %s, the OpenAPI document %s"
+              % (m, p, covered.get((m, p)), role))
     for method, path, body, least in routes:
         for role in ROLES:
             if path.endswith("retire-me"):
