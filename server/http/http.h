@@ -31,7 +31,9 @@
  *                                             listener with no key)
  *
  * Exit status of fg_serve_command: 0 after a clean stop (SIGINT/SIGTERM),
- * 3 for bad usage or a bad setting, 1 when start-up fails for another
+ * 3 for bad usage or a bad setting (an unreadable TLS file included, and
+ * a non-loopback --listen while the store holds no live key and
+ * --insecure is not given), 1 when start-up fails for another
  * reason (address in use, store cannot be opened).
  *
  * Thread use: fg_serve_command runs on the main thread and owns the
