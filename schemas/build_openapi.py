@@ -275,10 +275,11 @@ def paths():
         ),
         "delete": op(
             "cancelCheck", "Cancel a running check", "checker",
-            dict({"200": json_body("CheckResult", "The check: cancelled, with the "
-                                                  "partial counts kept, if it was "
-                                                  "running; unchanged if it had ended.")},
-                 **errors(401, 403, 404, 500, 503)),
+            dict({"200": json_body("CheckResult", "The check, now cancelled, with "
+                                                  "the partial counts kept.")},
+                 **errors(401, 403, 404, 409, 500, 503)),
+            description="A check that has already ended is answered 409 and "
+                        "left as it is.",
         ),
     }
     p["/v1/models/{name}/comparisons"] = {
