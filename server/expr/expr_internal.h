@@ -16,6 +16,8 @@
  *   program.c  finishing: dead code removal, setup/block split, register
  *              allocation, limits, listing;
  *   interp.c   the batched interpreter (also used by the folder).
+ *   fuse.c     multiply-add chains of the block stream, run as dense
+ *              products by interp.c.
  *
  * Thread use: everything here runs on the one thread that compiles, except
  * the interpreter, which any thread may run on its own registers.
@@ -305,6 +307,26 @@ fg_status fg_expr_build_program(fg_expr_compiler *c, fg_program **out,
 void fg_expr_run(const fg_insn *insns, int count, double *regs, size_t stride,
                  int lanes);
 
+/* fuse.c: the block stream cut into plain runs and multiply-add chains
+ * (see fuse.c). A chain's terms are in order: term q of a segment is
+ * d <- K * V (+ previous d, or + addend for the first when >= 0), K a
+ * uniform register. */
+typedef struct fg_chain_term {
+  int k, v, d;
+  bool store; /* false: no one reads d afterwards, the kernel skips it */
+} fg_chain_term;
+
+typedef struct fg_segment {
+  int start, count; /* block instructions [start, start + count) */
+  bool chain;
+  int term0;  /* chain: its first term in fg_program.terms */
+  int addend; /* chain: the first instruction's addend register, or -1 */
+} fg_segment;
+
+/* Finds the chains of prog's block stream (sets segs, nsegs, terms; all
+ * NULL / 0 when there is none). False when out of memory. */
+bool fg_expr_fuse(fg_program *prog);
+
 /* The finished program. */
 struct fg_program {
   fg_program_info info;
@@ -315,6 +337,11 @@ struct fg_program {
   int nbcast;
   char **pointers;
   int npointers;
+  fg_segment *segs; /* NULL: run the block stream in one piece */
+  int nsegs;
+  fg_chain_term *terms;
+  bool lane_tiled; /* chains hold most of the block stream: run it in
+                      lane passes (interp.c) */
 };
 
 #endif

@@ -15,7 +15,10 @@
  * register read was written before.
  *
  * The same loop evaluates constant folding at compile time (stride 1, one
- * lane), so folded and run-time results are bit-identical.
+ * lane), so folded and run-time results are bit-identical. The block
+ * stream's multiply-add chains found by fuse.c (affine rows) run through
+ * run_chain instead, a tiled dense product with the same per-lane
+ * arithmetic.
  *
  * Thread use: any thread; a program is read-only here and each thread
  * brings its own registers.
@@ -187,8 +190,95 @@ void fg_program_broadcast(const fg_program *prog, const double *setup_regs,
   }
 }
 
+/* One multiply-add chain (fuse.c) over lanes [0, n): per lane
+ *   acc = K_0 * V_0 (+ addend);  d_0 = acc;
+ *   acc = K_q * V_q + acc;       d_q = acc   (q = 1 ..)
+ * with the products and sums rounded one by one as MUL and MULADD do.
+ * Lanes go in tiles of 8 whose accumulator stays in registers; each term
+ * loads V_q's tile and stores d_q's when anyone reads it (fuse.c), in term
+ * order, so a later term that reads an earlier destination finds it. Per lane the operations and their
+ * order are those of the instruction-at-a-time loop (SSE2's packed
+ * multiply and add are the same IEEE operations), so the results are the
+ * same bits. */
+#define CHAIN_TILE 16
+
+#if defined(__SSE2__)
+#include <emmintrin.h>
+#endif
+
+static void run_chain(const fg_chain_term *terms, int count, int addend,
+                      double *regs, int n) {
+  const size_t S = FG_BLOCK;
+  int t0 = 0;
+#if defined(__SSE2__)
+  for (; t0 + CHAIN_TILE <= n; t0 += CHAIN_TILE) {
+    __m128d acc[CHAIN_TILE / 2];
+    const fg_chain_term *t = &terms[0];
+    const double *v = regs + (size_t)t->v * S + t0;
+    __m128d k = _mm_set1_pd(regs[(size_t)t->k * S]);
+    for (int h = 0; h < CHAIN_TILE / 2; h++)
+      acc[h] = _mm_mul_pd(k, _mm_loadu_pd(v + 2 * h));
+    if (addend >= 0) {
+      const double *c = regs + (size_t)addend * S + t0;
+      for (int h = 0; h < CHAIN_TILE / 2; h++)
+        acc[h] = _mm_add_pd(acc[h], _mm_loadu_pd(c + 2 * h));
+    }
+    for (int q = 0;;) {
+      if (terms[q].store) {
+        double *d = regs + (size_t)terms[q].d * S + t0;
+        for (int h = 0; h < CHAIN_TILE / 2; h++)
+          _mm_storeu_pd(d + 2 * h, acc[h]);
+      }
+      if (++q == count) break;
+      t = &terms[q];
+      v = regs + (size_t)t->v * S + t0;
+      k = _mm_set1_pd(regs[(size_t)t->k * S]);
+      for (int h = 0; h < CHAIN_TILE / 2; h++)
+        acc[h] = _mm_add_pd(_mm_mul_pd(k, _mm_loadu_pd(v + 2 * h)), acc[h]);
+    }
+  }
+#endif
+  for (int i = t0; i < n; i++) { /* leftover lanes (or no SSE2) */
+    const fg_chain_term *t = &terms[0];
+    double acc = regs[(size_t)t->k * S] * regs[(size_t)t->v * S + i];
+    if (addend >= 0) acc = acc + regs[(size_t)addend * S + i];
+    if (t->store) regs[(size_t)t->d * S + i] = acc;
+    for (int q = 1; q < count; q++) {
+      t = &terms[q];
+      double prod = regs[(size_t)t->k * S] * regs[(size_t)t->v * S + i];
+      acc = prod + acc;
+      if (t->store) regs[(size_t)t->d * S + i] = acc;
+    }
+  }
+}
+
+/* Lanes per pass when a chain-heavy block stream runs in lane tiles: 32
+ * lanes of a register are 256 bytes, so the inputs of a wide dense row
+ * (say 50 of them, 12.8 KiB) stay in L1 while every row reads them, where
+ * whole 2 KiB registers would be fetched from L2 once per row. */
+#define LANE_PASS 32
+
 void fg_program_run_block(const fg_program *prog, double *block_regs, int n) {
   if (n <= 0) return;
   if (n > FG_BLOCK) n = FG_BLOCK;
-  fg_expr_run(prog->block, prog->info.nblock_insns, block_regs, FG_BLOCK, n);
+  if (!prog->segs) {
+    fg_expr_run(prog->block, prog->info.nblock_insns, block_regs, FG_BLOCK, n);
+    return;
+  }
+  /* Chain-heavy streams (fuse.c says so) run the whole stream pass by pass
+   * over LANE_PASS lanes, which is exact because no instruction reads
+   * another lane; others run segment by segment over the whole block so
+   * that plain instructions keep their long loops. */
+  int pass = prog->lane_tiled ? LANE_PASS : n;
+  for (int t0 = 0; t0 < n; t0 += pass) {
+    int m = n - t0 < pass ? n - t0 : pass;
+    double *regs = block_regs + t0;
+    for (int s = 0; s < prog->nsegs; s++) {
+      const fg_segment *sg = &prog->segs[s];
+      if (sg->chain)
+        run_chain(prog->terms + sg->term0, sg->count, sg->addend, regs, m);
+      else
+        fg_expr_run(prog->block + sg->start, sg->count, regs, FG_BLOCK, m);
+    }
+  }
 }

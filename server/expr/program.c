@@ -243,6 +243,8 @@ fg_status fg_expr_build_program(fg_expr_compiler *c, fg_program **out,
     goto done;
   }
   st = build(c, prog, order, norder, nsetup, &as, p);
+  if (st == FG_OK && !fg_expr_fuse(prog))
+    st = fg_problem_set(p, FG_ENOMEM, "out of memory");
 done:
   free(order);
   free(as.phys);
@@ -262,6 +264,8 @@ void fg_program_free(fg_program *prog) {
   free(prog->setup_span);
   free(prog->rows);
   free(prog->bcast);
+  free(prog->segs);
+  free(prog->terms);
   for (int i = 0; i < prog->npointers; i++)
     free(prog->pointers[i]);
   free(prog->pointers);

@@ -902,6 +902,58 @@ static void test_token_soup(void) {
             compiled, refused);
 }
 
+/* Dense rows (fuse.c / interp.c's multiply-add chains): dot products with
+ * literal and with decision coefficients give the bits of the plain
+ * instruction order -- acc = k_0 z_0, then acc = k_i z_i + acc, each
+ * rounded -- on a full block and on a short one (leftover lanes), and a
+ * running sum of the same kind stays readable element by element. */
+static double dense_unc(int k, int lane) {
+  return sin(0.37 * k + 0.011 * lane) * (1 + k % 3) - 0.1 * lane;
+}
+
+static void test_dense_rows(void) {
+  static const double lit[12] = {0.3, -1.25, 2.5, 0.01, -0.7, 1e-3,
+                                 4.0, -2.0,  0.5, 0.25, 3.3,  -0.9};
+  double dec[12];
+  for (int i = 0; i < 12; i++) dec[i] = 0.1 * i - 0.45;
+  for (int pass = 0; pass < 2; pass++) {
+    int lanes = pass ? 37 : FG_BLOCK;
+    model m;
+    m_init(&m);
+    fg_expr_declare_decision(m.c, "c", 12, "/decisions/0", &m.p);
+    fg_expr_declare_uncertain(m.c, "z", 12, "/uncertain/0", &m.p);
+    char row[512];
+    int len = snprintf(row, sizeof row, "dot([");
+    for (int i = 0; i < 12; i++)
+      len += snprintf(row + len, sizeof row - (size_t)len, "%s%.17g",
+                      i ? ", " : "", lit[i]);
+    snprintf(row + len, sizeof row - (size_t)len, "], z) <= 5");
+    fg_expr_constraint(m.c, "lit", row, "/c/0", &m.p);
+    fg_expr_constraint(m.c, "dec", "dot(c, z) + 2 * z[0] <= 1", "/c/1", &m.p);
+    fg_expr_constraint(m.c, "run", "running_sum(c * z) <= 3", "/c/2", &m.p);
+    CHECK_INT(m_finish(&m), FG_OK);
+    m_run(&m, dec, lanes, dense_unc);
+    bool same = true;
+    for (int l = 0; l < lanes; l++) {
+      double a = lit[0] * dense_unc(0, l), b = dec[0] * dense_unc(0, l);
+      for (int i = 1; i < 12; i++) {
+        double pa = lit[i] * dense_unc(i, l), pb = dec[i] * dense_unc(i, l);
+        a = pa + a;
+        b = pb + b;
+      }
+      same &= m_row(&m, 0, l) == a - 5;
+      same &= m_row(&m, 1, l) == (b + 2 * dense_unc(0, l)) - 1;
+      double r = 0;
+      for (int i = 0; i < 12; i++) {
+        r = i ? r + dec[i] * dense_unc(i, l) : dec[0] * dense_unc(0, l);
+        same &= m_row(&m, 2 + i, l) == r - 3;
+      }
+    }
+    CHECK_MSG(same, "dense rows differ from the plain order (%d lanes)", lanes);
+    m_free(&m);
+  }
+}
+
 int main(void) {
   _Static_assert(FG_OP_COUNT == 30, "update the tests for new opcodes");
   test_syntax_errors();
@@ -916,5 +968,6 @@ int main(void) {
   test_limits();
   test_hostile();
   test_token_soup();
+  test_dense_rows();
   return fg_test_finish();
 }
