@@ -88,9 +88,20 @@ def theatre(p, rng, b):
     lam = _dist(mdl, "urgent")["mean"]
     start = np.array(dec["start"], float)
     late = dec["late_team"]
+    # the overrun allowance per late team, read from the row
+    over = next(c["require"] for c in mdl["constraints"] if c["name"] == "overrun")
+    per_team = float(over.split("+")[1].split("*")[0])
+    # durations tied by a Gaussian copula with equal correlation (the
+    # lognormal member maps the correlated normal directly)
+    low = np.eye(6)
+    for dep in mdl.get("dependence", []):
+        if dep["members"] == ["dur"]:
+            r = dep["correlation"]["equal"]
+            low = np.linalg.cholesky(np.full((6, 6), r) + (1 - r) * np.eye(6))
 
     def run(n):
-        dur = np.exp(meanlog + sdlog * rng.standard_normal((n, 6)))
+        z = rng.standard_normal((n, 6)) @ low.T
+        dur = np.exp(meanlog + sdlog * z)
         turn = rng.triangular(tt["low"], tt["mode"], tt["high"], (n, 6))
         urgent = rng.poisson(lam, n)
         leave = np.empty((n, 6))
@@ -100,7 +111,7 @@ def theatre(p, rng, b):
         prev = np.concatenate([np.zeros((n, 1)), leave[:, :-1]], axis=1)
         wait = np.maximum(prev - start, 0)
         end = leave[:, 5] + 55 * urgent
-        return np.concatenate([(end > 540 + 120 * late)[:, None], wait > 60], axis=1)
+        return np.concatenate([(end > 540 + per_team * late)[:, None], wait > 60], axis=1)
     return run
 
 
