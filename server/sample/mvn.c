@@ -262,21 +262,18 @@ static void lower_tile(const double *chol, const double *mean, int d, int t0,
                        double *const *cols) {
   for (int i = d - 1; i >= 0; i--) {
     const double *li = chol + (size_t)i * (size_t)d;
-    __m128d a0 = _mm_set1_pd(mean ? mean[i] : 0.0);
-    __m128d a1 = a0, a2 = a0, a3 = a0;
+    __m128d acc[TILE / 2];
+    for (int h = 0; h < TILE / 2; h++)
+      acc[h] = _mm_set1_pd(mean ? mean[i] : 0.0);
     for (int k = 0; k <= i; k++) {
       const double *zk = cols[k] + t0;
       __m128d l = _mm_set1_pd(li[k]);
-      a0 = _mm_add_pd(a0, _mm_mul_pd(l, _mm_loadu_pd(zk)));
-      a1 = _mm_add_pd(a1, _mm_mul_pd(l, _mm_loadu_pd(zk + 2)));
-      a2 = _mm_add_pd(a2, _mm_mul_pd(l, _mm_loadu_pd(zk + 4)));
-      a3 = _mm_add_pd(a3, _mm_mul_pd(l, _mm_loadu_pd(zk + 6)));
+      for (int h = 0; h < TILE / 2; h++)
+        acc[h] = _mm_add_pd(acc[h], _mm_mul_pd(l, _mm_loadu_pd(zk + 2 * h)));
     }
     double *xi = cols[i] + t0;
-    _mm_storeu_pd(xi, a0);
-    _mm_storeu_pd(xi + 2, a1);
-    _mm_storeu_pd(xi + 4, a2);
-    _mm_storeu_pd(xi + 6, a3);
+    for (int h = 0; h < TILE / 2; h++)
+      _mm_storeu_pd(xi + 2 * h, acc[h]);
   }
 }
 #else
