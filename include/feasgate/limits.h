@@ -185,4 +185,104 @@
   X("sobol_dimensions", FG_SOBOL_DIMS_MAX)                                \
   X("scenario_cells", FG_SCENARIO_CELLS_MAX)
 
+/* ---- operating the daemon and the remote client (http/) ----
+ * Settings with a flag (--queue, --max-wait, --grace, --max-check-time,
+ * --max-scenarios) are range-checked against these at start-up. */
+
+/* Checks waiting for a worker at most: enough to absorb a burst of
+ * pipeline jobs, small enough that a queued check starts within minutes. */
+#define FG_HTTP_QUEUE_DEFAULT 64
+
+#define FG_HTTP_QUEUE_MAX 65536
+
+/* Longest --max-wait and --grace: an HTTP client holding a request open
+ * for more than an hour is a misconfiguration, not a use. */
+#define FG_HTTP_WAIT_MAX_S 3600.0
+
+/* Running checks get this long to finish at shutdown before they are
+ * cancelled and recorded as cancelled. */
+#define FG_HTTP_GRACE_DEFAULT 30.0
+
+/* Hard bound of --max-scenarios: a scenario table of 10^8 rows is already
+ * gigabytes of JSON. */
+#define FG_HTTP_MAX_SCENARIOS_HARD 100000000ull
+
+/* --max-check-time: default one hour; at most a week, beyond which a
+ * check is a batch job, not a gate. */
+#define FG_HTTP_CHECK_TIME_DEFAULT 3600.0
+
+#define FG_HTTP_CHECK_TIME_MAX_S (7 * 86400.0)
+
+/* Characters of --listen and --store values (and of file paths). */
+#define FG_HTTP_HOST_MAX 255
+
+#define FG_HTTP_URL_MAX 4096
+
+/* Compiled models kept in memory (by digest). Compiling is milliseconds;
+ * this only spares repeated checks of the same few models. */
+#define FG_HTTP_MODEL_CACHE 64
+
+/* Characters of a request path we route (longer ones are 404s). */
+#define FG_HTTP_PATH_MAX 1024
+
+/* Seconds a client is told to wait after a 503. */
+#define FG_HTTP_RETRY_AFTER_S 2
+
+/* Longest Authorization token looked at; longer ones are malformed. */
+#define FG_KEY_TEXT_MAX 128
+
+/* Distinct (method, route, status) request series kept at most. Routes
+ * are the router's templates (never raw paths) and methods are folded to
+ * a fixed set, so real traffic stays far below this; requests beyond it
+ * are counted in feasgate_http_requests_unlabelled_total. */
+#define FG_METRICS_SERIES_MAX 512
+
+/* How long DELETE waits for a cancelled check to stop and be recorded:
+ * workers test the cancel flag once per block, so this is generous. */
+#define FG_HTTP_CANCEL_WAIT_S 10.0
+
+/* The remote gate (feasgate check --server): how long it waits for a
+ * check by default (--timeout), at most, and between polls at most. */
+#define FG_REMOTE_TIMEOUT_DEFAULT_S 3600.0
+
+/* A week: longer than any --max-check-time a daemon accepts. */
+#define FG_REMOTE_TIMEOUT_MAX_S (7 * 86400.0)
+
+/* Longest pause between two polls of a running check. */
+#define FG_REMOTE_POLL_MAX_S 2.0
+
+/* Bytes of an answer at most (a result body is kilobytes). */
+#define FG_REMOTE_BODY_MAX (64u * 1024 * 1024)
+
+/* Bytes of a request file at most. */
+#define FG_REMOTE_REQUEST_MAX (16u * 1024 * 1024)
+
+/* Seconds libmicrohttpd keeps an idle connection open. */
+#define FG_HTTP_IDLE_TIMEOUT_S 120
+
+/* Connections at once: each is a thread; beyond this, new connections are
+ * refused by libmicrohttpd instead of exhausting threads. */
+#define FG_HTTP_CONNECTIONS_MAX 512
+
+/* Bytes of libmicrohttpd's per-connection buffer (request line, headers):
+ * limits header size. Bodies are ours and limited by --max-body. */
+#define FG_HTTP_CONN_MEMORY (64 * 1024)
+
+/* Seconds added to --max-wait when waiting for requests in flight at
+ * shutdown: time to record and answer after the wait itself. */
+#define FG_HTTP_DRAIN_MARGIN_S 10.0
+
+/* Bytes of a refused body (beyond --max-body) read and thrown away so
+ * that the client still gets its 413; past this the connection is closed.
+ * Bounds the work an endless chunked upload can cause. */
+#define FG_HTTP_DISCARD_MAX (8 * 1024 * 1024)
+
+/* Initial body buffer; grows by doubling up to --max-body. */
+#define FG_HTTP_BODY_INITIAL 4096
+
+/* Bytes of a --tls-cert or --tls-key file at most: a long certificate
+ * chain is a few tens of KiB. */
+#define FG_HTTP_TLS_FILE_MAX (1024 * 1024)
+
+
 #endif

@@ -428,9 +428,6 @@ void fg_h_check_get(fg_req *r, fg_resp *out) {
 
 /* ---- DELETE /v1/checks/{id} ---- */
 
-/* How long DELETE waits for a cancelled check to stop and be recorded:
- * workers test the cancel flag once per block, so this is generous. */
-#define FG_HTTP_CANCEL_WAIT_S 10.0
 
 void fg_h_check_cancel(fg_req *r, fg_resp *out) {
   const char *id = r->params[0];

@@ -49,26 +49,6 @@
 #include <stddef.h>
 #include <stdint.h>
 
-/* Checks waiting for a worker at most: enough to absorb a burst of
- * pipeline jobs, small enough that a queued check starts within minutes. */
-#define FG_HTTP_QUEUE_DEFAULT 64
-#define FG_HTTP_QUEUE_MAX 65536
-/* Longest --max-wait and --grace: an HTTP client holding a request open
- * for more than an hour is a misconfiguration, not a use. */
-#define FG_HTTP_WAIT_MAX_S 3600.0
-/* Running checks get this long to finish at shutdown before they are
- * cancelled and recorded as cancelled. */
-#define FG_HTTP_GRACE_DEFAULT 30.0
-/* Hard bound of --max-scenarios: a scenario table of 10^8 rows is already
- * gigabytes of JSON. */
-#define FG_HTTP_MAX_SCENARIOS_HARD 100000000ull
-/* --max-check-time: default one hour; at most a week, beyond which a
- * check is a batch job, not a gate. */
-#define FG_HTTP_CHECK_TIME_DEFAULT 3600.0
-#define FG_HTTP_CHECK_TIME_MAX_S (7 * 86400.0)
-/* Characters of --listen and --store values (and of file paths). */
-#define FG_HTTP_HOST_MAX 255
-#define FG_HTTP_URL_MAX 4096
 
 typedef enum fg_log_level {
   FG_LOG_DEBUG = 0,

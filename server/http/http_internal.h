@@ -38,15 +38,8 @@
 #include <stdatomic.h>
 #include <stdbool.h>
 
-/* Compiled models kept in memory (by digest). Compiling is milliseconds;
- * this only spares repeated checks of the same few models. */
-#define FG_HTTP_MODEL_CACHE 64
 /* Path parameters of one route at most ({name}, {n}, {id}). */
 #define FG_ROUTE_PARAMS 4
-/* Characters of a request path we route (longer ones are 404s). */
-#define FG_HTTP_PATH_MAX 1024
-/* Seconds a client is told to wait after a 503. */
-#define FG_HTTP_RETRY_AFTER_S 2
 
 typedef struct fg_registry fg_registry;
 typedef struct fg_keyring fg_keyring;
@@ -214,8 +207,6 @@ void fg_registry_free(fg_registry *g);
 /* A key: prefix + FG_KEY_BYTES random bytes in unpadded base64url. */
 #define FG_KEY_PREFIX "fgk_"
 #define FG_KEY_BYTES 32
-/* Longest Authorization token looked at; longer ones are malformed. */
-#define FG_KEY_TEXT_MAX 128
 
 typedef enum fg_role {
   FG_ROLE_NONE = 0, /* open routes */

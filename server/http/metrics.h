@@ -22,11 +22,6 @@
 
 #include "http/http_internal.h"
 
-/* Distinct (method, route, status) request series kept at most. Routes
- * are the router's templates (never raw paths) and methods are folded to
- * a fixed set, so real traffic stays far below this; requests beyond it
- * are counted in feasgate_http_requests_unlabelled_total. */
-#define FG_METRICS_SERIES_MAX 512
 
 /* Stamp the process start time (Unix seconds) shown by /metrics. */
 void fg_metrics_start(void);

@@ -38,18 +38,10 @@
 #include <time.h>
 
 #define EXIT_ERROR 3
-#define FG_REMOTE_TIMEOUT_DEFAULT_S 3600.0
-/* A week: longer than any --max-check-time a daemon accepts. */
-#define FG_REMOTE_TIMEOUT_MAX_S (7 * 86400.0)
 #define FG_REMOTE_POLL_FIRST_S 0.2
-#define FG_REMOTE_POLL_MAX_S 2.0
 #define FG_REMOTE_POLL_RETRIES 5
 /* Seconds to set up a connection. */
 #define FG_REMOTE_CONNECT_S 10
-/* Bytes of an answer at most (a result body is kilobytes). */
-#define FG_REMOTE_BODY_MAX (64u * 1024 * 1024)
-/* Bytes of a request file at most. */
-#define FG_REMOTE_REQUEST_MAX (16u * 1024 * 1024)
 
 typedef struct remote {
   CURL *curl;

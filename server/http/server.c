@@ -63,26 +63,6 @@
 #include <sys/socket.h>
 #include <unistd.h>
 
-/* Seconds libmicrohttpd keeps an idle connection open. */
-#define FG_HTTP_IDLE_TIMEOUT_S 120
-/* Connections at once: each is a thread; beyond this, new connections are
- * refused by libmicrohttpd instead of exhausting threads. */
-#define FG_HTTP_CONNECTIONS_MAX 512
-/* Bytes of libmicrohttpd's per-connection buffer (request line, headers):
- * limits header size. Bodies are ours and limited by --max-body. */
-#define FG_HTTP_CONN_MEMORY (64 * 1024)
-/* Seconds added to --max-wait when waiting for requests in flight at
- * shutdown: time to record and answer after the wait itself. */
-#define FG_HTTP_DRAIN_MARGIN_S 10.0
-/* Bytes of a refused body (beyond --max-body) read and thrown away so
- * that the client still gets its 413; past this the connection is closed.
- * Bounds the work an endless chunked upload can cause. */
-#define FG_HTTP_DISCARD_MAX (8 * 1024 * 1024)
-/* Initial body buffer; grows by doubling up to --max-body. */
-#define FG_HTTP_BODY_INITIAL 4096
-/* Bytes of a --tls-cert or --tls-key file at most: a long certificate
- * chain is a few tens of KiB. */
-#define FG_HTTP_TLS_FILE_MAX (1024 * 1024)
 
 /* ---- responses ---- */
 
