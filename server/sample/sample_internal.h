@@ -61,9 +61,10 @@ typedef struct fg_stream_words {
 /* Sets up the normal generator's tables and picks the cipher's code path
  * (also done on first use). */
 void fg_stream_init(void);
-/* Tests only: on = 1 runs the portable (SSE2 / scalar) cipher path even
- * where AVX2 exists, on = 0 restores the choice. Not thread-safe. */
-void fg_stream_force_portable(int on);
+/* Tests only: level 0 lets the cipher use the widest extension present
+ * (the default), 1 at most AVX2, 2 only SSE2 and scalar code. Not
+ * thread-safe. */
+void fg_stream_force_portable(int level);
 /* Philox4x32-10 of counters {first + t, slot, draw}, t < n <= FG_BLOCK. */
 void fg_stream_philox(fg_stream_key key, uint64_t first, int n, uint32_t slot,
                       uint32_t draw, fg_stream_words *w);

@@ -8,9 +8,10 @@
  * for sample i. Two ways of reading these blocks exist:
  *
  *  - Per block of samples, in this file (the hot path). fg_stream_philox
- *    evaluates the cipher for all lanes of a block at once, as plain loops
- *    over lane arrays that the compiler vectorises (no function pointers,
- *    no state). On top of it:
+ *    evaluates the cipher for all lanes of a block at once over lane
+ *    arrays, 4, 8 or 16 lanes per instruction (SSE2, or AVX2 / AVX-512F
+ *    chosen at run time for this integer code only; every path gives the
+ *    same words), with no function pointers and no state. On top of it:
  *      fg_stream_u01s     one 53-bit uniform per lane from draw 0, words 3
  *                         and 2 -- the very words Random123's GSL adaptor
  *                         handed out first, so inverse-CDF families drew
@@ -173,8 +174,8 @@ static void philox_sse2(uint32_t *w0, uint32_t *w1, uint32_t *w2,
 
 #if defined(__x86_64__) && defined(__GNUC__)
 /* The same rounds eight lanes at a time where the processor has AVX2,
- * chosen at run time (fg_stream_init). Only this integer function is
- * compiled for AVX2: its output is the same bits on every path (the unit
+ * chosen at run time (fg_stream_init), and sixteen with AVX-512F. Only
+ * these integer functions are compiled for those extensions: its output is the same bits on every path (the unit
  * test compares all paths' words with Random123's), so results still agree
  * across machines; no floating-point code is compiled for a particular
  * processor. */
@@ -220,12 +221,54 @@ philox_avx2(uint32_t *w0, uint32_t *w1, uint32_t *w2, uint32_t *w3, int n,
     _mm256_storeu_si256((__m256i *)(w3 + t), x3);
   }
 }
+
+/* Sixteen lanes at a time where AVX-512F exists: the same rounds again. */
+__attribute__((target("avx512f"))) static void
+philox_avx512(uint32_t *w0, uint32_t *w1, uint32_t *w2, uint32_t *w3, int n,
+              fg_stream_key key) {
+  const __m512i m0 = _mm512_set1_epi32((int)PHILOX_M0);
+  const __m512i m1 = _mm512_set1_epi32((int)PHILOX_M1);
+  const __m512i low = _mm512_set1_epi64(0xffffffffLL);
+  for (int t = 0; t + 16 <= n; t += 16) {
+    __m512i x0 = _mm512_loadu_si512((const void *)(w0 + t));
+    __m512i x1 = _mm512_loadu_si512((const void *)(w1 + t));
+    __m512i x2 = _mm512_loadu_si512((const void *)(w2 + t));
+    __m512i x3 = _mm512_loadu_si512((const void *)(w3 + t));
+    uint32_t k0 = key.k0, k1 = key.k1;
+    for (int r = 0; r < 10; r++) {
+      __m512i p02 = _mm512_mul_epu32(x0, m0);
+      __m512i p13 = _mm512_mul_epu32(_mm512_srli_epi64(x0, 32), m0);
+      __m512i lo0 = _mm512_or_si512(_mm512_and_si512(p02, low),
+                                    _mm512_slli_epi64(p13, 32));
+      __m512i hi0 = _mm512_or_si512(_mm512_srli_epi64(p02, 32),
+                                    _mm512_andnot_si512(low, p13));
+      p02 = _mm512_mul_epu32(x2, m1);
+      p13 = _mm512_mul_epu32(_mm512_srli_epi64(x2, 32), m1);
+      __m512i lo1 = _mm512_or_si512(_mm512_and_si512(p02, low),
+                                    _mm512_slli_epi64(p13, 32));
+      __m512i hi1 = _mm512_or_si512(_mm512_srli_epi64(p02, 32),
+                                    _mm512_andnot_si512(low, p13));
+      x0 = _mm512_xor_si512(_mm512_xor_si512(hi1, x1),
+                            _mm512_set1_epi32((int)k0));
+      x2 = _mm512_xor_si512(_mm512_xor_si512(hi0, x3),
+                            _mm512_set1_epi32((int)k1));
+      x1 = lo1;
+      x3 = lo0;
+      k0 += PHILOX_W0;
+      k1 += PHILOX_W1;
+    }
+    _mm512_storeu_si512((void *)(w0 + t), x0);
+    _mm512_storeu_si512((void *)(w1 + t), x1);
+    _mm512_storeu_si512((void *)(w2 + t), x2);
+    _mm512_storeu_si512((void *)(w3 + t), x3);
+  }
+}
 #define FG_HAVE_AVX2_PATH 1
 #endif
 
 /* Which cipher path runs: set once by fg_stream_init, read by all. Tests
- * may force the portable paths (fg_stream_force_portable). */
-static int use_avx2;
+ * may force the narrower paths (fg_stream_force_portable). */
+static int use_avx2, use_avx512;
 
 void fg_stream_philox(fg_stream_key key, uint64_t first, int n, uint32_t slot,
                       uint32_t draw, fg_stream_words *w) {
@@ -239,7 +282,11 @@ void fg_stream_philox(fg_stream_key key, uint64_t first, int n, uint32_t slot,
   }
   int t0 = 0;
 #if defined(FG_HAVE_AVX2_PATH)
-  if (use_avx2) {
+  if (use_avx512) {
+    philox_avx512(w->w[0], w->w[1], w->w[2], w->w[3], n, key);
+    t0 = n & ~15;
+  }
+  if (use_avx2 && t0 == 0) {
     philox_avx2(w->w[0], w->w[1], w->w[2], w->w[3], n, key);
     t0 = n & ~7;
   }
@@ -338,6 +385,7 @@ static void zig_init(void) {
 #if defined(FG_HAVE_AVX2_PATH)
   __builtin_cpu_init();
   use_avx2 = __builtin_cpu_supports("avx2");
+  use_avx512 = __builtin_cpu_supports("avx512f");
 #endif
   double lo = 3.0, hi = 4.5; /* brackets r for 256 slabs */
   for (int it = 0; it < 200 && hi - lo > 0; it++) {
@@ -359,12 +407,13 @@ void fg_stream_init(void) {
   pthread_once(&zig_once, zig_init);
 }
 
-void fg_stream_force_portable(int on) {
+void fg_stream_force_portable(int level) {
   fg_stream_init();
 #if defined(FG_HAVE_AVX2_PATH)
-  use_avx2 = on ? 0 : __builtin_cpu_supports("avx2");
+  use_avx2 = level < 2 && __builtin_cpu_supports("avx2");
+  use_avx512 = level < 1 && __builtin_cpu_supports("avx512f");
 #else
-  (void)on;
+  (void)level;
 #endif
 }
 

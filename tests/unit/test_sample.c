@@ -1006,13 +1006,14 @@ static void test_block_streams(void) {
   static fg_stream_words w;
   const uint64_t firsts[2] = {12345, (UINT64_C(1) << 32) - 100};
   int same_cipher = 1;
-  /* every code path (AVX2 where present, SSE2, scalar), every lane count */
-  for (int f = 0; f < 4; f++) {
-    fg_stream_force_portable(f & 1);
-    int n = f < 2 ? FG_BLOCK : FG_BLOCK - 5;
-    fg_stream_philox(key, firsts[f >> 1], n, 77, 3, &w);
+  /* every code path (AVX-512F, AVX2 where present, SSE2, scalar), and
+   * lane counts that leave lanes over for the narrower paths */
+  for (int f = 0; f < 12; f++) {
+    fg_stream_force_portable(f % 3);
+    int n = (f / 3) % 2 ? FG_BLOCK - 5 : FG_BLOCK;
+    fg_stream_philox(key, firsts[f / 6], n, 77, 3, &w);
     for (int t = 0; t < n; t++) {
-      uint64_t i = firsts[f >> 1] + (uint64_t)t;
+      uint64_t i = firsts[f / 6] + (uint64_t)t;
       philox4x32_ctr_t c = {{(uint32_t)i, (uint32_t)(i >> 32), 77, 3}};
       philox4x32_key_t k = {{key.k0, key.k1}};
       philox4x32_ctr_t r = philox4x32(c, k);
