@@ -66,8 +66,8 @@ static void fill_term(fg_chain_term *t, const fg_insn *in, int which) {
 /* Must term q's destination reach memory? Not when it is no root and the
  * next reference to its register after the chain's next term (which takes
  * it in the accumulator) is a write, so no one could read the value. */
-static bool needs_store(const fg_program *prog, const bool *root, int j,
-                        int q, int len) {
+static bool needs_store(const fg_program *prog, const bool *root, int j, int q,
+                        int len) {
   const int nb = prog->info.nblock_insns;
   int reg = prog->block[j + q].d;
   if (q == len - 1 || root[reg]) return true;
@@ -123,15 +123,14 @@ bool fg_expr_fuse(fg_program *prog) {
       continue;
     }
     if (j > plain_start)
-      segs[nsegs++] = (fg_segment){.start = plain_start,
-                                   .count = j - plain_start,
-                                   .chain = false};
-    segs[nsegs++] = (fg_segment){.start = j,
-                                 .count = len,
-                                 .chain = true,
-                                 .term0 = nterms,
-                                 .addend = head->op == FG_OP_MULADD ? head->c
-                                                                    : -1};
+      segs[nsegs++] = (fg_segment){
+          .start = plain_start, .count = j - plain_start, .chain = false};
+    segs[nsegs++] =
+        (fg_segment){.start = j,
+                     .count = len,
+                     .chain = true,
+                     .term0 = nterms,
+                     .addend = head->op == FG_OP_MULADD ? head->c : -1};
     for (int q = 0; q < len; q++) {
       const fg_insn *in = &prog->block[j + q];
       int prev_d = q ? prog->block[j + q - 1].d : -1;

@@ -196,10 +196,10 @@ void fg_program_broadcast(const fg_program *prog, const double *setup_regs,
  * with the products and sums rounded one by one as MUL and MULADD do.
  * Lanes go in tiles of 8 whose accumulator stays in registers; each term
  * loads V_q's tile and stores d_q's when anyone reads it (fuse.c), in term
- * order, so a later term that reads an earlier destination finds it. Per lane the operations and their
- * order are those of the instruction-at-a-time loop (SSE2's packed
- * multiply and add are the same IEEE operations), so the results are the
- * same bits. */
+ * order, so a later term that reads an earlier destination finds it. Per lane
+ * the operations and their order are those of the instruction-at-a-time loop
+ * (SSE2's packed multiply and add are the same IEEE operations), so the results
+ * are the same bits. */
 #define CHAIN_TILE 16
 
 #if defined(__SSE2__)

@@ -293,8 +293,8 @@ static void lower_tile(const double *chol, const double *mean, int d, int t0,
 }
 #endif
 
-void fg_family_lower_apply(const double *chol, const double *mean, int d,
-                           int n, double *const *cols) {
+void fg_family_lower_apply(const double *chol, const double *mean, int d, int n,
+                           double *const *cols) {
   int t0 = 0;
   for (; t0 + TILE <= n; t0 += TILE)
     lower_tile(chol, mean, d, t0, cols);

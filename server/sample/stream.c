@@ -143,8 +143,8 @@ static inline void mulhilo4(__m128i a, __m128i m, __m128i *hi, __m128i *lo) {
   *hi = _mm_or_si128(_mm_srli_epi64(p02, 32), _mm_andnot_si128(low, p13));
 }
 
-static void philox_sse2(uint32_t *w0, uint32_t *w1, uint32_t *w2,
-                        uint32_t *w3, int n, fg_stream_key key) {
+static void philox_sse2(uint32_t *w0, uint32_t *w1, uint32_t *w2, uint32_t *w3,
+                        int n, fg_stream_key key) {
   const __m128i m0 = _mm_set1_epi32((int)PHILOX_M0);
   const __m128i m1 = _mm_set1_epi32((int)PHILOX_M1);
   for (int t = 0; t + 4 <= n; t += 4) {
@@ -175,10 +175,10 @@ static void philox_sse2(uint32_t *w0, uint32_t *w1, uint32_t *w2,
 #if defined(__x86_64__) && defined(__GNUC__)
 /* The same rounds eight lanes at a time where the processor has AVX2,
  * chosen at run time (fg_stream_init), and sixteen with AVX-512F. Only
- * these integer functions are compiled for those extensions: its output is the same bits on every path (the unit
- * test compares all paths' words with Random123's), so results still agree
- * across machines; no floating-point code is compiled for a particular
- * processor. */
+ * these integer functions are compiled for those extensions: their output is
+ * the same bits on every path (the unit test compares all paths' words with
+ * Random123's), so results still agree across machines; no floating-point code
+ * is compiled for a particular processor. */
 #include <immintrin.h>
 
 __attribute__((target("avx2"))) static void
