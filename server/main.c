@@ -146,10 +146,12 @@ static void print_summary(cJSON *res) {
          cJSON_GetStringValue(cJSON_GetObjectItem(iv, "method")),
          cJSON_GetNumberValue(cJSON_GetObjectItem(res, "target")),
          cJSON_GetNumberValue(cJSON_GetObjectItem(res, "confidence")));
-  printf("samples    %.0f satisfied of %.0f, seed %.0f\n",
+  /* The seed is written as integer text (a raw item), not a double. */
+  const cJSON *seed = cJSON_GetObjectItem(res, "seed");
+  printf("samples    %.0f satisfied of %.0f, seed %s\n",
          cJSON_GetNumberValue(cJSON_GetObjectItem(j, "satisfied")),
          cJSON_GetNumberValue(cJSON_GetObjectItem(j, "samples")),
-         cJSON_GetNumberValue(cJSON_GetObjectItem(res, "seed")));
+         cJSON_IsRaw(seed) ? seed->valuestring : "?");
   const cJSON *det = cJSON_GetObjectItem(res, "deterministic");
   const cJSON *pr;
   cJSON_ArrayForEach(pr, cJSON_GetObjectItem(det, "problems"))

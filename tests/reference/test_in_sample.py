@@ -59,4 +59,15 @@ vrows = json.loads(run_scenarios(model, 20000, 3, stream="validation"))["rows"]
 vexpect = sum(1 for r in vrows if not broken(r))
 c.check(res["joint"]["satisfied"] == vexpect,
         "joint count %d equals the recomputed %d" % (res["joint"]["satisfied"], vexpect))
+# The offline summary table names the same figures (and the seed as text).
+import os, subprocess, tempfile  # noqa: E402
+from refcommon import BIN  # noqa: E402
+with tempfile.TemporaryDirectory() as d:
+    mp, rp = os.path.join(d, "m.json"), os.path.join(d, "r.json")
+    json.dump(model, open(mp, "w"))
+    json.dump({"decision": {"cap": cap}, "samples": 20000, "seed": 3}, open(rp, "w"))
+    out = subprocess.run([BIN, "check", mp, rp, "--summary"], capture_output=True, text=True).stdout
+c.check("%d satisfied of 20000, seed 3" % vexpect in out, "--summary states the counts and the seed")
+c.check(out.index("first") < out.index("second") or out.index("second") < out.index("first"),
+        "--summary lists the rows")
 c.finish()
