@@ -4,6 +4,8 @@
   the store it is given (binary from $FEASGATE_BIN, which ctest sets per
   build); the bound address is read from the first line of its standard
   error, which a thread keeps draining.
+- Daemon.request() answers the parsed body, Daemon.fetch() the raw bytes;
+  both check the answer against its schema when given `results`.
 - Results: pass/fail counters and the "N passed, N failed" summary line.
 - Schemas: every answer body checked against its schema in schemas/.
   Which schema applies is read from schemas/openapi.json (path template,
@@ -226,9 +228,9 @@ class Daemon:
         finally:
             conn.close()
 
-    def request(self, method, path, body=None, headers=None):
-        """(status, headers, parsed body or raw bytes); JSON bodies are
-        sent as application/json unless headers say otherwise."""
+    def _send(self, method, path, body, headers):
+        """raw() with a dict or list body sent as JSON (application/json
+        unless headers say otherwise) and a str body as UTF-8."""
         hdrs = dict(headers or {})
         data = body
         if isinstance(body, (dict, list)):
@@ -236,7 +238,20 @@ class Daemon:
             hdrs.setdefault("Content-Type", "application/json")
         elif isinstance(body, str):
             data = body.encode()
-        status, out, raw = self.raw(method, path, data, hdrs)
+        return self.raw(method, path, data, hdrs)
+
+    def fetch(self, method, path, body=None, headers=None):
+        """(status, headers, raw bytes): request() for scripts that compare
+        answers byte for byte; checked against its schema all the same."""
+        status, out, raw = self._send(method, path, body, headers)
+        if self.results is not None:
+            self.check_schema(method, path, status, out, raw)
+        return status, out, raw
+
+    def request(self, method, path, body=None, headers=None):
+        """(status, headers, parsed body or raw bytes); JSON bodies are
+        sent as application/json unless headers say otherwise."""
+        status, out, raw = self._send(method, path, body, headers)
         parsed = raw
         if raw and "json" in out.get("content-type", ""):
             try:

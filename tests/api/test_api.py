@@ -1,16 +1,16 @@
 #!/usr/bin/python3
 """tests/api/test_api.py -- the feasgate daemon driven over real HTTP.
 
-Starts `feasgate serve` on an ephemeral loopback port with a temporary
-SQLite store (the binary comes from $FEASGATE_BIN), reads the bound address
-from the first line of its standard error, and exercises the API contract:
-model registration and versions, synchronous and asynchronous checks, the
-check log with filters and paging, problem documents for bad input, routing
-errors, body limits, retiring, start-up settings, a clean stop on SIGTERM,
-the store surviving a restart, and a SIGKILL while a check runs (answered
-checks kept, the running one marked interrupted, the file intact). Every
-answer body is checked against its schema in schemas/ (apicommon.py; needs
-python3-jsonschema).
+Starts `feasgate serve` (apicommon.Daemon) on an ephemeral loopback port
+with a temporary SQLite store (the binary comes from $FEASGATE_BIN), reads
+the bound address from the first line of its standard error, and exercises
+the API contract: model registration and versions, synchronous and
+asynchronous checks, the check log with filters and paging, problem
+documents for bad input, routing errors, body limits, retiring, start-up
+settings, a clean stop on SIGTERM, the store surviving a restart, and a
+SIGKILL while a check runs (answered checks kept, the running one marked
+interrupted, the file intact). Every answer body is checked against its
+schema in schemas/ (apicommon.py; needs python3-jsonschema).
 
 Prints one line per failed check and
 "N passed, N failed" as the last line; exits non-zero on any failure.
@@ -19,7 +19,6 @@ import http.client
 import json
 import os
 import re
-import signal
 import sqlite3
 import subprocess
 import sys
@@ -28,102 +27,22 @@ import threading
 import time
 
 import apicommon
+from apicommon import BIN, Results, is_problem
 
-BIN = os.environ.get("FEASGATE_BIN", "build/feasgate")
-START_TIMEOUT_S = 20
-STOP_TIMEOUT_S = 60
 # Large enough that a check asked to wait 0 s is still running when
 # answered (202), small enough to end within seconds on 2 cores.
 ASYNC_SAMPLES = 20000000
 
-passed = 0
-failed = 0
+results = Results()
+check = results.check
 
 
-def check(cond, what):
-    global passed, failed
-    if cond:
-        passed += 1
-    else:
-        failed += 1
-        print("FAIL: " + what, flush=True)
-    return cond
-
-
-class Daemon:
-    """One `feasgate serve` process; stderr is drained by a thread."""
+class Daemon(apicommon.Daemon):
+    """apicommon's daemon, every answer checked against its schema and
+    counted in this script's results."""
 
     def __init__(self, store_url, *extra, env=None):
-        args = [BIN, "serve", "--listen", "127.0.0.1:0", "--store", store_url,
-                "--workers", "2"] + list(extra)
-        self.proc = subprocess.Popen(args, stdin=subprocess.DEVNULL,
-                                     stdout=subprocess.DEVNULL,
-                                     stderr=subprocess.PIPE, env=env)
-        self.lines = []
-        self.first = None
-        ready = threading.Event()
-
-        def drain():
-            for raw in self.proc.stderr:
-                line = raw.decode("utf-8", "replace").rstrip("\n")
-                self.lines.append(line)
-                if self.first is None:
-                    self.first = line
-                    ready.set()
-            ready.set()
-
-        self.thread = threading.Thread(target=drain, daemon=True)
-        self.thread.start()
-        ready.wait(START_TIMEOUT_S)
-        self.address = None
-        try:
-            self.address = json.loads(self.first or "")["address"]
-        except (ValueError, KeyError, TypeError):
-            pass
-        if self.address:
-            self.host, port = self.address.rsplit(":", 1)
-            self.port = int(port)
-
-    def request(self, method, path, body=None, headers=None):
-        """(status, headers dict (lower-case names), parsed or raw body)."""
-        conn = http.client.HTTPConnection(self.host, self.port, timeout=120)
-        hdrs = dict(headers or {})
-        data = body
-        if isinstance(body, (dict, list)):
-            data = json.dumps(body).encode()
-            hdrs.setdefault("Content-Type", "application/json")
-        elif isinstance(body, str):
-            data = body.encode()
-        conn.request(method, path, body=data, headers=hdrs)
-        resp = conn.getresponse()
-        raw = resp.read()
-        out_headers = {k.lower(): v for k, v in resp.getheaders()}
-        conn.close()
-        parsed = raw
-        ctype = out_headers.get("content-type", "")
-        if raw and "json" in ctype:
-            try:
-                parsed = json.loads(raw)
-            except ValueError:
-                parsed = raw
-        # every answer is checked against its schema in schemas/
-        msgs = apicommon.schemas().problems(method, path, resp.status,
-                                            out_headers, parsed)
-        check(not msgs, "; ".join(msgs))
-        return resp.status, out_headers, parsed
-
-    def stop(self):
-        """SIGTERM; the exit status (None if it had to be killed)."""
-        if self.proc.poll() is None:
-            self.proc.send_signal(signal.SIGTERM)
-        try:
-            code = self.proc.wait(STOP_TIMEOUT_S)
-        except subprocess.TimeoutExpired:
-            self.proc.kill()
-            self.proc.wait()
-            code = None
-        self.thread.join(5)
-        return code
+        super().__init__(store_url, *extra, env=env, results=results)
 
 
 def model_doc(name, bound=3, title="API test model"):
@@ -139,14 +58,6 @@ def model_doc(name, bound=3, title="API test model"):
             {"name": "first", "require": "u + x <= %g" % bound},
             {"name": "second", "require": "y[0] + y[1] - u <= 6"}],
     }
-
-
-def is_problem(status, headers, body, code):
-    return (status == code
-            and headers.get("content-type", "").startswith(
-                "application/problem+json")
-            and isinstance(body, dict) and body.get("status") == code
-            and "title" in body and "detail" in body and "type" in body)
 
 
 DIGEST = re.compile(r"^sha256:[0-9a-f]{64}$")
@@ -680,8 +591,7 @@ def main():
         test_usage(tmp)
         test_overload(tmp)
         test_crash(tmp)
-    print("%d passed, %d failed" % (passed, failed))
-    return 1 if failed else 0
+    return results.summary()
 
 
 if __name__ == "__main__":

@@ -1,9 +1,9 @@
 #!/usr/bin/python3
 """tests/api/test_scenarios.py -- GET /v1/models/{name}/scenarios over HTTP.
 
-Starts `feasgate serve` ($FEASGATE_BIN) on an ephemeral loopback port with a
-temporary SQLite store and --max-scenarios 600, as tests/api/test_api.py
-does, registers a small model with continuous, integer-valued and
+Starts `feasgate serve` (apicommon.Daemon, binary from $FEASGATE_BIN) on an
+ephemeral loopback port with a temporary SQLite store and --max-scenarios
+600, registers a small model with continuous, integer-valued and
 copula-tied inputs, and checks:
   - the JSON shape (columns, rows, seed, stream, start) and the CSV shape
     (RFC 4180: header row, CRLF, integer columns without decimals), and
@@ -16,99 +16,25 @@ copula-tied inputs, and checks:
     the parameter), unknown model (404), retired model (410), wrong method
     (405).
 
-Standard library only. Prints one line per failed check and
+Standard library (plus apicommon's jsonschema checks of every answer).
+Prints one line per failed check and
 "N passed, N failed" as the last line; exits non-zero on any failure.
 """
 import csv
-import http.client
 import io
 import json
 import os
-import signal
 import subprocess
 import sys
 import tempfile
-import threading
 import urllib.parse
 
-import apicommon
+from apicommon import BIN, Daemon, Results
 
-BIN = os.environ.get("FEASGATE_BIN", "build/feasgate")
-START_TIMEOUT_S = 20
 MAX_SCENARIOS = 600
 
-passed = 0
-failed = 0
-
-
-def check(cond, what):
-    global passed, failed
-    if cond:
-        passed += 1
-    else:
-        failed += 1
-        print("FAIL: " + what, flush=True)
-    return cond
-
-
-class Daemon:
-    """One `feasgate serve` process; stderr is drained by a thread."""
-
-    def __init__(self, store_url, *extra):
-        args = [BIN, "serve", "--listen", "127.0.0.1:0", "--store", store_url,
-                "--workers", "2"] + list(extra)
-        self.proc = subprocess.Popen(args, stdin=subprocess.DEVNULL,
-                                     stdout=subprocess.DEVNULL,
-                                     stderr=subprocess.PIPE)
-        self.first = None
-        ready = threading.Event()
-
-        def drain():
-            for raw in self.proc.stderr:
-                if self.first is None:
-                    self.first = raw.decode("utf-8", "replace").rstrip("\n")
-                    ready.set()
-            ready.set()
-
-        self.thread = threading.Thread(target=drain, daemon=True)
-        self.thread.start()
-        ready.wait(START_TIMEOUT_S)
-        self.address = None
-        try:
-            self.address = json.loads(self.first or "")["address"]
-            self.host, port = self.address.rsplit(":", 1)
-            self.port = int(port)
-        except (ValueError, KeyError, TypeError):
-            self.address = None
-
-    def request(self, method, path, body=None, headers=None):
-        """(status, headers (lower-case names), raw body bytes)."""
-        conn = http.client.HTTPConnection(self.host, self.port, timeout=120)
-        hdrs = dict(headers or {})
-        data = None
-        if body is not None:
-            data = json.dumps(body).encode()
-            hdrs["Content-Type"] = "application/json"
-        conn.request(method, path, body=data, headers=hdrs)
-        resp = conn.getresponse()
-        raw = resp.read()
-        out = {k.lower(): v for k, v in resp.getheaders()}
-        conn.close()
-        # every answer is checked against its schema in schemas/
-        msgs = apicommon.schemas().problems(method, path, resp.status, out,
-                                            raw)
-        check(not msgs, "; ".join(msgs))
-        return resp.status, out, raw
-
-    def stop(self):
-        if self.proc.poll() is None:
-            self.proc.send_signal(signal.SIGTERM)
-        try:
-            return self.proc.wait(60)
-        except subprocess.TimeoutExpired:
-            self.proc.kill()
-            self.proc.wait()
-            return None
+results = Results()
+check = results.check
 
 
 MODEL = {
@@ -135,7 +61,7 @@ def path(name="scen-api", **params):
 
 
 def get_json(d, **params):
-    st, h, raw = d.request("GET", path(**params))
+    st, h, raw = d.fetch("GET", path(**params))
     body = None
     if st == 200 and h.get("content-type", "").startswith("application/json"):
         body = json.loads(raw)
@@ -143,7 +69,7 @@ def get_json(d, **params):
 
 
 def problem(d, p, code, word, what, method="GET", headers=None):
-    st, h, raw = d.request(method, p, headers=headers)
+    st, h, raw = d.fetch(method, p, headers=headers)
     try:
         b = json.loads(raw)
     except ValueError:
@@ -174,7 +100,7 @@ def test_shapes(d):
     check(len(set(tuple(r) for r in rows)) == 300, "no two scenarios repeat")
 
     # CSV of the same request
-    st, h, raw = d.request("GET", path(count=300, seed=7),
+    st, h, raw = d.fetch("GET", path(count=300, seed=7),
                            headers={"Accept": "text/csv"})
     check(st == 200 and h.get("content-type", "").startswith("text/csv"),
           "CSV with Accept: text/csv, got %d %r" % (st, h.get("content-type")))
@@ -191,11 +117,11 @@ def test_shapes(d):
     check(same, "CSV and JSON carry exactly the same numbers")
 
     # content negotiation: JSON wins unless CSV is preferred
-    st, h, _ = d.request("GET", path(count=2, seed=7),
+    st, h, _ = d.fetch("GET", path(count=2, seed=7),
                          headers={"Accept": "text/csv;q=0.4, application/json"})
     check(st == 200 and h.get("content-type", "").startswith("application/json"),
           "Accept preferring JSON gives JSON")
-    st, h, _ = d.request("GET", path(count=2, seed=7),
+    st, h, _ = d.fetch("GET", path(count=2, seed=7),
                          headers={"Accept": "application/json;q=0.2, text/csv"})
     check(st == 200 and h.get("content-type", "").startswith("text/csv"),
           "Accept preferring CSV gives CSV")
@@ -234,7 +160,7 @@ def test_determinism(d, bulk, tmp):
         p = subprocess.run([BIN, "scenarios", mp, "--count", "40", "--seed", "7",
                             "--start", "250", "--stream", "validation"] + extra,
                            capture_output=True, timeout=60)
-        st, h, raw = d.request("GET", path(count=40, seed=7, start=250,
+        st, h, raw = d.fetch("GET", path(count=40, seed=7, start=250,
                                            stream="validation"), headers=hdrs)
         check(p.returncode == 0 and st == 200 and p.stdout == raw,
               "%s: daemon and `feasgate scenarios` print the same bytes" % fmt)
@@ -269,7 +195,7 @@ def test_errors(d):
 
 
 def test_retired(d):
-    st, _, _ = d.request("DELETE", "/v1/models/scen-api")
+    st, _, _ = d.fetch("DELETE", "/v1/models/scen-api")
     check(st == 204, "retire the model: 204, got %d" % st)
     problem(d, path(count=1, seed=1), 410, "retired", "scenarios of a retired model")
 
@@ -280,10 +206,11 @@ def main():
         print("0 passed, 1 failed")
         return 1
     with tempfile.TemporaryDirectory(prefix="feasgate-scen-") as tmp:
-        d = Daemon("sqlite:%s/s.db" % tmp, "--max-scenarios", str(MAX_SCENARIOS))
+        d = Daemon("sqlite:%s/s.db" % tmp, "--max-scenarios", str(MAX_SCENARIOS),
+                   results=results)
         if check(d.address is not None, "daemon started; first line %r" % d.first):
             try:
-                st, h, raw = d.request("POST", "/v1/models", MODEL)
+                st, h, raw = d.fetch("POST", "/v1/models", MODEL)
                 if check(st in (200, 201), "register: %d %s" % (st, raw[:300])):
                     bulk = test_shapes(d)
                     if bulk:
@@ -293,8 +220,7 @@ def main():
             except Exception as e:  # a crash of the test is a failure
                 check(False, "exception %r" % e)
         check(d.stop() == 0, "SIGTERM: exit status 0")
-    print("%d passed, %d failed" % (passed, failed))
-    return 1 if failed else 0
+    return results.summary()
 
 
 if __name__ == "__main__":

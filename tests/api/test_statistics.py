@@ -2,7 +2,7 @@
 """tests/api/test_statistics.py -- sample sizes and comparisons over HTTP.
 
 Starts `feasgate serve` on an ephemeral loopback port with a temporary
-SQLite store (the Daemon helper of test_api.py) and exercises:
+SQLite store (apicommon.Daemon) and exercises:
   - GET /v1/sample-size in its four forms, with the normal-approximation
     answers recomputed here from the standard library's NormalDist (the
     formulas of the sample-size section of the design notes), and 400
@@ -15,7 +15,8 @@ SQLite store (the Daemon helper of test_api.py) and exercises:
     pairs in list order, and 400 / 404 problems for bad bodies and unknown
     models.
 
-Standard library only. Prints one line per failed check and
+Standard library (plus apicommon's jsonschema checks of every answer).
+Prints one line per failed check and
 "N passed, N failed" as the last line; exits non-zero on any failure.
 """
 import math
@@ -25,28 +26,11 @@ import tempfile
 import urllib.parse
 from statistics import NormalDist
 
-from apicommon import BIN, Daemon, is_problem
+from apicommon import BIN, Daemon, Results, is_problem
 from test_api import model_doc
 
-passed = 0
-failed = 0
-
-
-def check(cond, what):
-    global passed, failed
-    if cond:
-        passed += 1
-    else:
-        failed += 1
-        print("FAIL: " + what, flush=True)
-    return cond
-
-
-class _SchemaResults:
-    """Routes the Daemon helper's schema checks into this script's count."""
-
-    def check(self, cond, what):
-        return check(cond, "schema: " + what)
+results = Results()
+check = results.check
 
 
 def size(d, **params):
@@ -271,15 +255,14 @@ def main():
         return 1
     with tempfile.TemporaryDirectory(prefix="feasgate-stat-") as tmp:
         # Every answer is also checked against its schema in schemas/.
-        d = Daemon("sqlite:%s/stat.db" % tmp, results=_SchemaResults())
+        d = Daemon("sqlite:%s/stat.db" % tmp, results=results)
         if check(d.address is not None, "daemon started"):
             test_sizes(d)
             test_comparisons(d)
             st, h, b = d.request("GET", "/v1/health")
             check(st == 200, "daemon still healthy")
         check(d.stop() == 0, "daemon stops cleanly")
-    print("%d passed, %d failed" % (passed, failed))
-    return 1 if failed else 0
+    return results.summary()
 
 
 if __name__ == "__main__":

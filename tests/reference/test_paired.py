@@ -15,7 +15,8 @@ Sources:
     the same seed by the offline command `feasgate check` (common random
     numbers: the same seed gives the same validation scenarios).
 
-The daemon is started as in tests/api/test_api.py (its Daemon helper).
+The daemon is tests/api/apicommon.py's Daemon, every answer checked against
+its schema and counted with the checks here.
 """
 import math
 import os
@@ -27,7 +28,7 @@ from scipy.stats import norm
 from statsmodels.stats.proportion import proportion_confint
 
 sys.path.insert(0, os.path.join(ROOT, "tests", "api"))
-from test_api import Daemon  # noqa: E402
+from apicommon import Daemon  # noqa: E402
 
 c = Counter()
 
@@ -94,7 +95,7 @@ SETS = [
 worst_iv = 0.0
 npairs = 0
 with tempfile.TemporaryDirectory(prefix="feasgate-paired-") as tmp:
-    d = Daemon("sqlite:%s/p.db" % tmp)
+    d = Daemon("sqlite:%s/p.db" % tmp, results=c)
     c.check(d.address is not None, "daemon started")
     if d.address:
         st, h, b = d.request("POST", "/v1/models", MODEL)
