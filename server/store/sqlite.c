@@ -301,6 +301,27 @@ static void tx_rollback(fg_store *s) {
   if (!sqlite3_get_autocommit(s->db)) exec_stmt(s->stmt[ST_ROLLBACK]);
 }
 
+/* Ends the open write transaction: COMMIT when `res` is FG_OK (its failure
+ * reported as `what`), ROLLBACK when `res` is a failure or the commit
+ * failed. Returns the outcome of the whole write. */
+static fg_status tx_end(fg_store *s, fg_status res, const char *what,
+                        fg_problem *p) {
+  if (res == FG_OK) {
+    int rc = tx_commit(s);
+    if (rc != SQLITE_OK) res = db_fault(s, p, what, rc);
+  }
+  if (res != FG_OK) tx_rollback(s);
+  return res;
+}
+
+/* Releases the lock of a public call and passes `res` on. The argument is
+ * evaluated first, so a problem that quotes the connection's message is
+ * written while the lock is still held. */
+static fg_status unlock_with(fg_store *s, fg_status res) {
+  pthread_mutex_unlock(&s->lock);
+  return res;
+}
+
 /* mkdir -p of the folder holding `path`. */
 static int make_parents(const char *path) {
   char buf[FG_STORE_PATH_MAX];
@@ -518,12 +539,10 @@ fg_status fg_store_put_version(fg_store *s, const char *name,
   char now[32];
   now_rfc3339(now);
   pthread_mutex_lock(&s->lock);
-  fg_status res = FG_OK;
   int rc = tx_begin(s);
-  if (rc != SQLITE_OK) {
-    res = db_fault(s, p, "begin (register model)", rc);
-    goto out;
-  }
+  if (rc != SQLITE_OK)
+    return unlock_with(s, db_fault(s, p, "begin (register model)", rc));
+  fg_status res = FG_OK;
   /* Latest version and its digest. */
   sqlite3_stmt *st = s->stmt[ST_LATEST];
   bind_text(st, 1, name);
@@ -541,7 +560,7 @@ fg_status fg_store_put_version(fg_store *s, const char *name,
   done_stmt(st);
   if (rc != SQLITE_OK) {
     res = db_fault(s, p, "reading the latest version", rc);
-    goto rollback;
+    goto end;
   }
   /* The upsert revives a retired name, also when the document is the same
    * as its latest version. */
@@ -551,7 +570,7 @@ fg_status fg_store_put_version(fg_store *s, const char *name,
   rc = write_step(s, st);
   if (rc != SQLITE_OK) {
     res = db_fault(s, p, "writing the model", rc);
-    goto rollback;
+    goto end;
   }
   if (!same) {
     st = s->stmt[ST_VERSION_INSERT];
@@ -564,24 +583,17 @@ fg_status fg_store_put_version(fg_store *s, const char *name,
     rc = write_step(s, st);
     if (rc != SQLITE_OK) {
       res = db_fault(s, p, "writing the version", rc);
-      goto rollback;
+      goto end;
     }
   }
   res = get_version_locked(s, name, same ? latest : latest + 1, out, p);
-  if (res != FG_OK) goto rollback;
-  rc = tx_commit(s);
-  if (rc != SQLITE_OK) {
+end:
+  res = tx_end(s, res, "commit (register model)", p);
+  if (res == FG_OK)
+    *created = !same;
+  else
     fg_store_version_clear(out);
-    res = db_fault(s, p, "commit (register model)", rc);
-    goto rollback;
-  }
-  *created = !same;
-  goto out;
-rollback:
-  tx_rollback(s);
-out:
-  pthread_mutex_unlock(&s->lock);
-  return res;
+  return unlock_with(s, res);
 }
 
 fg_status fg_store_get_version(fg_store *s, const char *name, int version,
@@ -641,32 +653,17 @@ fg_status fg_store_retire_model(fg_store *s, const char *name, fg_problem *p) {
   pthread_mutex_lock(&s->lock);
   fg_status res = FG_OK;
   int rc = tx_begin(s);
-  if (rc != SQLITE_OK) {
-    res = db_fault(s, p, "begin (retire model)", rc);
-    goto out;
-  }
+  if (rc != SQLITE_OK)
+    return unlock_with(s, db_fault(s, p, "begin (retire model)", rc));
   sqlite3_stmt *st = s->stmt[ST_RETIRE];
   bind_text(st, 1, name);
   rc = write_step(s, st);
-  if (rc != SQLITE_OK) {
-    res = db_fault(s, p, "retiring a model", rc);
-    tx_rollback(s);
-    goto out;
-  }
   /* Rows matched, also when already retired: retiring twice is no error. */
-  if (sqlite3_changes(s->db) == 0) {
+  if (rc != SQLITE_OK)
+    res = db_fault(s, p, "retiring a model", rc);
+  else if (sqlite3_changes(s->db) == 0)
     res = fg_problem_set(p, FG_ENOTFOUND, "no model named '%s'", name);
-    tx_rollback(s);
-    goto out;
-  }
-  rc = tx_commit(s);
-  if (rc != SQLITE_OK) {
-    res = db_fault(s, p, "commit (retire model)", rc);
-    tx_rollback(s);
-  }
-out:
-  pthread_mutex_unlock(&s->lock);
-  return res;
+  return unlock_with(s, tx_end(s, res, "commit (retire model)", p));
 }
 
 /* ---- checks ---- */
@@ -723,19 +720,10 @@ static fg_status write_one(fg_store *s, sqlite3_stmt *st, const char *what,
                            sqlite3_errmsg(s->db));
     else
       res = db_fault(s, p, what, rc);
-    tx_rollback(s);
-    return res;
+  } else if (must_change && sqlite3_changes(s->db) == 0) {
+    res = fg_problem_set(p, FG_ENOTFOUND, "no check with id '%s'", id);
   }
-  if (must_change && sqlite3_changes(s->db) == 0) {
-    tx_rollback(s);
-    return fg_problem_set(p, FG_ENOTFOUND, "no check with id '%s'", id);
-  }
-  rc = tx_commit(s);
-  if (rc != SQLITE_OK) {
-    res = db_fault(s, p, what, rc);
-    tx_rollback(s);
-  }
-  return res;
+  return tx_end(s, res, what, p);
 }
 
 fg_status fg_store_put_check(fg_store *s, const fg_store_check *c,
@@ -882,14 +870,10 @@ fg_status fg_store_mark_interrupted(fg_store *s, int *count, fg_problem *p) {
     rc = write_step(s, st);
     if (rc == SQLITE_OK) *count = sqlite3_changes(s->db);
   }
-  if (rc == SQLITE_OK) rc = tx_commit(s);
-  if (rc != SQLITE_OK) {
-    *count = 0;
-    res = db_fault(s, p, "marking interrupted checks", rc);
-    tx_rollback(s);
-  }
-  pthread_mutex_unlock(&s->lock);
-  return res;
+  if (rc != SQLITE_OK) res = db_fault(s, p, "marking interrupted checks", rc);
+  res = tx_end(s, res, "marking interrupted checks", p);
+  if (res != FG_OK) *count = 0;
+  return unlock_with(s, res);
 }
 
 void fg_store_inject_write_fault(fg_store *s, int nth) {
@@ -907,12 +891,10 @@ fg_status fg_store_put_key(fg_store *s, const fg_store_key *k, fg_problem *p) {
   else
     now_rfc3339(now);
   pthread_mutex_lock(&s->lock);
-  fg_status res = FG_OK;
   int rc = tx_begin(s);
-  if (rc != SQLITE_OK) {
-    res = db_fault(s, p, "begin (add key)", rc);
-    goto out;
-  }
+  if (rc != SQLITE_OK)
+    return unlock_with(s, db_fault(s, p, "begin (add key)", rc));
+  fg_status res = FG_OK;
   sqlite3_stmt *st = s->stmt[ST_KEY_EXISTS];
   bind_text(st, 1, k->name);
   rc = sqlite3_step(st);
@@ -922,11 +904,11 @@ fg_status fg_store_put_key(fg_store *s, const fg_store_key *k, fg_problem *p) {
                          "a key named '%s' exists already; names are never "
                          "reused, also after revocation",
                          k->name);
-    goto rollback;
+    goto end;
   }
   if (rc != SQLITE_DONE) {
     res = db_fault(s, p, "looking up a key", rc);
-    goto rollback;
+    goto end;
   }
   st = s->stmt[ST_KEY_INSERT];
   bind_text(st, 1, k->name);
@@ -935,21 +917,9 @@ fg_status fg_store_put_key(fg_store *s, const fg_store_key *k, fg_problem *p) {
   sqlite3_bind_blob(st, 4, k->hash, FG_STORE_KEY_HASH, SQLITE_TRANSIENT);
   bind_text(st, 5, now);
   rc = write_step(s, st);
-  if (rc != SQLITE_OK) {
-    res = db_fault(s, p, "writing a key", rc);
-    goto rollback;
-  }
-  rc = tx_commit(s);
-  if (rc != SQLITE_OK) {
-    res = db_fault(s, p, "commit (add key)", rc);
-    goto rollback;
-  }
-  goto out;
-rollback:
-  tx_rollback(s);
-out:
-  pthread_mutex_unlock(&s->lock);
-  return res;
+  if (rc != SQLITE_OK) res = db_fault(s, p, "writing a key", rc);
+end:
+  return unlock_with(s, tx_end(s, res, "commit (add key)", p));
 }
 
 /* A blob column into a fixed buffer; false when its size is not `n`. */
@@ -1011,19 +981,17 @@ fg_status fg_store_revoke_key(fg_store *s, const char *name, fg_problem *p) {
   char now[32];
   now_rfc3339(now);
   pthread_mutex_lock(&s->lock);
-  fg_status res = FG_OK;
   int rc = tx_begin(s);
-  if (rc != SQLITE_OK) {
-    res = db_fault(s, p, "begin (revoke key)", rc);
-    goto out;
-  }
+  if (rc != SQLITE_OK)
+    return unlock_with(s, db_fault(s, p, "begin (revoke key)", rc));
+  fg_status res = FG_OK;
   sqlite3_stmt *st = s->stmt[ST_KEY_REVOKE];
   bind_text(st, 1, name);
   bind_text(st, 2, now);
   rc = write_step(s, st);
   if (rc != SQLITE_OK) {
     res = db_fault(s, p, "revoking a key", rc);
-    goto rollback;
+    goto end;
   }
   if (sqlite3_changes(s->db) == 0) {
     st = s->stmt[ST_KEY_EXISTS];
@@ -1037,17 +1005,7 @@ fg_status fg_store_revoke_key(fg_store *s, const char *name, fg_problem *p) {
       res = fg_problem_set(p, FG_ENOTFOUND, "no key named '%s'", name);
     else
       res = db_fault(s, p, "looking up a key", rc);
-    goto rollback;
   }
-  rc = tx_commit(s);
-  if (rc != SQLITE_OK) {
-    res = db_fault(s, p, "commit (revoke key)", rc);
-    goto rollback;
-  }
-  goto out;
-rollback:
-  tx_rollback(s);
-out:
-  pthread_mutex_unlock(&s->lock);
-  return res;
+end:
+  return unlock_with(s, tx_end(s, res, "commit (revoke key)", p));
 }
