@@ -247,10 +247,6 @@ void fg_h_checks_create(fg_req *r, fg_resp *out) {
       return;
     }
   }
-  if (atomic_load(&srv->stopping)) {
-    fg_resp_error(out, 503, FG_EBUSY, "the server is shutting down");
-    return;
-  }
   fg_problem p;
   fg_problem_init(&p);
   fg_store_version v;
@@ -263,24 +259,11 @@ void fg_h_checks_create(fg_req *r, fg_resp *out) {
   memset(&rec, 0, sizeof rec);
   fg_check *c = NULL;
 
-  if (fg_http_load_model(srv, name, version, &v, &m, &p) != FG_OK) {
-    fg_resp_problem(out, &p, 0);
+  if (!fg_http_load_target(r, name, version, "check",
+                           "a check request object with at least "
+                           "\"decision\"",
+                           &v, &m, &p, out))
     return;
-  }
-  if (v.retired) {
-    fg_resp_error(out, 410, FG_EGONE,
-                  "model '%s' is retired; register it again to check "
-                  "candidates against it",
-                  v.name);
-    goto done;
-  }
-  if (!r->body || r->len == 0) {
-    fg_problem_add(&p, FG_EINVAL, "", 0,
-                   "expected a check request object with at least "
-                   "\"decision\", found an empty body");
-    fg_resp_problem(out, &p, 0);
-    goto done;
-  }
   if (fg_json_parse(r->body, r->len, &json, &p) != FG_OK) {
     fg_resp_problem(out, &p, 0);
     goto done;
@@ -290,13 +273,7 @@ void fg_h_checks_create(fg_req *r, fg_resp *out) {
     fg_resp_problem(out, &p, 0);
     goto done;
   }
-  if (req.expect_digest[0] && strcmp(req.expect_digest, v.digest) != 0) {
-    fg_problem_add(&p, FG_ECONFLICT, "/expect_digest", 0,
-                   "expected model digest %s, but %s version %d has digest %s",
-                   req.expect_digest, v.name, v.version, v.digest);
-    fg_resp_problem(out, &p, 0);
-    goto done;
-  }
+  if (!fg_http_digest_agrees(&req, &v, &p, out)) goto done;
   if (!req.seed_given) {
     req.seed = fg_seed_draw();
     req.seed_given = true;
@@ -399,6 +376,19 @@ static cJSON *stored_body(const fg_store_check *c) {
   return o;
 }
 
+/* Answers 200 with the stored result body of `c`, sent as stored (the
+ * answer as it was given), and moves it out of `c`; false when `c` has no
+ * result body. */
+static bool send_stored_result(fg_resp *out, fg_store_check *c) {
+  if (!c->result) return false;
+  out->status = 200;
+  out->body = c->result;
+  out->len = strlen(c->result);
+  out->content_type = FG_CT_JSON;
+  c->result = NULL;
+  return true;
+}
+
 void fg_h_check_get(fg_req *r, fg_resp *out) {
   const char *id = r->params[0];
   cJSON *live = fg_registry_live_json(r->srv->registry, id);
@@ -413,16 +403,7 @@ void fg_h_check_get(fg_req *r, fg_resp *out) {
     fg_resp_problem(out, &p, 0);
     return;
   }
-  if (c.result) {
-    /* The stored body is the answer as given; send it as stored. */
-    out->status = 200;
-    out->body = c.result;
-    out->len = strlen(c.result);
-    out->content_type = FG_CT_JSON;
-    c.result = NULL;
-  } else {
-    fg_resp_json(out, 200, stored_body(&c));
-  }
+  if (!send_stored_result(out, &c)) fg_resp_json(out, 200, stored_body(&c));
   fg_store_check_clear(&c);
 }
 
@@ -460,15 +441,7 @@ void fg_h_check_cancel(fg_req *r, fg_resp *out) {
     fg_store_check_clear(&c);
     return;
   }
-  if (c.result) {
-    out->status = 200;
-    out->body = c.result;
-    out->len = strlen(c.result);
-    out->content_type = FG_CT_JSON;
-    c.result = NULL;
-  } else {
-    fg_resp_json(out, 200, check_summary(&c));
-  }
+  if (!send_stored_result(out, &c)) fg_resp_json(out, 200, check_summary(&c));
   fg_store_check_clear(&c);
 }
 

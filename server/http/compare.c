@@ -41,10 +41,6 @@
 void fg_h_comparisons_create(fg_req *r, fg_resp *out) {
   fg_server *srv = r->srv;
   const char *name = r->params[0];
-  if (atomic_load(&srv->stopping)) {
-    fg_resp_error(out, 503, FG_EBUSY, "the server is shutting down");
-    return;
-  }
   fg_problem p;
   fg_problem_init(&p);
   fg_store_version v;
@@ -58,24 +54,11 @@ void fg_h_comparisons_create(fg_req *r, fg_resp *out) {
   cJSON *bodies[FG_COMPARE_CANDIDATES_MAX] = {0};
   int started = 0;
 
-  if (fg_http_load_model(srv, name, 0, &v, &m, &p) != FG_OK) {
-    fg_resp_problem(out, &p, 0);
+  if (!fg_http_load_target(r, name, 0, "compare",
+                           "a comparison request object with "
+                           "\"candidates\"",
+                           &v, &m, &p, out))
     return;
-  }
-  if (v.retired) {
-    fg_resp_error(out, 410, FG_EGONE,
-                  "model '%s' is retired; register it again to compare "
-                  "candidates against it",
-                  v.name);
-    goto done;
-  }
-  if (!r->body || r->len == 0) {
-    fg_problem_add(&p, FG_EINVAL, "", 0,
-                   "expected a comparison request object with "
-                   "\"candidates\", found an empty body");
-    fg_resp_problem(out, &p, 0);
-    goto done;
-  }
   if (fg_json_parse(r->body, r->len, &json, &p) != FG_OK ||
       fg_compare_parse(m, json, &srv->cfg.limits, &cr, &p) != FG_OK) {
     fg_resp_problem(out, &p, 0);
@@ -83,13 +66,7 @@ void fg_h_comparisons_create(fg_req *r, fg_resp *out) {
   }
   int n = cr.ncandidates;
   const fg_check_request *first = &cr.candidates[0];
-  if (first->expect_digest[0] && strcmp(first->expect_digest, v.digest) != 0) {
-    fg_problem_add(&p, FG_ECONFLICT, "/expect_digest", 0,
-                   "expected model digest %s, but %s version %d has digest %s",
-                   first->expect_digest, v.name, v.version, v.digest);
-    fg_resp_problem(out, &p, 0);
-    goto done;
-  }
+  if (!fg_http_digest_agrees(first, &v, &p, out)) goto done;
   if (!first->seed_given) fg_compare_set_seed(&cr, fg_seed_draw());
   double wait_s = first->wait_s;
   if (wait_s > srv->cfg.limits.max_wait_s) wait_s = srv->cfg.limits.max_wait_s;

@@ -152,6 +152,21 @@ fg_status fg_http_record_end(fg_store *store, fg_check *c,
                              fg_problem *p);
 
 /* ---- record.c ---- */
+/* The steps of POST .../checks and .../comparisons before the body is
+ * parsed: 503 while the server shuts down; load version `version` of
+ * `name` (0: the latest) into *v and *m; then turn away a retired model
+ * (410: "register it again to <verb> candidates against it") and an empty
+ * body (400: "expected <expected>, found an empty body"). False when it
+ * has answered `out`; *v and *m then hold nothing to free. */
+bool fg_http_load_target(fg_req *r, const char *name, int version,
+                         const char *verb, const char *expected,
+                         fg_store_version *v, fg_model **m, fg_problem *p,
+                         fg_resp *out);
+/* False, with a 409 problem answered, when `req` asks for a model digest
+ * other than that of `v`. */
+bool fg_http_digest_agrees(const fg_check_request *req,
+                           const fg_store_version *v, fg_problem *p,
+                           fg_resp *out);
 /* Fill *rec for a check of version `v` about to start (new id, status
  * running, seed, label, the caller's key name -- "" or NULL when none --,
  * the replayable request) and put it in the store; rec->request is
