@@ -12,6 +12,7 @@
 #include "check.h"
 #include "feasgate/engine.h"
 #include "feasgate/model.h"
+#include "modelcheck.h"
 
 #include <cjson/cJSON.h>
 #include <stdlib.h>
@@ -23,15 +24,6 @@ static const char *MODEL =
     "{\"family\":\"normal\",\"mean\":0,\"sd\":1}}],"
     "\"constraints\":[{\"name\":\"c\",\"require\":\"u <= x\"}]}";
 
-static fg_model *model(void) {
-  fg_problem p;
-  fg_problem_init(&p);
-  fg_model *m = NULL;
-  fg_status st = fg_model_compile(MODEL, strlen(MODEL), &m, &p);
-  CHECK_MSG(st == FG_OK, "compile: %s", p.detail);
-  return m;
-}
-
 static fg_status parse(fg_model *m, const char *json, fg_compare_request *r,
                        fg_problem *p) {
   fg_problem_init(p);
@@ -42,12 +34,6 @@ static fg_status parse(fg_model *m, const char *json, fg_compare_request *r,
   fg_status st = fg_compare_parse(m, body, &lim, r, p);
   cJSON_Delete(body);
   return st;
-}
-
-static bool has_pointer(const fg_problem *p, const char *ptr) {
-  for (int i = 0; i < p->nitems; i++)
-    if (strcmp(p->items[i].pointer, ptr) == 0) return true;
-  return false;
 }
 
 static void test_parse(fg_model *m) {
@@ -75,11 +61,11 @@ static void test_parse(fg_model *m) {
               "{\"decision\":{\"x\":1},\"extra\":1}],"
               "\"confidence\":3,\"label\":\"z\"}",
               &r, &p) == FG_EINVAL);
-  CHECK(has_pointer(&p, "/candidates/1/decision/x"));
-  CHECK(has_pointer(&p, "/candidates/2/label"));
-  CHECK(has_pointer(&p, "/candidates/2/extra"));
-  CHECK(has_pointer(&p, "/confidence"));
-  CHECK(has_pointer(&p, "/label"));
+  CHECK(fg_test_has_pointer(&p, "/candidates/1/decision/x"));
+  CHECK(fg_test_has_pointer(&p, "/candidates/2/label"));
+  CHECK(fg_test_has_pointer(&p, "/candidates/2/extra"));
+  CHECK(fg_test_has_pointer(&p, "/confidence"));
+  CHECK(fg_test_has_pointer(&p, "/label"));
   /* A shared fault is reported once, not once per candidate. */
   int conf = 0;
   for (int i = 0; i < p.nitems; i++)
@@ -91,24 +77,24 @@ static void test_parse(fg_model *m) {
               "{\"candidates\":[{\"label\":\"a\",\"decision\":{\"x\":1}},"
               "{\"label\":\"a\",\"decision\":{\"x\":2}}]}",
               &r, &p) == FG_EINVAL);
-  CHECK(has_pointer(&p, "/candidates/1/label"));
+  CHECK(fg_test_has_pointer(&p, "/candidates/1/label"));
   CHECK(parse(m, "{\"candidates\":[{\"label\":\"a\",\"decision\":{\"x\":1}}]}",
               &r, &p) == FG_EINVAL);
-  CHECK(has_pointer(&p, "/candidates"));
+  CHECK(fg_test_has_pointer(&p, "/candidates"));
   CHECK(parse(m, "{\"samples\":10}", &r, &p) == FG_EINVAL);
-  CHECK(has_pointer(&p, "/candidates"));
+  CHECK(fg_test_has_pointer(&p, "/candidates"));
   CHECK(parse(m,
               "{\"candidates\":[{\"label\":\"a\",\"decision\":{\"x\":1}},"
               "{\"label\":\"b\",\"decision\":{\"x\":2}}],\"stop_early\":true}",
               &r, &p) == FG_EINVAL);
-  CHECK(has_pointer(&p, "/stop_early"));
+  CHECK(fg_test_has_pointer(&p, "/stop_early"));
   CHECK(parse(m,
               "{\"candidates\":[{\"label\":\"a\",\"decision\":{\"x\":1}},"
               "{\"label\":\"b\",\"decision\":{\"x\":2}}],"
               "\"samples\":300000000}",
               &r, &p) == FG_ELIMIT);
   CHECK_STR(p.limit_name, "comparison_samples");
-  CHECK(has_pointer(&p, "/samples"));
+  CHECK(fg_test_has_pointer(&p, "/samples"));
 
   char big[4096] = "{\"candidates\":[";
   for (int i = 0; i <= FG_COMPARE_CANDIDATES_MAX; i++) {
@@ -217,7 +203,7 @@ static void test_counts(fg_model *m) {
 }
 
 int main(void) {
-  fg_model *m = model();
+  fg_model *m = fg_test_model(MODEL);
   if (m) {
     test_parse(m);
     test_counts(m);

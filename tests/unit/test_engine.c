@@ -7,6 +7,7 @@
 #include "check.h"
 #include "feasgate/engine.h"
 #include "feasgate/model.h"
+#include "modelcheck.h"
 
 #include <cjson/cJSON.h>
 #include <stdlib.h>
@@ -29,15 +30,6 @@ static const char *MODEL =
     "{\"name\":\"budget\",\"require\":\"sum(cap) + 10 * crew <= 60\"}],"
     "\"objective\":{\"minimize\":\"sum(cap) + 10 * crew\"}}";
 
-static fg_model *model(void) {
-  fg_problem p;
-  fg_problem_init(&p);
-  fg_model *m = NULL;
-  fg_status st = fg_model_compile(MODEL, strlen(MODEL), &m, &p);
-  CHECK_MSG(st == FG_OK, "compile: %s", p.detail);
-  return m;
-}
-
 static fg_status parse(fg_model *m, const char *json, fg_check_request *r,
                        fg_problem *p) {
   fg_problem_init(p);
@@ -50,25 +42,19 @@ static fg_status parse(fg_model *m, const char *json, fg_check_request *r,
   return st;
 }
 
-static bool has_pointer(const fg_problem *p, const char *ptr) {
-  for (int i = 0; i < p->nitems; i++)
-    if (strcmp(p->items[i].pointer, ptr) == 0) return true;
-  return false;
-}
-
 static void test_request_errors(fg_model *m) {
   fg_check_request r;
   fg_problem p;
   CHECK(parse(m, "{\"decision\":{\"cap\":[1,2],\"crew\":1,\"extra\":3},"
                  "\"samples\":0,\"colour\":1}",
               &r, &p) == FG_EINVAL);
-  CHECK(has_pointer(&p, "/decision/cap"));   /* wrong size */
-  CHECK(has_pointer(&p, "/decision/extra")); /* not a decision */
-  CHECK(has_pointer(&p, "/samples"));
-  CHECK(has_pointer(&p, "/colour"));
+  CHECK(fg_test_has_pointer(&p, "/decision/cap"));   /* wrong size */
+  CHECK(fg_test_has_pointer(&p, "/decision/extra")); /* not a decision */
+  CHECK(fg_test_has_pointer(&p, "/samples"));
+  CHECK(fg_test_has_pointer(&p, "/colour"));
   CHECK(parse(m, "{\"decision\":{\"cap\":[1,2,1e999]}}", &r, &p) != FG_OK);
-  CHECK(has_pointer(&p, "/decision/cap/2")); /* non-finite */
-  CHECK(has_pointer(&p, "/decision/crew"));  /* missing */
+  CHECK(fg_test_has_pointer(&p, "/decision/cap/2")); /* non-finite */
+  CHECK(fg_test_has_pointer(&p, "/decision/crew"));  /* missing */
   CHECK(parse(m, "{\"decision\":{\"cap\":[1,2,3],\"crew\":1},"
                  "\"samples\":6000000}",
               &r, &p) == FG_ELIMIT);
@@ -76,19 +62,19 @@ static void test_request_errors(fg_model *m) {
   CHECK(parse(m, "{\"decision\":{\"cap\":[1,2,3],\"crew\":1},"
                  "\"sampling\":\"grid\"}",
               &r, &p) == FG_EINVAL);
-  CHECK(has_pointer(&p, "/sampling"));
+  CHECK(fg_test_has_pointer(&p, "/sampling"));
   CHECK(parse(m, "{\"decision\":{\"cap\":[1,2,3],\"crew\":1},"
                  "\"sampling\":\"sobol\",\"stop_early\":true}",
               &r, &p) == FG_EINVAL);
-  CHECK(has_pointer(&p, "/stop_early"));
+  CHECK(fg_test_has_pointer(&p, "/stop_early"));
   CHECK(parse(m, "{\"decision\":{\"cap\":[1,2,3],\"crew\":1},"
                  "\"sampling\":\"latin_hypercube\",\"samples\":20}",
               &r, &p) == FG_EINVAL);
-  CHECK(has_pointer(&p, "/samples"));
+  CHECK(fg_test_has_pointer(&p, "/samples"));
   CHECK(parse(m, "{\"decision\":{\"cap\":[1,2,3],\"crew\":1},"
                  "\"target\":1.5,\"seed\":-1}",
               &r, &p) == FG_EINVAL);
-  CHECK(has_pointer(&p, "/target") && has_pointer(&p, "/seed"));
+  CHECK(fg_test_has_pointer(&p, "/target") && fg_test_has_pointer(&p, "/seed"));
   CHECK(parse(m, "[1]", &r, &p) == FG_EINVAL);
 }
 
@@ -407,7 +393,7 @@ static void test_designs(fg_model *m) {
 }
 
 int main(void) {
-  fg_model *m = model();
+  fg_model *m = fg_test_model(MODEL);
   if (!m) return fg_test_finish() | 1;
   test_request_errors(m);
   test_determinism(m);
