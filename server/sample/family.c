@@ -787,12 +787,14 @@ void fg_family_draw_block(const fg_input *in, int e, uint32_t slot,
      * vectorised exp of our own was tried (range reduction, Estrin): 30%
      * faster, but about 1 ulp from glibc's (which stays near half an ulp)
      * in 7% of lanes, so lognormal values would have changed a second
-     * time for a few percent overall; not adopted. */
+     * time for a few percent overall; not adopted. fg_exp_lanes calls
+     * the same libm function without its errno wrapper (libm_exp.c). */
     fg_stream_normals(dc->key, dc->first, n, slot, dc->words, out);
     {
       double m = v[0][e], sd = v[1][e];
       for (int t = 0; t < n; t++)
-        out[t] = exp(m + sd * out[t]);
+        out[t] = m + sd * out[t];
+      fg_exp_lanes(out, n);
     }
     return;
   case FG_FAM_UNIFORM:
@@ -845,7 +847,8 @@ void fg_family_from_normal(const fg_input *in, int e, const fg_draw_ctx *dc,
   if (in->kind == FG_FAM_LOGNORMAL) {
     double m = v[0][e], sd = v[1][e];
     for (int t = 0; t < n; t++)
-      col[t] = exp(m + sd * col[t]);
+      col[t] = m + sd * col[t];
+    fg_exp_lanes(col, n);
     return;
   }
   for (int t = 0; t < n; t++) {

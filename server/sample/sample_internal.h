@@ -79,6 +79,14 @@ void fg_stream_normals(fg_stream_key key, uint64_t first, int n, uint32_t slot,
 /* The same normal for one sample. */
 double fg_stream_normal_one(fg_stream_key key, uint64_t sample, uint32_t slot);
 
+/* ---- libm_exp.c ----------------------------------------------------- */
+
+/* x[t] = exp(x[t]) for t < n, libm's values bit for bit (see libm_exp.c
+ * for the direct entry used where it is provably the same function). */
+void fg_exp_lanes(double *x, int n);
+/* Tests: 1 when fg_exp_lanes calls libm's implementation directly. */
+int fg_exp_lanes_direct(void);
+
 /* What one block draw passes down to the families (sampler.c owns it):
  * the stream, the samples, and per-thread scratch of FG_BLOCK lanes. */
 typedef struct fg_draw_ctx {
