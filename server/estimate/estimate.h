@@ -147,7 +147,8 @@ void fg_tally_merge(fg_tally *dst, const fg_tally *src);
 
 /* Tally a block: `excess[r]` points at row r's n excess values (lane t is
  * sample first + t); `objective` at n values or NULL. `scratch` holds at
- * least 2n ints. */
+ * least 2n ints; afterwards scratch[s] is 0 exactly where sample
+ * first + s satisfied every row. */
 void fg_tally_block(fg_tally *t, const double *const *excess, int n,
                     uint64_t first, const double *objective, int *scratch);
 

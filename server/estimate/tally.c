@@ -4,10 +4,13 @@
  *
  * Design: a block of samples arrives as one array of excess values per row
  * (lane t = sample first + t). Rows are walked one at a time over all lanes
- * (contiguous reads), counting per lane how many rows failed and which one
- * failed last; a second pass over lanes turns those into the joint count,
- * sole-cause counts and failing-scenario records. A row fails when its
- * excess is not <= 0, so NaN fails (counted apart as non-finite).
+ * (contiguous reads), each turned into a bit mask of its violated lanes;
+ * the masks accumulate which lanes failed at least once and at least
+ * twice, and only violated lanes are visited for the sums, histograms and
+ * which row failed last; the accumulated masks then give the joint count,
+ * sole-cause counts, pair counts and failing-scenario records. A row fails
+ * when its excess is not <= 0, so NaN fails (counted apart as
+ * non-finite).
  *
  * Merging: counts add; sums add in merge order (the engine merges chunks in
  * chunk order, so sums do not depend on the number of workers); failing
@@ -81,111 +84,126 @@ void fg_tally_merge(fg_tally *dst, const fg_tally *src) {
     dst->fail[dst->nfail++] = src->fail[i];
 }
 
-/* One row over a block: nviol[s] += 1 and last[s] = r where the row is
- * violated (excess not <= 0, NaN included), and the violated lanes listed
- * in idx in increasing order; returns how many. With SSE2, four lanes per
- * step by compare masks, with no branch on the data (a row violated about
- * half the time would mispredict a branch every other lane, and the plain
- * loop does not vectorise: the compiler will not turn double compares
- * into int masks without AVX). */
+/* One row over a block as a bit mask: bit s of m[s / 64] is set where
+ * lane s is violated (excess not <= 0, NaN included); lanes >= n stay
+ * clear. With SSE2, sixteen lanes per step: the compare masks are packed
+ * down to one byte per lane and read with one movemask, with no branch on
+ * the data (the plain loop does not vectorise: the compiler will not turn
+ * double compares into int masks without AVX). Rows are violated in a
+ * good share of lanes in every block, so there is nothing to skip; the
+ * mask makes the rest of the tally work per violated lane, not per lane. */
 #if defined(__SSE2__)
 #include <emmintrin.h>
 #endif
 
-static int row_pass(const double *e, int n, int r, int *nviol, int *last,
-                    int *idx) {
-  int nv = 0, s = 0;
+#define MASK_WORDS ((FG_BLOCK + 63) / 64)
+
+static void row_mask(const double *e, int n, uint64_t *m) {
+  for (int w = 0; w < MASK_WORDS; w++) m[w] = 0;
+  int s = 0;
 #if defined(__SSE2__)
   const __m128d zero = _mm_setzero_pd();
-  const __m128i rv = _mm_set1_epi32(r);
-  for (; s + 4 <= n; s += 4) {
-    __m128d m0 = _mm_cmpnle_pd(_mm_loadu_pd(e + s), zero);
-    __m128d m1 = _mm_cmpnle_pd(_mm_loadu_pd(e + s + 2), zero);
-    int bits = _mm_movemask_pd(m0) | (_mm_movemask_pd(m1) << 2);
-    __m128i m = _mm_castps_si128(_mm_shuffle_ps(
-        _mm_castpd_ps(m0), _mm_castpd_ps(m1), _MM_SHUFFLE(2, 0, 2, 0)));
-    __m128i *pv = (__m128i *)(nviol + s), *pl = (__m128i *)(last + s);
-    _mm_storeu_si128(pv, _mm_sub_epi32(_mm_loadu_si128(pv), m));
-    _mm_storeu_si128(pl, _mm_or_si128(_mm_andnot_si128(m, _mm_loadu_si128(pl)),
-                                      _mm_and_si128(m, rv)));
-    idx[nv] = s; /* listed without branches, as in the scalar loop */
-    nv += bits & 1;
-    idx[nv] = s + 1;
-    nv += (bits >> 1) & 1;
-    idx[nv] = s + 2;
-    nv += (bits >> 2) & 1;
-    idx[nv] = s + 3;
-    nv += (bits >> 3) & 1;
+  for (; s + 16 <= n; s += 16) {
+    __m128 q[4];
+    for (int k = 0; k < 4; k++) {
+      __m128d c0 = _mm_cmpnle_pd(_mm_loadu_pd(e + s + 4 * k), zero);
+      __m128d c1 = _mm_cmpnle_pd(_mm_loadu_pd(e + s + 4 * k + 2), zero);
+      q[k] = _mm_shuffle_ps(_mm_castpd_ps(c0), _mm_castpd_ps(c1),
+                            _MM_SHUFFLE(2, 0, 2, 0));
+    }
+    __m128i h0 = _mm_packs_epi32(_mm_castps_si128(q[0]), _mm_castps_si128(q[1]));
+    __m128i h1 = _mm_packs_epi32(_mm_castps_si128(q[2]), _mm_castps_si128(q[3]));
+    uint64_t bits = (uint64_t)(unsigned)_mm_movemask_epi8(_mm_packs_epi16(h0, h1));
+    m[s >> 6] |= bits << (s & 63);
   }
 #endif
-  for (; s < n; s++) {
-    int viol = !(e[s] <= 0);
-    nviol[s] += viol;
-    last[s] = viol ? r : last[s];
-    idx[nv] = s;
-    nv += viol;
+  for (; s < n; s++)
+    m[s >> 6] |= (uint64_t)!(e[s] <= 0) << (s & 63);
+}
+
+/* Pairs (2k, 2k+1) of a lane mask: how many have both bits, how many one. */
+static void pair_counts(const uint64_t *m, uint64_t *both, uint64_t *one) {
+  const uint64_t even = UINT64_C(0x5555555555555555);
+  for (int w = 0; w < MASK_WORDS; w++) {
+    uint64_t a = m[w] & even, b = (m[w] >> 1) & even;
+    *both += (uint64_t)__builtin_popcountll(a & b);
+    *one += (uint64_t)__builtin_popcountll(a ^ b);
   }
-  return nv;
 }
 
 void fg_tally_block(fg_tally *t, const double *const *excess, int n,
                     uint64_t first, const double *objective, int *scratch) {
-  int *nviol = scratch, *last = scratch + n;
-  memset(nviol, 0, (size_t)n * sizeof *nviol);
-  /* Per row: a branch-free pass over the lanes (a row violated about
-   * half the time would mispredict a branch every other lane) that counts,
-   * marks and lists the violated lanes; then the listed lanes' excess, in
-   * lane order, into the sum and the histogram. */
-  int idx[FG_BLOCK];
-  double vals[FG_BLOCK];
   if (n > FG_BLOCK) n = FG_BLOCK; /* the engine's blocks never are */
+  int *last = scratch + n;
+  /* Per row: its violation mask (branch-free, see row_mask); then only the
+   * violated lanes, in lane order: which row failed last there, and the
+   * finite excess into the sum (in lane order, so sums keep their bits)
+   * and the histogram. any / many: lanes with at least one / two violated
+   * rows, a bitwise counter that saturates at two. */
+  uint64_t any[MASK_WORDS] = {0}, many[MASK_WORDS] = {0};
+  uint64_t m[MASK_WORDS];
+  double vals[FG_BLOCK];
+  /* pairs need whole pairs: an odd last lane has no partner */
+  uint64_t paired[MASK_WORDS];
+  for (int w = 0; w < MASK_WORDS; w++) {
+    int lo = 64 * w, ne = (n & ~1) - lo;
+    paired[w] = ne >= 64 ? ~UINT64_C(0)
+                : ne <= 0 ? 0
+                          : (UINT64_C(1) << ne) - 1;
+  }
   for (int r = 0; r < t->nrows; r++) {
     const double *e = excess[r];
     fg_row_tally *rt = &t->rows[r];
-    int nv = row_pass(e, n, r, nviol, last, idx);
+    row_mask(e, n, m);
     double sum = 0;
-    int m = 0;
-    for (int k = 0; k < nv; k++) {
-      double x = e[idx[k]];
-      if (isfinite(x)) {
-        sum += x;
-        vals[m++] = x;
-      } else {
-        rt->nonfinite++;
+    int nv = 0, k = 0;
+    for (int w = 0; w < MASK_WORDS; w++) {
+      uint64_t bits = m[w];
+      many[w] |= any[w] & bits;
+      any[w] |= bits;
+      nv += __builtin_popcountll(bits);
+      while (bits) {
+        int s = 64 * w + __builtin_ctzll(bits);
+        bits &= bits - 1;
+        double x = e[s];
+        last[s] = r;
+        if (isfinite(x)) {
+          sum += x;
+          vals[k++] = x;
+        } else {
+          rt->nonfinite++;
+        }
       }
     }
-    fg_hist_add_many(&rt->hist, vals, m);
+    fg_hist_add_many(&rt->hist, vals, k);
     rt->violated += (uint64_t)nv;
     rt->excess_sum += sum;
+    if (t->pairs) {
+      uint64_t pm[MASK_WORDS];
+      for (int w = 0; w < MASK_WORDS; w++) pm[w] = m[w] & paired[w];
+      pair_counts(pm, &rt->pair_both, &rt->pair_one);
+    }
+  }
+  uint64_t nany = 0;
+  for (int w = 0; w < MASK_WORDS; w++) {
+    nany += (uint64_t)__builtin_popcountll(any[w]);
+    /* sole cause: exactly one violated row, the last one seen there */
+    for (uint64_t bits = any[w] & ~many[w]; bits; bits &= bits - 1)
+      t->rows[last[64 * w + __builtin_ctzll(bits)]].sole++;
   }
   if (t->pairs) {
-    /* Blocks start on even sample indices, so lanes (2m, 2m+1) are a pair;
-     * an odd last lane has no partner and is not paired. */
-    for (int r = 0; r < t->nrows; r++) {
-      const double *e = excess[r];
-      uint64_t both = 0, one = 0;
-      for (int s = 0; s + 1 < n; s += 2) {
-        int v = !(e[s] <= 0) + !(e[s + 1] <= 0);
-        both += v == 2;
-        one += v == 1;
-      }
-      t->rows[r].pair_both += both;
-      t->rows[r].pair_one += one;
-    }
-    for (int s = 0; s + 1 < n; s += 2) {
-      int h = (nviol[s] == 0) + (nviol[s + 1] == 0);
-      t->pair_both += h == 2;
-      t->pair_one += h == 1;
-    }
+    /* a pair's samples held where their lanes are clear in `any` */
+    uint64_t held[MASK_WORDS];
+    for (int w = 0; w < MASK_WORDS; w++) held[w] = ~any[w] & paired[w];
+    pair_counts(held, &t->pair_both, &t->pair_one);
   }
-  uint64_t sat = 0;
-  for (int s = 0; s < n; s++) {
-    if (nviol[s] == 0) {
-      sat++;
-      continue;
-    }
-    if (nviol[s] == 1) t->rows[last[s]].sole++;
-    if (t->nfail < FG_FAILING_SCENARIOS) {
+  /* the caller's view: scratch[s] is 0 exactly where sample s held */
+  for (int s = 0; s < n; s++)
+    scratch[s] = (int)((any[s >> 6] >> (s & 63)) & 1);
+  for (int w = 0; w < MASK_WORDS && t->nfail < FG_FAILING_SCENARIOS; w++) {
+    for (uint64_t bits = any[w];
+         bits && t->nfail < FG_FAILING_SCENARIOS; bits &= bits - 1) {
+      int s = 64 * w + __builtin_ctzll(bits);
       fg_fail_record *f = &t->fail[t->nfail++];
       f->index = first + (uint64_t)s;
       f->nrows = 0;
@@ -197,7 +215,7 @@ void fg_tally_block(fg_tally *t, const double *const *excess, int n,
       }
     }
   }
-  t->satisfied += sat;
+  t->satisfied += (uint64_t)n - nany;
   t->n += (uint64_t)n;
   if (objective) {
     double os = 0;
