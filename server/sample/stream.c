@@ -222,45 +222,59 @@ philox_avx2(uint32_t *w0, uint32_t *w1, uint32_t *w2, uint32_t *w3, int n,
   }
 }
 
-/* Sixteen lanes at a time where AVX-512F exists: the same rounds again. */
+/* Sixteen lanes at a time where AVX-512F exists: the same rounds, in a
+ * cheaper arrangement. The lanes are kept as two vectors of eight 64-bit
+ * slots (even lanes, odd lanes) whose low 32 bits hold the word, so the
+ * unsigned 32 x 32 -> 64-bit multiply needs no regrouping: the product's
+ * low half is already the next word in place and its high half one shift
+ * away; the three-way XOR is one ternary-logic instruction. The high 32
+ * bits of a slot carry junk that never reaches a low half (the multiply
+ * reads low halves only, the shift takes the product's high half). The
+ * counters are made in registers ({i lo, i hi, slot, draw}, i = first + t)
+ * and the words are interleaved back on the way out. About 12 vector
+ * operations per round for 16 lanes instead of 22; same words. */
 __attribute__((target("avx512f"))) static void
-philox_avx512(uint32_t *w0, uint32_t *w1, uint32_t *w2, uint32_t *w3, int n,
-              fg_stream_key key) {
-  const __m512i m0 = _mm512_set1_epi32((int)PHILOX_M0);
-  const __m512i m1 = _mm512_set1_epi32((int)PHILOX_M1);
-  const __m512i low = _mm512_set1_epi64(0xffffffffLL);
+philox_avx512(fg_stream_key key, uint64_t first, int n, uint32_t slot,
+              uint32_t draw, fg_stream_words *w) {
+  const __m512i m0 = _mm512_set1_epi64(PHILOX_M0);
+  const __m512i m1 = _mm512_set1_epi64(PHILOX_M1);
+  const __m512i even = _mm512_set_epi64(14, 12, 10, 8, 6, 4, 2, 0);
+  const __m512i odd = _mm512_set_epi64(15, 13, 11, 9, 7, 5, 3, 1);
+  /* dword j of the result: even slot j / 2 for even j, odd slot for odd j */
+  const __m512i weave = _mm512_set_epi32(30, 14, 28, 12, 26, 10, 24, 8, 22, 6,
+                                         20, 4, 18, 2, 16, 0);
+  const __m512i sl = _mm512_set1_epi64(slot), dr = _mm512_set1_epi64(draw);
   for (int t = 0; t + 16 <= n; t += 16) {
-    __m512i x0 = _mm512_loadu_si512((const void *)(w0 + t));
-    __m512i x1 = _mm512_loadu_si512((const void *)(w1 + t));
-    __m512i x2 = _mm512_loadu_si512((const void *)(w2 + t));
-    __m512i x3 = _mm512_loadu_si512((const void *)(w3 + t));
+    __m512i base = _mm512_set1_epi64((long long)(first + (uint64_t)t));
+    __m512i ce = _mm512_add_epi64(base, even), co = _mm512_add_epi64(base, odd);
+    __m512i e0 = ce, e1 = _mm512_srli_epi64(ce, 32), e2 = sl, e3 = dr;
+    __m512i o0 = co, o1 = _mm512_srli_epi64(co, 32), o2 = sl, o3 = dr;
     uint32_t k0 = key.k0, k1 = key.k1;
     for (int r = 0; r < 10; r++) {
-      __m512i p02 = _mm512_mul_epu32(x0, m0);
-      __m512i p13 = _mm512_mul_epu32(_mm512_srli_epi64(x0, 32), m0);
-      __m512i lo0 = _mm512_or_si512(_mm512_and_si512(p02, low),
-                                    _mm512_slli_epi64(p13, 32));
-      __m512i hi0 = _mm512_or_si512(_mm512_srli_epi64(p02, 32),
-                                    _mm512_andnot_si512(low, p13));
-      p02 = _mm512_mul_epu32(x2, m1);
-      p13 = _mm512_mul_epu32(_mm512_srli_epi64(x2, 32), m1);
-      __m512i lo1 = _mm512_or_si512(_mm512_and_si512(p02, low),
-                                    _mm512_slli_epi64(p13, 32));
-      __m512i hi1 = _mm512_or_si512(_mm512_srli_epi64(p02, 32),
-                                    _mm512_andnot_si512(low, p13));
-      x0 = _mm512_xor_si512(_mm512_xor_si512(hi1, x1),
-                            _mm512_set1_epi32((int)k0));
-      x2 = _mm512_xor_si512(_mm512_xor_si512(hi0, x3),
-                            _mm512_set1_epi32((int)k1));
-      x1 = lo1;
-      x3 = lo0;
+      const __m512i kk0 = _mm512_set1_epi32((int)k0);
+      const __m512i kk1 = _mm512_set1_epi32((int)k1);
+      __m512i pe0 = _mm512_mul_epu32(e0, m0), pe1 = _mm512_mul_epu32(e2, m1);
+      __m512i po0 = _mm512_mul_epu32(o0, m0), po1 = _mm512_mul_epu32(o2, m1);
+      /* 0x96: a ^ b ^ c */
+      e0 = _mm512_ternarylogic_epi32(_mm512_srli_epi64(pe1, 32), e1, kk0, 0x96);
+      e2 = _mm512_ternarylogic_epi32(_mm512_srli_epi64(pe0, 32), e3, kk1, 0x96);
+      o0 = _mm512_ternarylogic_epi32(_mm512_srli_epi64(po1, 32), o1, kk0, 0x96);
+      o2 = _mm512_ternarylogic_epi32(_mm512_srli_epi64(po0, 32), o3, kk1, 0x96);
+      e1 = pe1;
+      e3 = pe0;
+      o1 = po1;
+      o3 = po0;
       k0 += PHILOX_W0;
       k1 += PHILOX_W1;
     }
-    _mm512_storeu_si512((void *)(w0 + t), x0);
-    _mm512_storeu_si512((void *)(w1 + t), x1);
-    _mm512_storeu_si512((void *)(w2 + t), x2);
-    _mm512_storeu_si512((void *)(w3 + t), x3);
+    _mm512_storeu_si512((void *)(w->w[0] + t),
+                        _mm512_permutex2var_epi32(e0, weave, o0));
+    _mm512_storeu_si512((void *)(w->w[1] + t),
+                        _mm512_permutex2var_epi32(e1, weave, o1));
+    _mm512_storeu_si512((void *)(w->w[2] + t),
+                        _mm512_permutex2var_epi32(e2, weave, o2));
+    _mm512_storeu_si512((void *)(w->w[3] + t),
+                        _mm512_permutex2var_epi32(e3, weave, o3));
   }
 }
 #define FG_HAVE_AVX2_PATH 1
@@ -272,20 +286,22 @@ static int use_avx2, use_avx512;
 
 void fg_stream_philox(fg_stream_key key, uint64_t first, int n, uint32_t slot,
                       uint32_t draw, fg_stream_words *w) {
+  int t0 = 0;
+#if defined(FG_HAVE_AVX2_PATH)
+  if (use_avx512) { /* counters made in registers, see philox_avx512 */
+    philox_avx512(key, first, n, slot, draw, w);
+    t0 = n & ~15;
+  }
+#endif
   /* counters first, in place; the rounds then run over the arrays */
-  for (int t = 0; t < n; t++) {
+  for (int t = t0; t < n; t++) {
     uint64_t i = first + (uint64_t)t;
     w->w[0][t] = (uint32_t)i;
     w->w[1][t] = (uint32_t)(i >> 32);
     w->w[2][t] = slot;
     w->w[3][t] = draw;
   }
-  int t0 = 0;
 #if defined(FG_HAVE_AVX2_PATH)
-  if (use_avx512) {
-    philox_avx512(w->w[0], w->w[1], w->w[2], w->w[3], n, key);
-    t0 = n & ~15;
-  }
   if (use_avx2 && t0 == 0) {
     philox_avx2(w->w[0], w->w[1], w->w[2], w->w[3], n, key);
     t0 = n & ~7;
