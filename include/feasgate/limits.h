@@ -237,6 +237,11 @@
  * are counted in feasgate_http_requests_unlabelled_total. */
 #define FG_METRICS_SERIES_MAX 512
 
+/* Looks (2 ms apart) a GET of a check stored as running takes at the
+ * registry of live checks before it answers from the store: covers the
+ * moment between recording a check and listing it. */
+#define FG_HTTP_LIVE_RETRIES 25
+
 /* How long DELETE waits for a cancelled check to stop and be recorded:
  * workers test the cancel flag once per block, so this is generous. */
 #define FG_HTTP_CANCEL_WAIT_S 10.0

@@ -403,6 +403,21 @@ void fg_h_check_get(fg_req *r, fg_resp *out) {
     fg_resp_problem(out, &p, 0);
     return;
   }
+  /* A check is recorded as running a moment before it is listed in the
+   * registry (record, start, watch). A GET in that gap would get the
+   * stored body without progress; look again for a short while. */
+  if (strcmp(c.status, "running") == 0) {
+    for (int i = 0; i < FG_HTTP_LIVE_RETRIES; i++) {
+      struct timespec ts = {0, 2 * 1000 * 1000};
+      nanosleep(&ts, NULL);
+      live = fg_registry_live_json(r->srv->registry, id);
+      if (live) {
+        fg_store_check_clear(&c);
+        fg_resp_json(out, 200, live);
+        return;
+      }
+    }
+  }
   if (!send_stored_result(out, &c)) fg_resp_json(out, 200, stored_body(&c));
   fg_store_check_clear(&c);
 }
