@@ -70,7 +70,21 @@ def offline(binary, paths, workers, samples):
     return best
 
 
+BEST_OF = 3  # runs per figure; the fastest is reported, on both sides
+
+
 def numpy_side(name, paths, samples):
+    """The NumPy run, best of BEST_OF (like feasgate's offline figures), so
+    neither side is judged on a noisy single run."""
+    best = None
+    for _ in range(BEST_OF):
+        res = numpy_once(name, paths, samples)
+        if best is None or res["seconds"] < best["seconds"]:
+            best = res
+    return best
+
+
+def numpy_once(name, paths, samples):
     env = dict(os.environ)
     env.pop("OPENBLAS_CORETYPE", None)
     env.pop("OPENBLAS_L2_SIZE", None)
@@ -176,7 +190,12 @@ def main():
                 req.update(samples=n, wait_s=600)
                 npres = numpy_side(name, paths[name], NUMPY_SAMPLES[name] // scale)
                 np_rate = npres["samples"] / npres["seconds"]
-                res, wall = d.post("/v1/models/%s/checks" % mname, req)
+                # best of BEST_OF end-to-end runs, as for the offline figures
+                res, wall = None, None
+                for _ in range(BEST_OF):
+                    r1, w1 = d.post("/v1/models/%s/checks" % mname, req)
+                    if wall is None or w1 < wall:
+                        res, wall = r1, w1
                 print("http %-8s %d samples: %.3f s end to end (%s), "
                       "simulation %.3f s, %.1fx NumPy" % (
                           name, n, wall, fmt_rate(n / wall),
