@@ -113,49 +113,49 @@ except ImportError:  # Debian bookworm's 4.10
 DIGEST = "sha256:" + "3f" * 32
 DIGEST2 = "sha256:" + "0123456789abcdef" * 4
 
-RESTOCK = {
+WATER_POINTS = {
     "format": 1,
-    "name": "depot-restock.north",
-    "title": "Weekly restock, northern depot",
-    "description": "Three product lines, one truck fleet; spoilage in the cold room.",
+    "name": "festival-water.east",
+    "title": "Water points, east field, festival day two",
+    "description": "Three water points filled by volunteer crews; some water is lost to leaks.",
     "decisions": [
-        {"name": "order", "size": 3, "lower": 0, "upper": [900, 650, 420], "integer": True},
-        {"name": "trucks", "lower": 1, "upper": 4, "integer": True},
-        {"name": "buffer_share", "lower": 0.0, "upper": 0.3},
+        {"name": "tanks", "size": 3, "lower": 0, "upper": [900, 650, 420], "integer": True},
+        {"name": "crews", "lower": 1, "upper": 4, "integer": True},
+        {"name": "reserve_share", "lower": 0.0, "upper": 0.3},
     ],
     "uncertain": [
-        {"name": "demand", "size": 3,
+        {"name": "visitors", "size": 3,
          "distribution": {"family": "gamma", "shape": [9, 6, 4], "scale": [55, 60, 70]}},
-        {"name": "lead_days",
+        {"name": "heat_hours",
          "distribution": {"family": "pert", "low": 2, "mode": 3, "high": 8}},
-        {"name": "spoiled",
+        {"name": "leak",
          "distribution": {"family": "beta", "a": 2, "b": 38, "low": 0, "high": 0.5}},
-        {"name": "returns", "distribution": {"family": "poisson", "mean": 4.5}},
+        {"name": "refills", "distribution": {"family": "poisson", "mean": 4.5}},
     ],
     "dependence": [
-        {"kind": "gaussian_copula", "members": ["demand", "lead_days"],
+        {"kind": "gaussian_copula", "members": ["visitors", "heat_hours"],
          "correlation": {"ar1": 0.4}},
     ],
     "definitions": [
-        {"name": "usable", "value": "order * (1 - spoiled) + returns / 3"},
-        {"name": "need", "value": "demand * lead_days / 7 * (1 + buffer_share)"},
-        {"name": "carried", "elements": [
-            "pos(usable[0] - need[0])",
-            "carried[0] + pos(usable[1] - need[1])",
-            "carried[1] + pos(usable[2] - need[2])"]},
+        {"name": "held", "value": "tanks * (1 - leak) + refills / 3"},
+        {"name": "drawn", "value": "visitors * heat_hours / 7 * (1 + reserve_share)"},
+        {"name": "spare", "elements": [
+            "pos(held[0] - drawn[0])",
+            "spare[0] + pos(held[1] - drawn[1])",
+            "spare[1] + pos(held[2] - drawn[2])"]},
     ],
     "constraints": [
-        {"name": "no_stockout", "require": "need <= usable"},
-        {"name": "fleet", "require": "sum(order) <= 600 * trucks"},
-        {"name": "cold_room", "require": "0 <= carried[2] <= 350"},
+        {"name": "no_shortfall", "require": "drawn <= held"},
+        {"name": "crew_load", "require": "sum(tanks) <= 600 * crews"},
+        {"name": "overflow", "require": "0 <= spare[2] <= 350"},
     ],
-    "objective": {"minimize": "dot([2.1, 3.4, 5.0], order) + 950 * trucks"},
+    "objective": {"minimize": "dot([2.1, 3.4, 5.0], tanks) + 950 * crews"},
     "target": {"probability": 0.95, "confidence": 0.99},
 }
 
 
 def model_with(**changes):
-    doc = copy.deepcopy(RESTOCK)
+    doc = copy.deepcopy(WATER_POINTS)
     for k, v in changes.items():
         if v is None:
             doc.pop(k, None)
@@ -182,7 +182,7 @@ def one_input(distribution, size=None, dependence=None):
 
 
 MODEL_VALID = [
-    ("restock model", RESTOCK),
+    ("water-point model", WATER_POINTS),
     ("no uncertain inputs, maximize", {
         "format": 1, "name": "0-fixed", "decisions": [{"name": "x"}], "uncertain": [],
         "constraints": [{"name": "c", "require": "x >= 1"}],
@@ -224,14 +224,14 @@ MODEL_VALID = [
 MODEL_INVALID = [
     ("format 2", model_with(format=2)),
     ("format as text", model_with(format="1")),
-    ("name with capitals", model_with(name="Depot")),
-    ("name starting with a dot", model_with(name=".depot")),
+    ("name with capitals", model_with(name="Festival")),
+    ("name starting with a dot", model_with(name=".festival")),
     ("name of 65 characters", model_with(name="a" * 65)),
     ("constraints missing", model_with(constraints=None)),
     ("constraints empty", model_with(constraints=[])),
     ("uncertain missing", model_with(uncertain=None)),
     ("decisions missing", model_with(decisions=None)),
-    ("unknown top-level member", dict(RESTOCK, solver="x")),
+    ("unknown top-level member", dict(WATER_POINTS, solver="x")),
     ("decision named like a function", model_with(decisions=[{"name": "sum"}])),
     ("decision name starting with a digit", model_with(decisions=[{"name": "2x"}])),
     ("decision size 0", model_with(decisions=[{"name": "x", "size": 0}])),
@@ -298,22 +298,22 @@ MODEL_INVALID = [
 ]
 
 CHECK_REQUEST_VALID = [
-    ("decision only", {"decision": {"order": [420, 300, 180], "trucks": 2, "buffer_share": 0.1}}),
+    ("decision only", {"decision": {"tanks": [420, 300, 180], "crews": 2, "reserve_share": 0.1}}),
     ("every member", {
-        "decision": {"order": [420, 300, 180], "trucks": 2, "buffer_share": 0.1},
+        "decision": {"tanks": [420, 300, 180], "crews": 2, "reserve_share": 0.1},
         "samples": 250000, "seed": 90210, "target": 0.95, "confidence": 0.99,
         "interval": "wilson", "stop_early": True, "sampling": "latin_hypercube",
         "expect_digest": DIGEST, "in_sample": {"seed": 3, "count": 400},
-        "label": "restock plan wk 49", "wait_s": 0}),
+        "label": "water plan day 2", "wait_s": 0}),
     ("empty decision", {"decision": {}}),
 ]
 
 CHECK_REQUEST_INVALID = [
     ("no decision", {"samples": 1000}),
     ("decision as array", {"decision": [1, 2]}),
-    ("decision value as text", {"decision": {"trucks": "2"}}),
-    ("decision value empty array", {"decision": {"order": []}}),
-    ("decision name invalid", {"decision": {"order-1": 3}}),
+    ("decision value as text", {"decision": {"crews": "2"}}),
+    ("decision value empty array", {"decision": {"tanks": []}}),
+    ("decision name invalid", {"decision": {"tanks-1": 3}}),
     ("samples 0", {"decision": {}, "samples": 0}),
     ("samples fractional", {"decision": {}, "samples": 10.5}),
     ("seed negative", {"decision": {}, "seed": -1}),
@@ -331,7 +331,7 @@ CHECK_REQUEST_INVALID = [
 CHECK_DONE = {
     "id": "chk_01JDQ4R8ZK3M5N7P9Q1S3T5V7X",
     "status": "done",
-    "model": {"name": "depot-restock.north", "version": 2, "digest": DIGEST},
+    "model": {"name": "festival-water.east", "version": 2, "digest": DIGEST},
     "verdict": "inconclusive",
     "target": 0.95,
     "confidence": 0.99,
@@ -341,26 +341,26 @@ CHECK_DONE = {
               "std_error": 0.000685,
               "interval": {"lower": 0.94891, "upper": 0.95248, "method": "clopper_pearson"}},
     "constraints": [
-        {"name": "no_stockout[2]", "violated": 3712, "probability": 0.03712,
+        {"name": "no_shortfall[2]", "violated": 3712, "probability": 0.03712,
          "interval": {"lower": 0.03558, "upper": 0.03871},
          "excess": {"mean": 0.41, "mean_if_violated": 11.0, "p95": 27.5, "max": 88.2},
          "sole_cause": 3100},
-        {"name": "fleet", "violated": 0, "probability": 0.0,
+        {"name": "crew_load", "violated": 0, "probability": 0.0,
          "interval": {"lower": 0.0, "upper": 0.0000529},
          "excess": {"mean": 0.0, "mean_if_violated": None, "p95": None, "max": None},
          "sole_cause": 0, "deterministic": True},
     ],
     "deterministic": {"ok": True, "problems": []},
     "objective": 4386.5,
-    "failing_scenarios": [{"index": 41, "violated": ["no_stockout[2]"]},
-                          {"index": 97, "violated": ["no_stockout[0]", "cold_room"]}],
+    "failing_scenarios": [{"index": 41, "violated": ["no_shortfall[2]"]},
+                          {"index": 97, "violated": ["no_shortfall[0]", "overflow"]}],
     "in_sample": {"count": 400, "satisfied": 389, "fraction": 0.9725},
     "samples_to_settle": 742000,
     "stopped_early": False,
     "created_at": "2026-11-30T08:15:02Z",
     "finished_at": "2026-11-30T08:15:03.250Z",
     "elapsed_ms": 1250,
-    "label": "restock plan wk 49",
+    "label": "water plan day 2",
     "key": "pipeline",
     "served_by": "replica-2",
 }
@@ -368,7 +368,7 @@ CHECK_DONE = {
 CHECK_RUNNING = {
     "id": "chk_01JDQ4S0AB",
     "status": "running",
-    "model": {"name": "depot-restock.north", "version": 2, "digest": DIGEST},
+    "model": {"name": "festival-water.east", "version": 2, "digest": DIGEST},
     "verdict": None,
     "target": 0.95, "confidence": 0.99, "seed": 7,
     "created_at": "2026-11-30T08:16:00+01:00",
@@ -418,7 +418,7 @@ CHECK_RESULT_VALID = [
                                               "confidence_sequence"), "/stopped_early", True)),
     ("done with a decision problem", changed(changed(CHECK_DONE, "/verdict", "fail"),
                                              "/decision_problems",
-                                             [{"name": "trucks", "message": "2.5 is not an integer"}])),
+                                             [{"name": "crews", "message": "2.5 is not an integer"}])),
     ("done without objective", changed(CHECK_DONE, "/objective", None)),
     ("failed", changed(CHECK_CANCELLED, "/status", "failed")),
     ("interrupted", changed(CHECK_RUNNING, "/status", "interrupted")),
@@ -443,7 +443,7 @@ CHECK_RESULT_INVALID = [
     ("excess without p95", changed(CHECK_DONE, "/constraints/0/excess/p95", REMOVE)),
     ("bad row name", changed(CHECK_DONE, "/constraints/0/name", "no stockout")),
     ("six failing scenarios", changed(CHECK_DONE, "/failing_scenarios",
-                                      [{"index": i, "violated": ["fleet"]} for i in range(6)])),
+                                      [{"index": i, "violated": ["crew_load"]} for i in range(6)])),
     ("failing scenario without rows", changed(CHECK_DONE, "/failing_scenarios",
                                               [{"index": 3, "violated": []}])),
     ("objective as text", changed(CHECK_DONE, "/objective", "4386.5")),
@@ -494,7 +494,7 @@ PROBLEM_INVALID = [
 SUMMARY = {"decisions": 3, "decision_dims": 5, "uncertain": 4, "uncertain_dims": 6,
            "definitions": 3, "constraints": 3, "rows": 5, "deterministic_rows": 1,
            "objective": True}
-REGISTERED = {"name": "depot-restock.north", "version": 2, "digest": DIGEST,
+REGISTERED = {"name": "festival-water.east", "version": 2, "digest": DIGEST,
               "created_at": "2026-11-29T17:00:00Z", "summary": SUMMARY}
 
 REGISTERED_VALID = [("registered", REGISTERED)]
@@ -505,7 +505,7 @@ REGISTERED_INVALID = [
     ("summary without rows", changed(REGISTERED, "/summary/rows", REMOVE)),
 ]
 
-VERSION = dict(REGISTERED, document=RESTOCK)
+VERSION = dict(REGISTERED, document=WATER_POINTS)
 VERSION_VALID = [("version with document", VERSION)]
 VERSION_INVALID = [
     ("no document", changed(VERSION, "/document", REMOVE)),
@@ -514,8 +514,8 @@ VERSION_INVALID = [
 
 MODEL_LIST_VALID = [
     ("two models", {"models": [
-        {"name": "depot-restock.north", "version": 2, "digest": DIGEST,
-         "created_at": "2026-11-29T17:00:00Z", "title": "Weekly restock, northern depot"},
+        {"name": "festival-water.east", "version": 2, "digest": DIGEST,
+         "created_at": "2026-11-29T17:00:00Z", "title": "Water points, east field, festival day two"},
         {"name": "silo-7", "version": 1, "digest": DIGEST2,
          "created_at": "2026-11-20T09:30:00Z", "title": None}]}),
     ("none", {"models": []}),
@@ -548,8 +548,8 @@ CHECK_LIST_INVALID = [
 
 COMPARISON_REQUEST_VALID = [
     ("two plans", {"candidates": [
-        {"label": "lean", "decision": {"order": [380, 280, 160], "trucks": 2, "buffer_share": 0}},
-        {"label": "safe", "decision": {"order": [460, 330, 200], "trucks": 2, "buffer_share": 0.2}}],
+        {"label": "lean", "decision": {"tanks": [380, 280, 160], "crews": 2, "reserve_share": 0}},
+        {"label": "safe", "decision": {"tanks": [460, 330, 200], "crews": 2, "reserve_share": 0.2}}],
         "samples": 200000, "seed": 5, "interval": "jeffreys", "expect_digest": DIGEST}),
 ]
 COMPARISON_REQUEST_INVALID = [
@@ -580,8 +580,8 @@ COMPARISON_RESULT_INVALID = [
 ]
 
 SCENARIOS_VALID = [
-    ("two scenarios", {"columns": ["demand[0]", "demand[1]", "demand[2]", "lead_days",
-                                   "spoiled", "returns"],
+    ("two scenarios", {"columns": ["visitors[0]", "visitors[1]", "visitors[2]", "heat_hours",
+                                   "leak", "refills"],
                        "rows": [[512.3, 344.0, 301.9, 3.4, 0.041, 5],
                                 [478.8, 390.2, 255.0, 2.9, 0.066, 3]],
                        "seed": 7, "stream": "design", "start": 0}),
