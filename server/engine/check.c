@@ -27,14 +27,15 @@
 #include <string.h>
 #include <time.h>
 
-void fg_pool_check_ended_locked(fg_pool *pool, struct fg_check *c);
 
 #define INTEGER_TOL 1e-6
 
-static void lock_of_check(fg_check *c) {
+/* A check detached from its pool (fg_check_run_sync) has ended and no
+ * longer changes, so it needs no lock. */
+void fg_check_lock(fg_check *c) {
   if (c->pool) pthread_mutex_lock(&c->pool->mu);
 }
-static void unlock_of_check(fg_check *c) {
+void fg_check_unlock(fg_check *c) {
   if (c->pool) pthread_mutex_unlock(&c->pool->mu);
 }
 
@@ -198,18 +199,18 @@ bool fg_check_look_locked(struct fg_check *c) {
 }
 
 const uint64_t *fg_check_outcomes(fg_check *c, uint64_t *n) {
-  lock_of_check(c);
+  fg_check_lock(c);
   bool ended = c->state != FG_CHECK_QUEUED && c->state != FG_CHECK_RUNNING;
   *n = c->total.n;
   const uint64_t *bits = ended ? c->outcomes : NULL;
-  unlock_of_check(c);
+  fg_check_unlock(c);
   return bits;
 }
 
 bool fg_check_stopped_early(fg_check *c) {
-  lock_of_check(c);
+  fg_check_lock(c);
   bool v = c->stopped_early;
-  unlock_of_check(c);
+  fg_check_unlock(c);
   return v;
 }
 
@@ -448,22 +449,6 @@ oom:
                         c->info.nrows, c->info.nregs);
 }
 
-/* A check detached from its pool (fg_check_run_sync) has ended and no
- * longer changes, so it needs no lock. */
-static void lock_of(fg_check *c) {
-  if (c->pool) pthread_mutex_lock(&c->pool->mu);
-}
-static void unlock_of(fg_check *c) {
-  if (c->pool) pthread_mutex_unlock(&c->pool->mu);
-}
-void fg_check_lock(fg_check *c);
-void fg_check_unlock(fg_check *c);
-void fg_check_lock(fg_check *c) {
-  lock_of(c);
-}
-void fg_check_unlock(fg_check *c) {
-  unlock_of(c);
-}
 
 static bool ended(fg_check_state s) {
   return s != FG_CHECK_QUEUED && s != FG_CHECK_RUNNING;
@@ -506,24 +491,24 @@ void fg_check_cancel(fg_check *c) {
 }
 
 fg_check_state fg_check_get_state(fg_check *c) {
-  lock_of(c);
+  fg_check_lock(c);
   fg_check_state s = c->state;
-  unlock_of(c);
+  fg_check_unlock(c);
   return s;
 }
 
 fg_verdict fg_check_get_verdict(fg_check *c) {
-  lock_of(c);
+  fg_check_lock(c);
   fg_verdict v = c->verdict;
-  unlock_of(c);
+  fg_check_unlock(c);
   return v;
 }
 
 void fg_check_progress(fg_check *c, uint64_t *done, uint64_t *satisfied) {
-  lock_of(c);
+  fg_check_lock(c);
   *done = c->total.n;
   *satisfied = c->total.satisfied;
-  unlock_of(c);
+  fg_check_unlock(c);
 }
 
 fg_status fg_check_run_sync(fg_model *m, const fg_check_request *req,

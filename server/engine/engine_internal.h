@@ -115,6 +115,10 @@ struct fg_pool {
   bool stopping;
 };
 
+/* pool.c: under pool->mu, end the check if nothing runs on it any more
+ * (after a cancel). */
+void fg_pool_check_ended_locked(struct fg_pool *pool, struct fg_check *c);
+
 /* check.c */
 void fg_check_lock(struct fg_check *c);
 void fg_check_unlock(struct fg_check *c);

@@ -146,7 +146,6 @@ static void maybe_end(fg_pool *pool, struct fg_check *c) {
   fg_check_unref(c); /* the pool's reference */
 }
 
-void fg_pool_check_ended_locked(fg_pool *pool, struct fg_check *c);
 void fg_pool_check_ended_locked(fg_pool *pool, struct fg_check *c) {
   maybe_end(pool, c);
 }

@@ -37,19 +37,30 @@ static cJSON *interval_json(fg_interval iv, const char *method) {
   return o;
 }
 
-static void add_progress(cJSON *o, struct fg_check *c) {
-  cJSON *pr = cJSON_AddObjectToObject(o, "progress");
+/* A running check: the joint figures of the chunks merged so far (a
+ * Clopper-Pearson interval; no verdict yet) and the same figures as
+ * "progress", with how far it has come. */
+static void add_running(cJSON *o, struct fg_check *c) {
   uint64_t n = c->total.n, k = c->total.satisfied;
-  cJSON_AddNumberToObject(pr, "samples_done", (double)n);
-  cJSON_AddNumberToObject(pr, "samples_total", (double)c->req.samples);
+  double pr = n ? (double)k / (double)n : NAN;
+  fg_interval iv = n ? fg_interval_clopper_pearson(k, n, c->req.confidence)
+                     : (fg_interval){0.0, 1.0};
+  cJSON *j = cJSON_AddObjectToObject(o, "joint");
+  cJSON_AddNumberToObject(j, "samples", (double)n);
+  cJSON_AddNumberToObject(j, "satisfied", (double)k);
+  add_num(j, "probability", pr);
+  add_num(j, "std_error", n ? sqrt(pr * (1 - pr) / (double)n) : NAN);
+  cJSON_AddItemToObject(j, "interval", interval_json(iv, "clopper_pearson"));
+  cJSON_AddArrayToObject(o, "constraints");
+  cJSON *p = cJSON_AddObjectToObject(o, "progress");
+  cJSON_AddNumberToObject(p, "samples_done", (double)n);
+  cJSON_AddNumberToObject(p, "samples_total", (double)c->req.samples);
   if (n > 0) {
-    cJSON_AddNumberToObject(pr, "probability", (double)k / (double)n);
-    fg_interval iv = fg_interval_clopper_pearson(k, n, c->req.confidence);
-    cJSON_AddItemToObject(pr, "interval",
-                          interval_json(iv, "clopper_pearson"));
+    cJSON_AddNumberToObject(p, "probability", pr);
+    cJSON_AddItemToObject(p, "interval", interval_json(iv, "clopper_pearson"));
   } else {
-    cJSON_AddNullToObject(pr, "probability");
-    cJSON_AddNullToObject(pr, "interval");
+    cJSON_AddNullToObject(p, "probability");
+    cJSON_AddNullToObject(p, "interval");
   }
 }
 
@@ -130,21 +141,7 @@ cJSON *fg_check_result_json(fg_check *c, const fg_check_meta *meta) {
     }
     add_rows(o, c);
   } else {
-    /* Running: the joint figures so far (merged chunks), no verdict. */
-    uint64_t n = c->total.n, k = c->total.satisfied;
-    cJSON *j = cJSON_AddObjectToObject(o, "joint");
-    cJSON_AddNumberToObject(j, "samples", (double)n);
-    cJSON_AddNumberToObject(j, "satisfied", (double)k);
-    double pr = n ? (double)k / (double)n : NAN;
-    add_num(j, "probability", pr);
-    add_num(j, "std_error", n ? sqrt(pr * (1 - pr) / (double)n) : NAN);
-    cJSON_AddItemToObject(
-        j, "interval",
-        interval_json(n ? fg_interval_clopper_pearson(k, n, c->req.confidence)
-                        : (fg_interval){0.0, 1.0},
-                      "clopper_pearson"));
-    cJSON_AddArrayToObject(o, "constraints");
-    add_progress(o, c);
+    add_running(o, c);
   }
 
   cJSON *det = cJSON_AddObjectToObject(o, "deterministic");

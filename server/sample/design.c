@@ -405,21 +405,6 @@ static void copula_correlate(const fg_copula *cop, const double *z, double *x) {
   }
 }
 
-/* Smallest k with P(X <= v_k) >= u, from whichever tail is exact (the
- * same rule as discrete_icdf in family.c). */
-static int cdf_search(const fg_input *in, double u, double uc) {
-  int lo = 0, hi = in->nvalues - 1;
-  while (lo < hi) {
-    int mid = lo + (hi - lo) / 2;
-    int enough = u < 0.5 ? in->cdf_lo[mid] >= u : in->cdf_hi[mid] <= uc;
-    if (enough)
-      hi = mid;
-    else
-      lo = mid + 1;
-  }
-  return lo;
-}
-
 static void map_input(const fg_input *in, double *z, int n, double *out,
                       size_t stride) {
   double u, uc;
@@ -437,7 +422,7 @@ static void map_input(const fg_input *in, double *z, int n, double *out,
     for (int t = 0; t < n; t++) {
       dec(out[(size_t)in->base * stride + (size_t)t], &u, &uc);
       const double *src =
-          in->values + (size_t)cdf_search(in, u, uc) * (size_t)in->size;
+          in->values + (size_t)fg_family_cdf_index(in, u, uc) * (size_t)in->size;
       for (int e = 0; e < in->size; e++)
         out[(size_t)(in->base + e) * stride + (size_t)t] = src[e];
     }

@@ -673,8 +673,7 @@ static double count_icdf(fg_cdf_fn P, fg_cdf_fn Q, const double *par,
   return (double)k;
 }
 
-/* Discrete table: smallest sorted index with P(X <= v_k) >= u. */
-static double discrete_icdf(const fg_input *in, double u, double uc) {
+int fg_family_cdf_index(const fg_input *in, double u, double uc) {
   int lo = 0, hi = in->nvalues - 1;
   while (lo < hi) {
     int mid = lo + (hi - lo) / 2;
@@ -684,7 +683,12 @@ static double discrete_icdf(const fg_input *in, double u, double uc) {
     else
       lo = mid + 1;
   }
-  return in->sorted[lo];
+  return lo;
+}
+
+/* Discrete table: the value at fg_family_cdf_index. */
+static double discrete_icdf(const fg_input *in, double u, double uc) {
+  return in->sorted[fg_family_cdf_index(in, u, uc)];
 }
 
 double fg_family_icdf(const fg_input *in, int e, double u, double uc) {

@@ -208,6 +208,9 @@ void fg_family_from_normal(const fg_input *in, int e, const fg_draw_ctx *dc,
 /* Inverse CDF of element e at u (uc = 1 - u, each exact in its own half);
  * families with has_icdf only. */
 double fg_family_icdf(const fg_input *in, int e, double u, double uc);
+/* Smallest index k of a cumulative table (cdf_lo / cdf_hi, nvalues
+ * entries) with P(X <= v_k) >= u, read from whichever tail is exact. */
+int fg_family_cdf_index(const fg_input *in, double u, double uc);
 
 /* Matrices and the multivariate normal (mvn.c). */
 /* Read an n x n matrix of finite numbers (array of n arrays of n). */
