@@ -277,26 +277,17 @@ void fg_sampler_copula_free(fg_copula *cop) {
   memset(cop, 0, sizeof *cop);
 }
 
-/* A block at a time: the members' standard normals go straight into
- * their output columns (member k's from the slot of its own dimension),
- * the correlation factor is applied in place over those columns (FULL by
- * fg_family_lower_apply; EQUAL and AR1 by their recursions, lane-parallel
- * with one running value per lane), then each column is mapped through its
- * member's marginal (fg_family_from_normal). Per lane the arithmetic is
- * the same whatever n and the block's position. */
-void fg_sampler_copula_draw(const fg_copula *cop, const fg_input *inputs,
-                            const fg_draw_ctx *dc, double *out, size_t stride) {
-  const int d = cop->d, n = dc->n;
-  double **cols = dc->cols;
-  for (int k = 0; k < d; k++) {
-    cols[k] = out + (size_t)cop->dims[k] * stride;
-    fg_stream_normals(dc->key, dc->first, n, (uint32_t)cop->dims[k], dc->words,
-                      cols[k]);
-  }
+/* Correlate d columns of n standard normals in place with the entry's
+ * factor (FULL by fg_family_lower_apply; EQUAL and AR1 by their
+ * recursions, lane-parallel with one running value per lane in `tmp`).
+ * Per lane the arithmetic does not depend on n. */
+void fg_sampler_copula_correlate(const fg_copula *cop, double *const *cols,
+                                 int n, double *tmp) {
+  const int d = cop->d;
   switch (cop->form) {
   case FG_CORR_FULL: fg_family_lower_apply(cop->chol, NULL, d, n, cols); break;
   case FG_CORR_EQUAL: {
-    double *restrict acc = dc->tmp;
+    double *restrict acc = tmp;
     for (int t = 0; t < n; t++)
       acc[t] = 0;
     for (int i = 0; i < d; i++) {
@@ -319,6 +310,25 @@ void fg_sampler_copula_draw(const fg_copula *cop, const fg_input *inputs,
     }
     break;
   }
+}
+
+/* A block at a time: the members' standard normals go straight into
+ * their output columns (member k's from the slot of its own dimension),
+ * the correlation factor is applied in place over those columns (FULL by
+ * fg_family_lower_apply; EQUAL and AR1 by their recursions, lane-parallel
+ * with one running value per lane), then each column is mapped through its
+ * member's marginal (fg_family_from_normal). Per lane the arithmetic is
+ * the same whatever n and the block's position. */
+void fg_sampler_copula_draw(const fg_copula *cop, const fg_input *inputs,
+                            const fg_draw_ctx *dc, double *out, size_t stride) {
+  const int d = cop->d, n = dc->n;
+  double **cols = dc->cols;
+  for (int k = 0; k < d; k++) {
+    cols[k] = out + (size_t)cop->dims[k] * stride;
+    fg_stream_normals(dc->key, dc->first, n, (uint32_t)cop->dims[k], dc->words,
+                      cols[k]);
+  }
+  fg_sampler_copula_correlate(cop, cols, n, dc->tmp);
   for (int k = 0; k < d; k++)
     fg_family_from_normal(&inputs[cop->input[k]], cop->elem[k], dc, cols[k]);
 }

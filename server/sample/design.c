@@ -362,61 +362,28 @@ static void uniforms(const run *R, uint32_t c, double *col) {
 
 /* ---- phase 2: mapping ------------------------------------------------- */
 
-/* x = mean + L z of one sample with the factor mvn.c made at build. */
-static void mvn_apply(const fg_input *in, const double *z, double *out,
-                      size_t stride) {
-  int d = in->size;
-  for (int i = 0; i < d; i++) {
-    const double *li = in->chol + (size_t)i * (size_t)d;
-    double x = in->par[0][i];
-    for (int k = 0; k <= i; k++)
-      x += li[k] * z[k];
-    out[(size_t)(in->base + i) * stride] = x;
+/* Column k of the block (n lanes) turned in place from uniforms into
+ * standard normals; its pointer kept in cols[k]. */
+static void normal_column(double *col, int n, double **slot) {
+  double u, uc;
+  for (int t = 0; t < n; t++) {
+    dec(col[t], &u, &uc);
+    col[t] = std_quantile(u, uc);
   }
+  *slot = col;
 }
 
-/* x = L z with the correlation factor copula.c made at build, in each of
- * its three forms (see copula.c for the factors). */
-static void copula_correlate(const fg_copula *cop, const double *z, double *x) {
-  int d = cop->d;
-  switch (cop->form) {
-  case FG_CORR_FULL:
-    for (int i = 0; i < d; i++) {
-      const double *li = cop->chol + (size_t)i * (size_t)d;
-      double s = 0;
-      for (int k = 0; k <= i; k++)
-        s += li[k] * z[k];
-      x[i] = s;
-    }
-    break;
-  case FG_CORR_EQUAL: {
-    double acc = 0;
-    for (int i = 0; i < d; i++) {
-      x[i] = acc + cop->dd[i] * z[i];
-      acc += cop->c[i] * z[i];
-    }
-    break;
-  }
-  case FG_CORR_AR1:
-    x[0] = z[0];
-    for (int i = 1; i < d; i++)
-      x[i] = cop->r * x[i - 1] + cop->rc * z[i];
-    break;
-  }
-}
-
-static void map_input(const fg_input *in, double *z, int n, double *out,
+/* Multivariate normal and copula factors are applied by the same block
+ * functions the Monte Carlo draw uses (mvn.c, copula.c), so the factor
+ * arithmetic lives in one place. */
+static void map_input(const fg_input *in, double **cols, int n, double *out,
                       size_t stride) {
   double u, uc;
   switch (in->kind) {
   case FG_FAM_MVN:
-    for (int t = 0; t < n; t++) {
-      for (int k = 0; k < in->size; k++) {
-        dec(out[(size_t)(in->base + k) * stride + (size_t)t], &u, &uc);
-        z[k] = std_quantile(u, uc);
-      }
-      mvn_apply(in, z, out + t, stride);
-    }
+    for (int k = 0; k < in->size; k++)
+      normal_column(out + (size_t)(in->base + k) * stride, n, &cols[k]);
+    fg_family_lower_apply(in->chol, in->par[0], in->size, n, cols);
     return;
   case FG_FAM_SCENARIO_TABLE:
     for (int t = 0; t < n; t++) {
@@ -453,25 +420,24 @@ static void map_input(const fg_input *in, double *z, int n, double *out,
   }
 }
 
-static void map_copula(const fg_copula *cop, const fg_input *inputs, double *z,
-                       double *x, int n, double *out, size_t stride) {
+static void map_copula(const fg_copula *cop, const fg_input *inputs,
+                       double **cols, double *tmp, int n, double *out,
+                       size_t stride) {
   double u, uc;
-  for (int t = 0; t < n; t++) {
-    for (int k = 0; k < cop->d; k++) {
-      dec(out[(size_t)cop->dims[k] * stride + (size_t)t], &u, &uc);
-      z[k] = std_quantile(u, uc);
-    }
-    copula_correlate(cop, z, x);
-    for (int k = 0; k < cop->d; k++) { /* Phi from the exact tail */
-      if (x[k] < 0) {
-        u = gsl_cdf_ugaussian_P(x[k]);
+  for (int k = 0; k < cop->d; k++)
+    normal_column(out + (size_t)cop->dims[k] * stride, n, &cols[k]);
+  fg_sampler_copula_correlate(cop, cols, n, tmp);
+  for (int k = 0; k < cop->d; k++) {
+    double *col = cols[k];
+    for (int t = 0; t < n; t++) { /* Phi from the exact tail */
+      if (col[t] < 0) {
+        u = gsl_cdf_ugaussian_P(col[t]);
         uc = 1 - u;
       } else {
-        uc = gsl_cdf_ugaussian_Q(x[k]);
+        uc = gsl_cdf_ugaussian_Q(col[t]);
         u = 1 - uc;
       }
-      out[(size_t)cop->dims[k] * stride + (size_t)t] =
-          fg_family_icdf(&inputs[cop->input[k]], cop->elem[k], u, uc);
+      col[t] = fg_family_icdf(&inputs[cop->input[k]], cop->elem[k], u, uc);
     }
   }
 }
@@ -481,8 +447,8 @@ static void draw_run(const fg_sampler *s, fg_sample_scratch *w, const run *R,
   int ninputs, ncop;
   const fg_input *inputs = fg_sampler_inputs(s, &ninputs);
   const fg_copula *cops = fg_sampler_copulas(s, &ncop);
-  double *z, *x;
-  fg_sample_scratch_vectors(w, &z, &x);
+  double **cols, *tmp;
+  fg_sample_scratch_block(w, &cols, &tmp);
   uint32_t c = 0;
   for (int i = 0; i < ninputs; i++) {
     const fg_input *in = &inputs[i];
@@ -491,9 +457,9 @@ static void draw_run(const fg_sampler *s, fg_sample_scratch *w, const run *R,
       uniforms(R, c, out + (size_t)(in->base + e) * stride);
   }
   for (int i = 0; i < ninputs; i++)
-    if (inputs[i].copula < 0) map_input(&inputs[i], z, R->n, out, stride);
+    if (inputs[i].copula < 0) map_input(&inputs[i], cols, R->n, out, stride);
   for (int k = 0; k < ncop; k++)
-    map_copula(&cops[k], inputs, z, x, R->n, out, stride);
+    map_copula(&cops[k], inputs, cols, tmp, R->n, out, stride);
 }
 
 void fg_sampler_draw_design(const fg_sampler *s, fg_sample_scratch *w,

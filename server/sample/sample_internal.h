@@ -253,6 +253,8 @@ fg_status fg_sampler_copula_parse(fg_copula *cop, int index,
                                   const struct cJSON *entry, const char *ptr,
                                   fg_input *inputs, int ninputs, fg_problem *p);
 void fg_sampler_copula_free(fg_copula *cop);
+void fg_sampler_copula_correlate(const fg_copula *cop, double *const *cols,
+                                 int n, double *tmp);
 void fg_sampler_copula_draw(const fg_copula *cop, const fg_input *inputs,
                             const fg_draw_ctx *dc, double *out, size_t stride);
 
@@ -262,7 +264,10 @@ void fg_sampler_copula_draw(const fg_copula *cop, const fg_input *inputs,
  * scratch's two joint-block vectors (sampler.c). */
 const fg_input *fg_sampler_inputs(const fg_sampler *s, int *n);
 const fg_copula *fg_sampler_copulas(const fg_sampler *s, int *n);
-void fg_sample_scratch_vectors(fg_sample_scratch *w, double **z, double **x);
+/* The scratch's column pointers (one per dimension) and an FG_BLOCK
+ * temporary, for design.c's block-wise mapping. */
+void fg_sample_scratch_block(fg_sample_scratch *w, double ***cols,
+                             double **tmp);
 /* Tables the designs map through, made at build: empirical data sorted
  * into in->sorted; a scenario table's cumulative row weights into
  * in->cdf_lo (P(row <= k)) and in->cdf_hi (P(row > k)). -1 when out of

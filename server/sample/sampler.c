@@ -62,8 +62,7 @@ struct fg_sample_scratch {
   gsl_rng *rng;
   fg_stream_words *words;
   double *u, *uc, *tmp; /* FG_BLOCK each */
-  double **cols;        /* joint_max */
-  double *z, *x;        /* joint_max each: per-sample vectors (design.c) */
+  double **cols;        /* joint_max (also design.c's block mapping) */
 };
 
 static pthread_once_t gsl_once = PTHREAD_ONCE_INIT;
@@ -290,9 +289,7 @@ fg_sample_scratch *fg_sample_scratch_new(const fg_sampler *s) {
     w->tmp = w->uc + FG_BLOCK;
   }
   w->cols = malloc((size_t)s->joint_max * sizeof *w->cols);
-  w->z = malloc((size_t)s->joint_max * sizeof(double));
-  w->x = malloc((size_t)s->joint_max * sizeof(double));
-  if (!w->rng || !w->words || !w->u || !w->cols || !w->z || !w->x) {
+  if (!w->rng || !w->words || !w->u || !w->cols) {
     fg_sample_scratch_free(w);
     return NULL;
   }
@@ -305,8 +302,6 @@ void fg_sample_scratch_free(fg_sample_scratch *w) {
   free(w->words);
   free(w->u);
   free(w->cols);
-  free(w->z);
-  free(w->x);
   free(w);
 }
 
@@ -367,7 +362,8 @@ const fg_copula *fg_sampler_copulas(const fg_sampler *s, int *n) {
   return s->copulas;
 }
 
-void fg_sample_scratch_vectors(fg_sample_scratch *w, double **z, double **x) {
-  *z = w->z;
-  *x = w->x;
+void fg_sample_scratch_block(fg_sample_scratch *w, double ***cols,
+                             double **tmp) {
+  *cols = w->cols;
+  *tmp = w->tmp;
 }
