@@ -408,11 +408,10 @@ fg_status fg_check_start(fg_pool *pool, fg_model *m,
       fg_eval_ctx_free(&ctx);
       goto oom;
     }
-    c->req.seed = req->in_sample_seed; /* the design stream of that seed */
+    /* the design stream of the in-sample seed */
     fg_engine_run_range(c, ctx.sscratch, ctx.regs, ctx.excess, ctx.scratch,
-                        FG_STREAM_DESIGN, 0, req->in_sample_count, &t, NULL,
-                        NULL, NULL);
-    c->req.seed = req->seed;
+                        req->in_sample_seed, FG_STREAM_DESIGN, 0,
+                        req->in_sample_count, &t, NULL, NULL, NULL);
     c->has_in_sample = true;
     c->in_sample_count = t.n;
     c->in_sample_satisfied = t.satisfied;

@@ -125,13 +125,14 @@ void fg_check_unlock(struct fg_check *c);
 void fg_check_finalize_locked(struct fg_check *c);
 void fg_check_free_internal(struct fg_check *c);
 
-/* Run samples [first, first + count) of `stream` into `t` with a private
+/* Run samples [first, first + count) of (seed, stream) into `t` with a private
  * register file `regs` (info.nregs * FG_BLOCK doubles, already broadcast).
  * Stops early (returning false) when `cancel` or `timeout` becomes true or
  * the deadline passes. */
 bool fg_engine_run_range(const struct fg_check *c, fg_sample_scratch *w,
                          double *regs, const double **excess, int *scratch,
-                         fg_stream stream, uint64_t first, uint64_t count,
+                         uint64_t seed, fg_stream stream, uint64_t first,
+                         uint64_t count,
                          fg_tally *t, atomic_bool *cancel,
                          atomic_bool *timeout, uint64_t *outcomes);
 /* Sample range of chunk idx. */

@@ -63,7 +63,8 @@ void fg_eval_ctx_free(fg_eval_ctx *e) {
 
 bool fg_engine_run_range(const struct fg_check *c, fg_sample_scratch *w,
                          double *regs, const double **excess, int *scratch,
-                         fg_stream stream, uint64_t first, uint64_t count,
+                         uint64_t seed, fg_stream stream, uint64_t first,
+                         uint64_t count,
                          fg_tally *t, atomic_bool *cancel,
                          atomic_bool *timeout, uint64_t *outcomes) {
   const fg_program_info *in = &c->info;
@@ -84,10 +85,10 @@ bool fg_engine_run_range(const struct fg_check *c, fg_sample_scratch *w,
     int n = (count - done) < FG_BLOCK ? (int)(count - done) : FG_BLOCK;
     if (in->nuncertain > 0) {
       if (c->design == FG_DESIGN_MONTE_CARLO || stream != FG_STREAM_VALIDATION)
-        fg_sampler_draw(c->model->sampler, w, c->req.seed, stream,
+        fg_sampler_draw(c->model->sampler, w, seed, stream,
                         first + done, n, ureg, FG_BLOCK);
       else
-        fg_sampler_draw_design(c->model->sampler, w, c->req.seed, stream,
+        fg_sampler_draw_design(c->model->sampler, w, seed, stream,
                                c->design, c->rep_size, first + done, n, ureg,
                                FG_BLOCK);
     }
@@ -181,7 +182,8 @@ static void *worker_main(void *arg) {
     fg_check_chunk_range(c, idx, &first, &count);
     if (ok)
       ok = fg_engine_run_range(c, ctx.sscratch, ctx.regs, ctx.excess,
-                               ctx.scratch, FG_STREAM_VALIDATION, first, count,
+                               ctx.scratch, c->req.seed, FG_STREAM_VALIDATION,
+                               first, count,
                                t, &c->cancel_flag, &c->timeout_flag,
                                c->outcomes);
 
