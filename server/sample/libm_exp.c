@@ -1,31 +1,57 @@
 /*
- * sample/libm_exp.c -- libm's exp over an array of lanes, called without
- * libm's errno wrapper where that is provably the same function.
+ * sample/libm_exp.c -- libm's exp over an array of lanes: libm's values
+ * bit for bit, several lanes per instruction where that is proven to give
+ * them.
  *
  * Why: a lognormal draw is one exp per lane, and exp is the largest single
- * cost of lognormal-heavy checks. On x86-64 glibc the public `exp` is a
- * small wrapper (it sets errno on overflow and underflow) around an
- * internal, processor-selected implementation, reached through a second
- * PLT indirection. glibc exports that very implementation as
- * `__exp_finite` (symbol version GLIBC_2.15, kept for binary
- * compatibility): the wrapper calls it and returns its result unchanged.
- * Calling it directly skips the wrapper and one indirection, about 30% of
- * the cost of a call on the benchmark machine, and gives the same bits.
- * feasgate never reads errno after a draw, so the wrapper's only effect is
- * not missed.
+ * cost of lognormal-heavy checks.
  *
- * Safety: the symbol is looked up at run time (dlvsym, by name and
- * version), never linked against, so a libm without it simply keeps
- * `exp`. When found, it is compared with `exp` bit for bit on a spread of
- * arguments (the whole double range, the ranges lognormal draws use, the
- * special values) before it is used; any difference, and `exp` is used.
- * Values are therefore those of libm's `exp` in every case.
+ * The scalar entry. On x86-64 glibc the public `exp` is a small wrapper
+ * (it sets errno on overflow and underflow) around an internal,
+ * processor-selected implementation, reached through a second PLT
+ * indirection. glibc exports that very implementation as `__exp_finite`
+ * (symbol version GLIBC_2.15, kept for binary compatibility): the wrapper
+ * calls it and returns its result unchanged. Calling it directly skips the
+ * wrapper and one indirection and gives the same bits. It is looked up at
+ * run time (dlvsym, by name and version), never linked against, and
+ * compared with `exp` bit for bit on a spread of arguments before use; any
+ * difference, and `exp` itself is the scalar entry.
  *
- * Thread use: the choice is made once (pthread_once); afterwards read-only.
+ * The lane kernels. glibc's exp since 2.28 (Szabolcs Nagy's, also in Arm's
+ * optimized-routines) reduces x = k ln2/128 + r with k = round(128 x/ln2)
+ * found by adding 1.5 * 2^52, looks 2^(k/128) up as a pair (H_k, T_k) of
+ * doubles (exp_table.h, made by gen_exp_table.py), and evaluates
+ *   exp(x) = s + s (T_k + r + r^2 (c2 + c3 r) + r^4 (c4 + c5 r)),
+ *   s = H_k 2^floor(k/128),
+ * where the four coefficients are those glibc publishes. On processors
+ * with FMA glibc runs a build of that code in which the compiler fused
+ * each a*b + c into one rounding; kernel_avx512 and kernel_avx2 below make
+ * the same operations in the same order with the same fusions, 8 or 4
+ * lanes at a time (the table read by scalar loads, which measured faster
+ * than gathers on the benchmark machine), so every rounding is the same and so is the result.
+ * Lanes outside glibc's main path (|x| < 2^-54, |x| >= 512, inf, NaN) go
+ * to the scalar entry instead.
+ *
+ * Safety. A kernel is used only after it has agreed with the scalar entry
+ * bit for bit on about 50,000 arguments at first use (the lognormal range
+ * densely, the whole double range, both edges of the main path, the
+ * special values); a libm whose exp is built differently (no FMA, another
+ * algorithm, another table) fails that and the scalar entry is used, so
+ * values are libm's in every case. tests/unit/test_sample.c compares the
+ * kernels with `exp` over several million further arguments.
+ *
+ * The kernels' arithmetic is written as intrinsics, one operation each:
+ * none is a product feeding a separate addition, so no compiler can fuse
+ * or reassociate it differently (and no -ffast-math is ever used).
+ *
+ * Thread use: the choice is made once (pthread_once); afterwards
+ * read-only, except fg_exp_lanes_force, which tests call between runs.
  */
 #define _GNU_SOURCE 1
 
 #include "sample/sample_internal.h"
+
+#include "sample/exp_table.h"
 
 #include <dlfcn.h>
 #include <math.h>
@@ -38,32 +64,206 @@ typedef double (*exp_fn)(double);
 static exp_fn chosen_exp = exp;
 static pthread_once_t exp_once = PTHREAD_ONCE_INIT;
 
+/* Which lane kernel runs: 0 none (scalar entry per lane), 1 AVX2 + FMA,
+ * 2 AVX-512F; kernel_max is what the start-up check allowed. */
+static int kernel_max, kernel_use;
+
+/* glibc's constants: 128/ln2, the rounding shift, -ln2/128 as a high part
+ * with trailing zeros and a low part, and the coefficients c2..c5. */
+#define EXP_INVLN2N 0x1.71547652b82fep7
+#define EXP_SHIFT 0x1.8p52
+#define EXP_NEGLN2HI -0x1.62e42fefa0000p-8
+#define EXP_NEGLN2LO -0x1.cf79abc9e3b3ap-47
+#define EXP_C2 0x1.ffffffffffdbdp-2
+#define EXP_C3 0x1.555555555543cp-3
+#define EXP_C4 0x1.55555cf172b91p-5
+#define EXP_C5 0x1.1111167a4d017p-7
+/* the main path: biased exponent of |x| in [top(2^-54), top(512)) */
+#define EXP_TOP_LO 0x3c9
+#define EXP_TOP_HI 0x408
+
 static int same_bits(double a, double b) {
   if (isnan(a) && isnan(b)) return 1;
   return memcmp(&a, &b, sizeof a) == 0;
 }
 
-/* Does f agree with exp on every probe? */
-static int agrees_with_exp(exp_fn f) {
-  static const double special[] = {
-      0.0,      -0.0,     1.0,        -1.0,     0.5,     1e-300, -1e-300,
-      709.78,   709.79,   710.0,      -708.4,   -745.13, -745.14, -746.0,
-      -1074.0,  1e308,    -1e308,     INFINITY, -INFINITY, NAN,  0x1p-54,
-      -0x1p-54, 0x1p-1022, 88.72283905206835, -87.33654475055310};
-  for (size_t i = 0; i < sizeof special / sizeof special[0]; i++)
-    if (!same_bits(f(special[i]), exp(special[i]))) return 0;
+#if defined(__x86_64__) && defined(__GNUC__)
+#include <immintrin.h>
+#define FG_HAVE_EXP_KERNELS 1
+
+__attribute__((target("avx512f"))) static void
+kernel_avx512(double *x, int n, exp_fn f) {
+  const __m512d inv = _mm512_set1_pd(EXP_INVLN2N);
+  const __m512d shift = _mm512_set1_pd(EXP_SHIFT);
+  const __m512d nhi = _mm512_set1_pd(EXP_NEGLN2HI);
+  const __m512d nlo = _mm512_set1_pd(EXP_NEGLN2LO);
+  const __m512d c2 = _mm512_set1_pd(EXP_C2), c3 = _mm512_set1_pd(EXP_C3);
+  const __m512d c4 = _mm512_set1_pd(EXP_C4), c5 = _mm512_set1_pd(EXP_C5);
+  const __m512i k127 = _mm512_set1_epi64(127);
+  const __m512i top_lo = _mm512_set1_epi64(EXP_TOP_LO);
+  const __m512i top_span = _mm512_set1_epi64(EXP_TOP_HI - EXP_TOP_LO);
+  const __m512i top_mask = _mm512_set1_epi64(0x7ff);
+  int t = 0;
+  for (; t + 8 <= n; t += 8) {
+    __m512d v = _mm512_loadu_pd(x + t);
+    __m512i top = _mm512_and_si512(
+        _mm512_srli_epi64(_mm512_castpd_si512(v), 52), top_mask);
+    __mmask8 main = _mm512_cmplt_epu64_mask(_mm512_sub_epi64(top, top_lo),
+                                            top_span);
+    __m512d kd = _mm512_fmadd_pd(inv, v, shift);
+    __m512i ki = _mm512_castpd_si512(kd);
+    kd = _mm512_sub_pd(kd, shift);
+    __m512d r = _mm512_fmadd_pd(kd, nlo, _mm512_fmadd_pd(kd, nhi, v));
+    __m512i idx = _mm512_slli_epi64(_mm512_and_si512(ki, k127), 1);
+    /* the table by scalar loads: faster than two gathers here */
+    uint64_t at[8], tl[8], hb[8];
+    _mm512_storeu_si512((void *)at, idx);
+    for (int j = 0; j < 8; j++) {
+      tl[j] = fg_exp_table[at[j]];
+      hb[j] = fg_exp_table[at[j] + 1];
+    }
+    __m512d tail = _mm512_loadu_pd((const double *)(const void *)tl);
+    __m512i sbits = _mm512_add_epi64(_mm512_loadu_si512((const void *)hb),
+                                     _mm512_slli_epi64(ki, 45));
+    __m512d r2 = _mm512_mul_pd(r, r);
+    __m512d a = _mm512_fmadd_pd(r2, _mm512_fmadd_pd(r, c3, c2),
+                                _mm512_add_pd(tail, r));
+    __m512d tmp = _mm512_fmadd_pd(_mm512_mul_pd(r2, r2),
+                                  _mm512_fmadd_pd(r, c5, c4), a);
+    __m512d s = _mm512_castsi512_pd(sbits);
+    if (main == 0xff) {
+      _mm512_storeu_pd(x + t, _mm512_fmadd_pd(s, tmp, s));
+    } else {
+      double in[8];
+      _mm512_storeu_pd(in, v);
+      _mm512_storeu_pd(x + t, _mm512_fmadd_pd(s, tmp, s));
+      for (int j = 0; j < 8; j++)
+        if (!(main >> j & 1)) x[t + j] = f(in[j]);
+    }
+  }
+  for (; t < n; t++)
+    x[t] = f(x[t]);
+}
+
+__attribute__((target("avx2,fma"))) static void
+kernel_avx2(double *x, int n, exp_fn f) {
+  const __m256d inv = _mm256_set1_pd(EXP_INVLN2N);
+  const __m256d shift = _mm256_set1_pd(EXP_SHIFT);
+  const __m256d nhi = _mm256_set1_pd(EXP_NEGLN2HI);
+  const __m256d nlo = _mm256_set1_pd(EXP_NEGLN2LO);
+  const __m256d c2 = _mm256_set1_pd(EXP_C2), c3 = _mm256_set1_pd(EXP_C3);
+  const __m256d c4 = _mm256_set1_pd(EXP_C4), c5 = _mm256_set1_pd(EXP_C5);
+  const __m256i k127 = _mm256_set1_epi64x(127);
+  const __m256i below = _mm256_set1_epi64x(EXP_TOP_LO - 1);
+  const __m256i above = _mm256_set1_epi64x(EXP_TOP_HI);
+  const __m256i top_mask = _mm256_set1_epi64x(0x7ff);
+  int t = 0;
+  for (; t + 4 <= n; t += 4) {
+    __m256d v = _mm256_loadu_pd(x + t);
+    __m256i top = _mm256_and_si256(
+        _mm256_srli_epi64(_mm256_castpd_si256(v), 52), top_mask);
+    /* top and the bounds are small non-negative integers: signed
+     * compares suffice */
+    __m256i in_main = _mm256_and_si256(_mm256_cmpgt_epi64(top, below),
+                                       _mm256_cmpgt_epi64(above, top));
+    int main = _mm256_movemask_pd(_mm256_castsi256_pd(in_main));
+    __m256d kd = _mm256_fmadd_pd(inv, v, shift);
+    __m256i ki = _mm256_castpd_si256(kd);
+    kd = _mm256_sub_pd(kd, shift);
+    __m256d r = _mm256_fmadd_pd(kd, nlo, _mm256_fmadd_pd(kd, nhi, v));
+    __m256i idx = _mm256_slli_epi64(_mm256_and_si256(ki, k127), 1);
+    uint64_t at[4], tl[4], hb[4];
+    _mm256_storeu_si256((__m256i *)(void *)at, idx);
+    for (int j = 0; j < 4; j++) {
+      tl[j] = fg_exp_table[at[j]];
+      hb[j] = fg_exp_table[at[j] + 1];
+    }
+    __m256d tail = _mm256_loadu_pd((const double *)(const void *)tl);
+    __m256i sbits =
+        _mm256_add_epi64(_mm256_loadu_si256((const __m256i *)(const void *)hb),
+                         _mm256_slli_epi64(ki, 45));
+    __m256d r2 = _mm256_mul_pd(r, r);
+    __m256d a = _mm256_fmadd_pd(r2, _mm256_fmadd_pd(r, c3, c2),
+                                _mm256_add_pd(tail, r));
+    __m256d tmp = _mm256_fmadd_pd(_mm256_mul_pd(r2, r2),
+                                  _mm256_fmadd_pd(r, c5, c4), a);
+    __m256d s = _mm256_castsi256_pd(sbits);
+    if (main == 0xf) {
+      _mm256_storeu_pd(x + t, _mm256_fmadd_pd(s, tmp, s));
+    } else {
+      double in[4];
+      _mm256_storeu_pd(in, v);
+      _mm256_storeu_pd(x + t, _mm256_fmadd_pd(s, tmp, s));
+      for (int j = 0; j < 4; j++)
+        if (!(main >> j & 1)) x[t + j] = f(in[j]);
+    }
+  }
+  for (; t < n; t++)
+    x[t] = f(x[t]);
+}
+#endif
+
+static void run_kernel(int k, double *x, int n, exp_fn f) {
+#if defined(FG_HAVE_EXP_KERNELS)
+  if (k == 2) {
+    kernel_avx512(x, n, f);
+    return;
+  }
+  if (k == 1) {
+    kernel_avx2(x, n, f);
+    return;
+  }
+#endif
+  for (int t = 0; t < n; t++)
+    x[t] = f(x[t]);
+}
+
+/* ---- the start-up check ---------------------------------------------- */
+
+#define PROBE_DENSE 32768 /* lognormal exponents, [-8, 16) */
+#define PROBE_WIDE 16384  /* the whole finite range, [-750, 715) */
+
+static const double probe_special[] = {
+    0.0,        -0.0,        1.0,         -1.0,      0.5,       1e-300,
+    -1e-300,    709.78,      709.79,      710.0,     -708.4,    -745.13,
+    -745.14,    -746.0,      -1074.0,     1e308,     -1e308,    INFINITY,
+    -INFINITY,  NAN,         0x1p-54,     -0x1p-54,  0x1p-1022, 0x1.fffffffffffffp-55,
+    0x1.0000000000001p-54,   511.99999999999994, 512.0, -511.99999999999994,
+    -512.0,     88.72283905206835, -87.33654475055310, 1e-10, -1e-10,
+    0.34657359027997264, -0.34657359027997264, 0.0027076061740622863};
+
+/* xorshift64*: a fixed, cheap spread of arguments */
+static double probe_u(uint64_t *s) {
+  *s ^= *s >> 12;
+  *s ^= *s << 25;
+  *s ^= *s >> 27;
+  return (double)((*s * UINT64_C(0x2545F4914F6CDD1D)) >> 11) * 0x1p-53;
+}
+
+/* Does f agree with exp, and kernel k (if k > 0) with f, on every probe?
+ * Chunks of 256 keep the scratch on the stack. */
+static int probes_agree(exp_fn f, int k) {
+  enum { CH = 256 };
+  double in[CH], out[CH];
+  int nspecial = (int)(sizeof probe_special / sizeof probe_special[0]);
   uint64_t s = UINT64_C(0x9E3779B97F4A7C15);
-  for (int i = 0; i < 20000; i++) {
-    /* xorshift64*: a fixed, cheap spread of arguments */
-    s ^= s >> 12;
-    s ^= s << 25;
-    s ^= s >> 27;
-    uint64_t r = s * UINT64_C(0x2545F4914F6CDD1D);
-    double u = (double)(r >> 11) * 0x1p-53;   /* [0, 1) */
-    double wide = -750.0 + 1465.0 * u;        /* the whole finite range */
-    double narrow = -8.0 + 24.0 * u;          /* where lognormals live */
-    if (!same_bits(f(wide), exp(wide)) || !same_bits(f(narrow), exp(narrow)))
-      return 0;
+  for (int done = -nspecial; done < PROBE_DENSE + PROBE_WIDE; done += CH) {
+    int m = 0;
+    for (int i = done; i < done + CH && i < PROBE_DENSE + PROBE_WIDE; i++) {
+      if (i < 0)
+        in[m++] = probe_special[i + nspecial];
+      else if (i < PROBE_DENSE)
+        in[m++] = -8.0 + 24.0 * probe_u(&s);
+      else
+        in[m++] = -750.0 + 1465.0 * probe_u(&s);
+    }
+    memcpy(out, in, sizeof(double) * (size_t)m);
+    if (k > 0) run_kernel(k, out, m, f);
+    for (int j = 0; j < m; j++) {
+      double want = exp(in[j]);
+      if (!same_bits(f(in[j]), want)) return 0;
+      if (k > 0 && !same_bits(out[j], want)) return 0;
+    }
   }
   return 1;
 }
@@ -74,19 +274,43 @@ static void choose_exp(void) {
   if (p) {
     exp_fn f;
     memcpy(&f, &p, sizeof f); /* object to function pointer, as POSIX allows */
-    if (agrees_with_exp(f)) chosen_exp = f;
+    if (probes_agree(f, 0)) chosen_exp = f;
   }
 #endif
+#if defined(FG_HAVE_EXP_KERNELS)
+  __builtin_cpu_init();
+  if (__builtin_cpu_supports("avx512f") && probes_agree(chosen_exp, 2))
+    kernel_max = 2;
+  else if (__builtin_cpu_supports("avx2") && __builtin_cpu_supports("fma") &&
+           probes_agree(chosen_exp, 1))
+    kernel_max = 1;
+#endif
+  kernel_use = kernel_max;
 }
 
 void fg_exp_lanes(double *x, int n) {
   pthread_once(&exp_once, choose_exp);
-  exp_fn f = chosen_exp;
-  for (int t = 0; t < n; t++)
-    x[t] = f(x[t]);
+  run_kernel(kernel_use, x, n, chosen_exp);
 }
 
 int fg_exp_lanes_direct(void) {
   pthread_once(&exp_once, choose_exp);
   return chosen_exp != exp;
+}
+
+int fg_exp_lanes_force(int level) {
+  pthread_once(&exp_once, choose_exp);
+  int k = 2 - level;
+  if (k < 0) k = 0;
+  if (k > kernel_max) k = kernel_max;
+  if (k == 1 && kernel_max == 2) {
+    /* AVX-512F passed its check; AVX2 is checked on demand for tests */
+#if defined(FG_HAVE_EXP_KERNELS)
+    if (!(__builtin_cpu_supports("avx2") && __builtin_cpu_supports("fma") &&
+          probes_agree(chosen_exp, 1)))
+#endif
+      k = 0;
+  }
+  kernel_use = k;
+  return k;
 }

@@ -82,10 +82,15 @@ double fg_stream_normal_one(fg_stream_key key, uint64_t sample, uint32_t slot);
 /* ---- libm_exp.c ----------------------------------------------------- */
 
 /* x[t] = exp(x[t]) for t < n, libm's values bit for bit (see libm_exp.c
- * for the direct entry used where it is provably the same function). */
+ * for the direct entry and the lane kernels, each used only where it is
+ * checked to give the same bits). */
 void fg_exp_lanes(double *x, int n);
 /* Tests: 1 when fg_exp_lanes calls libm's implementation directly. */
 int fg_exp_lanes_direct(void);
+/* Tests: level 0 the widest lane kernel that passed its check, 1 at most
+ * AVX2, 2 none (the scalar entry per lane). Returns the kernel now used:
+ * 2 AVX-512F, 1 AVX2 + FMA, 0 none. Not for use while checks run. */
+int fg_exp_lanes_force(int level);
 
 /* What one block draw passes down to the families (sampler.c owns it):
  * the stream, the samples, and per-thread scratch of FG_BLOCK lanes. */

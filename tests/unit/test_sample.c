@@ -1045,6 +1045,21 @@ static void test_block_streams(void) {
   for (int i = 0; i < n; i += 9973)
     alone &= fg_stream_normal_one(key, (uint64_t)i, 4) == z[i];
   CHECK(alone);
+  /* the ziggurat's vector fast path (AVX-512F + DQ) and the scalar lanes
+   * give the same bits: the first 2^18 normals again on the narrower
+   * paths, in blocks that leave lanes over */
+  int same_normals = 1;
+  for (int level = 1; level <= 2; level++) {
+    fg_stream_force_portable(level);
+    static double zz[FG_BLOCK];
+    const int blk = FG_BLOCK - 3;
+    for (int t0 = 0; t0 + blk <= (1 << 18); t0 += blk) {
+      fg_stream_normals(key, (uint64_t)t0, blk, 4, &w, zz);
+      same_normals &= memcmp(zz, z + t0, (size_t)blk * sizeof *zz) == 0;
+    }
+  }
+  fg_stream_force_portable(0);
+  CHECK(same_normals);
   const double at[11] = {-4, -3, -2, -1.5, -0.5, 0, 0.3, 1, 2.2, 3.3, 3.9};
   int cdf_ok = 1;
   for (int a = 0; a < 11; a++) {
@@ -1473,22 +1488,52 @@ static void test_design_means(void) {
   fg_sampler_free(s);
 }
 
-/* fg_exp_lanes gives libm's exp bit for bit, whichever entry it chose,
- * over lognormal-sized and extreme arguments. */
+/* fg_exp_lanes gives libm's exp bit for bit, whichever entry and lane
+ * kernel it chose, over lognormal-sized and extreme arguments: 4,000,000
+ * pseudo-random arguments per kernel (the probes of the start-up check
+ * are other ones), block lengths that leave lanes over, and a grid across
+ * the whole range including the edges of the main path. */
 static void test_exp_lanes(void) {
-  enum { N = 4096 };
+  enum { N = 4096, ROUNDS = 1000 };
   static double x[N], y[N];
-  for (int i = 0; i < N; i++) {
-    x[i] = i % 2 ? -20.0 + 40.0 * i / N : -760.0 + 1480.0 * i / N;
-    y[i] = x[i];
+  static const char *const names[3] = {"none", "AVX2+FMA", "AVX-512F"};
+  uint64_t s = UINT64_C(0x0123456789ABCDEF);
+  for (int level = 0; level < 3; level++) {
+    int k = fg_exp_lanes_force(level);
+    long bad = 0, lanes = 0;
+    for (int round = 0; round < ROUNDS; round++) {
+      for (int i = 0; i < N; i++) {
+        s ^= s >> 12; /* xorshift64* */
+        s ^= s << 25;
+        s ^= s >> 27;
+        double u = (double)((s * UINT64_C(0x2545F4914F6CDD1D)) >> 11) *
+                   0x1p-53;
+        if (round == 0)
+          x[i] = i % 2 ? -20.0 + 40.0 * i / N : -760.0 + 1480.0 * i / N;
+        else if (round % 4 == 1)
+          x[i] = -750.0 + 1465.0 * u;
+        else if (round % 4 == 2)
+          x[i] = (u - 0.5) * 0x1p-50; /* around the lower edge, 2^-54 */
+        else
+          x[i] = -12.0 + 30.0 * u;
+        if (round == 1 && i < 8) /* the upper edge, 512, both sides */
+          x[i] = (i % 2 ? -1 : 1) * nextafter(512.0, i < 4 ? 0.0 : 1e3);
+        y[i] = x[i];
+      }
+      int n = N - round % 8; /* lanes over for the kernels' tails */
+      fg_exp_lanes(y, n);
+      for (int i = 0; i < n; i++) {
+        double e = exp(x[i]);
+        bad += memcmp(&e, &y[i], sizeof e) != 0;
+      }
+      lanes += n;
+    }
+    CHECK_MSG(bad == 0, "fg_exp_lanes (kernel %s) differs from exp in %ld lanes",
+              names[k], bad);
+    printf("fg_exp_lanes, kernel %s: %ld lanes, %ld differ from exp\n",
+           names[k], lanes, bad);
   }
-  fg_exp_lanes(y, N);
-  int bad = 0;
-  for (int i = 0; i < N; i++) {
-    double e = exp(x[i]);
-    bad += memcmp(&e, &y[i], sizeof e) != 0;
-  }
-  CHECK_MSG(bad == 0, "fg_exp_lanes differs from exp in %d lanes", bad);
+  fg_exp_lanes_force(0);
   printf("fg_exp_lanes: %s\n",
          fg_exp_lanes_direct() ? "libm's implementation without its wrapper"
                                : "exp");
