@@ -787,12 +787,12 @@ void fg_family_draw_block(const fg_input *in, int e, uint32_t slot,
     }
     return;
   case FG_FAM_LOGNORMAL:
-    /* libm's exp per lane is now the largest cost of a lognormal draw. A
-     * vectorised exp of our own was tried (range reduction, Estrin): 30%
-     * faster, but about 1 ulp from glibc's (which stays near half an ulp)
-     * in 7% of lanes, so lognormal values would have changed a second
-     * time for a few percent overall; not adopted. fg_exp_lanes calls
-     * the same libm function without its errno wrapper (libm_exp.c). */
+    /* exp per lane is the largest cost of a lognormal draw. fg_exp_lanes
+     * gives libm's values bit for bit: glibc's own algorithm in 8 or 4
+     * lanes where it is checked to agree, else libm per lane
+     * (libm_exp.c). An exp of a different design (1 ulp from glibc's in
+     * 7% of lanes) was tried earlier and not adopted: it would have
+     * changed lognormal values. */
     fg_stream_normals(dc->key, dc->first, n, slot, dc->words, out);
     {
       double m = v[0][e], sd = v[1][e];
