@@ -151,6 +151,9 @@ void fg_tally_merge(fg_tally *dst, const fg_tally *src);
  * first + s satisfied every row. */
 void fg_tally_block(fg_tally *t, const double *const *excess, int n,
                     uint64_t first, const double *objective, int *scratch);
+/* Tests: 1 makes fg_tally_block use its SSE2 / scalar violation masks
+ * even where AVX-512F exists, 0 lets it choose again. */
+void fg_tally_force_portable(int on);
 
 /* ---- sample sizes (sizes.c) ----
  * Normal-approximation sizes for a binomial proportion and the

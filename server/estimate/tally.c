@@ -98,9 +98,42 @@ void fg_tally_merge(fg_tally *dst, const fg_tally *src) {
 
 #define MASK_WORDS ((FG_BLOCK + 63) / 64)
 
+#if defined(__x86_64__) && defined(__GNUC__)
+#include <immintrin.h>
+/* Sixty-four lanes per word as eight AVX-512F compares, each giving eight
+ * mask bits directly; the predicate is the SSE2 path's (not <= 0, so NaN
+ * counts as violated). Returns the lanes done. */
+__attribute__((target("avx512f"))) static int
+row_mask_avx512(const double *e, int n, uint64_t *m) {
+  const __m512d zero = _mm512_setzero_pd();
+  int s = 0;
+  for (; s + 64 <= n; s += 64) {
+    uint64_t bits = 0;
+    for (int k = 0; k < 8; k++)
+      bits |= (uint64_t)_mm512_cmp_pd_mask(_mm512_loadu_pd(e + s + 8 * k), zero,
+                                           _CMP_NLE_UQ)
+              << (8 * k);
+    m[s >> 6] = bits;
+  }
+  return s;
+}
+#define FG_HAVE_ROW_MASK_AVX512 1
+#endif
+
+/* 1 when tests have asked for the SSE2 / scalar masks only. */
+static int portable_masks;
+
+void fg_tally_force_portable(int on) {
+  portable_masks = on;
+}
+
 static void row_mask(const double *e, int n, uint64_t *m) {
   for (int w = 0; w < MASK_WORDS; w++) m[w] = 0;
   int s = 0;
+#if defined(FG_HAVE_ROW_MASK_AVX512)
+  if (!portable_masks && __builtin_cpu_supports("avx512f"))
+    s = row_mask_avx512(e, n, m);
+#endif
 #if defined(__SSE2__)
   const __m128d zero = _mm_setzero_pd();
   for (; s + 16 <= n; s += 16) {
@@ -131,6 +164,12 @@ static void pair_counts(const uint64_t *m, uint64_t *both, uint64_t *one) {
   }
 }
 
+/* Built twice where GCC can (target_clones), for processors with the
+ * POPCNT instruction and for the baseline, which counts bits through a
+ * library call; the integer results are the same. */
+#if defined(__x86_64__) && defined(__GNUC__) && !defined(__clang__)
+__attribute__((target_clones("popcnt", "default")))
+#endif
 void fg_tally_block(fg_tally *t, const double *const *excess, int n,
                     uint64_t first, const double *objective, int *scratch) {
   if (n > FG_BLOCK) n = FG_BLOCK; /* the engine's blocks never are */
