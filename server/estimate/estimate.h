@@ -117,6 +117,7 @@ typedef struct fg_row_tally {
   uint64_t nonfinite; /* violations whose excess was NaN */
   double excess_sum;  /* sum of finite positive excess */
   fg_hist hist;       /* positive finite excess values */
+  uint64_t block_mask[(FG_BLOCK + 63) / 64]; /* fg_tally_block's scratch */
 } fg_row_tally;
 
 typedef struct fg_fail_record {

@@ -117,8 +117,20 @@ row_mask_avx512(const double *e, int n, uint64_t *m) {
   }
   return s;
 }
+
 #define FG_HAVE_ROW_MASK_AVX512 1
 #endif
+
+/* The excess values of the violated lanes of one row, in lane order, into
+ * vals; returns how many. (An AVX-512 form, masked loads and compresses
+ * per eight lanes, measured slower than this on the benchmark machine.) */
+static int violated_values(const double *e, const uint64_t *m, double *vals) {
+  int k = 0;
+  for (int w = 0; w < MASK_WORDS; w++)
+    for (uint64_t bits = m[w]; bits; bits &= bits - 1)
+      vals[k++] = e[64 * w + __builtin_ctzll(bits)];
+  return k;
+}
 
 /* 1 when tests have asked for the SSE2 / scalar masks only. */
 static int portable_masks;
@@ -173,14 +185,13 @@ __attribute__((target_clones("popcnt", "default")))
 void fg_tally_block(fg_tally *t, const double *const *excess, int n,
                     uint64_t first, const double *objective, int *scratch) {
   if (n > FG_BLOCK) n = FG_BLOCK; /* the engine's blocks never are */
-  int *last = scratch + n;
-  /* Per row: its violation mask (branch-free, see row_mask); then only the
-   * violated lanes, in lane order: which row failed last there, and the
-   * finite excess into the sum (in lane order, so sums keep their bits)
+  /* Per row: its violation mask (branch-free, see row_mask), kept in the
+   * row's block_mask; then only the violated lanes' values, in lane order:
+   * the finite ones into the sum (in lane order, so sums keep their bits)
    * and the histogram. any / many: lanes with at least one / two violated
-   * rows, a bitwise counter that saturates at two. */
+   * rows, a bitwise counter that saturates at two; a row is the sole cause
+   * where its mask is set and `many` is not. */
   uint64_t any[MASK_WORDS] = {0}, many[MASK_WORDS] = {0};
-  uint64_t m[MASK_WORDS];
   double vals[FG_BLOCK];
   /* pairs need whole pairs: an odd last lane has no partner */
   uint64_t paired[MASK_WORDS];
@@ -193,28 +204,27 @@ void fg_tally_block(fg_tally *t, const double *const *excess, int n,
   for (int r = 0; r < t->nrows; r++) {
     const double *e = excess[r];
     fg_row_tally *rt = &t->rows[r];
+    uint64_t *m = rt->block_mask;
     row_mask(e, n, m);
-    double sum = 0;
-    int nv = 0, k = 0;
+    int nv = 0;
     for (int w = 0; w < MASK_WORDS; w++) {
-      uint64_t bits = m[w];
-      many[w] |= any[w] & bits;
-      any[w] |= bits;
-      nv += __builtin_popcountll(bits);
-      while (bits) {
-        int s = 64 * w + __builtin_ctzll(bits);
-        bits &= bits - 1;
-        double x = e[s];
-        last[s] = r;
-        if (isfinite(x)) {
-          sum += x;
-          vals[k++] = x;
-        } else {
-          rt->nonfinite++;
-        }
+      many[w] |= any[w] & m[w];
+      any[w] |= m[w];
+      nv += __builtin_popcountll(m[w]);
+    }
+    int k = violated_values(e, m, vals);
+    double sum = 0;
+    int kf = 0;
+    for (int j = 0; j < k; j++) {
+      double x = vals[j];
+      if (isfinite(x)) {
+        sum += x;
+        vals[kf++] = x;
+      } else {
+        rt->nonfinite++;
       }
     }
-    fg_hist_add_many(&rt->hist, vals, k);
+    fg_hist_add_many(&rt->hist, vals, kf);
     rt->violated += (uint64_t)nv;
     rt->excess_sum += sum;
     if (t->pairs) {
@@ -224,11 +234,13 @@ void fg_tally_block(fg_tally *t, const double *const *excess, int n,
     }
   }
   uint64_t nany = 0;
-  for (int w = 0; w < MASK_WORDS; w++) {
+  for (int w = 0; w < MASK_WORDS; w++)
     nany += (uint64_t)__builtin_popcountll(any[w]);
-    /* sole cause: exactly one violated row, the last one seen there */
-    for (uint64_t bits = any[w] & ~many[w]; bits; bits &= bits - 1)
-      t->rows[last[64 * w + __builtin_ctzll(bits)]].sole++;
+  /* sole cause: exactly one violated row */
+  for (int r = 0; r < t->nrows; r++) {
+    fg_row_tally *rt = &t->rows[r];
+    for (int w = 0; w < MASK_WORDS; w++)
+      rt->sole += (uint64_t)__builtin_popcountll(rt->block_mask[w] & ~many[w]);
   }
   if (t->pairs) {
     /* a pair's samples held where their lanes are clear in `any` */
