@@ -794,12 +794,7 @@ void fg_family_draw_block(const fg_input *in, int e, uint32_t slot,
      * 7% of lanes) was tried earlier and not adopted: it would have
      * changed lognormal values. */
     fg_stream_normals(dc->key, dc->first, n, slot, dc->words, out);
-    {
-      double m = v[0][e], sd = v[1][e];
-      for (int t = 0; t < n; t++)
-        out[t] = m + sd * out[t];
-      fg_exp_lanes(out, n);
-    }
+    fg_exp_lanes_affine(out, n, v[0][e], v[1][e]);
     return;
   case FG_FAM_UNIFORM:
   case FG_FAM_TRIANGULAR:
@@ -849,10 +844,7 @@ void fg_family_from_normal(const fg_input *in, int e, const fg_draw_ctx *dc,
     return;
   }
   if (in->kind == FG_FAM_LOGNORMAL) {
-    double m = v[0][e], sd = v[1][e];
-    for (int t = 0; t < n; t++)
-      col[t] = m + sd * col[t];
-    fg_exp_lanes(col, n);
+    fg_exp_lanes_affine(col, n, v[0][e], v[1][e]);
     return;
   }
   for (int t = 0; t < n; t++) {

@@ -27,8 +27,8 @@
  * with FMA glibc runs a build of that code in which the compiler fused
  * each a*b + c into one rounding; kernel_avx512 and kernel_avx2 below make
  * the same operations in the same order with the same fusions, 8 or 4
- * lanes at a time (the table read by scalar loads, which measured faster
- * than gathers on the benchmark machine), so every rounding is the same and so is the result.
+ * lanes at a time (the table read as one 16-byte load per lane, which
+ * measured faster than gathers on the benchmark machine), so every rounding is the same and so is the result.
  * Lanes outside glibc's main path (|x| < 2^-54, |x| >= 512, inf, NaN) go
  * to the scalar entry instead.
  *
@@ -92,7 +92,9 @@ static int same_bits(double a, double b) {
 #define FG_HAVE_EXP_KERNELS 1
 
 __attribute__((target("avx512f"))) static void
-kernel_avx512(double *x, int n, exp_fn f) {
+kernel_avx512(double *x, int n, exp_fn f, const double *mu, const double *sd) {
+  const __m512d muv = _mm512_set1_pd(mu ? *mu : 0.0);
+  const __m512d sdv = _mm512_set1_pd(mu ? *sd : 1.0);
   const __m512d inv = _mm512_set1_pd(EXP_INVLN2N);
   const __m512d shift = _mm512_set1_pd(EXP_SHIFT);
   const __m512d nhi = _mm512_set1_pd(EXP_NEGLN2HI);
@@ -106,6 +108,7 @@ kernel_avx512(double *x, int n, exp_fn f) {
   int t = 0;
   for (; t + 8 <= n; t += 8) {
     __m512d v = _mm512_loadu_pd(x + t);
+    if (mu) v = _mm512_add_pd(muv, _mm512_mul_pd(sdv, v));
     __m512i top = _mm512_and_si512(
         _mm512_srli_epi64(_mm512_castpd_si512(v), 52), top_mask);
     __mmask8 main = _mm512_cmplt_epu64_mask(_mm512_sub_epi64(top, top_lo),
@@ -115,15 +118,22 @@ kernel_avx512(double *x, int n, exp_fn f) {
     kd = _mm512_sub_pd(kd, shift);
     __m512d r = _mm512_fmadd_pd(kd, nlo, _mm512_fmadd_pd(kd, nhi, v));
     __m512i idx = _mm512_slli_epi64(_mm512_and_si512(ki, k127), 1);
-    /* the table by scalar loads: faster than two gathers here */
-    uint64_t at[8], tl[8], hb[8];
+    /* The table: each lane's pair {T, H} is one 16-byte load; even lanes
+     * fill one vector, odd lanes another, and unpacking them gives the T
+     * and H vectors in lane order (faster than two gathers here). */
+    uint64_t at[8];
     _mm512_storeu_si512((void *)at, idx);
-    for (int j = 0; j < 8; j++) {
-      tl[j] = fg_exp_table[at[j]];
-      hb[j] = fg_exp_table[at[j] + 1];
-    }
-    __m512d tail = _mm512_loadu_pd((const double *)(const void *)tl);
-    __m512i sbits = _mm512_add_epi64(_mm512_loadu_si512((const void *)hb),
+#define PAIR(j) _mm_loadu_pd((const double *)(const void *)(fg_exp_table + at[j]))
+    __m512d ev = _mm512_insertf64x4(
+        _mm512_castpd256_pd512(
+            _mm256_insertf128_pd(_mm256_castpd128_pd256(PAIR(0)), PAIR(2), 1)),
+        _mm256_insertf128_pd(_mm256_castpd128_pd256(PAIR(4)), PAIR(6), 1), 1);
+    __m512d od = _mm512_insertf64x4(
+        _mm512_castpd256_pd512(
+            _mm256_insertf128_pd(_mm256_castpd128_pd256(PAIR(1)), PAIR(3), 1)),
+        _mm256_insertf128_pd(_mm256_castpd128_pd256(PAIR(5)), PAIR(7), 1), 1);
+    __m512d tail = _mm512_unpacklo_pd(ev, od);
+    __m512i sbits = _mm512_add_epi64(_mm512_castpd_si512(_mm512_unpackhi_pd(ev, od)),
                                      _mm512_slli_epi64(ki, 45));
     __m512d r2 = _mm512_mul_pd(r, r);
     __m512d a = _mm512_fmadd_pd(r2, _mm512_fmadd_pd(r, c3, c2),
@@ -142,11 +152,13 @@ kernel_avx512(double *x, int n, exp_fn f) {
     }
   }
   for (; t < n; t++)
-    x[t] = f(x[t]);
+    x[t] = f(mu ? *mu + *sd * x[t] : x[t]);
 }
 
 __attribute__((target("avx2,fma"))) static void
-kernel_avx2(double *x, int n, exp_fn f) {
+kernel_avx2(double *x, int n, exp_fn f, const double *mu, const double *sd) {
+  const __m256d muv = _mm256_set1_pd(mu ? *mu : 0.0);
+  const __m256d sdv = _mm256_set1_pd(mu ? *sd : 1.0);
   const __m256d inv = _mm256_set1_pd(EXP_INVLN2N);
   const __m256d shift = _mm256_set1_pd(EXP_SHIFT);
   const __m256d nhi = _mm256_set1_pd(EXP_NEGLN2HI);
@@ -160,6 +172,7 @@ kernel_avx2(double *x, int n, exp_fn f) {
   int t = 0;
   for (; t + 4 <= n; t += 4) {
     __m256d v = _mm256_loadu_pd(x + t);
+    if (mu) v = _mm256_add_pd(muv, _mm256_mul_pd(sdv, v));
     __m256i top = _mm256_and_si256(
         _mm256_srli_epi64(_mm256_castpd_si256(v), 52), top_mask);
     /* top and the bounds are small non-negative integers: signed
@@ -172,16 +185,13 @@ kernel_avx2(double *x, int n, exp_fn f) {
     kd = _mm256_sub_pd(kd, shift);
     __m256d r = _mm256_fmadd_pd(kd, nlo, _mm256_fmadd_pd(kd, nhi, v));
     __m256i idx = _mm256_slli_epi64(_mm256_and_si256(ki, k127), 1);
-    uint64_t at[4], tl[4], hb[4];
+    uint64_t at[4];
     _mm256_storeu_si256((__m256i *)(void *)at, idx);
-    for (int j = 0; j < 4; j++) {
-      tl[j] = fg_exp_table[at[j]];
-      hb[j] = fg_exp_table[at[j] + 1];
-    }
-    __m256d tail = _mm256_loadu_pd((const double *)(const void *)tl);
-    __m256i sbits =
-        _mm256_add_epi64(_mm256_loadu_si256((const __m256i *)(const void *)hb),
-                         _mm256_slli_epi64(ki, 45));
+    __m256d ev = _mm256_insertf128_pd(_mm256_castpd128_pd256(PAIR(0)), PAIR(2), 1);
+    __m256d od = _mm256_insertf128_pd(_mm256_castpd128_pd256(PAIR(1)), PAIR(3), 1);
+    __m256d tail = _mm256_unpacklo_pd(ev, od);
+    __m256i sbits = _mm256_add_epi64(_mm256_castpd_si256(_mm256_unpackhi_pd(ev, od)),
+                                     _mm256_slli_epi64(ki, 45));
     __m256d r2 = _mm256_mul_pd(r, r);
     __m256d a = _mm256_fmadd_pd(r2, _mm256_fmadd_pd(r, c3, c2),
                                 _mm256_add_pd(tail, r));
@@ -199,23 +209,27 @@ kernel_avx2(double *x, int n, exp_fn f) {
     }
   }
   for (; t < n; t++)
-    x[t] = f(x[t]);
+    x[t] = f(mu ? *mu + *sd * x[t] : x[t]);
 }
+#undef PAIR
 #endif
 
-static void run_kernel(int k, double *x, int n, exp_fn f) {
+/* x[t] = exp(x[t]), or exp(mu + sd x[t]) when mu is not NULL (a multiply
+ * then an add, each rounded, as the lognormal draw computes it). */
+static void run_kernel(int k, double *x, int n, exp_fn f, const double *mu,
+                       const double *sd) {
 #if defined(FG_HAVE_EXP_KERNELS)
   if (k == 2) {
-    kernel_avx512(x, n, f);
+    kernel_avx512(x, n, f, mu, sd);
     return;
   }
   if (k == 1) {
-    kernel_avx2(x, n, f);
+    kernel_avx2(x, n, f, mu, sd);
     return;
   }
 #endif
   for (int t = 0; t < n; t++)
-    x[t] = f(x[t]);
+    x[t] = f(mu ? *mu + *sd * x[t] : x[t]);
 }
 
 /* ---- the start-up check ---------------------------------------------- */
@@ -258,7 +272,7 @@ static int probes_agree(exp_fn f, int k) {
         in[m++] = -750.0 + 1465.0 * probe_u(&s);
     }
     memcpy(out, in, sizeof(double) * (size_t)m);
-    if (k > 0) run_kernel(k, out, m, f);
+    if (k > 0) run_kernel(k, out, m, f, NULL, NULL);
     for (int j = 0; j < m; j++) {
       double want = exp(in[j]);
       if (!same_bits(f(in[j]), want)) return 0;
@@ -290,7 +304,12 @@ static void choose_exp(void) {
 
 void fg_exp_lanes(double *x, int n) {
   pthread_once(&exp_once, choose_exp);
-  run_kernel(kernel_use, x, n, chosen_exp);
+  run_kernel(kernel_use, x, n, chosen_exp, NULL, NULL);
+}
+
+void fg_exp_lanes_affine(double *x, int n, double mu, double sd) {
+  pthread_once(&exp_once, choose_exp);
+  run_kernel(kernel_use, x, n, chosen_exp, &mu, &sd);
 }
 
 int fg_exp_lanes_direct(void) {

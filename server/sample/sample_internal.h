@@ -85,6 +85,9 @@ double fg_stream_normal_one(fg_stream_key key, uint64_t sample, uint32_t slot);
  * for the direct entry and the lane kernels, each used only where it is
  * checked to give the same bits). */
 void fg_exp_lanes(double *x, int n);
+/* x[t] = exp(mu + sd * x[t]) with the product and the sum each rounded:
+ * the same bits as that loop followed by fg_exp_lanes, in one pass. */
+void fg_exp_lanes_affine(double *x, int n, double mu, double sd);
 /* Tests: 1 when fg_exp_lanes calls libm's implementation directly. */
 int fg_exp_lanes_direct(void);
 /* Tests: level 0 the widest lane kernel that passed its check, 1 at most

@@ -1528,6 +1528,16 @@ static void test_exp_lanes(void) {
       }
       lanes += n;
     }
+    /* the fused lognormal form: exp(mu + sd x), product and sum rounded */
+    long bad_affine = 0;
+    for (int i = 0; i < N; i++) y[i] = x[i] / 4;
+    fg_exp_lanes_affine(y, N - 3, 3.7, 0.41);
+    for (int i = 0; i < N - 3; i++) {
+      double e = exp(3.7 + 0.41 * (x[i] / 4));
+      bad_affine += memcmp(&e, &y[i], sizeof e) != 0;
+    }
+    CHECK_MSG(bad_affine == 0, "fg_exp_lanes_affine (kernel %s) differs in %ld lanes",
+              names[k], bad_affine);
     CHECK_MSG(bad == 0, "fg_exp_lanes (kernel %s) differs from exp in %ld lanes",
               names[k], bad);
     printf("fg_exp_lanes, kernel %s: %ld lanes, %ld differ from exp\n",
