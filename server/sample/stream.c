@@ -411,6 +411,7 @@ static struct {
   double x[ZIG_LAYERS + 1]; /* X_i; x[0] = v / f(r) (slab 0 with tail) */
   double ratio[ZIG_LAYERS]; /* X_{i+1} / X_i: fast acceptance bound of u */
   double f[ZIG_LAYERS + 1]; /* f(X_i); f[0] = 0 (slab 0 starts at y = 0) */
+  double pair[ZIG_LAYERS][2]; /* {x[i], ratio[i]}: one load in the vector path */
   double r;                 /* X_1, where the tail begins */
 } zig;
 
@@ -459,8 +460,11 @@ static void zig_init(void) {
   zig_build(lo); /* the largest r whose slabs still reach the top */
   zig.x[ZIG_LAYERS] = 0;
   zig.f[ZIG_LAYERS] = 1;
-  for (int i = 0; i < ZIG_LAYERS; i++)
+  for (int i = 0; i < ZIG_LAYERS; i++) {
     zig.ratio[i] = zig.x[i + 1] / zig.x[i];
+    zig.pair[i][0] = zig.x[i];
+    zig.pair[i][1] = zig.ratio[i];
+  }
 }
 
 void fg_stream_init(void) {
@@ -564,17 +568,24 @@ zig_fast_avx512(const fg_stream_words *w, int n, double *out, int *slow,
     __m512d u = _mm512_mul_pd(
         _mm512_add_pd(_mm512_cvtepi64_pd(_mm512_srli_epi64(a, 11)), half),
         scale);
-    double xs[8], rs[8];
-    for (int j = 0; j < 8; j++) {
-      int l = (int)(w->w[0][t + j] & (ZIG_LAYERS - 1));
-      xs[j] = zig.x[l];
-      rs[j] = zig.ratio[l];
-    }
-    __m512d x = _mm512_mul_pd(u, _mm512_loadu_pd(xs));
+    /* each lane's {X_i, ratio_i} is one 16-byte load (faster than two
+     * gathers here); even lanes fill one vector, odd lanes another, and
+     * unpacking gives X and ratio in lane order */
+#define ZPAIR(j) _mm_loadu_pd(zig.pair[w->w[0][t + (j)] & (ZIG_LAYERS - 1)])
+    __m512d ev = _mm512_insertf64x4(
+        _mm512_castpd256_pd512(
+            _mm256_insertf128_pd(_mm256_castpd128_pd256(ZPAIR(0)), ZPAIR(2), 1)),
+        _mm256_insertf128_pd(_mm256_castpd128_pd256(ZPAIR(4)), ZPAIR(6), 1), 1);
+    __m512d od = _mm512_insertf64x4(
+        _mm512_castpd256_pd512(
+            _mm256_insertf128_pd(_mm256_castpd128_pd256(ZPAIR(1)), ZPAIR(3), 1)),
+        _mm256_insertf128_pd(_mm256_castpd128_pd256(ZPAIR(5)), ZPAIR(7), 1), 1);
+#undef ZPAIR
+    __m512d x = _mm512_mul_pd(u, _mm512_unpacklo_pd(ev, od));
     __m512i sign = _mm512_slli_epi64(_mm512_and_si512(a, signbit), 63 - 8);
     _mm512_storeu_pd(out + t, _mm512_castsi512_pd(
                                   _mm512_xor_si512(_mm512_castpd_si512(x), sign)));
-    __mmask8 ok = _mm512_cmp_pd_mask(u, _mm512_loadu_pd(rs), _CMP_LT_OQ);
+    __mmask8 ok = _mm512_cmp_pd_mask(u, _mm512_unpackhi_pd(ev, od), _CMP_LT_OQ);
     if (ok != 0xff) /* about one step in twelve */
       for (int j = 0; j < 8; j++)
         if (!(ok >> j & 1)) slow[ns++] = t + j;
