@@ -34,8 +34,9 @@
  * loop body is one IEEE operation per lane (add, multiply, compare, max,
  * a libm call), whatever the vector width, and the build forbids fused
  * multiply-adds (-ffp-contract=off; AVX2 alone has no FMA anyway), so both
- * builds give the same bits. */
-#if defined(__x86_64__) && defined(__GNUC__) && !defined(__SANITIZE_ADDRESS__)
+ * builds give the same bits. (GCC only: clang's resolver does not
+ * link in this static-library layout.) */
+#if defined(__x86_64__) && defined(__GNUC__) && !defined(__clang__)
 #define FG_INTERP_CLONES __attribute__((target_clones("avx2", "default")))
 #else
 #define FG_INTERP_CLONES

@@ -121,8 +121,18 @@ kernel_avx512(double *x, int n, exp_fn f, const double *mu, const double *sd) {
     /* The table: each lane's pair {T, H} is one 16-byte load; even lanes
      * fill one vector, odd lanes another, and unpacking them gives the T
      * and H vectors in lane order (faster than two gathers here). */
-    uint64_t at[8];
-    _mm512_storeu_si512((void *)at, idx);
+    /* indices from registers, not through a stack array: a vector store
+     * to a local may be made an aligned one, which is not safe on every
+     * stack (AddressSanitizer's detached frames, for one) */
+    const __m128i q0 = _mm512_castsi512_si128(idx);
+    const __m128i q1 = _mm512_extracti32x4_epi32(idx, 1);
+    const __m128i q2 = _mm512_extracti32x4_epi32(idx, 2);
+    const __m128i q3 = _mm512_extracti32x4_epi32(idx, 3);
+    const uint64_t at[8] = {
+        (uint64_t)_mm_cvtsi128_si64(q0), (uint64_t)_mm_extract_epi64(q0, 1),
+        (uint64_t)_mm_cvtsi128_si64(q1), (uint64_t)_mm_extract_epi64(q1, 1),
+        (uint64_t)_mm_cvtsi128_si64(q2), (uint64_t)_mm_extract_epi64(q2, 1),
+        (uint64_t)_mm_cvtsi128_si64(q3), (uint64_t)_mm_extract_epi64(q3, 1)};
 #define PAIR(j) _mm_loadu_pd((const double *)(const void *)(fg_exp_table + at[j]))
     __m512d ev = _mm512_insertf64x4(
         _mm512_castpd256_pd512(
@@ -143,9 +153,10 @@ kernel_avx512(double *x, int n, exp_fn f, const double *mu, const double *sd) {
     __m512d s = _mm512_castsi512_pd(sbits);
     if (main == 0xff) {
       _mm512_storeu_pd(x + t, _mm512_fmadd_pd(s, tmp, s));
-    } else {
+    } else { /* rare lanes: the argument again, by the same operations */
       double in[8];
-      _mm512_storeu_pd(in, v);
+      for (int j = 0; j < 8; j++)
+        in[j] = mu ? *mu + *sd * x[t + j] : x[t + j];
       _mm512_storeu_pd(x + t, _mm512_fmadd_pd(s, tmp, s));
       for (int j = 0; j < 8; j++)
         if (!(main >> j & 1)) x[t + j] = f(in[j]);
@@ -185,8 +196,11 @@ kernel_avx2(double *x, int n, exp_fn f, const double *mu, const double *sd) {
     kd = _mm256_sub_pd(kd, shift);
     __m256d r = _mm256_fmadd_pd(kd, nlo, _mm256_fmadd_pd(kd, nhi, v));
     __m256i idx = _mm256_slli_epi64(_mm256_and_si256(ki, k127), 1);
-    uint64_t at[4];
-    _mm256_storeu_si256((__m256i *)(void *)at, idx);
+    const __m128i q0 = _mm256_castsi256_si128(idx);
+    const __m128i q1 = _mm256_extracti128_si256(idx, 1);
+    const uint64_t at[4] = {
+        (uint64_t)_mm_cvtsi128_si64(q0), (uint64_t)_mm_extract_epi64(q0, 1),
+        (uint64_t)_mm_cvtsi128_si64(q1), (uint64_t)_mm_extract_epi64(q1, 1)};
     __m256d ev = _mm256_insertf128_pd(_mm256_castpd128_pd256(PAIR(0)), PAIR(2), 1);
     __m256d od = _mm256_insertf128_pd(_mm256_castpd128_pd256(PAIR(1)), PAIR(3), 1);
     __m256d tail = _mm256_unpacklo_pd(ev, od);
@@ -202,7 +216,8 @@ kernel_avx2(double *x, int n, exp_fn f, const double *mu, const double *sd) {
       _mm256_storeu_pd(x + t, _mm256_fmadd_pd(s, tmp, s));
     } else {
       double in[4];
-      _mm256_storeu_pd(in, v);
+      for (int j = 0; j < 4; j++)
+        in[j] = mu ? *mu + *sd * x[t + j] : x[t + j];
       _mm256_storeu_pd(x + t, _mm256_fmadd_pd(s, tmp, s));
       for (int j = 0; j < 4; j++)
         if (!(main >> j & 1)) x[t + j] = f(in[j]);
