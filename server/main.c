@@ -502,7 +502,9 @@ static int cmd_register(int argc, char **argv) {
   fg_problem_init(&p);
   fg_store *st;
   if (fg_store_open(url, &st, &p) != FG_OK) {
-    print_problem(url, &p);
+    char shown[4200];
+    fg_store_url_display(url, shown, sizeof shown);
+    print_problem(shown, &p);
     return 1;
   }
   int rc = 0;

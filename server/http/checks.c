@@ -355,8 +355,9 @@ done:
 /* ---- GET /v1/checks/{id} ---- */
 
 /* The body of a stored check that has no result body (left running by a
- * dead process and marked interrupted, or closed failed before it
- * started), in check-result.schema.json's shape: the summary, the run
+ * dead process and marked interrupted, closed failed before it started,
+ * or just started by another replica), in check-result.schema.json's
+ * shape: the summary, the run
  * settings from the stored request, and no "joint" (nothing was merged). */
 static cJSON *stored_body(const fg_store_check *c) {
   cJSON *o = check_summary(c);
@@ -373,6 +374,17 @@ static cJSON *stored_body(const fg_store_check *c) {
   char seed[24]; /* as integer text: doubles print 2^53 in exponent form */
   snprintf(seed, sizeof seed, "%llu", (unsigned long long)c->seed);
   cJSON_AddRawToObject(o, "seed", seed);
+  if (strcmp(c->status, "running") == 0) {
+    /* Running in another replica that has not noted its progress yet (it
+     * does within FG_REGISTRY_PROGRESS_MS of the start): nothing merged
+     * is known here. */
+    cJSON *pr = cJSON_AddObjectToObject(o, "progress");
+    if (pr) {
+      cJSON_AddNumberToObject(pr, "samples_done", 0);
+      cJSON_AddNullToObject(pr, "probability");
+      cJSON_AddNullToObject(pr, "interval");
+    }
+  }
   return o;
 }
 

@@ -12,6 +12,7 @@
  * Thread use: main thread, before anything starts.
  */
 #include "http/http.h"
+#include "store/store.h"
 
 #include <errno.h>
 #include <math.h>
@@ -46,7 +47,7 @@ static const opt_def options[] = {
     {"--listen", "FEASGATE_LISTEN", OPT_LISTEN, 0, 0, 65535,
      "HOST:PORT to listen on (port 0: any free port)"},
     {"--store", "FEASGATE_STORE", OPT_STRING, OFF(store), 1, FG_HTTP_URL_MAX,
-     "store URL, sqlite:PATH"},
+     "store URL, sqlite:PATH or postgresql://..."},
     {"--workers", "FEASGATE_WORKERS", OPT_INT, OFF(workers), 1, FG_WORKERS_MAX,
      "simulation worker threads"},
     {"--chunk", "FEASGATE_CHUNK", OPT_INT, OFF(chunk), FG_CHUNK_MIN,
@@ -150,8 +151,14 @@ static int set_value(fg_http_config *cfg, const opt_def *o, const char *where,
       return fail(err, cap, where, v, expected);
     }
     snprintf(field, (size_t)o->max + 1, "%s", v);
-    if (strcmp(o->flag, "--store") == 0 && strncmp(v, "sqlite:", 7) != 0)
-      return fail(err, cap, where, v, "a store URL of the form sqlite:PATH");
+    if (strcmp(o->flag, "--store") == 0 && strncmp(v, "sqlite:", 7) != 0 &&
+        strncmp(v, "postgresql://", 13) != 0 &&
+        strncmp(v, "postgres://", 11) != 0) {
+      char shown[sizeof cfg->store];
+      fg_store_url_display(v, shown, sizeof shown);
+      return fail(err, cap, where, shown,
+                  "a store URL sqlite:PATH or postgresql://...");
+    }
     return 0;
   case OPT_INT: {
     long n = strtol(v, &end, 10);

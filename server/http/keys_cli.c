@@ -130,7 +130,8 @@ int fg_keys_command(int argc, char **argv) {
     return EXIT_USAGE;
   }
   if (!url || !url[0]) {
-    fprintf(stderr, "feasgate keys %s: no store: give --store sqlite:PATH or "
+    fprintf(stderr, "feasgate keys %s: no store: give --store sqlite:PATH (or "
+                    "postgresql://...) or "
                     "set FEASGATE_STORE\n", action);
     return EXIT_USAGE;
   }
@@ -171,7 +172,9 @@ int fg_keys_command(int argc, char **argv) {
   fg_problem_init(&p);
   fg_store *store = NULL;
   if (fg_store_open(url, &store, &p) != FG_OK) {
-    fprintf(stderr, "feasgate keys %s: --store %s: %s\n", action, url,
+    char shown[FG_HTTP_URL_MAX + 1];
+    fg_store_url_display(url, shown, sizeof shown);
+    fprintf(stderr, "feasgate keys %s: --store %s: %s\n", action, shown,
             p.detail);
     return p.status == FG_EINVAL ? EXIT_USAGE : 1;
   }

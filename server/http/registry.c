@@ -31,6 +31,11 @@
  * registry lock, then the engine's pool lock (fg_check_*), never the
  * reverse.
  *
+ * Shared stores (PostgreSQL, several replicas): every
+ * FG_REGISTRY_PROGRESS_MS the watcher also writes the live bodies of the
+ * running checks to the store (fg_store_note_progress), so a replica that
+ * does not run a check answers GET for it with progress at most that old.
+ *
  * Shutdown (fg_registry_shutdown, main thread): wait up to grace_s for held
  * checks to end, cancel the rest, wait up to FG_REGISTRY_CANCEL_WAIT_S for
  * them to stop and be recorded (as cancelled), then stop the watcher. A
@@ -42,6 +47,7 @@
 #include "http/http_internal.h"
 
 #include <errno.h>
+#include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 #include <time.h>
@@ -52,6 +58,12 @@
 /* How long cancelled checks get to stop at shutdown: workers test the
  * cancel flag once per block, so this is generous. */
 #define FG_REGISTRY_CANCEL_WAIT_S 10.0
+/* On a shared store (several replicas), how often the running checks'
+ * bodies are written to the store so that another replica answers a GET
+ * with progress at most this old. */
+#define FG_REGISTRY_PROGRESS_MS 1000
+/* Running checks whose progress one round writes, at most. */
+#define FG_REGISTRY_PROGRESS_MAX 64
 
 typedef struct fg_held {
   struct fg_held *next;
@@ -112,10 +124,66 @@ static fg_held *find_id(fg_registry *g, const char *id) {
   return NULL;
 }
 
+static double now_s(void) {
+  struct timespec ts;
+  clock_gettime(CLOCK_MONOTONIC, &ts);
+  return (double)ts.tv_sec + ts.tv_nsec * 1e-9;
+}
+
+/* A running entry's live body (as GET gives it). Called under lock. */
+static cJSON *live_body(const fg_held *e) {
+  char ended_at[32] = "";
+  /* Ended but not yet recorded: the body is final, so it carries an end
+   * time (the record's may be later by the poll interval at most). */
+  if (fg_check_wait(e->check, 0))
+    fg_time_now_rfc3339(ended_at, sizeof ended_at);
+  fg_check_meta meta = {.id = e->rec.id,
+                        .model_version = e->rec.version,
+                        .created_at = e->rec.created_at,
+                        .finished_at = ended_at[0] ? ended_at : NULL,
+                        .key = e->rec.key[0] ? e->rec.key : NULL};
+  return fg_check_result_json(e->check, &meta);
+}
+
+/* Shared store: write the bodies of running checks (held and waited) so
+ * that other replicas answer GET with progress. Entered and left under
+ * lock; the writes happen outside it, on copies. */
+static void note_progress(fg_registry *g) {
+  char ids[FG_REGISTRY_PROGRESS_MAX][40];
+  char *bodies[FG_REGISTRY_PROGRESS_MAX];
+  int n = 0;
+  for (fg_held *e = g->head; e && n < FG_REGISTRY_PROGRESS_MAX; e = e->next) {
+    if (e->recording || fg_check_wait(e->check, 0)) continue;
+    cJSON *body = live_body(e);
+    char *text = body ? cJSON_PrintUnformatted(body) : NULL;
+    cJSON_Delete(body);
+    if (!text) continue;
+    snprintf(ids[n], sizeof ids[n], "%s", e->rec.id);
+    bodies[n++] = text;
+  }
+  pthread_mutex_unlock(&g->lock);
+  for (int i = 0; i < n; i++) {
+    fg_problem p;
+    fg_problem_init(&p);
+    if (fg_store_note_progress(g->store, ids[i], bodies[i], &p) != FG_OK)
+      fg_log_msg(FG_LOG_WARN, "store_error", "noting progress of check %s: %s",
+                 ids[i], p.detail);
+    cJSON_free(bodies[i]);
+  }
+  pthread_mutex_lock(&g->lock);
+}
+
 static void *watch(void *arg) {
   fg_registry *g = arg;
+  const bool shared = fg_store_shared(g->store);
+  double last_note = now_s();
   pthread_mutex_lock(&g->lock);
   while (!g->stop) {
+    if (shared && now_s() - last_note >= FG_REGISTRY_PROGRESS_MS / 1000.0) {
+      note_progress(g);
+      last_note = now_s();
+      continue;
+    }
     fg_held *e = find_ended(g);
     if (!e) {
       struct timespec ts;
@@ -258,18 +326,7 @@ cJSON *fg_registry_live_json(fg_registry *g, const char *id) {
   pthread_mutex_lock(&g->lock);
   for (fg_held *e = g->head; e; e = e->next) {
     if (strcmp(e->rec.id, id) != 0) continue;
-    /* Ended but not yet recorded by the watcher: the body is final, so it
-     * carries an end time (the record's may be later by the poll interval
-     * at most). */
-    char ended_at[32] = "";
-    if (fg_check_wait(e->check, 0))
-      fg_time_now_rfc3339(ended_at, sizeof ended_at);
-    fg_check_meta meta = {.id = e->rec.id,
-                          .model_version = e->rec.version,
-                          .created_at = e->rec.created_at,
-                          .finished_at = ended_at[0] ? ended_at : NULL,
-                          .key = e->rec.key[0] ? e->rec.key : NULL};
-    body = fg_check_result_json(e->check, &meta);
+    body = live_body(e);
     break;
   }
   pthread_mutex_unlock(&g->lock);

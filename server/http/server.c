@@ -485,8 +485,11 @@ int fg_serve_command(int argc, char **argv) {
     fg_log_msg(FG_LOG_ERROR, "start_failed", "%s", err);
     goto cleanup;
   }
+  /* the store URL as logs may show it (no password) */
+  char store_shown[sizeof srv->cfg.store];
+  fg_store_url_display(srv->cfg.store, store_shown, sizeof store_shown);
   if (fg_store_open(srv->cfg.store, &srv->store, &p) != FG_OK) {
-    fg_log_msg(FG_LOG_ERROR, "start_failed", "--store %s: %s", srv->cfg.store,
+    fg_log_msg(FG_LOG_ERROR, "start_failed", "--store %s: %s", store_shown,
                p.detail);
     goto cleanup;
   }
@@ -507,7 +510,7 @@ int fg_serve_command(int argc, char **argv) {
                "--listen %s is not a loopback address and the store %s holds "
                "no live key: add one with `feasgate keys add NAME --role "
                "admin --store %s`, or give --insecure to serve without keys",
-               address, srv->cfg.store, srv->cfg.store);
+               address, store_shown, store_shown);
     status = 3;
     goto cleanup;
   }
@@ -558,7 +561,7 @@ int fg_serve_command(int argc, char **argv) {
   if (ev) {
     cJSON_AddStringToObject(ev, "event", "listening");
     cJSON_AddStringToObject(ev, "address", address);
-    cJSON_AddStringToObject(ev, "store", srv->cfg.store);
+    cJSON_AddStringToObject(ev, "store", store_shown);
     cJSON_AddNumberToObject(ev, "workers", srv->cfg.workers);
     cJSON_AddBoolToObject(ev, "tls", tls_key != NULL);
     cJSON_AddNumberToObject(ev, "keys", fg_keyring_live(srv->keys));

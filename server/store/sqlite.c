@@ -48,7 +48,7 @@
  *
  * Thread use: any thread; see the mutex above.
  */
-#include "store/store.h"
+#include "store/backend.h"
 
 #include <errno.h>
 #include <math.h>
@@ -129,6 +129,7 @@ enum stmt_id {
   ST_CHECK_INSERT,
   ST_CHECK_FINISH,
   ST_CHECK_GET,
+  ST_CHECK_PROGRESS,
   ST_CHECK_CURSOR,
   ST_CHECKS_LIST,
   ST_MARK_INTERRUPTED,
@@ -180,6 +181,8 @@ static const char *const stmt_sql[ST_COUNT] = {
         " result = ?9 WHERE id = ?1",
     [ST_CHECK_GET] = "SELECT " CHECK_COLUMNS ", request, result FROM checks"
                      " WHERE id = ?1",
+    [ST_CHECK_PROGRESS] = "UPDATE checks SET result = ?2 WHERE id = ?1"
+                          " AND status = 'running'",
     [ST_CHECK_CURSOR] = "SELECT created_at FROM checks WHERE id = ?1",
     /* Filters are NULL when unused; ?5/?6 = cursor (created_at, id). */
     [ST_CHECKS_LIST] =
@@ -189,8 +192,8 @@ static const char *const stmt_sql[ST_COUNT] = {
         " AND (?5 IS NULL OR created_at < ?5 OR (created_at = ?5 AND id < ?6))"
         " ORDER BY created_at DESC, id DESC LIMIT ?7",
     [ST_MARK_INTERRUPTED] =
-        "UPDATE checks SET status = 'interrupted', finished_at = ?1"
-        " WHERE status = 'running'",
+        "UPDATE checks SET status = 'interrupted', finished_at = ?1,"
+        " result = NULL WHERE status = 'running'",
     [ST_KEY_EXISTS] = "SELECT revoked_at FROM keys WHERE name = ?1",
     [ST_KEY_INSERT] = "INSERT INTO keys(name, role, salt, hash, created_at)"
                       " VALUES (?1, ?2, ?3, ?4, ?5)",
@@ -202,17 +205,17 @@ static const char *const stmt_sql[ST_COUNT] = {
                       " AND revoked_at = ''",
 };
 
-struct fg_store {
+typedef struct sq_store {
   pthread_mutex_t lock; /* held for the whole of every public call */
   sqlite3 *db;
   sqlite3_stmt *stmt[ST_COUNT];
   char path[FG_STORE_PATH_MAX];
   int fail_countdown; /* test seam: > 0 = writes until an injected fault */
-};
+} sq_store;
 
 /* ---- small helpers ---- */
 
-static fg_status db_fault(fg_store *s, fg_problem *p, const char *what,
+static fg_status db_fault(sq_store *s, fg_problem *p, const char *what,
                           int rc) {
   fg_status st = FG_EIO;
   int primary = rc & 0xff;
@@ -221,14 +224,6 @@ static fg_status db_fault(fg_store *s, fg_problem *p, const char *what,
   return fg_problem_set(p, st, "store %s: %s (%s)", what,
                         s && s->db ? sqlite3_errmsg(s->db) : "no connection",
                         sqlite3_errstr(rc));
-}
-
-static void now_rfc3339(char buf[32]) {
-  struct timespec ts;
-  struct tm tm;
-  clock_gettime(CLOCK_REALTIME, &ts);
-  gmtime_r(&ts.tv_sec, &tm);
-  strftime(buf, 32, "%Y-%m-%dT%H:%M:%SZ", &tm);
 }
 
 static void copy_text(char *dst, size_t cap, sqlite3_stmt *st, int col) {
@@ -281,7 +276,7 @@ static int exec_stmt(sqlite3_stmt *st) {
 
 /* A data write (never BEGIN/COMMIT/ROLLBACK): where an injected fault
  * strikes, as an I/O error inside the open transaction. */
-static int write_step(fg_store *s, sqlite3_stmt *st) {
+static int write_step(sq_store *s, sqlite3_stmt *st) {
   if (s->fail_countdown > 0 && --s->fail_countdown == 0) {
     done_stmt(st);
     return SQLITE_IOERR;
@@ -289,22 +284,22 @@ static int write_step(fg_store *s, sqlite3_stmt *st) {
   return exec_stmt(st);
 }
 
-static int tx_begin(fg_store *s) {
+static int tx_begin(sq_store *s) {
   return exec_stmt(s->stmt[ST_BEGIN]);
 }
 
-static int tx_commit(fg_store *s) {
+static int tx_commit(sq_store *s) {
   return exec_stmt(s->stmt[ST_COMMIT]);
 }
 
-static void tx_rollback(fg_store *s) {
+static void tx_rollback(sq_store *s) {
   if (!sqlite3_get_autocommit(s->db)) exec_stmt(s->stmt[ST_ROLLBACK]);
 }
 
 /* Ends the open write transaction: COMMIT when `res` is FG_OK (its failure
  * reported as `what`), ROLLBACK when `res` is a failure or the commit
  * failed. Returns the outcome of the whole write. */
-static fg_status tx_end(fg_store *s, fg_status res, const char *what,
+static fg_status tx_end(sq_store *s, fg_status res, const char *what,
                         fg_problem *p) {
   if (res == FG_OK) {
     int rc = tx_commit(s);
@@ -317,7 +312,7 @@ static fg_status tx_end(fg_store *s, fg_status res, const char *what,
 /* Releases the lock of a public call and passes `res` on. The argument is
  * evaluated first, so a problem that quotes the connection's message is
  * written while the lock is still held. */
-static fg_status unlock_with(fg_store *s, fg_status res) {
+static fg_status unlock_with(sq_store *s, fg_status res) {
   pthread_mutex_unlock(&s->lock);
   return res;
 }
@@ -341,7 +336,7 @@ static int make_parents(const char *path) {
 
 /* ---- open / close ---- */
 
-static fg_status setup_schema(fg_store *s, fg_problem *p) {
+static fg_status setup_schema(sq_store *s, fg_problem *p) {
   char *err = NULL;
   int rc = sqlite3_exec(s->db,
                         "PRAGMA journal_mode = WAL;"
@@ -402,7 +397,9 @@ static fg_status setup_schema(fg_store *s, fg_problem *p) {
   return FG_OK;
 }
 
-fg_status fg_store_open(const char *url, fg_store **out, fg_problem *p) {
+static void sq_close(void *b);
+
+static fg_status sq_open(const char *url, void **out, fg_problem *p) {
   *out = NULL;
   if (!url || strncmp(url, "sqlite:", 7) != 0 || url[7] == '\0')
     return fg_problem_set(p, FG_EINVAL, "store URL '%s': expected sqlite:PATH",
@@ -411,7 +408,7 @@ fg_status fg_store_open(const char *url, fg_store **out, fg_problem *p) {
   if (strlen(path) >= FG_STORE_PATH_MAX)
     return fg_problem_set(p, FG_EINVAL, "store path longer than %d characters",
                           FG_STORE_PATH_MAX - 1);
-  fg_store *s = calloc(1, sizeof *s);
+  sq_store *s = calloc(1, sizeof *s);
   if (!s) return fg_problem_set(p, FG_ENOMEM, "store: out of memory");
   snprintf(s->path, sizeof s->path, "%s", path);
   pthread_mutex_init(&s->lock, NULL);
@@ -446,11 +443,12 @@ fg_status fg_store_open(const char *url, fg_store **out, fg_problem *p) {
   return FG_OK;
 
 fail:
-  fg_store_close(s);
+  sq_close(s);
   return st;
 }
 
-void fg_store_close(fg_store *s) {
+static void sq_close(void *b) {
+  sq_store *s = b;
   if (!s) return;
   for (int i = 0; i < ST_COUNT; i++)
     sqlite3_finalize(s->stmt[i]);
@@ -459,7 +457,8 @@ void fg_store_close(fg_store *s) {
   free(s);
 }
 
-fg_status fg_store_ping(fg_store *s, fg_problem *p) {
+static fg_status sq_ping(void *b, fg_problem *p) {
+  sq_store *s = b;
   pthread_mutex_lock(&s->lock);
   sqlite3_stmt *st = s->stmt[ST_PING];
   int rc = sqlite3_step(st);
@@ -470,20 +469,6 @@ fg_status fg_store_ping(fg_store *s, fg_problem *p) {
 }
 
 /* ---- versions ---- */
-
-void fg_store_version_clear(fg_store_version *v) {
-  if (!v) return;
-  free(v->title);
-  free(v->document);
-  memset(v, 0, sizeof *v);
-}
-
-void fg_store_versions_free(fg_store_version *v, int n) {
-  if (!v) return;
-  for (int i = 0; i < n; i++)
-    fg_store_version_clear(&v[i]);
-  free(v);
-}
 
 /* Read the version row of ST_VERSION_GET / ST_MODELS_LIST into *out. */
 static bool read_version_row(sqlite3_stmt *st, fg_store_version *out,
@@ -504,7 +489,7 @@ static bool read_version_row(sqlite3_stmt *st, fg_store_version *out,
 }
 
 /* The version row (name, version) inside the current lock. */
-static fg_status get_version_locked(fg_store *s, const char *name, int version,
+static fg_status get_version_locked(sq_store *s, const char *name, int version,
                                     fg_store_version *out, fg_problem *p) {
   sqlite3_stmt *st = s->stmt[ST_VERSION_GET];
   bind_text(st, 1, name);
@@ -530,14 +515,15 @@ static fg_status get_version_locked(fg_store *s, const char *name, int version,
   return res;
 }
 
-fg_status fg_store_put_version(fg_store *s, const char *name,
-                               const char *digest, const char *canonical,
-                               const char *title, fg_store_version *out,
-                               bool *created, fg_problem *p) {
+static fg_status sq_put_version(void *b, const char *name, const char *digest,
+                                const char *canonical, const char *title,
+                                fg_store_version *out, bool *created,
+                                fg_problem *p) {
+  sq_store *s = b;
   memset(out, 0, sizeof *out);
   *created = false;
   char now[32];
-  now_rfc3339(now);
+  fg_store_now_rfc3339(now);
   pthread_mutex_lock(&s->lock);
   int rc = tx_begin(s);
   if (rc != SQLITE_OK)
@@ -596,8 +582,9 @@ end:
   return unlock_with(s, res);
 }
 
-fg_status fg_store_get_version(fg_store *s, const char *name, int version,
-                               fg_store_version *out, fg_problem *p) {
+static fg_status sq_get_version(void *b, const char *name, int version,
+                                fg_store_version *out, fg_problem *p) {
+  sq_store *s = b;
   memset(out, 0, sizeof *out);
   if (version < 0)
     return fg_problem_set(p, FG_ENOTFOUND, "model '%s' has no version %d", name,
@@ -608,8 +595,9 @@ fg_status fg_store_get_version(fg_store *s, const char *name, int version,
   return res;
 }
 
-fg_status fg_store_list_models(fg_store *s, fg_store_version **out, int *n,
-                               fg_problem *p) {
+static fg_status sq_list_models(void *b, fg_store_version **out, int *n,
+                                fg_problem *p) {
+  sq_store *s = b;
   *out = NULL;
   *n = 0;
   fg_store_version *arr = NULL;
@@ -649,7 +637,8 @@ fg_status fg_store_list_models(fg_store *s, fg_store_version **out, int *n,
   return FG_OK;
 }
 
-fg_status fg_store_retire_model(fg_store *s, const char *name, fg_problem *p) {
+static fg_status sq_retire_model(void *b, const char *name, fg_problem *p) {
+  sq_store *s = b;
   pthread_mutex_lock(&s->lock);
   fg_status res = FG_OK;
   int rc = tx_begin(s);
@@ -667,21 +656,6 @@ fg_status fg_store_retire_model(fg_store *s, const char *name, fg_problem *p) {
 }
 
 /* ---- checks ---- */
-
-void fg_store_check_clear(fg_store_check *c) {
-  if (!c) return;
-  free(c->request);
-  free(c->result);
-  memset(c, 0, sizeof *c);
-  c->probability = c->lower = c->upper = NAN;
-}
-
-void fg_store_checks_free(fg_store_check *c, int n) {
-  if (!c) return;
-  for (int i = 0; i < n; i++)
-    fg_store_check_clear(&c[i]);
-  free(c);
-}
 
 /* Columns CHECK_COLUMNS (0..14) into *out. */
 static void read_check_row(sqlite3_stmt *st, fg_store_check *out) {
@@ -705,7 +679,7 @@ static void read_check_row(sqlite3_stmt *st, fg_store_check *out) {
 
 /* Run one write statement (already bound) in its own transaction. When
  * `must_change` is set, no row changed is FG_ENOTFOUND. */
-static fg_status write_one(fg_store *s, sqlite3_stmt *st, const char *what,
+static fg_status write_one(sq_store *s, sqlite3_stmt *st, const char *what,
                            const char *id, bool must_change, fg_problem *p) {
   fg_status res = FG_OK;
   int rc = tx_begin(s);
@@ -726,8 +700,8 @@ static fg_status write_one(fg_store *s, sqlite3_stmt *st, const char *what,
   return tx_end(s, res, what, p);
 }
 
-fg_status fg_store_put_check(fg_store *s, const fg_store_check *c,
-                             fg_problem *p) {
+static fg_status sq_put_check(void *b, const fg_store_check *c, fg_problem *p) {
+  sq_store *s = b;
   if (c->seed > (uint64_t)INT64_MAX)
     return fg_problem_set(p, FG_EINVAL, "store: seed %llu out of range",
                           (unsigned long long)c->seed);
@@ -755,8 +729,9 @@ fg_status fg_store_put_check(fg_store *s, const fg_store_check *c,
   return res;
 }
 
-fg_status fg_store_finish_check(fg_store *s, const fg_store_check *c,
-                                fg_problem *p) {
+static fg_status sq_finish_check(void *b, const fg_store_check *c,
+                                 fg_problem *p) {
+  sq_store *s = b;
   pthread_mutex_lock(&s->lock);
   sqlite3_stmt *st = s->stmt[ST_CHECK_FINISH];
   bind_text(st, 1, c->id);
@@ -773,8 +748,9 @@ fg_status fg_store_finish_check(fg_store *s, const fg_store_check *c,
   return res;
 }
 
-fg_status fg_store_get_check(fg_store *s, const char *id, fg_store_check *out,
-                             fg_problem *p) {
+static fg_status sq_get_check(void *b, const char *id, fg_store_check *out,
+                              fg_problem *p) {
+  sq_store *s = b;
   memset(out, 0, sizeof *out);
   pthread_mutex_lock(&s->lock);
   sqlite3_stmt *st = s->stmt[ST_CHECK_GET];
@@ -800,9 +776,22 @@ fg_status fg_store_get_check(fg_store *s, const char *id, fg_store_check *out,
   return res;
 }
 
-fg_status fg_store_list_checks(fg_store *s, const fg_check_filter *f,
-                               fg_store_check **out, int *n, char next[40],
-                               fg_problem *p) {
+static fg_status sq_note_progress(void *b, const char *id, const char *body,
+                                  fg_problem *p) {
+  sq_store *s = b;
+  pthread_mutex_lock(&s->lock);
+  sqlite3_stmt *st = s->stmt[ST_CHECK_PROGRESS];
+  bind_text(st, 1, id);
+  bind_text(st, 2, body);
+  fg_status res = write_one(s, st, "noting progress of check", id, false, p);
+  pthread_mutex_unlock(&s->lock);
+  return res;
+}
+
+static fg_status sq_list_checks(void *b, const fg_check_filter *f,
+                                fg_store_check **out, int *n, char next[40],
+                                fg_problem *p) {
+  sq_store *s = b;
   *out = NULL;
   *n = 0;
   next[0] = '\0';
@@ -857,10 +846,11 @@ fg_status fg_store_list_checks(fg_store *s, const fg_check_filter *f,
   return FG_OK;
 }
 
-fg_status fg_store_mark_interrupted(fg_store *s, int *count, fg_problem *p) {
+static fg_status sq_mark_interrupted(void *b, int *count, fg_problem *p) {
+  sq_store *s = b;
   *count = 0;
   char now[32];
-  now_rfc3339(now);
+  fg_store_now_rfc3339(now);
   pthread_mutex_lock(&s->lock);
   fg_status res = FG_OK;
   int rc = tx_begin(s);
@@ -876,7 +866,8 @@ fg_status fg_store_mark_interrupted(fg_store *s, int *count, fg_problem *p) {
   return unlock_with(s, res);
 }
 
-void fg_store_inject_write_fault(fg_store *s, int nth) {
+static void sq_inject_write_fault(void *b, int nth) {
+  sq_store *s = b;
   pthread_mutex_lock(&s->lock);
   s->fail_countdown = nth > 0 ? nth : 0;
   pthread_mutex_unlock(&s->lock);
@@ -884,12 +875,13 @@ void fg_store_inject_write_fault(fg_store *s, int nth) {
 
 /* ---- keys ---- */
 
-fg_status fg_store_put_key(fg_store *s, const fg_store_key *k, fg_problem *p) {
+static fg_status sq_put_key(void *b, const fg_store_key *k, fg_problem *p) {
+  sq_store *s = b;
   char now[32];
   if (k->created_at[0])
     snprintf(now, sizeof now, "%s", k->created_at);
   else
-    now_rfc3339(now);
+    fg_store_now_rfc3339(now);
   pthread_mutex_lock(&s->lock);
   int rc = tx_begin(s);
   if (rc != SQLITE_OK)
@@ -930,8 +922,9 @@ static bool copy_blob(uint8_t *dst, size_t n, sqlite3_stmt *st, int col) {
   return true;
 }
 
-fg_status fg_store_list_keys(fg_store *s, bool live_only, fg_store_key **out,
-                             int *n, fg_problem *p) {
+static fg_status sq_list_keys(void *b, bool live_only, fg_store_key **out,
+                              int *n, fg_problem *p) {
+  sq_store *s = b;
   *out = NULL;
   *n = 0;
   fg_store_key *arr = NULL;
@@ -965,7 +958,8 @@ fg_status fg_store_list_keys(fg_store *s, bool live_only, fg_store_key **out,
     }
     count++;
   }
-  if (res == FG_OK && rc != SQLITE_DONE) res = db_fault(s, p, "listing keys", rc);
+  if (res == FG_OK && rc != SQLITE_DONE)
+    res = db_fault(s, p, "listing keys", rc);
   done_stmt(st);
   pthread_mutex_unlock(&s->lock);
   if (res != FG_OK) {
@@ -977,9 +971,10 @@ fg_status fg_store_list_keys(fg_store *s, bool live_only, fg_store_key **out,
   return FG_OK;
 }
 
-fg_status fg_store_revoke_key(fg_store *s, const char *name, fg_problem *p) {
+static fg_status sq_revoke_key(void *b, const char *name, fg_problem *p) {
+  sq_store *s = b;
   char now[32];
-  now_rfc3339(now);
+  fg_store_now_rfc3339(now);
   pthread_mutex_lock(&s->lock);
   int rc = tx_begin(s);
   if (rc != SQLITE_OK)
@@ -999,8 +994,8 @@ fg_status fg_store_revoke_key(fg_store *s, const char *name, fg_problem *p) {
     rc = sqlite3_step(st);
     done_stmt(st);
     if (rc == SQLITE_ROW)
-      res = fg_problem_set(p, FG_ECONFLICT, "key '%s' is revoked already",
-                           name);
+      res =
+          fg_problem_set(p, FG_ECONFLICT, "key '%s' is revoked already", name);
     else if (rc == SQLITE_DONE)
       res = fg_problem_set(p, FG_ENOTFOUND, "no key named '%s'", name);
     else
@@ -1009,3 +1004,25 @@ fg_status fg_store_revoke_key(fg_store *s, const char *name, fg_problem *p) {
 end:
   return unlock_with(s, tx_end(s, res, "commit (revoke key)", p));
 }
+
+const fg_store_ops fg_store_sqlite_ops = {
+    .scheme = "sqlite",
+    .shared = false,
+    .open = sq_open,
+    .close = sq_close,
+    .ping = sq_ping,
+    .put_version = sq_put_version,
+    .get_version = sq_get_version,
+    .list_models = sq_list_models,
+    .retire_model = sq_retire_model,
+    .put_check = sq_put_check,
+    .finish_check = sq_finish_check,
+    .get_check = sq_get_check,
+    .note_progress = sq_note_progress,
+    .list_checks = sq_list_checks,
+    .mark_interrupted = sq_mark_interrupted,
+    .inject_write_fault = sq_inject_write_fault,
+    .put_key = sq_put_key,
+    .list_keys = sq_list_keys,
+    .revoke_key = sq_revoke_key,
+};

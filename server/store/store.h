@@ -1,10 +1,13 @@
 /*
  * store/store.h -- the one storage interface (prefix fg_store_).
  *
- * Backends: SQLite (sqlite.c, "sqlite:PATH", the embedded default; WAL,
- * foreign keys on, every statement prepared, every write inside a
- * transaction). A PostgreSQL backend ("postgresql://...") may follow
- * behind the same functions.
+ * Backends (store.c picks one by the URL's scheme):
+ *   SQLite (sqlite.c, "sqlite:PATH", the embedded default; WAL, foreign
+ *   keys on, every statement prepared, every write inside a transaction;
+ *   one daemon per file);
+ *   PostgreSQL (pgsql.c, "postgresql://..." or "postgres://...", libpq;
+ *   shared by several daemons behind a load balancer, each registered as
+ *   an instance with a heartbeat).
  *
  * What is kept:
  *   models    -- name, retired flag
@@ -18,7 +21,7 @@
  *                created_at, revoked_at; never the key itself
  *
  * Thread use: one fg_store may be used by several threads; the backend
- * serialises access internally (SQLite connection guarded by a mutex).
+ * serialises access internally (one connection guarded by a mutex).
  * Strings returned inside result structs are malloc'd and freed by the
  * matching _clear / _free function.
  */
@@ -29,13 +32,21 @@
 #include "feasgate/status.h"
 
 #include <stdbool.h>
+#include <stddef.h>
 #include <stdint.h>
 
 typedef struct fg_store fg_store;
 
-/* url: "sqlite:PATH" (PATH created if missing, parent folders too). */
+/* url: "sqlite:PATH" (PATH created if missing, parent folders too) or a
+ * libpq URL "postgresql://[user[:password]@]host[:port]/database[?...]"
+ * (the database must exist; the tables are made when missing). */
 fg_status fg_store_open(const char *url, fg_store **out, fg_problem *p);
 void fg_store_close(fg_store *s);
+/* "sqlite" or "postgresql". */
+const char *fg_store_scheme(const fg_store *s);
+/* The URL as it may be logged or shown: a password (user:PASSWORD@ or a
+ * password= parameter) replaced by ***. */
+void fg_store_url_display(const char *url, char *out, size_t cap);
 /* Health probe: a trivial query. */
 fg_status fg_store_ping(fg_store *s, fg_problem *p);
 
@@ -99,6 +110,15 @@ fg_status fg_store_finish_check(fg_store *s, const fg_store_check *c,
                                 fg_problem *p);
 fg_status fg_store_get_check(fg_store *s, const char *id, fg_store_check *out,
                              fg_problem *p);
+/* While a check runs: its current result body (status running, with
+ * progress), so that another replica sharing the store can answer a GET
+ * for it. No change once the check has ended (status no longer running),
+ * so a late note never hides the final record. */
+fg_status fg_store_note_progress(fg_store *s, const char *id, const char *body,
+                                 fg_problem *p);
+/* true when other processes may serve the same store at once
+ * (PostgreSQL); they then need fg_store_note_progress. */
+bool fg_store_shared(const fg_store *s);
 
 typedef struct fg_check_filter {
   const char *model;   /* NULL = any */
@@ -116,8 +136,12 @@ fg_status fg_store_list_checks(fg_store *s, const fg_check_filter *f,
                                fg_problem *p);
 void fg_store_checks_free(fg_store_check *c, int n);
 
-/* At start-up: every check left "running" becomes "interrupted". Returns
- * how many were changed in *count. */
+/* Called once by a daemon at start-up: checks left "running" by a process
+ * that is gone become "interrupted"; *count says how many. SQLite: every
+ * running check (one daemon per file). PostgreSQL: this registers the
+ * daemon as an instance and starts its heartbeat; running checks of
+ * instances silent for FG_PG_STALE_S (pgsql.c) are marked now and by a
+ * sweep every few seconds for as long as the store is open. */
 fg_status fg_store_mark_interrupted(fg_store *s, int *count, fg_problem *p);
 
 /* Test seam: the n-th data write from now on (1 = the next) fails as an

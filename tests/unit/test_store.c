@@ -1,5 +1,6 @@
 /*
- * tests/unit/test_store.c -- the SQLite store against store/store.h.
+ * tests/unit/test_store.c -- the SQLite and PostgreSQL stores against
+ * store/store.h.
  *
  * Covers: opening (parent folders created), model versions (idempotent
  * registration of the same digest, a new version on change, latest and
@@ -13,12 +14,22 @@
  *
  * Single-threaded except the concurrency section, which runs a few writer
  * threads against one fg_store to exercise its mutex.
+ *
+ * PostgreSQL: when FG_TEST_PG_HOST, FG_TEST_PG_PORT and FG_TEST_PG_USER
+ * name a server (tests/pg/cluster.sh starts one; deploy/test always does),
+ * the same sections run against a fresh database made for this run, and
+ * then what only a shared store has: two stores (two replicas) registering
+ * one name at once count versions without a gap or duplicate; a replica's
+ * running check is left alone while it beats and marked interrupted once
+ * it is gone; a connection the server dropped is re-established. Without
+ * those variables the PostgreSQL part is reported as not run.
  */
 #include "check.h"
 #include "store/store.h"
 
 #include <math.h>
 #include <pthread.h>
+#include <libpq-fe.h>
 #include <sqlite3.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -621,13 +632,199 @@ static void test_bad_urls(void) {
   fg_store *s = NULL;
   fg_problem p;
   fg_problem_init(&p);
-  CHECK_INT(fg_store_open("postgres://x", &s, &p), FG_EINVAL);
+  CHECK_INT(fg_store_open("mysql://x", &s, &p), FG_EINVAL);
   CHECK(s == NULL);
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_open("postgresql:///nodb?host=/proc/none", &s, &p),
+            FG_EIO);
+  CHECK(s == NULL);
+  CHECK(strstr(p.detail, "cannot connect") != NULL);
   fg_problem_init(&p);
   CHECK_INT(fg_store_open("sqlite:", &s, &p), FG_EINVAL);
   fg_problem_init(&p);
   CHECK(fg_store_open("sqlite:/proc/no/such/place/x.db", &s, &p) != FG_OK);
   CHECK(p.detail[0] != '\0');
+}
+
+/* ---- PostgreSQL ---- */
+
+static char pg_url[600], pg_db[64];
+
+/* A command on the server's maintenance database; false on failure. */
+static bool pg_admin(const char *sql) {
+  char conn[600];
+  snprintf(conn, sizeof conn, "postgresql:///postgres?host=%s&port=%s&user=%s",
+           getenv("FG_TEST_PG_HOST"), getenv("FG_TEST_PG_PORT"),
+           getenv("FG_TEST_PG_USER"));
+  PGconn *c = PQconnectdb(conn);
+  bool ok = PQstatus(c) == CONNECTION_OK;
+  if (ok) {
+    PQclear(PQexec(c, "SET client_min_messages = warning"));
+    PGresult *r = PQexec(c, sql);
+    ok = PQresultStatus(r) == PGRES_COMMAND_OK ||
+         PQresultStatus(r) == PGRES_TUPLES_OK;
+    if (!ok) fprintf(stderr, "%s: %s", sql, PQerrorMessage(c));
+    PQclear(r);
+  } else {
+    fprintf(stderr, "admin connection: %s", PQerrorMessage(c));
+  }
+  PQfinish(c);
+  return ok;
+}
+
+typedef struct reg_arg {
+  fg_store *s;
+  int index, failures, created;
+} reg_arg;
+
+/* Ten registrations of distinct documents under one name. */
+static void *registrar(void *arg) {
+  reg_arg *a = arg;
+  for (int i = 0; i < 10; i++) {
+    char digest[80], doc[64];
+    snprintf(digest, sizeof digest, "sha256:%064d", a->index * 100 + i);
+    snprintf(doc, sizeof doc, "{\"r\":%d}", a->index * 100 + i);
+    fg_store_version v;
+    bool created = false;
+    fg_problem p;
+    fg_problem_init(&p);
+    if (fg_store_put_version(a->s, "shared", digest, doc, NULL, &v, &created,
+                             &p) != FG_OK) {
+      fprintf(stderr, "registrar %d: %s\n", a->index, p.detail);
+      a->failures++;
+    }
+    a->created += created;
+    fg_store_version_clear(&v);
+  }
+  return NULL;
+}
+
+static void test_pg_replicas(void) {
+  fg_store *a = NULL, *b = NULL;
+  fg_problem p;
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_open(pg_url, &a, &p), FG_OK);
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_open(pg_url, &b, &p), FG_OK);
+  if (!a || !b) return;
+  CHECK_STR(fg_store_scheme(a), "postgresql");
+
+  /* two replicas registering one name at once, 10 documents each */
+  pthread_t t[2];
+  reg_arg args[2] = {{.s = a, .index = 1}, {.s = b, .index = 2}};
+  for (int i = 0; i < 2; i++) pthread_create(&t[i], NULL, registrar, &args[i]);
+  for (int i = 0; i < 2; i++) pthread_join(t[i], NULL);
+  CHECK_INT(args[0].failures + args[1].failures, 0);
+  CHECK_INT(args[0].created + args[1].created, 20);
+  bool all = true;
+  for (int v = 1; v <= 20; v++) {
+    fg_store_version got;
+    fg_problem_init(&p);
+    all &= fg_store_get_version(b, "shared", v, &got, &p) == FG_OK;
+    fg_store_version_clear(&got);
+  }
+  CHECK(all);
+  fg_store_version latest;
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_get_version(a, "shared", 0, &latest, &p), FG_OK);
+  CHECK_INT(latest.version, 20);
+  fg_store_version_clear(&latest);
+
+  /* replica a serves (instance with a heartbeat) and records a running
+   * check; replica b starting up leaves it alone */
+  int count = -1;
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_mark_interrupted(a, &count, &p), FG_OK);
+  fg_store_check c;
+  make_check(&c, "chk_pg_replica_running", "shared", 1,
+             "sha256:0000000000000000000000000000000000000000000000000000000000000100",
+             "2026-04-01T00:00:00Z", "replica");
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_put_check(a, &c, &p), FG_OK);
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_mark_interrupted(b, &count, &p), FG_OK);
+  CHECK_INT(count, 0);
+  fg_store_check g;
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_get_check(b, c.id, &g, &p), FG_OK);
+  CHECK_STR(g.status, "running");
+  fg_store_check_clear(&g);
+  /* a is gone: b's next sweep marks its check */
+  fg_store_close(a);
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_mark_interrupted(b, &count, &p), FG_OK);
+  CHECK_INT(count, 1);
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_get_check(b, c.id, &g, &p), FG_OK);
+  CHECK_STR(g.status, "interrupted");
+  fg_store_check_clear(&g);
+
+  /* the server drops b's connection: at most one call fails, then b
+   * reconnects by itself */
+  char sql[200];
+  snprintf(sql, sizeof sql,
+           "SELECT pg_terminate_backend(pid) FROM pg_stat_activity WHERE "
+           "datname = '%s' AND pid <> pg_backend_pid()",
+           pg_db);
+  CHECK(pg_admin(sql));
+  fg_problem_init(&p);
+  fg_status first = fg_store_ping(b, &p);
+  CHECK(first == FG_OK || first == FG_EIO);
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_ping(b, &p), FG_OK);
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_get_version(b, "shared", 3, &latest, &p), FG_OK);
+  CHECK_INT(latest.version, 3);
+  fg_store_version_clear(&latest);
+  fg_store_close(b);
+}
+
+static void test_pg(void) {
+  if (!getenv("FG_TEST_PG_HOST") || !getenv("FG_TEST_PG_PORT") ||
+      !getenv("FG_TEST_PG_USER")) {
+    printf("PostgreSQL part not run: FG_TEST_PG_HOST, FG_TEST_PG_PORT and "
+           "FG_TEST_PG_USER are not set (tests/pg/cluster.sh)\n");
+    return;
+  }
+  snprintf(pg_db, sizeof pg_db, "fgunit_%d", (int)getpid());
+  char sql[120];
+  snprintf(sql, sizeof sql, "DROP DATABASE IF EXISTS %s", pg_db);
+  pg_admin(sql);
+  snprintf(sql, sizeof sql, "CREATE DATABASE %s", pg_db);
+  CHECK(pg_admin(sql));
+  snprintf(pg_url, sizeof pg_url, "postgresql:///%s?host=%s&port=%s&user=%s",
+           pg_db, getenv("FG_TEST_PG_HOST"), getenv("FG_TEST_PG_PORT"),
+           getenv("FG_TEST_PG_USER"));
+  fg_store *s = NULL;
+  fg_problem p;
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_open(pg_url, &s, &p), FG_OK);
+  if (!s) {
+    fprintf(stderr, "PostgreSQL open failed: %s\n", p.detail);
+    return;
+  }
+  test_versions(s);
+  test_checks(s);
+  test_threads(s);
+  test_faults(s);
+  test_keys(s);
+  fg_store_close(s);
+  /* reopening finds everything (the schema is not made twice) */
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_open(pg_url, &s, &p), FG_OK);
+  if (s) {
+    fg_store_check g;
+    fg_problem_init(&p);
+    CHECK_INT(fg_store_get_check(s, "chk_00000000000000000000000009", &g, &p),
+              FG_OK);
+    CHECK_STR(g.status, "interrupted");
+    fg_store_check_clear(&g);
+    fg_store_close(s);
+  }
+  test_pg_replicas();
+  snprintf(sql, sizeof sql, "DROP DATABASE IF EXISTS %s WITH (FORCE)", pg_db);
+  CHECK(pg_admin(sql));
+  printf("PostgreSQL part run on database %s\n", pg_db);
 }
 
 int main(void) {
@@ -657,6 +854,7 @@ int main(void) {
   test_reopen();
   test_migration();
   test_bad_urls();
+  test_pg();
 
   char cmd[512];
   snprintf(cmd, sizeof cmd, "rm -rf '%s'", dir);

@@ -1,0 +1,156 @@
+#!/usr/bin/python3
+"""tests/api/test_replicas.py -- two daemons sharing one PostgreSQL store.
+
+Two `feasgate serve` processes on one PostgreSQL database, as two replicas
+behind a load balancer would be: a model registered through one is listed,
+read and checked through the other; a check run by one is read back by the
+other and appears in its log; registering the same document through the
+other is the same version (idempotent across replicas); the same request
+gives the same counts on either. While one replica runs a detached check,
+the other reports its progress (noted in the store every second). A
+detached check left running when its replica is killed (SIGKILL) is
+marked interrupted by the surviving replica's sweep within the stale window
+plus a sweep period (store/pgsql.c: 10 s + 5 s), and the survivor stays
+ready throughout. Every answer is checked against its schema.
+
+Needs FG_TEST_PG_HOST, FG_TEST_PG_PORT, FG_TEST_PG_USER (tests/pg/cluster.sh;
+deploy/test starts a server); without them it exits 77, which ctest reports
+as skipped.
+
+Prints "N passed, N failed" last; exits non-zero on any failure.
+"""
+import json
+import os
+import signal
+import subprocess
+import sys
+import time
+
+from apicommon import BIN, Daemon, Results
+
+R = Results()
+
+MODEL = {
+    "format": 1, "name": "shared-line",
+    "title": "Two replicas, one log (invented figures)",
+    "decisions": [{"name": "cap"}],
+    "uncertain": [{"name": "load", "size": 6,
+                   "distribution": {"family": "gamma", "shape": 4, "scale": 2.5}}],
+    "constraints": [{"name": "total", "require": "sum(load) <= cap"}],
+}
+
+
+def psql(sql, db="postgres"):
+    env = dict(os.environ, PGOPTIONS="-c client_min_messages=warning")
+    subprocess.run(["psql", "-q", "-v", "ON_ERROR_STOP=1", "-h",
+                    os.environ["FG_TEST_PG_HOST"], "-p",
+                    os.environ["FG_TEST_PG_PORT"], "-U",
+                    os.environ["FG_TEST_PG_USER"], "-d", db, "-c", sql],
+                   check=True, env=env, stdout=subprocess.DEVNULL)
+
+
+def wait_until(pred, seconds, step=0.2):
+    end = time.time() + seconds
+    while time.time() < end:
+        if pred():
+            return True
+        time.sleep(step)
+    return pred()
+
+
+def main():
+    need = ("FG_TEST_PG_HOST", "FG_TEST_PG_PORT", "FG_TEST_PG_USER")
+    if not all(os.environ.get(k) for k in need):
+        print("not run: %s not set (tests/pg/cluster.sh)" % ", ".join(need))
+        return 77
+    if not os.path.exists(BIN):
+        print("FEASGATE_BIN %s does not exist" % BIN)
+        print("0 passed, 1 failed")
+        return 1
+    db = "fgapi_%d" % os.getpid()
+    psql("DROP DATABASE IF EXISTS %s" % db)
+    psql("CREATE DATABASE %s" % db)
+    url = "postgresql:///%s?host=%s&port=%s&user=%s" % (
+        db, os.environ["FG_TEST_PG_HOST"], os.environ["FG_TEST_PG_PORT"],
+        os.environ["FG_TEST_PG_USER"])
+    a = Daemon(url, results=R)
+    b = Daemon(url, results=R)
+    try:
+        if not R.check(a.address and b.address, "both replicas started: %s / %s"
+                       % (a.first, b.first)):
+            return R.summary()
+        R.check(json.loads(a.first).get("store", "").startswith("postgresql:"),
+                "the start-up line names the store: %s" % a.first)
+
+        st, _, reg = a.request("POST", "/v1/models", MODEL)
+        R.check(st == 201 and reg.get("version") == 1, "registered on A: %s" % st)
+        st, _, same = b.request("POST", "/v1/models", MODEL)
+        R.check(st == 200 and same.get("version") == 1
+                and same.get("digest") == reg.get("digest"),
+                "the same document through B is the same version: %s %s"
+                % (st, same.get("version")))
+        st, _, lst = b.request("GET", "/v1/models")
+        names = [m.get("name") for m in lst.get("models", [])] if st == 200 else []
+        R.check("shared-line" in names, "B lists the model: %s" % names)
+
+        req = {"decision": {"cap": 75}, "samples": 20000, "seed": 31}
+        st, _, res = a.request("POST", "/v1/models/shared-line/checks", req)
+        R.check(st == 201 and res.get("status") == "done",
+                "check on A: %s %s" % (st, res.get("status")))
+        cid = res.get("id")
+        st, _, via_b = b.request("GET", "/v1/checks/%s" % cid)
+        R.check(st == 200 and via_b.get("joint") == res.get("joint")
+                and via_b.get("verdict") == res.get("verdict"),
+                "B reads A's check: %s" % st)
+        st, _, res_b = b.request("POST", "/v1/models/shared-line/checks", req)
+        R.check(st == 201 and res_b.get("joint") == res.get("joint"),
+                "the same request on B gives the same counts: %s / %s"
+                % (res_b.get("joint"), res.get("joint")))
+        st, _, log = a.request("GET", "/v1/checks?model=shared-line")
+        ids = [c.get("id") for c in log.get("checks", [])] if st == 200 else []
+        R.check(cid in ids and res_b.get("id") in ids,
+                "A's log holds both replicas' checks: %s" % ids)
+
+        # a long detached check on A; A dies; B marks it interrupted
+        big = {"decision": {"cap": 75}, "samples": 900000000, "seed": 5,
+               "wait_s": 0, "stop_early": False}
+        st, _, run = a.request("POST", "/v1/models/shared-line/checks", big)
+        R.check(st == 202, "a long check answered 202 on A: %s" % st)
+        rid = run.get("id") if isinstance(run, dict) else None
+        st, _, seen = b.request("GET", "/v1/checks/%s" % rid)
+        R.check(st == 200 and seen.get("status") == "running",
+                "B sees it running: %s %s" % (st, seen.get("status")
+                                              if isinstance(seen, dict) else seen))
+        # A notes its running checks' progress in the store every second
+        # (http/registry.c), so B reports how far A has come
+        def progressed():
+            s2, _, c2 = b.request("GET", "/v1/checks/%s" % rid)
+            pr = c2.get("progress") if s2 == 200 and isinstance(c2, dict) else None
+            return bool(pr) and pr.get("samples_done", 0) > 0
+        R.check(wait_until(progressed, 10),
+                "B reports A's progress (samples_done > 0)")
+        a.proc.send_signal(signal.SIGKILL)
+        a.proc.wait()
+        t0 = time.time()
+
+        def interrupted():
+            s2, _, c2 = b.request("GET", "/v1/checks/%s" % rid)
+            return s2 == 200 and c2.get("status") == "interrupted"
+        ok = wait_until(interrupted, 40)
+        R.check(ok, "B marked the dead replica's check interrupted after %.1f s"
+                % (time.time() - t0))
+        st, _, rd = b.request("GET", "/v1/ready")
+        R.check(st == 200, "B stays ready: %s" % st)
+        code = b.stop()
+        R.check(code == 0, "B stops cleanly: %s" % code)
+    finally:
+        for d in (a, b):
+            if d.proc.poll() is None:
+                d.proc.kill()
+                d.proc.wait()
+        psql("DROP DATABASE IF EXISTS %s WITH (FORCE)" % db)
+    return R.summary()
+
+
+if __name__ == "__main__":
+    sys.exit(main())
