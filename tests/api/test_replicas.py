@@ -6,12 +6,16 @@ behind a load balancer would be: a model registered through one is listed,
 read and checked through the other; a check run by one is read back by the
 other and appears in its log; registering the same document through the
 other is the same version (idempotent across replicas); the same request
-gives the same counts on either. While one replica runs a detached check,
+gives the same counts on either. A key added to the shared store with
+`feasgate keys add` is required by both within seconds. While one replica
+runs a detached check,
 the other reports its progress (noted in the store every second). A
 detached check left running when its replica is killed (SIGKILL) is
 marked interrupted by the surviving replica's sweep within the stale window
 plus a sweep period (store/pgsql.c: 10 s + 5 s), and the survivor stays
-ready throughout. Every answer is checked against its schema.
+ready throughout. When the database refuses the survivor, GET /v1/ready is
+503 naming the store; once it accepts again the replica reconnects by
+itself and is ready. Every answer is checked against its schema.
 
 Needs FG_TEST_PG_HOST, FG_TEST_PG_PORT, FG_TEST_PG_USER (tests/pg/cluster.sh;
 deploy/test starts a server); without them it exits 77, which ctest reports
@@ -111,20 +115,35 @@ def main():
         R.check(cid in ids and res_b.get("id") in ids,
                 "A's log holds both replicas' checks: %s" % ids)
 
+        # a key added to the shared store is required by both replicas
+        kp = subprocess.run([BIN, "keys", "add", "gate", "--role", "checker",
+                             "--store", url], capture_output=True, text=True,
+                            timeout=60)
+        R.check(kp.returncode == 0, "keys add on the shared store: %d %s"
+                % (kp.returncode, kp.stderr.strip()))
+        key = (kp.stdout.strip().splitlines() or [""])[-1]
+        H = {"Authorization": "Bearer " + key}
+        both = wait_until(lambda: all(
+            d.request("GET", "/v1/models")[0] == 401 for d in (a, b)), 5)
+        R.check(both, "both replicas require the new key")
+        R.check(all(d.request("GET", "/v1/models", headers=H)[0] == 200
+                    for d in (a, b)), "both replicas accept it")
+
         # a long detached check on A; A dies; B marks it interrupted
         big = {"decision": {"cap": 75}, "samples": 900000000, "seed": 5,
                "wait_s": 0, "stop_early": False}
-        st, _, run = a.request("POST", "/v1/models/shared-line/checks", big)
+        st, _, run = a.request("POST", "/v1/models/shared-line/checks", big,
+                               headers=H)
         R.check(st == 202, "a long check answered 202 on A: %s" % st)
         rid = run.get("id") if isinstance(run, dict) else None
-        st, _, seen = b.request("GET", "/v1/checks/%s" % rid)
+        st, _, seen = b.request("GET", "/v1/checks/%s" % rid, headers=H)
         R.check(st == 200 and seen.get("status") == "running",
                 "B sees it running: %s %s" % (st, seen.get("status")
                                               if isinstance(seen, dict) else seen))
         # A notes its running checks' progress in the store every second
         # (http/registry.c), so B reports how far A has come
         def progressed():
-            s2, _, c2 = b.request("GET", "/v1/checks/%s" % rid)
+            s2, _, c2 = b.request("GET", "/v1/checks/%s" % rid, headers=H)
             pr = c2.get("progress") if s2 == 200 and isinstance(c2, dict) else None
             return bool(pr) and pr.get("samples_done", 0) > 0
         R.check(wait_until(progressed, 10),
@@ -134,13 +153,31 @@ def main():
         t0 = time.time()
 
         def interrupted():
-            s2, _, c2 = b.request("GET", "/v1/checks/%s" % rid)
-            return s2 == 200 and c2.get("status") == "interrupted"
+            s2, _, c2 = b.request("GET", "/v1/checks/%s" % rid, headers=H)
+            return (s2 == 200 and c2.get("status") == "interrupted"
+                    and c2.get("key") == "gate")
         ok = wait_until(interrupted, 40)
         R.check(ok, "B marked the dead replica's check interrupted after %.1f s"
                 % (time.time() - t0))
         st, _, rd = b.request("GET", "/v1/ready")
         R.check(st == 200, "B stays ready: %s" % st)
+
+        # the database refuses B: /v1/ready says so (503); then it is back
+        psql("ALTER DATABASE %s ALLOW_CONNECTIONS false" % db)
+        psql("SELECT pg_terminate_backend(pid) FROM pg_stat_activity WHERE "
+             "datname = '%s'" % db)
+        st, hd, rd = b.request("GET", "/v1/ready")
+        R.check(st == 503 and isinstance(rd, dict)
+                and "store" in rd.get("detail", ""),
+                "B not ready while the database refuses it: %s %s"
+                % (st, rd.get("detail") if isinstance(rd, dict) else rd))
+        st, _, _ = b.request("GET", "/v1/models", headers=H)
+        R.check(st in (500, 503), "a request needing the store fails: %s" % st)
+        psql("ALTER DATABASE %s ALLOW_CONNECTIONS true" % db)
+        R.check(wait_until(lambda: b.request("GET", "/v1/ready")[0] == 200, 10),
+                "B ready again once the database accepts it")
+        st, _, _ = b.request("GET", "/v1/checks/%s" % cid, headers=H)
+        R.check(st == 200, "and serves the log again: %s" % st)
         code = b.stop()
         R.check(code == 0, "B stops cleanly: %s" % code)
     finally:
