@@ -646,6 +646,26 @@ static void test_bad_urls(void) {
   CHECK(p.detail[0] != '\0');
 }
 
+/* The sections every backend must pass, on a fresh store at `u`; false
+ * when it does not open. */
+static bool run_sections(const char *u) {
+  fg_store *s = NULL;
+  fg_problem p;
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_open(u, &s, &p), FG_OK);
+  if (!s) {
+    fprintf(stderr, "open %s failed: %s\n", u, p.detail);
+    return false;
+  }
+  test_versions(s);
+  test_checks(s);
+  test_threads(s);
+  test_faults(s);
+  test_keys(s);
+  fg_store_close(s);
+  return true;
+}
+
 /* ---- PostgreSQL ---- */
 
 static char pg_url[600], pg_db[64];
@@ -795,20 +815,9 @@ static void test_pg(void) {
   snprintf(pg_url, sizeof pg_url, "postgresql:///%s?host=%s&port=%s&user=%s",
            pg_db, getenv("FG_TEST_PG_HOST"), getenv("FG_TEST_PG_PORT"),
            getenv("FG_TEST_PG_USER"));
+  if (!run_sections(pg_url)) return;
   fg_store *s = NULL;
   fg_problem p;
-  fg_problem_init(&p);
-  CHECK_INT(fg_store_open(pg_url, &s, &p), FG_OK);
-  if (!s) {
-    fprintf(stderr, "PostgreSQL open failed: %s\n", p.detail);
-    return;
-  }
-  test_versions(s);
-  test_checks(s);
-  test_threads(s);
-  test_faults(s);
-  test_keys(s);
-  fg_store_close(s);
   /* reopening finds everything (the schema is not made twice) */
   fg_problem_init(&p);
   CHECK_INT(fg_store_open(pg_url, &s, &p), FG_OK);
@@ -837,20 +846,7 @@ int main(void) {
   snprintf(dbpath, sizeof dbpath, "%s/a/b/t.db", dir);
   snprintf(url, sizeof url, "sqlite:%s", dbpath);
 
-  fg_store *s = NULL;
-  fg_problem p;
-  fg_problem_init(&p);
-  CHECK_INT(fg_store_open(url, &s, &p), FG_OK);
-  if (!s) {
-    fprintf(stderr, "open failed: %s\n", p.detail);
-    return fg_test_finish() ? 1 : 1;
-  }
-  test_versions(s);
-  test_checks(s);
-  test_threads(s);
-  test_faults(s);
-  test_keys(s);
-  fg_store_close(s);
+  if (!run_sections(url)) return fg_test_finish() ? 1 : 1;
   test_reopen();
   test_migration();
   test_bad_urls();
