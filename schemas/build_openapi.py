@@ -259,6 +259,8 @@ def paths():
                 query("since", {"type": "string", "format": "date-time"},
                       "Only checks created at or after this RFC 3339 time."),
                 query("label", {"type": "string"}, "Only checks with this label."),
+                query("key", {"type": "string", "pattern": "^[A-Za-z0-9][A-Za-z0-9_.-]{0,63}$"},
+                      "Only checks made with the API key of this name."),
                 query("limit", {"type": "integer", "minimum": 1, "maximum": 1000, "default": 50},
                       "Summaries per page."),
                 query("after", {"type": "string"},

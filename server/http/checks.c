@@ -5,7 +5,7 @@
  *   POST /v1/models/{name}/versions/{n}/checks  against version n
  *   GET  /v1/checks/{id}                        one check (live if running)
  *   DELETE /v1/checks/{id}                      cancel a running check
- *   GET  /v1/checks?model=&verdict=&since=&label=&limit=&after=
+ *   GET  /v1/checks?model=&verdict=&since=&label=&key=&limit=&after=
  *
  * How a check is run (the order is the durability contract):
  *   1. load the version (404, 410 when retired) and its compiled model;
@@ -475,7 +475,7 @@ void fg_h_check_cancel(fg_req *r, fg_resp *out) {
 /* ---- GET /v1/checks ---- */
 
 typedef struct list_query {
-  const char *model, *verdict, *since, *label, *limit, *after;
+  const char *model, *verdict, *since, *label, *key, *limit, *after;
   char unknown[64];
   bool empty_name;
 } list_query;
@@ -492,6 +492,8 @@ static enum MHD_Result collect_arg(void *cls, enum MHD_ValueKind kind,
     slot = &q->since;
   else if (strcmp(key, "label") == 0)
     slot = &q->label;
+  else if (strcmp(key, "key") == 0)
+    slot = &q->key;
   else if (strcmp(key, "limit") == 0)
     slot = &q->limit;
   else if (strcmp(key, "after") == 0)
@@ -590,7 +592,7 @@ void fg_h_checks_list(fg_req *r, fg_resp *out) {
   if (q.unknown[0] || q.empty_name) {
     bad_param(out, q.unknown[0] ? q.unknown : "",
               "unknown parameter%s; expected model, verdict, since, label, "
-              "limit or after",
+              "key, limit or after",
               "");
     return;
   }
@@ -632,6 +634,16 @@ void fg_h_checks_list(fg_req *r, fg_resp *out) {
       return;
     }
     f.label = q.label;
+  }
+  if (q.key) {
+    if (!fg_key_name_valid(q.key)) {
+      bad_param(out, "key",
+                "expected an API key's name (as `feasgate keys list` shows "
+                "it), found '%.64s'",
+                q.key);
+      return;
+    }
+    f.key = q.key;
   }
   if (q.limit) {
     char *end = NULL;

@@ -216,8 +216,9 @@ static const struct {
                         " AND ($4::text IS NULL OR label = $4)"
                         " AND ($5::text IS NULL OR created_at < $5 OR"
                         " (created_at = $5 AND id < $6))"
+                        " AND ($8::text IS NULL OR key = $8)"
                         " ORDER BY created_at DESC, id DESC LIMIT $7::int",
-                        7},
+                        8},
     /* running checks of owners that are not this instance and have not
      * beaten within $3 seconds (or have no instance row at all) */
     [ST_MARK_STALE] =
@@ -893,6 +894,7 @@ static fg_status pg_list_checks(void *b, const fg_check_filter *f,
     par_filter(&q, cursor_time);
     par_filter(&q, f->after);
     par_int(&q, limit + 1); /* one more tells if more remain */
+    par_filter(&q, f->key);
     PGresult *r = run(s, ST_CHECKS_LIST, &q);
     if (PQresultStatus(r) != PGRES_TUPLES_OK) {
       res = pg_fault(s, p, "listing checks", r);

@@ -190,6 +190,7 @@ static const char *const stmt_sql[ST_COUNT] = {
         " WHERE (?1 IS NULL OR model = ?1) AND (?2 IS NULL OR verdict = ?2)"
         " AND (?3 IS NULL OR created_at >= ?3) AND (?4 IS NULL OR label = ?4)"
         " AND (?5 IS NULL OR created_at < ?5 OR (created_at = ?5 AND id < ?6))"
+        " AND (?8 IS NULL OR key = ?8)"
         " ORDER BY created_at DESC, id DESC LIMIT ?7",
     [ST_MARK_INTERRUPTED] =
         "UPDATE checks SET status = 'interrupted', finished_at = ?1,"
@@ -826,6 +827,7 @@ static fg_status sq_list_checks(void *b, const fg_check_filter *f,
     bind_filter(st, 5, cursor_time);
     bind_filter(st, 6, f->after);
     sqlite3_bind_int(st, 7, limit + 1); /* one more tells if more remain */
+    bind_filter(st, 8, f->key);
     while ((rc = sqlite3_step(st)) == SQLITE_ROW)
       read_check_row(st, &arr[count++]);
     if (rc != SQLITE_DONE) res = db_fault(s, p, "listing checks", rc);

@@ -125,6 +125,7 @@ typedef struct fg_check_filter {
   const char *verdict; /* NULL = any */
   const char *since;   /* RFC 3339; NULL = any */
   const char *label;   /* exact; NULL = any */
+  const char *key;     /* name of the API key that ran it; NULL = any */
   const char *after;   /* cursor: list checks older than this id */
   int limit;
 } fg_check_filter;

@@ -339,6 +339,27 @@ def test_key_names(d, store, keys):
                          bearer(keys["reader"]))
     check(done and b.get("key") == "ci-author",
           "the recorded async check names its key")
+    # The log filtered by key: each key's checks only, and a bad name is a 400.
+    st, _, b = d.request("GET", "/v1/checks?limit=1000", None,
+                         bearer(keys["reader"]))
+    every = b.get("checks", []) if isinstance(b, dict) else []
+    for kname, want in (("ci-checker", cid), ("ci-author", aid)):
+        st, _, b = d.request("GET", "/v1/checks?key=%s&limit=1000" % kname,
+                             None, bearer(keys["reader"]))
+        got = [c.get("id") for c in (b.get("checks", [])
+                                     if isinstance(b, dict) else [])]
+        expect = [c.get("id") for c in every if c.get("key") == kname]
+        check(st == 200 and got == expect and want in got,
+              "?key=%s lists exactly that key's checks, newest first "
+              "(%d of %d)" % (kname, len(got), len(every)))
+    st, _, b = d.request("GET", "/v1/checks?key=nobody", None,
+                         bearer(keys["reader"]))
+    check(st == 200 and b.get("checks") == [], "?key= of no check: an empty page")
+    st, h, b = d.request("GET", "/v1/checks?key=bad%20name", None,
+                         bearer(keys["reader"]))
+    check(is_problem(st, h, b, 400) and "key" in b.get("detail", ""),
+          "?key= with a name no key can have: 400 naming it: %r"
+          % (b.get("detail") if isinstance(b, dict) else b))
     time.sleep(0.2)
     logged = [json.loads(l) for l in d.lines if '"event":"request"' in l]
     check(any(e.get("key") == "ci-checker" and e.get("method") == "POST"

@@ -183,6 +183,8 @@ static void test_checks(fg_store *s) {
     char id[40];
     snprintf(id, sizeof id, "chk_%026d", i);
     make_check(&c, id, "alpha", 2, d2, times[i], i % 2 ? "odd" : "even");
+    /* checks 1, 4, 7 were made with the key "ci" */
+    if (i % 3 == 1) snprintf(c.key, sizeof c.key, "ci");
     fg_problem_init(&p);
     CHECK_INT(fg_store_put_check(s, &c, &p), FG_OK);
   }
@@ -307,6 +309,21 @@ static void test_checks(fg_store *s) {
   fg_problem_init(&p);
   CHECK_INT(fg_store_list_checks(s, &f, &list, &n, next, &p), FG_OK);
   CHECK_INT(n, 5);
+  fg_store_checks_free(list, n);
+  f = (fg_check_filter){.key = "ci", .limit = 100};
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_list_checks(s, &f, &list, &n, next, &p), FG_OK);
+  CHECK_INT(n, 3);
+  if (n == 3) {
+    CHECK_STR(list[0].id, "chk_00000000000000000000000007");
+    CHECK_STR(list[2].id, "chk_00000000000000000000000001");
+    CHECK_STR(list[1].key, "ci");
+  }
+  fg_store_checks_free(list, n);
+  f = (fg_check_filter){.key = "ci", .label = "even", .limit = 100};
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_list_checks(s, &f, &list, &n, next, &p), FG_OK);
+  CHECK_INT(n, 1); /* 4 */
   fg_store_checks_free(list, n);
   f = (fg_check_filter){.model = "beta", .limit = 100};
   fg_problem_init(&p);
