@@ -12,8 +12,9 @@ SQLite store (apicommon.Daemon) and exercises:
     (a_only + b_only + both + neither = n, difference = (a_only - b_only)/n
     = the difference of the two joint estimates), every candidate logged
     as a check, the same counts as a check made alone with the same seed,
-    pairs in list order, and 400 / 404 problems for bad bodies and unknown
-    models.
+    pairs in list order, a 504 naming the cancelled (and recorded) checks
+    when the comparison outlives wait_s, and 400 / 404 problems for bad
+    bodies and unknown models.
 
 Standard library (plus apicommon's jsonschema checks of every answer).
 Prints one line per failed check and
@@ -21,6 +22,7 @@ Prints one line per failed check and
 """
 import math
 import os
+import re
 import sys
 import tempfile
 import urllib.parse
@@ -239,6 +241,24 @@ def test_comparisons(d):
     lim = b.get("limit") if isinstance(b, dict) else None
     check(isinstance(lim, dict) and lim.get("name") == "comparison_samples",
           "over the sample cap names comparison_samples: %r" % b)
+    # Not finished within wait_s: 504 naming every candidate's check, each
+    # recorded cancelled with the samples it had done.
+    st, h, b = d.request("POST", url, {"candidates": body3["candidates"][:2],
+                                       "samples": 200000000, "seed": 9,
+                                       "wait_s": 0.3})
+    detail = b.get("detail", "") if isinstance(b, dict) else ""
+    ids = re.findall(r"chk_[0-9A-Za-z]+", detail)
+    check(is_problem(st, h, b, 504) and len(ids) == 2 and "wait_s" in detail,
+          "a comparison past wait_s: 504 naming both checks, got %s %r"
+          % (st, detail))
+    for cid in ids:
+        st, h, got = d.request("GET", "/v1/checks/%s" % cid)
+        done = got.get("joint", {}).get("samples", -1) \
+            if isinstance(got, dict) else -1
+        check(st == 200 and got.get("status") == "cancelled"
+              and 0 <= done < 200000000,
+              "its check %s is recorded cancelled with partial counts: %s %r"
+              % (cid, got.get("status") if isinstance(got, dict) else st, done))
     st, h, b = d.request("POST", "/v1/models/no-such-model/comparisons", body)
     check(is_problem(st, h, b, 404), "unknown model: 404, got %s" % st)
     st, h, b = d.request("GET", url)
