@@ -41,7 +41,9 @@
  *
  * Errors: libpq failures become FG_EIO naming the operation and the
  * server's message; a unique violation (SQLSTATE 23505) is FG_ECONFLICT,
- * a serialization failure or deadlock (40001, 40P01) FG_EBUSY.
+ * a serialization failure, deadlock, lock time-out or statement time-out
+ * (40001, 40P01, 55P03, 57014) FG_EBUSY. Every session has a statement and
+ * a lock time-out, and connecting has a time-out (FG_PG_*_TIMEOUT_*).
  *
  * Test seam: as in the SQLite backend, fg_store_inject_write_fault makes
  * the n-th data write from then on fail inside its transaction.
@@ -75,6 +77,12 @@
 #define FG_PG_INSTANCE_KEEP_S 86400
 /* Longest store URL kept (libpq reads the URL itself). */
 #define FG_PG_URL_MAX 4096
+/* How long one statement, one wait for a row lock, and one connection
+ * attempt may take: a database that hangs must not hold the store's mutex
+ * (and so every request) for ever. A URL's own connect_timeout wins. */
+#define FG_PG_STATEMENT_TIMEOUT_MS 30000
+#define FG_PG_LOCK_TIMEOUT_MS 10000
+#define FG_PG_CONNECT_TIMEOUT_S "10"
 /* The advisory lock key held while creating the schema ("fgst"). */
 #define FG_PG_SCHEMA_LOCK 0x66677374
 
@@ -318,7 +326,9 @@ static fg_status pg_fault(pg_store *s, fg_problem *p, const char *what,
   const char *state = r ? PQresultErrorField(r, PG_DIAG_SQLSTATE) : NULL;
   fg_status st = FG_EIO;
   if (state && strcmp(state, "23505") == 0) st = FG_ECONFLICT;
-  if (state && (strcmp(state, "40001") == 0 || strcmp(state, "40P01") == 0))
+  /* serialization failure, deadlock, lock or statement time-out */
+  if (state && (strcmp(state, "40001") == 0 || strcmp(state, "40P01") == 0 ||
+                strcmp(state, "55P03") == 0 || strcmp(state, "57014") == 0))
     st = FG_EBUSY;
   const char *msg = r ? PQresultErrorMessage(r) : NULL;
   if (!msg || !msg[0])
@@ -351,6 +361,20 @@ static bool prepare_all(pg_store *s, fg_problem *p) {
   return true;
 }
 
+static bool command(pg_store *s, const char *sql, const char *what,
+                    fg_problem *p);
+
+/* Settings of every (re)made session: quieter notices ("relation exists,
+ * skipping" is not ours to log) and the time limits above. */
+static void set_session(pg_store *s) {
+  char sql[160];
+  snprintf(sql, sizeof sql,
+           "SET client_min_messages = warning; SET statement_timeout = %d;"
+           " SET lock_timeout = %d",
+           FG_PG_STATEMENT_TIMEOUT_MS, FG_PG_LOCK_TIMEOUT_MS);
+  command(s, sql, NULL, NULL);
+}
+
 /* A usable connection with the statements prepared, or FG_EIO. */
 static fg_status ready(pg_store *s, fg_problem *p) {
   if (PQstatus(s->conn) != CONNECTION_OK) {
@@ -358,6 +382,7 @@ static fg_status ready(pg_store *s, fg_problem *p) {
     s->prepared = false;
     if (PQstatus(s->conn) != CONNECTION_OK)
       return pg_fault(s, p, "connection lost and not re-established", NULL);
+    set_session(s);
   }
   if (!s->prepared && !prepare_all(s, p)) return p ? p->status : FG_EIO;
   return FG_OK;
@@ -511,7 +536,11 @@ static fg_status pg_open(const char *url, void **out, fg_problem *p) {
   }
   for (int i = 0; i < 16; i++)
     snprintf(s->instance + 2 * i, 3, "%02x", rnd[i]);
-  s->conn = PQconnectdb(url);
+  /* keywords before "dbname" are defaults the URL may override */
+  const char *const keys[] = {"connect_timeout", "application_name", "dbname",
+                              NULL};
+  const char *const vals[] = {FG_PG_CONNECT_TIMEOUT_S, "feasgate", url, NULL};
+  s->conn = PQconnectdbParams(keys, vals, 1);
   if (PQstatus(s->conn) != CONNECTION_OK) {
     /* the URL may carry a password: name the server's reason, not the URL */
     char why[512];
@@ -527,8 +556,7 @@ static fg_status pg_open(const char *url, void **out, fg_problem *p) {
     pg_close(s);
     return st;
   }
-  /* quieter logs: notices (e.g. "relation exists, skipping") are not ours */
-  command(s, "SET client_min_messages = warning", NULL, NULL);
+  set_session(s);
   fg_status st = setup_schema(s, p);
   if (st == FG_OK && !prepare_all(s, p)) st = p->status ? p->status : FG_EIO;
   if (st != FG_OK) {
