@@ -11,11 +11,12 @@
  *   whole of every public call (libpq connections are not to be shared
  *   between threads at once). Every statement is prepared once per
  *   connection (the table `stmt_sql`, names "fgN"); no SQL text is built at
- *   run time, and values always travel as parameters. Every write runs
- *   inside BEGIN ... COMMIT (ROLLBACK on any failure). When the connection
- *   is found broken at the start of a call it is reset once and the
- *   statements prepared again; a call that fails on a broken connection
- *   reports FG_EIO and the next call tries again.
+ *   run time, and values always travel as parameters. A write of several
+ *   statements runs inside BEGIN ... COMMIT (ROLLBACK on any failure); a
+ *   write of one statement is its own transaction (autocommit). When the
+ *   connection is found broken at the start of a call it is reset once and
+ *   the statements prepared again; a call that fails on a broken
+ *   connection reports FG_EIO and the next call tries again.
  *
  *   The schema is made when missing, under a transaction-scoped advisory
  *   lock so that replicas starting together do not race on it;
@@ -757,14 +758,13 @@ static fg_status pg_list_models(void *b, fg_store_version **out, int *n,
 static fg_status write_alone(pg_store *s, int id, const params *q,
                              const char *what, const char *missing,
                              const char *key, fg_problem *p) {
-  fg_status res = begin(s, what, p);
-  if (res != FG_OK) return res;
+  /* One statement is its own transaction in PostgreSQL (autocommit): all
+   * of it or none, without a BEGIN and a COMMIT round trip. */
   long n = write_stmt(s, id, q, what, p);
-  if (n < 0)
-    res = p->status;
-  else if (missing && n == 0)
-    res = fg_problem_set(p, FG_ENOTFOUND, missing, key);
-  return finish_tx(s, res, what, p);
+  if (n < 0) return p->status;
+  if (missing && n == 0)
+    return fg_problem_set(p, FG_ENOTFOUND, missing, key);
+  return FG_OK;
 }
 
 static fg_status pg_retire_model(void *b, const char *name, fg_problem *p) {

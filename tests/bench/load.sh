@@ -17,6 +17,7 @@
 #
 #   tests/bench/load.sh [path/to/feasgate]     (default: build/feasgate)
 #   LOAD_SECONDS=10 LOAD_CONNECTIONS=8 tests/bench/load.sh
+#   LOAD_STORE='postgresql:///db?host=/tmp/pg' tests/bench/load.sh
 set -euo pipefail
 
 ROOT="$(cd "$(dirname "$0")/../.." && pwd)"
@@ -48,7 +49,10 @@ cleanup() {
 }
 trap cleanup EXIT
 
-"$BIN" serve --listen 127.0.0.1:0 --store "sqlite:$tmp/load.db" \
+# LOAD_STORE: another store URL (e.g. a PostgreSQL database); the default
+# is a fresh SQLite file.
+STORE="${LOAD_STORE:-sqlite:$tmp/load.db}"
+"$BIN" serve --listen 127.0.0.1:0 --store "$STORE" \
   --workers "$WORKERS" --log-level warn 2>"$tmp/daemon.log" &
 pid=$!
 addr=""
