@@ -455,6 +455,37 @@ void fg_h_check_cancel(fg_req *r, fg_resp *out) {
     fg_resp_problem(out, &p, 0); /* 404 for an unknown id */
     return;
   }
+  if (res == FG_REGISTRY_NOT_HELD && strcmp(c.status, "running") == 0 &&
+      fg_store_shared(r->srv->store)) {
+    /* Running in another replica: ask it through the store, and wait for
+     * the record to end. */
+    fg_problem_init(&p);
+    if (fg_store_request_cancel(r->srv->store, id, &p) != FG_OK) {
+      fg_store_check_clear(&c);
+      fg_resp_problem(out, &p, 0);
+      return;
+    }
+    double until = fg_time_monotonic() + FG_HTTP_CANCEL_WAIT_S;
+    while (strcmp(c.status, "running") == 0 && fg_time_monotonic() < until) {
+      struct timespec ts = {0, 50 * 1000 * 1000};
+      nanosleep(&ts, NULL);
+      fg_store_check_clear(&c);
+      fg_problem_init(&p);
+      if (fg_store_get_check(r->srv->store, id, &c, &p) != FG_OK) {
+        fg_resp_problem(out, &p, 0);
+        return;
+      }
+    }
+    if (strcmp(c.status, "running") == 0) {
+      fg_store_check_clear(&c);
+      fg_resp_error(out, 503, FG_EBUSY,
+                    "check %s runs in another replica, which was asked to "
+                    "stop it but has not within %g s; GET it shortly",
+                    id, FG_HTTP_CANCEL_WAIT_S);
+      return;
+    }
+    res = FG_REGISTRY_CANCELLED;
+  }
   if (res != FG_REGISTRY_CANCELLED || strcmp(c.status, "cancelled") != 0) {
     /* Ended before the cancel reached it (or not running here at all). */
     if (strcmp(c.status, "running") == 0)

@@ -34,7 +34,9 @@
  * Shared stores (PostgreSQL, several replicas): every
  * FG_REGISTRY_PROGRESS_MS the watcher also writes the live bodies of the
  * running checks to the store (fg_store_note_progress), so a replica that
- * does not run a check answers GET for it with progress at most that old.
+ * does not run a check answers GET for it with progress at most that old,
+ * and the watcher cancels the checks another replica was asked to cancel
+ * (fg_store_cancel_requests).
  *
  * Shutdown (fg_registry_shutdown, main thread): wait up to grace_s for held
  * checks to end, cancel the rest, wait up to FG_REGISTRY_CANCEL_WAIT_S for
@@ -170,7 +172,24 @@ static void note_progress(fg_registry *g) {
                  ids[i], p.detail);
     cJSON_free(bodies[i]);
   }
+  /* cancels asked for through other replicas */
+  fg_problem p;
+  fg_problem_init(&p);
+  int nask = 0;
+  if (n > 0 &&
+      fg_store_cancel_requests(g->store, ids, FG_REGISTRY_PROGRESS_MAX, &nask,
+                               &p) != FG_OK)
+    fg_log_msg(FG_LOG_WARN, "store_error", "reading cancel requests: %s",
+               p.detail);
   pthread_mutex_lock(&g->lock);
+  for (int i = 0; i < nask; i++) {
+    fg_held *e = find_id(g, ids[i]);
+    if (e && !e->recording) {
+      fg_check_cancel(e->check);
+      fg_log_msg(FG_LOG_INFO, "check_cancel_asked",
+                 "check %s cancelled at another replica's request", ids[i]);
+    }
+  }
 }
 
 static void *watch(void *arg) {

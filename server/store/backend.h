@@ -36,6 +36,10 @@ typedef struct fg_store_ops {
                          fg_problem *p);
   fg_status (*note_progress)(void *b, const char *id, const char *body,
                              fg_problem *p);
+  /* shared stores only (NULL otherwise) */
+  fg_status (*request_cancel)(void *b, const char *id, fg_problem *p);
+  fg_status (*cancel_requests)(void *b, char (*ids)[40], int cap, int *n,
+                               fg_problem *p);
   fg_status (*list_checks)(void *b, const fg_check_filter *f,
                            fg_store_check **out, int *n, char next[40],
                            fg_problem *p);

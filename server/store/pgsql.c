@@ -36,7 +36,10 @@
  *   FG_PG_HEARTBEAT_MS (the database's clock, so replicas' clocks do not
  *   matter) and every FG_PG_SWEEP_MS marks `interrupted` the running checks
  *   whose owner's heartbeat is older than FG_PG_STALE_S (a replica that
- *   died or lost the database). Every check records its owner. A daemon
+ *   died or lost the database). Every check records its owner. A cancel
+ *   asked through another replica sets the check's `cancel_requested`;
+ *   the owner reads its requests every second (fg_store_cancel_requests)
+ *   and cancels. A daemon
  *   that stops cleanly removes its instance row. Tools that only open the
  *   store (`feasgate keys`) are no instance.
  *
@@ -121,6 +124,7 @@ static const char *const schema_sql =
     "  lower DOUBLE PRECISION,"
     "  upper DOUBLE PRECISION,"
     "  owner TEXT NOT NULL DEFAULT '',"
+    "  cancel_requested BOOLEAN NOT NULL DEFAULT false,"
     "  FOREIGN KEY (model, version) REFERENCES versions(name, version));"
     "CREATE INDEX IF NOT EXISTS checks_by_time ON checks(created_at, id);"
     "CREATE INDEX IF NOT EXISTS checks_by_model ON checks(model, created_at);"
@@ -151,6 +155,9 @@ enum stmt_id {
   ST_CHECK_FINISH,
   ST_CHECK_GET,
   ST_CHECK_PROGRESS,
+  ST_CANCEL_ASK,
+  ST_CANCEL_STATUS,
+  ST_CANCEL_ASKED,
   ST_CHECK_CURSOR,
   ST_CHECKS_LIST,
   ST_MARK_STALE,
@@ -217,6 +224,14 @@ static const struct {
     [ST_CHECK_PROGRESS] = {"UPDATE checks SET result = $2 WHERE id = $1"
                            " AND status = 'running'",
                            2},
+    [ST_CANCEL_ASK] = {"UPDATE checks SET cancel_requested = true WHERE id ="
+                       " $1 AND status = 'running'",
+                       1},
+    [ST_CANCEL_STATUS] = {"SELECT status FROM checks WHERE id = $1", 1},
+    [ST_CANCEL_ASKED] = {"SELECT id FROM checks WHERE owner = $1 AND"
+                         " cancel_requested AND status = 'running'"
+                         " ORDER BY id LIMIT $2::int",
+                         2},
     [ST_CHECK_CURSOR] = {"SELECT created_at FROM checks WHERE id = $1", 1},
     [ST_CHECKS_LIST] = {"SELECT " CHECK_COLUMNS " FROM checks"
                         " WHERE ($1::text IS NULL OR model = $1)"
@@ -886,6 +901,50 @@ static fg_status pg_note_progress(void *b, const char *id, const char *body,
                               "noting progress of check", NULL, id, p));
 }
 
+static fg_status pg_request_cancel(void *b, const char *id, fg_problem *p) {
+  pg_store *s = b;
+  fg_status res = enter(s, p);
+  if (res != FG_OK) return res;
+  params q = {0};
+  par_text(&q, id);
+  long n = write_stmt(s, ST_CANCEL_ASK, &q, "asking for a cancel", p);
+  if (n < 0) return leave(s, p->status);
+  if (n == 0) {
+    PGresult *r = run(s, ST_CANCEL_STATUS, &q);
+    if (PQresultStatus(r) != PGRES_TUPLES_OK)
+      res = pg_fault(s, p, "reading a check's status", r);
+    else if (PQntuples(r) == 0)
+      res = fg_problem_set(p, FG_ENOTFOUND, "no check with id '%s'", id);
+    else
+      res = fg_problem_set(p, FG_ECONFLICT,
+                           "check %s is not running: it ended %s", id,
+                           PQgetvalue(r, 0, 0));
+    PQclear(r);
+  }
+  return leave(s, res);
+}
+
+static fg_status pg_cancel_requests(void *b, char (*ids)[40], int cap, int *n,
+                                    fg_problem *p) {
+  pg_store *s = b;
+  *n = 0;
+  if (!s->upkeep_started) return FG_OK; /* no instance, no checks of ours */
+  fg_status res = enter(s, p);
+  if (res != FG_OK) return res;
+  params q = {0};
+  par_text(&q, s->instance);
+  par_int(&q, cap);
+  PGresult *r = run(s, ST_CANCEL_ASKED, &q);
+  if (PQresultStatus(r) != PGRES_TUPLES_OK) {
+    res = pg_fault(s, p, "reading cancel requests", r);
+  } else {
+    for (int i = 0; i < PQntuples(r) && *n < cap; i++)
+      copy_cell(ids[(*n)++], 40, r, i, 0);
+  }
+  PQclear(r);
+  return leave(s, res);
+}
+
 static fg_status pg_list_checks(void *b, const fg_check_filter *f,
                                 fg_store_check **out, int *n, char next[40],
                                 fg_problem *p) {
@@ -1185,6 +1244,8 @@ const fg_store_ops fg_store_pgsql_ops = {
     .finish_check = pg_finish_check,
     .get_check = pg_get_check,
     .note_progress = pg_note_progress,
+    .request_cancel = pg_request_cancel,
+    .cancel_requests = pg_cancel_requests,
     .list_checks = pg_list_checks,
     .mark_interrupted = pg_mark_interrupted,
     .inject_write_fault = pg_inject_write_fault,

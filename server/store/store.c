@@ -151,6 +151,21 @@ bool fg_store_shared(const fg_store *s) {
   return s->ops->shared;
 }
 
+fg_status fg_store_request_cancel(fg_store *s, const char *id, fg_problem *p) {
+  if (!s->ops->request_cancel)
+    return fg_problem_set(p, FG_EUNSUPPORTED,
+                          "store: the %s store has no other replicas to ask",
+                          s->ops->scheme);
+  return s->ops->request_cancel(s->impl, id, p);
+}
+
+fg_status fg_store_cancel_requests(fg_store *s, char (*ids)[40], int cap,
+                                   int *n, fg_problem *p) {
+  *n = 0;
+  if (!s->ops->cancel_requests) return FG_OK;
+  return s->ops->cancel_requests(s->impl, ids, cap, n, p);
+}
+
 fg_status fg_store_list_checks(fg_store *s, const fg_check_filter *f,
                                fg_store_check **out, int *n, char next[40],
                                fg_problem *p) {

@@ -119,6 +119,15 @@ fg_status fg_store_note_progress(fg_store *s, const char *id, const char *body,
 /* true when other processes may serve the same store at once
  * (PostgreSQL); they then need fg_store_note_progress. */
 bool fg_store_shared(const fg_store *s);
+/* Shared stores: ask the replica running check `id` to cancel it (it looks
+ * every second, fg_store_cancel_requests). FG_ENOTFOUND for an unknown
+ * id, FG_ECONFLICT when the check is not running; FG_EUNSUPPORTED on a
+ * store that is not shared. */
+fg_status fg_store_request_cancel(fg_store *s, const char *id, fg_problem *p);
+/* Shared stores: ids of this daemon's running checks whose cancel another
+ * replica asked for (at most `cap`, into ids[i][40]); *n how many. */
+fg_status fg_store_cancel_requests(fg_store *s, char (*ids)[40], int cap,
+                                   int *n, fg_problem *p);
 
 typedef struct fg_check_filter {
   const char *model;   /* NULL = any */

@@ -8,7 +8,8 @@ other and appears in its log; registering the same document through the
 other is the same version (idempotent across replicas); the same request
 gives the same counts on either. A key added to the shared store with
 `feasgate keys add` is required by both within seconds. While one replica
-runs a detached check,
+runs a detached check, DELETE through the other cancels it (asked
+through the store, picked up by the owner within a second), and
 the other reports its progress (noted in the store every second). A
 detached check left running when its replica is killed (SIGKILL) is
 marked interrupted by the surviving replica's sweep within the stale window
@@ -128,6 +129,28 @@ def main():
         R.check(both, "both replicas require the new key")
         R.check(all(d.request("GET", "/v1/models", headers=H)[0] == 200
                     for d in (a, b)), "both replicas accept it")
+
+        # a check running on A, cancelled through B
+        long = {"decision": {"cap": 75}, "samples": 900000000, "seed": 6,
+                "wait_s": 0, "stop_early": False}
+        st, _, run1 = a.request("POST", "/v1/models/shared-line/checks", long,
+                                headers=H)
+        cid1 = run1.get("id") if isinstance(run1, dict) else None
+        R.check(st == 202, "another long check answered 202 on A: %s" % st)
+        t1 = time.time()
+        st, _, gone = b.request("DELETE", "/v1/checks/%s" % cid1, headers=H)
+        R.check(st == 200 and isinstance(gone, dict)
+                and gone.get("status") == "cancelled",
+                "DELETE through B cancels A's check: %s %s after %.1f s"
+                % (st, gone.get("status") if isinstance(gone, dict) else gone,
+                   time.time() - t1))
+        st, _, seen1 = a.request("GET", "/v1/checks/%s" % cid1, headers=H)
+        R.check(st == 200 and seen1.get("status") == "cancelled"
+                and 0 < seen1.get("joint", {}).get("samples", 0) < 900000000,
+                "A reports it cancelled with its partial counts: %s %s"
+                % (st, seen1.get("status") if isinstance(seen1, dict) else seen1))
+        st, _, again = b.request("DELETE", "/v1/checks/%s" % cid1, headers=H)
+        R.check(st == 409, "a second DELETE: 409 (it ended): %s" % st)
 
         # a long detached check on A; A dies; B marks it interrupted
         big = {"decision": {"cap": 75}, "samples": 900000000, "seed": 5,

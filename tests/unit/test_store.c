@@ -21,7 +21,7 @@
  * then what only a shared store has: two stores (two replicas) registering
  * one name at once count versions without a gap or duplicate; a replica's
  * running check is left alone while it beats and marked interrupted once
- * it is gone; a connection the server dropped is re-established. Without
+ * it is gone; a cancel asked through one reaches the other's requests; a connection the server dropped is re-established. Without
  * those variables the PostgreSQL part is reported as not run.
  */
 #include "check.h"
@@ -645,6 +645,25 @@ static void test_migration(void) {
   fg_store_close(s);
 }
 
+/* A store that is not shared has nobody to ask for a cancel. */
+static void test_sqlite_not_shared(void) {
+  fg_store *s = NULL;
+  fg_problem p;
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_open(url, &s, &p), FG_OK);
+  if (!s) return;
+  CHECK(!fg_store_shared(s));
+  CHECK_STR(fg_store_scheme(s), "sqlite");
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_request_cancel(s, "chk_x", &p), FG_EUNSUPPORTED);
+  char ids[2][40];
+  int n = -1;
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_cancel_requests(s, ids, 2, &n, &p), FG_OK);
+  CHECK_INT(n, 0);
+  fg_store_close(s);
+}
+
 static void test_bad_urls(void) {
   fg_store *s = NULL;
   fg_problem p;
@@ -786,6 +805,25 @@ static void test_pg_replicas(void) {
   CHECK_INT(fg_store_get_check(b, c.id, &g, &p), FG_OK);
   CHECK_STR(g.status, "running");
   fg_store_check_clear(&g);
+  /* a cancel asked through b reaches a's list of requests; unknown and
+   * ended checks are refused */
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_request_cancel(b, c.id, &p), FG_OK);
+  char asked[4][40];
+  int nasked = -1;
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_cancel_requests(a, asked, 4, &nasked, &p), FG_OK);
+  CHECK_INT(nasked, 1);
+  if (nasked == 1) CHECK_STR(asked[0], c.id);
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_cancel_requests(b, asked, 4, &nasked, &p), FG_OK);
+  CHECK_INT(nasked, 0); /* not b's check */
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_request_cancel(b, "chk_no_such_check", &p), FG_ENOTFOUND);
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_request_cancel(b, "chk_00000000000000000000000002", &p),
+            FG_ECONFLICT);
+  CHECK(strstr(p.detail, "not running") != NULL);
   /* a is gone: b's next sweep marks its check */
   fg_store_close(a);
   fg_problem_init(&p);
@@ -866,6 +904,7 @@ int main(void) {
   if (!run_sections(url)) return fg_test_finish() ? 1 : 1;
   test_reopen();
   test_migration();
+  test_sqlite_not_shared();
   test_bad_urls();
   test_pg();
 
