@@ -87,6 +87,10 @@
 #define FG_PG_STATEMENT_TIMEOUT_MS 30000
 #define FG_PG_LOCK_TIMEOUT_MS 10000
 #define FG_PG_CONNECT_TIMEOUT_S "10"
+/* After a failed reconnection, calls fail at once for this long instead of
+ * each trying again (and waiting out the connect time-out) under the
+ * store's mutex. */
+#define FG_PG_RETRY_MS 1000
 /* The advisory lock key held while creating the schema ("fgst"). */
 #define FG_PG_SCHEMA_LOCK 0x66677374
 
@@ -287,6 +291,8 @@ typedef struct pg_store {
   pthread_t upkeep;
   bool upkeep_started, stopping;
   pthread_cond_t stop_cv;
+  struct timespec reset_failed; /* last failed reconnection (monotonic) */
+  bool reset_failed_set;
 } pg_store;
 
 /* ---- parameters ---- */
@@ -392,12 +398,27 @@ static void set_session(pg_store *s) {
 }
 
 /* A usable connection with the statements prepared, or FG_EIO. */
+static double since_s(const struct timespec *t) {
+  struct timespec now;
+  clock_gettime(CLOCK_MONOTONIC, &now);
+  return (double)(now.tv_sec - t->tv_sec) + (now.tv_nsec - t->tv_nsec) * 1e-9;
+}
+
 static fg_status ready(pg_store *s, fg_problem *p) {
   if (PQstatus(s->conn) != CONNECTION_OK) {
+    if (s->reset_failed_set && since_s(&s->reset_failed) < FG_PG_RETRY_MS / 1000.0)
+      return fg_problem_set(p, FG_EIO,
+                            "store postgresql: connection lost; trying again "
+                            "at most every %d ms",
+                            FG_PG_RETRY_MS);
     PQreset(s->conn);
     s->prepared = false;
-    if (PQstatus(s->conn) != CONNECTION_OK)
+    if (PQstatus(s->conn) != CONNECTION_OK) {
+      clock_gettime(CLOCK_MONOTONIC, &s->reset_failed);
+      s->reset_failed_set = true;
       return pg_fault(s, p, "connection lost and not re-established", NULL);
+    }
+    s->reset_failed_set = false;
     set_session(s);
   }
   if (!s->prepared && !prepare_all(s, p)) return p ? p->status : FG_EIO;
