@@ -742,9 +742,6 @@ static fg_status pg_get_version(void *b, const char *name, int version,
                                 fg_store_version *out, fg_problem *p) {
   pg_store *s = b;
   memset(out, 0, sizeof *out);
-  if (version < 0)
-    return fg_problem_set(p, FG_ENOTFOUND, "model '%s' has no version %d", name,
-                          version);
   fg_status res = enter(s, p);
   if (res != FG_OK) return res;
   return leave(s, get_version_locked(s, name, version, out, p));
@@ -836,9 +833,6 @@ static void read_check_row(const PGresult *r, int row, fg_store_check *out) {
 
 static fg_status pg_put_check(void *b, const fg_store_check *c, fg_problem *p) {
   pg_store *s = b;
-  if (c->seed > (uint64_t)INT64_MAX)
-    return fg_problem_set(p, FG_EINVAL, "store: seed %llu out of range",
-                          (unsigned long long)c->seed);
   fg_status res = enter(s, p);
   if (res != FG_OK) return res;
   params q = {0};

@@ -587,9 +587,6 @@ static fg_status sq_get_version(void *b, const char *name, int version,
                                 fg_store_version *out, fg_problem *p) {
   sq_store *s = b;
   memset(out, 0, sizeof *out);
-  if (version < 0)
-    return fg_problem_set(p, FG_ENOTFOUND, "model '%s' has no version %d", name,
-                          version);
   pthread_mutex_lock(&s->lock);
   fg_status res = get_version_locked(s, name, version, out, p);
   pthread_mutex_unlock(&s->lock);
@@ -703,9 +700,6 @@ static fg_status write_one(sq_store *s, sqlite3_stmt *st, const char *what,
 
 static fg_status sq_put_check(void *b, const fg_store_check *c, fg_problem *p) {
   sq_store *s = b;
-  if (c->seed > (uint64_t)INT64_MAX)
-    return fg_problem_set(p, FG_EINVAL, "store: seed %llu out of range",
-                          (unsigned long long)c->seed);
   pthread_mutex_lock(&s->lock);
   sqlite3_stmt *st = s->stmt[ST_CHECK_INSERT];
   bind_text(st, 1, c->id);

@@ -11,6 +11,7 @@
 #include "store/backend.h"
 
 #include <math.h>
+#include <stdint.h>
 #include <stdlib.h>
 #include <string.h>
 #include <time.h>
@@ -115,6 +116,11 @@ fg_status fg_store_put_version(fg_store *s, const char *name,
 
 fg_status fg_store_get_version(fg_store *s, const char *name, int version,
                                fg_store_version *out, fg_problem *p) {
+  if (version < 0) {
+    memset(out, 0, sizeof *out);
+    return fg_problem_set(p, FG_ENOTFOUND, "model '%s' has no version %d", name,
+                          version);
+  }
   return s->ops->get_version(s->impl, name, version, out, p);
 }
 
@@ -129,6 +135,10 @@ fg_status fg_store_retire_model(fg_store *s, const char *name, fg_problem *p) {
 
 fg_status fg_store_put_check(fg_store *s, const fg_store_check *c,
                              fg_problem *p) {
+  /* both backends keep seeds as signed 64-bit integers */
+  if (c->seed > (uint64_t)INT64_MAX)
+    return fg_problem_set(p, FG_EINVAL, "store: seed %llu out of range",
+                          (unsigned long long)c->seed);
   return s->ops->put_check(s->impl, c, p);
 }
 
