@@ -104,7 +104,10 @@ static inline int bucket_flat(double x) {
  * where GCC's target_clones can), then the counts, the touched range and
  * min / max in a second loop. Integer results and min / max do not depend
  * on the build. */
-#if defined(__x86_64__) && defined(__GNUC__) && !defined(__clang__)
+/* (not under ThreadSanitizer: the loader runs the clone resolver before
+ * its runtime is set up) */
+#if defined(__x86_64__) && defined(__GNUC__) && !defined(__clang__) && \
+    !defined(__SANITIZE_THREAD__)
 __attribute__((target_clones("avx2", "default")))
 #endif
 void fg_hist_add_many(fg_hist *h, const double *x, int m) {

@@ -179,7 +179,10 @@ static void pair_counts(const uint64_t *m, uint64_t *both, uint64_t *one) {
 /* Built twice where GCC can (target_clones), for processors with the
  * POPCNT instruction and for the baseline, which counts bits through a
  * library call; the integer results are the same. */
-#if defined(__x86_64__) && defined(__GNUC__) && !defined(__clang__)
+/* (not under ThreadSanitizer: the loader runs the clone resolver before
+ * its runtime is set up) */
+#if defined(__x86_64__) && defined(__GNUC__) && !defined(__clang__) && \
+    !defined(__SANITIZE_THREAD__)
 __attribute__((target_clones("popcnt", "default")))
 #endif
 void fg_tally_block(fg_tally *t, const double *const *excess, int n,

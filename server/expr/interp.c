@@ -36,7 +36,10 @@
  * multiply-adds (-ffp-contract=off; AVX2 alone has no FMA anyway), so both
  * builds give the same bits. (GCC only: clang's resolver does not
  * link in this static-library layout.) */
-#if defined(__x86_64__) && defined(__GNUC__) && !defined(__clang__)
+/* (not under ThreadSanitizer: the loader runs the clone resolver before
+ * its runtime is set up) */
+#if defined(__x86_64__) && defined(__GNUC__) && !defined(__clang__) && \
+    !defined(__SANITIZE_THREAD__)
 #define FG_INTERP_CLONES __attribute__((target_clones("avx2", "default")))
 #else
 #define FG_INTERP_CLONES

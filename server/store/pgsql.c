@@ -7,15 +7,17 @@
  * through any, and the check log is one log.
  *
  * Design
- *   One libpq connection per fg_store, guarded by a mutex held for the
- *   whole of every public call (libpq connections are not to be shared
- *   between threads at once). Every statement is prepared once per
+ *   A pool of up to FG_PG_POOL libpq connections per fg_store: a call takes
+ *   a free one for its whole duration (libpq connections are not to be
+ *   shared between threads at once), waiting when all are in use, and
+ *   gives it back; connections open when first needed. Every statement is prepared once per
  *   connection (the table `stmt_sql`, names "fgN"); no SQL text is built at
  *   run time, and values always travel as parameters. A write of several
  *   statements runs inside BEGIN ... COMMIT (ROLLBACK on any failure); a
  *   write of one statement is its own transaction (autocommit). When the
  *   connection is found broken at the start of a call it is reset once and
- *   the statements prepared again; a call that fails on a broken
+ *   the statements prepared again (after a failed reset, calls on it fail
+ *   at once for FG_PG_RETRY_MS); a call that fails on a broken
  *   connection reports FG_EIO and the next call tries again.
  *
  *   The schema is made when missing, under a transaction-scoped advisory
@@ -52,8 +54,9 @@
  * Test seam: as in the SQLite backend, fg_store_inject_write_fault makes
  * the n-th data write from then on fail inside its transaction.
  *
- * Thread use: any thread (the mutex above); the upkeep thread takes the
- * same mutex for each beat.
+ * Thread use: any thread (the pool above; the store's lock guards only
+ * the pool's flags, the fault seam and the upkeep flags); the upkeep
+ * thread takes a connection from the pool for each beat.
  */
 #include "store/backend.h"
 
@@ -79,6 +82,10 @@
 #define FG_PG_STALE_S 10
 /* Instance rows older than this are removed by the sweep. */
 #define FG_PG_INSTANCE_KEEP_S 86400
+/* Connections per daemon: calls from several request threads run at once
+ * up to this many; the rest wait for one to be given back. Opened when
+ * first needed. */
+#define FG_PG_POOL 4
 /* Longest store URL kept (libpq reads the URL itself). */
 #define FG_PG_URL_MAX 4096
 /* How long one statement, one wait for a row lock, and one connection
@@ -280,10 +287,23 @@ static const struct {
                        2},
 };
 
-typedef struct pg_store {
-  pthread_mutex_t lock; /* held for the whole of every public call */
-  PGconn *conn;
+typedef struct pg_store pg_store;
+
+/* One connection of the pool. `busy` (under the store's lock) says a call
+ * has it; everything else is that call's alone meanwhile. */
+typedef struct pg_conn {
+  pg_store *store;
+  PGconn *conn;  /* NULL until first needed */
   bool prepared; /* the statements exist on this connection */
+  bool busy;
+  struct timespec reset_failed; /* last failed (re)connection (monotonic) */
+  bool reset_failed_set;
+} pg_conn;
+
+struct pg_store {
+  pthread_mutex_t lock; /* the pool's busy flags and the fields below */
+  pthread_cond_t free_cv; /* a connection was given back */
+  pg_conn pool[FG_PG_POOL];
   char url[FG_PG_URL_MAX];
   int fail_countdown; /* test seam: > 0 = writes until an injected fault */
   char instance[33];  /* random hex id of this process's instance */
@@ -291,9 +311,7 @@ typedef struct pg_store {
   pthread_t upkeep;
   bool upkeep_started, stopping;
   pthread_cond_t stop_cv;
-  struct timespec reset_failed; /* last failed reconnection (monotonic) */
-  bool reset_failed_set;
-} pg_store;
+};
 
 /* ---- parameters ---- */
 
@@ -343,7 +361,7 @@ static void par_bytes(params *q, const uint8_t *b, int n) {
 
 /* ---- errors ---- */
 
-static fg_status pg_fault(pg_store *s, fg_problem *p, const char *what,
+static fg_status pg_fault(pg_conn *s, fg_problem *p, const char *what,
                           const PGresult *r) {
   const char *state = r ? PQresultErrorField(r, PG_DIAG_SQLSTATE) : NULL;
   fg_status st = FG_EIO;
@@ -368,7 +386,7 @@ static fg_status pg_fault(pg_store *s, fg_problem *p, const char *what,
 
 /* ---- connection and statements ---- */
 
-static bool prepare_all(pg_store *s, fg_problem *p) {
+static bool prepare_all(pg_conn *s, fg_problem *p) {
   for (int i = 0; i < ST_COUNT; i++) {
     char name[16];
     snprintf(name, sizeof name, "fg%d", i);
@@ -383,12 +401,12 @@ static bool prepare_all(pg_store *s, fg_problem *p) {
   return true;
 }
 
-static bool command(pg_store *s, const char *sql, const char *what,
+static bool command(pg_conn *s, const char *sql, const char *what,
                     fg_problem *p);
 
 /* Settings of every (re)made session: quieter notices ("relation exists,
  * skipping" is not ours to log) and the time limits above. */
-static void set_session(pg_store *s) {
+static void set_session(pg_conn *s) {
   char sql[160];
   snprintf(sql, sizeof sql,
            "SET client_min_messages = warning; SET statement_timeout = %d;"
@@ -404,16 +422,31 @@ static double since_s(const struct timespec *t) {
   return (double)(now.tv_sec - t->tv_sec) + (now.tv_nsec - t->tv_nsec) * 1e-9;
 }
 
-static fg_status ready(pg_store *s, fg_problem *p) {
-  if (PQstatus(s->conn) != CONNECTION_OK) {
-    if (s->reset_failed_set && since_s(&s->reset_failed) < FG_PG_RETRY_MS / 1000.0)
+/* Opens the connection of slot `s` (keywords before "dbname" are defaults
+ * the URL may override). */
+static void open_conn(pg_conn *s) {
+  const char *const keys[] = {"connect_timeout", "application_name", "dbname",
+                              NULL};
+  const char *const vals[] = {FG_PG_CONNECT_TIMEOUT_S, "feasgate", s->store->url,
+                              NULL};
+  s->conn = PQconnectdbParams(keys, vals, 1);
+  s->prepared = false;
+}
+
+static fg_status ready(pg_conn *s, fg_problem *p) {
+  if (!s->conn || PQstatus(s->conn) != CONNECTION_OK) {
+    if (s->reset_failed_set &&
+        since_s(&s->reset_failed) < FG_PG_RETRY_MS / 1000.0)
       return fg_problem_set(p, FG_EIO,
                             "store postgresql: connection lost; trying again "
                             "at most every %d ms",
                             FG_PG_RETRY_MS);
-    PQreset(s->conn);
+    if (s->conn)
+      PQreset(s->conn);
+    else
+      open_conn(s);
     s->prepared = false;
-    if (PQstatus(s->conn) != CONNECTION_OK) {
+    if (!s->conn || PQstatus(s->conn) != CONNECTION_OK) {
       clock_gettime(CLOCK_MONOTONIC, &s->reset_failed);
       s->reset_failed_set = true;
       return pg_fault(s, p, "connection lost and not re-established", NULL);
@@ -425,7 +458,7 @@ static fg_status ready(pg_store *s, fg_problem *p) {
   return FG_OK;
 }
 
-static PGresult *run(pg_store *s, int id, const params *q) {
+static PGresult *run(pg_conn *s, int id, const params *q) {
   char name[16];
   snprintf(name, sizeof name, "fg%d", id);
   return PQexecPrepared(s->conn, name, q ? q->n : 0, q ? q->v : NULL,
@@ -433,7 +466,7 @@ static PGresult *run(pg_store *s, int id, const params *q) {
 }
 
 /* A plain command (BEGIN, COMMIT, ROLLBACK, DDL). */
-static bool command(pg_store *s, const char *sql, const char *what,
+static bool command(pg_conn *s, const char *sql, const char *what,
                     fg_problem *p) {
   PGresult *r = PQexec(s->conn, sql);
   bool ok = PQresultStatus(r) == PGRES_COMMAND_OK ||
@@ -443,16 +476,19 @@ static bool command(pg_store *s, const char *sql, const char *what,
   return ok;
 }
 
-static void rollback(pg_store *s) {
+static void rollback(pg_conn *s) {
   if (PQtransactionStatus(s->conn) != PQTRANS_IDLE)
     command(s, "ROLLBACK", NULL, NULL);
 }
 
 /* A data write inside the open transaction; NULL result with *fault set
  * when the test seam strikes. Returns rows changed, or -1 with *p set. */
-static long write_stmt(pg_store *s, int id, const params *q, const char *what,
+static long write_stmt(pg_conn *s, int id, const params *q, const char *what,
                        fg_problem *p) {
-  if (s->fail_countdown > 0 && --s->fail_countdown == 0) {
+  pthread_mutex_lock(&s->store->lock);
+  bool strike = s->store->fail_countdown > 0 && --s->store->fail_countdown == 0;
+  pthread_mutex_unlock(&s->store->lock);
+  if (strike) {
     fg_problem_set(p, FG_EIO, "store %s: injected write fault", what);
     return -1;
   }
@@ -468,7 +504,7 @@ static long write_stmt(pg_store *s, int id, const params *q, const char *what,
 }
 
 /* COMMIT when res is FG_OK, else ROLLBACK; the outcome of the write. */
-static fg_status finish_tx(pg_store *s, fg_status res, const char *what,
+static fg_status finish_tx(pg_conn *s, fg_status res, const char *what,
                            fg_problem *p) {
   if (res == FG_OK && !command(s, "COMMIT", what, p))
     res = p ? p->status : FG_EIO;
@@ -476,20 +512,53 @@ static fg_status finish_tx(pg_store *s, fg_status res, const char *what,
   return res;
 }
 
-/* Takes the lock and makes the connection ready; on failure releases it. */
-static fg_status enter(pg_store *s, fg_problem *p) {
-  pthread_mutex_lock(&s->lock);
-  fg_status st = ready(s, p);
-  if (st != FG_OK) pthread_mutex_unlock(&s->lock);
-  return st;
+/* Takes a connection of the pool (waiting while all are in use), ready
+ * for statements; on failure gives it back. */
+static fg_status enter(pg_store *st, pg_conn **out, fg_problem *p) {
+  *out = NULL;
+  pthread_mutex_lock(&st->lock);
+  pg_conn *c;
+  for (;;) {
+    c = NULL;
+    for (int i = 0; i < FG_PG_POOL; i++) {
+      pg_conn *k = &st->pool[i];
+      if (k->busy) continue;
+      if (k->conn) { /* an open one first */
+        c = k;
+        break;
+      }
+      if (!c) c = k;
+    }
+    if (c) break;
+    pthread_cond_wait(&st->free_cv, &st->lock);
+  }
+  c->busy = true;
+  pthread_mutex_unlock(&st->lock);
+  fg_status res = ready(c, p);
+  if (res != FG_OK) {
+    pthread_mutex_lock(&st->lock);
+    c->busy = false;
+    pthread_cond_signal(&st->free_cv);
+    pthread_mutex_unlock(&st->lock);
+    return res;
+  }
+  *out = c;
+  return FG_OK;
 }
 
-static fg_status leave(pg_store *s, fg_status res) {
-  pthread_mutex_unlock(&s->lock);
+/* Gives the connection back and passes `res` on. The argument is evaluated
+ * first, so a problem quoting the connection's message is written while
+ * the connection is still this call's. */
+static fg_status leave(pg_conn *c, fg_status res) {
+  pg_store *st = c->store;
+  pthread_mutex_lock(&st->lock);
+  c->busy = false;
+  pthread_cond_signal(&st->free_cv);
+  pthread_mutex_unlock(&st->lock);
   return res;
 }
 
-static fg_status begin(pg_store *s, const char *what, fg_problem *p) {
+static fg_status begin(pg_conn *s, const char *what, fg_problem *p) {
   return command(s, "BEGIN", what, p) ? FG_OK : (p ? p->status : FG_EIO);
 }
 
@@ -517,7 +586,7 @@ static long long int_cell(const PGresult *r, int row, int col) {
 
 /* ---- open / close ---- */
 
-static fg_status setup_schema(pg_store *s, fg_problem *p) {
+static fg_status setup_schema(pg_conn *s, fg_problem *p) {
   char sql[160];
   if (!command(s, "BEGIN", "creating the schema", p)) return p->status;
   snprintf(sql, sizeof sql, "SELECT pg_advisory_xact_lock(%d)",
@@ -565,6 +634,8 @@ static fg_status pg_open(const char *url, void **out, fg_problem *p) {
   if (!s) return fg_problem_set(p, FG_ENOMEM, "store: out of memory");
   pthread_mutex_init(&s->lock, NULL);
   pthread_cond_init(&s->stop_cv, NULL);
+  pthread_cond_init(&s->free_cv, NULL);
+  for (int i = 0; i < FG_PG_POOL; i++) s->pool[i].store = s;
   snprintf(s->url, sizeof s->url, "%s", url);
   uint8_t rnd[16];
   if (getrandom(rnd, sizeof rnd, 0) != (ssize_t)sizeof rnd) {
@@ -573,29 +644,26 @@ static fg_status pg_open(const char *url, void **out, fg_problem *p) {
   }
   for (int i = 0; i < 16; i++)
     snprintf(s->instance + 2 * i, 3, "%02x", rnd[i]);
-  /* keywords before "dbname" are defaults the URL may override */
-  const char *const keys[] = {"connect_timeout", "application_name", "dbname",
-                              NULL};
-  const char *const vals[] = {FG_PG_CONNECT_TIMEOUT_S, "feasgate", url, NULL};
-  s->conn = PQconnectdbParams(keys, vals, 1);
-  if (PQstatus(s->conn) != CONNECTION_OK) {
+  /* the first connection now: it checks the URL and makes the schema
+   * (before any statement that names its tables is prepared) */
+  pg_conn *c = &s->pool[0];
+  open_conn(c);
+  if (PQstatus(c->conn) != CONNECTION_OK) {
     /* the URL may carry a password: name the server's reason, not the URL */
     char why[512];
-    snprintf(why, sizeof why, "%s", PQerrorMessage(s->conn));
-    for (char *c = why; *c; c++) /* libpq's message spans lines */
-      if (*c == '\n' || *c == '\t') *c = ' ';
+    snprintf(why, sizeof why, "%s", PQerrorMessage(c->conn));
+    for (char *k = why; *k; k++) /* libpq's message spans lines */
+      if (*k == '\n' || *k == '\t') *k = ' ';
     for (size_t n = strlen(why); n > 0 && why[n - 1] == ' '; n--)
       why[n - 1] = '\0';
     fg_status st = fg_problem_set(p, FG_EIO,
-                                  "store postgresql: cannot "
-                                  "connect: %s",
-                                  why);
+                                  "store postgresql: cannot connect: %s", why);
     pg_close(s);
     return st;
   }
-  set_session(s);
-  fg_status st = setup_schema(s, p);
-  if (st == FG_OK && !prepare_all(s, p)) st = p->status ? p->status : FG_EIO;
+  set_session(c);
+  fg_status st = setup_schema(c, p);
+  if (st == FG_OK && !prepare_all(c, p)) st = p->status ? p->status : FG_EIO;
   if (st != FG_OK) {
     pg_close(s);
     return st;
@@ -614,26 +682,31 @@ static void pg_close(void *b) {
     pthread_mutex_unlock(&s->lock);
     pthread_join(s->upkeep, NULL);
     /* a clean stop: this instance's row goes (its checks have ended) */
-    if (ready(s, NULL) == FG_OK) {
+    pg_conn *c = NULL;
+    if (enter(s, &c, NULL) == FG_OK) {
       params q = {0};
       par_text(&q, s->instance);
-      PQclear(run(s, ST_INSTANCE_END, &q));
+      PQclear(run(c, ST_INSTANCE_END, &q));
+      leave(c, FG_OK);
     }
   }
-  if (s->conn) PQfinish(s->conn);
+  for (int i = 0; i < FG_PG_POOL; i++)
+    if (s->pool[i].conn) PQfinish(s->pool[i].conn);
+  pthread_cond_destroy(&s->free_cv);
   pthread_cond_destroy(&s->stop_cv);
   pthread_mutex_destroy(&s->lock);
   free(s);
 }
 
 static fg_status pg_ping(void *b, fg_problem *p) {
-  pg_store *s = b;
-  fg_status st = enter(s, p);
-  if (st != FG_OK) return st;
+  pg_store *st = b;
+  pg_conn *s = NULL;
+  fg_status res = enter(st, &s, p);
+  if (res != FG_OK) return res;
   PGresult *r = run(s, ST_PING, NULL);
-  if (PQresultStatus(r) != PGRES_TUPLES_OK) st = pg_fault(s, p, "ping", r);
+  if (PQresultStatus(r) != PGRES_TUPLES_OK) res = pg_fault(s, p, "ping", r);
   PQclear(r);
-  return leave(s, st);
+  return leave(s, res);
 }
 
 /* ---- versions ---- */
@@ -655,7 +728,7 @@ static bool read_version_row(const PGresult *r, int row, fg_store_version *out,
   return true;
 }
 
-static fg_status get_version_locked(pg_store *s, const char *name, int version,
+static fg_status get_version_locked(pg_conn *s, const char *name, int version,
                                     fg_store_version *out, fg_problem *p) {
   params q = {0};
   par_text(&q, name);
@@ -682,12 +755,13 @@ static fg_status pg_put_version(void *b, const char *name, const char *digest,
                                 const char *canonical, const char *title,
                                 fg_store_version *out, bool *created,
                                 fg_problem *p) {
-  pg_store *s = b;
+  pg_store *st = b;
+  pg_conn *s = NULL;
   memset(out, 0, sizeof *out);
   *created = false;
   char now[32];
   fg_store_now_rfc3339(now);
-  fg_status res = enter(s, p);
+  fg_status res = enter(st, &s, p);
   if (res != FG_OK) return res;
   res = begin(s, "begin (register model)", p);
   if (res != FG_OK) return leave(s, res);
@@ -740,19 +814,21 @@ end:
 
 static fg_status pg_get_version(void *b, const char *name, int version,
                                 fg_store_version *out, fg_problem *p) {
-  pg_store *s = b;
+  pg_store *st = b;
+  pg_conn *s = NULL;
   memset(out, 0, sizeof *out);
-  fg_status res = enter(s, p);
+  fg_status res = enter(st, &s, p);
   if (res != FG_OK) return res;
   return leave(s, get_version_locked(s, name, version, out, p));
 }
 
 static fg_status pg_list_models(void *b, fg_store_version **out, int *n,
                                 fg_problem *p) {
-  pg_store *s = b;
+  pg_store *st = b;
+  pg_conn *s = NULL;
   *out = NULL;
   *n = 0;
-  fg_status res = enter(s, p);
+  fg_status res = enter(st, &s, p);
   if (res != FG_OK) return res;
   PGresult *r = run(s, ST_MODELS_LIST, NULL);
   if (PQresultStatus(r) != PGRES_TUPLES_OK) {
@@ -788,7 +864,7 @@ static fg_status pg_list_models(void *b, fg_store_version **out, int *n,
 
 /* One write statement in its own transaction. must_change: no row changed
  * is FG_ENOTFOUND with `missing` as the message (its %s the id). */
-static fg_status write_alone(pg_store *s, int id, const params *q,
+static fg_status write_alone(pg_conn *s, int id, const params *q,
                              const char *what, const char *missing,
                              const char *key, fg_problem *p) {
   /* One statement is its own transaction in PostgreSQL (autocommit): all
@@ -801,8 +877,9 @@ static fg_status write_alone(pg_store *s, int id, const params *q,
 }
 
 static fg_status pg_retire_model(void *b, const char *name, fg_problem *p) {
-  pg_store *s = b;
-  fg_status res = enter(s, p);
+  pg_store *st = b;
+  pg_conn *s = NULL;
+  fg_status res = enter(st, &s, p);
   if (res != FG_OK) return res;
   params q = {0};
   par_text(&q, name);
@@ -832,8 +909,9 @@ static void read_check_row(const PGresult *r, int row, fg_store_check *out) {
 }
 
 static fg_status pg_put_check(void *b, const fg_store_check *c, fg_problem *p) {
-  pg_store *s = b;
-  fg_status res = enter(s, p);
+  pg_store *st = b;
+  pg_conn *s = NULL;
+  fg_status res = enter(st, &s, p);
   if (res != FG_OK) return res;
   params q = {0};
   par_text(&q, c->id);
@@ -853,15 +931,16 @@ static fg_status pg_put_check(void *b, const fg_store_check *c, fg_problem *p) {
   par_real(&q, c->upper);
   par_text(&q, c->request ? c->request : "{}");
   par_text(&q, c->result);
-  par_text(&q, s->upkeep_started ? s->instance : "");
+  par_text(&q, s->store->upkeep_started ? s->store->instance : "");
   res = write_alone(s, ST_CHECK_INSERT, &q, "recording check", NULL, c->id, p);
   return leave(s, res);
 }
 
 static fg_status pg_finish_check(void *b, const fg_store_check *c,
                                  fg_problem *p) {
-  pg_store *s = b;
-  fg_status res = enter(s, p);
+  pg_store *st = b;
+  pg_conn *s = NULL;
+  fg_status res = enter(st, &s, p);
   if (res != FG_OK) return res;
   params q = {0};
   par_text(&q, c->id);
@@ -880,9 +959,10 @@ static fg_status pg_finish_check(void *b, const fg_store_check *c,
 
 static fg_status pg_get_check(void *b, const char *id, fg_store_check *out,
                               fg_problem *p) {
-  pg_store *s = b;
+  pg_store *st = b;
+  pg_conn *s = NULL;
   memset(out, 0, sizeof *out);
-  fg_status res = enter(s, p);
+  fg_status res = enter(st, &s, p);
   if (res != FG_OK) return res;
   params q = {0};
   par_text(&q, id);
@@ -906,8 +986,9 @@ static fg_status pg_get_check(void *b, const char *id, fg_store_check *out,
 
 static fg_status pg_note_progress(void *b, const char *id, const char *body,
                                   fg_problem *p) {
-  pg_store *s = b;
-  fg_status res = enter(s, p);
+  pg_store *st = b;
+  pg_conn *s = NULL;
+  fg_status res = enter(st, &s, p);
   if (res != FG_OK) return res;
   params q = {0};
   par_text(&q, id);
@@ -917,8 +998,9 @@ static fg_status pg_note_progress(void *b, const char *id, const char *body,
 }
 
 static fg_status pg_request_cancel(void *b, const char *id, fg_problem *p) {
-  pg_store *s = b;
-  fg_status res = enter(s, p);
+  pg_store *st = b;
+  pg_conn *s = NULL;
+  fg_status res = enter(st, &s, p);
   if (res != FG_OK) return res;
   params q = {0};
   par_text(&q, id);
@@ -941,13 +1023,14 @@ static fg_status pg_request_cancel(void *b, const char *id, fg_problem *p) {
 
 static fg_status pg_cancel_requests(void *b, char (*ids)[40], int cap, int *n,
                                     fg_problem *p) {
-  pg_store *s = b;
+  pg_store *st = b;
+  pg_conn *s = NULL;
   *n = 0;
-  if (!s->upkeep_started) return FG_OK; /* no instance, no checks of ours */
-  fg_status res = enter(s, p);
+  if (!st->upkeep_started) return FG_OK; /* no instance, no checks of ours */
+  fg_status res = enter(st, &s, p);
   if (res != FG_OK) return res;
   params q = {0};
-  par_text(&q, s->instance);
+  par_text(&q, s->store->instance);
   par_int(&q, cap);
   PGresult *r = run(s, ST_CANCEL_ASKED, &q);
   if (PQresultStatus(r) != PGRES_TUPLES_OK) {
@@ -963,13 +1046,14 @@ static fg_status pg_cancel_requests(void *b, char (*ids)[40], int cap, int *n,
 static fg_status pg_list_checks(void *b, const fg_check_filter *f,
                                 fg_store_check **out, int *n, char next[40],
                                 fg_problem *p) {
-  pg_store *s = b;
+  pg_store *st = b;
+  pg_conn *s = NULL;
   *out = NULL;
   *n = 0;
   next[0] = '\0';
   int limit = f->limit > 0 ? f->limit : FG_LIST_LIMIT_DEFAULT;
   if (limit > FG_LIST_LIMIT_MAX) limit = FG_LIST_LIMIT_MAX;
-  fg_status res = enter(s, p);
+  fg_status res = enter(st, &s, p);
   if (res != FG_OK) return res;
   char cursor_time[32] = "";
   if (f->after && f->after[0]) {
@@ -1027,14 +1111,14 @@ static fg_status pg_list_checks(void *b, const fg_check_filter *f,
 /* ---- instances: heartbeat and sweep ---- */
 
 /* Marks checks of silent owners interrupted; under the lock. */
-static fg_status sweep_locked(pg_store *s, int *count, fg_problem *p) {
+static fg_status sweep_locked(pg_conn *s, int *count, fg_problem *p) {
   char now[32];
   fg_store_now_rfc3339(now);
   fg_status res = begin(s, "marking interrupted checks", p);
   if (res != FG_OK) return res;
   params q = {0};
   par_text(&q, now);
-  par_text(&q, s->instance);
+  par_text(&q, s->store->instance);
   par_int(&q, FG_PG_STALE_S);
   long n = write_stmt(s, ST_MARK_STALE, &q, "marking interrupted checks", p);
   if (n < 0) res = p->status;
@@ -1049,9 +1133,9 @@ static fg_status sweep_locked(pg_store *s, int *count, fg_problem *p) {
   return res;
 }
 
-static fg_status beat_locked(pg_store *s, fg_problem *p) {
+static fg_status beat_locked(pg_conn *s, fg_problem *p) {
   params q = {0};
-  par_text(&q, s->instance);
+  par_text(&q, s->store->instance);
   PGresult *r = run(s, ST_INSTANCE_BEAT, &q);
   fg_status res = PQresultStatus(r) == PGRES_COMMAND_OK
                       ? FG_OK
@@ -1078,34 +1162,41 @@ static void *upkeep_main(void *arg) {
     }
     if (s->stopping) break;
     /* Failures are retried at the next beat: a lost database shows in
-     * /v1/ready, and a long silence lets other replicas take over. */
+     * /v1/ready, and a long silence lets other replicas take over. The
+     * store's lock is not held while a connection is used. */
+    pthread_mutex_unlock(&s->lock);
     fg_problem p;
     fg_problem_init(&p);
-    if (ready(s, &p) != FG_OK) continue;
-    beat_locked(s, &p);
-    since_sweep += FG_PG_HEARTBEAT_MS;
-    if (since_sweep >= FG_PG_SWEEP_MS) {
-      since_sweep = 0;
-      fg_problem_init(&p);
-      sweep_locked(s, NULL, &p);
+    pg_conn *c = NULL;
+    if (enter(s, &c, &p) == FG_OK) {
+      beat_locked(c, &p);
+      since_sweep += FG_PG_HEARTBEAT_MS;
+      if (since_sweep >= FG_PG_SWEEP_MS) {
+        since_sweep = 0;
+        fg_problem_init(&p);
+        sweep_locked(c, NULL, &p);
+      }
+      leave(c, FG_OK);
     }
+    pthread_mutex_lock(&s->lock);
   }
   pthread_mutex_unlock(&s->lock);
   return NULL;
 }
 
 static fg_status pg_mark_interrupted(void *b, int *count, fg_problem *p) {
-  pg_store *s = b;
+  pg_store *st = b;
+  pg_conn *s = NULL;
   *count = 0;
-  fg_status res = enter(s, p);
+  fg_status res = enter(st, &s, p);
   if (res != FG_OK) return res;
-  if (!s->upkeep_started) {
+  if (!s->store->upkeep_started) {
     char now[32], host[256] = "";
     fg_store_now_rfc3339(now);
     if (gethostname(host, sizeof host - 1) != 0)
       snprintf(host, sizeof host, "?");
     params q = {0};
-    par_text(&q, s->instance);
+    par_text(&q, s->store->instance);
     par_text(&q, host);
     par_int(&q, (long long)getpid());
     par_text(&q, now);
@@ -1117,12 +1208,12 @@ static fg_status pg_mark_interrupted(void *b, int *count, fg_problem *p) {
     if (res != FG_OK) return leave(s, res);
   }
   res = sweep_locked(s, count, p);
-  if (res == FG_OK && !s->upkeep_started) {
-    if (pthread_create(&s->upkeep, NULL, upkeep_main, s) != 0)
+  if (res == FG_OK && !s->store->upkeep_started) {
+    if (pthread_create(&st->upkeep, NULL, upkeep_main, st) != 0)
       res =
           fg_problem_set(p, FG_EIO, "store: cannot start the heartbeat thread");
     else
-      s->upkeep_started = true;
+      s->store->upkeep_started = true;
   }
   return leave(s, res);
 }
@@ -1137,13 +1228,14 @@ static void pg_inject_write_fault(void *b, int nth) {
 /* ---- keys ---- */
 
 static fg_status pg_put_key(void *b, const fg_store_key *k, fg_problem *p) {
-  pg_store *s = b;
+  pg_store *st = b;
+  pg_conn *s = NULL;
   char now[32];
   if (k->created_at[0])
     snprintf(now, sizeof now, "%s", k->created_at);
   else
     fg_store_now_rfc3339(now);
-  fg_status res = enter(s, p);
+  fg_status res = enter(st, &s, p);
   if (res != FG_OK) return res;
   params q = {0};
   par_text(&q, k->name);
@@ -1174,10 +1266,11 @@ static bool copy_bytes(uint8_t *dst, size_t n, const PGresult *r, int row,
 
 static fg_status pg_list_keys(void *b, bool live_only, fg_store_key **out,
                               int *n, fg_problem *p) {
-  pg_store *s = b;
+  pg_store *st = b;
+  pg_conn *s = NULL;
   *out = NULL;
   *n = 0;
-  fg_status res = enter(s, p);
+  fg_status res = enter(st, &s, p);
   if (res != FG_OK) return res;
   params q = {0};
   par_int(&q, live_only ? 1 : 0);
@@ -1216,10 +1309,11 @@ static fg_status pg_list_keys(void *b, bool live_only, fg_store_key **out,
 }
 
 static fg_status pg_revoke_key(void *b, const char *name, fg_problem *p) {
-  pg_store *s = b;
+  pg_store *st = b;
+  pg_conn *s = NULL;
   char now[32];
   fg_store_now_rfc3339(now);
-  fg_status res = enter(s, p);
+  fg_status res = enter(st, &s, p);
   if (res != FG_OK) return res;
   res = begin(s, "begin (revoke key)", p);
   if (res != FG_OK) return leave(s, res);
