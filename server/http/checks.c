@@ -164,7 +164,14 @@ static cJSON *check_summary(const fg_store_check *c) {
 fg_status fg_http_record_end(fg_store *store, fg_check *c,
                              const fg_store_check *rec, cJSON **body,
                              fg_problem *p) {
+  return fg_http_record_end_keep(store, c, rec, body, NULL, p);
+}
+
+fg_status fg_http_record_end_keep(fg_store *store, fg_check *c,
+                                  const fg_store_check *rec, cJSON **body,
+                                  fg_store_check **unsaved, fg_problem *p) {
   if (body) *body = NULL;
+  if (unsaved) *unsaved = NULL;
   char finished[32];
   fg_time_now_rfc3339(finished, sizeof finished);
   fg_check_meta meta = {.id = rec->id,
@@ -197,6 +204,11 @@ fg_status fg_http_record_end(fg_store *store, fg_check *c,
   fin.result = res ? cJSON_PrintUnformatted(res) : NULL;
 
   fg_status st = fg_store_finish_check(store, &fin, p);
+  if (st != FG_OK && unsaved && fin.result &&
+      (*unsaved = malloc(sizeof **unsaved)) != NULL) {
+    **unsaved = fin; /* takes the result text */
+    fin.result = NULL;
+  }
   free(fin.result);
   fg_metrics_check_ended(fin.status, fin.verdict,
                          number_at(res, "joint", "samples", NULL),

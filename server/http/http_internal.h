@@ -150,6 +150,13 @@ void fg_http_check_id(char out[40]);
 fg_status fg_http_record_end(fg_store *store, fg_check *c,
                              const fg_store_check *rec, cJSON **body,
                              fg_problem *p);
+/* The same; when the store write fails and `unsaved` is not NULL,
+ * *unsaved receives a malloc'd copy of the final record (result text
+ * included, free with fg_store_check_clear + free) to write again later
+ * with fg_store_finish_check. */
+fg_status fg_http_record_end_keep(fg_store *store, fg_check *c,
+                                  const fg_store_check *rec, cJSON **body,
+                                  fg_store_check **unsaved, fg_problem *p);
 
 /* ---- record.c ---- */
 /* The steps of POST .../checks and .../comparisons before the body is

@@ -31,6 +31,12 @@
  * registry lock, then the engine's pool lock (fg_check_*), never the
  * reverse.
  *
+ * A failed store write of an end: the entry stays listed with its final
+ * record (`unsaved`), GET answers from it, and the watcher writes it again
+ * every FG_REGISTRY_RETRY_MS until the store takes it (a database outage
+ * loses no result while the process lives); at shutdown, what is still
+ * unsaved is logged.
+ *
  * Shared stores (PostgreSQL, several replicas): every
  * FG_REGISTRY_PROGRESS_MS the watcher also writes the live bodies of the
  * running checks to the store (fg_store_note_progress), so a replica that
@@ -64,6 +70,9 @@
  * bodies are written to the store so that another replica answers a GET
  * with progress at most this old. */
 #define FG_REGISTRY_PROGRESS_MS 1000
+/* How long after a failed store write of a check's end it is tried again
+ * (the check stays listed, so GET still answers with its final body). */
+#define FG_REGISTRY_RETRY_MS 1000
 /* Running checks whose progress one round writes, at most. */
 #define FG_REGISTRY_PROGRESS_MAX 64
 
@@ -73,6 +82,11 @@ typedef struct fg_held {
   fg_store_check rec; /* request and result are NULL */
   bool recording;
   bool waited; /* its handler records it; the watcher leaves it alone */
+  /* its end, when writing it to the store failed: written again every
+   * FG_REGISTRY_RETRY_MS until the store takes it */
+  fg_store_check *unsaved;
+  double retry_at; /* monotonic seconds */
+  int attempts;
 } fg_held;
 
 struct fg_registry {
@@ -102,8 +116,29 @@ static void deadline_in(struct timespec *ts, double seconds) {
 /* An ended entry not yet being recorded, or NULL. Called under lock. */
 static fg_held *find_ended(fg_registry *g) {
   for (fg_held *e = g->head; e; e = e->next)
-    if (!e->recording && !e->waited && fg_check_wait(e->check, 0)) return e;
+    if (!e->recording && !e->waited && !e->unsaved &&
+        fg_check_wait(e->check, 0))
+      return e;
   return NULL;
+}
+
+static double now_s(void);
+
+/* An entry whose unsaved end is due for another try, or NULL. */
+static fg_held *find_due(fg_registry *g) {
+  double now = now_s();
+  for (fg_held *e = g->head; e; e = e->next)
+    if (e->unsaved && !e->recording && now >= e->retry_at) return e;
+  return NULL;
+}
+
+static void free_entry(fg_held *e) {
+  if (e->unsaved) {
+    fg_store_check_clear(e->unsaved);
+    free(e->unsaved);
+  }
+  fg_check_unref(e->check);
+  free(e);
 }
 
 static void unlink_entry(fg_registry *g, fg_held *target) {
@@ -134,6 +169,8 @@ static double now_s(void) {
 
 /* A running entry's live body (as GET gives it). Called under lock. */
 static cJSON *live_body(const fg_held *e) {
+  if (e->unsaved && e->unsaved->result) /* its final body, as it will be stored */
+    return cJSON_Parse(e->unsaved->result);
   char ended_at[32] = "";
   /* Ended but not yet recorded: the body is final, so it carries an end
    * time (the record's may be later by the poll interval at most). */
@@ -203,6 +240,30 @@ static void *watch(void *arg) {
       last_note = now_s();
       continue;
     }
+    fg_held *due = find_due(g);
+    if (due) {
+      due->recording = true;
+      pthread_mutex_unlock(&g->lock);
+      fg_problem p;
+      fg_problem_init(&p);
+      fg_status st = fg_store_finish_check(g->store, due->unsaved, &p);
+      pthread_mutex_lock(&g->lock);
+      due->recording = false;
+      due->attempts++;
+      if (st == FG_OK) {
+        fg_log_msg(FG_LOG_INFO, "recorded_late",
+                   "check %s recorded after %d more attempt(s)", due->rec.id,
+                   due->attempts);
+        unlink_entry(g, due);
+        pthread_cond_broadcast(&g->changed);
+        pthread_mutex_unlock(&g->lock);
+        free_entry(due);
+        pthread_mutex_lock(&g->lock);
+      } else {
+        due->retry_at = now_s() + FG_REGISTRY_RETRY_MS / 1000.0;
+      }
+      continue;
+    }
     fg_held *e = find_ended(g);
     if (!e) {
       struct timespec ts;
@@ -214,15 +275,24 @@ static void *watch(void *arg) {
     pthread_mutex_unlock(&g->lock);
     fg_problem p;
     fg_problem_init(&p);
-    if (fg_http_record_end(g->store, e->check, &e->rec, NULL, &p) != FG_OK)
-      fg_log_msg(FG_LOG_ERROR, "store_error", "recording check %s: %s",
-                 e->rec.id, p.detail);
+    fg_store_check *unsaved = NULL;
+    fg_status st =
+        fg_http_record_end_keep(g->store, e->check, &e->rec, NULL, &unsaved, &p);
+    if (st != FG_OK)
+      fg_log_msg(FG_LOG_ERROR, "store_error",
+                 "recording check %s: %s%s", e->rec.id, p.detail,
+                 unsaved ? "; trying again every second" : "");
     pthread_mutex_lock(&g->lock);
+    e->recording = false;
+    if (st != FG_OK && unsaved) { /* stays listed until the store takes it */
+      e->unsaved = unsaved;
+      e->retry_at = now_s() + FG_REGISTRY_RETRY_MS / 1000.0;
+      continue;
+    }
     unlink_entry(g, e);
     pthread_cond_broadcast(&g->changed);
     pthread_mutex_unlock(&g->lock);
-    fg_check_unref(e->check);
-    free(e);
+    free_entry(e);
     pthread_mutex_lock(&g->lock);
   }
   pthread_mutex_unlock(&g->lock);
@@ -404,8 +474,13 @@ void fg_registry_free(fg_registry *g) {
   fg_held *e = g->head;
   while (e) {
     fg_held *next = e->next;
-    fg_check_unref(e->check);
-    free(e);
+    if (e->unsaved)
+      fg_log_msg(FG_LOG_ERROR, "unrecorded",
+                 "the end of check %s (%s) never reached the store; its "
+                 "record stays as it was (running checks are marked "
+                 "interrupted at the next start)",
+                 e->rec.id, e->unsaved->status);
+    free_entry(e);
     e = next;
   }
   pthread_cond_destroy(&g->wake);

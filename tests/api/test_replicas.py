@@ -15,8 +15,10 @@ detached check left running when its replica is killed (SIGKILL) is
 marked interrupted by the surviving replica's sweep within the stale window
 plus a sweep period (store/pgsql.c: 10 s + 5 s), and the survivor stays
 ready throughout. When the database refuses the survivor, GET /v1/ready is
-503 naming the store; once it accepts again the replica reconnects by
-itself and is ready. Every answer is checked against its schema.
+503 naming the store, and a check that ends meanwhile is answered from
+memory; once the database accepts again the replica reconnects by itself,
+is ready, and records that check (written again every second until the
+store takes it). Every answer is checked against its schema.
 
 Needs FG_TEST_PG_HOST, FG_TEST_PG_PORT, FG_TEST_PG_USER (tests/pg/cluster.sh;
 deploy/test starts a server); without them it exits 77, which ctest reports
@@ -185,10 +187,24 @@ def main():
         st, _, rd = b.request("GET", "/v1/ready")
         R.check(st == 200, "B stays ready: %s" % st)
 
-        # the database refuses B: /v1/ready says so (503); then it is back
+        # the database refuses B: /v1/ready says so (503); a check that
+        # ends meanwhile is answered from memory and recorded once the
+        # database is back (http/registry.c writes it again every second)
+        mid = {"decision": {"cap": 75}, "samples": 40000000, "seed": 8,
+               "wait_s": 0, "stop_early": False}
+        st, _, run2 = b.request("POST", "/v1/models/shared-line/checks", mid,
+                                headers=H)
+        cid2 = run2.get("id") if isinstance(run2, dict) else None
+        R.check(st == 202, "a check of a few seconds on B: %s" % st)
         psql("ALTER DATABASE %s ALLOW_CONNECTIONS false" % db)
         psql("SELECT pg_terminate_backend(pid) FROM pg_stat_activity WHERE "
              "datname = '%s'" % db)
+
+        def ended_in_memory():
+            s2, _, c2 = b.request("GET", "/v1/checks/%s" % cid2, headers=H)
+            return s2 == 200 and c2.get("status") == "done"
+        R.check(wait_until(ended_in_memory, 60),
+                "B answers the check done while the database is away")
         st, hd, rd = b.request("GET", "/v1/ready")
         R.check(st == 503 and isinstance(rd, dict)
                 and "store" in rd.get("detail", ""),
@@ -201,6 +217,23 @@ def main():
                 "B ready again once the database accepts it")
         st, _, _ = b.request("GET", "/v1/checks/%s" % cid, headers=H)
         R.check(st == 200, "and serves the log again: %s" % st)
+
+        def recorded():
+            out = subprocess.run(
+                ["psql", "-At", "-h", os.environ["FG_TEST_PG_HOST"], "-p",
+                 os.environ["FG_TEST_PG_PORT"], "-U",
+                 os.environ["FG_TEST_PG_USER"], "-d", db, "-c",
+                 "SELECT status FROM checks WHERE id = '%s'" % cid2],
+                capture_output=True, text=True)
+            return out.stdout.strip() == "done"
+        R.check(wait_until(recorded, 20),
+                "the check that ended during the outage is recorded done")
+        st, _, c2 = b.request("GET", "/v1/checks/%s" % cid2, headers=H)
+        R.check(st == 200 and c2.get("status") == "done"
+                and c2.get("joint", {}).get("samples") == 40000000,
+                "and read back from the store with all its samples: %s" % st)
+        R.check(any('"event":"recorded_late"' in l for l in b.lines),
+                "B's log says it was recorded late")
         code = b.stop()
         R.check(code == 0, "B stops cleanly: %s" % code)
     finally:
