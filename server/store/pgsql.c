@@ -1110,8 +1110,9 @@ static fg_status pg_list_checks(void *b, const fg_check_filter *f,
 
 /* ---- instances: heartbeat and sweep ---- */
 
-/* Marks checks of silent owners interrupted; under the lock. */
-static fg_status sweep_locked(pg_conn *s, int *count, fg_problem *p) {
+/* Marks checks of silent owners interrupted, on a connection the caller
+ * holds. */
+static fg_status sweep_stale(pg_conn *s, int *count, fg_problem *p) {
   char now[32];
   fg_store_now_rfc3339(now);
   fg_status res = begin(s, "marking interrupted checks", p);
@@ -1133,7 +1134,7 @@ static fg_status sweep_locked(pg_conn *s, int *count, fg_problem *p) {
   return res;
 }
 
-static fg_status beat_locked(pg_conn *s, fg_problem *p) {
+static fg_status beat_once(pg_conn *s, fg_problem *p) {
   params q = {0};
   par_text(&q, s->store->instance);
   PGresult *r = run(s, ST_INSTANCE_BEAT, &q);
@@ -1169,12 +1170,12 @@ static void *upkeep_main(void *arg) {
     fg_problem_init(&p);
     pg_conn *c = NULL;
     if (enter(s, &c, &p) == FG_OK) {
-      beat_locked(c, &p);
+      beat_once(c, &p);
       since_sweep += FG_PG_HEARTBEAT_MS;
       if (since_sweep >= FG_PG_SWEEP_MS) {
         since_sweep = 0;
         fg_problem_init(&p);
-        sweep_locked(c, NULL, &p);
+        sweep_stale(c, NULL, &p);
       }
       leave(c, FG_OK);
     }
@@ -1207,7 +1208,7 @@ static fg_status pg_mark_interrupted(void *b, int *count, fg_problem *p) {
     res = finish_tx(s, res, "registering this instance", p);
     if (res != FG_OK) return leave(s, res);
   }
-  res = sweep_locked(s, count, p);
+  res = sweep_stale(s, count, p);
   if (res == FG_OK && !s->store->upkeep_started) {
     if (pthread_create(&st->upkeep, NULL, upkeep_main, st) != 0)
       res =
