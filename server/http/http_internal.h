@@ -220,6 +220,8 @@ fg_registry_cancel_result fg_registry_cancel(fg_registry *g, const char *id,
 /* The live result body of check `id`, or NULL when not held here. */
 cJSON *fg_registry_live_json(fg_registry *g, const char *id);
 int fg_registry_count(fg_registry *g);
+/* Ended checks whose end the store has not taken yet (retried). */
+int fg_registry_unsaved(fg_registry *g);
 /* Let held checks run up to grace_s, cancel the rest, record every one,
  * stop the watcher thread. */
 void fg_registry_shutdown(fg_registry *g, double grace_s);

@@ -9,7 +9,8 @@
  *   feasgate_samples_simulated_total                    counter
  *   feasgate_check_duration_seconds                     histogram
  *   feasgate_queue_depth, feasgate_workers_busy,
- *   feasgate_workers, feasgate_checks_detached          gauges (read live)
+ *   feasgate_workers, feasgate_checks_detached,
+ *   feasgate_checks_unrecorded, feasgate_store_info      gauges (read live)
  *   process_start_time_seconds                          gauge
  *
  * Design: one mutex guards every counter. A request takes it once to bump
@@ -296,6 +297,15 @@ char *fg_metrics_render(fg_server *srv, size_t *len) {
   head(&t, "feasgate_checks_detached", "gauge",
        "Checks still running after their request was answered (202).");
   put(&t, "feasgate_checks_detached %d\n", fg_registry_count(srv->registry));
+  head(&t, "feasgate_checks_unrecorded", "gauge",
+       "Ended checks whose end the store has not taken yet (written again "
+       "every second).");
+  put(&t, "feasgate_checks_unrecorded %d\n",
+      fg_registry_unsaved(srv->registry));
+  head(&t, "feasgate_store_info", "gauge",
+       "The store backend this daemon uses (value always 1).");
+  put(&t, "feasgate_store_info{backend=\"%s\"} 1\n",
+      fg_store_scheme(srv->store));
   head(&t, "process_start_time_seconds", "gauge",
        "Start time of the process since the Unix epoch in seconds.");
   put(&t, "process_start_time_seconds ");

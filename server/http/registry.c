@@ -422,6 +422,14 @@ cJSON *fg_registry_live_json(fg_registry *g, const char *id) {
   return body;
 }
 
+int fg_registry_unsaved(fg_registry *g) {
+  pthread_mutex_lock(&g->lock);
+  int n = 0;
+  for (fg_held *e = g->head; e; e = e->next) n += e->unsaved != NULL;
+  pthread_mutex_unlock(&g->lock);
+  return n;
+}
+
 int fg_registry_count(fg_registry *g) {
   pthread_mutex_lock(&g->lock);
   int n = g->count;

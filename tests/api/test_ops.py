@@ -180,6 +180,10 @@ def test_ready(res, tmp):
               "queue depth gauge 1 with one check on the pool")
     res.check(value(m, "feasgate_checks_detached") == 1,
               "one detached check")
+    res.check(value(m, "feasgate_checks_unrecorded") == 0,
+              "no check end waiting for the store")
+    res.check(value(m, "feasgate_store_info", backend="sqlite") == 1,
+              "the store backend: feasgate_store_info{backend=\"sqlite\"} 1")
     res.check(d.stop() == 0, "ready daemon: exit 0")
 
 

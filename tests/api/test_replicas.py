@@ -205,6 +205,15 @@ def main():
             return s2 == 200 and c2.get("status") == "done"
         R.check(wait_until(ended_in_memory, 60),
                 "B answers the check done while the database is away")
+
+        def unrecorded():
+            s2, _, raw = b.raw("GET", "/metrics")
+            for line in raw.decode().splitlines():
+                if line.startswith("feasgate_checks_unrecorded "):
+                    return int(line.split()[1])
+            return -1
+        R.check(wait_until(lambda: unrecorded() == 1, 10),
+                "B's /metrics counts it unrecorded: %d" % unrecorded())
         st, hd, rd = b.request("GET", "/v1/ready")
         R.check(st == 503 and isinstance(rd, dict)
                 and "store" in rd.get("detail", ""),
@@ -234,6 +243,10 @@ def main():
                 "and read back from the store with all its samples: %s" % st)
         R.check(any('"event":"recorded_late"' in l for l in b.lines),
                 "B's log says it was recorded late")
+        R.check(unrecorded() == 0, "and /metrics counts nothing unrecorded")
+        s2, _, raw = b.raw("GET", "/metrics")
+        R.check('feasgate_store_info{backend="postgresql"} 1' in raw.decode(),
+                "B's /metrics names its store backend")
         code = b.stop()
         R.check(code == 0, "B stops cleanly: %s" % code)
     finally:
