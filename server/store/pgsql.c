@@ -1231,11 +1231,7 @@ static void pg_inject_write_fault(void *b, int nth) {
 static fg_status pg_put_key(void *b, const fg_store_key *k, fg_problem *p) {
   pg_store *st = b;
   pg_conn *s = NULL;
-  char now[32];
-  if (k->created_at[0])
-    snprintf(now, sizeof now, "%s", k->created_at);
-  else
-    fg_store_now_rfc3339(now);
+  const char *now = k->created_at; /* store.c fills it when empty */
   fg_status res = enter(st, &s, p);
   if (res != FG_OK) return res;
   params q = {0};

@@ -873,11 +873,7 @@ static void sq_inject_write_fault(void *b, int nth) {
 
 static fg_status sq_put_key(void *b, const fg_store_key *k, fg_problem *p) {
   sq_store *s = b;
-  char now[32];
-  if (k->created_at[0])
-    snprintf(now, sizeof now, "%s", k->created_at);
-  else
-    fg_store_now_rfc3339(now);
+  const char *now = k->created_at; /* store.c fills it when empty */
   pthread_mutex_lock(&s->lock);
   int rc = tx_begin(s);
   if (rc != SQLITE_OK)

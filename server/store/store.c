@@ -191,7 +191,9 @@ void fg_store_inject_write_fault(fg_store *s, int nth) {
 }
 
 fg_status fg_store_put_key(fg_store *s, const fg_store_key *k, fg_problem *p) {
-  return s->ops->put_key(s->impl, k, p);
+  fg_store_key full = *k;
+  if (!full.created_at[0]) fg_store_now_rfc3339(full.created_at);
+  return s->ops->put_key(s->impl, &full, p);
 }
 
 fg_status fg_store_list_keys(fg_store *s, bool live_only, fg_store_key **out,
