@@ -40,9 +40,10 @@ typedef struct fg_store_ops {
   fg_status (*request_cancel)(void *b, const char *id, fg_problem *p);
   fg_status (*cancel_requests)(void *b, char (*ids)[40], int cap, int *n,
                                fg_problem *p);
+  /* f->limit is set (1 .. FG_LIST_LIMIT_MAX); up to f->limit + 1 rows in
+   * order, so store.c can tell whether more remain */
   fg_status (*list_checks)(void *b, const fg_check_filter *f,
-                           fg_store_check **out, int *n, char next[40],
-                           fg_problem *p);
+                           fg_store_check **out, int *n, fg_problem *p);
   fg_status (*mark_interrupted)(void *b, int *count, fg_problem *p);
   void (*inject_write_fault)(void *b, int nth);
   fg_status (*put_key)(void *b, const fg_store_key *k, fg_problem *p);

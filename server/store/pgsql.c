@@ -562,6 +562,19 @@ static fg_status begin(pg_conn *s, const char *what, fg_problem *p) {
   return command(s, "BEGIN", what, p) ? FG_OK : (p ? p->status : FG_EIO);
 }
 
+/* enter() and BEGIN together; on failure nothing is held. */
+static fg_status enter_tx(pg_store *st, pg_conn **out, const char *what,
+                          fg_problem *p) {
+  fg_status res = enter(st, out, p);
+  if (res != FG_OK) return res;
+  res = begin(*out, what, p);
+  if (res != FG_OK) {
+    leave(*out, res);
+    *out = NULL;
+  }
+  return res;
+}
+
 /* ---- text of result cells ---- */
 
 static void copy_cell(char *dst, size_t cap, const PGresult *r, int row,
@@ -761,10 +774,8 @@ static fg_status pg_put_version(void *b, const char *name, const char *digest,
   *created = false;
   char now[32];
   fg_store_now_rfc3339(now);
-  fg_status res = enter(st, &s, p);
+  fg_status res = enter_tx(st, &s, "begin (register model)", p);
   if (res != FG_OK) return res;
-  res = begin(s, "begin (register model)", p);
-  if (res != FG_OK) return leave(s, res);
   /* the upsert first: it locks the model row (and revives a retired name,
    * also when the document is the same as its latest version) */
   params q = {0};
@@ -1044,15 +1055,10 @@ static fg_status pg_cancel_requests(void *b, char (*ids)[40], int cap, int *n,
 }
 
 static fg_status pg_list_checks(void *b, const fg_check_filter *f,
-                                fg_store_check **out, int *n, char next[40],
-                                fg_problem *p) {
+                                fg_store_check **out, int *n, fg_problem *p) {
   pg_store *st = b;
   pg_conn *s = NULL;
-  *out = NULL;
-  *n = 0;
-  next[0] = '\0';
-  int limit = f->limit > 0 ? f->limit : FG_LIST_LIMIT_DEFAULT;
-  if (limit > FG_LIST_LIMIT_MAX) limit = FG_LIST_LIMIT_MAX;
+  const int limit = f->limit;
   fg_status res = enter(st, &s, p);
   if (res != FG_OK) return res;
   char cursor_time[32] = "";
@@ -1097,11 +1103,6 @@ static fg_status pg_list_checks(void *b, const fg_check_filter *f,
   if (res != FG_OK) {
     fg_store_checks_free(arr, count);
     return res;
-  }
-  if (count > limit) {
-    fg_store_check_clear(&arr[limit]);
-    count = limit;
-    snprintf(next, 40, "%s", arr[limit - 1].id);
   }
   *out = arr;
   *n = count;
@@ -1310,10 +1311,8 @@ static fg_status pg_revoke_key(void *b, const char *name, fg_problem *p) {
   pg_conn *s = NULL;
   char now[32];
   fg_store_now_rfc3339(now);
-  fg_status res = enter(st, &s, p);
+  fg_status res = enter_tx(st, &s, "begin (revoke key)", p);
   if (res != FG_OK) return res;
-  res = begin(s, "begin (revoke key)", p);
-  if (res != FG_OK) return leave(s, res);
   params q = {0};
   par_text(&q, name);
   par_text(&q, now);

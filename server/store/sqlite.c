@@ -318,6 +318,17 @@ static fg_status unlock_with(sq_store *s, fg_status res) {
   return res;
 }
 
+/* Takes the lock of a public call and opens its write transaction; on
+ * failure releases the lock again. `what` names the call in the problem. */
+static fg_status lock_tx(sq_store *s, const char *what, fg_problem *p) {
+  pthread_mutex_lock(&s->lock);
+  int rc = tx_begin(s);
+  if (rc == SQLITE_OK) return FG_OK;
+  char where[64];
+  snprintf(where, sizeof where, "begin (%s)", what);
+  return unlock_with(s, db_fault(s, p, where, rc));
+}
+
 /* mkdir -p of the folder holding `path`. */
 static int make_parents(const char *path) {
   char buf[FG_STORE_PATH_MAX];
@@ -525,11 +536,9 @@ static fg_status sq_put_version(void *b, const char *name, const char *digest,
   *created = false;
   char now[32];
   fg_store_now_rfc3339(now);
-  pthread_mutex_lock(&s->lock);
-  int rc = tx_begin(s);
-  if (rc != SQLITE_OK)
-    return unlock_with(s, db_fault(s, p, "begin (register model)", rc));
-  fg_status res = FG_OK;
+  fg_status res = lock_tx(s, "register model", p);
+  if (res != FG_OK) return res;
+  int rc;
   /* Latest version and its digest. */
   sqlite3_stmt *st = s->stmt[ST_LATEST];
   bind_text(st, 1, name);
@@ -637,14 +646,11 @@ static fg_status sq_list_models(void *b, fg_store_version **out, int *n,
 
 static fg_status sq_retire_model(void *b, const char *name, fg_problem *p) {
   sq_store *s = b;
-  pthread_mutex_lock(&s->lock);
-  fg_status res = FG_OK;
-  int rc = tx_begin(s);
-  if (rc != SQLITE_OK)
-    return unlock_with(s, db_fault(s, p, "begin (retire model)", rc));
+  fg_status res = lock_tx(s, "retire model", p);
+  if (res != FG_OK) return res;
   sqlite3_stmt *st = s->stmt[ST_RETIRE];
   bind_text(st, 1, name);
-  rc = write_step(s, st);
+  int rc = write_step(s, st);
   /* Rows matched, also when already retired: retiring twice is no error. */
   if (rc != SQLITE_OK)
     res = db_fault(s, p, "retiring a model", rc);
@@ -784,14 +790,9 @@ static fg_status sq_note_progress(void *b, const char *id, const char *body,
 }
 
 static fg_status sq_list_checks(void *b, const fg_check_filter *f,
-                                fg_store_check **out, int *n, char next[40],
-                                fg_problem *p) {
+                                fg_store_check **out, int *n, fg_problem *p) {
   sq_store *s = b;
-  *out = NULL;
-  *n = 0;
-  next[0] = '\0';
-  int limit = f->limit > 0 ? f->limit : FG_LIST_LIMIT_DEFAULT;
-  if (limit > FG_LIST_LIMIT_MAX) limit = FG_LIST_LIMIT_MAX;
+  const int limit = f->limit;
   fg_store_check *arr = calloc((size_t)limit + 1, sizeof *arr);
   if (!arr) return fg_problem_set(p, FG_ENOMEM, "store: out of memory");
 
@@ -832,11 +833,6 @@ static fg_status sq_list_checks(void *b, const fg_check_filter *f,
     fg_store_checks_free(arr, count);
     return res;
   }
-  if (count > limit) {
-    fg_store_check_clear(&arr[limit]);
-    count = limit;
-    snprintf(next, 40, "%s", arr[limit - 1].id);
-  }
   *out = arr;
   *n = count;
   return FG_OK;
@@ -874,14 +870,11 @@ static void sq_inject_write_fault(void *b, int nth) {
 static fg_status sq_put_key(void *b, const fg_store_key *k, fg_problem *p) {
   sq_store *s = b;
   const char *now = k->created_at; /* store.c fills it when empty */
-  pthread_mutex_lock(&s->lock);
-  int rc = tx_begin(s);
-  if (rc != SQLITE_OK)
-    return unlock_with(s, db_fault(s, p, "begin (add key)", rc));
-  fg_status res = FG_OK;
+  fg_status res = lock_tx(s, "add key", p);
+  if (res != FG_OK) return res;
   sqlite3_stmt *st = s->stmt[ST_KEY_EXISTS];
   bind_text(st, 1, k->name);
-  rc = sqlite3_step(st);
+  int rc = sqlite3_step(st);
   done_stmt(st);
   if (rc == SQLITE_ROW) {
     res = fg_problem_set(p, FG_ECONFLICT,
@@ -967,15 +960,12 @@ static fg_status sq_revoke_key(void *b, const char *name, fg_problem *p) {
   sq_store *s = b;
   char now[32];
   fg_store_now_rfc3339(now);
-  pthread_mutex_lock(&s->lock);
-  int rc = tx_begin(s);
-  if (rc != SQLITE_OK)
-    return unlock_with(s, db_fault(s, p, "begin (revoke key)", rc));
-  fg_status res = FG_OK;
+  fg_status res = lock_tx(s, "revoke key", p);
+  if (res != FG_OK) return res;
   sqlite3_stmt *st = s->stmt[ST_KEY_REVOKE];
   bind_text(st, 1, name);
   bind_text(st, 2, now);
-  rc = write_step(s, st);
+  int rc = write_step(s, st);
   if (rc != SQLITE_OK) {
     res = db_fault(s, p, "revoking a key", rc);
     goto end;

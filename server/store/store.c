@@ -12,6 +12,7 @@
 
 #include <math.h>
 #include <stdint.h>
+#include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 #include <time.h>
@@ -179,7 +180,25 @@ fg_status fg_store_cancel_requests(fg_store *s, char (*ids)[40], int cap,
 fg_status fg_store_list_checks(fg_store *s, const fg_check_filter *f,
                                fg_store_check **out, int *n, char next[40],
                                fg_problem *p) {
-  return s->ops->list_checks(s->impl, f, out, n, next, p);
+  *out = NULL;
+  *n = 0;
+  next[0] = '\0';
+  fg_check_filter g = *f;
+  if (g.limit <= 0) g.limit = FG_LIST_LIMIT_DEFAULT;
+  if (g.limit > FG_LIST_LIMIT_MAX) g.limit = FG_LIST_LIMIT_MAX;
+  fg_store_check *arr = NULL;
+  int count = 0;
+  fg_status st = s->ops->list_checks(s->impl, &g, &arr, &count, p);
+  if (st != FG_OK) return st;
+  /* the backend read one more than a page: it tells whether more remain */
+  if (count > g.limit) {
+    fg_store_check_clear(&arr[g.limit]);
+    count = g.limit;
+    snprintf(next, 40, "%s", arr[g.limit - 1].id);
+  }
+  *out = arr;
+  *n = count;
+  return FG_OK;
 }
 
 fg_status fg_store_mark_interrupted(fg_store *s, int *count, fg_problem *p) {
