@@ -67,6 +67,9 @@ typedef struct fg_model {
   int refs; /* atomic; use fg_model_ref / fg_model_unref */
 } fg_model;
 
+/* A model name: [a-z0-9][a-z0-9_.-]{0,63} (FG_NAME_MAX characters). */
+bool fg_model_is_model_name(const char *s);
+
 /* Parse, validate and compile. On success *out holds one reference. */
 fg_status fg_model_compile(const char *json, size_t len, fg_model **out,
                            fg_problem *p);

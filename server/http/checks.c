@@ -519,40 +519,7 @@ void fg_h_check_cancel(fg_req *r, fg_resp *out) {
 
 typedef struct list_query {
   const char *model, *verdict, *since, *label, *key, *limit, *after;
-  char unknown[64];
-  bool empty_name;
 } list_query;
-
-static enum MHD_Result collect_arg(void *cls, enum MHD_ValueKind kind,
-                                   const char *key, const char *value) {
-  list_query *q = cls;
-  const char **slot = NULL;
-  if (strcmp(key, "model") == 0)
-    slot = &q->model;
-  else if (strcmp(key, "verdict") == 0)
-    slot = &q->verdict;
-  else if (strcmp(key, "since") == 0)
-    slot = &q->since;
-  else if (strcmp(key, "label") == 0)
-    slot = &q->label;
-  else if (strcmp(key, "key") == 0)
-    slot = &q->key;
-  else if (strcmp(key, "limit") == 0)
-    slot = &q->limit;
-  else if (strcmp(key, "after") == 0)
-    slot = &q->after;
-  if (!slot) {
-    if (!q->unknown[0]) {
-      if (key[0])
-        snprintf(q->unknown, sizeof q->unknown, "%s", key);
-      else
-        q->empty_name = true;
-    }
-    return MHD_YES;
-  }
-  if (!*slot) *slot = value ? value : "";
-  return MHD_YES;
-}
 
 /* RFC 3339 date-time (or a plain date) -> "YYYY-MM-DDTHH:MM:SSZ" in UTC,
  * the form created_at is stored in. Fractions of a second are dropped. */
@@ -606,43 +573,23 @@ static bool normalise_time(const char *s, char out[32]) {
   return true;
 }
 
-static bool valid_model_name(const char *s) {
-  size_t n = strlen(s);
-  if (n == 0 || n > FG_NAME_MAX) return false;
-  for (size_t i = 0; i < n; i++) {
-    char ch = s[i];
-    bool ok = (ch >= 'a' && ch <= 'z') || (ch >= '0' && ch <= '9') ||
-              (i > 0 && (ch == '_' || ch == '.' || ch == '-'));
-    if (!ok) return false;
-  }
-  return true;
-}
-
-static void bad_param(fg_resp *out, const char *name, const char *fmt,
-                      const char *value) {
-  fg_problem p;
-  fg_problem_init(&p);
-  char msg[FG_MESSAGE_MAX];
-  snprintf(msg, sizeof msg, fmt, value);
-  fg_problem_set(&p, FG_EINVAL, "query parameter '%s': %s", name, msg);
-  fg_resp_problem(out, &p, 400);
-}
-
 void fg_h_checks_list(fg_req *r, fg_resp *out) {
   list_query q;
-  memset(&q, 0, sizeof q);
-  MHD_get_connection_values(r->conn, MHD_GET_ARGUMENT_KIND, collect_arg, &q);
-  if (q.unknown[0] || q.empty_name) {
-    bad_param(out, q.unknown[0] ? q.unknown : "",
-              "unknown parameter%s; expected model, verdict, since, label, "
-              "key, limit or after",
-              "");
+  static const char *const names[] = {"model", "verdict", "since", "label",
+                                      "key",   "limit",   "after"};
+  const char **const slots[] = {&q.model, &q.verdict, &q.since, &q.label,
+                                &q.key,   &q.limit,   &q.after};
+  char unknown[FG_HTTP_PARAM_NAME_MAX];
+  if (!fg_http_query_args(r, names, slots, 7, unknown)) {
+    fg_resp_bad_param(out, unknown,
+                      "unknown parameter; expected model, verdict, since, "
+                      "label, key, limit or after");
     return;
   }
   fg_check_filter f = {.limit = FG_LIST_LIMIT_DEFAULT};
   if (q.model) {
-    if (!valid_model_name(q.model)) {
-      bad_param(out, "model",
+    if (!fg_model_is_model_name(q.model)) {
+      fg_resp_bad_param(out, "model",
                 "expected a model name ([a-z0-9][a-z0-9_.-]{0,63}), found "
                 "'%.64s'",
                 q.model);
@@ -653,7 +600,7 @@ void fg_h_checks_list(fg_req *r, fg_resp *out) {
   if (q.verdict) {
     if (strcmp(q.verdict, "pass") && strcmp(q.verdict, "fail") &&
         strcmp(q.verdict, "inconclusive")) {
-      bad_param(out, "verdict",
+      fg_resp_bad_param(out, "verdict",
                 "expected pass, fail or inconclusive, found '%.32s'",
                 q.verdict);
       return;
@@ -663,7 +610,7 @@ void fg_h_checks_list(fg_req *r, fg_resp *out) {
   char since[32];
   if (q.since) {
     if (!normalise_time(q.since, since)) {
-      bad_param(out, "since",
+      fg_resp_bad_param(out, "since",
                 "expected an RFC 3339 date-time such as "
                 "2026-12-01T21:40:00Z, found '%.64s'",
                 q.since);
@@ -673,14 +620,14 @@ void fg_h_checks_list(fg_req *r, fg_resp *out) {
   }
   if (q.label) {
     if (strlen(q.label) > FG_LABEL_MAX) {
-      bad_param(out, "label", "longer than label_length%s", "");
+      fg_resp_bad_param(out, "label", "longer than label_length");
       return;
     }
     f.label = q.label;
   }
   if (q.key) {
     if (!fg_key_name_valid(q.key)) {
-      bad_param(out, "key",
+      fg_resp_bad_param(out, "key",
                 "expected an API key's name (as `feasgate keys list` shows "
                 "it), found '%.64s'",
                 q.key);
@@ -693,22 +640,16 @@ void fg_h_checks_list(fg_req *r, fg_resp *out) {
     errno = 0;
     long lim = strtol(q.limit, &end, 10);
     if (errno || !q.limit[0] || *end || lim < 1 || lim > FG_LIST_LIMIT_MAX) {
-      char msg[64];
-      snprintf(msg, sizeof msg, "%d", FG_LIST_LIMIT_MAX);
-      fg_problem p;
-      fg_problem_init(&p);
-      fg_problem_set(&p, FG_EINVAL,
-                     "query parameter 'limit': expected a whole number from 1 "
-                     "to %s, found '%.32s'",
-                     msg, q.limit);
-      fg_resp_problem(out, &p, 400);
+      fg_resp_bad_param(out, "limit",
+                        "expected a whole number from 1 to %d, found '%.32s'",
+                        FG_LIST_LIMIT_MAX, q.limit);
       return;
     }
     f.limit = (int)lim;
   }
   if (q.after) {
     if (!is_check_id(q.after)) {
-      bad_param(out, "after",
+      fg_resp_bad_param(out, "after",
                 "expected the id of the last check seen (chk_...), found "
                 "'%.40s'",
                 q.after);
@@ -724,7 +665,7 @@ void fg_h_checks_list(fg_req *r, fg_resp *out) {
   char next[40];
   fg_status st = fg_store_list_checks(r->srv->store, &f, &list, &n, next, &p);
   if (st == FG_EINVAL) {
-    bad_param(out, "after", "%s", p.detail);
+    fg_resp_bad_param(out, "after", "%s", p.detail);
     return;
   }
   if (st != FG_OK) {

@@ -98,6 +98,19 @@ typedef void fg_handler(fg_req *r, fg_resp *out);
  * r->route; on no match fill *out with 404 or 405 and return NULL. */
 fg_handler *fg_route(fg_req *r, fg_resp *out);
 
+/* ---- query.c ---- */
+/* Longest parameter name kept for a problem message. */
+#define FG_HTTP_PARAM_NAME_MAX 64
+/* Query parameters named names[i] into *slots[i] (first occurrence; NULL
+ * when absent). False when a parameter has another name (or an empty
+ * one): that name is in `unknown` ("" for the empty one). */
+bool fg_http_query_args(fg_req *r, const char *const *names,
+                        const char **const *slots, int n,
+                        char unknown[FG_HTTP_PARAM_NAME_MAX]);
+/* 400: "query parameter 'NAME': <message>". */
+void fg_resp_bad_param(fg_resp *out, const char *name, const char *fmt, ...)
+    __attribute__((format(printf, 3, 4)));
+
 /* ---- problem.c: responses ---- */
 #define FG_CT_JSON "application/json; charset=utf-8"
 #define FG_CT_PROBLEM "application/problem+json"
@@ -193,10 +206,6 @@ void fg_h_sample_size(fg_req *r, fg_resp *out);
 
 /* ---- registry.c ---- */
 fg_status fg_registry_new(fg_store *store, fg_registry **out, fg_problem *p);
-/* Hand over a check still running (takes the caller's reference) with its
- * record (request/result are not used). */
-fg_status fg_registry_add(fg_registry *g, fg_check *c,
-                          const fg_store_check *rec, fg_problem *p);
 /* List a check just started whose handler waits for it (takes its own
  * reference): GET shows it live and fg_registry_cancel finds it, but the
  * watcher does not record it. The handler then calls exactly one of: */

@@ -318,25 +318,6 @@ fg_status fg_registry_new(fg_store *store, fg_registry **out, fg_problem *p) {
   return FG_OK;
 }
 
-fg_status fg_registry_add(fg_registry *g, fg_check *c,
-                          const fg_store_check *rec, fg_problem *p) {
-  fg_held *e = calloc(1, sizeof *e);
-  if (!e)
-    return fg_problem_set(p, FG_ENOMEM,
-                          "out of memory keeping check %s running", rec->id);
-  e->check = c;
-  e->rec = *rec;
-  e->rec.request = NULL;
-  e->rec.result = NULL;
-  pthread_mutex_lock(&g->lock);
-  e->next = g->head;
-  g->head = e;
-  g->count++;
-  pthread_cond_signal(&g->wake);
-  pthread_mutex_unlock(&g->lock);
-  return FG_OK;
-}
-
 fg_status fg_registry_watch(fg_registry *g, fg_check *c,
                             const fg_store_check *rec, fg_problem *p) {
   fg_held *e = calloc(1, sizeof *e);

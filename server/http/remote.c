@@ -158,18 +158,6 @@ static void sleep_s(double s) {
   }
 }
 
-static bool valid_model_name(const char *s) {
-  size_t n = strlen(s);
-  if (n == 0 || n > FG_NAME_MAX) return false;
-  for (size_t i = 0; i < n; i++) {
-    char ch = s[i];
-    if (!((ch >= 'a' && ch <= 'z') || (ch >= '0' && ch <= '9') ||
-          (i > 0 && (ch == '_' || ch == '.' || ch == '-'))))
-      return false;
-  }
-  return true;
-}
-
 /* The key goes into a header: printable ASCII without spaces only. */
 static bool valid_key_text(const char *s) {
   size_t n = strlen(s);
@@ -379,7 +367,7 @@ int fg_remote_check_command(int argc, char **argv) {
                     "https:// URL, found '%s'\n", server);
     return EXIT_ERROR;
   }
-  if (!valid_model_name(args[0])) {
+  if (!fg_model_is_model_name(args[0])) {
     fprintf(stderr, "feasgate check: expected a model name "
                     "([a-z0-9][a-z0-9_.-]{0,63}), found '%s'\n", args[0]);
     return EXIT_ERROR;

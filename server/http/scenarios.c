@@ -34,35 +34,7 @@
 
 typedef struct scen_query {
   const char *count, *seed, *start, *stream;
-  char unknown[64];
-  bool empty_name;
 } scen_query;
-
-static enum MHD_Result collect(void *cls, enum MHD_ValueKind kind,
-                               const char *key, const char *value) {
-  scen_query *q = cls;
-  const char **slot = NULL;
-  if (strcmp(key, "count") == 0) slot = &q->count;
-  else if (strcmp(key, "seed") == 0) slot = &q->seed;
-  else if (strcmp(key, "start") == 0) slot = &q->start;
-  else if (strcmp(key, "stream") == 0) slot = &q->stream;
-  if (!slot) {
-    if (!q->unknown[0]) {
-      if (key[0]) snprintf(q->unknown, sizeof q->unknown, "%s", key);
-      else q->empty_name = true;
-    }
-    return MHD_YES;
-  }
-  if (!*slot) *slot = value ? value : "";
-  return MHD_YES;
-}
-
-static void bad_param(fg_resp *out, const char *name, const char *msg) {
-  fg_problem p;
-  fg_problem_init(&p);
-  fg_problem_set(&p, FG_EINVAL, "query parameter '%s': %s", name, msg);
-  fg_resp_problem(out, &p, 400);
-}
 
 /* A plain decimal whole number (digits only) up to `max`. */
 static bool parse_whole(const char *s, uint64_t max, uint64_t *out) {
@@ -131,11 +103,13 @@ static bool wants_csv(const char *accept) {
 void fg_h_model_scenarios(fg_req *r, fg_resp *out) {
   fg_server *srv = r->srv;
   scen_query q;
-  memset(&q, 0, sizeof q);
-  MHD_get_connection_values(r->conn, MHD_GET_ARGUMENT_KIND, collect, &q);
-  if (q.unknown[0] || q.empty_name) {
-    bad_param(out, q.unknown[0] ? q.unknown : "",
-              "unknown parameter; expected count, seed, start or stream");
+  static const char *const names[] = {"count", "seed", "start", "stream"};
+  const char **const slots[] = {&q.count, &q.seed, &q.start, &q.stream};
+  char unknown[FG_HTTP_PARAM_NAME_MAX];
+  if (!fg_http_query_args(r, names, slots, 4, unknown)) {
+    fg_resp_bad_param(out, unknown,
+                      "unknown parameter; expected count, seed, start or "
+                      "stream");
     return;
   }
   fg_scenarios_params sp = {0};
@@ -148,7 +122,7 @@ void fg_h_model_scenarios(fg_req *r, fg_resp *out) {
     snprintf(msg, sizeof msg,
              "expected a whole number from 1 to %llu, found '%.32s'",
              (unsigned long long)max, q.count);
-    bad_param(out, "count", msg);
+    fg_resp_bad_param(out, "count", "%s", msg);
     return;
   }
   if (sp.count > max) {
@@ -168,7 +142,7 @@ void fg_h_model_scenarios(fg_req *r, fg_resp *out) {
       snprintf(msg, sizeof msg,
                "expected a whole number from 0 to %llu, found '%.32s'",
                (unsigned long long)FG_SEED_MAX, q.seed);
-      bad_param(out, "seed", msg);
+      fg_resp_bad_param(out, "seed", "%s", msg);
       return;
     }
   } else {
@@ -181,7 +155,7 @@ void fg_h_model_scenarios(fg_req *r, fg_resp *out) {
                "expected a whole number from 0 with start + count at most "
                "2^53, found '%.32s'",
                q.start);
-      bad_param(out, "start", msg);
+      fg_resp_bad_param(out, "start", "%s", msg);
       return;
     }
   }
@@ -193,7 +167,7 @@ void fg_h_model_scenarios(fg_req *r, fg_resp *out) {
     } else {
       snprintf(msg, sizeof msg,
                "expected design or validation, found '%.32s'", q.stream);
-      bad_param(out, "stream", msg);
+      fg_resp_bad_param(out, "stream", "%s", msg);
       return;
     }
   }

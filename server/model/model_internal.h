@@ -105,7 +105,6 @@ typedef struct fg_model_plan {
 bool fg_model_check_members(const struct cJSON *obj, const char *base,
                             const char *what, const char *const *allowed,
                             const char *expected, fg_model_ctx *cx);
-bool fg_model_is_model_name(const char *s);
 void fg_model_missing(fg_model_ctx *cx, const char *base, const char *key,
                       const char *expected);
 const char *fg_model_member_name(const struct cJSON *obj, const char *base,
