@@ -22,7 +22,7 @@ import sys
 from pathlib import Path
 
 import jsonschema
-from jsonschema import Draft202012Validator, FormatChecker
+from jsonschema import Draft202012Validator
 
 ROOT = Path(__file__).resolve().parents[2]
 SCHEMAS = ROOT / "schemas"
@@ -81,31 +81,12 @@ def refs_in(node, where=""):
 
 # ---- validators that resolve offline --------------------------------------
 # No schema carries an "$id", so a file's references resolve against its own
-# location: "check-result.schema.json#/$defs/x" means that sibling file. The
-# validators register every document under BASE + its file name (BASE is
-# never fetched) and start from a reference to the document wanted.
+# location: "check-result.schema.json#/$defs/x" means that sibling file.
+# schemas/validator.py registers every document under a base that is never
+# fetched and starts from a reference to the document wanted.
 
-BASE = "file:///feasgate/schemas/"
-
-try:  # jsonschema >= 4.18
-    from referencing import Registry, Resource
-    from referencing.jsonschema import DRAFT202012
-
-    def make_validator(start, documents):
-        registry = Registry().with_resources(
-            (BASE + name, Resource.from_contents(doc, default_specification=DRAFT202012))
-            for name, doc in documents.items())
-        return Draft202012Validator({"$ref": BASE + start}, registry=registry,
-                                    format_checker=FormatChecker())
-except ImportError:  # Debian bookworm's 4.10
-    from jsonschema import RefResolver
-
-    def make_validator(start, documents):
-        store = {BASE + name: doc for name, doc in documents.items()}
-        schema = {"$ref": BASE + start}
-        resolver = RefResolver(base_uri=BASE, referrer=schema, store=store)
-        return Draft202012Validator(schema, resolver=resolver,
-                                    format_checker=FormatChecker())
+sys.path.insert(0, str(SCHEMAS))
+from validator import make_validator  # noqa: E402
 
 
 # ---- sample documents and bodies (invented for these tests) ---------------
