@@ -48,12 +48,23 @@ MODEL = {
 
 
 def psql(sql, db="postgres"):
+    """Run one statement on the test server; its output, unaligned."""
     env = dict(os.environ, PGOPTIONS="-c client_min_messages=warning")
-    subprocess.run(["psql", "-q", "-v", "ON_ERROR_STOP=1", "-h",
-                    os.environ["FG_TEST_PG_HOST"], "-p",
-                    os.environ["FG_TEST_PG_PORT"], "-U",
-                    os.environ["FG_TEST_PG_USER"], "-d", db, "-c", sql],
-                   check=True, env=env, stdout=subprocess.DEVNULL)
+    out = subprocess.run(["psql", "-q", "-At", "-v", "ON_ERROR_STOP=1", "-h",
+                          os.environ["FG_TEST_PG_HOST"], "-p",
+                          os.environ["FG_TEST_PG_PORT"], "-U",
+                          os.environ["FG_TEST_PG_USER"], "-d", db, "-c", sql],
+                         check=True, env=env, capture_output=True, text=True)
+    return out.stdout.strip()
+
+
+def start_detached(d, samples, seed, headers):
+    """A check answered at once (wait_s 0): (status, id)."""
+    st, _, body = d.request("POST", "/v1/models/shared-line/checks",
+                            {"decision": {"cap": 75}, "samples": samples,
+                             "seed": seed, "wait_s": 0, "stop_early": False},
+                            headers=headers)
+    return st, body.get("id") if isinstance(body, dict) else None
 
 
 def wait_until(pred, seconds, step=0.2):
@@ -133,11 +144,7 @@ def main():
                     for d in (a, b)), "both replicas accept it")
 
         # a check running on A, cancelled through B
-        long = {"decision": {"cap": 75}, "samples": 900000000, "seed": 6,
-                "wait_s": 0, "stop_early": False}
-        st, _, run1 = a.request("POST", "/v1/models/shared-line/checks", long,
-                                headers=H)
-        cid1 = run1.get("id") if isinstance(run1, dict) else None
+        st, cid1 = start_detached(a, 900000000, 6, H)
         R.check(st == 202, "another long check answered 202 on A: %s" % st)
         t1 = time.time()
         st, _, gone = b.request("DELETE", "/v1/checks/%s" % cid1, headers=H)
@@ -155,12 +162,8 @@ def main():
         R.check(st == 409, "a second DELETE: 409 (it ended): %s" % st)
 
         # a long detached check on A; A dies; B marks it interrupted
-        big = {"decision": {"cap": 75}, "samples": 900000000, "seed": 5,
-               "wait_s": 0, "stop_early": False}
-        st, _, run = a.request("POST", "/v1/models/shared-line/checks", big,
-                               headers=H)
+        st, rid = start_detached(a, 900000000, 5, H)
         R.check(st == 202, "a long check answered 202 on A: %s" % st)
-        rid = run.get("id") if isinstance(run, dict) else None
         st, _, seen = b.request("GET", "/v1/checks/%s" % rid, headers=H)
         R.check(st == 200 and seen.get("status") == "running",
                 "B sees it running: %s %s" % (st, seen.get("status")
@@ -190,11 +193,7 @@ def main():
         # the database refuses B: /v1/ready says so (503); a check that
         # ends meanwhile is answered from memory and recorded once the
         # database is back (http/registry.c writes it again every second)
-        mid = {"decision": {"cap": 75}, "samples": 40000000, "seed": 8,
-               "wait_s": 0, "stop_early": False}
-        st, _, run2 = b.request("POST", "/v1/models/shared-line/checks", mid,
-                                headers=H)
-        cid2 = run2.get("id") if isinstance(run2, dict) else None
+        st, cid2 = start_detached(b, 40000000, 8, H)
         R.check(st == 202, "a check of a few seconds on B: %s" % st)
         psql("ALTER DATABASE %s ALLOW_CONNECTIONS false" % db)
         psql("SELECT pg_terminate_backend(pid) FROM pg_stat_activity WHERE "
@@ -228,13 +227,8 @@ def main():
         R.check(st == 200, "and serves the log again: %s" % st)
 
         def recorded():
-            out = subprocess.run(
-                ["psql", "-At", "-h", os.environ["FG_TEST_PG_HOST"], "-p",
-                 os.environ["FG_TEST_PG_PORT"], "-U",
-                 os.environ["FG_TEST_PG_USER"], "-d", db, "-c",
-                 "SELECT status FROM checks WHERE id = '%s'" % cid2],
-                capture_output=True, text=True)
-            return out.stdout.strip() == "done"
+            return psql("SELECT status FROM checks WHERE id = '%s'" % cid2,
+                        db) == "done"
         R.check(wait_until(recorded, 20),
                 "the check that ended during the outage is recorded done")
         st, _, c2 = b.request("GET", "/v1/checks/%s" % cid2, headers=H)
