@@ -183,6 +183,22 @@ static fg_interval design_interval(struct fg_check *c, int row, double *se) {
   return t_interval((double)c->nrep, sum, sumsq, k, n, c->req.confidence, se);
 }
 
+/* The sequence's interval as reported for the counts merged so far: the
+ * running intersection widened to hold the Clopper-Pearson interval of
+ * the same counts at the same level, so an early stop never claims more
+ * than the fixed-n interval of its own counts would (the widening only
+ * adds coverage). */
+static fg_interval cs_reported(const struct fg_check *c) {
+  const fg_tally *t = &c->total;
+  if (t->n == 0) return (fg_interval){0.0, 1.0};
+  fg_interval cp =
+      fg_interval_clopper_pearson(t->satisfied, t->n, c->req.confidence);
+  fg_interval iv = c->cs;
+  if (!(cp.lower >= iv.lower)) iv.lower = cp.lower < iv.lower ? cp.lower : 0;
+  if (!(cp.upper <= iv.upper)) iv.upper = cp.upper > iv.upper ? cp.upper : 1;
+  return iv;
+}
+
 bool fg_check_look_locked(struct fg_check *c) {
   uint64_t n = c->total.n;
   if (c->next_look == 0 || n < c->next_look) return false;
@@ -194,7 +210,8 @@ bool fg_check_look_locked(struct fg_check *c) {
   if (iv.upper < c->cs.upper) c->cs.upper = iv.upper;
   c->next_look = n >= c->req.samples ? 0 : (n * 2 < c->req.samples ? n * 2
                                                                     : c->req.samples);
-  return c->cs.lower >= c->req.target || c->cs.upper < c->req.target ||
+  fg_interval rep = cs_reported(c);
+  return rep.lower >= c->req.target || rep.upper < c->req.target ||
          c->ndet > 0;
 }
 
@@ -271,7 +288,7 @@ void fg_check_finalize_locked(struct fg_check *c) {
                    : NAN;
   if (c->req.stop_early) {
     fg_check_look_locked(c); /* a last look at the final count */
-    c->interval = c->cs;
+    c->interval = cs_reported(c);
   } else if (c->design != FG_DESIGN_MONTE_CARLO && n > 2) {
     c->interval = design_interval(c, -1, &c->std_error);
   } else {
