@@ -211,8 +211,30 @@ bool fg_check_look_locked(struct fg_check *c) {
   c->next_look = n >= c->req.samples ? 0 : (n * 2 < c->req.samples ? n * 2
                                                                     : c->req.samples);
   fg_interval rep = cs_reported(c);
-  return rep.lower >= c->req.target || rep.upper < c->req.target ||
-         c->ndet > 0;
+  /* numeric trouble (check_numeric_verdict) rules a verdict out: keep
+   * sampling rather than stop on one that would not stand */
+  bool nan_rows = false;
+  for (int r = 0; r < c->total.nrows && !nan_rows; r++)
+    nan_rows = c->total.rows[r].nonfinite > 0;
+  bool bad_draws = c->total.bad_draws > 0;
+  return (rep.lower >= c->req.target && !nan_rows && !bad_draws) ||
+         (rep.upper < c->req.target && !bad_draws) || c->ndet > 0;
+}
+
+/* IEEE semantics at the verdict: a row that evaluated to NaN neither
+ * held nor was exceeded by a number, so the counts cannot support a pass
+ * (NaN does not hold, so a fail stands); a non-finite draw of an
+ * uncertain input makes its samples say nothing about the plan, so
+ * neither pass nor fail is claimed. Deterministic problems fail as
+ * always. The result body lists each under "numeric" (result.c). */
+static fg_verdict numeric_verdict(const struct fg_check *c, fg_verdict v) {
+  if (c->ndet > 0) return v;
+  bool nan_rows = false;
+  for (int r = 0; r < c->total.nrows && !nan_rows; r++)
+    nan_rows = c->total.rows[r].nonfinite > 0;
+  if (c->total.bad_draws > 0) return FG_VERDICT_INCONCLUSIVE;
+  if (nan_rows && v == FG_VERDICT_PASS) return FG_VERDICT_INCONCLUSIVE;
+  return v;
 }
 
 const uint64_t *fg_check_outcomes(fg_check *c, uint64_t *n) {
@@ -294,13 +316,17 @@ void fg_check_finalize_locked(struct fg_check *c) {
   } else {
     c->interval = interval_of(c->req.interval, k, n, c->req.confidence);
   }
-  c->verdict = (fg_verdict)fg_verdict_rule(c->interval, c->req.target,
-                                           c->ndet > 0);
+  c->verdict = numeric_verdict(
+      c, (fg_verdict)fg_verdict_rule(c->interval, c->req.target, c->ndet > 0));
   /* Coupled designs' sample indices are not scenarios of the validation
    * stream that GET .../scenarios could hand out: report none. */
   if (c->design != FG_DESIGN_MONTE_CARLO) c->total.nfail = 0;
   c->samples_to_settle = 0;
-  if (c->verdict == FG_VERDICT_INCONCLUSIVE && n > 0) {
+  bool numeric_ok = t->bad_draws == 0;
+  for (int r = 0; r < t->nrows && numeric_ok; r++)
+    numeric_ok = t->rows[r].nonfinite == 0;
+  /* more samples do not settle what NaN left open */
+  if (c->verdict == FG_VERDICT_INCONCLUSIVE && n > 0 && numeric_ok) {
     double s = fg_samples_to_settle(k, n, c->req.target, c->req.confidence);
     if (s > 0 && isfinite(s)) c->samples_to_settle = ceil(s);
   }
@@ -313,6 +339,8 @@ void fg_check_finalize_locked(struct fg_check *c) {
       rr->violated = rt->violated;
       rr->sole = rt->sole;
       rr->nonfinite = rt->nonfinite;
+      rr->infinite = rt->infinite;
+      rr->first_nonfinite = rt->first_nonfinite;
       rr->probability = n ? (double)rt->violated / (double)n : NAN;
       double se_row;
       if (c->design != FG_DESIGN_MONTE_CARLO && n > 2 && !c->req.stop_early)
@@ -321,7 +349,7 @@ void fg_check_finalize_locked(struct fg_check *c) {
         rr->interval = interval_of(c->req.interval, rt->violated, n,
                                    c->req.confidence);
       rr->excess_mean = n ? rt->excess_sum / (double)n : 0;
-      uint64_t finite = rt->violated - rt->nonfinite;
+      uint64_t finite = rt->violated - rt->nonfinite - rt->infinite;
       rr->excess_mean_if_violated = finite ? rt->excess_sum / (double)finite : 0;
       rr->excess_p95 = finite ? fg_hist_quantile(&rt->hist, 0.95) : 0;
       rr->excess_max = finite ? rt->hist.max : 0;
