@@ -218,6 +218,21 @@ static void test_tally_paths(void) {
       CHECK_INT(b.rows[r].violated, v);
       CHECK_INT(a.rows[r].sole, b.rows[r].sole);
       CHECK_INT(a.rows[r].nonfinite, b.rows[r].nonfinite);
+      /* NaN lanes are the non-finite ones, +inf lanes the infinite ones
+       * (IEEE 754: NaN is unordered, so NaN <= 0 is false) */
+      uint64_t nnan = 0, ninf = 0, first = FG_INDEX_NONE;
+      for (int s = 0; s < n; s++) {
+        if (isnan(e[r][s])) {
+          nnan++;
+          if (first == FG_INDEX_NONE) first = (uint64_t)s;
+        }
+        ninf += e[r][s] == INFINITY;
+      }
+      CHECK_INT(a.rows[r].nonfinite, nnan);
+      CHECK_INT(a.rows[r].infinite, ninf);
+      CHECK_INT(b.rows[r].infinite, ninf);
+      CHECK(a.rows[r].first_nonfinite == first &&
+            b.rows[r].first_nonfinite == first);
       CHECK(memcmp(&a.rows[r].excess_sum, &b.rows[r].excess_sum,
                    sizeof(double)) == 0);
       CHECK_INT(a.rows[r].hist.total, b.rows[r].hist.total);
@@ -227,6 +242,67 @@ static void test_tally_paths(void) {
     fg_tally_free(&a);
     fg_tally_free(&b);
   }
+}
+
+/* Non-finite values: a row's first NaN sample is the smallest index
+ * whatever the blocks and their merge order; fg_tally_inputs finds every
+ * non-finite draw (NaN and both infinities, not the largest finite or
+ * subnormal values) and keeps the first by index, then column. */
+static void test_tally_numeric(void) {
+  static double r0[FG_BLOCK], cols[3][FG_BLOCK];
+  for (int s = 0; s < FG_BLOCK; s++) {
+    r0[s] = -1.0;
+    for (int j = 0; j < 3; j++) cols[j][s] = s % 2 ? 1.7976931348623157e308
+                                                   : -4.9e-324;
+  }
+  r0[200] = NAN;
+  r0[77] = NAN;
+  r0[5] = INFINITY;
+  const double *ex[1] = {r0};
+  int scratch[2 * FG_BLOCK];
+  fg_tally whole, lo, hi;
+  CHECK(fg_tally_init(&whole, 1) == FG_OK);
+  CHECK(fg_tally_init(&lo, 1) == FG_OK);
+  CHECK(fg_tally_init(&hi, 1) == FG_OK);
+  fg_tally_block(&whole, ex, FG_BLOCK, 1000, NULL, scratch);
+  CHECK_INT(whole.rows[0].nonfinite, 2);
+  CHECK_INT(whole.rows[0].infinite, 1);
+  CHECK_INT(whole.rows[0].violated, 3);
+  CHECK_INT(whole.rows[0].first_nonfinite, 1077);
+  CHECK_INT(whole.rows[0].hist.total, 0);
+  /* two halves merged either way round */
+  const double *exh[1] = {r0 + 128};
+  fg_tally_block(&lo, ex, 128, 1000, NULL, scratch);
+  fg_tally_block(&hi, exh, 128, 1128, NULL, scratch);
+  CHECK_INT(hi.rows[0].first_nonfinite, 1200);
+  fg_tally_merge(&hi, &lo);
+  CHECK_INT(hi.rows[0].first_nonfinite, 1077);
+  CHECK_INT(hi.rows[0].nonfinite, 2);
+  /* draws */
+  fg_tally_inputs(&whole, &cols[0][0], 3, FG_BLOCK, FG_BLOCK, 1000);
+  CHECK_INT(whole.bad_draws, 0);
+  CHECK(whole.bad_draw_first == FG_INDEX_NONE);
+  cols[2][9] = -INFINITY;
+  cols[1][9] = NAN;
+  cols[0][40] = INFINITY;
+  fg_tally_inputs(&whole, &cols[0][0], 3, FG_BLOCK, FG_BLOCK, 1000);
+  CHECK_INT(whole.bad_draws, 3);
+  CHECK_INT(whole.bad_draw_first, 1009);
+  CHECK_INT(whole.bad_draw_column, 1);
+  /* a short block does not look past its lanes */
+  fg_tally_reset(&lo);
+  fg_tally_inputs(&lo, &cols[0][0], 3, FG_BLOCK, 9, 0);
+  CHECK_INT(lo.bad_draws, 0);
+  fg_tally_inputs(&lo, &cols[0][0], 3, FG_BLOCK, 41, 0);
+  CHECK_INT(lo.bad_draws, 3);
+  fg_tally_reset(&hi);
+  fg_tally_inputs(&hi, &cols[0][0] + 40, 1, FG_BLOCK, 1, 40);
+  fg_tally_merge(&hi, &lo);
+  CHECK_INT(hi.bad_draw_first, 9);
+  CHECK_INT(hi.bad_draw_column, 1);
+  fg_tally_free(&whole);
+  fg_tally_free(&lo);
+  fg_tally_free(&hi);
 }
 
 /* fg_hist_add_many (batched, branch-free buckets) and fg_hist_add (one
@@ -348,6 +424,7 @@ static void test_confidence_sequence(void) {
 
 int main(void) {
   test_confidence_sequence();
+  test_tally_numeric();
   test_clopper_pearson_closed_forms();
   test_other_intervals();
   test_verdict();
