@@ -305,6 +305,45 @@ static void test_tally_numeric(void) {
   fg_tally_free(&hi);
 }
 
+/* The confidence sequence where targets sit near 1: with every sample
+ * held, its lower end stays below the Clopper-Pearson lower end
+ * (alpha/2)^(1/n) (the closed form at k = n; Clopper & Pearson 1934) up
+ * to rounding, so no target above that can pass; the old form lost the
+ * prior's weight 10 (1 - t) in (b0 + n) - k and gave [1, 1] at 2^24
+ * samples for t = 1 - 1e-10. Ends are ordered and inside [0, 1] for
+ * every count at n up to the hard cap. (tests/reference/test_sequence.py
+ * compares every end with a 50-digit evaluation.) */
+static void test_cs_extreme(void) {
+  const double alpha = 0.05;
+  const uint64_t ns[] = {4096, 1u << 24, 1000000000ull, FG_MAX_SAMPLES_HARD};
+  for (int j = 1; j <= 15; j++) {
+    double t = 1 - pow(10.0, -j);
+    for (size_t i = 0; i < sizeof ns / sizeof ns[0]; i++) {
+      uint64_t n = ns[i];
+      fg_interval iv = fg_cs_interval(n, n, 1 - alpha, t);
+      double cp = exp(log(alpha / 2) / (double)n);
+      CHECK_MSG(iv.upper == 1 && iv.lower <= cp * (1 + 1e-15) && iv.lower > 0,
+                "cs t=1-1e-%d n=%llu: [%.17g, %.17g], Clopper-Pearson lower "
+                "%.17g",
+                j, (unsigned long long)n, iv.lower, iv.upper, cp);
+      CHECK_MSG(!((double)n < log(alpha / 2) / log(t)) || iv.lower < t,
+                "cs t=1-1e-%d n=%llu: lower %.17g clears the target before "
+                "log(alpha/2)/log(t) samples",
+                j, (unsigned long long)n, iv.lower);
+      const uint64_t ks[] = {0, 1, n / 2, n - 1000, n - 1};
+      for (size_t q = 0; q < sizeof ks / sizeof ks[0]; q++) {
+        fg_interval w = fg_cs_interval(ks[q], n, 1 - alpha, t);
+        double ph = (double)ks[q] / (double)n;
+        CHECK_MSG(w.lower >= 0 && w.lower <= ph && ph <= w.upper &&
+                      w.upper <= 1,
+                  "cs t=1-1e-%d k=%llu n=%llu: [%.17g, %.17g]", j,
+                  (unsigned long long)ks[q], (unsigned long long)n, w.lower,
+                  w.upper);
+      }
+    }
+  }
+}
+
 /* fg_hist_add_many (batched, branch-free buckets) and fg_hist_add (one
  * value at a time) build the same histogram: every count, the touched
  * range, min and max, over random values of all magnitudes and the special
@@ -425,6 +464,7 @@ static void test_confidence_sequence(void) {
 int main(void) {
   test_confidence_sequence();
   test_tally_numeric();
+  test_cs_extreme();
   test_clopper_pearson_closed_forms();
   test_other_intervals();
   test_verdict();
