@@ -14,7 +14,11 @@
  * holds in it, deterministic rows included (they hold in all samples or in
  * none). Decision bound and integrality problems do not change the counts;
  * like failing deterministic rows they are listed under "deterministic" and
- * make the verdict fail.
+ * make the verdict fail. A row that evaluated to NaN does not hold (IEEE)
+ * but rules out a pass; a non-finite draw of an uncertain input rules out
+ * any verdict but inconclusive (numeric_verdict; result.c lists both under
+ * "numeric"). With stop_early the reported interval is never narrower
+ * than Clopper-Pearson's for the same counts (cs_reported).
  *
  * Thread use: any thread; fields follow the rule in engine_internal.h.
  */
@@ -199,6 +203,13 @@ static fg_interval cs_reported(const struct fg_check *c) {
   return iv;
 }
 
+/* Did any row evaluate to NaN in the counts merged so far? */
+static bool nan_rows(const fg_tally *t) {
+  for (int r = 0; r < t->nrows; r++)
+    if (t->rows[r].nonfinite > 0) return true;
+  return false;
+}
+
 bool fg_check_look_locked(struct fg_check *c) {
   uint64_t n = c->total.n;
   if (c->next_look == 0 || n < c->next_look) return false;
@@ -211,13 +222,10 @@ bool fg_check_look_locked(struct fg_check *c) {
   c->next_look = n >= c->req.samples ? 0 : (n * 2 < c->req.samples ? n * 2
                                                                     : c->req.samples);
   fg_interval rep = cs_reported(c);
-  /* numeric trouble (check_numeric_verdict) rules a verdict out: keep
-   * sampling rather than stop on one that would not stand */
-  bool nan_rows = false;
-  for (int r = 0; r < c->total.nrows && !nan_rows; r++)
-    nan_rows = c->total.rows[r].nonfinite > 0;
-  bool bad_draws = c->total.bad_draws > 0;
-  return (rep.lower >= c->req.target && !nan_rows && !bad_draws) ||
+  /* numeric trouble rules a verdict out (numeric_verdict): keep sampling
+   * rather than stop on one that would not stand */
+  bool nan = nan_rows(&c->total), bad_draws = c->total.bad_draws > 0;
+  return (rep.lower >= c->req.target && !nan && !bad_draws) ||
          (rep.upper < c->req.target && !bad_draws) || c->ndet > 0;
 }
 
@@ -229,11 +237,9 @@ bool fg_check_look_locked(struct fg_check *c) {
  * always. The result body lists each under "numeric" (result.c). */
 static fg_verdict numeric_verdict(const struct fg_check *c, fg_verdict v) {
   if (c->ndet > 0) return v;
-  bool nan_rows = false;
-  for (int r = 0; r < c->total.nrows && !nan_rows; r++)
-    nan_rows = c->total.rows[r].nonfinite > 0;
   if (c->total.bad_draws > 0) return FG_VERDICT_INCONCLUSIVE;
-  if (nan_rows && v == FG_VERDICT_PASS) return FG_VERDICT_INCONCLUSIVE;
+  if (nan_rows(&c->total) && v == FG_VERDICT_PASS)
+    return FG_VERDICT_INCONCLUSIVE;
   return v;
 }
 
@@ -322,10 +328,8 @@ void fg_check_finalize_locked(struct fg_check *c) {
    * stream that GET .../scenarios could hand out: report none. */
   if (c->design != FG_DESIGN_MONTE_CARLO) c->total.nfail = 0;
   c->samples_to_settle = 0;
-  bool numeric_ok = t->bad_draws == 0;
-  for (int r = 0; r < t->nrows && numeric_ok; r++)
-    numeric_ok = t->rows[r].nonfinite == 0;
   /* more samples do not settle what NaN left open */
+  bool numeric_ok = t->bad_draws == 0 && !nan_rows(t);
   if (c->verdict == FG_VERDICT_INCONCLUSIVE && n > 0 && numeric_ok) {
     double s = fg_samples_to_settle(k, n, c->req.target, c->req.confidence);
     if (s > 0 && isfinite(s)) c->samples_to_settle = ceil(s);
@@ -340,7 +344,6 @@ void fg_check_finalize_locked(struct fg_check *c) {
       rr->sole = rt->sole;
       rr->nonfinite = rt->nonfinite;
       rr->infinite = rt->infinite;
-      rr->first_nonfinite = rt->first_nonfinite;
       rr->probability = n ? (double)rt->violated / (double)n : NAN;
       double se_row;
       if (c->design != FG_DESIGN_MONTE_CARLO && n > 2 && !c->req.stop_early)

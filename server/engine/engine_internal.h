@@ -35,7 +35,6 @@ typedef struct fg_det_problem {
 typedef struct fg_row_result {
   int row; /* index into the program's rows */
   uint64_t violated, sole, nonfinite, infinite;
-  uint64_t first_nonfinite; /* FG_INDEX_NONE when nonfinite is 0 */
   double probability; /* violation probability */
   fg_interval interval;
   double excess_mean, excess_mean_if_violated, excess_p95, excess_max;
