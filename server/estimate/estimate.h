@@ -54,7 +54,10 @@ double fg_log_beta(double a, double b);
  * the two wrong verdicts has probability at most alpha/2, as with the
  * fixed-n interval. The prior is centred on the target with strength
  * FG_CS_PRIOR_STRENGTH pseudo-samples, which keeps the sequence tight where
- * the verdict is decided. */
+ * the verdict is decided. Accurate (tests/reference/test_sequence.py) for
+ * prior means up to 1 - 1e-15 and n up to FG_MAX_SAMPLES_HARD; ends are
+ * rounded outwards. The engine reports it widened to contain the
+ * Clopper-Pearson interval of the same counts (engine/check.c). */
 #define FG_CS_PRIOR_STRENGTH 10.0
 /* First look after this many samples, then after every doubling. */
 #define FG_CS_FIRST_ROUND 4096
