@@ -553,6 +553,9 @@ COMPARISON_REQUEST_VALID = [
 ]
 COMPARISON_REQUEST_INVALID = [
     ("one candidate", {"candidates": [{"label": "lean", "decision": {}}]}),
+    ("coupled design", {"candidates": [{"label": "a", "decision": {}},
+                                       {"label": "b", "decision": {}}],
+                        "sampling": "antithetic"}),
     ("candidate without label", {"candidates": [{"decision": {}}, {"label": "b", "decision": {}}]}),
     ("candidate with unknown member", {"candidates": [
         {"label": "a", "decision": {}, "seed": 1}, {"label": "b", "decision": {}}]}),
