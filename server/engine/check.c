@@ -463,6 +463,9 @@ fg_status fg_check_start(fg_pool *pool, fg_model *m,
     c->has_in_sample = true;
     c->in_sample_count = t.n;
     c->in_sample_satisfied = t.satisfied;
+    c->in_sample_bad_draws = t.bad_draws;
+    c->in_sample_bad_first = t.bad_draw_first;
+    c->in_sample_bad_column = t.bad_draw_column;
     fg_tally_free(&t);
     fg_eval_ctx_free(&ctx);
   }

@@ -70,6 +70,9 @@ struct fg_check {
 
   bool has_in_sample;
   uint64_t in_sample_satisfied, in_sample_count;
+  /* non-finite draws of the in-sample evaluation (design stream) */
+  uint64_t in_sample_bad_draws, in_sample_bad_first;
+  int in_sample_bad_column;
 
   double t_start, deadline; /* monotonic seconds; deadline 0 = none */
 

@@ -104,12 +104,14 @@ static void add_rows(cJSON *o, struct fg_check *c) {
 
 /* "numeric": what IEEE arithmetic left undecided, in the style of
  * "deterministic": non-finite draws of an uncertain input (the first by
- * sample index, which does not depend on workers or chunk sizes), then
- * rows that evaluated to NaN, in row order; at most FG_DET_PROBLEMS_MAX
- * entries. Empty while a check runs (the counts are not final). */
+ * sample index, which does not depend on workers or chunk sizes), those of
+ * the in-sample evaluation (design stream; they do not touch the
+ * verdict), then rows that evaluated to NaN, in row order; at most
+ * FG_DET_PROBLEMS_MAX row entries. Empty while a check runs (the counts
+ * are not final). */
 static void add_numeric(cJSON *o, struct fg_check *c, bool ended) {
   const fg_tally *t = &c->total;
-  bool any = ended && t->bad_draws > 0;
+  bool any = ended && (t->bad_draws > 0 || c->in_sample_bad_draws > 0);
   for (int r = 0; ended && r < t->nrows && !any; r++)
     any = t->rows[r].nonfinite > 0;
   cJSON *num = cJSON_AddObjectToObject(o, "numeric");
@@ -128,8 +130,28 @@ static void add_numeric(cJSON *o, struct fg_check *c, bool ended) {
     cJSON *pr = cJSON_CreateObject();
     cJSON_AddStringToObject(pr, "name", col ? col : "?");
     cJSON_AddStringToObject(pr, "kind", "input");
+    cJSON_AddStringToObject(pr, "stream", "validation");
     add_u64(pr, "index", t->bad_draw_first);
     add_u64(pr, "count", t->bad_draws);
+    cJSON_AddStringToObject(pr, "message", msg);
+    cJSON_AddItemToArray(probs, pr);
+    listed++;
+  }
+  if (ended && c->in_sample_bad_draws > 0) {
+    const char *col =
+        fg_sampler_column(c->model->sampler, c->in_sample_bad_column);
+    snprintf(msg, sizeof msg,
+             "uncertain input %s drew a non-finite value at design scenario "
+             "%llu of the in-sample evaluation (%llu non-finite values in "
+             "all); its in_sample figures say nothing about the plan",
+             col ? col : "?", (unsigned long long)c->in_sample_bad_first,
+             (unsigned long long)c->in_sample_bad_draws);
+    cJSON *pr = cJSON_CreateObject();
+    cJSON_AddStringToObject(pr, "name", col ? col : "?");
+    cJSON_AddStringToObject(pr, "kind", "input");
+    cJSON_AddStringToObject(pr, "stream", "design");
+    add_u64(pr, "index", c->in_sample_bad_first);
+    add_u64(pr, "count", c->in_sample_bad_draws);
     cJSON_AddStringToObject(pr, "message", msg);
     cJSON_AddItemToArray(probs, pr);
     listed++;
@@ -151,6 +173,7 @@ static void add_numeric(cJSON *o, struct fg_check *c, bool ended) {
     cJSON *pr = cJSON_CreateObject();
     cJSON_AddStringToObject(pr, "name", name);
     cJSON_AddStringToObject(pr, "kind", "row");
+    cJSON_AddStringToObject(pr, "stream", "validation");
     add_u64(pr, "index", rt->first_nonfinite);
     add_u64(pr, "count", rt->nonfinite);
     cJSON_AddStringToObject(pr, "message", msg);

@@ -24,7 +24,8 @@ and checks:
   - a non-finite draw (a normal input with sd 1e308 overflows now and
     then) is either refused when the model is registered (400 naming the
     parameter) or caught: numeric.problems names the input and a sample
-    index, and the verdict is inconclusive.
+    index, in the validation stream (the verdict is then inconclusive) and
+    in the in-sample evaluation's design stream.
 
 Standard library only. Prints one line per failed check and
 "N passed, N failed" as the last line; exits non-zero on any failure.
@@ -203,15 +204,19 @@ def test_bad_draw(d):
               "by tests/unit/test_estimate.c")
         return
     check(st == 201, "register wide-normal: %s %r" % (st, b))
-    req = {"decision": {"x": 5}, "samples": 50000, "seed": 2, "target": 0.5}
+    req = {"decision": {"x": 5}, "samples": 50000, "seed": 2, "target": 0.5,
+           "in_sample": {"seed": 4, "count": 50000}}
     api = run(d, "wide-normal", req)
     off = offline(doc, req, "--workers", "1", "--chunk", "256")
     for where, res in (("api", api), ("offline", off)):
         if not check(isinstance(res, dict) and "numeric" in res, where + ": draw result"):
             continue
-        probs = [p for p in res["numeric"]["problems"] if p["kind"] == "input"]
-        check(len(probs) == 1 and probs[0]["name"] == "big" and probs[0]["index"] >= 0,
-              "%s: a problem naming input big: %r" % (where, res["numeric"]))
+        for stream in ("validation", "design"):
+            probs = [p for p in res["numeric"]["problems"]
+                     if p["kind"] == "input" and p["stream"] == stream]
+            check(len(probs) == 1 and probs[0]["name"] == "big" and probs[0]["index"] >= 0
+                  and probs[0]["count"] >= 1,
+                  "%s: a %s problem naming input big: %r" % (where, stream, res["numeric"]))
         # v <= 5 holds almost surely: the counts would pass; the draws say no
         check(res["verdict"] == "inconclusive",
               "%s: verdict %s with non-finite draws" % (where, res["verdict"]))
