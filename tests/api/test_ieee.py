@@ -1,5 +1,5 @@
 #!/usr/bin/python3
-"""tests/api/test_numerics.py -- IEEE semantics, non-finite values and early
+"""tests/api/test_ieee.py -- IEEE semantics, non-finite values and early
 stopping, over HTTP and through the offline `feasgate check`.
 
 Starts `feasgate serve` on an ephemeral loopback port with a temporary
