@@ -42,6 +42,7 @@
  */
 #include "sample/sample_internal.h"
 
+#include "core/quantile.h"
 #include "feasgate/limits.h"
 
 #include <cjson/cJSON.h>
@@ -633,44 +634,60 @@ static double trunc_std(const fg_input *in, int e, double u, double uc) {
   return z;
 }
 
-/* Smallest k with F(k) >= u for an integer law, from a Cornish-Fisher
- * start; compares against the upper tail when u > 1/2. */
-typedef double (*fg_cdf_fn)(unsigned int k, const double *par);
+/* Integer laws: the smallest k in [0, kmax] with F(k) >= u, decided from
+ * the upper tail Q(k) = 1 - F(k) <= uc when u >= 1/2 so both tails keep
+ * their precision. The CDFs are core/quantile.c's incomplete gamma and beta
+ * (bounded work at any mean or trials): poisson F(k) = Q(k+1, mean),
+ * binomial F(k) = I_{1-p}(n-k, k+1). The search starts at the
+ * Cornish-Fisher point, gallops (steps 1, 2, 4, ...) until the answer is
+ * bracketed, then bisects, so it evaluates the CDF at most about
+ * 2 log2(kmax) + 2 times (66 for kmax = 2e9) whatever the start. */
+static int count_ok(const fg_input *in, int e, double k, double u, double uc) {
+  double lo, up; /* P(X <= k), P(X > k) */
+  if (in->kind == FG_FAM_POISSON) {
+    fg_q_igamma(k + 1, in->par[0][e], &up, &lo, NULL);
+  } else {
+    double n = in->par[0][e], p = in->par[1][e];
+    if (k >= n) return 1;
+    fg_q_ibeta(1 - p, p, n - k, k + 1, &lo, &up, NULL);
+  }
+  return u < 0.5 ? lo >= u : up <= uc;
+}
 
-static double pois_P(unsigned int k, const double *par) {
-  return gsl_cdf_poisson_P(k, par[0]);
-}
-static double pois_Q(unsigned int k, const double *par) {
-  return gsl_cdf_poisson_Q(k, par[0]);
-}
-static double binom_P(unsigned int k, const double *par) {
-  return gsl_cdf_binomial_P(k, par[1], (unsigned int)par[0]);
-}
-static double binom_Q(unsigned int k, const double *par) {
-  return gsl_cdf_binomial_Q(k, par[1], (unsigned int)par[0]);
-}
-
-static double count_icdf(fg_cdf_fn P, fg_cdf_fn Q, const double *par,
-                         double mean, double sd, double skew, double kmax,
-                         double u, double uc) {
+static double count_icdf(const fg_input *in, int e, double mean, double sd,
+                         double skew, double kmax, double u, double uc) {
   if (!(sd > 0)) return floor(mean); /* point mass */
   double z = std_quantile(u, uc);
   double start = floor(mean + sd * (z + skew * (z * z - 1) / 6));
-  if (start < 0) start = 0;
+  if (!(start >= 0)) start = 0;
   if (start > kmax) start = kmax;
-  unsigned int k = (unsigned int)start;
-  if (u < 0.5) {
-    while (k > 0 && P(k - 1, par) >= u)
-      k--;
-    while (k < kmax && P(k, par) < u)
-      k++;
+  /* invariant: ok(hi); lo < hi and not ok(lo) (lo = -1 stands for "none") */
+  double lo, hi, step = 1;
+  if (count_ok(in, e, start, u, uc)) {
+    hi = start;
+    lo = hi - step;
+    while (lo >= 0 && count_ok(in, e, lo, u, uc)) {
+      hi = lo;
+      step *= 2;
+      lo = hi - step;
+    }
+    if (lo < 0) lo = -1;
   } else {
-    while (k > 0 && Q(k - 1, par) <= uc)
-      k--;
-    while (k < kmax && Q(k, par) > uc)
-      k++;
+    lo = start;
+    hi = lo + step;
+    while (hi < kmax && !count_ok(in, e, hi, u, uc)) {
+      lo = hi;
+      step *= 2;
+      hi = lo + step;
+    }
+    if (hi > kmax) hi = kmax;
   }
-  return (double)k;
+  while (hi - lo > 1) {
+    double mid = floor(lo + (hi - lo) / 2);
+    if (count_ok(in, e, mid, u, uc)) hi = mid;
+    else lo = mid;
+  }
+  return hi;
 }
 
 int fg_family_cdf_index(const fg_input *in, double u, double uc) {
@@ -708,31 +725,24 @@ double fg_family_icdf(const fg_input *in, int e, double u, double uc) {
   }
   case FG_FAM_PERT:
   case FG_FAM_BETA: {
-    double x = u < 0.5 ? gsl_cdf_beta_Pinv(u, v[2][e], v[3][e])
-                       : gsl_cdf_beta_Qinv(uc, v[2][e], v[3][e]);
+    double x = fg_q_beta_inv(u, uc, v[2][e], v[3][e], NULL, NULL);
     return v[0][e] + v[1][e] * x;
   }
   case FG_FAM_EXPONENTIAL: return v[0][e] * (u < 0.5 ? -log1p(-u) : -log(uc));
-  case FG_FAM_GAMMA:
-    return u < 0.5 ? gsl_cdf_gamma_Pinv(u, v[0][e], v[1][e])
-                   : gsl_cdf_gamma_Qinv(uc, v[0][e], v[1][e]);
+  case FG_FAM_GAMMA: return v[1][e] * fg_q_gamma_inv(u, uc, v[0][e], NULL);
   case FG_FAM_WEIBULL:
     return v[1][e] * pow(u < 0.5 ? -log1p(-u) : -log(uc), 1.0 / v[0][e]);
   case FG_FAM_STUDENT_T:
-    return v[1][e] + v[2][e] * (u < 0.5 ? gsl_cdf_tdist_Pinv(u, v[0][e])
-                                        : gsl_cdf_tdist_Qinv(uc, v[0][e]));
+    return v[1][e] + v[2][e] * fg_q_t_inv(u, uc, v[0][e], NULL);
   case FG_FAM_POISSON: {
-    double par[1] = {v[0][e]};
-    double mu = par[0];
-    return count_icdf(pois_P, pois_Q, par, mu, sqrt(mu),
-                      mu > 0 ? 1 / sqrt(mu) : 0, FG_COUNT_PARAM_MAX * 2, u, uc);
+    double mu = v[0][e];
+    return count_icdf(in, e, mu, sqrt(mu), mu > 0 ? 1 / sqrt(mu) : 0,
+                      FG_COUNT_PARAM_MAX * 2, u, uc);
   }
   case FG_FAM_BINOMIAL: {
-    double par[2] = {v[0][e], v[1][e]};
-    double n = par[0], q = par[1], var = n * q * (1 - q);
-    double sd = sqrt(var);
-    return count_icdf(binom_P, binom_Q, par, n * q, sd,
-                      sd > 0 ? (1 - 2 * q) / sd : 0, n, u, uc);
+    double n = v[0][e], q = v[1][e], sd = sqrt(n * q * (1 - q));
+    return count_icdf(in, e, n * q, sd, sd > 0 ? (1 - 2 * q) / sd : 0, n, u,
+                      uc);
   }
   case FG_FAM_DISCRETE: return discrete_icdf(in, u, uc);
   case FG_FAM_EMPIRICAL:
