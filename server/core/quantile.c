@@ -227,6 +227,55 @@ static void beta_asym(double x, double y, double a, double b, double *lower,
   *upper = 0.5 * erfc(w) + corr;
 }
 
+/* 1 - I_t(p, q) for q large, p small against sqrt(q), t on the upper side
+ * of the mean: the expansion in incomplete gammas (DiDonato & Morris,
+ * ACM TOMS 18, 1992, "BGRAT"; derived here as follows). With
+ * s = -log(1 - t), 1 - I_t(p, q) = (1/B(p, q)) int_{s0}^inf
+ * s^(p-1) g(s) e^(-q s) ds, g(s) = ((1 - e^-s)/s)^(p-1) = sum_j c_j s^j,
+ * log((1 - e^-s)/s) = -s/2 + sum_k B_2k s^2k / (2k (2k)!) (Bernoulli
+ * numbers), so 1 - I_t = Gamma(p+q)/(Gamma(q) q^p) sum_j c_j
+ * [Gamma(p+j)/Gamma(p)] q^-j Q(p+j, q s0). Term j is about
+ * (p^2/(2q))^j / j!, so GEXP_TERMS terms reach 1e-17 when
+ * (p + GEXP_TERMS)^2 <= q / GEXP_RATIO. The continued fraction would lose
+ * about eps q / p here (its first denominators cancel to 1 - O(1/q)). */
+#define GEXP_TERMS 10
+#define GEXP_RATIO 50.0
+#define GEXP_Q_MIN 1e5
+
+static int gexp_fits(double p, double q) {
+  return q >= GEXP_Q_MIN && (p + GEXP_TERMS) * (p + GEXP_TERMS) <= q / GEXP_RATIO;
+}
+
+static double beta_gexp(double p, double q, double t, double tc,
+                        fg_qcount *cnt) {
+  /* coefficients of log((1 - e^-s)/s): -s/2 + s^2/24 - s^4/2880 +
+   * s^6/181440 - s^8/9676800 (+ O(s^10), not needed below j = 10) */
+  static const double l[GEXP_TERMS] = {
+      0, -0.5, 1.0 / 24, 0, -1.0 / 2880, 0, 1.0 / 181440, 0, -1.0 / 9676800, 0};
+  double c[GEXP_TERMS];
+  c[0] = 1;
+  for (int n = 1; n < GEXP_TERMS; n++) {
+    double acc = 0;
+    for (int k = 1; k <= n; k++)
+      acc += k * (p - 1) * l[k] * c[n - k];
+    c[n] = acc / n;
+  }
+  double s0 = t <= 0.5 ? -log1p(-t) : -log(tc), z = q * s0;
+  double lo, qj;
+  fg_q_igamma(p, z, &lo, &qj, cnt);
+  /* log K = lgamma(p+q) - lgamma(q) - p log q, without cancellation */
+  double logk = -q * log1pmx(p / q) + (p - 0.5) * log1p(p / q) +
+                stirlerr(p + q) - stirlerr(q);
+  double sum = 0, r = 1;
+  for (int j = 0; j < GEXP_TERMS; j++) {
+    sum += c[j] * r * qj;
+    /* Q(p+j+1, z) = Q(p+j, z) + z^(p+j) e^-z / Gamma(p+j+1) */
+    qj += exp(log_gamma_front(p + j, z));
+    r *= (p + j) / q;
+  }
+  return exp(logk) * sum;
+}
+
 void fg_q_ibeta(double x, double y, double a, double b, double *lower,
                 double *upper, fg_qcount *cnt) {
   if (x <= 0) {
@@ -240,6 +289,17 @@ void fg_q_ibeta(double x, double y, double a, double b, double *lower,
   if (fmin(a, b) >= FG_Q_ASYM_MIN) {
     beta_asym(x, y, a, b, lower, upper);
     note_terms(cnt, 1);
+    return;
+  }
+  /* the smaller parameter p with its variable t; beyond the switch point
+   * (p+1)/(p+q+2) and with q large, the gamma expansion */
+  int swap = a > b;
+  double p = swap ? b : a, q = swap ? a : b, t = swap ? y : x,
+         tc = swap ? x : y;
+  if (t >= (p + 1) / (p + q + 2) && gexp_fits(p, q)) {
+    double up = beta_gexp(p, q, t, tc, cnt);
+    *(swap ? lower : upper) = up;
+    *(swap ? upper : lower) = 1 - up;
     return;
   }
   double lx = x <= 0.5 ? log(x) : log1p(-y), ly = y <= 0.5 ? log(y) : log1p(-x);
@@ -348,11 +408,17 @@ static double qf(const qprob *q, double x, double *dens) {
   return q->use_lower ? lo - q->u : q->uc - up;
 }
 
+/* The bisection point: geometric while hi/lo > 4 (sqrt of each factor,
+ * as lo * hi may underflow), arithmetic after. */
+static double mid_point(double lo, double hi) {
+  return hi > 4 * lo ? sqrt(lo) * sqrt(hi) : lo + 0.5 * (hi - lo);
+}
+
 /* Root in (lo, hi) from the start x; f(lo) < 0 <= f(hi) is assumed. */
 static double solve(const qprob *q, double lo, double hi, double x) {
   double m1 = INFINITY, m2 = INFINITY; /* log(hi/lo) one and two steps ago */
   int steps = 0;
-  if (!(x > lo && x < hi)) x = sqrt(lo * hi);
+  if (!(x > lo && x < hi)) x = mid_point(lo, hi);
   while (steps < FG_Q_STEPS_MAX) {
     steps++;
     double dens, f = qf(q, x, &dens);
@@ -366,7 +432,7 @@ static double solve(const qprob *q, double lo, double hi, double x) {
     }
     double nx = (dens > 0 && isfinite(dens)) ? x - f / dens : NAN;
     int force = m0 > 0.5 * m2;
-    if (!(nx > lo && nx < hi) || force) nx = sqrt(lo * hi);
+    if (!(nx > lo && nx < hi) || force) nx = mid_point(lo, hi);
     m2 = m1;
     m1 = m0;
     if (fabs(nx - x) <= 2 * DBL_EPSILON * x) {
@@ -409,12 +475,14 @@ double fg_q_beta_inv(double u, double uc, double a, double b, double *xc,
     x = 0, y = 1;
   } else if (!(uc > 0)) {
     x = 1, y = 0;
-  } else if (a == 1) { /* I_x(1, b) = 1 - (1-x)^b */
-    y = exp(log(uc) / b);
-    x = -expm1(log(uc) / b);
+  } else if (a == 1) { /* I_x(1, b) = 1 - (1-x)^b: log(1-x) = log(uc)/b */
+    double l = (u < uc ? log1p(-u) : log(uc)) / b;
+    y = exp(l);
+    x = -expm1(l);
   } else if (b == 1) { /* I_x(a, 1) = x^a */
-    x = exp(log(u) / a);
-    y = -expm1(log(u) / a);
+    double l = (u < uc ? log(u) : log1p(-uc)) / a;
+    x = exp(l);
+    y = -expm1(l);
   } else {
     double lo5, up5;
     fg_q_ibeta(0.5, 0.5, a, b, &lo5, &up5, cnt);
