@@ -48,6 +48,7 @@
 #include <cjson/cJSON.h>
 #include <gsl/gsl_cdf.h>
 
+#include <float.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -158,6 +159,39 @@ static void need_integer(fg_params *c, const char *name, const double *v) {
     if (!is_array(c, name)) break;
   }
 }
+
+/* lo <= v[e] <= hi for every element; the message names the range and
+ * why it exists. */
+static void need_range(fg_params *c, const char *name, const double *v,
+                       double lo, double hi, const char *why) {
+  for (int e = 0; e < c->size; e++) {
+    if (v[e] >= lo && v[e] <= hi) continue;
+    fg_family_param_error(c, FG_EINVAL, name, e,
+                          "expected %s in [%.15g, %.15g] (%s), found %.15g",
+                          name, lo, hi, why, v[e]);
+    if (!is_array(c, name)) break;
+  }
+}
+
+/* |loc| + scale * qmax must stay below a quarter of the largest double,
+ * qmax being the standard quantile at FG_ICDF_P_MIN for element e. */
+static void need_finite_scale(fg_params *c, const char *name,
+                              const double *scale, const double *loc,
+                              const double *qmax) {
+  for (int e = 0; e < c->size; e++) {
+    double room = DBL_MAX / 4 - (loc ? fabs(loc[e]) : 0);
+    double bound = room / qmax[e];
+    if (scale[e] <= bound) continue;
+    fg_family_param_error(c, FG_EINVAL, name, e,
+                          "expected %s <= %.6g so that every quantile down "
+                          "to probability %g stays finite (the standard "
+                          "quantile there is %.6g), found %.15g",
+                          name, bound, FG_ICDF_P_MIN, qmax[e], scale[e]);
+    if (!is_array(c, name)) break;
+  }
+}
+
+#define SHAPE_WHY "the range where draws and quantiles keep their accuracy"
 
 static int integral(double v) {
   return v == floor(v) && fabs(v) < 9007199254740992.0;
@@ -282,7 +316,10 @@ static void parse_pert(fg_input *in, fg_params *c) {
   int m = read_vec(c, in, 5, "mode", 1, 0);
   int b = read_vec(c, in, 6, "high", 1, 0);
   int s = read_vec(c, in, 7, "shape", 0, 4.0);
-  if (s > 0) need_positive(c, "shape", v[7], 1);
+  if (s > 0) {
+    need_positive(c, "shape", v[7], 1);
+    need_at_most(c, "shape", v[7], FG_SHAPE_PARAM_MAX);
+  }
   if (a <= 0 || m <= 0 || b <= 0 || s < 0) return;
   need_less(c, "low", v[4], "high", v[6], 1);
   need_less(c, "low", v[4], "mode", v[5], 0);
@@ -303,8 +340,10 @@ static void parse_beta(fg_input *in, fg_params *c) {
   int b = read_vec(c, in, 3, "b", 1, 0);
   int lo = read_vec(c, in, 4, "low", 0, 0.0);
   int hi = read_vec(c, in, 5, "high", 0, 1.0);
-  if (a > 0) need_positive(c, "a", v[2], 1);
-  if (b > 0) need_positive(c, "b", v[3], 1);
+  if (a > 0)
+    need_range(c, "a", v[2], FG_SHAPE_PARAM_MIN, FG_SHAPE_PARAM_MAX, SHAPE_WHY);
+  if (b > 0)
+    need_range(c, "b", v[3], FG_SHAPE_PARAM_MIN, FG_SHAPE_PARAM_MAX, SHAPE_WHY);
   if (lo >= 0 && hi >= 0) need_less(c, "low", v[4], "high", v[5], 1);
   if (c->st != FG_OK) return;
   for (int e = 0; e < in->size; e++) {
@@ -327,6 +366,26 @@ static void parse_two_positive(fg_input *in, fg_params *c, const char *n0,
   if (b > 0) need_positive(c, n1, in->par[1], 1);
 }
 
+static void parse_gamma(fg_input *in, fg_params *c) {
+  int a = read_vec(c, in, 0, "shape", 1, 0);
+  int b = read_vec(c, in, 1, "scale", 1, 0);
+  if (a > 0)
+    need_range(c, "shape", in->par[0], FG_SHAPE_PARAM_MIN, FG_SHAPE_PARAM_MAX,
+               SHAPE_WHY);
+  if (b > 0) need_positive(c, "scale", in->par[1], 1);
+  if (a <= 0 || b <= 0 || c->st != FG_OK) return;
+  double *qmax = malloc((size_t)in->size * sizeof *qmax);
+  if (!qmax) {
+    fg_problem_set(c->p, FG_ENOMEM, "out of memory reading %s", c->ptr);
+    c->st = c->st ? c->st : FG_ENOMEM;
+    return;
+  }
+  for (int e = 0; e < in->size; e++)
+    qmax[e] = fg_q_gamma_inv(1.0, FG_ICDF_P_MIN, in->par[0][e], NULL);
+  need_finite_scale(c, "scale", in->par[1], NULL, qmax);
+  free(qmax);
+}
+
 static void parse_exponential(fg_input *in, fg_params *c) {
   if (read_vec(c, in, 0, "mean", 1, 0) > 0)
     need_positive(c, "mean", in->par[0], 1);
@@ -336,8 +395,20 @@ static void parse_student_t(fg_input *in, fg_params *c) {
   int d = read_vec(c, in, 0, "df", 1, 0);
   read_vec(c, in, 1, "location", 0, 0.0);
   int s = read_vec(c, in, 2, "scale", 0, 1.0);
-  if (d > 0) need_positive(c, "df", in->par[0], 1);
+  if (d > 0)
+    need_range(c, "df", in->par[0], FG_T_DF_MIN, FG_T_DF_MAX, SHAPE_WHY);
   if (s > 0) need_positive(c, "scale", in->par[2], 1);
+  if (d <= 0 || c->st != FG_OK) return;
+  double *qmax = malloc((size_t)in->size * sizeof *qmax);
+  if (!qmax) {
+    fg_problem_set(c->p, FG_ENOMEM, "out of memory reading %s", c->ptr);
+    c->st = c->st ? c->st : FG_ENOMEM;
+    return;
+  }
+  for (int e = 0; e < in->size; e++)
+    qmax[e] = fg_q_t_inv(1.0, FG_ICDF_P_MIN, in->par[0][e], NULL);
+  need_finite_scale(c, "scale", in->par[2], in->par[1], qmax);
+  free(qmax);
 }
 
 static void parse_poisson(fg_input *in, fg_params *c) {
@@ -583,7 +654,7 @@ fg_status fg_family_parse(fg_input *in, const fg_family_def *def,
   case FG_FAM_TRIANGULAR: parse_triangular(in, &c); break;
   case FG_FAM_PERT: parse_pert(in, &c); break;
   case FG_FAM_EXPONENTIAL: parse_exponential(in, &c); break;
-  case FG_FAM_GAMMA: parse_two_positive(in, &c, "shape", "scale"); break;
+  case FG_FAM_GAMMA: parse_gamma(in, &c); break;
   case FG_FAM_BETA: parse_beta(in, &c); break;
   case FG_FAM_WEIBULL: parse_two_positive(in, &c, "shape", "scale"); break;
   case FG_FAM_STUDENT_T: parse_student_t(in, &c); break;
@@ -710,6 +781,9 @@ static double discrete_icdf(const fg_input *in, double u, double uc) {
 
 double fg_family_icdf(const fg_input *in, int e, double u, double uc) {
   double *const *v = in->par;
+  /* FG_ICDF_P_MIN: only a copula normal beyond -37 sd gets here */
+  if (!(u >= FG_ICDF_P_MIN)) u = FG_ICDF_P_MIN, uc = 1 - u;
+  if (!(uc >= FG_ICDF_P_MIN)) uc = FG_ICDF_P_MIN, u = 1 - uc;
   switch (in->kind) {
   case FG_FAM_NORMAL:
     if (in->truncated) return v[0][e] + v[1][e] * trunc_std(in, e, u, uc);
