@@ -30,12 +30,13 @@
  *  - Quantiles: the root of F(x) - u (or uc - Q(x), whichever tail is the
  *    smaller, so tiny tails keep relative precision) by Newton steps
  *    inside a bracket [lo, hi] kept from the signs seen; a step leaving
- *    the bracket, or two steps that did not halve log(hi/lo), are replaced
- *    by a geometric bisection sqrt(lo hi). Geometric bisection halves
- *    log(hi/lo) (at most about 710 at the start) each time, so the bracket
- *    reaches relative width 2^-52 within about 62 halvings and at most
- *    FG_Q_STEPS_MAX = 200 steps; stopping: a Newton step below 2 ulp, f = 0
- *    or a bracket 4 ulp wide.
+ *    the bracket or not shrinking to half the step two before (rtsafe's
+ *    rule) is replaced by a bisection (geometric, sqrt(lo) sqrt(hi), while
+ *    hi/lo > 4); a bisection is also forced when log(hi/lo) has not halved
+ *    in 8 steps. log(hi/lo) starts at most about 710 and reaches the 2^-52
+ *    relative width within 62 halvings, so FG_Q_STEPS_MAX = 512 steps
+ *    always suffice; stopping: a step below 2 ulp, f = 0 or a bracket 4
+ *    ulp wide, or F within 4 ulp of the target (its own rounding level).
  *  - The beta quantile is solved in whichever of x and 1 - x is below 1/2
  *    at the root (decided by I_{1/2}(a, b)), so both x and 1 - x come back
  *    with full relative precision (the t quantile needs 1 - x).
@@ -63,6 +64,13 @@
 #define LN_SQRT_2PI 0.918938533204672741780329736406
 #define SQRT_2PI 2.506628274631000502415765284811
 
+/* lgamma without the global signgam that lgam() writes (a data race
+ * when workers call it at once); every argument here is positive. */
+static double lgam(double x) {
+  int sign;
+  return lgamma_r(x, &sign);
+}
+
 static void note_terms(fg_qcount *c, int n) {
   if (c && n > c->terms) c->terms = n;
 }
@@ -74,7 +82,7 @@ static double stirlerr(double x) {
   const double s0 = 1.0 / 12, s1 = 1.0 / 360, s2 = 1.0 / 1260,
                s3 = 1.0 / 1680, s4 = 1.0 / 1188;
   if (x <= 15.0)
-    return lgamma(x + 1.0) - (x + 0.5) * log(x) + x - LN_SQRT_2PI;
+    return lgam(x + 1.0) - (x + 0.5) * log(x) + x - LN_SQRT_2PI;
   double xx = x * x;
   if (x > 500) return (s0 - s1 / xx) / x;
   if (x > 80) return (s0 - (s1 - s2 / xx) / xx) / x;
@@ -118,7 +126,7 @@ static double log_dbinom_raw(double x, double n, double p, double q) {
 double fg_q_log_beta(double a, double b) {
   double p = fmin(a, b), q = fmax(a, b);
   if (p >= 16) {
-    /* lgamma(x) = (x - 0.5) log x - x + log sqrt(2 pi) + c(x), where
+    /* lgam(x) = (x - 0.5) log x - x + log sqrt(2 pi) + c(x), where
      * c(x) = stirlerr(x) for x > 15 (the same correction series). */
     double c = stirlerr(p) + stirlerr(q) - stirlerr(p + q);
     return -0.5 * log(q) + LN_SQRT_2PI + c + (p - 0.5) * log(p / (p + q)) +
@@ -126,10 +134,10 @@ double fg_q_log_beta(double a, double b) {
   }
   if (q >= 16) {
     double c = stirlerr(q) - stirlerr(p + q);
-    return lgamma(p) + c + p - p * log(p + q) +
+    return lgam(p) + c + p - p * log(p + q) +
            (q - 0.5) * log1p(-p / (p + q));
   }
-  return lgamma(p) + lgamma(q) - lgamma(p + q);
+  return lgam(p) + lgam(q) - lgam(p + q);
 }
 
 /* log of the Beta(a, b) density at x in (0, 1), given x and y = 1 - x
@@ -263,7 +271,7 @@ static double beta_gexp(double p, double q, double t, double tc,
   double s0 = t <= 0.5 ? -log1p(-t) : -log(tc), z = q * s0;
   double lo, qj;
   fg_q_igamma(p, z, &lo, &qj, cnt);
-  /* log K = lgamma(p+q) - lgamma(q) - p log q, without cancellation */
+  /* log K = lgam(p+q) - lgam(q) - p log q, without cancellation */
   double logk = -q * log1pmx(p / q) + (p - 0.5) * log1p(p / q) +
                 stirlerr(p + q) - stirlerr(q);
   double sum = 0, r = 1;
@@ -414,27 +422,62 @@ static double mid_point(double lo, double hi) {
   return hi > 4 * lo ? sqrt(lo) * sqrt(hi) : lo + 0.5 * (hi - lo);
 }
 
-/* Root in (lo, hi) from the start x; f(lo) < 0 <= f(hi) is assumed. */
+/* Root in (lo, hi) from the start x; f(lo) < 0 <= f(hi) is assumed.
+ * A Newton step is taken when it stays inside the bracket and is at most
+ * half the step two before (Numerical Recipes' rtsafe rule), else the
+ * bisection point; and every SOLVE_WINDOW steps the bracket's log(hi/lo)
+ * must have halved, else the next step is a bisection. So log(hi/lo)
+ * halves at least once per SOLVE_WINDOW steps: from at most about 710 to
+ * the 2^-52 relative width within 62 halvings, 8 x 62 < FG_Q_STEPS_MAX. */
+#define SOLVE_WINDOW 8
+
 static double solve(const qprob *q, double lo, double hi, double x) {
-  double m1 = INFINITY, m2 = INFINITY; /* log(hi/lo) one and two steps ago */
-  int steps = 0;
+  double dx = hi - lo, dxold = dx, mark = log(hi / lo);
+  double xprev = x, fprev = INFINITY;
+  int steps = 0, newton = 0;
   if (!(x > lo && x < hi)) x = mid_point(lo, hi);
   while (steps < FG_Q_STEPS_MAX) {
     steps++;
     double dens, f = qf(q, x, &dens);
-    if (f == 0) break;
+    /* at the CDF's own rounding level (a few ulp of the target) */
+    if (fabs(f) <= 4 * DBL_EPSILON * (q->use_lower ? q->u : q->uc)) break;
+    /* a Newton step of under 1e-10 relative that did not halve |f| has
+     * reached the CDF's rounding floor (its relative error grows like
+     * eps |log F|): keep the better of the two points */
+    if (newton && fabs(x - xprev) <= 1e-10 * x && fabs(f) > 0.5 * fabs(fprev)) {
+      if (fabs(fprev) < fabs(f)) x = xprev;
+      break;
+    }
+    xprev = x;
+    fprev = f;
     if (f < 0) lo = x;
     else hi = x;
-    double m0 = log(hi / lo);
     if (hi - lo <= 4 * DBL_EPSILON * hi) {
       x = f < 0 ? hi : x;
       break;
     }
-    double nx = (dens > 0 && isfinite(dens)) ? x - f / dens : NAN;
-    int force = m0 > 0.5 * m2;
-    if (!(nx > lo && nx < hi) || force) nx = mid_point(lo, hi);
-    m2 = m1;
-    m1 = m0;
+    int force = 0;
+    if (steps % SOLVE_WINDOW == 0) {
+      double m = log(hi / lo);
+      force = m > 0.5 * mark;
+      mark = m;
+    }
+    double step = (dens > 0 && isfinite(dens)) ? f / dens : NAN;
+    double nx = x - step;
+    if (fabs(step) <= 2 * DBL_EPSILON * x) { /* converged */
+      x = nx > lo && nx < hi ? nx : x;
+      break;
+    }
+    if (force || !(nx > lo && nx < hi) || !(fabs(step) <= 0.5 * fabs(dxold))) {
+      nx = mid_point(lo, hi);
+      dxold = dx;
+      dx = nx - x;
+      newton = 0;
+    } else {
+      dxold = dx;
+      dx = -step;
+      newton = 1;
+    }
     if (fabs(nx - x) <= 2 * DBL_EPSILON * x) {
       x = nx;
       break;
@@ -512,7 +555,7 @@ double fg_q_gamma_inv(double u, double uc, double a, fg_qcount *cnt) {
   double z = zq(u, uc), c = 1 / (9 * a);
   double x = a * pow(1 - c + z * sqrt(c), 3); /* Wilson-Hilferty */
   if (a < 1 || !(x > 0)) {
-    double xp = exp((log(u) + lgamma(a + 1)) / a); /* P ~ x^a / Gamma(a+1) */
+    double xp = exp((log(u) + lgam(a + 1)) / a); /* P ~ x^a / Gamma(a+1) */
     if (xp > 0 && xp < hi) x = xp;
   }
   return solve(&q, DBL_MIN, hi, x);
