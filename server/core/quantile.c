@@ -64,7 +64,7 @@
 #define LN_SQRT_2PI 0.918938533204672741780329736406
 #define SQRT_2PI 2.506628274631000502415765284811
 
-/* lgamma without the global signgam that lgam() writes (a data race
+/* lgamma without the global signgam that lgamma() writes (a data race
  * when workers call it at once); every argument here is positive. */
 static double lgam(double x) {
   int sign;
@@ -126,7 +126,7 @@ static double log_dbinom_raw(double x, double n, double p, double q) {
 double fg_q_log_beta(double a, double b) {
   double p = fmin(a, b), q = fmax(a, b);
   if (p >= 16) {
-    /* lgam(x) = (x - 0.5) log x - x + log sqrt(2 pi) + c(x), where
+    /* lgamma(x) = (x - 0.5) log x - x + log sqrt(2 pi) + c(x), where
      * c(x) = stirlerr(x) for x > 15 (the same correction series). */
     double c = stirlerr(p) + stirlerr(q) - stirlerr(p + q);
     return -0.5 * log(q) + LN_SQRT_2PI + c + (p - 0.5) * log(p / (p + q)) +
@@ -271,7 +271,7 @@ static double beta_gexp(double p, double q, double t, double tc,
   double s0 = t <= 0.5 ? -log1p(-t) : -log(tc), z = q * s0;
   double lo, qj;
   fg_q_igamma(p, z, &lo, &qj, cnt);
-  /* log K = lgam(p+q) - lgam(q) - p log q, without cancellation */
+  /* log K = lgamma(p+q) - lgamma(q) - p log q, without cancellation */
   double logk = -q * log1pmx(p / q) + (p - 0.5) * log1p(p / q) +
                 stirlerr(p + q) - stirlerr(q);
   double sum = 0, r = 1;
