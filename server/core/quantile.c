@@ -10,21 +10,24 @@
  *    deviance terms), which has no cancellation at large parameters.
  *  - I_x(a, b): the continued fraction (modified Lentz) on the side of the
  *    mean where it converges (x < (a+1)/(a+b+2), else the complement
- *    1 - I_y(b, a)); it needs about 3 sqrt(min(a, b)) terms near the mean.
+ *    1 - I_y(b, a)); it needs about sqrt(min(a, b))/2 terms near the mean
+ *    (measured: 741 at min(a, b) just below 2e6). The complement with one
+ *    parameter q much larger than the other p is the series in incomplete
+ *    gammas of beta_gexp (the fraction would lose about eps q/p there).
  *    From min(a, b) >= FG_Q_ASYM_MIN on, Temme's uniform asymptotic
- *    expansion ("Incomplete Laplace integrals: uniform asymptotic expansion
- *    with application to the incomplete beta function", SIAM J. Math.
- *    Anal. 18, 1987; Temme, "Special functions", 1996, sec. 11.3.3):
+ *    expansion (N. M. Temme, "Special functions: an introduction to the
+ *    classical functions of mathematical physics", Wiley 1996, ch. 11;
+ *    citation from memory; the form below is derived in the code's terms):
  *    I_x = erfc(-eta sqrt(r/2)) / 2 - exp(-r eta^2/2) / sqrt(2 pi r) c0
  *    with r = a + b, eta the signed root of the deviance and
  *    c0 = s/t - 1/eta (t = x - a/r, s^2 = ab/r^2), the first term of the
  *    correction series; c0 is formed without cancellation near the mean.
  *  - P(a, x), Q(a, x): the power series for x < a + 1, the continued
- *    fraction for Q otherwise (each about 9 sqrt(a) terms at x near a,
- *    measured), Temme's expansion Q = erfc(eta sqrt(a/2))/2 +
+ *    fraction for Q otherwise (each about 8 sqrt(a) terms at x near a,
+ *    measured: 11246 at a just below 2e6), Temme's expansion Q = erfc(eta sqrt(a/2))/2 +
  *    exp(-a eta^2/2) / sqrt(2 pi a) (1/mu - 1/eta), mu = x/a - 1, for
  *    a >= FG_Q_ASYM_MIN (DiDonato & Morris, ACM TOMS 12, 1986, use the same
- *    expansion for large a).
+ *    expansion for large a; citation from memory).
  *  - Every series and fraction stops at FG_Q_TERMS_MAX terms; the
  *    thresholds keep the terms needed well below that (tests assert it).
  *  - Quantiles: the root of F(x) - u (or uc - Q(x), whichever tail is the
@@ -49,8 +52,9 @@
  * Accuracy (checked by tests/reference/test_quantiles.py and
  * test_intervals.py against SciPy and mpmath): quantiles within 1e-9
  * relative (typically 1e-14) for beta a, b in [0.05, 1e12], gamma shape in
- * [0.05, 1e12], t df >= 0.5, for u and uc down to 1e-300, except that a
- * result below the smallest normal double is returned as 0.
+ * [0.05, 1e12], t df in [1, 1e15], for u and uc down to 1e-300, except
+ * that a result below the smallest normal double is returned as 0. The
+ * interval sweep covers a, b up to 1e12 + 1 with a as small as 1/2.
  *
  * Thread use: pure functions; any number of threads at once.
  */
@@ -236,12 +240,14 @@ static void beta_asym(double x, double y, double a, double b, double *lower,
 }
 
 /* 1 - I_t(p, q) for q large, p small against sqrt(q), t on the upper side
- * of the mean: the expansion in incomplete gammas (DiDonato & Morris,
- * ACM TOMS 18, 1992, "BGRAT"; derived here as follows). With
+ * of the mean: the expansion in incomplete gammas (the idea of DiDonato &
+ * Morris's BGRAT, ACM TOMS 18, 1992, citation from memory; derived here as
+ * follows). With
  * s = -log(1 - t), 1 - I_t(p, q) = (1/B(p, q)) int_{s0}^inf
  * s^(p-1) g(s) e^(-q s) ds, g(s) = ((1 - e^-s)/s)^(p-1) = sum_j c_j s^j,
  * log((1 - e^-s)/s) = -s/2 + sum_k B_2k s^2k / (2k (2k)!) (Bernoulli
- * numbers), so 1 - I_t = Gamma(p+q)/(Gamma(q) q^p) sum_j c_j
+ * numbers; Abramowitz & Stegun 23.1), so
+ * 1 - I_t = Gamma(p+q)/(Gamma(q) q^p) sum_j c_j
  * [Gamma(p+j)/Gamma(p)] q^-j Q(p+j, q s0). Term j is about
  * (p^2/(2q))^j / j!, so GEXP_TERMS terms reach 1e-17 when
  * (p + GEXP_TERMS)^2 <= q / GEXP_RATIO. The continued fraction would lose
