@@ -185,7 +185,7 @@ static void need_finite_scale(fg_params *c, const char *name,
     fg_family_param_error(c, FG_EINVAL, name, e,
                           "expected %s <= %.6g so that every quantile down "
                           "to probability %g stays finite (the standard "
-                          "quantile there is %.6g), found %.15g",
+                          "quantile there is at most %.6g), found %.15g",
                           name, bound, FG_ICDF_P_MIN, qmax[e], scale[e]);
     if (!is_array(c, name)) break;
   }
@@ -380,8 +380,13 @@ static void parse_gamma(fg_input *in, fg_params *c) {
     c->st = c->st ? c->st : FG_ENOMEM;
     return;
   }
-  for (int e = 0; e < in->size; e++)
-    qmax[e] = fg_q_gamma_inv(1.0, FG_ICDF_P_MIN, in->par[0][e], NULL);
+  /* Q(a, a + 40 sqrt(a) + 750) < 1e-300 for every a > 0 (the bracket of
+   * fg_q_gamma_inv): a bound on the standard quantile at FG_ICDF_P_MIN
+   * that costs nothing per element. */
+  for (int e = 0; e < in->size; e++) {
+    double a = in->par[0][e];
+    qmax[e] = a + 40 * sqrt(a) + 750;
+  }
   need_finite_scale(c, "scale", in->par[1], NULL, qmax);
   free(qmax);
 }
@@ -405,8 +410,12 @@ static void parse_student_t(fg_input *in, fg_params *c) {
     c->st = c->st ? c->st : FG_ENOMEM;
     return;
   }
+  /* the t quantile at FG_ICDF_P_MIN, once per distinct df in a row
+   * (a vector input usually repeats one df) */
   for (int e = 0; e < in->size; e++)
-    qmax[e] = fg_q_t_inv(1.0, FG_ICDF_P_MIN, in->par[0][e], NULL);
+    qmax[e] = e > 0 && in->par[0][e] == in->par[0][e - 1]
+                  ? qmax[e - 1]
+                  : fg_q_t_inv(1.0, FG_ICDF_P_MIN, in->par[0][e], NULL);
   need_finite_scale(c, "scale", in->par[2], in->par[1], qmax);
   free(qmax);
 }

@@ -152,7 +152,7 @@ for (k, n, level), (lo, hi), (st, te) in zip(reg, iv, cnt):
     rlo = beta.ppf(a / 2, k, n - k + 1)
     rhi = beta.isf(a / 2, k + 1, n - k)
     c.check(rel(lo, rlo) < 1e-9 and rel(hi, rhi) < 1e-9
-            and st <= 2 * STEPS_MAX and te <= TERMS_MAX,
+            and st <= STEPS_MAX and te <= TERMS_MAX,
             "Clopper-Pearson k=%d n=%d level=%g ends: ours (%.17g, %.17g) "
             "scipy (%.17g, %.17g), %d steps, %d terms"
             % (k, n, level, lo, hi, rlo, rhi, st, te))
@@ -200,8 +200,9 @@ for method in ("clopper_pearson", "jeffreys"):
         rhi = np.where(K < N, beta.isf(A / 2, ua, np.maximum(ub, 1e-300)), 1.0)
     finite = np.all(np.isfinite(iv))
     c.check(finite, "%s: every endpoint finite" % method)
-    c.check(int(cnt[:, 0].max()) <= 2 * STEPS_MAX and int(cnt[:, 1].max()) <= TERMS_MAX,
-            "%s: work within the caps (max %d steps for two quantiles, cap %d "
+    # steps are summed over the two endpoints' quantiles: below one cap
+    c.check(int(cnt[:, 0].max()) <= STEPS_MAX and int(cnt[:, 1].max()) <= TERMS_MAX,
+            "%s: work within the caps (max %d steps for both quantiles, cap %d "
             "each; max %d terms, cap %d)" % (method, cnt[:, 0].max(), STEPS_MAX,
                                              cnt[:, 1].max(), TERMS_MAX))
     elo, ehi = rel_arr(iv[:, 0], rlo), rel_arr(iv[:, 1], rhi)
