@@ -384,8 +384,8 @@ static void parse_gamma(fg_input *in, fg_params *c) {
    * fg_q_gamma_inv): a bound on the standard quantile at FG_ICDF_P_MIN
    * that costs nothing per element. */
   for (int e = 0; e < in->size; e++) {
-    double a = in->par[0][e];
-    qmax[e] = a + 40 * sqrt(a) + 750;
+    double sh = in->par[0][e];
+    qmax[e] = sh + 40 * sqrt(sh) + 750;
   }
   need_finite_scale(c, "scale", in->par[1], NULL, qmax);
   free(qmax);
