@@ -182,7 +182,7 @@ def rel_arr(x, ref):
     return np.where(d == 0, 0.0, d / np.maximum(np.abs(ref), 1e-300))
 
 
-MP_BUDGET = 150  # mpmath judgements per method at most (each ~0.1 s)
+MP_BUDGET = 60  # mpmath judgements per method at most (each ~0.2 s), a random choice
 for method in ("clopper_pearson", "jeffreys"):
     t0 = time.time()
     iv, cnt = counted(method, sweep)
