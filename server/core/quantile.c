@@ -520,7 +520,9 @@ static double beta_small_root(double u, double uc, double a, double b,
 double fg_q_beta_inv(double u, double uc, double a, double b, double *xc,
                      fg_qcount *cnt) {
   double x, y;
-  if (!(u > 0)) {
+  if (!(a > 0 && b > 0) || isnan(u) || isnan(uc)) {
+    x = y = NAN; /* invalid parameters: refused before any caller gets here */
+  } else if (!(u > 0)) {
     x = 0, y = 1;
   } else if (!(uc > 0)) {
     x = 1, y = 0;
@@ -549,6 +551,7 @@ double fg_q_beta_inv(double u, double uc, double a, double b, double *xc,
 }
 
 double fg_q_gamma_inv(double u, double uc, double a, fg_qcount *cnt) {
+  if (!(a > 0) || isnan(u) || isnan(uc)) return NAN; /* invalid parameters */
   if (!(u > 0)) return 0;
   if (!(uc > 0)) return INFINITY;
   qprob q = {1, a, 0, u, uc, u <= uc, cnt};
@@ -568,6 +571,7 @@ double fg_q_gamma_inv(double u, double uc, double a, fg_qcount *cnt) {
 }
 
 double fg_q_t_inv(double u, double uc, double df, fg_qcount *cnt) {
+  if (!(df > 0) || isnan(u) || isnan(uc)) return NAN; /* invalid parameters */
   if (!(u > 0)) return -INFINITY;
   if (!(uc > 0)) return INFINITY;
   if (u == uc) return 0;

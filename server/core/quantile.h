@@ -59,7 +59,9 @@ double fg_q_beta_inv(double u, double uc, double a, double b, double *xc,
                      fg_qcount *cnt);
 /* x with P(a, x) = u (and Q(a, x) = uc): the standard gamma (scale 1). */
 double fg_q_gamma_inv(double u, double uc, double a, fg_qcount *cnt);
-/* Standard Student t quantile with df > 0 degrees of freedom. */
+/* Standard Student t quantile with df > 0 degrees of freedom.
+ * The three quantiles return NaN for parameters outside their domain
+ * (a, b, shape, df <= 0 or NaN probabilities), which callers refuse first. */
 double fg_q_t_inv(double u, double uc, double df, fg_qcount *cnt);
 
 #endif
