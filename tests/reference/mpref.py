@@ -100,3 +100,27 @@ def mp_t_xerr(u, uc, df, t):
     dens = (mp.exp(mp.loggamma((D + 1) / 2) - mp.loggamma(D / 2))
             / mp.sqrt(D * mp.pi) * (1 + T * T / D) ** (-(D + 1) / 2))
     return float(abs(tail - min(u, uc)) / (dens * abs(T)))
+
+
+def mp_beta_int_xerr(u, uc, a, b, x, terms_max=2000):
+    """mp_beta_xerr for integer a, b (Clopper-Pearson) by the binomial
+    identity I_x(a, b) = P(Bin(a + b - 1, x) >= a) (Abramowitz & Stegun
+    26.5.24): the smaller of the two sums (at most terms_max terms) at 40
+    digits, exact apart from rounding. None when both sums are longer."""
+    a, b = int(a), int(b)
+    if min(a, b) > terms_max:
+        return None
+    N = a + b - 1
+    X = mp.mpf(x)
+    Y = 1 - X
+    if a <= b:   # upper = P(Bin <= a - 1)
+        up = mp.fsum(mp.binomial(N, j) * X ** j * Y ** (N - j) for j in range(a))
+        lo = 1 - up
+    else:        # lower = P(Bin >= a) = P(Bin(N, 1-x) <= b - 1)
+        lo = mp.fsum(mp.binomial(N, j) * Y ** j * X ** (N - j) for j in range(b))
+        up = 1 - lo
+    A, B = mp.mpf(a), mp.mpf(b)
+    lb = mp.loggamma(A) + mp.loggamma(B) - mp.loggamma(A + B)
+    dens = mp.exp((A - 1) * mp.log(X) + (B - 1) * mp.log(Y) - lb)
+    d = (lo - u) if u <= uc else (uc - up)
+    return float(abs(d) / (dens * min(X, Y)))
