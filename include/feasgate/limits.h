@@ -174,10 +174,11 @@
  * 1e-300), and every quantile below is finite there. */
 #define FG_ICDF_P_MIN 1e-300
 
-/* Beta a and b, gamma shape. Below 0.05 GSL's gamma draw for shape < 1,
- * Gamma(1 + a) U^(1/a), reaches the subnormal range for a 32-bit U, and a
- * beta draw X / (X + Y) could become 0/0; quantiles u^(1/a) lose all
- * relative precision. Above 1e12, a + b nears the range where a/(a+b) no
+/* Beta a and b, gamma shape. For shape a < 1 GSL draws Gamma(1 + a)
+ * U^(1/a) with a 32-bit U (Random123's GSL adaptor), whose smallest value
+ * 2^(-32/a) leaves the normal doubles below a = 0.031 (a beta draw
+ * X / (X + Y) could then become 0/0); 0.05 keeps a margin, and the
+ * quantiles near u^(1/a) stay normal doubles for u >= 1e-15 there. Above 1e12, a + b nears the range where a/(a+b) no
  * longer carries the parameters' digits, and the references the tests use
  * (mpmath quadrature) were run to here. */
 #define FG_SHAPE_PARAM_MIN 0.05
