@@ -191,10 +191,10 @@ def main():
         R.check(st == 200, "B stays ready: %s" % st)
 
         # the database refuses B: /v1/ready says so (503); a check that
-        # (40M samples: seconds in Release, up to minutes under the
-        # sanitizers on a busy machine, hence the generous wait)
         # ends meanwhile is answered from memory and recorded once the
-        # database is back (http/registry.c writes it again every second)
+        # database is back (http/registry.c writes it again every second).
+        # 40M samples take seconds in Release and up to minutes under the
+        # sanitizers on a busy machine, hence the generous wait.
         st, cid2 = start_detached(b, 40000000, 8, H)
         R.check(st == 202, "a check of a few seconds on B: %s" % st)
         psql("ALTER DATABASE %s ALLOW_CONNECTIONS false" % db)
