@@ -74,8 +74,8 @@ static const opt_def options[] = {
      FG_HTTP_URL_MAX, "PEM certificate (chain) file: serve HTTPS"},
     {"--tls-key", "FEASGATE_TLS_KEY", OPT_STRING, OFF(tls_key), 1,
      FG_HTTP_URL_MAX, "PEM private key file of --tls-cert"},
-    {"--insecure", "FEASGATE_INSECURE", OPT_BOOL, OFF(insecure), 0, 0,
-     "allow a non-loopback --listen while the store holds no key"},
+    {"--allow-keyless", "FEASGATE_ALLOW_KEYLESS", OPT_BOOL, OFF(allow_keyless),
+     0, 0, "allow a non-loopback --listen while the store holds no key"},
 };
 
 #define NOPTIONS (sizeof options / sizeof *options)
@@ -235,12 +235,52 @@ static int set_value(fg_http_config *cfg, const opt_def *o, const char *where,
   return fail(err, cap, where, v, "a known setting");
 }
 
+/* The default of one setting as text, for --help. */
+static void show_default(const fg_http_config *d, const opt_def *o, char *out,
+                         size_t cap) {
+  const char *field = (const char *)d + o->offset;
+  static const char *const levels[] = {"debug", "info", "warn", "error"};
+  switch (o->kind) {
+  case OPT_LISTEN: snprintf(out, cap, "%s:%u", d->host, d->port); return;
+  case OPT_STRING:
+    snprintf(out, cap, "%s", field[0] ? field : "(none)");
+    return;
+  case OPT_INT: snprintf(out, cap, "%d", *(const int *)(const void *)field);
+    return;
+  case OPT_U64:
+  case OPT_BYTES:
+    snprintf(out, cap, "%llu",
+             (unsigned long long)*(const uint64_t *)(const void *)field);
+    return;
+  case OPT_SECONDS:
+    snprintf(out, cap, "%g s", *(const double *)(const void *)field);
+    return;
+  case OPT_LEVEL: {
+    int l = (int)*(const fg_log_level *)(const void *)field;
+    snprintf(out, cap, "%s", l >= 0 && l < 4 ? levels[l] : "?");
+    return;
+  }
+  case OPT_BOOL:
+    snprintf(out, cap, "%s", *(const bool *)(const void *)field ? "on" : "off");
+    return;
+  }
+  snprintf(out, cap, "?");
+}
+
 static void usage(FILE *f) {
-  fprintf(f, "usage: feasgate serve [options]\n\n");
-  for (size_t i = 0; i < NOPTIONS; i++)
-    fprintf(f, "  %-16s %-24s %s\n", options[i].flag, options[i].env,
-            options[i].help);
-  fprintf(f, "\nA flag wins over its environment variable.\n");
+  fg_http_config d;
+  defaults(&d);
+  fprintf(f, "usage: feasgate serve [options]\n\n"
+             "  %-16s %-24s %-24s %s\n", "flag", "environment", "default",
+          "meaning");
+  for (size_t i = 0; i < NOPTIONS; i++) {
+    char shown[FG_HTTP_URL_MAX + 32];
+    show_default(&d, &options[i], shown, sizeof shown);
+    fprintf(f, "  %-16s %-24s %-24s %s\n", options[i].flag, options[i].env,
+            shown, options[i].help);
+  }
+  fprintf(f, "\nA flag wins over its environment variable; --workers "
+             "defaults to the\nnumber of processors online.\n");
 }
 
 static bool flag_given(int argc, char **argv, const char *flag) {

@@ -27,13 +27,13 @@
  *   --max-check-time FEASGATE_MAX_CHECK_TIME  3600 seconds (deadline of a check)
  *   --tls-cert FILE  FEASGATE_TLS_CERT        none (PEM; HTTPS with --tls-key)
  *   --tls-key FILE   FEASGATE_TLS_KEY         none (PEM private key)
- *   --insecure       FEASGATE_INSECURE        off (allow a non-loopback
+ *   --allow-keyless  FEASGATE_ALLOW_KEYLESS   off (allow a non-loopback
  *                                             listener with no key)
  *
  * Exit status of fg_serve_command: 0 after a clean stop (SIGINT/SIGTERM),
  * 3 for bad usage or a bad setting (an unreadable TLS file included, and
  * a non-loopback --listen while the store holds no live key and
- * --insecure is not given), 1 when start-up fails for another
+ * --allow-keyless is not given), 1 when start-up fails for another
  * reason (address in use, store cannot be opened).
  *
  * Thread use: fg_serve_command runs on the main thread and owns the
@@ -69,7 +69,7 @@ typedef struct fg_http_config {
   double max_check_s;                 /* --max-check-time */
   char tls_cert[FG_HTTP_URL_MAX + 1]; /* "" = plain HTTP */
   char tls_key[FG_HTTP_URL_MAX + 1];
-  bool insecure;
+  bool allow_keyless;
 } fg_http_config;
 
 /* Defaults, then environment twins, then flags (argv[0] is the subcommand

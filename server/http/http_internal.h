@@ -51,7 +51,7 @@ typedef struct fg_server {
   fg_model_cache *cache;
   fg_registry *registry;
   fg_keyring *keys;   /* live API keys (keys.c) */
-  bool keys_required; /* non-loopback without --insecure: keys even when
+  bool keys_required; /* non-loopback without --allow-keyless: keys even when
                          the store holds none (then nothing keyed opens) */
   struct MHD_Daemon *daemon;
   /* Requests between the first access-handler call and completion. */

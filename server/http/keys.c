@@ -24,7 +24,7 @@
  *
  * Enforcement: keys are required as soon as the store holds a live key,
  *   and always when the daemon listens on a non-loopback address without
- *   --insecure (then an empty key table locks everything but the open
+ *   --allow-keyless (then an empty key table locks everything but the open
  *   routes instead of opening them). The live keys are cached: the cache
  *   is reloaded from the store when older than FG_KEYS_REFRESH_S, or on a
  *   presented key that matches none when the last reload is older than

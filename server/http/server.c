@@ -27,8 +27,8 @@
  *   the bound address, which is the first log line) and hand it to
  *   libmicrohttpd with MHD_OPTION_LISTEN_SOCKET. A listener that is not
  *   loopback (127.0.0.0/8, ::1) is refused (exit 3) while the store holds
- *   no live key, unless --insecure; without --insecure it then also keeps
- *   requiring keys should every key be revoked later.
+ *   no live key, unless --allow-keyless; without --allow-keyless it then
+ *   also keeps requiring keys should every key be revoked later.
  *
  *   HTTPS: with --tls-cert and --tls-key both PEM files are read at
  *   start-up (at most FG_HTTP_TLS_FILE_MAX bytes each) and handed to
@@ -504,12 +504,14 @@ int fg_serve_command(int argc, char **argv) {
     fg_log_msg(FG_LOG_ERROR, "start_failed", "reading the keys: %s", p.detail);
     goto cleanup;
   }
-  srv->keys_required = !srv->cfg.insecure && !bound_to_loopback(listen_fd);
+  srv->keys_required =
+      !srv->cfg.allow_keyless && !bound_to_loopback(listen_fd);
   if (srv->keys_required && fg_keyring_live(srv->keys) == 0) {
     fg_log_msg(FG_LOG_ERROR, "start_refused",
                "--listen %s is not a loopback address and the store %s holds "
                "no live key: add one with `feasgate keys add NAME --role "
-               "admin --store %s`, or give --insecure to serve without keys",
+               "admin --store %s`, or give --allow-keyless to serve "
+               "without keys",
                address, store_shown, store_shown);
     status = 3;
     goto cleanup;

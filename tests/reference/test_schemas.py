@@ -121,9 +121,9 @@ WATER_POINTS = {
         {"name": "held", "value": "tanks * (1 - leak) + refills / 3"},
         {"name": "drawn", "value": "visitors * heat_hours / 7 * (1 + reserve_share)"},
         {"name": "spare", "elements": [
-            "pos(held[0] - drawn[0])",
-            "spare[0] + pos(held[1] - drawn[1])",
-            "spare[1] + pos(held[2] - drawn[2])"]},
+            "above_zero(held[0] - drawn[0])",
+            "spare[0] + above_zero(held[1] - drawn[1])",
+            "spare[1] + above_zero(held[2] - drawn[2])"]},
     ],
     "constraints": [
         {"name": "no_shortfall", "require": "drawn <= held"},
