@@ -297,6 +297,11 @@
 /* Bytes of a request file at most. */
 #define FG_REMOTE_REQUEST_MAX (16u * 1024 * 1024)
 
+/* Rows the `check --summary` table prints by default (--rows N changes
+ * it): a terminal page; the table then says how many it left out and the
+ * JSON result lists every row. */
+#define FG_SUMMARY_ROWS_DEFAULT 40
+
 /* Seconds libmicrohttpd keeps an idle connection open. */
 #define FG_HTTP_IDLE_TIMEOUT_S 120
 

@@ -51,7 +51,7 @@ static const opt_def options[] = {
     {"--workers", "FEASGATE_WORKERS", OPT_INT, OFF(workers), 1, FG_WORKERS_MAX,
      "simulation worker threads"},
     {"--chunk", "FEASGATE_CHUNK", OPT_INT, OFF(chunk), FG_CHUNK_MIN,
-     FG_CHUNK_MAX, "samples per worker task (a multiple of FG_BLOCK)"},
+     FG_CHUNK_MAX, "samples per worker task (a multiple of 256)"},
     {"--queue", "FEASGATE_QUEUE", OPT_INT, OFF(queue), 1, FG_HTTP_QUEUE_MAX,
      "checks waiting for a worker at most"},
     {"--max-body", "FEASGATE_MAX_BODY", OPT_BYTES, OFF(max_body), 1,

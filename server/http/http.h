@@ -47,6 +47,7 @@
 
 #include <stdbool.h>
 #include <stddef.h>
+#include <stdio.h>
 #include <stdint.h>
 
 
@@ -90,6 +91,15 @@ int fg_keys_command(int argc, char **argv);
  * (argv[0] = "check"; remote.c): the check run by a daemon, the result
  * printed; 0 pass, 1 fail, 2 inconclusive, 3 anything else. */
 int fg_remote_check_command(int argc, char **argv);
+
+/* The `check --summary` table of a result body, at most `max_rows` rows
+ * and then how many were left out (summary.c). */
+void fg_summary_print(FILE *f, const struct cJSON *res, int max_rows);
+
+/* Line and column (1-based, columns in characters) of byte `offset` of
+ * `text`, for malformed-JSON messages (summary.c). */
+void fg_text_position(const char *text, size_t len, long long offset,
+                      int *line, int *column);
 
 /* The sample-size answer (GET /v1/sample-size, `feasgate sample-size`)
  * for `n` parameters given by name and text: the inputs echoed, "method"
