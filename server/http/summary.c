@@ -102,8 +102,8 @@ void fg_summary_print(FILE *f, const cJSON *res, int max_rows) {
   fprintf(f, "\n%-28s %12s %10s %13s %13s %13s %12s\n", "row (worst first)",
           "P(violated)", "sole", "mean excess", "mean excess", "p95 excess",
           "max excess");
-  fprintf(f, "%-28s %12s %10s %13s %13s %13s %12s\n", "", "", "",
-          "(all samples)", "(if violated)", "(if violated)", "");
+  fprintf(f, "%-28s %12s %10s %13s %13s %13s\n", "", "", "",
+          "(all samples)", "(if violated)", "(if violated)");
   const cJSON *r;
   cJSON_ArrayForEach(r, rows) {
     if (shown >= max_rows) break;
