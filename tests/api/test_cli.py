@@ -158,6 +158,14 @@ def test_option_errors():
         (("check", "--server", "http://127.0.0.1:9", "--rows", "-1",
           "theatre-list", r), "--rows: expected"),
         (("serve", "--workers", "0"), "--workers: expected"),
+        (("sample-size", "--half-width", "x", "--confidence", "0.95"),
+         "--half-width: expected"),
+        (("sample-size", "--half-width", "2", "--confidence", "0.95"),
+         "--half-width: must be"),
+        (("sample-size", "--bogus", "1"), "--bogus: unknown option"),
+        (("keys", "add", "ci", "--role", "boss", "--store",
+          "sqlite:" + os.path.join(TMP, "k.db")), "--role: expected"),
+        (("keys", "list", "--store"), "--store: expected a value"),
     ]
     for args, want in cases:
         p = run(*args)
