@@ -32,7 +32,7 @@
  * Odd cases:
  *   - MIN and MAX propagate NaN (unlike fmin/fmax), so a NaN never hides
  *     inside a maximum and turns a violated row into a satisfied one;
- *   - POS(NaN) is NaN for the same reason;
+ *   - ABOVE_ZERO(NaN) is NaN for the same reason;
  *   - comparisons with a NaN operand give 0, except NE which gives 1;
  *     comparisons of infinities follow IEEE (inf <= inf is 1);
  *   - EXCESS(a, b) is a - b except 0 where a == b, so two equal
