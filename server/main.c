@@ -146,6 +146,15 @@ static char *read_file(const char *path, size_t *len) {
  * offset into it is shown as line and column. */
 static void print_problem(const char *what, const fg_problem *p,
                           const char *text, size_t len) {
+  if (p->byte_offset >= 0 && text) {
+    /* Malformed JSON: the file's line and column first, as an editor
+     * shows them; the detail repeats the byte offset. */
+    int line, col;
+    fg_text_position(text, len, p->byte_offset, &line, &col);
+    fprintf(stderr, "feasgate: %s: line %d, column %d: %s\n", what, line,
+            col, p->detail[0] ? p->detail : p->title);
+    return;
+  }
   fprintf(stderr, "feasgate: %s: %s%s%s\n", what, p->title,
           p->detail[0] ? ": " : "", p->detail);
   for (int i = 0; i < p->nitems; i++) {
@@ -158,12 +167,7 @@ static void print_problem(const char *what, const fg_problem *p,
               it->message);
   }
   if (p->dropped) fprintf(stderr, "  ... and %d more\n", p->dropped);
-  if (p->byte_offset >= 0 && text) {
-    int line, col;
-    fg_text_position(text, len, p->byte_offset, &line, &col);
-    fprintf(stderr, "  (at line %d, column %d; byte offset %lld)\n", line,
-            col, p->byte_offset);
-  } else if (p->byte_offset >= 0) {
+  if (p->byte_offset >= 0) {
     fprintf(stderr, "  (at byte offset %lld)\n", p->byte_offset);
   }
 }

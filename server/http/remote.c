@@ -415,11 +415,12 @@ int fg_remote_check_command(int argc, char **argv) {
     if (fg_json_parse(body, len, &parsed, &p) != FG_OK) {
       int line = 0, col = 0;
       fg_text_position(body, len, p.byte_offset, &line, &col);
-      fprintf(stderr, "feasgate check: %s: %s%s%s\n", args[1], p.title,
-              p.detail[0] ? ": " : "", p.detail);
       if (p.byte_offset >= 0)
-        fprintf(stderr, "  (at line %d, column %d; byte offset %lld)\n",
-                line, col, p.byte_offset);
+        fprintf(stderr, "feasgate check: %s: line %d, column %d: %s\n",
+                args[1], line, col, p.detail[0] ? p.detail : p.title);
+      else
+        fprintf(stderr, "feasgate check: %s: %s%s%s\n", args[1], p.title,
+                p.detail[0] ? ": " : "", p.detail);
       free(body);
       return EXIT_ERROR;
     }
