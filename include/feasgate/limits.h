@@ -134,6 +134,17 @@
 /* Worker threads. */
 #define FG_WORKERS_MAX 256
 
+/* Seconds a check that was told to stop (cancelled, out of time, shutting
+ * down) waits for its workers before it ends without them: workers test
+ * the flags once per block (milliseconds), so a worker still busy after
+ * this is stuck in one long call; its late result is discarded. */
+#define FG_STUCK_WORKER_S 1.0
+/* How often the pool's clock looks for deadlines and stuck workers. */
+#define FG_POOL_CLOCK_MS 20
+/* Seconds fg_pool_free waits for its workers to leave before it leaves
+ * the stuck ones behind (after FG_STUCK_WORKER_S has ended their checks). */
+#define FG_POOL_EXIT_WAIT_S 2.5
+
 /* Sample-size calculations (GET /v1/sample-size): decision variables and
  * discarded scenarios of a scenario-approach query (each term of the
  * binomial tail is summed, so the cost grows with decisions + discarded),
