@@ -460,6 +460,11 @@ int fg_serve_command(int argc, char **argv) {
     }
   }
   fg_metrics_start();
+  /* Test builds only (-DFG_FAULTS=ON): arm the faults the environment
+   * names, before any worker exists. */
+  if (fg_faults_init())
+    fg_log_msg(FG_LOG_WARN, "fault_seam",
+               "this is a test build with the fault seam compiled in");
   pthread_mutex_init(&srv->inflight_lock, NULL);
   pthread_cond_init(&srv->inflight_cv, NULL);
   atomic_init(&srv->stopping, false);
