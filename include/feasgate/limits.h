@@ -143,7 +143,7 @@
 #define FG_POOL_CLOCK_MS 20
 /* Seconds fg_pool_free waits for its workers to leave before it leaves
  * the stuck ones behind (after FG_STUCK_WORKER_S has ended their checks). */
-#define FG_POOL_EXIT_WAIT_S 2.5
+#define FG_POOL_EXIT_WAIT_S (FG_STUCK_WORKER_S + 0.5)
 
 /* Sample-size calculations (GET /v1/sample-size): decision variables and
  * discarded scenarios of a scenario-approach query (each term of the

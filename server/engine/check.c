@@ -369,7 +369,8 @@ static void finalize(struct fg_check *c) {
 
 void fg_check_finish(struct fg_check *c) {
   pthread_mutex_lock(&c->merge_mu);
-  bool all = atomic_load(&c->merged_chunks) == c->nchunks;
+  bool all = atomic_load(&c->merged_chunks) == c->nchunks &&
+             (!c->has_in_sample || atomic_load(&c->in_sample_whole));
   fg_check_state end;
   if (all || atomic_load(&c->frozen))
     end = FG_CHECK_DONE;
@@ -428,6 +429,7 @@ fg_status fg_check_start(fg_pool *pool, fg_model *m,
   atomic_init(&c->snap_sat, 0);
   atomic_init(&c->in_sample_count, 0);
   atomic_init(&c->in_sample_satisfied, 0);
+  atomic_init(&c->in_sample_whole, false);
   atomic_init(&c->state, FG_CHECK_QUEUED);
   pthread_cond_init(&c->done_cv, NULL);
   pthread_mutex_init(&c->end_mu, NULL);

@@ -90,6 +90,7 @@ struct fg_check {
    * (atomic) so a running check's body can show them once written. */
   bool has_in_sample;
   int in_sample_task; /* (pool) 0 none, 1 waiting, 2 running, 3 ended */
+  atomic_bool in_sample_whole; /* it evaluated every scenario asked for */
   _Atomic uint64_t in_sample_satisfied, in_sample_count;
 
   double t_start, deadline; /* monotonic seconds; deadline 0 = none */

@@ -209,6 +209,7 @@ static bool run_in_sample(fg_eval_ctx *ctx, struct fg_check *c) {
                                 &t, &c->cancel_flag, &c->timeout_flag, NULL);
   atomic_store(&c->in_sample_satisfied, t.satisfied);
   atomic_store(&c->in_sample_count, t.n);
+  atomic_store(&c->in_sample_whole, ok);
   fg_tally_free(&t);
   return ok;
 }

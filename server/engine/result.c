@@ -185,7 +185,9 @@ cJSON *fg_check_result_json(fg_check *c, const fg_check_meta *meta) {
     }
   }
 
-  if (c->has_in_sample) {
+  /* Shown once evaluated (it is the check's first task; a cancelled one
+   * shows what was evaluated before the cancel). */
+  if (c->has_in_sample && c->in_sample_count > 0) {
     cJSON *is = cJSON_AddObjectToObject(o, "in_sample");
     add_u64(is, "seed", c->req.in_sample_seed);
     cJSON_AddNumberToObject(is, "count", (double)c->in_sample_count);

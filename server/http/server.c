@@ -462,9 +462,7 @@ int fg_serve_command(int argc, char **argv) {
   fg_metrics_start();
   /* Test builds only (-DFG_FAULTS=ON): arm the faults the environment
    * names, before any worker exists. */
-  if (fg_faults_init())
-    fg_log_msg(FG_LOG_WARN, "fault_seam",
-               "this is a test build with the fault seam compiled in");
+  bool faults = fg_faults_init();
   pthread_mutex_init(&srv->inflight_lock, NULL);
   pthread_cond_init(&srv->inflight_cv, NULL);
   atomic_init(&srv->stopping, false);
@@ -574,6 +572,9 @@ int fg_serve_command(int argc, char **argv) {
     /* Written whatever --log-level says: clients wait for this line. */
     fg_log_force(FG_LOG_INFO, ev);
   }
+  if (faults) /* after "listening": clients read that line first */
+    fg_log_msg(FG_LOG_WARN, "fault_seam",
+               "this is a test build with the fault seam compiled in");
   if (interrupted > 0)
     fg_log_msg(FG_LOG_WARN, "interrupted_checks",
                "%d check(s) left running by an earlier process are now "
