@@ -44,8 +44,9 @@ bool fg_check_state_is_end(fg_check_state s) {
 }
 
 fg_check_state fg_check_state_parse(const char *s) {
+  /* QUEUED reads as "running" too: RUNNING is the one a name gives. */
   static const fg_check_state all[] = {
-      FG_CHECK_QUEUED,    FG_CHECK_RUNNING, FG_CHECK_DONE,
+      FG_CHECK_RUNNING, FG_CHECK_DONE,
       FG_CHECK_CANCELLED, FG_CHECK_TIMED_OUT, FG_CHECK_FAILED,
       FG_CHECK_INTERRUPTED};
   for (size_t i = 0; s && i < sizeof all / sizeof *all; i++)
