@@ -69,7 +69,18 @@ struct fg_comparison {
   cmp_stage stage;  /* (mu) */
   char *final_text; /* (mu) once stored */
   fg_check_state status; /* (mu) once stored */
+  fg_job_hook *on_stored; /* (mu) called once the result is stored */
+  void *on_stored_ctx;    /* (mu) */
 };
+
+void fg_comparison_on_stored(fg_comparison *c, fg_job_hook *hook, void *ctx) {
+  pthread_mutex_lock(&c->mu);
+  bool now = c->stage == CMP_STORED;
+  c->on_stored = now ? NULL : hook;
+  c->on_stored_ctx = ctx;
+  pthread_mutex_unlock(&c->mu);
+  if (now && hook) hook(ctx);
+}
 
 fg_comparison *fg_comparison_ref(fg_comparison *c) {
   if (c) atomic_fetch_add(&c->refs, 1);
@@ -240,23 +251,29 @@ bool fg_comparison_step(fg_comparison *c) {
     if (!ok) cJSON_AddStringToObject(ev, "store_error", p.detail);
     fg_log_emit(ok ? FG_LOG_INFO : FG_LOG_ERROR, ev);
   }
+  fg_job_hook *hook = NULL;
+  void *hctx = NULL;
   pthread_mutex_lock(&c->mu);
   if (ok) {
     c->stage = CMP_STORED;
     c->final_text = text;
     c->status = status;
     text = NULL;
+    hook = c->on_stored;
+    hctx = c->on_stored_ctx;
+    c->on_stored = NULL;
   } else {
     c->stage = CMP_RUNNING; /* the watcher tries again */
   }
   pthread_cond_broadcast(&c->cv);
   pthread_mutex_unlock(&c->mu);
   free(text);
+  if (hook) hook(hctx);
   return ok;
 }
 
 /* The answer: the stored text once stored, else the live body. */
-static void answer(fg_comparison *c, int status, fg_resp *out) {
+void fg_comparison_answer(fg_comparison *c, int status, fg_resp *out) {
   char *text = NULL;
   pthread_mutex_lock(&c->mu);
   if (c->stage == CMP_STORED && c->final_text) text = strdup(c->final_text);
@@ -391,10 +408,10 @@ void fg_h_comparisons_create(fg_req *r, fg_resp *out) {
     if (!fg_job_ended(c->jobs[i])) fg_job_detach(c->jobs[i]);
   if (all && fg_comparison_step(c)) {
     fg_registry_poke(srv->registry);
-    answer(c, 200, out);
+    fg_comparison_answer(c, 200, out);
     goto done;
   }
-  answer(c, 202, out);
+  fg_comparison_answer(c, 202, out);
 
 done:
   fg_comparison_unref(c);
@@ -466,7 +483,7 @@ void fg_h_comparison_get(fg_req *r, fg_resp *out) {
   if (!valid_id(id, out)) return;
   fg_comparison *c = fg_registry_find_comparison(r->srv->registry, id);
   if (c) {
-    answer(c, 200, out);
+    fg_comparison_answer(c, 200, out);
     fg_comparison_unref(c);
     return;
   }
@@ -509,7 +526,7 @@ void fg_h_comparison_cancel(fg_req *r, fg_resp *out) {
                     "recorded yet; GET it shortly",
                     id);
     } else {
-      answer(c, 200, out);
+      fg_comparison_answer(c, 200, out);
     }
     fg_registry_poke(r->srv->registry);
     fg_comparison_unref(c);

@@ -222,6 +222,12 @@ fg_status fg_job_retry_unsaved(fg_job *j, fg_problem *p);
 cJSON *fg_job_body(fg_job *j);
 /* The same as the answer `status` in *out. */
 void fg_job_answer(fg_job *j, int status, fg_resp *out);
+/* Called once (with no lock held, on the thread that records it) when the
+ * end is recorded -- at once when it already is. For a handler that
+ * suspends its connection instead of waiting: resume it from the hook,
+ * then fg_job_answer. One hook per job; a second call replaces it. */
+typedef void fg_job_hook(void *ctx);
+void fg_job_on_recorded(fg_job *j, fg_job_hook *hook, void *ctx);
 
 /* ---- comparison.c: comparisons as detached jobs ---- */
 typedef struct fg_comparison fg_comparison;
@@ -237,6 +243,10 @@ bool fg_comparison_ended(fg_comparison *c);
 /* Watcher: when every candidate has ended, record them and the
  * comparison; true when the comparison is stored (it may be unlisted). */
 bool fg_comparison_step(fg_comparison *c);
+/* The body as GET shows it (the stored text once stored, else live). */
+void fg_comparison_answer(fg_comparison *c, int status, fg_resp *out);
+/* As fg_job_on_recorded, once the comparison's result is stored. */
+void fg_comparison_on_stored(fg_comparison *c, fg_job_hook *hook, void *ctx);
 
 /* ---- sizes.c ---- */
 void fg_h_sample_size(fg_req *r, fg_resp *out);

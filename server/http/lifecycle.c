@@ -71,6 +71,8 @@ struct fg_job {
   fg_status store_st;    /* (mu) status of the last write of the end */
   char store_err[256];   /* (mu) its detail */
   int attempts;          /* (mu) writes of the end tried */
+  fg_job_hook *on_recorded; /* (mu) called once the end is recorded */
+  void *on_recorded_ctx;    /* (mu) */
 };
 
 static void add_string_or_null(cJSON *o, const char *name, const char *s) {
@@ -286,6 +288,28 @@ void fg_job_answer(fg_job *j, int status, fg_resp *out) {
 
 /* ---- the end ---- */
 
+/* Take the hook (under mu) when the end is recorded or kept; the caller
+ * calls it with no lock held. */
+static fg_job_hook *take_hook(fg_job *j, void **ctx) {
+  fg_job_hook *h = NULL;
+  if (j->state == JOB_RECORDED || j->state == JOB_UNSAVED) {
+    h = j->on_recorded;
+    *ctx = j->on_recorded_ctx;
+    j->on_recorded = NULL;
+  }
+  return h;
+}
+
+void fg_job_on_recorded(fg_job *j, fg_job_hook *hook, void *ctx) {
+  pthread_mutex_lock(&j->mu);
+  j->on_recorded = hook;
+  j->on_recorded_ctx = ctx;
+  void *c = NULL;
+  fg_job_hook *h = take_hook(j, &c);
+  pthread_mutex_unlock(&j->mu);
+  if (h) h(c);
+}
+
 /* The store row of the end, from the outcome (no JSON read back). */
 static void row_of(const fg_job *j, const fg_check_outcome *o,
                    const char *finished, fg_store_check *fin) {
@@ -382,7 +406,10 @@ fg_status fg_job_record_end(fg_job *j, fg_problem *p) {
   j->attempts = 1;
   j->state = st == FG_OK || !text ? JOB_RECORDED : JOB_UNSAVED;
   pthread_cond_broadcast(&j->cv);
+  void *hctx = NULL;
+  fg_job_hook *hook = take_hook(j, &hctx);
   pthread_mutex_unlock(&j->mu);
+  if (hook) hook(hctx);
   return st;
 }
 
