@@ -210,8 +210,9 @@
  * for more than an hour is a misconfiguration, not a use. */
 #define FG_HTTP_WAIT_MAX_S 3600.0
 
-/* Running checks get this long to finish at shutdown before they are
- * cancelled and recorded as cancelled. */
+/* Running checks, and the requests waiting for them, get this long to
+ * finish at shutdown before the checks are cancelled and recorded as
+ * cancelled (the stop then takes a few seconds more at most). */
 #define FG_HTTP_GRACE_DEFAULT 30.0
 
 /* Hard bound of --max-scenarios: a scenario table of 10^8 rows is already
@@ -284,9 +285,10 @@
  * limits header size. Bodies are ours and limited by --max-body. */
 #define FG_HTTP_CONN_MEMORY (64 * 1024)
 
-/* Seconds added to --max-wait when waiting for requests in flight at
- * shutdown: time to record and answer after the wait itself. */
-#define FG_HTTP_DRAIN_MARGIN_S 10.0
+/* At shutdown, after --grace, the running checks are cancelled; seconds
+ * the requests waiting for them then get to be answered: the engine ends
+ * a cancelled check within FG_STUCK_WORKER_S, and its end is recorded. */
+#define FG_HTTP_STOP_ANSWER_S (FG_STUCK_WORKER_S + 2.0)
 
 /* Bytes of a refused body (beyond --max-body) read and thrown away so
  * that the client still gets its 413; past this the connection is closed.

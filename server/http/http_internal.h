@@ -266,6 +266,8 @@ fg_comparison *fg_registry_find_comparison(fg_registry *g, const char *id);
 int fg_registry_count(fg_registry *g);
 /* Ended checks whose end the store has not taken yet (retried). */
 int fg_registry_unsaved(fg_registry *g);
+/* Cancel every listed check still running (shutdown). */
+void fg_registry_cancel_all(fg_registry *g);
 /* Let listed checks run up to grace_s, cancel the rest, record every one,
  * stop the watcher thread. */
 void fg_registry_shutdown(fg_registry *g, double grace_s);

@@ -343,6 +343,23 @@ int fg_registry_count(fg_registry *g) {
   return n;
 }
 
+void fg_registry_cancel_all(fg_registry *g) {
+  fg_job *jobs[FG_REGISTRY_BATCH];
+  int n = 0;
+  pthread_mutex_lock(&g->lock);
+  for (fg_entry *e = g->head; e && n < FG_REGISTRY_BATCH; e = e->next)
+    if (e->job && !fg_job_ended(e->job)) jobs[n++] = fg_job_ref(e->job);
+  pthread_cond_signal(&g->wake);
+  pthread_mutex_unlock(&g->lock);
+  if (n > 0)
+    fg_log_msg(FG_LOG_WARN, "cancelling", "cancelling %d running check(s)",
+               n);
+  for (int i = 0; i < n; i++) {
+    fg_job_cancel(jobs[i]);
+    fg_job_unref(jobs[i]);
+  }
+}
+
 /* Wait (under lock) until no entry is listed or `seconds` pass. */
 static void wait_empty(fg_registry *g, double seconds) {
   struct timespec ts;
@@ -363,17 +380,8 @@ void fg_registry_shutdown(fg_registry *g, double grace_s) {
     wait_empty(g, grace_s);
   }
   if (g->head) {
-    fg_log_msg(FG_LOG_WARN, "cancelling", "cancelling %d running check(s)",
-               g->njobs);
-    fg_job *jobs[FG_REGISTRY_BATCH];
-    int n = 0;
-    for (fg_entry *e = g->head; e && n < FG_REGISTRY_BATCH; e = e->next)
-      if (e->job) jobs[n++] = fg_job_ref(e->job);
     pthread_mutex_unlock(&g->lock);
-    for (int i = 0; i < n; i++) {
-      fg_job_cancel(jobs[i]);
-      fg_job_unref(jobs[i]);
-    }
+    fg_registry_cancel_all(g);
     pthread_mutex_lock(&g->lock);
     wait_empty(g, FG_REGISTRY_CANCEL_WAIT_S);
   }

@@ -232,7 +232,17 @@ def test_stuck_sigterm(tmp):
         return
     d.request("POST", "/v1/models", MODEL)
     ids = []
-    for seed in (778, 9, 10):
+    # The stuck check's client waits (wait_s 60): it must be answered.
+    waiter = {}
+
+    def wait_for_stuck():
+        waiter["r"] = d.request("POST", CHECKS,
+                                {"decision": {"cap": 60}, "samples": BIG,
+                                 "seed": 778, "wait_s": 60})
+
+    t = threading.Thread(target=wait_for_stuck)
+    t.start()
+    for seed in (9, 10):
         st, cid, _ = start(d, seed)
         check(st == 202, "check seed %d acknowledged: %s" % (seed, st))
         if cid:
@@ -241,6 +251,13 @@ def test_stuck_sigterm(tmp):
     t0 = time.monotonic()
     code = d.stop()
     dt = time.monotonic() - t0
+    t.join(30)
+    st, _, b = waiter.get("r", (None, None, None))
+    check(st == 201 and isinstance(b, dict) and b.get("status") == "cancelled",
+          "the client waiting for the stuck check is answered, cancelled: "
+          "%s %r" % (st, b.get("status") if isinstance(b, dict) else b))
+    if isinstance(b, dict) and b.get("id"):
+        ids.append(b["id"])
     check(code == 0, "SIGTERM with a stuck worker: exit 0, got %r" % code)
     check(dt < grace + 5, "it exits within --grace + 5 s: %.2f s" % dt)
     db = sqlite3.connect(path)
