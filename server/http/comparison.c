@@ -66,9 +66,9 @@ struct fg_comparison {
   double confidence;
   pthread_mutex_t mu;
   pthread_cond_t cv;
-  cmp_stage stage;  /* (mu) */
-  char *final_text; /* (mu) once stored */
-  fg_check_state status; /* (mu) once stored */
+  cmp_stage stage;        /* (mu) */
+  char *final_text;       /* (mu) once stored */
+  fg_check_state status;  /* (mu) once stored */
   fg_job_hook *on_stored; /* (mu) called once the result is stored */
   void *on_stored_ctx;    /* (mu) */
 };
@@ -89,7 +89,8 @@ fg_comparison *fg_comparison_ref(fg_comparison *c) {
 
 void fg_comparison_unref(fg_comparison *c) {
   if (!c || atomic_fetch_sub(&c->refs, 1) != 1) return;
-  for (int i = 0; i < c->n; i++) fg_job_unref(c->jobs[i]);
+  for (int i = 0; i < c->n; i++)
+    fg_job_unref(c->jobs[i]);
   free(c->final_text);
   pthread_cond_destroy(&c->cv);
   pthread_mutex_destroy(&c->mu);
@@ -190,7 +191,8 @@ bool fg_comparison_step(fg_comparison *c) {
   for (int i = 0; i < c->n; i++)
     if (!fg_job_ended(c->jobs[i])) return false;
   pthread_mutex_lock(&c->mu);
-  while (c->stage == CMP_FINISHING) pthread_cond_wait(&c->cv, &c->mu);
+  while (c->stage == CMP_FINISHING)
+    pthread_cond_wait(&c->cv, &c->mu);
   if (c->stage == CMP_STORED) {
     pthread_mutex_unlock(&c->mu);
     return true;
@@ -235,7 +237,8 @@ bool fg_comparison_step(fg_comparison *c) {
   fin.result = text;
   fg_problem p;
   fg_problem_init(&p);
-  if (ok && text && fg_store_finish_comparison(c->srv->store, &fin, &p) != FG_OK)
+  if (ok && text &&
+      fg_store_finish_comparison(c->srv->store, &fin, &p) != FG_OK)
     ok = false;
   if (!text) ok = false;
   cJSON *ev = cJSON_CreateObject();
@@ -299,7 +302,8 @@ static fg_check_state stored_status(fg_comparison *c) {
 
 /* Cancel and record candidates started before a refusal. */
 static void abandon(fg_job **jobs, int n) {
-  for (int i = 0; i < n; i++) fg_job_cancel(jobs[i]);
+  for (int i = 0; i < n; i++)
+    fg_job_cancel(jobs[i]);
   for (int i = 0; i < n; i++) {
     fg_job_wait(jobs[i], -1);
     fg_problem p;
@@ -514,7 +518,8 @@ void fg_h_comparison_cancel(fg_req *r, fg_resp *out) {
       fg_comparison_unref(c);
       return;
     }
-    for (int i = 0; i < c->n; i++) fg_job_cancel(c->jobs[i]);
+    for (int i = 0; i < c->n; i++)
+      fg_job_cancel(c->jobs[i]);
     double until = fg_time_monotonic() + FG_HTTP_CANCEL_WAIT_S;
     for (int i = 0; i < c->n; i++) {
       double left = until - fg_time_monotonic();

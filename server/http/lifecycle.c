@@ -60,17 +60,17 @@ struct fg_job {
   atomic_int refs;
   fg_server *srv;
   fg_check *check;
-  fg_store_check rec; /* the running row; request and result NULL */
-  char comparison[40]; /* the comparison it is a candidate of; "" none */
+  fg_store_check rec;   /* the running row; request and result NULL */
+  char comparison[40];  /* the comparison it is a candidate of; "" none */
   atomic_bool detached; /* its request was answered before its end */
   pthread_mutex_t mu;
   pthread_cond_t cv;
-  job_record state;      /* (mu) */
-  char *final_text;      /* (mu) the final body as stored */
-  fg_store_check final;  /* (mu) the final row (result = final_text) */
-  fg_status store_st;    /* (mu) status of the last write of the end */
-  char store_err[256];   /* (mu) its detail */
-  int attempts;          /* (mu) writes of the end tried */
+  job_record state;         /* (mu) */
+  char *final_text;         /* (mu) the final body as stored */
+  fg_store_check final;     /* (mu) the final row (result = final_text) */
+  fg_status store_st;       /* (mu) status of the last write of the end */
+  char store_err[256];      /* (mu) its detail */
+  int attempts;             /* (mu) writes of the end tried */
   fg_job_hook *on_recorded; /* (mu) called once the end is recorded */
   void *on_recorded_ctx;    /* (mu) */
 };
@@ -243,8 +243,7 @@ bool fg_job_unsaved(fg_job *j) {
  * moment). No lock held. */
 static cJSON *live_body(fg_job *j) {
   char ended_at[32] = "";
-  if (fg_check_ended(j->check))
-    fg_time_now_rfc3339(ended_at, sizeof ended_at);
+  if (fg_check_ended(j->check)) fg_time_now_rfc3339(ended_at, sizeof ended_at);
   fg_check_meta meta = {.id = j->rec.id,
                         .model_version = j->rec.version,
                         .created_at = j->rec.created_at,
@@ -331,8 +330,7 @@ static void row_of(const fg_job *j, const fg_check_outcome *o,
 }
 
 static void log_end(const fg_job *j, const fg_store_check *fin,
-                    const fg_check_outcome *o, fg_status st,
-                    const char *err) {
+                    const fg_check_outcome *o, fg_status st, const char *err) {
   cJSON *ev = cJSON_CreateObject();
   if (!ev) return;
   cJSON_AddStringToObject(ev, "event", "check");
@@ -364,10 +362,10 @@ static void log_end(const fg_job *j, const fg_store_check *fin,
 fg_status fg_job_record_end(fg_job *j, fg_problem *p) {
   fg_check_outcome o;
   if (!fg_check_get_outcome(j->check, &o))
-    return fg_problem_set(p, FG_EINTERNAL, "check %s has not ended",
-                          j->rec.id);
+    return fg_problem_set(p, FG_EINTERNAL, "check %s has not ended", j->rec.id);
   pthread_mutex_lock(&j->mu);
-  while (j->state == JOB_RECORDING) pthread_cond_wait(&j->cv, &j->mu);
+  while (j->state == JOB_RECORDING)
+    pthread_cond_wait(&j->cv, &j->mu);
   if (j->state != JOB_RUNNING) { /* recorded (or kept) by another thread */
     fg_status st = j->store_st;
     if (st != FG_OK) fg_problem_set(p, st, "%s", j->store_err);

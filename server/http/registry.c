@@ -63,7 +63,7 @@
 
 typedef struct fg_entry {
   struct fg_entry *next;
-  fg_job *job;            /* one of job or cmp */
+  fg_job *job; /* one of job or cmp */
   fg_comparison *cmp;
 } fg_entry;
 
@@ -158,21 +158,19 @@ static void note_progress(fg_registry *g) {
   int nask = 0;
   char asked[FG_REGISTRY_BATCH][40];
   memcpy(asked, ids, sizeof ids);
-  if (n > 0 &&
-      fg_store_cancel_requests(g->store, asked, FG_REGISTRY_BATCH, &nask, &p) !=
-          FG_OK)
+  if (n > 0 && fg_store_cancel_requests(g->store, asked, FG_REGISTRY_BATCH,
+                                        &nask, &p) != FG_OK)
     fg_log_msg(FG_LOG_WARN, "store_error", "reading cancel requests: %s",
                p.detail);
   for (int k = 0; k < nask; k++)
     for (int i = 0; i < n; i++)
-      if (strcmp(asked[k], fg_job_id(jobs[i])) == 0 &&
-          !fg_job_ended(jobs[i])) {
+      if (strcmp(asked[k], fg_job_id(jobs[i])) == 0 && !fg_job_ended(jobs[i])) {
         fg_job_cancel(jobs[i]);
         fg_log_msg(FG_LOG_INFO, "check_cancel_asked",
-                   "check %s cancelled at another replica's request",
-                   asked[k]);
+                   "check %s cancelled at another replica's request", asked[k]);
       }
-  for (int i = 0; i < n; i++) fg_job_unref(jobs[i]);
+  for (int i = 0; i < n; i++)
+    fg_job_unref(jobs[i]);
 }
 
 /* One round: record ended jobs, retry unsaved ends, step comparisons.
@@ -197,9 +195,8 @@ static bool round_once(fg_registry *g, double *next_retry) {
   for (int i = 0; i < nj; i++) {
     fg_problem p;
     fg_problem_init(&p);
-    fg_status st = fg_job_unsaved(jobs[i])
-                       ? fg_job_retry_unsaved(jobs[i], &p)
-                       : fg_job_record_end(jobs[i], &p);
+    fg_status st = fg_job_unsaved(jobs[i]) ? fg_job_retry_unsaved(jobs[i], &p)
+                                           : fg_job_record_end(jobs[i], &p);
     if (st != FG_OK) {
       fg_log_msg(FG_LOG_ERROR, "store_error",
                  "recording check %s: %s; trying again every second",
@@ -352,8 +349,7 @@ void fg_registry_cancel_all(fg_registry *g) {
   pthread_cond_signal(&g->wake);
   pthread_mutex_unlock(&g->lock);
   if (n > 0)
-    fg_log_msg(FG_LOG_WARN, "cancelling", "cancelling %d running check(s)",
-               n);
+    fg_log_msg(FG_LOG_WARN, "cancelling", "cancelling %d running check(s)", n);
   for (int i = 0; i < n; i++) {
     fg_job_cancel(jobs[i]);
     fg_job_unref(jobs[i]);
