@@ -51,7 +51,7 @@ typedef struct fg_det_problem {
 /* Per-row figures computed when a check ends. */
 typedef struct fg_row_result {
   int row; /* index into the program's rows */
-  uint64_t violated, sole, nonfinite;
+  uint64_t violated, sole, nonfinite, infinite;
   double probability; /* violation probability */
   fg_interval interval;
   double excess_mean, excess_mean_if_violated, excess_p95, excess_max;
@@ -92,6 +92,10 @@ struct fg_check {
   int in_sample_task; /* (pool) 0 none, 1 waiting, 2 running, 3 ended */
   atomic_bool in_sample_whole; /* it evaluated every scenario asked for */
   _Atomic uint64_t in_sample_satisfied, in_sample_count;
+  /* (merge) non-finite draws of the in-sample evaluation (design
+   * stream), written by its task under merge_mu; read once ended */
+  uint64_t in_sample_bad_draws, in_sample_bad_first;
+  int in_sample_bad_column;
 
   double t_start, deadline; /* monotonic seconds; deadline 0 = none */
 

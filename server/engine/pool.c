@@ -116,6 +116,8 @@ bool fg_engine_run_range(const struct fg_check *c, fg_sample_scratch *w,
         fg_sampler_draw_design(c->model->sampler, w, seed, stream,
                                c->design, c->rep_size, first + done, n, ureg,
                                FG_BLOCK);
+      /* a non-finite draw is reported, never judged (check.c) */
+      fg_tally_inputs(t, ureg, in->nuncertain, FG_BLOCK, n, first + done);
     }
     fg_program_run_block(c->model->program, regs, n);
     fg_tally_block(t, excess, n, first + done, obj, scratch);
@@ -207,9 +209,16 @@ static bool run_in_sample(fg_eval_ctx *ctx, struct fg_check *c) {
                                 ctx->scratch, c->req.in_sample_seed,
                                 FG_STREAM_DESIGN, 0, c->req.in_sample_count,
                                 &t, &c->cancel_flag, &c->timeout_flag, NULL);
-  atomic_store(&c->in_sample_satisfied, t.satisfied);
-  atomic_store(&c->in_sample_count, t.n);
-  atomic_store(&c->in_sample_whole, ok);
+  pthread_mutex_lock(&c->merge_mu);
+  if (!atomic_load(&c->ending)) { /* else: late, discarded */
+    c->in_sample_bad_draws = t.bad_draws;
+    c->in_sample_bad_first = t.bad_draw_first;
+    c->in_sample_bad_column = t.bad_draw_column;
+    atomic_store(&c->in_sample_satisfied, t.satisfied);
+    atomic_store(&c->in_sample_count, t.n);
+    atomic_store(&c->in_sample_whole, ok);
+  }
+  pthread_mutex_unlock(&c->merge_mu);
   fg_tally_free(&t);
   return ok;
 }
