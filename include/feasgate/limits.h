@@ -134,6 +134,17 @@
 /* Worker threads. */
 #define FG_WORKERS_MAX 256
 
+/* Seconds a check that was told to stop (cancelled, out of time, shutting
+ * down) waits for its workers before it ends without them: workers test
+ * the flags once per block (milliseconds), so a worker still busy after
+ * this is stuck in one long call; its late result is discarded. */
+#define FG_STUCK_WORKER_S 1.0
+/* How often the pool's clock looks for deadlines and stuck workers. */
+#define FG_POOL_CLOCK_MS 20
+/* Seconds fg_pool_free waits for its workers to leave before it leaves
+ * the stuck ones behind (after FG_STUCK_WORKER_S has ended their checks). */
+#define FG_POOL_EXIT_WAIT_S (FG_STUCK_WORKER_S + 0.5)
+
 /* Sample-size calculations (GET /v1/sample-size): decision variables and
  * discarded scenarios of a scenario-approach query (each term of the
  * binomial tail is summed, so the cost grows with decisions + discarded),
@@ -157,6 +168,41 @@
 /* Dimensions of a Sobol design: GSL's gsl_qrng_sobol carries direction
  * numbers for 40 (sample/design.c recovers them from it). */
 #define FG_SOBOL_DIMS_MAX 40
+
+/* ---- family parameter domains (sample/family.c) ----
+ * The ranges inside which a family's draws (GSL's samplers on the Monte
+ * Carlo path) and quantiles (core/quantile.c, used by the designs and
+ * copula members) are finite and meet the quantile module's stated
+ * accuracy (1e-9 relative, checked against SciPy and mpmath by
+ * tests/reference/test_quantiles.py at both edges). A model outside them is
+ * refused at registration (400, the pointer names the parameter, the
+ * message gives the range). Not in FG_LIMITS_TABLE: they are domains of
+ * the mathematics, not resource limits. */
+
+/* Inverse-CDF probabilities are clamped into [FG_ICDF_P_MIN,
+ * 1 - FG_ICDF_P_MIN]: no sampler hands out a smaller one except a
+ * copula normal beyond -37 standard deviations (probability below
+ * 1e-300), and every quantile below is finite there. */
+#define FG_ICDF_P_MIN 1e-300
+
+/* Beta a and b, gamma shape. For shape a < 1 GSL draws Gamma(1 + a)
+ * U^(1/a) with a 32-bit U (Random123's GSL adaptor), whose smallest value
+ * 2^(-32/a) leaves the normal doubles below a = 0.031 (a beta draw
+ * X / (X + Y) could then become 0/0); 0.05 keeps a margin, and the
+ * quantiles near u^(1/a) stay normal doubles for u >= 1e-15 there. Above 1e12, a + b nears the range where a/(a+b) no
+ * longer carries the parameters' digits, and the references the tests use
+ * (mpmath quadrature) were run to here. */
+#define FG_SHAPE_PARAM_MIN 0.05
+#define FG_SHAPE_PARAM_MAX 1e12
+
+/* Student t degrees of freedom. Below 1 the quantile at FG_ICDF_P_MIN
+ * (about u^(-1/df)) overflows a double; above 1e12 the law is the normal
+ * to 1e-12 and the expansion used for large df was checked to here. The
+ * scale is further bounded so that location + scale t stays finite at
+ * FG_ICDF_P_MIN (the message gives the bound for the df given), and the
+ * gamma scale so that scale x stays finite. */
+#define FG_T_DF_MIN 1.0
+#define FG_T_DF_MAX 1e12
 
 /* The limits a client can run into, as (name, value) pairs for
  * GET /v1/limits and for error messages. Runtime-configurable ones are
@@ -199,8 +245,9 @@
  * for more than an hour is a misconfiguration, not a use. */
 #define FG_HTTP_WAIT_MAX_S 3600.0
 
-/* Running checks get this long to finish at shutdown before they are
- * cancelled and recorded as cancelled. */
+/* Running checks, and the requests waiting for them, get this long to
+ * finish at shutdown before the checks are cancelled and recorded as
+ * cancelled (the stop then takes a few seconds more at most). */
 #define FG_HTTP_GRACE_DEFAULT 30.0
 
 /* Hard bound of --max-scenarios: a scenario table of 10^8 rows is already
@@ -273,9 +320,10 @@
  * limits header size. Bodies are ours and limited by --max-body. */
 #define FG_HTTP_CONN_MEMORY (64 * 1024)
 
-/* Seconds added to --max-wait when waiting for requests in flight at
- * shutdown: time to record and answer after the wait itself. */
-#define FG_HTTP_DRAIN_MARGIN_S 10.0
+/* At shutdown, after --grace, the running checks are cancelled; seconds
+ * the requests waiting for them then get to be answered: the engine ends
+ * a cancelled check within FG_STUCK_WORKER_S, and its end is recorded. */
+#define FG_HTTP_STOP_ANSWER_S (FG_STUCK_WORKER_S + 2.0)
 
 /* Bytes of a refused body (beyond --max-body) read and thrown away so
  * that the client still gets its 413; past this the connection is closed.

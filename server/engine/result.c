@@ -7,7 +7,10 @@
  * one) are JSON null, never NaN. Rows are listed worst first (highest
  * violation probability, ties by mean excess).
  *
- * Thread use: any thread; takes the check's lock while reading.
+ * Thread use: any thread, without a lock: a running check's figures come
+ * from its published progress snapshot (the interval computed here, by
+ * the reader), an ended check's from its final figures, published before
+ * its end state (engine_internal.h).
  */
 #include "engine/engine_internal.h"
 
@@ -41,10 +44,10 @@ static cJSON *interval_json(fg_interval iv, const char *method) {
  * Clopper-Pearson interval; no verdict yet) and the same figures as
  * "progress", with how far it has come. */
 static void add_running(cJSON *o, struct fg_check *c) {
-  uint64_t n = c->total.n, k = c->total.satisfied;
+  uint64_t n, k;
+  fg_check_progress(c, &n, &k);
   double pr = n ? (double)k / (double)n : NAN;
-  fg_interval iv = n ? fg_interval_clopper_pearson(k, n, c->req.confidence)
-                     : (fg_interval){0.0, 1.0};
+  fg_interval iv = fg_check_live_interval(c, k, n);
   cJSON *j = cJSON_AddObjectToObject(o, "joint");
   cJSON_AddNumberToObject(j, "samples", (double)n);
   cJSON_AddNumberToObject(j, "satisfied", (double)k);
@@ -91,31 +94,112 @@ static void add_rows(cJSON *o, struct fg_check *c) {
     /* Given violation: undefined (null) for a row never violated. The
      * 95th percentile comes from the log histogram, within
      * FG_HIST_REL_ERROR (1/128) relative; mean and maximum are exact. */
-    bool any = rr->violated > rr->nonfinite;
+    bool any = rr->violated > rr->nonfinite + rr->infinite;
     add_num(ex, "mean_if_violated", any ? rr->excess_mean_if_violated : NAN);
     add_num(ex, "p95", any ? rr->excess_p95 : NAN);
     add_num(ex, "max", any ? rr->excess_max : NAN);
     cJSON_AddNumberToObject(r, "sole_cause", (double)rr->sole);
-    if (rr->nonfinite)
-      cJSON_AddNumberToObject(r, "nonfinite", (double)rr->nonfinite);
+    cJSON_AddNumberToObject(r, "nonfinite", (double)rr->nonfinite);
     cJSON_AddBoolToObject(r, "deterministic", row->deterministic);
     cJSON_AddItemToArray(arr, r);
   }
 }
 
+/* "numeric": what IEEE arithmetic left undecided, in the style of
+ * "deterministic": non-finite draws of an uncertain input (the first by
+ * sample index, which does not depend on workers or chunk sizes), those of
+ * the in-sample evaluation (design stream; they do not touch the
+ * verdict), then rows that evaluated to NaN, in row order; at most
+ * FG_DET_PROBLEMS_MAX row entries. Empty while a check runs (the counts
+ * are not final). */
+static void add_numeric(cJSON *o, struct fg_check *c, bool ended) {
+  const fg_tally *t = &c->total;
+  bool any = ended && (t->bad_draws > 0 || c->in_sample_bad_draws > 0);
+  for (int r = 0; ended && r < t->nrows && !any; r++)
+    any = t->rows[r].nonfinite > 0;
+  cJSON *num = cJSON_AddObjectToObject(o, "numeric");
+  cJSON_AddBoolToObject(num, "ok", !any);
+  cJSON *probs = cJSON_AddArrayToObject(num, "problems");
+  int listed = 0, dropped = 0;
+  char msg[320];
+  if (ended && t->bad_draws > 0) {
+    const char *col = fg_sampler_column(c->model->sampler, t->bad_draw_column);
+    snprintf(msg, sizeof msg,
+             "uncertain input %s drew a non-finite value at sample %llu "
+             "(%llu non-finite values in all); such samples say nothing "
+             "about the plan, so the verdict is inconclusive",
+             col ? col : "?", (unsigned long long)t->bad_draw_first,
+             (unsigned long long)t->bad_draws);
+    cJSON *pr = cJSON_CreateObject();
+    cJSON_AddStringToObject(pr, "name", col ? col : "?");
+    cJSON_AddStringToObject(pr, "kind", "input");
+    cJSON_AddStringToObject(pr, "stream", "validation");
+    add_u64(pr, "index", t->bad_draw_first);
+    add_u64(pr, "count", t->bad_draws);
+    cJSON_AddStringToObject(pr, "message", msg);
+    cJSON_AddItemToArray(probs, pr);
+    listed++;
+  }
+  if (ended && c->in_sample_bad_draws > 0) {
+    const char *col =
+        fg_sampler_column(c->model->sampler, c->in_sample_bad_column);
+    snprintf(msg, sizeof msg,
+             "uncertain input %s drew a non-finite value at design scenario "
+             "%llu of the in-sample evaluation (%llu non-finite values in "
+             "all); its in_sample figures say nothing about the plan",
+             col ? col : "?", (unsigned long long)c->in_sample_bad_first,
+             (unsigned long long)c->in_sample_bad_draws);
+    cJSON *pr = cJSON_CreateObject();
+    cJSON_AddStringToObject(pr, "name", col ? col : "?");
+    cJSON_AddStringToObject(pr, "kind", "input");
+    cJSON_AddStringToObject(pr, "stream", "design");
+    add_u64(pr, "index", c->in_sample_bad_first);
+    add_u64(pr, "count", c->in_sample_bad_draws);
+    cJSON_AddStringToObject(pr, "message", msg);
+    cJSON_AddItemToArray(probs, pr);
+    listed++;
+  }
+  for (int r = 0; ended && r < t->nrows; r++) {
+    const fg_row_tally *rt = &t->rows[r];
+    if (rt->nonfinite == 0) continue;
+    if (listed >= FG_DET_PROBLEMS_MAX) {
+      dropped++;
+      continue;
+    }
+    const char *name = c->info.rows[r].name;
+    snprintf(msg, sizeof msg,
+             "constraint row %s evaluated to NaN at sample %llu (%llu "
+             "samples in all): a NaN comparison does not hold, and the "
+             "verdict cannot be pass",
+             name, (unsigned long long)rt->first_nonfinite,
+             (unsigned long long)rt->nonfinite);
+    cJSON *pr = cJSON_CreateObject();
+    cJSON_AddStringToObject(pr, "name", name);
+    cJSON_AddStringToObject(pr, "kind", "row");
+    cJSON_AddStringToObject(pr, "stream", "validation");
+    add_u64(pr, "index", rt->first_nonfinite);
+    add_u64(pr, "count", rt->nonfinite);
+    cJSON_AddStringToObject(pr, "message", msg);
+    cJSON_AddItemToArray(probs, pr);
+    listed++;
+  }
+  if (dropped) cJSON_AddNumberToObject(num, "problems_not_listed", dropped);
+}
+
 cJSON *fg_check_result_json(fg_check *c, const fg_check_meta *meta) {
   cJSON *o = cJSON_CreateObject();
   if (!o) return NULL;
-  fg_check_lock(c);
-  bool ended = c->state != FG_CHECK_QUEUED && c->state != FG_CHECK_RUNNING;
+  /* One load of the state: the body is all running or all final. */
+  fg_check_state state = fg_check_get_state(c);
+  bool ended = fg_check_state_is_end(state);
   if (meta && meta->id) cJSON_AddStringToObject(o, "id", meta->id);
-  cJSON_AddStringToObject(o, "status", fg_check_state_name(c->state));
+  cJSON_AddStringToObject(o, "status", fg_check_state_name(state));
   cJSON *mo = cJSON_AddObjectToObject(o, "model");
   cJSON_AddStringToObject(mo, "name", c->model->name);
   if (meta && meta->model_version > 0)
     cJSON_AddNumberToObject(mo, "version", meta->model_version);
   cJSON_AddStringToObject(mo, "digest", c->model->digest);
-  if (ended && c->state == FG_CHECK_DONE)
+  if (ended && state == FG_CHECK_DONE)
     cJSON_AddStringToObject(o, "verdict", fg_verdict_name(c->verdict));
   else cJSON_AddNullToObject(o, "verdict");
   cJSON_AddNumberToObject(o, "target", c->req.target);
@@ -156,6 +240,8 @@ cJSON *fg_check_result_json(fg_check *c, const fg_check_meta *meta) {
   if (c->ndet_dropped)
     cJSON_AddNumberToObject(det, "problems_not_listed", c->ndet_dropped);
 
+  add_numeric(o, c, ended);
+
   if (ended && c->has_objective) add_num(o, "objective", c->objective);
   else cJSON_AddNullToObject(o, "objective");
   if (c->info.objective_sense != FG_OBJECTIVE_NONE)
@@ -181,7 +267,9 @@ cJSON *fg_check_result_json(fg_check *c, const fg_check_meta *meta) {
     }
   }
 
-  if (c->has_in_sample) {
+  /* Shown once evaluated (it is the check's first task; a cancelled one
+   * shows what was evaluated before the cancel). */
+  if (c->has_in_sample && c->in_sample_count > 0) {
     cJSON *is = cJSON_AddObjectToObject(o, "in_sample");
     add_u64(is, "seed", c->req.in_sample_seed);
     cJSON_AddNumberToObject(is, "count", (double)c->in_sample_count);
@@ -207,6 +295,5 @@ cJSON *fg_check_result_json(fg_check *c, const fg_check_meta *meta) {
   if (c->req.label[0]) cJSON_AddStringToObject(o, "label", c->req.label);
   else cJSON_AddNullToObject(o, "label");
   if (meta && meta->key) cJSON_AddStringToObject(o, "key", meta->key);
-  fg_check_unlock(c);
   return o;
 }
