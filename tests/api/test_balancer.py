@@ -205,7 +205,7 @@ def main():
         cmp_req = {"candidates": [
             {"label": "lean", "decision": {"stock": [30, 30, 30]}},
             {"label": "ample", "decision": {"stock": [45, 45, 45]}}],
-            "samples": 900000000, "seed": 9, "wait_s": 0}
+            "samples": 200000000, "seed": 9, "wait_s": 0}
         st, _, cmp = lb.request("POST", "/v1/models/depot-fuel/comparisons",
                                 cmp_req)
         R.check(st == 202 and isinstance(cmp, dict) and cmp.get("id"),
