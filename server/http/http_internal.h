@@ -93,6 +93,29 @@ typedef struct fg_resp {
 
 typedef void fg_handler(fg_req *r, fg_resp *out);
 
+/* ---- strict.c: requests refused before routing, echoed text ---- */
+/* What the daemon keeps per connection (libmicrohttpd's socket context). */
+typedef struct fg_conn {
+  bool nul_seen; /* an escape of the current request decoded to NUL */
+} fg_conn;
+/* MHD_OPTION_NOTIFY_CONNECTION: an fg_conn per connection. */
+void fg_http_conn_notify(void *cls, struct MHD_Connection *conn,
+                         void **socket_context,
+                         enum MHD_ConnectionNotificationCode code);
+/* The fg_conn of `conn` (NULL if none could be made). */
+fg_conn *fg_http_conn_of(struct MHD_Connection *conn);
+/* MHD_OPTION_UNESCAPE_CALLBACK: libmicrohttpd's decoding; marks "%00". */
+size_t fg_http_unescape(void *cls, struct MHD_Connection *conn, char *s);
+/* False, with a 400 in *out, for two Content-Length headers, one with
+ * Transfer-Encoding, or a NUL decoded in the path or query. */
+bool fg_http_request_strict(fg_req *r, fg_resp *out);
+/* True when `s` is valid UTF-8 (RFC 3629). */
+bool fg_utf8_valid(const char *s);
+/* A malloc'd copy of `s` with each invalid UTF-8 subpart as U+FFFD. */
+char *fg_utf8_fix(const char *s);
+/* The same for every name and string of a cJSON tree (and its siblings). */
+void fg_json_utf8_fix(cJSON *item);
+
 /* ---- router.c ---- */
 /* Find the handler for r->method and r->path, filling r->params and
  * r->route; on no match fill *out with 404 or 405 and return NULL. */

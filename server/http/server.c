@@ -8,7 +8,10 @@
  *   checks run on the engine's worker pool.
  *
  *   The access handler is called several times per request:
- *     1st call   set up an fg_req; a Content-Length above --max-body is
+ *     1st call   set up an fg_req; a request with bad framing (two
+ *                Content-Length headers, or one with Transfer-Encoding)
+ *                or a NUL in its path or query is refused with 400
+ *                (strict.c); a Content-Length above --max-body is
  *                refused with 413 at once, before any of the body is read;
  *                so is a request without the key its route needs (401,
  *                403: keys.c), so no body is read for an unknown caller;
@@ -161,9 +164,11 @@ static enum MHD_Result on_request(void *cls, struct MHD_Connection *conn,
     pthread_mutex_lock(&srv->inflight_lock);
     srv->inflight++;
     pthread_mutex_unlock(&srv->inflight_lock);
+    fg_resp bad = {0};
+    if (!fg_http_request_strict(r, &bad)) respond(r, &bad);
     const char *cl =
         MHD_lookup_connection_value(conn, MHD_HEADER_KIND, "Content-Length");
-    if (cl) {
+    if (cl && !r->responded) {
       char *end = NULL;
       errno = 0;
       unsigned long long n = strtoull(cl, &end, 10);
@@ -543,6 +548,8 @@ int fg_serve_command(int argc, char **argv) {
       /* the logger first, so that no message escapes it */
       MHD_OPTION_EXTERNAL_LOGGER, on_mhd_log, srv, MHD_OPTION_LISTEN_SOCKET,
       listen_fd, MHD_OPTION_NOTIFY_COMPLETED, on_completed, srv,
+      MHD_OPTION_NOTIFY_CONNECTION, fg_http_conn_notify, srv,
+      MHD_OPTION_UNESCAPE_CALLBACK, fg_http_unescape, srv,
       MHD_OPTION_CONNECTION_TIMEOUT, (unsigned int)FG_HTTP_IDLE_TIMEOUT_S,
       MHD_OPTION_CONNECTION_LIMIT, (unsigned int)FG_HTTP_CONNECTIONS_MAX,
       MHD_OPTION_CONNECTION_MEMORY_LIMIT, (size_t)FG_HTTP_CONN_MEMORY,
