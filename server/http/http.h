@@ -34,7 +34,8 @@
  * 3 for bad usage or a bad setting (an unreadable TLS file included, and
  * a non-loopback --listen while the store holds no live key and
  * --insecure is not given), 1 when start-up fails for another
- * reason (address in use, store cannot be opened).
+ * reason (address in use, store cannot be opened, a SQLite store that
+ * another daemon serves).
  *
  * Thread use: fg_serve_command runs on the main thread and owns the
  * process's signal mask while it runs.
