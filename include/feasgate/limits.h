@@ -113,9 +113,20 @@
  * more than the configured cap). */
 #define FG_SCENARIOS_COUNT_DEFAULT 100ull
 
-/* Values (scenarios x columns) in one scenarios response held in memory:
- * about 25 bytes each printed, so the largest body stays near 100 MB. */
+/* Values (scenarios x columns) in one scenarios response: about 25 bytes
+ * each printed, so the longest body stays near 100 MB. The body is
+ * streamed (FG_SCENARIO_STREAM_BYTES below), so this bounds the length of
+ * an answer, not the memory it takes. */
 #define FG_SCENARIO_CELLS_MAX 4000000ull
+
+/* Bytes of drawn values one streamed scenarios response holds: rows are
+ * drawn this many bytes at a time (at most FG_BLOCK rows, at least one),
+ * so a response takes this plus its header and a 16 KiB window of text
+ * and one row, whatever its count (8 concurrent 100,000-row answers of a
+ * 40-column model stay within a few MB together). */
+#ifndef FG_SCENARIO_STREAM_BYTES
+#define FG_SCENARIO_STREAM_BYTES (256u * 1024u)
+#endif
 
 /* Failing scenarios reported per check. */
 #define FG_FAILING_SCENARIOS 5

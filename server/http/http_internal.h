@@ -89,6 +89,13 @@ typedef struct fg_resp {
   char allow[64];
   int retry_after; /* seconds; 0 = no header */
   char www_authenticate[64]; /* "" = no header */
+  /* A streamed body instead of `body` (reader != NULL): libmicrohttpd
+   * pulls it through `reader` (chunked transfer coding, the length being
+   * unknown) and calls reader_free(reader_ctx) when done; so does queue()
+   * when no response could be made. */
+  MHD_ContentReaderCallback reader;
+  void *reader_ctx;
+  MHD_ContentReaderFreeCallback reader_free;
 } fg_resp;
 
 typedef void fg_handler(fg_req *r, fg_resp *out);

@@ -69,9 +69,19 @@
 
 /* ---- responses ---- */
 
+/* Bytes libmicrohttpd asks a streamed body for at once. */
+#define FG_HTTP_STREAM_BLOCK (32 * 1024)
+
 static void queue(fg_req *r, fg_resp *resp) {
   struct MHD_Response *mr;
-  if (resp->body && resp->len > 0) {
+  if (resp->reader) {
+    mr = MHD_create_response_from_callback(MHD_SIZE_UNKNOWN,
+                                           FG_HTTP_STREAM_BLOCK, resp->reader,
+                                           resp->reader_ctx,
+                                           resp->reader_free);
+    if (!mr && resp->reader_free) resp->reader_free(resp->reader_ctx);
+    resp->reader = NULL;
+  } else if (resp->body && resp->len > 0) {
     mr = MHD_create_response_from_buffer(resp->len, resp->body,
                                          MHD_RESPMEM_MUST_FREE);
     if (mr) resp->body = NULL; /* libmicrohttpd owns it now */
