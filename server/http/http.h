@@ -29,6 +29,11 @@
  *   --tls-key FILE   FEASGATE_TLS_KEY         none (PEM private key)
  *   --insecure       FEASGATE_INSECURE        off (allow a non-loopback
  *                                             listener with no key)
+ *   --max-connections N             FEASGATE_MAX_CONNECTIONS
+ *                                   FG_HTTP_CONNECTIONS_DEFAULT
+ *   --max-connections-per-client N  FEASGATE_MAX_CONNECTIONS_PER_CLIENT
+ *                                   FG_HTTP_CONNECTIONS_PER_CLIENT_DEFAULT
+ *                                   (at most --max-connections)
  *
  * Exit status of fg_serve_command: 0 after a clean stop (SIGINT/SIGTERM),
  * 3 for bad usage or a bad setting (an unreadable TLS file included, and
@@ -71,6 +76,8 @@ typedef struct fg_http_config {
   char tls_cert[FG_HTTP_URL_MAX + 1]; /* "" = plain HTTP */
   char tls_key[FG_HTTP_URL_MAX + 1];
   bool insecure;
+  int max_connections;            /* --max-connections */
+  int max_connections_per_client; /* --max-connections-per-client */
 } fg_http_config;
 
 /* Defaults, then environment twins, then flags (argv[0] is the subcommand

@@ -110,6 +110,8 @@ static void queue(fg_req *r, fg_resp *resp) {
     MHD_add_response_header(mr, MHD_HTTP_HEADER_RETRY_AFTER, ra);
   }
   MHD_add_response_header(mr, "Cache-Control", "no-store");
+  if (resp->close)
+    MHD_add_response_header(mr, MHD_HTTP_HEADER_CONNECTION, "close");
   /* libmicrohttpd takes a response only on the first call or the last;
    * `responded` records whether this one was taken. */
   r->responded =
@@ -153,6 +155,25 @@ static void refuse_too_large(fg_req *r, const char *how) {
   respond(r, &resp);
 }
 
+/* Queue the handler's answer, or suspend the request when the handler
+ * asked to wait (resp->pending): the waiter resumes it and the access
+ * handler's next call runs pending.finish. */
+static enum MHD_Result answer(fg_req *r, fg_resp *resp) {
+  if (resp->status == 0 && resp->pending.finish) {
+    free(resp->body);
+    r->pending = resp->pending;
+    r->suspended = true;
+    MHD_suspend_connection(r->conn);
+    fg_waiter_add(r->srv, r);
+    return MHD_YES;
+  }
+  if (resp->status == 0)
+    fg_resp_error(resp, 500, FG_EINTERNAL, "handler for %s gave no answer",
+                  r->route ? r->route : "?");
+  respond(r, resp);
+  return r->responded ? MHD_YES : MHD_NO;
+}
+
 /* ---- libmicrohttpd callbacks ---- */
 
 static enum MHD_Result on_request(void *cls, struct MHD_Connection *conn,
@@ -175,7 +196,8 @@ static enum MHD_Result on_request(void *cls, struct MHD_Connection *conn,
     srv->inflight++;
     pthread_mutex_unlock(&srv->inflight_lock);
     fg_resp bad = {0};
-    if (!fg_http_request_strict(r, &bad)) respond(r, &bad);
+    if (!fg_http_conn_admit(r, &bad) || !fg_http_request_strict(r, &bad))
+      respond(r, &bad);
     const char *cl =
         MHD_lookup_connection_value(conn, MHD_HEADER_KIND, "Content-Length");
     if (cl && !r->responded) {
@@ -250,6 +272,16 @@ static enum MHD_Result on_request(void *cls, struct MHD_Connection *conn,
     r->body[r->len] = '\0';
     return MHD_YES;
   }
+  if (r->suspended) {
+    /* Resumed by the waiter: the handler's finish answers (or waits
+     * again). */
+    r->suspended = false;
+    fg_pending pd = r->pending;
+    memset(&r->pending, 0, sizeof r->pending);
+    fg_resp resp = {0};
+    pd.finish(r, pd.ctx, r->timed_out, &resp);
+    return answer(r, &resp);
+  }
   if (r->responded) return MHD_YES;
   if (r->too_large) {
     refuse_too_large(r, "exceeds");
@@ -267,11 +299,7 @@ static enum MHD_Result on_request(void *cls, struct MHD_Connection *conn,
     }
   }
   if (h) h(r, &resp);
-  if (resp.status == 0)
-    fg_resp_error(&resp, 500, FG_EINTERNAL, "handler for %s gave no answer",
-                  r->route ? r->route : "?");
-  respond(r, &resp);
-  return r->responded ? MHD_YES : MHD_NO;
+  return answer(r, &resp);
 }
 
 static void on_completed(void *cls, struct MHD_Connection *conn, void **con_cls,
@@ -279,6 +307,12 @@ static void on_completed(void *cls, struct MHD_Connection *conn, void **con_cls,
   fg_server *srv = cls;
   fg_req *r = *con_cls;
   if (!r) return;
+  if (r->suspended) {
+    /* Ended while waiting (the daemon stopped): unlist, free the wait. */
+    fg_waiter_remove(srv, r);
+    if (r->pending.drop) r->pending.drop(r->pending.ctx);
+    r->suspended = false;
+  }
   if (!r->responded)
     fg_log_msg(FG_LOG_DEBUG, "request_aborted",
                "%s %.200s ended (code %d) "
@@ -550,18 +584,34 @@ int fg_serve_command(int argc, char **argv) {
       {MHD_OPTION_HTTPS_MEM_CERT, 0, tls_cert},
       {MHD_OPTION_END, 0, NULL}};
   struct MHD_OptionItem no_opts[] = {{MHD_OPTION_END, 0, NULL}};
+  if (!fg_http_conns_init(srv) || !fg_waiter_start(srv)) {
+    fg_log_msg(FG_LOG_ERROR, "start_failed",
+               "connection table or waiter thread: out of resources");
+    goto cleanup;
+  }
+  long cores = sysconf(_SC_NPROCESSORS_ONLN);
+  unsigned threads = cores < FG_HTTP_THREADS_MIN   ? FG_HTTP_THREADS_MIN
+                     : cores > FG_HTTP_THREADS_MAX ? FG_HTTP_THREADS_MAX
+                                                   : (unsigned)cores;
+  bool epoll = MHD_is_feature_supported(MHD_FEATURE_EPOLL) == MHD_YES;
   srv->daemon = MHD_start_daemon(
-      MHD_USE_INTERNAL_POLLING_THREAD | MHD_USE_THREAD_PER_CONNECTION |
-          MHD_USE_POLL | MHD_USE_ERROR_LOG | MHD_USE_ITC |
+      MHD_USE_INTERNAL_POLLING_THREAD | (epoll ? MHD_USE_EPOLL : MHD_USE_POLL) |
+          MHD_ALLOW_SUSPEND_RESUME | MHD_USE_ERROR_LOG |
           (tls_key ? MHD_USE_TLS : 0),
       0, NULL, NULL, on_request, srv,
       /* the logger first, so that no message escapes it */
       MHD_OPTION_EXTERNAL_LOGGER, on_mhd_log, srv, MHD_OPTION_LISTEN_SOCKET,
-      listen_fd, MHD_OPTION_NOTIFY_COMPLETED, on_completed, srv,
+      listen_fd, MHD_OPTION_THREAD_POOL_SIZE, threads,
+      MHD_OPTION_NOTIFY_COMPLETED, on_completed, srv,
       MHD_OPTION_NOTIFY_CONNECTION, fg_http_conn_notify, srv,
       MHD_OPTION_UNESCAPE_CALLBACK, fg_http_unescape, srv,
-      MHD_OPTION_CONNECTION_TIMEOUT, (unsigned int)FG_HTTP_IDLE_TIMEOUT_S,
-      MHD_OPTION_CONNECTION_LIMIT, (unsigned int)FG_HTTP_CONNECTIONS_MAX,
+      /* until a request's headers are in; conns.c raises it after */
+      MHD_OPTION_CONNECTION_TIMEOUT, (unsigned int)FG_HTTP_HEADER_TIMEOUT_S,
+      MHD_OPTION_CONNECTION_LIMIT,
+      (unsigned int)(srv->cfg.max_connections + FG_HTTP_CONNECTIONS_OVERFLOW),
+      MHD_OPTION_PER_IP_CONNECTION_LIMIT,
+      (unsigned int)(srv->cfg.max_connections_per_client +
+                     FG_HTTP_CONNECTIONS_OVERFLOW),
       MHD_OPTION_CONNECTION_MEMORY_LIMIT, (size_t)FG_HTTP_CONN_MEMORY,
       MHD_OPTION_ARRAY, tls_key ? tls_opts : no_opts, MHD_OPTION_END);
   if (!srv->daemon) {
@@ -580,6 +630,8 @@ int fg_serve_command(int argc, char **argv) {
     cJSON_AddStringToObject(ev, "address", address);
     cJSON_AddStringToObject(ev, "store", store_shown);
     cJSON_AddNumberToObject(ev, "workers", srv->cfg.workers);
+    cJSON_AddNumberToObject(ev, "http_threads", threads);
+    cJSON_AddStringToObject(ev, "event_loop", epoll ? "epoll" : "poll");
     cJSON_AddBoolToObject(ev, "tls", tls_key != NULL);
     cJSON_AddNumberToObject(ev, "keys", fg_keyring_live(srv->keys));
     cJSON_AddNumberToObject(ev, "pid", (double)getpid());
@@ -603,13 +655,20 @@ int fg_serve_command(int argc, char **argv) {
   MHD_socket lfd = MHD_quiesce_daemon(srv->daemon);
   if (lfd != MHD_INVALID_SOCKET) close(lfd);
   wait_inflight(srv, srv->cfg.limits.max_wait_s + FG_HTTP_DRAIN_MARGIN_S);
+  /* Requests still waiting are answered now (as timed out); the daemon
+   * must not stop with a suspended connection. */
+  fg_waiter_stop(srv);
+  wait_inflight(srv, FG_HTTP_DRAIN_MARGIN_S);
   MHD_stop_daemon(srv->daemon);
   srv->daemon = NULL;
   fg_registry_shutdown(srv->registry, srv->cfg.grace_s);
   status = 0;
 
 cleanup:
+  fg_waiter_stop(srv);
   if (srv->daemon) MHD_stop_daemon(srv->daemon);
+  fg_waiter_free(srv);
+  fg_http_conns_free(srv);
   if (listen_fd >= 0) close(listen_fd);
   fg_registry_free(srv->registry);
   if (srv->pool) fg_pool_free(srv->pool);

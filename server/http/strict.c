@@ -20,6 +20,7 @@
  *   call of the access handler reads and clears the mark and answers 400.
  *   The callback runs for the request line and its query, all before the
  *   first call of the access handler of the same request.
+ *   (An fg_conn is made per connection by conns.c.)
  *
  *   Echoed text: request text (the path, parameter values, names) can
  *   reach a problem document or a log line. cJSON escapes the characters
@@ -39,19 +40,7 @@
 #include <stdlib.h>
 #include <string.h>
 
-/* ---- per-connection state ---- */
-
-void fg_http_conn_notify(void *cls, struct MHD_Connection *conn,
-                         void **socket_context,
-                         enum MHD_ConnectionNotificationCode code) {
-  if (code == MHD_CONNECTION_NOTIFY_STARTED) {
-    /* NULL when out of memory: the marks below are then not kept */
-    *socket_context = calloc(1, sizeof(fg_conn));
-  } else if (code == MHD_CONNECTION_NOTIFY_CLOSED) {
-    free(*socket_context);
-    *socket_context = NULL;
-  }
-}
+/* ---- per-connection state (the fg_conn comes from conns.c) ---- */
 
 fg_conn *fg_http_conn_of(struct MHD_Connection *conn) {
   const union MHD_ConnectionInfo *ci =
