@@ -21,7 +21,9 @@
  *      record; one refused by the pool after all is closed as `failed`);
  *   7. wait up to wait_s: ended -> record the result, 201 + Location;
  *      still running -> 202 with the running body, and the registry
- *      (registry.c) records it when it ends.
+ *      (registry.c) records it when it ends. The wait holds no thread:
+ *      the request is suspended (out->pending, waiter.c) until the check
+ *      has ended or wait_s has passed, then answer_created answers.
  *
  * Check ids: "chk_" + 26 Crockford base32 characters of a 128-bit value,
  * 48 bits of Unix milliseconds then 80 random bits. Ids made in the same
@@ -247,6 +249,67 @@ fg_status fg_http_record_end_keep(fg_store *store, fg_check *c,
 
 /* ---- POST .../checks ---- */
 
+/* Steps 7-8 for a started, listed check `c` (its reference is taken):
+ * ended -> record, 201; still running -> 202, handed to the watcher. */
+static void answer_created(fg_server *srv, fg_check *c,
+                           const fg_store_check *rec, fg_resp *out) {
+  snprintf(out->location, sizeof out->location, "/v1/checks/%s", rec->id);
+  if (fg_check_wait(c, 0)) {
+    cJSON *body = NULL;
+    fg_problem sp;
+    fg_problem_init(&sp);
+    fg_status st = fg_http_record_end(srv->store, c, rec, &body, &sp);
+    fg_registry_drop(srv->registry, rec->id);
+    fg_check_unref(c);
+    if (st != FG_OK) {
+      cJSON_Delete(body);
+      out->location[0] = '\0';
+      fg_resp_problem(out, &sp, 0);
+      return;
+    }
+    fg_resp_json(out, 201, body);
+    return;
+  }
+  /* Still running: answer 202 with the running body, hand it over. */
+  fg_check_meta meta = {.id = rec->id,
+                        .model_version = rec->version,
+                        .created_at = rec->created_at,
+                        .finished_at = NULL,
+                        .key = rec->key[0] ? rec->key : NULL};
+  cJSON *running = fg_check_result_json(c, &meta);
+  fg_registry_hand_over(srv->registry, rec->id); /* it records the end */
+  fg_check_unref(c);
+  fg_resp_json(out, 202, running);
+}
+
+/* A check creation waiting (suspended) for its check to end. */
+typedef struct create_wait {
+  fg_server *srv;
+  fg_check *c;
+  fg_store_check rec; /* rec.request owned */
+} create_wait;
+
+static bool create_ended(void *ctx) {
+  return fg_check_wait(((create_wait *)ctx)->c, 0);
+}
+
+static void create_finish(fg_req *r, void *ctx, bool timed_out,
+                          fg_resp *out) {
+  create_wait *cw = ctx;
+  answer_created(cw->srv, cw->c, &cw->rec, out);
+  free(cw->rec.request);
+  free(cw);
+}
+
+/* The request went away while waiting: the watcher records the check. */
+static void create_drop(void *ctx) {
+  create_wait *cw = ctx;
+  fg_registry_hand_over(cw->srv->registry, cw->rec.id);
+  fg_check_unref(cw->c);
+  free(cw->rec.request);
+  free(cw);
+}
+
 void fg_h_checks_create(fg_req *r, fg_resp *out) {
   fg_server *srv = r->srv;
   const char *name = r->params[0];
@@ -326,35 +389,25 @@ void fg_h_checks_create(fg_req *r, fg_resp *out) {
     fg_resp_problem(out, &p, 0);
     goto done;
   }
-  snprintf(out->location, sizeof out->location, "/v1/checks/%s", rec.id);
-  if (fg_check_wait(c, req.wait_s)) {
-    cJSON *body = NULL;
-    fg_problem sp;
-    fg_problem_init(&sp);
-    fg_status st = fg_http_record_end(srv->store, c, &rec, &body, &sp);
-    fg_registry_drop(srv->registry, rec.id);
-    fg_check_unref(c);
-    c = NULL;
-    if (st != FG_OK) {
-      cJSON_Delete(body);
-      out->location[0] = '\0';
-      fg_resp_problem(out, &sp, 0);
+  if (req.wait_s > 0 && !fg_check_wait(c, 0)) {
+    /* Wait suspended, holding no thread (waiter.c). */
+    create_wait *cw = malloc(sizeof *cw);
+    if (cw) {
+      cw->srv = srv;
+      cw->c = c;
+      cw->rec = rec;
+      rec.request = NULL; /* cw owns it now */
+      c = NULL;
+      out->pending = (fg_pending){.ready = create_ended,
+                                  .finish = create_finish,
+                                  .drop = create_drop,
+                                  .ctx = cw,
+                                  .deadline = fg_http_now() + req.wait_s};
       goto done;
     }
-    fg_resp_json(out, 201, body);
-    goto done;
   }
-  /* Still running: answer 202 with the running body, hand it over. */
-  fg_check_meta meta = {.id = rec.id,
-                        .model_version = rec.version,
-                        .created_at = rec.created_at,
-                        .finished_at = NULL,
-                        .key = rec.key[0] ? rec.key : NULL};
-  cJSON *running = fg_check_result_json(c, &meta);
-  fg_registry_hand_over(srv->registry, rec.id); /* it records the end */
-  fg_check_unref(c);
+  answer_created(srv, c, &rec, out);
   c = NULL;
-  fg_resp_json(out, 202, running);
 
 done:
   free(rec.request);
@@ -413,9 +466,30 @@ static bool send_stored_result(fg_resp *out, fg_store_check *c) {
   return true;
 }
 
-void fg_h_check_get(fg_req *r, fg_resp *out) {
-  const char *id = r->params[0];
-  cJSON *live = fg_registry_live_json(r->srv->registry, id);
+/* A GET of a check stored as running but not (yet) listed here: looks
+ * at the registry for FG_HTTP_LIVE_RETRIES x 2 ms, suspended. */
+typedef struct get_wait {
+  fg_server *srv;
+  char id[FG_HTTP_PATH_MAX + 1];
+} get_wait;
+
+static bool get_listed(void *ctx) {
+  get_wait *gw = ctx;
+  return fg_registry_holds(gw->srv->registry, gw->id);
+}
+
+static void get_answer(fg_server *srv, const char *id, bool look_again,
+                       fg_resp *out);
+
+static void get_finish(fg_req *r, void *ctx, bool timed_out, fg_resp *out) {
+  get_wait *gw = ctx;
+  get_answer(gw->srv, gw->id, false, out);
+  free(gw);
+}
+
+static void get_answer(fg_server *srv, const char *id, bool look_again,
+                       fg_resp *out) {
+  cJSON *live = fg_registry_live_json(srv->registry, id);
   if (live) {
     fg_resp_json(out, 200, live);
     return;
@@ -423,96 +497,199 @@ void fg_h_check_get(fg_req *r, fg_resp *out) {
   fg_problem p;
   fg_problem_init(&p);
   fg_store_check c;
-  if (fg_store_get_check(r->srv->store, id, &c, &p) != FG_OK) {
+  if (fg_store_get_check(srv->store, id, &c, &p) != FG_OK) {
     fg_resp_problem(out, &p, 0);
     return;
   }
   /* A check is recorded as running a moment before it is listed in the
    * registry (record, start, watch). A GET in that gap would get the
    * stored body without progress; look again for a short while. */
-  if (strcmp(c.status, "running") == 0) {
-    for (int i = 0; i < FG_HTTP_LIVE_RETRIES; i++) {
-      struct timespec ts = {0, 2 * 1000 * 1000};
-      nanosleep(&ts, NULL);
-      live = fg_registry_live_json(r->srv->registry, id);
-      if (live) {
-        fg_store_check_clear(&c);
-        fg_resp_json(out, 200, live);
-        return;
-      }
+  if (look_again && strcmp(c.status, "running") == 0) {
+    get_wait *gw = malloc(sizeof *gw);
+    if (gw) {
+      gw->srv = srv;
+      snprintf(gw->id, sizeof gw->id, "%s", id);
+      fg_store_check_clear(&c);
+      out->pending =
+          (fg_pending){.ready = get_listed,
+                       .finish = get_finish,
+                       .drop = free,
+                       .ctx = gw,
+                       .deadline = fg_http_now() +
+                                   FG_HTTP_LIVE_RETRIES * 0.002};
+      return;
     }
   }
   if (!send_stored_result(out, &c)) fg_resp_json(out, 200, stored_body(&c));
   fg_store_check_clear(&c);
 }
 
+void fg_h_check_get(fg_req *r, fg_resp *out) {
+  get_answer(r->srv, r->params[0], true, out);
+}
+
 /* ---- DELETE /v1/checks/{id} ---- */
 
 
-void fg_h_check_cancel(fg_req *r, fg_resp *out) {
-  const char *id = r->params[0];
-  fg_registry_cancel_result res =
-      fg_registry_cancel(r->srv->registry, id, FG_HTTP_CANCEL_WAIT_S);
-  if (res == FG_REGISTRY_CANCEL_PENDING) {
-    fg_resp_error(out, 503, FG_EBUSY,
-                  "check %s was told to stop but has not stopped within %g s; "
-                  "GET it shortly",
-                  id, FG_HTTP_CANCEL_WAIT_S);
-    return;
-  }
-  fg_problem p;
-  fg_problem_init(&p);
-  fg_store_check c;
-  if (fg_store_get_check(r->srv->store, id, &c, &p) != FG_OK) {
-    fg_resp_problem(out, &p, 0); /* 404 for an unknown id */
-    return;
-  }
-  if (res == FG_REGISTRY_NOT_HELD && strcmp(c.status, "running") == 0 &&
-      fg_store_shared(r->srv->store)) {
-    /* Running in another replica: ask it through the store, and wait for
-     * the record to end. */
-    fg_problem_init(&p);
-    if (fg_store_request_cancel(r->srv->store, id, &p) != FG_OK) {
-      fg_store_check_clear(&c);
-      fg_resp_problem(out, &p, 0);
-      return;
-    }
-    double until = fg_time_monotonic() + FG_HTTP_CANCEL_WAIT_S;
-    while (strcmp(c.status, "running") == 0 && fg_time_monotonic() < until) {
-      struct timespec ts = {0, 50 * 1000 * 1000};
-      nanosleep(&ts, NULL);
-      fg_store_check_clear(&c);
-      fg_problem_init(&p);
-      if (fg_store_get_check(r->srv->store, id, &c, &p) != FG_OK) {
-        fg_resp_problem(out, &p, 0);
-        return;
-      }
-    }
-    if (strcmp(c.status, "running") == 0) {
-      fg_store_check_clear(&c);
-      fg_resp_error(out, 503, FG_EBUSY,
-                    "check %s runs in another replica, which was asked to "
-                    "stop it but has not within %g s; GET it shortly",
-                    id, FG_HTTP_CANCEL_WAIT_S);
-      return;
-    }
-    res = FG_REGISTRY_CANCELLED;
-  }
-  if (res != FG_REGISTRY_CANCELLED || strcmp(c.status, "cancelled") != 0) {
+/* A DELETE waiting (suspended) for a cancelled check's record: stage 1
+ * for this daemon's registry to let go of it, stage 2 for another
+ * replica to record it in the shared store (looked at every
+ * CANCEL_LOOK_S). */
+#define CANCEL_LOOK_S 0.05
+typedef struct cancel_wait {
+  fg_server *srv;
+  int stage;
+  double until; /* fg_http_now() seconds */
+  char id[FG_HTTP_PATH_MAX + 1];
+} cancel_wait;
+
+static void cancel_continue(fg_server *srv, const char *id,
+                            fg_registry_cancel_result res, cancel_wait *cw,
+                            fg_resp *out);
+
+static bool cancel_released(void *ctx) {
+  cancel_wait *cw = ctx;
+  return !fg_registry_holds(cw->srv->registry, cw->id);
+}
+
+static void cancel_drop(void *ctx) { free(ctx); }
+
+/* The end of a DELETE: 409 unless the check ended cancelled by it; else
+ * 200 with its stored body. Clears *c. */
+static void cancel_answer(const char *id, fg_registry_cancel_result res,
+                          fg_store_check *c, fg_resp *out) {
+  if (res != FG_REGISTRY_CANCELLED || strcmp(c->status, "cancelled") != 0) {
     /* Ended before the cancel reached it (or not running here at all). */
-    if (strcmp(c.status, "running") == 0)
+    if (strcmp(c->status, "running") == 0)
       fg_resp_error(out, 409, FG_ECONFLICT,
                     "check %s is ending (or runs in another process) and "
                     "can no longer be cancelled here",
                     id);
     else
       fg_resp_error(out, 409, FG_ECONFLICT,
-                    "check %s is not running: it ended %s", id, c.status);
-    fg_store_check_clear(&c);
+                    "check %s is not running: it ended %s", id, c->status);
+    fg_store_check_clear(c);
     return;
   }
-  if (!send_stored_result(out, &c)) fg_resp_json(out, 200, check_summary(&c));
+  if (!send_stored_result(out, c)) fg_resp_json(out, 200, check_summary(c));
+  fg_store_check_clear(c);
+}
+
+static void cancel_finish(fg_req *r, void *ctx, bool timed_out,
+                          fg_resp *out) {
+  cancel_wait *cw = ctx;
+  if (cw->stage == 1) {
+    if (!cancel_released(cw)) {
+      fg_resp_error(out, 503, FG_EBUSY,
+                    "check %s was told to stop but has not stopped within "
+                    "%g s; GET it shortly",
+                    cw->id, FG_HTTP_CANCEL_WAIT_S);
+      free(cw);
+      return;
+    }
+    cancel_continue(cw->srv, cw->id, FG_REGISTRY_CANCELLED, cw, out);
+    return;
+  }
+  /* stage 2: has the other replica recorded its end? */
+  fg_problem p;
+  fg_problem_init(&p);
+  fg_store_check c;
+  if (fg_store_get_check(cw->srv->store, cw->id, &c, &p) != FG_OK) {
+    fg_resp_problem(out, &p, 0);
+    free(cw);
+    return;
+  }
+  if (strcmp(c.status, "running") != 0) {
+    cancel_answer(cw->id, FG_REGISTRY_CANCELLED, &c, out);
+    free(cw);
+    return;
+  }
   fg_store_check_clear(&c);
+  double now = fg_http_now();
+  if (now >= cw->until) {
+    fg_resp_error(out, 503, FG_EBUSY,
+                  "check %s runs in another replica, which was asked to "
+                  "stop it but has not within %g s; GET it shortly",
+                  cw->id, FG_HTTP_CANCEL_WAIT_S);
+    free(cw);
+    return;
+  }
+  out->pending = (fg_pending){
+      .finish = cancel_finish,
+      .drop = cancel_drop,
+      .ctx = cw,
+      .deadline = now + CANCEL_LOOK_S < cw->until ? now + CANCEL_LOOK_S
+                                                  : cw->until};
+}
+
+/* After the registry's part: read the record; a check running in another
+ * replica is asked through the store and waited for (stage 2). Owns cw
+ * (may be NULL). */
+static void cancel_continue(fg_server *srv, const char *id,
+                            fg_registry_cancel_result res, cancel_wait *cw,
+                            fg_resp *out) {
+  fg_problem p;
+  fg_problem_init(&p);
+  fg_store_check c;
+  if (fg_store_get_check(srv->store, id, &c, &p) != FG_OK) {
+    fg_resp_problem(out, &p, 0); /* 404 for an unknown id */
+    free(cw);
+    return;
+  }
+  if (res == FG_REGISTRY_NOT_HELD && strcmp(c.status, "running") == 0 &&
+      fg_store_shared(srv->store)) {
+    /* Running in another replica: ask it through the store, and wait for
+     * the record to end. */
+    fg_store_check_clear(&c);
+    fg_problem_init(&p);
+    if (fg_store_request_cancel(srv->store, id, &p) != FG_OK) {
+      fg_resp_problem(out, &p, 0);
+      free(cw);
+      return;
+    }
+    if (!cw) cw = calloc(1, sizeof *cw);
+    if (!cw) {
+      fg_resp_error(out, 503, FG_ENOMEM,
+                    "out of memory waiting for check %s to stop", id);
+      return;
+    }
+    if (cw->id != id) snprintf(cw->id, sizeof cw->id, "%s", id);
+    cw->srv = srv;
+    cw->stage = 2;
+    cw->until = fg_http_now() + FG_HTTP_CANCEL_WAIT_S;
+    out->pending = (fg_pending){.finish = cancel_finish,
+                                .drop = cancel_drop,
+                                .ctx = cw,
+                                .deadline = fg_http_now() + CANCEL_LOOK_S};
+    return;
+  }
+  free(cw);
+  cancel_answer(id, res, &c, out);
+}
+
+void fg_h_check_cancel(fg_req *r, fg_resp *out) {
+  const char *id = r->params[0];
+  /* Cancel without waiting; the wait for the record is suspended. */
+  fg_registry_cancel_result res = fg_registry_cancel(r->srv->registry, id, 0);
+  if (res == FG_REGISTRY_CANCEL_PENDING) {
+    cancel_wait *cw = calloc(1, sizeof *cw);
+    if (!cw) {
+      fg_resp_error(out, 503, FG_ENOMEM,
+                    "out of memory waiting for check %s to stop", id);
+      return;
+    }
+    cw->srv = r->srv;
+    cw->stage = 1;
+    snprintf(cw->id, sizeof cw->id, "%s", id);
+    out->pending = (fg_pending){.ready = cancel_released,
+                                .finish = cancel_finish,
+                                .drop = cancel_drop,
+                                .ctx = cw,
+                                .deadline =
+                                    fg_http_now() + FG_HTTP_CANCEL_WAIT_S};
+    return;
+  }
+  cancel_continue(r->srv, id, res, NULL, out);
 }
 
 /* ---- GET /v1/checks ---- */

@@ -330,9 +330,12 @@ typedef enum fg_registry_cancel_result {
   FG_REGISTRY_CANCEL_PENDING  /* cancelled, not yet recorded in wait_s */
 } fg_registry_cancel_result;
 /* Cancel the running check `id` and wait up to wait_s for its end to be
- * recorded. */
+ * recorded (the daemon passes 0 and waits suspended on fg_registry_holds). */
 fg_registry_cancel_result fg_registry_cancel(fg_registry *g, const char *id,
                                              double wait_s);
+/* Is check `id` listed here (running, or its end not yet recorded)?
+ * Quick: the waiter thread asks it. */
+bool fg_registry_holds(fg_registry *g, const char *id);
 /* The live result body of check `id`, or NULL when not held here. */
 cJSON *fg_registry_live_json(fg_registry *g, const char *id);
 int fg_registry_count(fg_registry *g);

@@ -391,6 +391,13 @@ fg_registry_cancel_result fg_registry_cancel(fg_registry *g, const char *id,
   return FG_REGISTRY_CANCELLED;
 }
 
+bool fg_registry_holds(fg_registry *g, const char *id) {
+  pthread_mutex_lock(&g->lock);
+  bool held = find_id(g, id) != NULL;
+  pthread_mutex_unlock(&g->lock);
+  return held;
+}
+
 cJSON *fg_registry_live_json(fg_registry *g, const char *id) {
   cJSON *body = NULL;
   pthread_mutex_lock(&g->lock);
