@@ -90,6 +90,12 @@ void fg_h_limits(fg_req *r, fg_resp *out) {
     add_limit(arr, "workers", cfg->workers);
     add_limit(arr, "chunk", cfg->chunk);
     add_limit(arr, "queue", cfg->queue);
+    add_limit(arr, "max_connections", cfg->max_connections);
+    add_limit(arr, "max_connections_per_client",
+              cfg->max_connections_per_client);
+    add_limit(arr, "connection_overflow", FG_HTTP_CONNECTIONS_OVERFLOW);
+    add_limit(arr, "header_timeout", FG_HTTP_HEADER_TIMEOUT_S);
+    add_limit(arr, "idle_timeout", FG_HTTP_IDLE_TIMEOUT_S);
   }
   fg_resp_json(out, 200, o);
 }
