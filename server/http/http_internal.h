@@ -18,8 +18,8 @@
  * fg_serve_command and passed to every handler through the request; there
  * is no global server state.
  *
- * Thread use: handlers run on libmicrohttpd's connection threads, several
- * at once; everything they touch through fg_server is thread-safe (store:
+ * Thread use: handlers run on libmicrohttpd's event-loop threads, several
+ * at once, and must not block (a wait is an fg_pending: waiter.c); everything they touch through fg_server is thread-safe (store:
  * its own mutex; cache: its own mutex; pool and checks: engine.h; registry:
  * its own mutex).
  */

@@ -2,10 +2,14 @@
  * http/server.c -- the libmicrohttpd daemon and `feasgate serve`.
  *
  * Design
- *   libmicrohttpd runs one thread per connection (plus its listening
- *   thread), so a handler waiting for a synchronous check (up to
- *   --max-wait) holds only its own connection. Handlers never simulate:
- *   checks run on the engine's worker pool.
+ *   libmicrohttpd runs a small pool of event-loop threads (epoll where
+ *   available) that serve every connection; connection limits, the
+ *   per-connection state and the header timeout are in conns.c. Handlers
+ *   never simulate (checks run on the engine's worker pool) and never
+ *   block: one that must wait (a check's wait_s, a cancel) leaves
+ *   out->pending, answer() suspends the connection and the waiter
+ *   (waiter.c) resumes it, after which the access handler's next call
+ *   runs pending.finish. Bodies may be streamed (fg_resp.reader).
  *
  *   The access handler is called several times per request:
  *     1st call   set up an fg_req; a request with bad framing (two
@@ -42,14 +46,15 @@
  *   -> block SIGINT/SIGTERM in every thread -> bind -> open the store,
  *   mark checks left running as interrupted -> load the keys, refuse a
  *   keyless non-loopback listener (exit 3) -> worker pool, model cache,
- *   registry -> daemon -> log
+ *   registry -> connection table, waiter -> daemon -> log
  *   "listening" -> sigwait. On SIGINT/SIGTERM: stop accepting (quiesce),
  *   wait for requests in flight (bounded by --max-wait plus a margin),
- *   stop the daemon, let detached checks finish within --grace (then
+ *   resume whatever is still suspended (answered as timed out), stop the
+ *   daemon, let detached checks finish within --grace (then
  *   cancel and record them), free the pool, close the store, exit 0.
  *
  * Thread use: the access handler and completion callback run on
- * libmicrohttpd's threads; fg_serve_command on the main thread only.
+ * libmicrohttpd's pool threads; fg_serve_command on the main thread only.
  */
 #include "http/http_internal.h"
 #include "http/metrics.h"
