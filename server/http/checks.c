@@ -31,7 +31,7 @@
  * sort in creation order and the list cursor can be an id. The generator's
  * last value is the one piece of process-wide state here (mutex-guarded).
  *
- * Thread use: handlers on connection threads; fg_http_record_end also on
+ * Thread use: handlers on libmicrohttpd's threads; fg_http_record_end also on
  * the registry's watcher thread.
  */
 #include "http/http_internal.h"

@@ -9,7 +9,7 @@
  *                   limit of FG_LIMITS_TABLE and every runtime setting;
  *                   whole values print as exact integers
  *
- * Thread use: handlers on connection threads; they only read.
+ * Thread use: handlers on libmicrohttpd's threads; they only read.
  */
 #include "http/http_internal.h"
 

@@ -14,7 +14,7 @@
  * by a live server. The end of a check that ran is recorded by
  * fg_http_record_end (checks.c).
  *
- * Thread use: connection threads; the store locks itself.
+ * Thread use: libmicrohttpd's threads; the store locks itself.
  */
 #include "http/http_internal.h"
 #include "http/metrics.h"

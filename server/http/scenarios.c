@@ -25,7 +25,7 @@
  * retired (410). One response holds at most FG_SCENARIO_CELLS_MAX values
  * (scenario_cells).
  *
- * Thread use: handlers on connection threads; drawing happens on the
+ * Thread use: handlers on libmicrohttpd's threads; drawing happens on the
  * connection's thread as libmicrohttpd asks for more of the body (it is bounded by the caps above and does no
  * simulation of constraints, so it does not go through the worker pool).
  */
