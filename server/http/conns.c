@@ -149,6 +149,7 @@ bool fg_http_conn_admit(fg_req *r, fg_resp *out) {
                     "them or try again shortly",
                     r->srv->cfg.max_connections_per_client);
     out->close = true;
+    atomic_fetch_add(&r->srv->conns_refused, 1);
     return false;
   }
   /* Headers in: from now on the long idle timeout. */

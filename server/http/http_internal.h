@@ -84,6 +84,7 @@ typedef struct fg_server {
   int open;
   fg_client *clients;
   int nclients, clients_cap;
+  atomic_ullong conns_refused; /* answered 503 for a connection limit */
   fg_waiter waiter;
 } fg_server;
 

@@ -30,6 +30,7 @@ daemons. Standard library (plus apicommon's schema checks); run with
 """
 import json
 import os
+import re
 import resource
 import socket
 import sys
@@ -179,6 +180,9 @@ def part_a(res, tmp):
         t = threading.Thread(target=long_check)
         t.start()
         time.sleep(0.3)
+        _, st, _, body, _ = get_from(d, "127.0.0.2", "/metrics")
+        res.check("feasgate_http_requests_waiting 1\n" in body.decode(),
+                  "/metrics shows the one suspended request")
         slow = max(get_from(d, "127.0.0.2")[0] for _ in range(10))
         res.check(slow < FAST_S, "health within 100 ms while a request "
                   "waits for its check: %.1f ms" % (1000 * slow))
@@ -255,6 +259,18 @@ def part_b(res, tmp):
         res.check(st == 503 and "max_connections =" in doc.get("detail", ""),
                   "beyond max_connections: 503 naming it, got %s %r"
                   % (st, body[:200]))
+        # 4 + 64 from 127.0.0.1, 31 from 127.0.0.2, and this scrape
+        held.pop().close()
+        time.sleep(0.3)
+        _, st, _, body, _ = get_from(d, "127.0.0.4", "/metrics")
+        text = body.decode()
+        res.check("feasgate_http_connections_refused_total 2\n" in text,
+                  "/metrics counts the two 503s: %r"
+                  % [x for x in text.splitlines() if "refused" in x])
+        m = re.search(r"^feasgate_http_connections (\d+)$", text, re.M)
+        res.check(m is not None and int(m.group(1)) == 100,
+                  "/metrics counts 100 open connections: %r"
+                  % (m.group(1) if m else None))
         for s in extra:
             s.close()
     except Exception as e:  # a crash of the test is a failure
