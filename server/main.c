@@ -157,6 +157,10 @@ static void print_summary(cJSON *res) {
   cJSON_ArrayForEach(pr, cJSON_GetObjectItem(det, "problems"))
     printf("problem    %s\n",
            cJSON_GetStringValue(cJSON_GetObjectItem(pr, "message")));
+  const cJSON *num = cJSON_GetObjectItem(res, "numeric");
+  cJSON_ArrayForEach(pr, cJSON_GetObjectItem(num, "problems"))
+    printf("numeric    %s\n",
+           cJSON_GetStringValue(cJSON_GetObjectItem(pr, "message")));
   printf("\n%-28s %12s %10s %12s %12s %12s\n", "row (worst first)",
          "P(violated)", "sole", "mean excess", "p95 excess", "max excess");
   const cJSON *r;

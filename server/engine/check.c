@@ -14,7 +14,11 @@
  * holds in it, deterministic rows included (they hold in all samples or in
  * none). Decision bound and integrality problems do not change the counts;
  * like failing deterministic rows they are listed under "deterministic" and
- * make the verdict fail.
+ * make the verdict fail. A row that evaluated to NaN does not hold (IEEE)
+ * but rules out a pass; a non-finite draw of an uncertain input rules out
+ * any verdict but inconclusive (numeric_verdict; result.c lists both under
+ * "numeric"). With stop_early the reported interval is never narrower
+ * than Clopper-Pearson's for the same counts (cs_reported).
  *
  * Thread use: any thread; fields follow the rule in engine_internal.h.
  */
@@ -183,6 +187,29 @@ static fg_interval design_interval(struct fg_check *c, int row, double *se) {
   return t_interval((double)c->nrep, sum, sumsq, k, n, c->req.confidence, se);
 }
 
+/* The sequence's interval as reported for the counts merged so far: the
+ * running intersection widened to hold the Clopper-Pearson interval of
+ * the same counts at the same level, so an early stop never claims more
+ * than the fixed-n interval of its own counts would (the widening only
+ * adds coverage). */
+static fg_interval cs_reported(const struct fg_check *c) {
+  const fg_tally *t = &c->total;
+  if (t->n == 0) return (fg_interval){0.0, 1.0};
+  fg_interval cp =
+      fg_interval_clopper_pearson(t->satisfied, t->n, c->req.confidence);
+  fg_interval iv = c->cs;
+  if (!(cp.lower >= iv.lower)) iv.lower = cp.lower < iv.lower ? cp.lower : 0;
+  if (!(cp.upper <= iv.upper)) iv.upper = cp.upper > iv.upper ? cp.upper : 1;
+  return iv;
+}
+
+/* Did any row evaluate to NaN in the counts merged so far? */
+static bool nan_rows(const fg_tally *t) {
+  for (int r = 0; r < t->nrows; r++)
+    if (t->rows[r].nonfinite > 0) return true;
+  return false;
+}
+
 bool fg_check_look_locked(struct fg_check *c) {
   uint64_t n = c->total.n;
   if (c->next_look == 0 || n < c->next_look) return false;
@@ -194,8 +221,26 @@ bool fg_check_look_locked(struct fg_check *c) {
   if (iv.upper < c->cs.upper) c->cs.upper = iv.upper;
   c->next_look = n >= c->req.samples ? 0 : (n * 2 < c->req.samples ? n * 2
                                                                     : c->req.samples);
-  return c->cs.lower >= c->req.target || c->cs.upper < c->req.target ||
-         c->ndet > 0;
+  fg_interval rep = cs_reported(c);
+  /* numeric trouble rules a verdict out (numeric_verdict): keep sampling
+   * rather than stop on one that would not stand */
+  bool nan = nan_rows(&c->total), bad_draws = c->total.bad_draws > 0;
+  return (rep.lower >= c->req.target && !nan && !bad_draws) ||
+         (rep.upper < c->req.target && !bad_draws) || c->ndet > 0;
+}
+
+/* IEEE semantics at the verdict: a row that evaluated to NaN neither
+ * held nor was exceeded by a number, so the counts cannot support a pass
+ * (NaN does not hold, so a fail stands); a non-finite draw of an
+ * uncertain input makes its samples say nothing about the plan, so
+ * neither pass nor fail is claimed. Deterministic problems fail as
+ * always. The result body lists each under "numeric" (result.c). */
+static fg_verdict numeric_verdict(const struct fg_check *c, fg_verdict v) {
+  if (c->ndet > 0) return v;
+  if (c->total.bad_draws > 0) return FG_VERDICT_INCONCLUSIVE;
+  if (nan_rows(&c->total) && v == FG_VERDICT_PASS)
+    return FG_VERDICT_INCONCLUSIVE;
+  return v;
 }
 
 const uint64_t *fg_check_outcomes(fg_check *c, uint64_t *n) {
@@ -271,19 +316,21 @@ void fg_check_finalize_locked(struct fg_check *c) {
                    : NAN;
   if (c->req.stop_early) {
     fg_check_look_locked(c); /* a last look at the final count */
-    c->interval = c->cs;
+    c->interval = cs_reported(c);
   } else if (c->design != FG_DESIGN_MONTE_CARLO && n > 2) {
     c->interval = design_interval(c, -1, &c->std_error);
   } else {
     c->interval = interval_of(c->req.interval, k, n, c->req.confidence);
   }
-  c->verdict = (fg_verdict)fg_verdict_rule(c->interval, c->req.target,
-                                           c->ndet > 0);
+  c->verdict = numeric_verdict(
+      c, (fg_verdict)fg_verdict_rule(c->interval, c->req.target, c->ndet > 0));
   /* Coupled designs' sample indices are not scenarios of the validation
    * stream that GET .../scenarios could hand out: report none. */
   if (c->design != FG_DESIGN_MONTE_CARLO) c->total.nfail = 0;
   c->samples_to_settle = 0;
-  if (c->verdict == FG_VERDICT_INCONCLUSIVE && n > 0) {
+  /* more samples do not settle what NaN left open */
+  bool numeric_ok = t->bad_draws == 0 && !nan_rows(t);
+  if (c->verdict == FG_VERDICT_INCONCLUSIVE && n > 0 && numeric_ok) {
     double s = fg_samples_to_settle(k, n, c->req.target, c->req.confidence);
     if (s > 0 && isfinite(s)) c->samples_to_settle = ceil(s);
   }
@@ -296,6 +343,7 @@ void fg_check_finalize_locked(struct fg_check *c) {
       rr->violated = rt->violated;
       rr->sole = rt->sole;
       rr->nonfinite = rt->nonfinite;
+      rr->infinite = rt->infinite;
       rr->probability = n ? (double)rt->violated / (double)n : NAN;
       double se_row;
       if (c->design != FG_DESIGN_MONTE_CARLO && n > 2 && !c->req.stop_early)
@@ -304,7 +352,7 @@ void fg_check_finalize_locked(struct fg_check *c) {
         rr->interval = interval_of(c->req.interval, rt->violated, n,
                                    c->req.confidence);
       rr->excess_mean = n ? rt->excess_sum / (double)n : 0;
-      uint64_t finite = rt->violated - rt->nonfinite;
+      uint64_t finite = rt->violated - rt->nonfinite - rt->infinite;
       rr->excess_mean_if_violated = finite ? rt->excess_sum / (double)finite : 0;
       rr->excess_p95 = finite ? fg_hist_quantile(&rt->hist, 0.95) : 0;
       rr->excess_max = finite ? rt->hist.max : 0;
@@ -415,6 +463,9 @@ fg_status fg_check_start(fg_pool *pool, fg_model *m,
     c->has_in_sample = true;
     c->in_sample_count = t.n;
     c->in_sample_satisfied = t.satisfied;
+    c->in_sample_bad_draws = t.bad_draws;
+    c->in_sample_bad_first = t.bad_draw_first;
+    c->in_sample_bad_column = t.bad_draw_column;
     fg_tally_free(&t);
     fg_eval_ctx_free(&ctx);
   }

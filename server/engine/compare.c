@@ -222,6 +222,22 @@ fg_status fg_compare_parse(const fg_model *m, const cJSON *body,
       shared_reported = true;
       continue;
     }
+    /* Paired counts need independent scenarios: Newcombe's interval
+     * assumes them, and coupled designs (antithetic pairs, Latin
+     * hypercube and Sobol replicates) break it, so they are refused here
+     * where the request becomes a comparison (fg_request_parse cannot
+     * tell a candidate from a check). */
+    if (req.sampling != FG_SAMPLING_MONTE_CARLO) {
+      if (!shared_reported)
+        fg_problem_add(p, FG_EINVAL, "/sampling", 0,
+                       "comparisons use sampling monte_carlo: the paired "
+                       "interval needs independent scenarios, and sampling "
+                       "%s couples them",
+                       fg_sampling_name(req.sampling));
+      shared_reported = true;
+      fg_request_free(&req);
+      continue;
+    }
     shared_reported = true;
     if (!usable) {
       fg_request_free(&req);

@@ -34,7 +34,7 @@ typedef struct fg_det_problem {
 /* Per-row figures computed when a check ends. */
 typedef struct fg_row_result {
   int row; /* index into the program's rows */
-  uint64_t violated, sole, nonfinite;
+  uint64_t violated, sole, nonfinite, infinite;
   double probability; /* violation probability */
   fg_interval interval;
   double excess_mean, excess_mean_if_violated, excess_p95, excess_max;
@@ -70,6 +70,9 @@ struct fg_check {
 
   bool has_in_sample;
   uint64_t in_sample_satisfied, in_sample_count;
+  /* non-finite draws of the in-sample evaluation (design stream) */
+  uint64_t in_sample_bad_draws, in_sample_bad_first;
+  int in_sample_bad_column;
 
   double t_start, deadline; /* monotonic seconds; deadline 0 = none */
 

@@ -91,6 +91,8 @@ bool fg_engine_run_range(const struct fg_check *c, fg_sample_scratch *w,
         fg_sampler_draw_design(c->model->sampler, w, seed, stream,
                                c->design, c->rep_size, first + done, n, ureg,
                                FG_BLOCK);
+      /* a non-finite draw is reported, never judged (check.c) */
+      fg_tally_inputs(t, ureg, in->nuncertain, FG_BLOCK, n, first + done);
     }
     fg_program_run_block(c->model->program, regs, n);
     fg_tally_block(t, excess, n, first + done, obj, scratch);

@@ -306,9 +306,6 @@ fg_status fg_request_parse(const fg_model *m, const cJSON *body,
                    "sampling antithetic draws pairs: samples must be at "
                    "least 4");
   }
-  if (out->keep_outcomes && out->sampling != FG_SAMPLING_MONTE_CARLO)
-    fg_problem_add(p, FG_EINVAL, "/sampling", 0,
-                   "comparisons use sampling monte_carlo");
   if (p->nitems > before || p->status != FG_OK) goto fail;
   return FG_OK;
 fail:

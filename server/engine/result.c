@@ -91,16 +91,96 @@ static void add_rows(cJSON *o, struct fg_check *c) {
     /* Given violation: undefined (null) for a row never violated. The
      * 95th percentile comes from the log histogram, within
      * FG_HIST_REL_ERROR (1/128) relative; mean and maximum are exact. */
-    bool any = rr->violated > rr->nonfinite;
+    bool any = rr->violated > rr->nonfinite + rr->infinite;
     add_num(ex, "mean_if_violated", any ? rr->excess_mean_if_violated : NAN);
     add_num(ex, "p95", any ? rr->excess_p95 : NAN);
     add_num(ex, "max", any ? rr->excess_max : NAN);
     cJSON_AddNumberToObject(r, "sole_cause", (double)rr->sole);
-    if (rr->nonfinite)
-      cJSON_AddNumberToObject(r, "nonfinite", (double)rr->nonfinite);
+    cJSON_AddNumberToObject(r, "nonfinite", (double)rr->nonfinite);
     cJSON_AddBoolToObject(r, "deterministic", row->deterministic);
     cJSON_AddItemToArray(arr, r);
   }
+}
+
+/* "numeric": what IEEE arithmetic left undecided, in the style of
+ * "deterministic": non-finite draws of an uncertain input (the first by
+ * sample index, which does not depend on workers or chunk sizes), those of
+ * the in-sample evaluation (design stream; they do not touch the
+ * verdict), then rows that evaluated to NaN, in row order; at most
+ * FG_DET_PROBLEMS_MAX row entries. Empty while a check runs (the counts
+ * are not final). */
+static void add_numeric(cJSON *o, struct fg_check *c, bool ended) {
+  const fg_tally *t = &c->total;
+  bool any = ended && (t->bad_draws > 0 || c->in_sample_bad_draws > 0);
+  for (int r = 0; ended && r < t->nrows && !any; r++)
+    any = t->rows[r].nonfinite > 0;
+  cJSON *num = cJSON_AddObjectToObject(o, "numeric");
+  cJSON_AddBoolToObject(num, "ok", !any);
+  cJSON *probs = cJSON_AddArrayToObject(num, "problems");
+  int listed = 0, dropped = 0;
+  char msg[320];
+  if (ended && t->bad_draws > 0) {
+    const char *col = fg_sampler_column(c->model->sampler, t->bad_draw_column);
+    snprintf(msg, sizeof msg,
+             "uncertain input %s drew a non-finite value at sample %llu "
+             "(%llu non-finite values in all); such samples say nothing "
+             "about the plan, so the verdict is inconclusive",
+             col ? col : "?", (unsigned long long)t->bad_draw_first,
+             (unsigned long long)t->bad_draws);
+    cJSON *pr = cJSON_CreateObject();
+    cJSON_AddStringToObject(pr, "name", col ? col : "?");
+    cJSON_AddStringToObject(pr, "kind", "input");
+    cJSON_AddStringToObject(pr, "stream", "validation");
+    add_u64(pr, "index", t->bad_draw_first);
+    add_u64(pr, "count", t->bad_draws);
+    cJSON_AddStringToObject(pr, "message", msg);
+    cJSON_AddItemToArray(probs, pr);
+    listed++;
+  }
+  if (ended && c->in_sample_bad_draws > 0) {
+    const char *col =
+        fg_sampler_column(c->model->sampler, c->in_sample_bad_column);
+    snprintf(msg, sizeof msg,
+             "uncertain input %s drew a non-finite value at design scenario "
+             "%llu of the in-sample evaluation (%llu non-finite values in "
+             "all); its in_sample figures say nothing about the plan",
+             col ? col : "?", (unsigned long long)c->in_sample_bad_first,
+             (unsigned long long)c->in_sample_bad_draws);
+    cJSON *pr = cJSON_CreateObject();
+    cJSON_AddStringToObject(pr, "name", col ? col : "?");
+    cJSON_AddStringToObject(pr, "kind", "input");
+    cJSON_AddStringToObject(pr, "stream", "design");
+    add_u64(pr, "index", c->in_sample_bad_first);
+    add_u64(pr, "count", c->in_sample_bad_draws);
+    cJSON_AddStringToObject(pr, "message", msg);
+    cJSON_AddItemToArray(probs, pr);
+    listed++;
+  }
+  for (int r = 0; ended && r < t->nrows; r++) {
+    const fg_row_tally *rt = &t->rows[r];
+    if (rt->nonfinite == 0) continue;
+    if (listed >= FG_DET_PROBLEMS_MAX) {
+      dropped++;
+      continue;
+    }
+    const char *name = c->info.rows[r].name;
+    snprintf(msg, sizeof msg,
+             "constraint row %s evaluated to NaN at sample %llu (%llu "
+             "samples in all): a NaN comparison does not hold, and the "
+             "verdict cannot be pass",
+             name, (unsigned long long)rt->first_nonfinite,
+             (unsigned long long)rt->nonfinite);
+    cJSON *pr = cJSON_CreateObject();
+    cJSON_AddStringToObject(pr, "name", name);
+    cJSON_AddStringToObject(pr, "kind", "row");
+    cJSON_AddStringToObject(pr, "stream", "validation");
+    add_u64(pr, "index", rt->first_nonfinite);
+    add_u64(pr, "count", rt->nonfinite);
+    cJSON_AddStringToObject(pr, "message", msg);
+    cJSON_AddItemToArray(probs, pr);
+    listed++;
+  }
+  if (dropped) cJSON_AddNumberToObject(num, "problems_not_listed", dropped);
 }
 
 cJSON *fg_check_result_json(fg_check *c, const fg_check_meta *meta) {
@@ -155,6 +235,8 @@ cJSON *fg_check_result_json(fg_check *c, const fg_check_meta *meta) {
   }
   if (c->ndet_dropped)
     cJSON_AddNumberToObject(det, "problems_not_listed", c->ndet_dropped);
+
+  add_numeric(o, c, ended);
 
   if (ended && c->has_objective) add_num(o, "objective", c->objective);
   else cJSON_AddNullToObject(o, "objective");

@@ -54,7 +54,10 @@ double fg_log_beta(double a, double b);
  * the two wrong verdicts has probability at most alpha/2, as with the
  * fixed-n interval. The prior is centred on the target with strength
  * FG_CS_PRIOR_STRENGTH pseudo-samples, which keeps the sequence tight where
- * the verdict is decided. */
+ * the verdict is decided. Accurate (tests/reference/test_sequence.py) for
+ * prior means up to 1 - 1e-15 and n up to FG_MAX_SAMPLES_HARD; ends are
+ * rounded outwards. The engine reports it widened to contain the
+ * Clopper-Pearson interval of the same counts (engine/check.c). */
 #define FG_CS_PRIOR_STRENGTH 10.0
 /* First look after this many samples, then after every doubling. */
 #define FG_CS_FIRST_ROUND 4096
@@ -115,6 +118,10 @@ typedef struct fg_row_tally {
   uint64_t violated;  /* samples where the row does not hold */
   uint64_t sole;      /* ... and is the only row that does not */
   uint64_t nonfinite; /* violations whose excess was NaN */
+  uint64_t first_nonfinite; /* smallest sample index of those, or
+                               FG_INDEX_NONE */
+  uint64_t infinite;  /* violations whose excess was +infinity (not in
+                         the sum or the histogram) */
   double excess_sum;  /* sum of finite positive excess */
   fg_hist hist;       /* positive finite excess values */
   uint64_t block_mask[(FG_BLOCK + 63) / 64]; /* fg_tally_block's scratch */
@@ -125,6 +132,9 @@ typedef struct fg_fail_record {
   int nrows;         /* rows violated (may exceed FG_FAIL_ROWS_MAX) */
   int rows[FG_FAIL_ROWS_MAX];
 } fg_fail_record;
+
+/* "No sample": the first index of an event that has not happened. */
+#define FG_INDEX_NONE UINT64_MAX
 
 typedef struct fg_tally {
   /* Paired tallies (antithetic sampling): lanes 2m and 2m+1 of a block are
@@ -138,6 +148,11 @@ typedef struct fg_tally {
   double objective_sum;
   int nfail;
   fg_fail_record fail[FG_FAILING_SCENARIOS];
+  /* Non-finite draws of uncertain inputs (fg_tally_inputs): how many
+   * values, and the first by sample index (ties: the lower column). */
+  uint64_t bad_draws;
+  uint64_t bad_draw_first; /* FG_INDEX_NONE when there are none */
+  int bad_draw_column;
 } fg_tally;
 
 fg_status fg_tally_init(fg_tally *t, int nrows);
@@ -152,6 +167,13 @@ void fg_tally_merge(fg_tally *dst, const fg_tally *src);
  * first + s satisfied every row. */
 void fg_tally_block(fg_tally *t, const double *const *excess, int n,
                     uint64_t first, const double *objective, int *scratch);
+/* Look at a block's draws: `ncols` columns of n values, column j at
+ * x + j * stride, lane t = sample first + t. Non-finite values are
+ * counted in bad_draws and the first (smallest sample index, then
+ * column) kept. Cheap when all are finite: one branch-free pass per
+ * column. */
+void fg_tally_inputs(fg_tally *t, const double *x, int ncols, size_t stride,
+                     int n, uint64_t first);
 /* Tests: 1 makes fg_tally_block use its SSE2 / scalar violation masks
  * even where AVX-512F exists, 0 lets it choose again. */
 void fg_tally_force_portable(int on);

@@ -10,7 +10,10 @@
  * which row failed last; the accumulated masks then give the joint count,
  * sole-cause counts, pair counts and failing-scenario records. A row fails
  * when its excess is not <= 0, so NaN fails (counted apart as
- * non-finite).
+ * non-finite, with the first sample index where it happened: the minimum
+ * over chunks when merging, so it does not depend on workers or chunk
+ * sizes); a +infinity excess is a violation like any other but stays out
+ * of the excess sum and histogram (counted as `infinite`).
  *
  * Merging: counts add; sums add in merge order (the engine merges chunks in
  * chunk order, so sums do not depend on the number of workers); failing
@@ -33,7 +36,9 @@ fg_status fg_tally_init(fg_tally *t, int nrows) {
   t->nrows = nrows;
   t->rows = calloc(nrows > 0 ? (size_t)nrows : 1, sizeof *t->rows);
   if (!t->rows) return FG_ENOMEM;
+  t->bad_draw_first = FG_INDEX_NONE;
   for (int r = 0; r < nrows; r++) {
+    t->rows[r].first_nonfinite = FG_INDEX_NONE;
     if (fg_hist_init(&t->rows[r].hist) != FG_OK) {
       fg_tally_free(t);
       return FG_ENOMEM;
@@ -54,9 +59,13 @@ void fg_tally_reset(fg_tally *t) {
   t->pair_both = t->pair_one = 0;
   t->objective_sum = 0;
   t->nfail = 0;
+  t->bad_draws = 0;
+  t->bad_draw_first = FG_INDEX_NONE;
+  t->bad_draw_column = 0;
   for (int r = 0; r < t->nrows; r++) {
     fg_row_tally *rt = &t->rows[r];
-    rt->violated = rt->sole = rt->nonfinite = 0;
+    rt->violated = rt->sole = rt->nonfinite = rt->infinite = 0;
+    rt->first_nonfinite = FG_INDEX_NONE;
     rt->pair_both = rt->pair_one = 0;
     rt->excess_sum = 0;
     fg_hist_reset(&rt->hist);
@@ -77,11 +86,66 @@ void fg_tally_merge(fg_tally *dst, const fg_tally *src) {
     d->pair_one += s->pair_one;
     d->sole += s->sole;
     d->nonfinite += s->nonfinite;
+    d->infinite += s->infinite;
+    if (s->first_nonfinite < d->first_nonfinite)
+      d->first_nonfinite = s->first_nonfinite;
     d->excess_sum += s->excess_sum;
     fg_hist_merge(&d->hist, &s->hist);
   }
   for (int i = 0; i < src->nfail && dst->nfail < FG_FAILING_SCENARIOS; i++)
     dst->fail[dst->nfail++] = src->fail[i];
+  dst->bad_draws += src->bad_draws;
+  if (src->bad_draw_first < dst->bad_draw_first ||
+      (src->bad_draw_first == dst->bad_draw_first &&
+       src->bad_draw_first != FG_INDEX_NONE &&
+       src->bad_draw_column < dst->bad_draw_column)) {
+    dst->bad_draw_first = src->bad_draw_first;
+    dst->bad_draw_column = src->bad_draw_column;
+  }
+}
+
+/* A double is finite iff its exponent bits are not all ones, i.e. iff
+ * (bits & EXP_MASK) - EXP_MASK borrows (bit 63 set): integer and, subtract,
+ * shift and and-reduce, which the compiler vectorises with SSE2 and AVX2
+ * (a compare-to-bool form and isfinite() it leaves scalar). */
+#define EXP_MASK UINT64_C(0x7ff0000000000000)
+
+static uint64_t all_finite(const double *x, size_t m) {
+  uint64_t fin = 1;
+  for (size_t s = 0; s < m; s++) {
+    uint64_t u;
+    memcpy(&u, &x[s], sizeof u);
+    fin &= ((u & EXP_MASK) - EXP_MASK) >> 63;
+  }
+  return fin;
+}
+
+/* (built for AVX2 and the baseline like the interpreter's loops: integer
+ * code, the same answer either way) */
+#if defined(__x86_64__) && defined(__GNUC__) && !defined(__clang__) && \
+    !defined(__SANITIZE_THREAD__)
+__attribute__((target_clones("avx2", "default")))
+#endif
+void fg_tally_inputs(fg_tally *t, const double *x, int ncols, size_t stride,
+                     int n, uint64_t first) {
+  /* a full block of contiguous columns is one array: one pass */
+  if (ncols <= 0 ||
+      ((size_t)n == stride && all_finite(x, (size_t)ncols * stride)))
+    return;
+  for (int j = 0; j < ncols; j++) {
+    const double *col = x + (size_t)j * stride;
+    if (all_finite(col, n > 0 ? (size_t)n : 0)) continue;
+    for (int s = 0; s < n; s++) {
+      if (isfinite(col[s])) continue;
+      t->bad_draws++;
+      uint64_t idx = first + (uint64_t)s;
+      if (idx < t->bad_draw_first ||
+          (idx == t->bad_draw_first && j < t->bad_draw_column)) {
+        t->bad_draw_first = idx;
+        t->bad_draw_column = j;
+      }
+    }
+  }
 }
 
 /* One row over a block as a bit mask: bit s of m[s / 64] is set where
@@ -130,6 +194,17 @@ static int violated_values(const double *e, const uint64_t *m, double *vals) {
     for (uint64_t bits = m[w]; bits; bits &= bits - 1)
       vals[k++] = e[64 * w + __builtin_ctzll(bits)];
   return k;
+}
+
+/* The first violated lane of one row whose excess is NaN (the caller
+ * knows there is one). */
+static int first_nan_lane(const double *e, const uint64_t *m) {
+  for (int w = 0; w < MASK_WORDS; w++)
+    for (uint64_t bits = m[w]; bits; bits &= bits - 1) {
+      int s = 64 * w + __builtin_ctzll(bits);
+      if (e[s] != e[s]) return s;
+    }
+  return 0;
 }
 
 /* 1 when tests have asked for the SSE2 / scalar masks only. */
@@ -217,15 +292,22 @@ void fg_tally_block(fg_tally *t, const double *const *excess, int n,
     }
     int k = violated_values(e, m, vals);
     double sum = 0;
-    int kf = 0;
+    int kf = 0, nnan = 0;
     for (int j = 0; j < k; j++) {
       double x = vals[j];
       if (isfinite(x)) {
         sum += x;
         vals[kf++] = x;
+      } else if (x > 0) {
+        rt->infinite++;
       } else {
-        rt->nonfinite++;
+        nnan++; /* a violated lane's excess is > 0 or NaN */
       }
+    }
+    if (nnan) {
+      rt->nonfinite += (uint64_t)nnan;
+      uint64_t idx = first + (uint64_t)first_nan_lane(e, m);
+      if (idx < rt->first_nonfinite) rt->first_nonfinite = idx;
     }
     fg_hist_add_many(&rt->hist, vals, kf);
     rt->violated += (uint64_t)nv;

@@ -25,11 +25,16 @@
  * Before a worker runs blocks it calls fg_program_broadcast() once to copy
  * every setup-computed register into all FG_BLOCK lanes.
  *
- * A constraint row is represented by one register holding its *excess*:
- *   e1 <= e2  ->  e1 - e2        e1 >= e2  ->  e2 - e1
- *   lo <= e <= hi -> max(lo - e, e - hi)      (deterministic) a == b -> |a - b|
- * The row holds in a sample iff excess <= 0 (NaN never holds). Reported
- * excess is max(excess, 0).
+ * A constraint row is represented by one register holding its *excess*,
+ * built with EXCESS(a, b) = a - b except 0 where a == b (opcodes.h):
+ *   e1 <= e2  ->  EXCESS(e1, e2)        e1 >= e2  ->  EXCESS(e2, e1)
+ *   lo <= e <= hi -> max(EXCESS(lo, e), EXCESS(e, hi))
+ *   (deterministic) a == b -> |EXCESS(a, b)|
+ * so excess <= 0 exactly where the comparison holds by IEEE rules
+ * (inf <= inf holds, with excess 0), and the excess is NaN exactly where
+ * a side is NaN. The row holds in a sample iff excess <= 0; NaN never
+ * holds and is counted apart as non-finite. Reported excess is
+ * max(excess, 0).
  *
  * Errors are added to the fg_problem with the JSON Pointer the caller gave
  * and the 1-based column inside the source text.

@@ -8,7 +8,9 @@
  * once per instruction and block, not per sample. The loop bodies call
  * libm directly (no function pointers) and nothing here allocates, locks
  * or fails: IEEE arithmetic gives infinities and NaN where the maths has
- * no answer, and the rows treat NaN as violated.
+ * no answer; a row whose excess is NaN does not hold and is counted as
+ * non-finite (estimate/tally.c), and NaN truth values propagate
+ * (opcodes.h).
  *
  * Invariants (guaranteed by program.c, see opcodes.h): the destination
  * never aliases a source, so the restrict qualifiers are truthful; every
@@ -68,7 +70,7 @@ void fg_expr_run(const fg_insn *insns, int count, double *regs, size_t stride,
       break;
     case FG_OP_NOT:
       for (int i = 0; i < n; i++)
-        d[i] = a[i] == 0.0 ? 1.0 : 0.0;
+        d[i] = a[i] == 0.0 ? 1.0 : a[i] != a[i] ? a[i] : 0.0;
       break;
     case FG_OP_ABS:
       for (int i = 0; i < n; i++)
@@ -163,16 +165,24 @@ void fg_expr_run(const fg_insn *insns, int count, double *regs, size_t stride,
         d[i] = a[i] != b[i] ? 1.0 : 0.0;
       break;
     case FG_OP_AND:
-      for (int i = 0; i < n; i++)
-        d[i] = ((a[i] != 0.0) & (b[i] != 0.0)) ? 1.0 : 0.0;
+      for (int i = 0; i < n; i++) {
+        double t = ((a[i] != 0.0) & (b[i] != 0.0)) ? 1.0 : 0.0;
+        t = b[i] != b[i] ? b[i] : t;
+        d[i] = a[i] != a[i] ? a[i] : t;
+      }
       break;
     case FG_OP_OR:
-      for (int i = 0; i < n; i++)
-        d[i] = ((a[i] != 0.0) | (b[i] != 0.0)) ? 1.0 : 0.0;
+      for (int i = 0; i < n; i++) {
+        double t = ((a[i] != 0.0) | (b[i] != 0.0)) ? 1.0 : 0.0;
+        t = b[i] != b[i] ? b[i] : t;
+        d[i] = a[i] != a[i] ? a[i] : t;
+      }
       break;
     case FG_OP_SELECT:
-      for (int i = 0; i < n; i++)
-        d[i] = a[i] != 0.0 ? b[i] : c[i];
+      for (int i = 0; i < n; i++) {
+        double t = a[i] != 0.0 ? b[i] : c[i];
+        d[i] = a[i] != a[i] ? a[i] : t;
+      }
       break;
     case FG_OP_CLAMP:
       for (int i = 0; i < n; i++) {
@@ -186,6 +196,12 @@ void fg_expr_run(const fg_insn *insns, int count, double *regs, size_t stride,
       for (int i = 0; i < n; i++) {
         double prod = a[i] * b[i];
         d[i] = prod + c[i];
+      }
+      break;
+    case FG_OP_EXCESS:
+      for (int i = 0; i < n; i++) {
+        double x = a[i] - b[i];
+        d[i] = a[i] == b[i] ? 0.0 : x;
       }
       break;
     case FG_OP_COUNT: break;

@@ -183,7 +183,7 @@ static bool excess_of(fg_expr_compiler *c, const fg_node *n, fg_value *v,
     fg_value d;
     fg_value a0 = *a[0], a1 = *a[1];
     a0.owned = a1.owned = false; /* the caller frees v */
-    if (!fg_expr_map2(c, FG_OP_SUB, &a0, &a1, col, &d)) return false;
+    if (!fg_expr_map2(c, FG_OP_EXCESS, &a0, &a1, col, &d)) return false;
     if (*kind != FG_ROW_EQ) {
       *ex = d;
       return true;
@@ -208,8 +208,8 @@ static bool excess_of(fg_expr_compiler *c, const fg_node *n, fg_value *v,
   if (fg_expr_broadcast_shape(c, args, 3, col) < 0) return false;
   fg_value l = *lo, h = *hi, e1 = *e, e2 = *e, below, above;
   l.owned = h.owned = e1.owned = e2.owned = false;
-  if (!fg_expr_map2(c, FG_OP_SUB, &l, &e1, col, &below)) return false;
-  if (!fg_expr_map2(c, FG_OP_SUB, &e2, &h, n->opcols[1], &above)) {
+  if (!fg_expr_map2(c, FG_OP_EXCESS, &l, &e1, col, &below)) return false;
+  if (!fg_expr_map2(c, FG_OP_EXCESS, &e2, &h, n->opcols[1], &above)) {
     fg_expr_value_free(&below);
     return false;
   }

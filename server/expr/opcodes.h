@@ -23,14 +23,23 @@
  *
  * Semantics follow IEEE 754 double arithmetic without traps: a division by
  * zero gives an infinity, log of a negative number gives NaN, and so on.
- * Truth values are 1 and 0; any non-zero value (NaN included) counts as
- * true where an operand is read as a truth value.
+ * Truth values are 1 and 0; a non-zero number counts as true where an
+ * operand is read as a truth value, and NaN is neither: NOT, AND, OR and
+ * SELECT give NaN (their NaN operand, the first one when both are) where
+ * a truth operand is NaN, so an undefined condition stays undefined and
+ * a row built on it is counted as non-finite, never as held.
  *
  * Odd cases:
  *   - MIN and MAX propagate NaN (unlike fmin/fmax), so a NaN never hides
  *     inside a maximum and turns a violated row into a satisfied one;
  *   - POS(NaN) is NaN for the same reason;
  *   - comparisons with a NaN operand give 0, except NE which gives 1;
+ *     comparisons of infinities follow IEEE (inf <= inf is 1);
+ *   - EXCESS(a, b) is a - b except 0 where a == b, so two equal
+ *     infinities give 0 (not inf - inf = NaN): a row's excess, whose sign
+ *     says whether a <= b holds by IEEE rules; NaN only when an operand is
+ *     NaN;
+ *   - AND and OR read both operands (no short cut): 0 && NaN is NaN;
  *   - ROUND is C round(): halves go away from zero (round(-2.5) = -3);
  *   - CLAMP(x, lo, hi) is MIN(MAX(x, lo), hi): when lo > hi it gives hi;
  *   - MULADD computes a*b + c as two roundings (no fused multiply-add), so
@@ -42,7 +51,7 @@
 typedef enum fg_opcode {
   FG_OP_CONST = 0, /* d <- imm                                   */
   FG_OP_NEG,       /* d <- -a                                    */
-  FG_OP_NOT,       /* d <- (a == 0) ? 1 : 0                      */
+  FG_OP_NOT,       /* d <- (a == 0) ? 1 : 0; NaN stays NaN       */
   FG_OP_ABS,       /* d <- |a|                                   */
   FG_OP_SQRT,      /* d <- sqrt(a)           (NaN for a < 0)     */
   FG_OP_EXP,       /* d <- e^a                                   */
@@ -65,11 +74,12 @@ typedef enum fg_opcode {
   FG_OP_GE,        /* d <- (a >= b) ? 1 : 0                      */
   FG_OP_EQ,        /* d <- (a == b) ? 1 : 0                      */
   FG_OP_NE,        /* d <- (a != b) ? 1 : 0                      */
-  FG_OP_AND,       /* d <- (a != 0 && b != 0) ? 1 : 0            */
-  FG_OP_OR,        /* d <- (a != 0 || b != 0) ? 1 : 0            */
-  FG_OP_SELECT,    /* d <- (a != 0) ? b : c                      */
+  FG_OP_AND,       /* d <- (a != 0 && b != 0) ? 1 : 0; NaN in, NaN */
+  FG_OP_OR,        /* d <- (a != 0 || b != 0) ? 1 : 0; NaN in, NaN */
+  FG_OP_SELECT,    /* d <- (a != 0) ? b : c; a NaN gives a       */
   FG_OP_CLAMP,     /* d <- MIN(MAX(a, b), c)                     */
   FG_OP_MULADD,    /* d <- a * b + c  (two roundings)            */
+  FG_OP_EXCESS,    /* d <- (a == b) ? 0 : a - b                  */
   FG_OP_COUNT
 } fg_opcode;
 
@@ -87,6 +97,7 @@ static const fg_opcode_desc fg_opcode_table[] = {
     {"div", 2},   {"pow", 2}, {"min", 2},    {"max", 2},   {"lt", 2},
     {"le", 2},    {"gt", 2},  {"ge", 2},     {"eq", 2},    {"ne", 2},
     {"and", 2},   {"or", 2},  {"select", 3}, {"clamp", 3}, {"muladd", 3},
+    {"excess", 2},
 };
 
 _Static_assert(sizeof fg_opcode_table / sizeof fg_opcode_table[0] ==

@@ -224,6 +224,17 @@ def test_comparisons(d):
          "/stop_early"),
         ("over the sample cap", {"candidates": body3["candidates"],
                                  "samples": 300000000}, "/samples"),
+        # coupled designs void the paired interval's independence
+        # (Newcombe 1998, Statistics in Medicine 17:2635)
+        ("sampling antithetic", {"candidates": body3["candidates"],
+                                 "samples": 4096, "sampling": "antithetic"},
+         "/sampling"),
+        ("sampling latin_hypercube", {"candidates": body3["candidates"],
+                                      "samples": 4096,
+                                      "sampling": "latin_hypercube"},
+         "/sampling"),
+        ("sampling sobol", {"candidates": body3["candidates"],
+                            "samples": 4096, "sampling": "sobol"}, "/sampling"),
     ]
     for what, payload, pointer in bad:
         st, h, b = d.request("POST", url, payload)

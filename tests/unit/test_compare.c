@@ -15,7 +15,9 @@
 #include "modelcheck.h"
 
 #include <cjson/cJSON.h>
+#include <stdio.h>
 #include <stdlib.h>
+#include <string.h>
 
 static const char *MODEL =
     "{\"format\":1,\"name\":\"compare-test\","
@@ -88,6 +90,26 @@ static void test_parse(fg_model *m) {
               "{\"label\":\"b\",\"decision\":{\"x\":2}}],\"stop_early\":true}",
               &r, &p) == FG_EINVAL);
   CHECK(fg_test_has_pointer(&p, "/stop_early"));
+  /* Coupled designs break the independence Newcombe's paired interval
+   * assumes (Newcombe 1998, Statistics in Medicine 17:2635): refused,
+   * once, naming /sampling. */
+  static const char *const coupled[] = {"antithetic", "latin_hypercube",
+                                        "sobol"};
+  for (size_t i = 0; i < sizeof coupled / sizeof coupled[0]; i++) {
+    char body[256];
+    snprintf(body, sizeof body,
+             "{\"candidates\":[{\"label\":\"a\",\"decision\":{\"x\":1}},"
+             "{\"label\":\"b\",\"decision\":{\"x\":2}}],"
+             "\"samples\":4096,\"sampling\":\"%s\"}",
+             coupled[i]);
+    CHECK(parse(m, body, &r, &p) == FG_EINVAL);
+    CHECK(fg_test_has_pointer(&p, "/sampling"));
+    int ns = 0;
+    for (int j = 0; j < p.nitems; j++)
+      ns += strcmp(p.items[j].pointer, "/sampling") == 0;
+    CHECK_INT(ns, 1);
+    CHECK_INT(r.ncandidates, 0);
+  }
   CHECK(parse(m,
               "{\"candidates\":[{\"label\":\"a\",\"decision\":{\"x\":1}},"
               "{\"label\":\"b\",\"decision\":{\"x\":2}}],"

@@ -218,6 +218,21 @@ static void test_tally_paths(void) {
       CHECK_INT(b.rows[r].violated, v);
       CHECK_INT(a.rows[r].sole, b.rows[r].sole);
       CHECK_INT(a.rows[r].nonfinite, b.rows[r].nonfinite);
+      /* NaN lanes are the non-finite ones, +inf lanes the infinite ones
+       * (IEEE 754: NaN is unordered, so NaN <= 0 is false) */
+      uint64_t nnan = 0, ninf = 0, first = FG_INDEX_NONE;
+      for (int s = 0; s < n; s++) {
+        if (isnan(e[r][s])) {
+          nnan++;
+          if (first == FG_INDEX_NONE) first = (uint64_t)s;
+        }
+        ninf += e[r][s] == INFINITY;
+      }
+      CHECK_INT(a.rows[r].nonfinite, nnan);
+      CHECK_INT(a.rows[r].infinite, ninf);
+      CHECK_INT(b.rows[r].infinite, ninf);
+      CHECK(a.rows[r].first_nonfinite == first &&
+            b.rows[r].first_nonfinite == first);
       CHECK(memcmp(&a.rows[r].excess_sum, &b.rows[r].excess_sum,
                    sizeof(double)) == 0);
       CHECK_INT(a.rows[r].hist.total, b.rows[r].hist.total);
@@ -226,6 +241,106 @@ static void test_tally_paths(void) {
     }
     fg_tally_free(&a);
     fg_tally_free(&b);
+  }
+}
+
+/* Non-finite values: a row's first NaN sample is the smallest index
+ * whatever the blocks and their merge order; fg_tally_inputs finds every
+ * non-finite draw (NaN and both infinities, not the largest finite or
+ * subnormal values) and keeps the first by index, then column. */
+static void test_tally_numeric(void) {
+  static double r0[FG_BLOCK], cols[3][FG_BLOCK];
+  for (int s = 0; s < FG_BLOCK; s++) {
+    r0[s] = -1.0;
+    for (int j = 0; j < 3; j++) cols[j][s] = s % 2 ? 1.7976931348623157e308
+                                                   : -4.9e-324;
+  }
+  r0[200] = NAN;
+  r0[77] = NAN;
+  r0[5] = INFINITY;
+  const double *ex[1] = {r0};
+  int scratch[2 * FG_BLOCK];
+  fg_tally whole, lo, hi;
+  CHECK(fg_tally_init(&whole, 1) == FG_OK);
+  CHECK(fg_tally_init(&lo, 1) == FG_OK);
+  CHECK(fg_tally_init(&hi, 1) == FG_OK);
+  fg_tally_block(&whole, ex, FG_BLOCK, 1000, NULL, scratch);
+  CHECK_INT(whole.rows[0].nonfinite, 2);
+  CHECK_INT(whole.rows[0].infinite, 1);
+  CHECK_INT(whole.rows[0].violated, 3);
+  CHECK_INT(whole.rows[0].first_nonfinite, 1077);
+  CHECK_INT(whole.rows[0].hist.total, 0);
+  /* two halves merged either way round */
+  const double *exh[1] = {r0 + 128};
+  fg_tally_block(&lo, ex, 128, 1000, NULL, scratch);
+  fg_tally_block(&hi, exh, 128, 1128, NULL, scratch);
+  CHECK_INT(hi.rows[0].first_nonfinite, 1200);
+  fg_tally_merge(&hi, &lo);
+  CHECK_INT(hi.rows[0].first_nonfinite, 1077);
+  CHECK_INT(hi.rows[0].nonfinite, 2);
+  /* draws */
+  fg_tally_inputs(&whole, &cols[0][0], 3, FG_BLOCK, FG_BLOCK, 1000);
+  CHECK_INT(whole.bad_draws, 0);
+  CHECK(whole.bad_draw_first == FG_INDEX_NONE);
+  cols[2][9] = -INFINITY;
+  cols[1][9] = NAN;
+  cols[0][40] = INFINITY;
+  fg_tally_inputs(&whole, &cols[0][0], 3, FG_BLOCK, FG_BLOCK, 1000);
+  CHECK_INT(whole.bad_draws, 3);
+  CHECK_INT(whole.bad_draw_first, 1009);
+  CHECK_INT(whole.bad_draw_column, 1);
+  /* a short block does not look past its lanes */
+  fg_tally_reset(&lo);
+  fg_tally_inputs(&lo, &cols[0][0], 3, FG_BLOCK, 9, 0);
+  CHECK_INT(lo.bad_draws, 0);
+  fg_tally_inputs(&lo, &cols[0][0], 3, FG_BLOCK, 41, 0);
+  CHECK_INT(lo.bad_draws, 3);
+  fg_tally_reset(&hi);
+  fg_tally_inputs(&hi, &cols[0][0] + 40, 1, FG_BLOCK, 1, 40);
+  fg_tally_merge(&hi, &lo);
+  CHECK_INT(hi.bad_draw_first, 9);
+  CHECK_INT(hi.bad_draw_column, 1);
+  fg_tally_free(&whole);
+  fg_tally_free(&lo);
+  fg_tally_free(&hi);
+}
+
+/* The confidence sequence where targets sit near 1: with every sample
+ * held, its lower end stays below the Clopper-Pearson lower end
+ * (alpha/2)^(1/n) (the closed form at k = n; Clopper & Pearson 1934) up
+ * to rounding, so no target above that can pass; the old form lost the
+ * prior's weight 10 (1 - t) in (b0 + n) - k and gave [1, 1] at 2^24
+ * samples for t = 1 - 1e-10. Ends are ordered and inside [0, 1] for
+ * every count at n up to the hard cap. (tests/reference/test_sequence.py
+ * compares every end with a 50-digit evaluation.) */
+static void test_cs_extreme(void) {
+  const double alpha = 0.05;
+  const uint64_t ns[] = {4096, 1u << 24, 1000000000ull, FG_MAX_SAMPLES_HARD};
+  for (int j = 1; j <= 15; j++) {
+    double t = 1 - pow(10.0, -j);
+    for (size_t i = 0; i < sizeof ns / sizeof ns[0]; i++) {
+      uint64_t n = ns[i];
+      fg_interval iv = fg_cs_interval(n, n, 1 - alpha, t);
+      double cp = exp(log(alpha / 2) / (double)n);
+      CHECK_MSG(iv.upper == 1 && iv.lower <= cp * (1 + 1e-15) && iv.lower > 0,
+                "cs t=1-1e-%d n=%llu: [%.17g, %.17g], Clopper-Pearson lower "
+                "%.17g",
+                j, (unsigned long long)n, iv.lower, iv.upper, cp);
+      CHECK_MSG(!((double)n < log(alpha / 2) / log(t)) || iv.lower < t,
+                "cs t=1-1e-%d n=%llu: lower %.17g clears the target before "
+                "log(alpha/2)/log(t) samples",
+                j, (unsigned long long)n, iv.lower);
+      const uint64_t ks[] = {0, 1, n / 2, n - 1000, n - 1};
+      for (size_t q = 0; q < sizeof ks / sizeof ks[0]; q++) {
+        fg_interval w = fg_cs_interval(ks[q], n, 1 - alpha, t);
+        double ph = (double)ks[q] / (double)n;
+        CHECK_MSG(w.lower >= 0 && w.lower <= ph && ph <= w.upper &&
+                      w.upper <= 1,
+                  "cs t=1-1e-%d k=%llu n=%llu: [%.17g, %.17g]", j,
+                  (unsigned long long)ks[q], (unsigned long long)n, w.lower,
+                  w.upper);
+      }
+    }
   }
 }
 
@@ -348,6 +463,8 @@ static void test_confidence_sequence(void) {
 
 int main(void) {
   test_confidence_sequence();
+  test_tally_numeric();
+  test_cs_extreme();
   test_clopper_pearson_closed_forms();
   test_other_intervals();
   test_verdict();

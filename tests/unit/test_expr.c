@@ -954,8 +954,68 @@ static void test_dense_rows(void) {
   }
 }
 
+/* IEEE semantics of rows and truth values (opcodes.h; IEEE 754-2019
+ * section 5.11: comparisons of equal infinities are "equal", any
+ * comparison with NaN is "unordered"): a <= b holds by IEEE rules, so
+ * equal infinities hold with excess 0; a NaN side makes the excess NaN;
+ * a NaN truth operand of ?:, &&, ||, ! gives NaN instead of counting as
+ * true. In every lane of a full block (the vector loops) and in the setup
+ * stream (one lane, the same loop with stride 1). */
+static bool same_bits(double x, double y) {
+  return memcmp(&x, &y, sizeof x) == 0 || (isnan(x) && isnan(y));
+}
+
+static void test_ieee_rows(void) {
+  static const struct {
+    const char *src;
+    double want; /* the excess in every lane */
+  } rows[] = {
+      {"exp(1000 + u) <= exp(1000 + u)", 0.0},
+      {"-exp(1000 + u) >= -exp(1000 + u)", 0.0},
+      {"-exp(1000 + u) <= -exp(1000 + u)", 0.0},
+      {"exp(1000 + u) <= 1", INFINITY},
+      {"-exp(1000 + u) <= 1", -INFINITY},
+      {"1 <= exp(1000 + u) <= exp(1000 + u)", 0.0},
+      {"exp(1000 + a) <= exp(1000 + a)", 0.0}, /* setup stream */
+      {"exp(1000) <= exp(1000)", 0.0},         /* not folded: inf */
+      {"u + 0 <= u", 0.0},
+      {"sqrt(-u) <= 1", NAN},
+      {"(sqrt(-u) ? 1 : 0) <= 2", NAN},
+      {"(sqrt(-a) ? 1 : 0) <= 2", NAN}, /* setup stream */
+      {"(sqrt(-u) && 1) <= 2", NAN},
+      {"(0 && sqrt(-u)) <= 2", NAN},
+      {"(1 || sqrt(-u)) <= 2", NAN},
+      {"(sqrt(-u) || 0) <= 2", NAN},
+      {"!sqrt(-u) <= 2", NAN},
+      {"!sqrt(-a) <= 2", NAN},
+      {"(sqrt(-u) == 1) <= 0", 0.0}, /* a comparison with NaN is 0 */
+      {"(u > 1 && u < 1e9) <= 1", 0.0},
+  };
+  const int nrows = (int)(sizeof rows / sizeof rows[0]);
+  model m;
+  m_init(&m);
+  m_std_inputs(&m);
+  for (int i = 0; i < nrows; i++) {
+    char ptr[32], name[16];
+    snprintf(ptr, sizeof ptr, "/c/%d", i);
+    snprintf(name, sizeof name, "r%d", i);
+    fg_expr_constraint(m.c, name, rows[i].src, ptr, &m.p);
+  }
+  CHECK_INT(m_finish(&m), FG_OK);
+  CHECK_INT(m.info.nrows, nrows);
+  m_run(&m, std_dec, FG_BLOCK, std_unc);
+  for (int i = 0; i < nrows && i < m.info.nrows; i++) {
+    bool ok = true;
+    for (int l = 0; l < FG_BLOCK; l++)
+      ok &= same_bits(m_row(&m, i, l), rows[i].want);
+    CHECK_MSG(ok, "row '%s': lane 0 excess %.17g, want %.17g in every lane",
+              rows[i].src, m_row(&m, i, 0), rows[i].want);
+  }
+  m_free(&m);
+}
+
 int main(void) {
-  _Static_assert(FG_OP_COUNT == 30, "update the tests for new opcodes");
+  _Static_assert(FG_OP_COUNT == 31, "update the tests for new opcodes");
   test_syntax_errors();
   test_semantic_errors();
   test_operators();
@@ -969,5 +1029,6 @@ int main(void) {
   test_hostile();
   test_token_soup();
   test_dense_rows();
+  test_ieee_rows();
   return fg_test_finish();
 }

@@ -5,6 +5,8 @@
  *   ref_tool interval METHOD   reads "k n level" lines, prints "lower upper"
  *                              (METHOD: clopper_pearson, wilson, jeffreys)
  *   ref_tool quantile          reads "q a b" lines, prints B^-1(q; a, b)
+ *   ref_tool cs                reads "k n level prior_mean" lines, prints
+ *                              the confidence sequence's "lower upper"
  *
  * Numbers are printed with 17 significant digits so nothing is lost.
  */
@@ -33,6 +35,16 @@ int main(int argc, char **argv) {
       printf("%.17g\n", fg_beta_quantile(q, a, b));
     return 0;
   }
-  fprintf(stderr, "usage: ref_tool interval METHOD | ref_tool quantile\n");
+  if (argc >= 2 && strcmp(argv[1], "cs") == 0) {
+    unsigned long long k, n;
+    double level, prior;
+    while (scanf("%llu %llu %lf %lf", &k, &n, &level, &prior) == 4) {
+      fg_interval iv = fg_cs_interval(k, n, level, prior);
+      printf("%.17g %.17g\n", iv.lower, iv.upper);
+    }
+    return 0;
+  }
+  fprintf(stderr,
+          "usage: ref_tool interval METHOD | ref_tool quantile | ref_tool cs\n");
   return 3;
 }
