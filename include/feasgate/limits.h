@@ -169,6 +169,41 @@
  * numbers for 40 (sample/design.c recovers them from it). */
 #define FG_SOBOL_DIMS_MAX 40
 
+/* ---- family parameter domains (sample/family.c) ----
+ * The ranges inside which a family's draws (GSL's samplers on the Monte
+ * Carlo path) and quantiles (core/quantile.c, used by the designs and
+ * copula members) are finite and meet the quantile module's stated
+ * accuracy (1e-9 relative, checked against SciPy and mpmath by
+ * tests/reference/test_quantiles.py at both edges). A model outside them is
+ * refused at registration (400, the pointer names the parameter, the
+ * message gives the range). Not in FG_LIMITS_TABLE: they are domains of
+ * the mathematics, not resource limits. */
+
+/* Inverse-CDF probabilities are clamped into [FG_ICDF_P_MIN,
+ * 1 - FG_ICDF_P_MIN]: no sampler hands out a smaller one except a
+ * copula normal beyond -37 standard deviations (probability below
+ * 1e-300), and every quantile below is finite there. */
+#define FG_ICDF_P_MIN 1e-300
+
+/* Beta a and b, gamma shape. For shape a < 1 GSL draws Gamma(1 + a)
+ * U^(1/a) with a 32-bit U (Random123's GSL adaptor), whose smallest value
+ * 2^(-32/a) leaves the normal doubles below a = 0.031 (a beta draw
+ * X / (X + Y) could then become 0/0); 0.05 keeps a margin, and the
+ * quantiles near u^(1/a) stay normal doubles for u >= 1e-15 there. Above 1e12, a + b nears the range where a/(a+b) no
+ * longer carries the parameters' digits, and the references the tests use
+ * (mpmath quadrature) were run to here. */
+#define FG_SHAPE_PARAM_MIN 0.05
+#define FG_SHAPE_PARAM_MAX 1e12
+
+/* Student t degrees of freedom. Below 1 the quantile at FG_ICDF_P_MIN
+ * (about u^(-1/df)) overflows a double; above 1e12 the law is the normal
+ * to 1e-12 and the expansion used for large df was checked to here. The
+ * scale is further bounded so that location + scale t stays finite at
+ * FG_ICDF_P_MIN (the message gives the bound for the df given), and the
+ * gamma scale so that scale x stays finite. */
+#define FG_T_DF_MIN 1.0
+#define FG_T_DF_MAX 1e12
+
 /* The limits a client can run into, as (name, value) pairs for
  * GET /v1/limits and for error messages. Runtime-configurable ones are
  * reported from the server configuration instead (http/). */

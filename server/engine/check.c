@@ -24,7 +24,8 @@
  */
 #include "engine/engine_internal.h"
 
-#include <gsl/gsl_cdf.h>
+#include "core/quantile.h"
+
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -153,7 +154,7 @@ static fg_interval t_interval(double m, double sum, double sumsq, uint64_t k,
   if (var < 0) var = 0;
   *se = sqrt(var / m);
   if (!(var > 0)) return fg_interval_clopper_pearson(k, n, conf);
-  double tq = gsl_cdf_tdist_Pinv(1 - (1 - conf) / 2, m - 1);
+  double tq = fg_q_t_inv(1 - (1 - conf) / 2, (1 - conf) / 2, m - 1, NULL);
   fg_interval iv = {mean - tq * *se, mean + tq * *se};
   if (iv.lower < 0) iv.lower = 0;
   if (iv.upper > 1) iv.upper = 1;

@@ -15,6 +15,7 @@
 #ifndef FG_ESTIMATE_H
 #define FG_ESTIMATE_H
 
+#include "core/quantile.h"
 #include "feasgate/limits.h"
 #include "feasgate/status.h"
 
@@ -37,9 +38,16 @@ fg_interval fg_interval_wilson(uint64_t k, uint64_t n, double confidence);
  * at k = n (Brown, Cai & DasGupta 2001). */
 fg_interval fg_interval_jeffreys(uint64_t k, uint64_t n, double confidence);
 
-/* Beta quantile B^-1(q; a, b) for q in [0, 1], a, b > 0. GSL's
- * gsl_cdf_beta_Pinv refined by a few safeguarded Newton/bisection steps on
- * the regularised incomplete beta, so large n (1e9) stays accurate. */
+/* The same with the quantile solver's work counters added into *cnt
+ * (core/quantile.h; tests assert the caps). */
+fg_interval fg_interval_clopper_pearson_count(uint64_t k, uint64_t n,
+                                              double confidence,
+                                              fg_qcount *cnt);
+fg_interval fg_interval_jeffreys_count(uint64_t k, uint64_t n,
+                                       double confidence, fg_qcount *cnt);
+
+/* Beta quantile B^-1(q; a, b) for q in [0, 1], a, b > 0 (core/quantile.c:
+ * bounded work at any a, b). */
 double fg_beta_quantile(double q, double a, double b);
 
 /* log B(a, b), without cancellation for large arguments. */

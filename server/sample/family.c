@@ -42,11 +42,13 @@
  */
 #include "sample/sample_internal.h"
 
+#include "core/quantile.h"
 #include "feasgate/limits.h"
 
 #include <cjson/cJSON.h>
 #include <gsl/gsl_cdf.h>
 
+#include <float.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -157,6 +159,39 @@ static void need_integer(fg_params *c, const char *name, const double *v) {
     if (!is_array(c, name)) break;
   }
 }
+
+/* lo <= v[e] <= hi for every element; the message names the range and
+ * why it exists. */
+static void need_range(fg_params *c, const char *name, const double *v,
+                       double lo, double hi, const char *why) {
+  for (int e = 0; e < c->size; e++) {
+    if (v[e] >= lo && v[e] <= hi) continue;
+    fg_family_param_error(c, FG_EINVAL, name, e,
+                          "expected %s in [%.15g, %.15g] (%s), found %.15g",
+                          name, lo, hi, why, v[e]);
+    if (!is_array(c, name)) break;
+  }
+}
+
+/* |loc| + scale * qmax must stay below a quarter of the largest double,
+ * qmax being the standard quantile at FG_ICDF_P_MIN for element e. */
+static void need_finite_scale(fg_params *c, const char *name,
+                              const double *scale, const double *loc,
+                              const double *qmax) {
+  for (int e = 0; e < c->size; e++) {
+    double room = DBL_MAX / 4 - (loc ? fabs(loc[e]) : 0);
+    double bound = room / qmax[e];
+    if (scale[e] <= bound) continue;
+    fg_family_param_error(c, FG_EINVAL, name, e,
+                          "expected %s <= %.6g so that every quantile down "
+                          "to probability %g stays finite (the standard "
+                          "quantile there is at most %.6g), found %.15g",
+                          name, bound, FG_ICDF_P_MIN, qmax[e], scale[e]);
+    if (!is_array(c, name)) break;
+  }
+}
+
+#define SHAPE_WHY "the range where draws and quantiles keep their accuracy"
 
 static int integral(double v) {
   return v == floor(v) && fabs(v) < 9007199254740992.0;
@@ -281,7 +316,10 @@ static void parse_pert(fg_input *in, fg_params *c) {
   int m = read_vec(c, in, 5, "mode", 1, 0);
   int b = read_vec(c, in, 6, "high", 1, 0);
   int s = read_vec(c, in, 7, "shape", 0, 4.0);
-  if (s > 0) need_positive(c, "shape", v[7], 1);
+  if (s > 0) {
+    need_positive(c, "shape", v[7], 1);
+    need_at_most(c, "shape", v[7], FG_SHAPE_PARAM_MAX);
+  }
   if (a <= 0 || m <= 0 || b <= 0 || s < 0) return;
   need_less(c, "low", v[4], "high", v[6], 1);
   need_less(c, "low", v[4], "mode", v[5], 0);
@@ -302,8 +340,10 @@ static void parse_beta(fg_input *in, fg_params *c) {
   int b = read_vec(c, in, 3, "b", 1, 0);
   int lo = read_vec(c, in, 4, "low", 0, 0.0);
   int hi = read_vec(c, in, 5, "high", 0, 1.0);
-  if (a > 0) need_positive(c, "a", v[2], 1);
-  if (b > 0) need_positive(c, "b", v[3], 1);
+  if (a > 0)
+    need_range(c, "a", v[2], FG_SHAPE_PARAM_MIN, FG_SHAPE_PARAM_MAX, SHAPE_WHY);
+  if (b > 0)
+    need_range(c, "b", v[3], FG_SHAPE_PARAM_MIN, FG_SHAPE_PARAM_MAX, SHAPE_WHY);
   if (lo >= 0 && hi >= 0) need_less(c, "low", v[4], "high", v[5], 1);
   if (c->st != FG_OK) return;
   for (int e = 0; e < in->size; e++) {
@@ -326,6 +366,31 @@ static void parse_two_positive(fg_input *in, fg_params *c, const char *n0,
   if (b > 0) need_positive(c, n1, in->par[1], 1);
 }
 
+static void parse_gamma(fg_input *in, fg_params *c) {
+  int a = read_vec(c, in, 0, "shape", 1, 0);
+  int b = read_vec(c, in, 1, "scale", 1, 0);
+  if (a > 0)
+    need_range(c, "shape", in->par[0], FG_SHAPE_PARAM_MIN, FG_SHAPE_PARAM_MAX,
+               SHAPE_WHY);
+  if (b > 0) need_positive(c, "scale", in->par[1], 1);
+  if (a <= 0 || b <= 0 || c->st != FG_OK) return;
+  double *qmax = malloc((size_t)in->size * sizeof *qmax);
+  if (!qmax) {
+    fg_problem_set(c->p, FG_ENOMEM, "out of memory reading %s", c->ptr);
+    c->st = c->st ? c->st : FG_ENOMEM;
+    return;
+  }
+  /* Q(a, a + 40 sqrt(a) + 750) < 1e-300 for every a > 0 (the bracket of
+   * fg_q_gamma_inv): a bound on the standard quantile at FG_ICDF_P_MIN
+   * that costs nothing per element. */
+  for (int e = 0; e < in->size; e++) {
+    double sh = in->par[0][e];
+    qmax[e] = sh + 40 * sqrt(sh) + 750;
+  }
+  need_finite_scale(c, "scale", in->par[1], NULL, qmax);
+  free(qmax);
+}
+
 static void parse_exponential(fg_input *in, fg_params *c) {
   if (read_vec(c, in, 0, "mean", 1, 0) > 0)
     need_positive(c, "mean", in->par[0], 1);
@@ -335,8 +400,24 @@ static void parse_student_t(fg_input *in, fg_params *c) {
   int d = read_vec(c, in, 0, "df", 1, 0);
   read_vec(c, in, 1, "location", 0, 0.0);
   int s = read_vec(c, in, 2, "scale", 0, 1.0);
-  if (d > 0) need_positive(c, "df", in->par[0], 1);
+  if (d > 0)
+    need_range(c, "df", in->par[0], FG_T_DF_MIN, FG_T_DF_MAX, SHAPE_WHY);
   if (s > 0) need_positive(c, "scale", in->par[2], 1);
+  if (d <= 0 || c->st != FG_OK) return;
+  double *qmax = malloc((size_t)in->size * sizeof *qmax);
+  if (!qmax) {
+    fg_problem_set(c->p, FG_ENOMEM, "out of memory reading %s", c->ptr);
+    c->st = c->st ? c->st : FG_ENOMEM;
+    return;
+  }
+  /* the t quantile at FG_ICDF_P_MIN, once per distinct df in a row
+   * (a vector input usually repeats one df) */
+  for (int e = 0; e < in->size; e++)
+    qmax[e] = e > 0 && in->par[0][e] == in->par[0][e - 1]
+                  ? qmax[e - 1]
+                  : fg_q_t_inv(1.0, FG_ICDF_P_MIN, in->par[0][e], NULL);
+  need_finite_scale(c, "scale", in->par[2], in->par[1], qmax);
+  free(qmax);
 }
 
 static void parse_poisson(fg_input *in, fg_params *c) {
@@ -582,7 +663,7 @@ fg_status fg_family_parse(fg_input *in, const fg_family_def *def,
   case FG_FAM_TRIANGULAR: parse_triangular(in, &c); break;
   case FG_FAM_PERT: parse_pert(in, &c); break;
   case FG_FAM_EXPONENTIAL: parse_exponential(in, &c); break;
-  case FG_FAM_GAMMA: parse_two_positive(in, &c, "shape", "scale"); break;
+  case FG_FAM_GAMMA: parse_gamma(in, &c); break;
   case FG_FAM_BETA: parse_beta(in, &c); break;
   case FG_FAM_WEIBULL: parse_two_positive(in, &c, "shape", "scale"); break;
   case FG_FAM_STUDENT_T: parse_student_t(in, &c); break;
@@ -633,44 +714,60 @@ static double trunc_std(const fg_input *in, int e, double u, double uc) {
   return z;
 }
 
-/* Smallest k with F(k) >= u for an integer law, from a Cornish-Fisher
- * start; compares against the upper tail when u > 1/2. */
-typedef double (*fg_cdf_fn)(unsigned int k, const double *par);
+/* Integer laws: the smallest k in [0, kmax] with F(k) >= u, decided from
+ * the upper tail Q(k) = 1 - F(k) <= uc when u >= 1/2 so both tails keep
+ * their precision. The CDFs are core/quantile.c's incomplete gamma and beta
+ * (bounded work at any mean or trials): poisson F(k) = Q(k+1, mean),
+ * binomial F(k) = I_{1-p}(n-k, k+1). The search starts at the
+ * Cornish-Fisher point, gallops (steps 1, 2, 4, ...) until the answer is
+ * bracketed, then bisects, so it evaluates the CDF at most about
+ * 2 log2(kmax) + 2 times (66 for kmax = 2e9) whatever the start. */
+static int count_ok(const fg_input *in, int e, double k, double u, double uc) {
+  double lo, up; /* P(X <= k), P(X > k) */
+  if (in->kind == FG_FAM_POISSON) {
+    fg_q_igamma(k + 1, in->par[0][e], &up, &lo, NULL);
+  } else {
+    double n = in->par[0][e], p = in->par[1][e];
+    if (k >= n) return 1;
+    fg_q_ibeta(1 - p, p, n - k, k + 1, &lo, &up, NULL);
+  }
+  return u < 0.5 ? lo >= u : up <= uc;
+}
 
-static double pois_P(unsigned int k, const double *par) {
-  return gsl_cdf_poisson_P(k, par[0]);
-}
-static double pois_Q(unsigned int k, const double *par) {
-  return gsl_cdf_poisson_Q(k, par[0]);
-}
-static double binom_P(unsigned int k, const double *par) {
-  return gsl_cdf_binomial_P(k, par[1], (unsigned int)par[0]);
-}
-static double binom_Q(unsigned int k, const double *par) {
-  return gsl_cdf_binomial_Q(k, par[1], (unsigned int)par[0]);
-}
-
-static double count_icdf(fg_cdf_fn P, fg_cdf_fn Q, const double *par,
-                         double mean, double sd, double skew, double kmax,
-                         double u, double uc) {
+static double count_icdf(const fg_input *in, int e, double mean, double sd,
+                         double skew, double kmax, double u, double uc) {
   if (!(sd > 0)) return floor(mean); /* point mass */
   double z = std_quantile(u, uc);
   double start = floor(mean + sd * (z + skew * (z * z - 1) / 6));
-  if (start < 0) start = 0;
+  if (!(start >= 0)) start = 0;
   if (start > kmax) start = kmax;
-  unsigned int k = (unsigned int)start;
-  if (u < 0.5) {
-    while (k > 0 && P(k - 1, par) >= u)
-      k--;
-    while (k < kmax && P(k, par) < u)
-      k++;
+  /* invariant: ok(hi); lo < hi and not ok(lo) (lo = -1 stands for "none") */
+  double lo, hi, step = 1;
+  if (count_ok(in, e, start, u, uc)) {
+    hi = start;
+    lo = hi - step;
+    while (lo >= 0 && count_ok(in, e, lo, u, uc)) {
+      hi = lo;
+      step *= 2;
+      lo = hi - step;
+    }
+    if (lo < 0) lo = -1;
   } else {
-    while (k > 0 && Q(k - 1, par) <= uc)
-      k--;
-    while (k < kmax && Q(k, par) > uc)
-      k++;
+    lo = start;
+    hi = lo + step;
+    while (hi < kmax && !count_ok(in, e, hi, u, uc)) {
+      lo = hi;
+      step *= 2;
+      hi = lo + step;
+    }
+    if (hi > kmax) hi = kmax;
   }
-  return (double)k;
+  while (hi - lo > 1) {
+    double mid = floor(lo + (hi - lo) / 2);
+    if (count_ok(in, e, mid, u, uc)) hi = mid;
+    else lo = mid;
+  }
+  return hi;
 }
 
 int fg_family_cdf_index(const fg_input *in, double u, double uc) {
@@ -693,6 +790,9 @@ static double discrete_icdf(const fg_input *in, double u, double uc) {
 
 double fg_family_icdf(const fg_input *in, int e, double u, double uc) {
   double *const *v = in->par;
+  /* FG_ICDF_P_MIN: only a copula normal beyond -37 sd gets here */
+  if (!(u >= FG_ICDF_P_MIN)) u = FG_ICDF_P_MIN, uc = 1 - u;
+  if (!(uc >= FG_ICDF_P_MIN)) uc = FG_ICDF_P_MIN, u = 1 - uc;
   switch (in->kind) {
   case FG_FAM_NORMAL:
     if (in->truncated) return v[0][e] + v[1][e] * trunc_std(in, e, u, uc);
@@ -708,31 +808,24 @@ double fg_family_icdf(const fg_input *in, int e, double u, double uc) {
   }
   case FG_FAM_PERT:
   case FG_FAM_BETA: {
-    double x = u < 0.5 ? gsl_cdf_beta_Pinv(u, v[2][e], v[3][e])
-                       : gsl_cdf_beta_Qinv(uc, v[2][e], v[3][e]);
+    double x = fg_q_beta_inv(u, uc, v[2][e], v[3][e], NULL, NULL);
     return v[0][e] + v[1][e] * x;
   }
   case FG_FAM_EXPONENTIAL: return v[0][e] * (u < 0.5 ? -log1p(-u) : -log(uc));
-  case FG_FAM_GAMMA:
-    return u < 0.5 ? gsl_cdf_gamma_Pinv(u, v[0][e], v[1][e])
-                   : gsl_cdf_gamma_Qinv(uc, v[0][e], v[1][e]);
+  case FG_FAM_GAMMA: return v[1][e] * fg_q_gamma_inv(u, uc, v[0][e], NULL);
   case FG_FAM_WEIBULL:
     return v[1][e] * pow(u < 0.5 ? -log1p(-u) : -log(uc), 1.0 / v[0][e]);
   case FG_FAM_STUDENT_T:
-    return v[1][e] + v[2][e] * (u < 0.5 ? gsl_cdf_tdist_Pinv(u, v[0][e])
-                                        : gsl_cdf_tdist_Qinv(uc, v[0][e]));
+    return v[1][e] + v[2][e] * fg_q_t_inv(u, uc, v[0][e], NULL);
   case FG_FAM_POISSON: {
-    double par[1] = {v[0][e]};
-    double mu = par[0];
-    return count_icdf(pois_P, pois_Q, par, mu, sqrt(mu),
-                      mu > 0 ? 1 / sqrt(mu) : 0, FG_COUNT_PARAM_MAX * 2, u, uc);
+    double mu = v[0][e];
+    return count_icdf(in, e, mu, sqrt(mu), mu > 0 ? 1 / sqrt(mu) : 0,
+                      FG_COUNT_PARAM_MAX * 2, u, uc);
   }
   case FG_FAM_BINOMIAL: {
-    double par[2] = {v[0][e], v[1][e]};
-    double n = par[0], q = par[1], var = n * q * (1 - q);
-    double sd = sqrt(var);
-    return count_icdf(binom_P, binom_Q, par, n * q, sd,
-                      sd > 0 ? (1 - 2 * q) / sd : 0, n, u, uc);
+    double n = v[0][e], q = v[1][e], sd = sqrt(n * q * (1 - q));
+    return count_icdf(in, e, n * q, sd, sd > 0 ? (1 - 2 * q) / sd : 0, n, u,
+                      uc);
   }
   case FG_FAM_DISCRETE: return discrete_icdf(in, u, uc);
   case FG_FAM_EMPIRICAL:

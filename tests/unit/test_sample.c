@@ -406,16 +406,29 @@ static void test_errors(void) {
   expect_error(input1(0, "{\"family\":\"exponential\",\"mean\":0}"), NULL,
                FG_EINVAL, D "/mean", "expected mean > 0, found 0");
   expect_error(input1(0, "{\"family\":\"gamma\",\"shape\":-1,\"scale\":1}"),
-               NULL, FG_EINVAL, D "/shape", "expected shape > 0, found -1");
+               NULL, FG_EINVAL, D "/shape",
+               "expected shape in [0.05, 1000000000000] (the range where "
+               "draws and quantiles keep their accuracy), found -1");
+  /* the stated ranges (include/feasgate/limits.h): first values outside */
+  expect_error(input1(0, "{\"family\":\"gamma\",\"shape\":0.0499,\"scale\":1}"),
+               NULL, FG_EINVAL, D "/shape", "expected shape in [0.05, 1000000000000]");
+  expect_error(input1(0, "{\"family\":\"beta\",\"a\":1.0001e12,\"b\":1}"), NULL,
+               FG_EINVAL, D "/a", "expected a in [0.05, 1000000000000]");
+  expect_error(input1(0, "{\"family\":\"student_t\",\"df\":0.999}"), NULL,
+               FG_EINVAL, D "/df", "expected df in [1, 1000000000000]");
+  expect_error(input1(0, "{\"family\":\"student_t\",\"df\":1,\"scale\":2e8}"),
+               NULL, FG_EINVAL, D "/scale", "expected scale <= 1.4119e+08");
+  expect_error(input1(0, "{\"family\":\"gamma\",\"shape\":1,\"scale\":1e306}"),
+               NULL, FG_EINVAL, D "/scale", "stays finite");
   expect_error(input1(0, "{\"family\":\"beta\",\"a\":1,\"b\":0}"), NULL,
-               FG_EINVAL, D "/b", "expected b > 0");
+               FG_EINVAL, D "/b", "expected b in [0.05, 1000000000000]");
   expect_error(input1(0, "{\"family\":\"beta\",\"a\":1,\"b\":1,\"low\":3,"
                          "\"high\":1}"),
                NULL, FG_EINVAL, D "/high", "expected low < high");
   expect_error(input1(0, "{\"family\":\"weibull\",\"shape\":1,\"scale\":0}"),
                NULL, FG_EINVAL, D "/scale", "expected scale > 0");
   expect_error(input1(0, "{\"family\":\"student_t\",\"df\":0}"), NULL,
-               FG_EINVAL, D "/df", "expected df > 0");
+               FG_EINVAL, D "/df", "expected df in [1, 1000000000000]");
   /* poisson, binomial */
   expect_error(input1(0, "{\"family\":\"poisson\",\"mean\":-0.5}"), NULL,
                FG_EINVAL, D "/mean", "expected mean >= 0, found -0.5");

@@ -1,38 +1,76 @@
 /*
- * tests/reference/tools/ref_tool.c -- exposes estimate/ functions to the
- * reference scripts, which compare them with SciPy and statsmodels.
+ * tests/reference/tools/ref_tool.c -- exposes estimate/ and the quantile
+ * module (core/quantile.c) to the reference scripts, which compare them
+ * with SciPy, statsmodels and mpmath.
  *
  *   ref_tool interval METHOD   reads "k n level" lines, prints "lower upper"
  *                              (METHOD: clopper_pearson, wilson, jeffreys)
+ *   ref_tool interval_count METHOD
+ *                              the same, prints "lower upper steps terms"
+ *                              (the quantile solver's work counters)
  *   ref_tool quantile          reads "q a b" lines, prints B^-1(q; a, b)
+ *   ref_tool ibeta             reads "x a b", prints "I_x 1-I_x terms"
+ *   ref_tool igamma            reads "a x", prints "P Q terms"
+ *   ref_tool betainv           reads "u uc a b", prints "x 1-x steps terms"
+ *   ref_tool gammainv          reads "u uc a", prints "x steps terms"
+ *   ref_tool tinv              reads "u uc df", prints "t steps terms"
  *   ref_tool cs                reads "k n level prior_mean" lines, prints
  *                              the confidence sequence's "lower upper"
  *
- * Numbers are printed with 17 significant digits so nothing is lost.
+ * u and uc are both read so that either tail is exact. Numbers are printed
+ * with 17 significant digits so nothing is lost.
  */
+#include "core/quantile.h"
 #include "estimate/estimate.h"
 
 #include <stdio.h>
 #include <string.h>
 
-int main(int argc, char **argv) {
-  if (argc >= 3 && strcmp(argv[1], "interval") == 0) {
-    unsigned long long k, n;
-    double level;
-    while (scanf("%llu %llu %lf", &k, &n, &level) == 3) {
-      fg_interval iv;
-      if (strcmp(argv[2], "wilson") == 0) iv = fg_interval_wilson(k, n, level);
-      else if (strcmp(argv[2], "jeffreys") == 0)
-        iv = fg_interval_jeffreys(k, n, level);
-      else iv = fg_interval_clopper_pearson(k, n, level);
+static int interval(const char *method, int counted) {
+  unsigned long long k, n;
+  double level;
+  while (scanf("%llu %llu %lf", &k, &n, &level) == 3) {
+    fg_interval iv;
+    fg_qcount c = {0, 0};
+    if (strcmp(method, "wilson") == 0) iv = fg_interval_wilson(k, n, level);
+    else if (strcmp(method, "jeffreys") == 0)
+      iv = fg_interval_jeffreys_count(k, n, level, &c);
+    else iv = fg_interval_clopper_pearson_count(k, n, level, &c);
+    if (counted)
+      printf("%.17g %.17g %d %d\n", iv.lower, iv.upper, c.steps, c.terms);
+    else
       printf("%.17g %.17g\n", iv.lower, iv.upper);
+  }
+  return 0;
+}
+
+int main(int argc, char **argv) {
+  const char *cmd = argc >= 2 ? argv[1] : "";
+  double a, b, x, u, uc;
+  if (argc >= 3 && strcmp(cmd, "interval") == 0) return interval(argv[2], 0);
+  if (argc >= 3 && strcmp(cmd, "interval_count") == 0)
+    return interval(argv[2], 1);
+  if (strcmp(cmd, "quantile") == 0) {
+    while (scanf("%lf %lf %lf", &u, &a, &b) == 3)
+      printf("%.17g\n", fg_beta_quantile(u, a, b));
+    return 0;
+  }
+  if (strcmp(cmd, "ibeta") == 0) {
+    while (scanf("%lf %lf %lf", &x, &a, &b) == 3) {
+      fg_qcount c = {0, 0};
+      double lo, up;
+      fg_q_ibeta(x, 1 - x, a, b, &lo, &up, &c);
+      printf("%.17g %.17g %d\n", lo, up, c.terms);
     }
     return 0;
   }
-  if (argc >= 2 && strcmp(argv[1], "quantile") == 0) {
-    double q, a, b;
-    while (scanf("%lf %lf %lf", &q, &a, &b) == 3)
-      printf("%.17g\n", fg_beta_quantile(q, a, b));
+  if (strcmp(cmd, "igamma") == 0) {
+    while (scanf("%lf %lf", &a, &x) == 2) {
+      fg_qcount c = {0, 0};
+      double lo, up;
+      fg_q_igamma(a, x, &lo, &up, &c);
+      printf("%.17g %.17g %d\n", lo, up, c.terms);
+    }
     return 0;
   }
   if (argc >= 2 && strcmp(argv[1], "cs") == 0) {
@@ -44,7 +82,31 @@ int main(int argc, char **argv) {
     }
     return 0;
   }
-  fprintf(stderr,
-          "usage: ref_tool interval METHOD | ref_tool quantile | ref_tool cs\n");
+  if (strcmp(cmd, "betainv") == 0) {
+    while (scanf("%lf %lf %lf %lf", &u, &uc, &a, &b) == 4) {
+      fg_qcount c = {0, 0};
+      double y, r = fg_q_beta_inv(u, uc, a, b, &y, &c);
+      printf("%.17g %.17g %d %d\n", r, y, c.steps, c.terms);
+    }
+    return 0;
+  }
+  if (strcmp(cmd, "gammainv") == 0) {
+    while (scanf("%lf %lf %lf", &u, &uc, &a) == 3) {
+      fg_qcount c = {0, 0};
+      double r = fg_q_gamma_inv(u, uc, a, &c);
+      printf("%.17g %d %d\n", r, c.steps, c.terms);
+    }
+    return 0;
+  }
+  if (strcmp(cmd, "tinv") == 0) {
+    while (scanf("%lf %lf %lf", &u, &uc, &a) == 3) {
+      fg_qcount c = {0, 0};
+      double r = fg_q_t_inv(u, uc, a, &c);
+      printf("%.17g %d %d\n", r, c.steps, c.terms);
+    }
+    return 0;
+  }
+  fprintf(stderr, "usage: ref_tool interval[_count] METHOD | quantile | "
+                  "ibeta | igamma | betainv | gammainv | tinv | cs\n");
   return 3;
 }
