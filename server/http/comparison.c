@@ -537,6 +537,48 @@ void fg_h_comparison_get(fg_req *r, fg_resp *out) {
   fg_store_comparison_clear(&row);
 }
 
+/* A DELETE of a comparison another replica runs, waiting (suspended)
+ * for its row to end: the store is read every REPLICA_LOOK_S in finish. */
+#define REPLICA_LOOK_S 0.05
+typedef struct replica_wait {
+  double until; /* fg_http_now() seconds */
+  char id[FG_HTTP_PATH_MAX + 1];
+} replica_wait;
+
+static void replica_finish(fg_req *r, void *ctx, bool timed_out,
+                           fg_resp *out) {
+  replica_wait *rw = ctx;
+  fg_problem p;
+  fg_problem_init(&p);
+  fg_store_comparison row;
+  if (fg_store_get_comparison(r->srv->store, rw->id, &row, &p) != FG_OK) {
+    fg_resp_problem(out, &p, 0);
+    free(rw);
+    return;
+  }
+  fg_check_state state = fg_check_state_parse(row.status);
+  double now = fg_http_now();
+  if (state == FG_CHECK_RUNNING && now < rw->until) {
+    fg_store_comparison_clear(&row);
+    out->pending = (fg_pending){
+        .finish = replica_finish,
+        .drop = free,
+        .ctx = rw,
+        .deadline = now + REPLICA_LOOK_S < rw->until ? now + REPLICA_LOOK_S
+                                                     : rw->until};
+    return;
+  }
+  if (state == FG_CHECK_RUNNING)
+    fg_resp_error(out, 503, FG_EBUSY,
+                  "comparison %s runs in another replica, which was asked "
+                  "to stop it but has not within %g s; GET it shortly",
+                  rw->id, FG_HTTP_CANCEL_WAIT_S);
+  else
+    answer_stored(r, &row, out);
+  fg_store_comparison_clear(&row);
+  free(rw);
+}
+
 static void cancelled_finish(fg_req *r, void *ctx, bool timed_out,
                              fg_resp *out) {
   fg_comparison *c = ctx;
@@ -600,26 +642,19 @@ void fg_h_comparison_cancel(fg_req *r, fg_resp *out) {
       fg_store_request_cancel(r->srv->store, cid->valuestring, &p);
     }
     cJSON_Delete(ids);
-    double until = fg_time_monotonic() + FG_HTTP_CANCEL_WAIT_S;
-    while (state == FG_CHECK_RUNNING && fg_time_monotonic() < until) {
-      struct timespec ts = {0, 50 * 1000 * 1000};
-      nanosleep(&ts, NULL);
-      fg_store_comparison_clear(&row);
-      fg_problem_init(&p);
-      if (fg_store_get_comparison(r->srv->store, id, &row, &p) != FG_OK) {
-        fg_resp_problem(out, &p, 0);
-        return;
-      }
-      state = fg_check_state_parse(row.status);
-    }
-    if (state == FG_CHECK_RUNNING)
-      fg_resp_error(out, 503, FG_EBUSY,
-                    "comparison %s runs in another replica, which was asked "
-                    "to stop it but has not within %g s; GET it shortly",
-                    id, FG_HTTP_CANCEL_WAIT_S);
-    else
-      answer_stored(r, &row, out);
     fg_store_comparison_clear(&row);
+    replica_wait *rw = malloc(sizeof *rw);
+    if (!rw) {
+      fg_resp_error(out, 503, FG_ENOMEM,
+                    "out of memory waiting for comparison %s to stop", id);
+      return;
+    }
+    rw->until = fg_http_now() + FG_HTTP_CANCEL_WAIT_S;
+    snprintf(rw->id, sizeof rw->id, "%s", id);
+    out->pending = (fg_pending){.finish = replica_finish,
+                                .drop = free,
+                                .ctx = rw,
+                                .deadline = fg_http_now() + REPLICA_LOOK_S};
     return;
   }
   fg_resp_error(out, 409, FG_ECONFLICT,
