@@ -52,6 +52,14 @@ DESCRIPTION = (
     "answer is an RFC 9457 problem document (application/problem+json). "
     "Members named here are the contract; members may be added to answers, "
     "so clients ignore unknown ones.\n\n"
+    "Any route may answer 400 before routing for a request the daemon will "
+    "not read: two Content-Length headers, Content-Length with "
+    "Transfer-Encoding, or %00 (a NUL byte) in the path or the query. Any "
+    "route may answer 503 with Retry-After and Connection: close on the "
+    "first request of a connection opened beyond max_connections or "
+    "max_connections_per_client (GET /v1/limits). Text a problem quotes "
+    "from the request is valid UTF-8 (invalid bytes become U+FFFD). The "
+    "scenarios body is streamed (chunked transfer coding).\n\n"
     "Schemas: this document is self-contained. Each JSON Schema (2020-12) "
     "file of the schemas/ folder is embedded verbatim under "
     "components/schemas (e.g. model.schema.json as Model, "
@@ -131,8 +139,8 @@ ERROR_TEXT = {
     413: "The body exceeds the body-size limit (limit names it).",
     415: "The body is not application/json.",
     500: "An internal fault; nothing was half written.",
-    503: "Overloaded (the work queue is full) or not ready; Retry-After "
-         "says when to try again.",
+    503: "Overloaded (the work queue is full, or too many connections) or "
+         "not ready; Retry-After says when to try again.",
 }
 
 

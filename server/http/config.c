@@ -74,6 +74,12 @@ static const opt_def options[] = {
      FG_HTTP_URL_MAX, "PEM certificate (chain) file: serve HTTPS"},
     {"--tls-key", "FEASGATE_TLS_KEY", OPT_STRING, OFF(tls_key), 1,
      FG_HTTP_URL_MAX, "PEM private key file of --tls-cert"},
+    {"--max-connections", "FEASGATE_MAX_CONNECTIONS", OPT_INT,
+     OFF(max_connections), 1, FG_HTTP_CONNECTIONS_HARD,
+     "open connections at most (more get a 503)"},
+    {"--max-connections-per-client", "FEASGATE_MAX_CONNECTIONS_PER_CLIENT",
+     OPT_INT, OFF(max_connections_per_client), 1, FG_HTTP_CONNECTIONS_HARD,
+     "open connections from one address at most"},
     {"--allow-keyless", "FEASGATE_ALLOW_KEYLESS", OPT_BOOL, OFF(allow_keyless),
      0, 0, "allow a non-loopback --listen while the store holds no key"},
 };
@@ -96,6 +102,8 @@ static void defaults(fg_http_config *cfg) {
   cfg->grace_s = FG_HTTP_GRACE_DEFAULT;
   cfg->log_level = FG_LOG_INFO;
   cfg->max_check_s = FG_HTTP_CHECK_TIME_DEFAULT;
+  cfg->max_connections = FG_HTTP_CONNECTIONS_DEFAULT;
+  cfg->max_connections_per_client = FG_HTTP_CONNECTIONS_PER_CLIENT_DEFAULT;
 }
 
 static int fail(char *err, size_t cap, const char *where, const char *value,
@@ -271,12 +279,12 @@ static void usage(FILE *f) {
   fg_http_config d;
   defaults(&d);
   fprintf(f, "usage: feasgate serve [options]\n\n"
-             "  %-16s %-24s %-24s %s\n", "flag", "environment", "default",
+             "  %-28s %-36s %-24s %s\n", "flag", "environment", "default",
           "meaning");
   for (size_t i = 0; i < NOPTIONS; i++) {
     char shown[FG_HTTP_URL_MAX + 32];
     show_default(&d, &options[i], shown, sizeof shown);
-    fprintf(f, "  %-16s %-24s %-24s %s\n", options[i].flag, options[i].env,
+    fprintf(f, "  %-28s %-36s %-24s %s\n", options[i].flag, options[i].env,
             shown, options[i].help);
   }
   fprintf(f, "\nA flag wins over its environment variable; --workers "
@@ -336,6 +344,13 @@ int fg_http_config_parse(int argc, char **argv, fg_http_config *cfg, char *err,
       value = argv[++a];
     }
     if (set_value(cfg, o, o->flag, value, err, errcap) != 0) return -1;
+  }
+  if (cfg->max_connections_per_client > cfg->max_connections) {
+    snprintf(err, errcap,
+             "--max-connections-per-client %d exceeds --max-connections %d: "
+             "expected at most as many as the whole daemon takes",
+             cfg->max_connections_per_client, cfg->max_connections);
+    return -1;
   }
   if (!cfg->tls_cert[0] != !cfg->tls_key[0]) {
     snprintf(err, errcap, "%s needs %s as well: HTTPS takes a certificate "

@@ -29,12 +29,18 @@
  *   --tls-key FILE   FEASGATE_TLS_KEY         none (PEM private key)
  *   --allow-keyless  FEASGATE_ALLOW_KEYLESS   off (allow a non-loopback
  *                                             listener with no key)
+ *   --max-connections N             FEASGATE_MAX_CONNECTIONS
+ *                                   FG_HTTP_CONNECTIONS_DEFAULT
+ *   --max-connections-per-client N  FEASGATE_MAX_CONNECTIONS_PER_CLIENT
+ *                                   FG_HTTP_CONNECTIONS_PER_CLIENT_DEFAULT
+ *                                   (at most --max-connections)
  *
  * Exit status of fg_serve_command: 0 after a clean stop (SIGINT/SIGTERM),
  * 3 for bad usage or a bad setting (an unreadable TLS file included, and
  * a non-loopback --listen while the store holds no live key and
  * --allow-keyless is not given), 1 when start-up fails for another
- * reason (address in use, store cannot be opened).
+ * reason (address in use, store cannot be opened, a SQLite store that
+ * another daemon serves).
  *
  * Thread use: fg_serve_command runs on the main thread and owns the
  * process's signal mask while it runs.
@@ -70,7 +76,9 @@ typedef struct fg_http_config {
   double max_check_s;                 /* --max-check-time */
   char tls_cert[FG_HTTP_URL_MAX + 1]; /* "" = plain HTTP */
   char tls_key[FG_HTTP_URL_MAX + 1];
-  bool allow_keyless;
+  bool allow_keyless; /* --allow-keyless */
+  int max_connections;            /* --max-connections */
+  int max_connections_per_client; /* --max-connections-per-client */
 } fg_http_config;
 
 /* Defaults, then environment twins, then flags (argv[0] is the subcommand

@@ -35,7 +35,7 @@
  *
  * Thread use: fg_key_* anywhere; the keyring is guarded by its own mutex
  * (held across a reload, which is one indexed read of a small table);
- * fg_auth_request on connection threads.
+ * fg_auth_request on libmicrohttpd's threads.
  */
 #include "http/http_internal.h"
 
