@@ -89,6 +89,7 @@ typedef struct fg_resp {
   char allow[64];
   int retry_after; /* seconds; 0 = no header */
   char www_authenticate[64]; /* "" = no header */
+  bool page; /* the page's own files: CSP and other browser headers */
 } fg_resp;
 
 typedef void fg_handler(fg_req *r, fg_resp *out);
@@ -203,6 +204,14 @@ void fg_h_comparisons_create(fg_req *r, fg_resp *out);
 
 /* ---- sizes.c ---- */
 void fg_h_sample_size(fg_req *r, fg_resp *out);
+
+/* ---- page.c: the page a person looks at (server/http/page/) ---- */
+void fg_h_page(fg_req *r, fg_resp *out);
+void fg_h_page_js(fg_req *r, fg_resp *out);
+void fg_h_page_css(fg_req *r, fg_resp *out);
+/* The Content-Security-Policy and other browser headers of the page's
+ * files (set when fg_resp.page). */
+void fg_page_headers(struct MHD_Response *mr);
 
 /* ---- registry.c ---- */
 fg_status fg_registry_new(fg_store *store, fg_registry **out, fg_problem *p);
