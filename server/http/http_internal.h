@@ -205,6 +205,9 @@ void fg_h_comparisons_create(fg_req *r, fg_resp *out);
 /* ---- sizes.c ---- */
 void fg_h_sample_size(fg_req *r, fg_resp *out);
 
+/* ---- check_request.c: GET /v1/checks/{id}/request ---- */
+void fg_h_check_request(fg_req *r, fg_resp *out);
+
 /* ---- page.c: the page a person looks at (server/http/page/) ---- */
 void fg_h_page(fg_req *r, fg_resp *out);
 void fg_h_page_js(fg_req *r, fg_resp *out);

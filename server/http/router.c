@@ -38,6 +38,7 @@ static const fg_route_entry routes[] = {
     {"GET", "/v1/checks", fg_h_checks_list},
     {"GET", "/v1/checks/{id}", fg_h_check_get},
     {"DELETE", "/v1/checks/{id}", fg_h_check_cancel},
+    {"GET", "/v1/checks/{id}/request", fg_h_check_request},
     {"GET", "/v1/health", fg_h_health},
     {"GET", "/v1/ready", fg_h_ready},
     {"GET", "/v1/limits", fg_h_limits},

@@ -176,7 +176,7 @@ def open_runs(tmp):
     subprocess.run([BIN, "register", "--store", store] +
                    [str(p) for p in sorted(DEMO.glob("*.model.json"))],
                    check=True, capture_output=True, timeout=60)
-    d = Daemon(store)
+    d = Daemon(store, results=res)
     check(d.address is not None, "daemon started")
     ids = {}
     for f in ("theatre-list.fail.json", "microgrid-day.pass.json"):
@@ -186,6 +186,16 @@ def open_runs(tmp):
         st, _, b = d.request("POST", "/v1/models/%s/checks" % model, body)
         check(st == 201, "demo check %s: 201 (%s)" % (f, st))
         ids[f] = b.get("id") if isinstance(b, dict) else None
+        # the request it ran with, as recorded, sent again repeats it
+        st, _, req = d.request("GET", "/v1/checks/%s/request" % ids[f])
+        check(st == 200 and req.get("decision") == body["decision"]
+              and req.get("samples") == 20000 and req.get("seed") == body["seed"],
+              "GET /v1/checks/{id}/request answers the request (%s)" % st)
+        st, _, again = d.request("POST", "/v1/models/%s/checks" % model, req)
+        check(st == 201 and again.get("joint") == b.get("joint"),
+              "the recorded request repeats the check (%s)" % st)
+    st, _, _ = d.request("GET", "/v1/checks/chk_nosuch/request")
+    check(st == 404, "request of an unknown check: 404 (%s)" % st)
     return d, ids
 
 
@@ -223,15 +233,18 @@ def test_open(b, d, ids):
     b.go(base + "/#/checks")
     n = b.wait("document.querySelectorAll('#checks tbody tr').length",
                "check rows")
-    check(n == 2, "two checks listed (%s)" % n)
-    b.wait("document.querySelectorAll('#checks svg.iv').length == 2",
+    check(n == 4, "four checks listed (%s)" % n)
+    b.wait("document.querySelectorAll('#checks svg.iv').length == 4",
            "interval pictures in the history")
     txt = b.text("#checks")
     check("Fail" in txt and "Pass" in txt, "verdicts as words in the list")
     b.shot("checks-1280.png")
     b.go(base + "/#/checks?verdict=pass")
-    b.wait("document.querySelectorAll('#checks tbody tr').length == 1",
-           "verdict filter leaves one row")
+    b.wait("document.querySelectorAll('#checks tbody tr').length == 2",
+           "verdict filter leaves the two passing checks")
+    b.go(base + "/#/checks?model=theatre-list&limit=1")
+    b.wait("document.querySelectorAll('#checks tbody tr').length == 2",
+           "model filter leaves the two theatre-list checks")
 
     # One check
     fid = ids["theatre-list.fail.json"]
@@ -273,6 +286,12 @@ def test_open(b, d, ids):
     b.wait("document.querySelector('#runform')", "run form")
     ninputs = b.js("document.querySelectorAll('#runform .dec input').length")
     check(ninputs == 7, "seven decision values pre-filled (%s)" % ninputs)
+    demo_start = json.loads((DEMO / "theatre-list.fail.json").read_text())[
+        "decision"]["start"]
+    shown = b.js("[...document.querySelectorAll('#runform .dec input')]"
+                 ".slice(0,6).map(e => Number(e.value))")
+    check(shown == demo_start and "last check" in b.text("#runform legend"),
+          "decisions start from the model's last check: %s" % shown)
     fill(b, "#samples", "5000")
     fill(b, "#seed", "7")
     fill(b, "#label", "from the page")
@@ -308,16 +327,21 @@ def test_open(b, d, ids):
     check("cancelled" in b.text("#verdict").lower(),
           "the page says cancelled: %r" % b.text("#verdict"))
 
-    # Compare: the page's logged decision against the middle of the bounds
+    # Compare: two logged decisions (the newest two checks, ticked) and
+    # one of the person's own
     b.go(base + "/#/compare?model=theatre-list")
-    b.wait("document.querySelector('#candidates .cand')", "candidates")
+    b.wait("document.querySelectorAll('#logged tbody tr').length >= 3",
+           "logged checks offered")
     b.js("document.querySelector('#addcand').click()")
     fill(b, "#csamples", "4000")
     b.js("document.querySelector('#compare').click()")
     b.wait("document.querySelector('#pairs tbody tr')", "comparison pairs",
            timeout=60)
-    check(b.js("document.querySelectorAll('#pairs tbody tr').length") >= 1,
-          "paired differences shown")
+    check(b.js("document.querySelectorAll('#pairs tbody tr').length") == 3,
+          "three paired differences for three candidates")
+    check("from the page" in b.text("#compareout")
+          and "long one" in b.text("#compareout"),
+          "the logged candidates by label: %r" % b.text("#compareout")[:200])
     b.shot("compare-1280.png")
 
     for url in b.requests:

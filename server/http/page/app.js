@@ -10,9 +10,9 @@
  * typed in (sessionStorage "feasgate.key") as Authorization: Bearer.
  * Problems the API answers are shown as sentences (title and detail).
  * Figures are inline SVG drawn to scale; verdicts are always words.
- * Decisions this page submitted are remembered per model in
- * sessionStorage ("feasgate.log.NAME") so the run form can start from the
- * last one and the compare form can offer them.
+ * Logged decisions come from GET /v1/checks/{id}/request (the request a
+ * check ran with): the run form starts from the model's last check, the
+ * compare form offers the model's recent checks as candidates.
  */
 'use strict';
 
@@ -20,7 +20,7 @@ const KEY = 'feasgate.key';
 const SVGNS = 'http://www.w3.org/2000/svg';
 const PAGE_ROWS = 20;
 const POLL_MS = 600;
-const LOG_MAX = 8;
+const LOGGED_ROWS = 20;
 let viewToken = 0; // bumped on each navigation: stale polls stop
 
 // ---- small helpers -------------------------------------------------------
@@ -60,6 +60,7 @@ function fmtN(x) {
 function fmtIv(iv) {
   return iv ? '[' + fmtP(iv.lower) + ', ' + fmtP(iv.upper) + ']' : '—';
 }
+function when(t) { return t ? t.replace('T', ' ').replace(/:\d\dZ$/, ' UTC') : '—'; }
 function shortDigest(d) { return (d || '').replace(/^sha256:/, '').slice(0, 12); }
 
 const VERDICT_WORDS = {
@@ -134,16 +135,17 @@ function keyState() {
   s.textContent = sessionStorage.getItem(KEY) ? 'key in use (this tab only)' : 'no key';
 }
 
-// ---- remembered decisions ----------------------------------------------
+// ---- logged decisions ----------------------------------------------------
 
-function logOf(model) {
-  try { return JSON.parse(sessionStorage.getItem('feasgate.log.' + model) || '[]'); }
-  catch (e) { return []; }
+/* The model's newest checks (up to n) from the log. */
+async function loggedChecks(model, n) {
+  const r = await api('GET', '/v1/checks?model=' + encodeURIComponent(model) + '&limit=' + n);
+  return r.ok ? r.data.checks : [];
 }
-function remember(model, label, decision) {
-  const log = logOf(model).filter((x) => JSON.stringify(x.decision) !== JSON.stringify(decision));
-  log.unshift({ label: label || 'candidate ' + new Date().toISOString().slice(11, 19), decision });
-  sessionStorage.setItem('feasgate.log.' + model, JSON.stringify(log.slice(0, LOG_MAX)));
+/* The request a check ran with, or null. */
+async function checkRequest(id) {
+  const r = await api('GET', '/v1/checks/' + encodeURIComponent(id) + '/request');
+  return r.ok && r.data && r.data.decision ? r.data : null;
 }
 
 // ---- figures -------------------------------------------------------------
@@ -315,12 +317,12 @@ async function viewChecks(q) {
     const fig = el('span', { class: 'muted' }, '…');
     const j = c.joint || {};
     body.append(el('tr', { 'data-check': c.id },
-      el('td', {}, el('a', { href: '#/check/' + c.id, 'aria-label': 'check ' + c.id }, verdictBadge(c, true))),
+      el('td', {}, el('a', { href: '#/check/' + c.id }, verdictBadge(c, true))),
       el('td', {}, el('a', { href: '#/check/' + c.id }, c.label || c.id)),
       el('td', { class: 'opt' }, c.model.name + ' v' + c.model.version),
-      el('td', { class: 'num' }, fmtP(j.probability), el('br', {}), el('span', { class: 'muted' }, fmtIv(j.interval))),
+      el('td', { class: 'num' }, fmtP(j.probability), el('br', {}), el('span', { class: 'muted nowrap' }, fmtIv(j.interval))),
       el('td', {}, fig),
-      el('td', { class: 'opt' }, c.created_at)));
+      el('td', { class: 'opt nowrap' }, when(c.created_at))));
     // The list carries no target: the check itself does.
     api('GET', '/v1/checks/' + encodeURIComponent(c.id)).then((r) => {
       if (!r.ok) { fig.textContent = '—'; return; }
@@ -371,7 +373,7 @@ async function viewCheck(id) {
       el('p', { id: 'joint' }, 'Estimate ', el('strong', {}, fmtP(j.probability)), ', interval ',
         el('strong', {}, fmtIv(j.interval)), j.interval && j.interval.method ? ' (' + j.interval.method.replace('_', '-') + ')' : '',
         ' from ' + (j.samples ?? '?') + ' samples, ' + (j.satisfied ?? '?') + ' satisfied every row.'),
-      el('p', { class: 'muted' }, 'Zoomed:'),
+      el('p', { class: 'muted' }, 'Shaded box: the interval; black line: the estimate; dashed line: the target. Zoomed:'),
       intervalFigure(j.interval, j.probability, c.target, zoom(j.interval, j.probability, c.target)),
       el('p', { class: 'muted' }, 'Whole scale 0 to 1:'),
       intervalFigure(j.interval, j.probability, c.target, { h: 56 }));
@@ -501,11 +503,13 @@ async function viewRun(q) {
   const m = await api('GET', '/v1/models/' + encodeURIComponent(name));
   if (!m.ok) return show(el('h1', {}, 'Run a check'), pick.node, problemBox(m));
   const doc = m.data.document;
-  const last = logOf(name)[0];
-  const start = last ? last.decision : defaultDecision(doc);
+  const lastCheck = (await loggedChecks(name, 1))[0];
+  const lastReq = lastCheck ? await checkRequest(lastCheck.id) : null;
+  const start = lastReq ? lastReq.decision : defaultDecision(doc);
   const inputs = [];
   const form = el('form', { class: 'form', id: 'runform' });
-  const fs = el('fieldset', {}, el('legend', {}, last ? 'Decisions (from the last one this page sent: ' + last.label + ')'
+  const fs = el('fieldset', {}, el('legend', {}, lastReq
+    ? 'Decisions (from the last check of this model: ' + (lastCheck.label || lastCheck.id) + ')'
     : 'Decisions (middle of their bounds)'));
   for (const d of doc.decisions || []) {
     const row = el('div', { class: 'dec' });
@@ -545,7 +549,6 @@ async function viewRun(q) {
     const r = await api('POST', '/v1/models/' + encodeURIComponent(name) + '/checks', body);
     submit.disabled = false;
     if (r.data && r.data.id && (r.ok || r.status === 202)) {
-      remember(name, label.value, decision);
       go('#/check/' + r.data.id);
     } else out.replaceChildren(problemBox(r));
   });
@@ -560,41 +563,76 @@ async function viewCompare(q) {
   if (!name) return show(el('h1', {}, 'Compare'), pick.node);
   const m = await api('GET', '/v1/models/' + encodeURIComponent(name));
   if (!m.ok) return show(el('h1', {}, 'Compare'), pick.node, problemBox(m));
-  const log = logOf(name);
-  const cands = log.length ? log.slice() : [{ label: 'middle of the bounds', decision: defaultDecision(m.data.document) }];
+  const logged = (await loggedChecks(name, LOGGED_ROWS)).filter((c) => c.status !== 'failed');
+  if (token !== viewToken) return;
+  // Logged decisions: the model's recent checks, the newest two ticked.
+  const picks = [];
+  const tbody = el('tbody', {}, logged.map((c, i) => {
+    const cb = el('input', { type: 'checkbox', checked: i < 2, 'aria-label': 'compare ' + (c.label || c.id) });
+    picks.push({ c, cb });
+    return el('tr', {}, el('td', {}, cb), el('td', {}, c.label || '(no label)'), el('td', {}, verdictBadge(c, true)),
+      el('td', { class: 'num' }, fmtP(c.joint && c.joint.probability)),
+      el('td', { class: 'mono opt' }, el('a', { href: '#/check/' + c.id }, c.id)));
+  }));
   const list = el('div', { id: 'candidates' });
-  const addCand = (c, on) => {
-    const cb = el('input', { type: 'checkbox', checked: on });
+  const addCand = (c) => {
     const lab = el('input', { type: 'text', value: c.label, 'aria-label': 'candidate label' });
-    const ta = el('textarea', { rows: 3, cols: 50, class: 'mono', 'aria-label': 'decision (JSON)' });
+    const ta = el('textarea', { rows: 2, cols: 50, class: 'mono', 'aria-label': 'decision (JSON)' });
     ta.value = JSON.stringify(c.decision);
-    list.append(el('div', { class: 'card cand' }, el('label', {}, cb, ' include'), ' ', lab, el('br', {}), ta));
+    const rm = el('button', { type: 'button', class: 'quiet' }, 'Remove');
+    const card = el('div', { class: 'card cand' }, lab, ' ', rm, el('br', {}), ta);
+    rm.addEventListener('click', () => card.remove());
+    list.append(card);
   };
-  cands.forEach((c) => addCand(c, true));
-  const more = el('button', { type: 'button', class: 'quiet', id: 'addcand' }, 'Add a candidate');
-  more.addEventListener('click', () => addCand({ label: 'candidate ' + (list.children.length + 1), decision: defaultDecision(m.data.document) }, true));
+  const more = el('button', { type: 'button', class: 'quiet', id: 'addcand' }, 'Add a decision of your own');
+  more.addEventListener('click', () => addCand({ label: 'own ' + (list.children.length + 1), decision: defaultDecision(m.data.document) }));
   const samples = el('input', { type: 'number', id: 'csamples', value: 20000, min: 1 });
   const go_ = el('button', { type: 'submit', id: 'compare' }, 'Compare');
   const out = el('div', { id: 'compareout', 'aria-live': 'polite' });
-  const form = el('form', {}, list, more, el('p', {}, el('label', {}, 'Samples ', samples)), go_);
+  const form = el('form', {},
+    logged.length ? el('div', { class: 'scroll' }, el('table', { class: 'rows', id: 'logged' },
+      el('thead', {}, el('tr', {}, el('th', {}, 'Use'), el('th', {}, 'Label'), el('th', {}, 'Verdict'),
+        el('th', {}, 'Estimate'), el('th', { class: 'opt' }, 'Check'))), tbody))
+      : el('p', { class: 'muted' }, 'No checks of this model yet; add decisions of your own.'),
+    list, more, el('p', {}, el('label', {}, 'Samples ', samples)), go_);
   form.addEventListener('submit', async (e) => {
     e.preventDefault();
     const candidates = [];
-    for (const card of list.querySelectorAll('.cand')) {
-      const [cb, lab] = card.querySelectorAll('input');
+    const seen = new Set();
+    const add = (label, decision) => {
+      let l = label, k = 2;
+      while (seen.has(l)) l = label + ' #' + k++;
+      seen.add(l);
+      candidates.push({ label: l, decision });
+    };
+    go_.disabled = true;
+    for (const { c, cb } of picks) {
       if (!cb.checked) continue;
-      let decision;
-      try { decision = JSON.parse(card.querySelector('textarea').value); } catch (err) {
-        out.replaceChildren(el('p', { class: 'error', role: 'alert' }, 'Candidate "' + lab.value + '": the decision is not JSON (' + err.message + ').'));
+      const req = await checkRequest(c.id);
+      if (!req) {
+        out.replaceChildren(el('p', { class: 'error', role: 'alert' }, 'The request of check ' + c.id + ' could not be read.'));
+        go_.disabled = false;
         return;
       }
-      candidates.push({ label: lab.value, decision });
+      add(c.label || c.id, req.decision);
     }
-    if (candidates.length < 2) { out.replaceChildren(el('p', { class: 'error', role: 'alert' }, 'Pick two or more candidates.')); return; }
-    go_.disabled = true;
+    for (const card of list.querySelectorAll('.cand')) {
+      const lab = card.querySelector('input');
+      try { add(lab.value || 'own', JSON.parse(card.querySelector('textarea').value)); } catch (err) {
+        out.replaceChildren(el('p', { class: 'error', role: 'alert' }, 'Candidate "' + lab.value + '": the decision is not JSON (' + err.message + ').'));
+        go_.disabled = false;
+        return;
+      }
+    }
+    if (candidates.length < 2) {
+      out.replaceChildren(el('p', { class: 'error', role: 'alert' }, 'Pick two or more candidates.'));
+      go_.disabled = false;
+      return;
+    }
     out.replaceChildren(el('p', {}, 'Comparing…'));
     let r = await api('POST', '/v1/models/' + encodeURIComponent(name) + '/comparisons',
       { candidates, samples: Number(samples.value), wait_s: 5 });
+    // A detached comparison answers 202 with its id: follow it.
     while (r.status === 202 && r.data && r.data.id && token === viewToken) {
       out.replaceChildren(el('p', {}, 'Running…'));
       await new Promise((ok) => setTimeout(ok, POLL_MS));
@@ -606,8 +644,8 @@ async function viewCompare(q) {
     out.replaceChildren(...comparisonResult(r.data));
   });
   show(el('h1', {}, 'Compare'), pick.node,
-    el('p', { class: 'muted' }, log.length ? 'Candidates: the decisions this page sent for this model in this tab.'
-      : 'No decisions sent from this tab yet; edit the candidates below.'), form, out);
+    el('p', { class: 'muted' }, 'Candidates: decisions of this model\'s logged checks, and any of your own. ' +
+      'All are evaluated on the same scenarios.'), form, out);
 }
 
 function comparisonResult(d) {
