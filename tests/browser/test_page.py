@@ -164,6 +164,45 @@ class Browser:
         shutil.rmtree(self.profile, ignore_errors=True)
 
 
+# WCAG 2.x relative luminance and contrast ratio (the W3C definition in
+# "Web Content Accessibility Guidelines 2.1", 1.4.3 and its glossary),
+# over every element that holds text directly; AA needs 4.5:1 for normal
+# text. Backgrounds are taken from the nearest ancestor with an opaque
+# background colour.
+CONTRAST_JS = r"""(() => {
+  const rgb = (s) => (s.match(/[\d.]+/g) || []).map(Number);
+  const lum = ([r, g, b]) => {
+    const f = (c) => { c /= 255; return c <= 0.03928 ? c / 12.92 : Math.pow((c + 0.055) / 1.055, 2.4); };
+    return 0.2126 * f(r) + 0.7152 * f(g) + 0.0722 * f(b);
+  };
+  const bg = (e) => {
+    for (; e; e = e.parentElement) {
+      const c = rgb(getComputedStyle(e).backgroundColor);
+      if (c.length === 3 || (c.length === 4 && c[3] === 1)) return c.slice(0, 3);
+    }
+    return [255, 255, 255];
+  };
+  const bad = [];
+  for (const e of document.querySelectorAll('body *')) {
+    if (!e.offsetParent && e.tagName !== 'BODY') continue;
+    if (e.closest('svg')) continue;
+    const own = [...e.childNodes].some((n) => n.nodeType === 3 && n.textContent.trim());
+    if (!own) continue;
+    const st = getComputedStyle(e);
+    const l1 = lum(rgb(st.color).slice(0, 3)), l2 = lum(bg(e));
+    const ratio = (Math.max(l1, l2) + 0.05) / (Math.min(l1, l2) + 0.05);
+    if (ratio < 4.5) bad.push(e.tagName + ' ' + e.textContent.trim().slice(0, 30) + ' ' + ratio.toFixed(2));
+  }
+  return bad;
+})()"""
+
+
+def contrast(b, where):
+    bad = b.js(CONTRAST_JS)
+    check(bad == [], "text contrast at least 4.5:1 (WCAG AA) on %s: %s"
+          % (where, bad[:5]))
+
+
 def fill(b, sel, value):
     b.js("(()=>{const e=document.querySelector(%s); e.value=%s;"
          " e.dispatchEvent(new Event('input'))})()"
@@ -239,6 +278,16 @@ def test_open(b, d, ids):
     txt = b.text("#checks")
     check("Fail" in txt and "Pass" in txt, "verdicts as words in the list")
     b.shot("checks-1280.png")
+    contrast(b, "the check history")
+    # the contrast probe itself: #999 on white is 2.85:1 and must be caught
+    b.js("(()=>{const p=document.createElement('p'); p.id='probe';"
+         "p.textContent='faint'; p.style.color='#999999';"
+         "p.style.background='#ffffff'; document.querySelector('main')"
+         ".append(p)})()")
+    flagged = b.js(CONTRAST_JS)
+    check(any("faint" in x and "2.85" in x for x in flagged),
+          "the contrast probe catches #999 on white (2.85:1): %s" % flagged)
+    b.js("document.getElementById('probe').remove()")
     b.go(base + "/#/checks?verdict=pass")
     b.wait("document.querySelectorAll('#checks tbody tr').length == 2",
            "verdict filter leaves the two passing checks")
@@ -269,6 +318,7 @@ def test_open(b, d, ids):
           "the joint picture says the interval is below the target")
     check("scenario" in b.text("#failing"), "failing scenarios listed")
     b.shot("check-1280.png")
+    contrast(b, "a check")
     b.size(390, 844, mobile=True)
     b.js("window.scrollTo(0,0)")
     time.sleep(0.3)
@@ -296,6 +346,11 @@ def test_open(b, d, ids):
     fill(b, "#seed", "7")
     fill(b, "#label", "from the page")
     b.shot("run-1280.png")
+    contrast(b, "the run form")
+    # keyboard: the form's controls are reachable with Tab
+    tabbable = b.js("[...document.querySelectorAll('#runform input, "
+                    "#runform button')].every(e => e.tabIndex >= 0)")
+    check(tabbable, "run form controls are in the tab order")
     b.js("document.querySelector('#submit').click()")
     b.wait("location.hash.startsWith('#/check/') && "
            "document.querySelector('#verdict')", "run result")
@@ -386,6 +441,7 @@ def test_keys(b, tmp):
         check(bool(msg) and msg.startswith("Your key is not allowed")
               and "role" in msg, "403 as a sentence: %r" % msg)
         b.shot("forbidden-1280.png")
+        contrast(b, "the 403 sentence")
         for url in b.requests:
             check(url.startswith(base + "/"),
                   "request to the daemon only: %s" % url)

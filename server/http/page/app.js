@@ -712,6 +712,8 @@ document.addEventListener('DOMContentLoaded', () => {
     route();
   });
   keyState();
-  window.addEventListener('hashchange', route);
+  window.addEventListener('hashchange', () => {
+    route().then(() => main().focus({ preventScroll: false }));
+  });
   route();
 });
