@@ -237,9 +237,10 @@ async function viewModels() {
     api('GET', '/v1/models/' + encodeURIComponent(m.name)).then((r) => {
       if (!r.ok) { counts.replaceChildren(sentence(r)); return; }
       const s = r.data.summary || {};
-      counts.textContent = (s.decisions ?? '?') + ' decisions (' + (s.decision_dims ?? '?') + ' values), ' +
-        (s.uncertain ?? '?') + ' uncertain inputs, ' + (s.constraints ?? '?') + ' constraints (' +
-        (s.rows ?? '?') + ' rows)';
+      const n = (k, one, many) => (s[k] ?? '?') + ' ' + (s[k] === 1 ? one : many);
+      counts.textContent = n('decisions', 'decision', 'decisions') + ' (' + n('decision_dims', 'value', 'values') + '), ' +
+        n('uncertain', 'uncertain input', 'uncertain inputs') + ', ' + n('constraints', 'constraint', 'constraints') +
+        ' (' + n('rows', 'row', 'rows') + ')';
     });
   }
   show(el('h1', {}, 'Models'),
