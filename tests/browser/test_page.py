@@ -398,6 +398,16 @@ def test_open(b, d, ids):
           and "long one" in b.text("#compareout"),
           "the logged candidates by label: %r" % b.text("#compareout")[:200])
     b.shot("compare-1280.png")
+    # A comparison longer than the page's wait (1 s) answers 202; the page
+    # follows it with GET /v1/comparisons/{id} until it ends.
+    fill(b, "#csamples", "3000000")
+    b.js("document.querySelector('#compareout').replaceChildren()")
+    b.js("document.querySelector('#compare').click()")
+    b.wait("document.querySelector('#pairs tbody tr')",
+           "comparison pairs after following a detached comparison",
+           timeout=120)
+    check(any("/v1/comparisons/" in u for u in b.requests),
+          "the page followed the detached comparison")
 
     for url in b.requests:
         check(url.startswith(base + "/") or url == "about:blank",

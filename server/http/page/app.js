@@ -632,7 +632,7 @@ async function viewCompare(q) {
     }
     out.replaceChildren(el('p', {}, 'Comparing…'));
     let r = await api('POST', '/v1/models/' + encodeURIComponent(name) + '/comparisons',
-      { candidates, samples: Number(samples.value), wait_s: 5 });
+      { candidates, samples: Number(samples.value), wait_s: 1 });
     // A detached comparison answers 202 with its id: follow it.
     while (r.status === 202 && r.data && r.data.id && token === viewToken) {
       out.replaceChildren(el('p', {}, 'Running…'));
