@@ -72,7 +72,8 @@ DESCRIPTION = (
     "(+ checks, comparisons, scenarios), author (+ register and retire "
     "models), admin (+ keys). x-feasgate-role names the least role of each "
     "operation. Missing or wrong key: 401; right key, wrong role: 403. "
-    "/v1/health, /v1/ready, /metrics and /v1/openapi.json need no key."
+    "/v1/health, /v1/ready, /metrics, /v1/openapi.json and the page (/, "
+    "/page/app.js, /page/app.css) need no key."
 )
 
 
@@ -293,6 +294,20 @@ def paths():
                         "left as it is.",
         ),
     }
+    p["/v1/checks/{id}/request"] = {
+        "parameters": [id_p],
+        "get": op(
+            "getCheckRequest", "The request a check ran with", "reader",
+            dict({"200": json_body("CheckRequest",
+                                   "The recorded request in its normal form: every "
+                                   "decision value, samples, seed, target, "
+                                   "confidence, interval, stop_early, sampling and "
+                                   "the optional members that were given.")},
+                 **errors(401, 403, 404, 500, 503)),
+            description="Send it again to POST /v1/models/{name}/checks to repeat "
+                        "the check, or change it to try a neighbouring plan.",
+        ),
+    }
     p["/v1/models/{name}/comparisons"] = {
         "parameters": [name_p],
         "post": op(
@@ -410,6 +425,25 @@ def paths():
         "get": op("limits", "Every configured limit", "reader",
                   dict({"200": json_body("Limits", "The limits.")},
                        **errors(401, 403, 500, 503))),
+    }
+    page = "The page a person looks at (models, check history, one check, run, compare). "
+    p["/"] = {
+        "get": op("page", "The page", None,
+                  {"200": {"description": page + "Static HTML; it loads only "
+                           "/page/app.css and /page/app.js and calls only this API, "
+                           "with the key typed into it. Served with a strict "
+                           "Content-Security-Policy.",
+                           "content": {"text/html": {"schema": {"type": "string"}}}}}),
+    }
+    p["/page/app.js"] = {
+        "get": op("pageScript", "The page's script", None,
+                  {"200": {"description": page + "Its script.",
+                           "content": {"text/javascript": {"schema": {"type": "string"}}}}}),
+    }
+    p["/page/app.css"] = {
+        "get": op("pageStyle", "The page's style sheet", None,
+                  {"200": {"description": page + "Its style sheet.",
+                           "content": {"text/css": {"schema": {"type": "string"}}}}}),
     }
     p["/v1/openapi.json"] = {
         "get": op("openapi", "This document", None,

@@ -149,6 +149,7 @@ struct fg_resp {
   /* status 0 and pending.finish set: suspend and answer later */
   fg_pending pending;
   bool close; /* "Connection: close": the connection ends after this */
+  bool page;  /* the page's own files: CSP and other browser headers */
 };
 
 typedef void fg_handler(fg_req *r, fg_resp *out);
@@ -358,6 +359,17 @@ void fg_comparison_on_stored(fg_comparison *c, fg_job_hook *hook, void *ctx);
 
 /* ---- sizes.c ---- */
 void fg_h_sample_size(fg_req *r, fg_resp *out);
+
+/* ---- check_request.c: GET /v1/checks/{id}/request ---- */
+void fg_h_check_request(fg_req *r, fg_resp *out);
+
+/* ---- page.c: the page a person looks at (server/http/page/) ---- */
+void fg_h_page(fg_req *r, fg_resp *out);
+void fg_h_page_js(fg_req *r, fg_resp *out);
+void fg_h_page_css(fg_req *r, fg_resp *out);
+/* The Content-Security-Policy and other browser headers of the page's
+ * files (set when fg_resp.page). */
+void fg_page_headers(struct MHD_Response *mr);
 
 /* ---- registry.c: what runs here, by id; the watcher ---- */
 fg_status fg_registry_new(fg_store *store, fg_registry **out, fg_problem *p);

@@ -14,7 +14,9 @@
  *   thousands of keys.
  *
  * Roles nest: reader < checker < author < admin (http-api.md "Access").
- *   open     GET/HEAD /v1/health, /v1/ready, /metrics, /v1/openapi.json
+ *   open     GET/HEAD /v1/health, /v1/ready, /metrics, /v1/openapi.json,
+ *            and the page (/, /page/app.js, /page/app.css: static text;
+ *            the API calls it makes carry the key a person types in)
  *   reader   every other GET/HEAD
  *   checker  POST checks and comparisons, GET scenarios, DELETE a check
  *            or a comparison
@@ -84,6 +86,9 @@ static const policy_entry policy[] = {
     {"GET", "/v1/ready", FG_ROLE_NONE},
     {"GET", "/metrics", FG_ROLE_NONE},
     {"GET", "/v1/openapi.json", FG_ROLE_NONE},
+    {"GET", "/", FG_ROLE_NONE},
+    {"GET", "/page/app.js", FG_ROLE_NONE},
+    {"GET", "/page/app.css", FG_ROLE_NONE},
     {"GET", "/v1/models/{name}/scenarios", FG_ROLE_CHECKER},
     {"POST", "/v1/models/{name}/checks", FG_ROLE_CHECKER},
     {"POST", "/v1/models/{name}/versions/{n}/checks", FG_ROLE_CHECKER},

@@ -122,6 +122,7 @@ static void queue(fg_req *r, fg_resp *resp) {
   MHD_add_response_header(mr, "Cache-Control", "no-store");
   if (resp->close)
     MHD_add_response_header(mr, MHD_HTTP_HEADER_CONNECTION, "close");
+  if (resp->page) fg_page_headers(mr);
   /* libmicrohttpd takes a response only on the first call or the last;
    * `responded` records whether this one was taken. */
   r->responded =

@@ -203,6 +203,7 @@ def test_matrix(d, store, keys):
         ("GET", "/v1/models/%s/versions/1" % name, None, "reader"),
         ("GET", "/v1/checks", None, "reader"),
         ("GET", "/v1/checks/%s" % ended, None, "reader"),
+        ("GET", "/v1/checks/%s/request" % ended, None, "reader"),
         ("GET", "/v1/limits", None, "reader"),
         ("GET", "/v1/sample-size?half_width=0.01&confidence=0.95", None,
          "reader"),

@@ -647,6 +647,7 @@ EXPECTED_OPERATIONS = {
     ("/v1/models/{name}/checks", "post"),
     ("/v1/models/{name}/versions/{n}/checks", "post"),
     ("/v1/checks", "get"), ("/v1/checks/{id}", "get"), ("/v1/checks/{id}", "delete"),
+    ("/v1/checks/{id}/request", "get"),
     ("/v1/models/{name}/comparisons", "post"),
     ("/v1/comparisons/{id}", "get"),
     ("/v1/comparisons/{id}", "delete"),
@@ -654,9 +655,11 @@ EXPECTED_OPERATIONS = {
     ("/v1/sample-size", "get"),
     ("/v1/health", "get"), ("/v1/ready", "get"), ("/metrics", "get"),
     ("/v1/limits", "get"), ("/v1/openapi.json", "get"),
+    ("/", "get"), ("/page/app.js", "get"), ("/page/app.css", "get"),
 }
 PUBLIC = {("/v1/health", "get"), ("/v1/ready", "get"), ("/metrics", "get"),
-          ("/v1/openapi.json", "get")}
+          ("/v1/openapi.json", "get"),
+          ("/", "get"), ("/page/app.js", "get"), ("/page/app.css", "get")}
 METHODS = {"get", "put", "post", "delete", "patch", "head", "options", "trace"}
 
 
