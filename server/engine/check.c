@@ -273,6 +273,7 @@ void fg_check_free_internal(struct fg_check *c) {
   fg_tally_free(&c->total);
   free(c->rows);
   free(c->setup_regs);
+  fg_exact_result_free(&c->exact);
   fg_request_free(&c->req);
   pthread_cond_destroy(&c->done_cv);
   if (c->model) fg_model_unref(c->model);
@@ -447,6 +448,13 @@ fg_status fg_check_start(fg_pool *pool, fg_model *m,
     c->setup_regs[c->info.decision_base + i] = c->req.decision[i];
   fg_program_run_setup(m->program, c->setup_regs);
   check_decisions(c);
+
+  /* The exact path (exact.c): here, on the calling thread, before the
+   * check is queued or visible, so no lock is held; bounded work. */
+  c->exact.bad_row = -1;
+  if (c->req.exact != FG_EXACT_OFF &&
+      fg_exact_compute(m, c->setup_regs, c->req.seed, &c->exact) != FG_OK)
+    goto oom;
 
   if (req->has_in_sample) {
     fg_eval_ctx ctx = {0};
