@@ -36,8 +36,11 @@
  *      The estimate is the mean over shifts; the error is
  *      FG_EXACT_ERROR_FACTOR standard errors of that mean.
  *   5. Rounds: FG_EXACT_POINTS_FIRST points per shift, doubling each round
- *      until the error is at most the target, at most FG_EXACT_ROUNDS_MAX
- *      rounds, and never past FG_EXACT_WORK_MAX integrand steps in all.
+ *      (fresh shifts each round) until half the previous round's error
+ *      is at most the target, at most FG_EXACT_ROUNDS_MAX rounds, and
+ *      never past FG_EXACT_WORK_MAX integrand steps in all. The answer is
+ *      the last round's; the stopping rule looks only at earlier rounds,
+ *      so the reported error is not selected for being small.
  *      r <= 1 needs no points: the answer is a difference of two normal
  *      CDFs, error 0 (rounding only).
  *
@@ -314,6 +317,7 @@ fg_status fg_mvn_probability(const double *H, const double *b, int m, int n,
   double work = 0;
   uint64_t rng = seed ^ UINT64_C(0x6a09e667f3bcc909);
   uint64_t npts = FG_EXACT_POINTS_FIRST;
+  double prev_error = -1;
   for (int round = 0; round < FG_EXACT_ROUNDS_MAX; round++) {
     double round_work = (double)npts * 2.0 * FG_EXACT_SHIFTS * step_cost;
     if (round > 0 && work + round_work > FG_EXACT_WORK_MAX) break;
@@ -344,10 +348,12 @@ fg_status fg_mvn_probability(const double *H, const double *b, int m, int n,
     out->error = FG_EXACT_ERROR_FACTOR * sqrt(var);
     out->points = (uint64_t)FG_EXACT_SHIFTS * 2u * npts;
     out->rounds = round + 1;
-    if (out->error <= target_error) {
-      out->converged = true;
-      break;
-    }
+    out->converged = out->error <= target_error;
+    /* Stop on what the previous, independent round predicts for this one
+     * (half its error), never on this round's own error: stopping when
+     * the reported error happens to be small would bias it low. */
+    if (prev_error >= 0 && 0.5 * prev_error <= target_error) break;
+    prev_error = out->error;
     npts *= 2;
   }
   if (out->probability < 0) out->probability = 0;
