@@ -452,9 +452,12 @@ fg_status fg_check_start(fg_pool *pool, fg_model *m,
   /* The exact path (exact.c): here, on the calling thread, before the
    * check is queued or visible, so no lock is held; bounded work. */
   c->exact.bad_row = -1;
-  if (c->req.exact != FG_EXACT_OFF &&
-      fg_exact_compute(m, c->setup_regs, c->req.seed, &c->exact) != FG_OK)
-    goto oom;
+  if (c->req.exact != FG_EXACT_OFF) {
+    double t0 = fg_time_monotonic();
+    if (fg_exact_compute(m, c->setup_regs, c->req.seed, &c->exact) != FG_OK)
+      goto oom;
+    c->exact.elapsed_ms = (fg_time_monotonic() - t0) * 1000.0;
+  }
 
   if (req->has_in_sample) {
     fg_eval_ctx ctx = {0};

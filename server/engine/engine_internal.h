@@ -52,6 +52,7 @@ typedef struct fg_exact_result {
   const char *method;
   double *row_probability; /* per row: exact violation probability */
   double *row_error;
+  double elapsed_ms; /* time the computation took (fg_check_start) */
 } fg_exact_result;
 
 const char *fg_exact_mode_name(fg_exact_mode m);

@@ -91,6 +91,7 @@ static void add_exact(cJSON *j, struct fg_check *c) {
   cJSON_AddNumberToObject(e, "points", (double)c->exact.points);
   cJSON_AddNumberToObject(e, "rounds", c->exact.rounds);
   cJSON_AddBoolToObject(e, "converged", c->exact.converged);
+  add_num(e, "elapsed_ms", c->exact.elapsed_ms);
 }
 
 static void add_rows(cJSON *o, struct fg_check *c) {
