@@ -193,6 +193,7 @@ def paths():
     name_p = path_param("ModelName")
     version_p = path_param("Version")
     id_p = path_param("CheckId")
+    cmp_p = path_param("ComparisonId")
     p = {}
     p["/v1/models"] = {
         "post": op(
@@ -288,14 +289,41 @@ def paths():
         "parameters": [name_p],
         "post": op(
             "compareCandidates", "Compare candidates on common random numbers", "checker",
-            dict({"200": json_body("ComparisonResult",
-                                   "Every candidate's check result and every pair's "
-                                   "paired comparison.")},
+            dict({"200": {"description": "Every candidate ended within wait_s: "
+                                         "every candidate's check result and, when all "
+                                         "are done, every pair's paired comparison.",
+                          "headers": {"Location": {"$ref": "#/components/headers/ComparisonLocation"}},
+                          "content": {"application/json": {"schema": ref("ComparisonResult")}}},
+                  "202": {"description": "Still running after wait_s; poll its "
+                                         "Location. status is running and progress "
+                                         "is present.",
+                          "headers": {"Location": {"$ref": "#/components/headers/ComparisonLocation"}},
+                          "content": {"application/json": {"schema": ref("ComparisonResult")}}}},
                  **errors(400, 401, 403, 404, 409, 410, 413, 415, 500, 503)),
             description="Evaluates every candidate on the same scenarios; each "
-                        "candidate is also logged as a check.",
+                        "candidate is also logged as a check. The comparison "
+                        "is kept: GET /v1/comparisons/{id} answers while it runs "
+                        "and after it ends.",
             requestBody={"required": True,
                          "content": {"application/json": {"schema": ref("ComparisonRequest")}}},
+        ),
+    }
+    p["/v1/comparisons/{id}"] = {
+        "parameters": [cmp_p],
+        "get": op(
+            "getComparison", "A comparison; while running also its progress", "reader",
+            dict({"200": json_body("ComparisonResult", "The comparison.")},
+                 **errors(401, 403, 404, 500, 503)),
+        ),
+        "delete": op(
+            "cancelComparison", "Cancel every candidate of a running comparison", "checker",
+            dict({"200": json_body("ComparisonResult", "The comparison, now "
+                                                       "cancelled, with each "
+                                                       "candidate's partial "
+                                                       "counts kept.")},
+                 **errors(401, 403, 404, 409, 500, 503)),
+            description="A comparison that has already ended is answered 409 "
+                        "and left as it is.",
         ),
     }
     p["/v1/models/{name}/scenarios"] = {
@@ -410,6 +438,9 @@ def build():
                 "Version": {"name": "n", "in": "path", "required": True,
                             "description": "Version number, from 1.",
                             "schema": {"type": "integer", "minimum": 1}},
+                "ComparisonId": {"name": "id", "in": "path", "required": True,
+                                 "description": "Comparison id.",
+                                 "schema": {"type": "string", "pattern": "^cmp_[0-9A-Za-z]+$"}},
                 "CheckId": {"name": "id", "in": "path", "required": True,
                             "description": "Check id.",
                             "schema": {"type": "string", "pattern": "^chk_[0-9A-Za-z]+$"}},
@@ -419,6 +450,8 @@ def build():
                                   "schema": {"type": "string"}},
                 "CheckLocation": {"description": "/v1/checks/{id} of the check.",
                                   "schema": {"type": "string"}},
+                "ComparisonLocation": {"description": "/v1/comparisons/{id} of the comparison.",
+                                       "schema": {"type": "string"}},
                 "RetryAfter": {"description": "Seconds to wait before trying again.",
                                "schema": {"type": "integer", "minimum": 0}},
             },

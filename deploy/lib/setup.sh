@@ -18,7 +18,8 @@ libgnutls28-dev libpq-dev"
 FG_PKGS_RUN="curl sqlite3"
 FG_PKGS_TEST="python3 python3-scipy python3-numpy python3-statsmodels \
 r-cran-mvtnorm libopenblas0-pthread \
-python3-jsonschema python3-mpmath openssl clang libclang-rt-14-dev postgresql"
+python3-jsonschema python3-mpmath openssl clang libclang-rt-14-dev postgresql \
+nginx"
 
 fg_missing_packages() {
   local missing=() p

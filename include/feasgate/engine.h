@@ -13,7 +13,12 @@
  * independent of the number of workers.
  *
  * Thread use: every function may be called from any thread. A fg_check is
- * reference counted (the pool holds one reference while it runs).
+ * reference counted (the pool holds one reference while it runs, and a
+ * worker one per task, so a worker that is late -- stuck in one long call
+ * after its check ended -- still writes to valid memory). Reading a
+ * check's state, progress, outcome or result body never waits for a
+ * worker: progress is a snapshot the workers publish at each merge, and
+ * end figures are published once, before the end state.
  */
 #ifndef FEASGATE_ENGINE_H
 #define FEASGATE_ENGINE_H
@@ -139,9 +144,34 @@ bool fg_check_wait(fg_check *c, double timeout_s);
 /* Ask a running check to stop; workers see it within one block. */
 void fg_check_cancel(fg_check *c);
 fg_check_state fg_check_get_state(fg_check *c);
+/* True once the check is in an end state (never blocks). */
+bool fg_check_ended(fg_check *c);
+fg_check_state fg_check_state_parse(const char *s); /* -1 when unknown */
+bool fg_check_state_is_end(fg_check_state s);
 fg_verdict fg_check_get_verdict(fg_check *c); /* valid once ended */
-/* Samples merged so far and satisfied among them. */
+/* Samples merged so far and satisfied among them (the published
+ * snapshot; never blocks). */
 void fg_check_progress(fg_check *c, uint64_t *done, uint64_t *satisfied);
+
+/* What a check that ended comes to: everything the check log, the metrics
+ * and the log line need, without reading the result body. */
+typedef struct fg_check_outcome {
+  fg_check_state state;
+  bool has_verdict; /* state == FG_CHECK_DONE */
+  fg_verdict verdict;
+  uint64_t samples, satisfied;
+  double probability, lower, upper; /* NAN when unknown */
+  double elapsed_ms;
+  bool stopped_early;
+  bool forced; /* ended while a worker was stuck (its result discarded) */
+} fg_check_outcome;
+/* False while the check runs; else fills *out. */
+bool fg_check_get_outcome(fg_check *c, fg_check_outcome *out);
+
+/* The test-only fault seam (engine/fault.c): arms the faults named in the
+ * environment. True in builds made with -DFG_FAULTS=ON, false (nothing
+ * armed) otherwise. Call once at start-up before any pool exists. */
+bool fg_faults_init(void);
 void fg_check_unref(fg_check *c);
 /* Take another reference (returns c). */
 fg_check *fg_check_ref(fg_check *c);

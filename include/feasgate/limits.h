@@ -134,6 +134,17 @@
 /* Worker threads. */
 #define FG_WORKERS_MAX 256
 
+/* Seconds a check that was told to stop (cancelled, out of time, shutting
+ * down) waits for its workers before it ends without them: workers test
+ * the flags once per block (milliseconds), so a worker still busy after
+ * this is stuck in one long call; its late result is discarded. */
+#define FG_STUCK_WORKER_S 1.0
+/* How often the pool's clock looks for deadlines and stuck workers. */
+#define FG_POOL_CLOCK_MS 20
+/* Seconds fg_pool_free waits for its workers to leave before it leaves
+ * the stuck ones behind (after FG_STUCK_WORKER_S has ended their checks). */
+#define FG_POOL_EXIT_WAIT_S (FG_STUCK_WORKER_S + 0.5)
+
 /* Sample-size calculations (GET /v1/sample-size): decision variables and
  * discarded scenarios of a scenario-approach query (each term of the
  * binomial tail is summed, so the cost grows with decisions + discarded),
@@ -234,8 +245,9 @@
  * for more than an hour is a misconfiguration, not a use. */
 #define FG_HTTP_WAIT_MAX_S 3600.0
 
-/* Running checks get this long to finish at shutdown before they are
- * cancelled and recorded as cancelled. */
+/* Running checks, and the requests waiting for them, get this long to
+ * finish at shutdown before the checks are cancelled and recorded as
+ * cancelled (the stop then takes a few seconds more at most). */
 #define FG_HTTP_GRACE_DEFAULT 30.0
 
 /* Hard bound of --max-scenarios: a scenario table of 10^8 rows is already
@@ -308,9 +320,10 @@
  * limits header size. Bodies are ours and limited by --max-body. */
 #define FG_HTTP_CONN_MEMORY (64 * 1024)
 
-/* Seconds added to --max-wait when waiting for requests in flight at
- * shutdown: time to record and answer after the wait itself. */
-#define FG_HTTP_DRAIN_MARGIN_S 10.0
+/* At shutdown, after --grace, the running checks are cancelled; seconds
+ * the requests waiting for them then get to be answered: the engine ends
+ * a cancelled check within FG_STUCK_WORKER_S, and its end is recorded. */
+#define FG_HTTP_STOP_ANSWER_S (FG_STUCK_WORKER_S + 2.0)
 
 /* Bytes of a refused body (beyond --max-body) read and thrown away so
  * that the client still gets its 413; past this the connection is closed.

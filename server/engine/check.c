@@ -3,12 +3,16 @@
  * statistics, waiting and cancelling.
  *
  * Life of a check: fg_check_start() copies the request, runs the setup
- * stream once (decision arithmetic, deterministic rows), records decision
- * bound and integrality problems, runs the in-sample evaluation if asked,
- * and queues the check on the pool (state QUEUED). Workers move it to
- * RUNNING and merge chunk tallies; when the last chunk is merged, or the
- * check was cancelled or ran out of time and no worker is on it, the pool
- * calls fg_check_finalize_locked() and signals done_cv.
+ * stream once (decision arithmetic, deterministic rows: no sampling),
+ * records decision bound and integrality problems, and queues the check
+ * on the pool (state QUEUED) with its in-sample evaluation, if asked, as
+ * the first task. Workers move it to RUNNING and merge chunk tallies,
+ * publishing a progress snapshot at each merge; when the last chunk is
+ * merged, or the check was cancelled or ran out of time and no worker is
+ * on it (or its worker is stuck, pool.c), the thread that ends it calls
+ * fg_check_finish() with no shared lock held: it computes the end figures
+ * under the check's own merge_mu, then publishes the end state and
+ * signals done_cv.
  *
  * What "joint" counts: a sample is satisfied when every constraint row
  * holds in it, deterministic rows included (they hold in all samples or in
@@ -21,6 +25,7 @@
  * than Clopper-Pearson's for the same counts (cs_reported).
  *
  * Thread use: any thread; fields follow the rule in engine_internal.h.
+ * Readers (state, progress, outcome, result body) never block on a worker.
  */
 #include "engine/engine_internal.h"
 
@@ -35,13 +40,55 @@
 
 #define INTEGER_TOL 1e-6
 
-/* A check detached from its pool (fg_check_run_sync) has ended and no
- * longer changes, so it needs no lock. */
-void fg_check_lock(fg_check *c) {
-  if (c->pool) pthread_mutex_lock(&c->pool->mu);
+static bool is_end(fg_check_state s) {
+  return s != FG_CHECK_QUEUED && s != FG_CHECK_RUNNING;
 }
-void fg_check_unlock(fg_check *c) {
-  if (c->pool) pthread_mutex_unlock(&c->pool->mu);
+
+bool fg_check_state_is_end(fg_check_state s) {
+  return is_end(s);
+}
+
+fg_check_state fg_check_state_parse(const char *s) {
+  /* QUEUED reads as "running" too: RUNNING is the one a name gives. */
+  static const fg_check_state all[] = {
+      FG_CHECK_RUNNING, FG_CHECK_DONE,
+      FG_CHECK_CANCELLED, FG_CHECK_TIMED_OUT, FG_CHECK_FAILED,
+      FG_CHECK_INTERRUPTED};
+  for (size_t i = 0; s && i < sizeof all / sizeof *all; i++)
+    if (strcmp(s, fg_check_state_name(all[i])) == 0) return all[i];
+  return (fg_check_state)-1;
+}
+
+void fg_check_publish_progress(struct fg_check *c) {
+  unsigned s = atomic_load_explicit(&c->snap_seq, memory_order_relaxed);
+  atomic_store_explicit(&c->snap_seq, s + 1, memory_order_relaxed);
+  atomic_thread_fence(memory_order_release);
+  atomic_store_explicit(&c->snap_n, c->total.n, memory_order_relaxed);
+  atomic_store_explicit(&c->snap_sat, c->total.satisfied,
+                        memory_order_relaxed);
+  atomic_store_explicit(&c->snap_seq, s + 2, memory_order_release);
+}
+
+void fg_check_progress(fg_check *c, uint64_t *done, uint64_t *satisfied) {
+  /* The writer's section is four stores, so a retry is rare and short;
+   * the bound keeps the loop finite whatever happens (the last read is
+   * then used: n and k from two neighbouring merges at worst). */
+  for (int tries = 0; tries < 1000; tries++) {
+    unsigned s1 = atomic_load_explicit(&c->snap_seq, memory_order_acquire);
+    *done = atomic_load_explicit(&c->snap_n, memory_order_relaxed);
+    *satisfied = atomic_load_explicit(&c->snap_sat, memory_order_relaxed);
+    atomic_thread_fence(memory_order_acquire);
+    unsigned s2 = atomic_load_explicit(&c->snap_seq, memory_order_relaxed);
+    if (s1 == s2 && !(s1 & 1)) return;
+  }
+  if (*satisfied > *done) *satisfied = *done;
+}
+
+fg_interval fg_check_live_interval(const struct fg_check *c, uint64_t k,
+                                   uint64_t n) {
+  fg_fault_slow_interval(c->req.seed);
+  return n ? fg_interval_clopper_pearson(k, n, c->req.confidence)
+           : (fg_interval){0.0, 1.0};
 }
 
 static void add_det(struct fg_check *c, const char *name, const char *fmt,
@@ -245,19 +292,16 @@ static fg_verdict numeric_verdict(const struct fg_check *c, fg_verdict v) {
 }
 
 const uint64_t *fg_check_outcomes(fg_check *c, uint64_t *n) {
-  fg_check_lock(c);
-  bool ended = c->state != FG_CHECK_QUEUED && c->state != FG_CHECK_RUNNING;
+  if (!fg_check_ended(c)) {
+    *n = 0;
+    return NULL;
+  }
   *n = c->total.n;
-  const uint64_t *bits = ended ? c->outcomes : NULL;
-  fg_check_unlock(c);
-  return bits;
+  return c->outcomes;
 }
 
 bool fg_check_stopped_early(fg_check *c) {
-  fg_check_lock(c);
-  bool v = c->stopped_early;
-  fg_check_unlock(c);
-  return v;
+  return atomic_load(&c->stopped_early);
 }
 
 void fg_check_free_internal(struct fg_check *c) {
@@ -276,6 +320,8 @@ void fg_check_free_internal(struct fg_check *c) {
   fg_exact_result_free(&c->exact);
   fg_request_free(&c->req);
   pthread_cond_destroy(&c->done_cv);
+  pthread_mutex_destroy(&c->end_mu);
+  pthread_mutex_destroy(&c->merge_mu);
   if (c->model) fg_model_unref(c->model);
   free(c);
 }
@@ -309,7 +355,9 @@ static int row_cmp(const void *pa, const void *pb) {
   return a->row - b->row;
 }
 
-void fg_check_finalize_locked(struct fg_check *c) {
+/* Under merge_mu, once the end is decided: the end-of-run figures. */
+static void finalize(struct fg_check *c) {
+  fg_fault_slow_interval(c->req.seed);
   const fg_tally *t = &c->total;
   uint64_t n = t->n, k = t->satisfied;
   c->elapsed_ms = (fg_time_monotonic() - c->t_start) * 1000.0;
@@ -370,6 +418,47 @@ void fg_check_finalize_locked(struct fg_check *c) {
   }
 }
 
+void fg_check_finish(struct fg_check *c) {
+  pthread_mutex_lock(&c->merge_mu);
+  bool all = atomic_load(&c->merged_chunks) == c->nchunks &&
+             (!c->has_in_sample || atomic_load(&c->in_sample_whole));
+  fg_check_state end;
+  if (all || atomic_load(&c->frozen))
+    end = FG_CHECK_DONE;
+  else if (atomic_load(&c->timeout_flag))
+    end = FG_CHECK_TIMED_OUT;
+  else
+    end = FG_CHECK_CANCELLED;
+  finalize(c);
+  fg_check_publish_progress(c);
+  pthread_mutex_unlock(&c->merge_mu);
+  /* Publish: every figure above is written before the end state. */
+  pthread_mutex_lock(&c->end_mu);
+  atomic_store_explicit(&c->state, end, memory_order_release);
+  pthread_cond_broadcast(&c->done_cv);
+  pthread_mutex_unlock(&c->end_mu);
+  fg_check_unref(c); /* the pool's reference */
+}
+
+bool fg_check_get_outcome(fg_check *c, fg_check_outcome *o) {
+  fg_check_state s = atomic_load_explicit(&c->state, memory_order_acquire);
+  if (!is_end(s)) return false;
+  memset(o, 0, sizeof *o);
+  o->state = s;
+  o->has_verdict = s == FG_CHECK_DONE;
+  o->verdict = c->verdict;
+  o->samples = c->total.n;
+  o->satisfied = c->total.satisfied;
+  o->probability = c->probability;
+  o->lower = c->interval.lower;
+  o->upper = c->interval.upper;
+  if (!(o->samples > 0)) o->lower = o->upper = NAN;
+  o->elapsed_ms = c->elapsed_ms;
+  o->stopped_early = atomic_load(&c->stopped_early);
+  o->forced = c->forced;
+  return true;
+}
+
 fg_status fg_check_start(fg_pool *pool, fg_model *m,
                          const fg_check_request *req, fg_check **out,
                          fg_problem *p) {
@@ -382,7 +471,20 @@ fg_status fg_check_start(fg_pool *pool, fg_model *m,
   atomic_init(&c->refs, 1);
   atomic_init(&c->cancel_flag, false);
   atomic_init(&c->timeout_flag, false);
+  atomic_init(&c->ending, false);
+  atomic_init(&c->frozen, false);
+  atomic_init(&c->stopped_early, false);
+  atomic_init(&c->merged_chunks, 0);
+  atomic_init(&c->snap_seq, 0);
+  atomic_init(&c->snap_n, 0);
+  atomic_init(&c->snap_sat, 0);
+  atomic_init(&c->in_sample_count, 0);
+  atomic_init(&c->in_sample_satisfied, 0);
+  atomic_init(&c->in_sample_whole, false);
+  atomic_init(&c->state, FG_CHECK_QUEUED);
   pthread_cond_init(&c->done_cv, NULL);
+  pthread_mutex_init(&c->end_mu, NULL);
+  pthread_mutex_init(&c->merge_mu, NULL);
   c->pool = pool;
   c->model = fg_model_ref(m);
   fg_program_get_info(m->program, &c->info);
@@ -450,7 +552,9 @@ fg_status fg_check_start(fg_pool *pool, fg_model *m,
   check_decisions(c);
 
   /* The exact path (exact.c): here, on the calling thread, before the
-   * check is queued or visible, so no lock is held; bounded work. */
+   * check is queued or visible, so no lock is held; its work is bounded
+   * by FG_EXACT_WORK_MAX (about a second at most), not by the check's
+   * cancel flag or deadline. */
   c->exact.bad_row = -1;
   if (c->req.exact != FG_EXACT_OFF) {
     double t0 = fg_time_monotonic();
@@ -459,31 +563,13 @@ fg_status fg_check_start(fg_pool *pool, fg_model *m,
     c->exact.elapsed_ms = (fg_time_monotonic() - t0) * 1000.0;
   }
 
-  if (req->has_in_sample) {
-    fg_eval_ctx ctx = {0};
-    fg_tally t;
-    if (fg_tally_init(&t, c->info.nrows) != FG_OK) goto oom;
-    if (fg_eval_ctx_prepare(&ctx, c) != FG_OK) {
-      fg_tally_free(&t);
-      fg_eval_ctx_free(&ctx);
-      goto oom;
-    }
-    /* the design stream of the in-sample seed */
-    fg_engine_run_range(c, ctx.sscratch, ctx.regs, ctx.excess, ctx.scratch,
-                        req->in_sample_seed, FG_STREAM_DESIGN, 0,
-                        req->in_sample_count, &t, NULL, NULL, NULL);
-    c->has_in_sample = true;
-    c->in_sample_count = t.n;
-    c->in_sample_satisfied = t.satisfied;
-    c->in_sample_bad_draws = t.bad_draws;
-    c->in_sample_bad_first = t.bad_draw_first;
-    c->in_sample_bad_column = t.bad_draw_column;
-    fg_tally_free(&t);
-    fg_eval_ctx_free(&ctx);
-  }
+  /* The in-sample evaluation is the check's first task on the pool, under
+   * its cancel flag and deadline (never on the caller's thread). */
+  c->has_in_sample = req->has_in_sample;
+  c->in_sample_task = req->has_in_sample ? 1 : 0;
 
   pthread_mutex_lock(&pool->mu);
-  if (pool->stopping || pool->nchecks >= pool->queue_cap) {
+  if (pool->stopping || atomic_load(&pool->nchecks) >= pool->queue_cap) {
     bool stopping = pool->stopping;
     pthread_mutex_unlock(&pool->mu);
     fg_check_free_internal(c);
@@ -493,12 +579,11 @@ fg_status fg_check_start(fg_pool *pool, fg_model *m,
                                      "try again shortly",
                           pool->queue_cap);
   }
-  c->state = FG_CHECK_QUEUED;
   atomic_fetch_add(&c->refs, 1); /* the pool's reference */
   if (pool->tail) pool->tail->next_in_pool = c;
   else pool->head = c;
   pool->tail = c;
-  pool->nchecks++;
+  atomic_fetch_add(&pool->nchecks, 1);
   pthread_cond_broadcast(&pool->work_cv);
   pthread_mutex_unlock(&pool->mu);
   *out = c;
@@ -512,16 +597,15 @@ oom:
 }
 
 
-static bool ended(fg_check_state s) {
-  return s != FG_CHECK_QUEUED && s != FG_CHECK_RUNNING;
+bool fg_check_ended(fg_check *c) {
+  return is_end(atomic_load_explicit(&c->state, memory_order_acquire));
 }
 
 bool fg_check_wait(fg_check *c, double timeout_s) {
-  fg_pool *pool = c->pool;
-  if (!pool) return true;
-  pthread_mutex_lock(&pool->mu);
+  if (fg_check_ended(c)) return true;
+  pthread_mutex_lock(&c->end_mu);
   if (timeout_s < 0) {
-    while (!ended(c->state)) pthread_cond_wait(&c->done_cv, &pool->mu);
+    while (!fg_check_ended(c)) pthread_cond_wait(&c->done_cv, &c->end_mu);
   } else {
     struct timespec ts;
     clock_gettime(CLOCK_REALTIME, &ts);
@@ -532,45 +616,25 @@ bool fg_check_wait(fg_check *c, double timeout_s) {
       ts.tv_sec++;
       ts.tv_nsec -= 1000000000L;
     }
-    while (!ended(c->state))
-      if (pthread_cond_timedwait(&c->done_cv, &pool->mu, &ts) != 0) break;
+    while (!fg_check_ended(c))
+      if (pthread_cond_timedwait(&c->done_cv, &c->end_mu, &ts) != 0) break;
   }
-  bool e = ended(c->state);
-  pthread_mutex_unlock(&pool->mu);
-  return e;
+  pthread_mutex_unlock(&c->end_mu);
+  return fg_check_ended(c);
 }
 
 void fg_check_cancel(fg_check *c) {
   fg_pool *pool = c->pool;
-  if (!pool) return;
-  pthread_mutex_lock(&pool->mu);
-  if (!ended(c->state)) {
-    atomic_store(&c->cancel_flag, true);
-    c->stop = true;
-    fg_pool_check_ended_locked(pool, c);
-  }
-  pthread_mutex_unlock(&pool->mu);
+  if (!pool || fg_check_ended(c)) return;
+  fg_pool_stop_check(pool, c);
 }
 
 fg_check_state fg_check_get_state(fg_check *c) {
-  fg_check_lock(c);
-  fg_check_state s = c->state;
-  fg_check_unlock(c);
-  return s;
+  return (fg_check_state)atomic_load_explicit(&c->state, memory_order_acquire);
 }
 
 fg_verdict fg_check_get_verdict(fg_check *c) {
-  fg_check_lock(c);
-  fg_verdict v = c->verdict;
-  fg_check_unlock(c);
-  return v;
-}
-
-void fg_check_progress(fg_check *c, uint64_t *done, uint64_t *satisfied) {
-  fg_check_lock(c);
-  *done = c->total.n;
-  *satisfied = c->total.satisfied;
-  fg_check_unlock(c);
+  return fg_check_ended(c) ? c->verdict : FG_VERDICT_INCONCLUSIVE;
 }
 
 fg_status fg_check_run_sync(fg_model *m, const fg_check_request *req,

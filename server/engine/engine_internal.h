@@ -1,11 +1,28 @@
 /*
  * engine/engine_internal.h -- what the engine's files share.
  *
- * check.c owns the fg_check lifecycle and its statistics; pool.c owns the
- * worker threads and the scheduling of chunks; request.c parses requests;
- * result.c writes result bodies. The locking rule: every field of a check
- * marked (pool) below is read and written only under pool->mu; the rest is
- * set before the check is queued and never changes.
+ * check.c owns the fg_check's statistics, waiting and cancelling;
+ * pool.c owns the worker threads, the scheduling of chunks and the pool's
+ * clock (deadlines, stuck workers); request.c parses requests; result.c
+ * writes result bodies; fault.c is the test-only fault seam.
+ *
+ * The locking rule (no lock a reader needs is held across work):
+ *   (pool)  fields are read and written only under pool->mu, which guards
+ *           scheduling bookkeeping alone: claiming a chunk, counting
+ *           workers, deciding that a check ends. Nothing is computed
+ *           under it.
+ *   (merge) fields are read and written only under the check's merge_mu,
+ *           by the workers of that check (merging tallies in chunk order,
+ *           looks at the confidence sequence) and by the thread that
+ *           finalises it. No reader, probe or metric ever takes merge_mu.
+ *   (atomic) fields are read without a lock: the progress snapshot (a
+ *           seqlock written at each merge), the state (an end state is
+ *           stored with release order after every final figure is
+ *           written, so a reader that loads it with acquire order reads
+ *           the final figures without a lock), flags.
+ *   The rest is set before the check is queued and never changes.
+ * Lock order: merge_mu and pool->mu are never held together; end_mu only
+ * guards the wait for the end (done_cv) and is taken with no other lock.
  */
 #ifndef FG_ENGINE_INTERNAL_H
 #define FG_ENGINE_INTERNAL_H
@@ -76,24 +93,30 @@ struct fg_check {
    * sequence is looked at in the same places whatever the chunk size.
    * NULL otherwise (chunk c covers [c*chunk, (c+1)*chunk)). */
   uint64_t *bounds;
-  uint64_t next_look; /* (pool) next look point; 0 when none is left */
+  uint64_t next_look; /* (merge) next look point; 0 when none is left */
   uint64_t *outcomes; /* with keep_outcomes: one bit per sample */
   fg_design design;    /* how the inputs are drawn */
   uint64_t samples_requested; /* req.samples as asked; req.samples is what
                                  the design uses (pairs, whole replicates) */
   uint64_t rep_size;   /* samples per replicate (LHS, Sobol); 0 otherwise */
   int nrep;
-  uint64_t *rep_sat;   /* (pool) satisfied per replicate */
-  uint64_t *rep_viol;  /* (pool) violations per replicate and row */
+  uint64_t *rep_sat;   /* (merge) satisfied per replicate */
+  uint64_t *rep_viol;  /* (merge) violations per replicate and row */
   double *setup_regs; /* info.nregs values after the setup stream */
 
   int ndet;          /* deterministic problems (bounds, rows) */
   int ndet_dropped;
   fg_det_problem det[FG_DET_PROBLEMS_MAX];
 
+  /* In-sample evaluation: one task on the pool, run before or beside the
+   * chunks under the same cancel flag and deadline; its counts are
+   * (atomic) so a running check's body can show them once written. */
   bool has_in_sample;
-  uint64_t in_sample_satisfied, in_sample_count;
-  /* non-finite draws of the in-sample evaluation (design stream) */
+  int in_sample_task; /* (pool) 0 none, 1 waiting, 2 running, 3 ended */
+  atomic_bool in_sample_whole; /* it evaluated every scenario asked for */
+  _Atomic uint64_t in_sample_satisfied, in_sample_count;
+  /* (merge) non-finite draws of the in-sample evaluation (design
+   * stream), written by its task under merge_mu; read once ended */
   uint64_t in_sample_bad_draws, in_sample_bad_first;
   int in_sample_bad_column;
 
@@ -101,22 +124,37 @@ struct fg_check {
 
   /* (pool) scheduling */
   struct fg_check *next_in_pool;
-  uint64_t next_chunk, merged_chunks;
-  int active;   /* workers on a chunk of this check now */
+  uint64_t next_chunk;
+  int active;     /* workers on a task of this check now */
+  bool stop;      /* no more tasks will be claimed */
+  double stop_at; /* monotonic seconds stop was set */
+  bool forced;    /* ended while a worker was still on it (stuck) */
+  atomic_bool ending; /* (pool writes) the end is decided; set once */
+  _Atomic uint64_t merged_chunks; /* (merge writes) read for claiming */
+  atomic_bool frozen; /* (merge writes) decided early: no more merges */
+
+  /* (merge) merging */
+  pthread_mutex_t merge_mu;
   int window;   /* chunk results that may wait for merging */
   fg_tally *slots;
   bool *ready;
   fg_tally total;
-  bool stop;    /* no more chunks will be claimed */
-  bool frozen;  /* decided early: later chunk results are not merged */
-  bool stopped_early;
-  fg_interval cs; /* (pool) running intersection of the sequence */
+  atomic_bool stopped_early;
+  fg_interval cs; /* (merge) running intersection of the sequence */
   atomic_bool cancel_flag;
   atomic_bool timeout_flag;
-  fg_check_state state;
+
+  /* (atomic) progress snapshot: a seqlock over samples merged and
+   * satisfied among them, written at each merge (odd seq: being written) */
+  atomic_uint snap_seq;
+  _Atomic uint64_t snap_n, snap_sat;
+
+  /* (atomic) fg_check_state; end states published after the results */
+  atomic_int state;
+  pthread_mutex_t end_mu;
   pthread_cond_t done_cv;
 
-  /* (pool) results, valid once state is an end state */
+  /* (merge) results, valid once state is an end state */
   double elapsed_ms;
   fg_verdict verdict;
   fg_interval interval;
@@ -130,26 +168,49 @@ struct fg_check {
 struct fg_pool {
   pthread_mutex_t mu;
   pthread_cond_t work_cv;
+  pthread_cond_t exit_cv;  /* a worker left (fg_pool_free waits on it) */
+  pthread_cond_t clock_cv; /* wakes the clock early (stopping) */
   int nworkers;
   pthread_t *threads;
+  bool *exited; /* (pool) per worker: it has left its loop */
   int nthreads_started;
+  pthread_t clock;
+  bool clock_started;
   int chunk;
   int queue_cap;
-  struct fg_check *head, *tail; /* checks not yet ended, in arrival order */
-  int nchecks;
-  int busy;
+  struct fg_check *head, *tail; /* checks not yet ending, in arrival order */
+  /* (pool writes, read without the lock by probes and metrics) */
+  atomic_int nchecks;
+  atomic_int busy;
   bool stopping;
+  bool clock_stop;
 };
 
-/* pool.c: under pool->mu, end the check if nothing runs on it any more
- * (after a cancel). */
-void fg_pool_check_ended_locked(struct fg_pool *pool, struct fg_check *c);
+/* pool.c: ask check c to stop (cancel: the cancel flag; else the timeout
+ * flag is already set) and end it at once when no worker is on it. Takes
+ * pool->mu itself; finalises outside it. */
+void fg_pool_stop_check(struct fg_pool *pool, struct fg_check *c);
 
 /* check.c */
-void fg_check_lock(struct fg_check *c);
-void fg_check_unlock(struct fg_check *c);
-void fg_check_finalize_locked(struct fg_check *c);
+/* The end-of-run figures of a check whose end was decided: state from the
+ * flags, intervals, verdict, rows. Called with no shared lock held (it
+ * takes the check's merge_mu), then the end state is published and
+ * done_cv broadcast. */
+void fg_check_finish(struct fg_check *c);
 void fg_check_free_internal(struct fg_check *c);
+/* The seqlock snapshot: write (under merge_mu) and read (no lock). */
+void fg_check_publish_progress(struct fg_check *c);
+/* The interval a running check shows: Clopper-Pearson on the snapshot,
+ * computed by the reader, outside any shared lock. */
+fg_interval fg_check_live_interval(const struct fg_check *c, uint64_t k,
+                                   uint64_t n);
+
+/* fault.c: the test-only fault seam (FG_FAULTS builds; no-ops otherwise).
+ * fg_fault_stall: true when the block at sample `first` of `seed` is the
+ * one armed to stall (the caller then stalls forever, ignoring flags).
+ * fg_fault_slow_interval: sleeps the armed time when `seed` is armed. */
+bool fg_fault_stall(uint64_t seed, uint64_t first, int n);
+void fg_fault_slow_interval(uint64_t seed);
 
 /* Run samples [first, first + count) of (seed, stream) into `t` with a private
  * register file `regs` (info.nregs * FG_BLOCK doubles, already broadcast).
@@ -164,10 +225,10 @@ bool fg_engine_run_range(const struct fg_check *c, fg_sample_scratch *w,
 /* Sample range of chunk idx. */
 void fg_check_chunk_range(const struct fg_check *c, uint64_t idx,
                           uint64_t *first, uint64_t *count);
-/* Under pool->mu after a merge: look at the confidence sequence if a look
+/* Under merge_mu after a merge: look at the confidence sequence if a look
  * point was reached; true when the check is decided. */
 bool fg_check_look_locked(struct fg_check *c);
-/* Under pool->mu when chunk idx is merged: per-replicate counts. */
+/* Under merge_mu when chunk idx is merged: per-replicate counts. */
 void fg_check_merged_chunk_locked(struct fg_check *c, uint64_t idx,
                                   const fg_tally *t);
 

@@ -1,11 +1,25 @@
 /*
- * engine/pool.c -- the fixed worker pool and the scheduling of chunks.
+ * engine/pool.c -- the fixed worker pool, the scheduling of chunks and the
+ * pool's clock.
  *
  * Design: N worker threads share one mutex (pool->mu) and one condition
  * variable. Checks wait in arrival order in a list; a worker takes the next
- * chunk of the first check that has one it may claim, runs it without any
- * lock, then merges it. A check's sample range is cut into chunks of
+ * task of the first check that has one it may claim (its in-sample
+ * evaluation first, then its chunks), runs it without any lock, merges it
+ * under the check's own merge_mu, and only then takes pool->mu again to
+ * count itself out. A check's sample range is cut into chunks of
  * pool->chunk samples; chunk c covers samples [c*chunk, (c+1)*chunk).
+ *
+ * Ending: the thread that finds a check over (its last chunk merged, or
+ * told to stop with no worker on it) marks it `ending` and unlinks it
+ * under pool->mu, then finalises it (fg_check_finish: intervals, verdict,
+ * rows) with no shared lock held. The clock thread looks every
+ * FG_POOL_CLOCK_MS: a check past its deadline gets its timeout flag and
+ * stops; a check told to stop whose workers have not come back within
+ * FG_STUCK_WORKER_S ends without them (`forced`): its merged counts are
+ * final, and the late worker, holding its own references, finds the check
+ * ending and discards its result. So a deadline or a cancel holds even
+ * when a worker is stuck in one long call.
  *
  * Order of merging: chunk results are merged strictly in chunk order. A
  * finished chunk waits in one of `window` slots until all earlier chunks
@@ -16,14 +30,21 @@
  * size.
  *
  * Locking rule: pool->mu guards the check list, every (pool) field of every
- * check, and pool->busy/stopping. A worker holds no lock while it simulates;
- * it tests the check's cancel and timeout flags (atomics) once per block.
- * Workers touch no HTTP or store state.
+ * check, and the pool's counters (atomics, so probes read them without
+ * it); nothing is computed under it. A worker holds no lock while it
+ * simulates; it tests the check's cancel and timeout flags (atomics) once
+ * per block. Workers touch no HTTP or store state.
+ *
+ * Exit: fg_pool_free waits FG_POOL_EXIT_WAIT_S for the workers to leave;
+ * a worker still stuck then is detached and the pool's memory is left to
+ * it (kept reachable), so a stuck thread never blocks the process's exit.
  */
 #include "engine/engine_internal.h"
 
+#include <math.h>
 #include <stdlib.h>
 #include <string.h>
+#include <time.h>
 #include <unistd.h>
 
 fg_status fg_eval_ctx_prepare(fg_eval_ctx *e, const struct fg_check *c) {
@@ -75,6 +96,10 @@ bool fg_engine_run_range(const struct fg_check *c, fg_sample_scratch *w,
   for (uint64_t done = 0; done < count;) {
     if (cancel && atomic_load_explicit(cancel, memory_order_relaxed))
       return false;
+    if (stream == FG_STREAM_VALIDATION)
+      (void)fg_fault_stall(seed, first + done,
+                           (count - done) < FG_BLOCK ? (int)(count - done)
+                                                     : FG_BLOCK);
     if (timeout) {
       if (atomic_load_explicit(timeout, memory_order_relaxed)) return false;
       if (c->deadline > 0 && fg_time_monotonic() > c->deadline) {
@@ -110,12 +135,14 @@ bool fg_engine_run_range(const struct fg_check *c, fg_sample_scratch *w,
   return true;
 }
 
-/* The first check with a chunk that may be claimed now, or NULL. */
+/* The first check with a task that may be claimed now, or NULL. */
 static struct fg_check *next_claimable(fg_pool *pool) {
   for (struct fg_check *c = pool->head; c; c = c->next_in_pool) {
     if (c->stop) continue;
+    if (c->in_sample_task == 1) return c;
+    uint64_t merged = atomic_load(&c->merged_chunks);
     if (c->next_chunk < c->nchunks &&
-        c->next_chunk < c->merged_chunks + (uint64_t)c->window)
+        c->next_chunk < merged + (uint64_t)c->window)
       return c;
   }
   return NULL;
@@ -131,42 +158,113 @@ static void unlink_check(fg_pool *pool, struct fg_check *c) {
   *pp = c->next_in_pool;
   if (pool->tail == c) pool->tail = prev;
   c->next_in_pool = NULL;
-  pool->nchecks--;
+  atomic_fetch_sub(&pool->nchecks, 1);
 }
 
-/* Called under pool->mu when a check may have ended. */
-static void maybe_end(fg_pool *pool, struct fg_check *c) {
-  bool all = c->merged_chunks == c->nchunks;
-  if (c->frozen && c->active > 0) return; /* wait for the last workers */
-  if (!(all || (c->stop && c->active == 0))) return;
-  if (c->state != FG_CHECK_QUEUED && c->state != FG_CHECK_RUNNING) return;
-  if (all || c->frozen) c->state = FG_CHECK_DONE;
-  else if (atomic_load(&c->timeout_flag)) c->state = FG_CHECK_TIMED_OUT;
-  else c->state = FG_CHECK_CANCELLED;
-  fg_check_finalize_locked(c);
+static void set_stop(struct fg_check *c) {
+  if (c->stop) return;
+  c->stop = true;
+  c->stop_at = fg_time_monotonic();
+}
+
+/* Under pool->mu: decide whether check c ends now; when it does, mark it
+ * ending and unlink it, and the caller must call fg_check_finish(c)
+ * after releasing pool->mu (the pool's reference passes to that call).
+ * `force`: end it even with workers still on it (they are stuck). */
+static bool claim_end(fg_pool *pool, struct fg_check *c, bool force) {
+  if (atomic_load(&c->ending)) return false;
+  bool all = atomic_load(&c->merged_chunks) == c->nchunks &&
+             (c->in_sample_task == 0 || c->in_sample_task == 3);
+  bool frozen = atomic_load(&c->frozen);
+  if (!force) {
+    if (frozen && c->active > 0) return false; /* wait for the last workers */
+    if (!(all || frozen || (c->stop && c->active == 0))) return false;
+  }
+  c->forced = force && c->active > 0;
+  set_stop(c);
+  atomic_store(&c->ending, true);
   unlink_check(pool, c);
-  pthread_cond_broadcast(&c->done_cv);
-  fg_check_unref(c); /* the pool's reference */
+  return true;
 }
 
-void fg_pool_check_ended_locked(fg_pool *pool, struct fg_check *c) {
-  maybe_end(pool, c);
+void fg_pool_stop_check(fg_pool *pool, struct fg_check *c) {
+  pthread_mutex_lock(&pool->mu);
+  bool fin = false;
+  if (!atomic_load(&c->ending)) {
+    atomic_store(&c->cancel_flag, true);
+    set_stop(c);
+    fin = claim_end(pool, c, false);
+    pthread_cond_signal(&pool->clock_cv);
+  }
+  pthread_mutex_unlock(&pool->mu);
+  if (fin) fg_check_finish(c);
+}
+
+/* Run the in-sample evaluation of c (the design stream of its in-sample
+ * seed) under its cancel flag and deadline; false when stopped. */
+static bool run_in_sample(fg_eval_ctx *ctx, struct fg_check *c) {
+  fg_tally t;
+  if (fg_tally_init(&t, c->info.nrows) != FG_OK) return false;
+  bool ok = fg_engine_run_range(c, ctx->sscratch, ctx->regs, ctx->excess,
+                                ctx->scratch, c->req.in_sample_seed,
+                                FG_STREAM_DESIGN, 0, c->req.in_sample_count,
+                                &t, &c->cancel_flag, &c->timeout_flag, NULL);
+  pthread_mutex_lock(&c->merge_mu);
+  if (!atomic_load(&c->ending)) { /* else: late, discarded */
+    c->in_sample_bad_draws = t.bad_draws;
+    c->in_sample_bad_first = t.bad_draw_first;
+    c->in_sample_bad_column = t.bad_draw_column;
+    atomic_store(&c->in_sample_satisfied, t.satisfied);
+    atomic_store(&c->in_sample_count, t.n);
+    atomic_store(&c->in_sample_whole, ok);
+  }
+  pthread_mutex_unlock(&c->merge_mu);
+  fg_tally_free(&t);
+  return ok;
+}
+
+/* Under merge_mu: merge every chunk result that is next in order. */
+static void merge_ready(struct fg_check *c) {
+  uint64_t merged = atomic_load(&c->merged_chunks);
+  while (merged < c->nchunks && !atomic_load(&c->frozen)) {
+    int s = (int)(merged % (uint64_t)c->window);
+    if (!c->ready[s]) break;
+    fg_tally_merge(&c->total, &c->slots[s]);
+    fg_check_merged_chunk_locked(c, merged, &c->slots[s]);
+    c->ready[s] = false;
+    merged++;
+    atomic_store(&c->merged_chunks, merged);
+    if (c->req.stop_early && fg_check_look_locked(c)) {
+      atomic_store(&c->stopped_early, merged < c->nchunks);
+      atomic_store(&c->frozen, true);
+    }
+  }
+  fg_check_publish_progress(c);
 }
 
 static void *worker_main(void *arg) {
   fg_pool *pool = arg;
+  int me = -1;
   fg_eval_ctx ctx = {0};
   struct fg_check *cur = NULL; /* check ctx was prepared for (ref held) */
   pthread_mutex_lock(&pool->mu);
+  for (int i = 0; i < pool->nworkers; i++)
+    if (pthread_equal(pool->threads[i], pthread_self())) me = i;
   for (;;) {
     struct fg_check *c;
     while (!(c = next_claimable(pool)) && !pool->stopping)
       pthread_cond_wait(&pool->work_cv, &pool->mu);
     if (!c) break;
-    uint64_t idx = c->next_chunk++;
+    bool in_sample = c->in_sample_task == 1;
+    uint64_t idx = 0;
+    if (in_sample)
+      c->in_sample_task = 2;
+    else
+      idx = c->next_chunk++;
     c->active++;
-    if (c->state == FG_CHECK_QUEUED) c->state = FG_CHECK_RUNNING;
-    pool->busy++;
+    int expect = FG_CHECK_QUEUED;
+    atomic_compare_exchange_strong(&c->state, &expect, FG_CHECK_RUNNING);
+    atomic_fetch_add(&pool->busy, 1);
     atomic_fetch_add(&c->refs, 1);
     pthread_mutex_unlock(&pool->mu);
 
@@ -177,52 +275,108 @@ static void *worker_main(void *arg) {
       atomic_fetch_add(&c->refs, 1);
       ok = fg_eval_ctx_prepare(&ctx, c) == FG_OK;
     }
-    int slot = (int)(idx % (uint64_t)c->window);
-    fg_tally *t = &c->slots[slot];
-    fg_tally_reset(t);
-    uint64_t first, count;
-    fg_check_chunk_range(c, idx, &first, &count);
-    if (ok)
-      ok = fg_engine_run_range(c, ctx.sscratch, ctx.regs, ctx.excess,
-                               ctx.scratch, c->req.seed, FG_STREAM_VALIDATION,
-                               first, count,
-                               t, &c->cancel_flag, &c->timeout_flag,
-                               c->outcomes);
+    if (in_sample) {
+      if (ok) ok = run_in_sample(&ctx, c);
+    } else {
+      int slot = (int)(idx % (uint64_t)c->window);
+      fg_tally *t = &c->slots[slot];
+      fg_tally_reset(t);
+      uint64_t first, count;
+      fg_check_chunk_range(c, idx, &first, &count);
+      if (ok)
+        ok = fg_engine_run_range(c, ctx.sscratch, ctx.regs, ctx.excess,
+                                 ctx.scratch, c->req.seed,
+                                 FG_STREAM_VALIDATION, first, count, t,
+                                 &c->cancel_flag, &c->timeout_flag,
+                                 c->outcomes);
+      if (ok) {
+        pthread_mutex_lock(&c->merge_mu);
+        if (!atomic_load(&c->ending)) { /* else: late, discarded */
+          c->ready[slot] = true;
+          merge_ready(c);
+        }
+        pthread_mutex_unlock(&c->merge_mu);
+      }
+    }
 
     pthread_mutex_lock(&pool->mu);
-    pool->busy--;
+    atomic_fetch_sub(&pool->busy, 1);
     c->active--;
-    if (ok) {
-      c->ready[slot] = true;
-      while (c->merged_chunks < c->nchunks && !c->frozen) {
-        int s = (int)(c->merged_chunks % (uint64_t)c->window);
-        if (!c->ready[s]) break;
-        fg_tally_merge(&c->total, &c->slots[s]);
-        fg_check_merged_chunk_locked(c, c->merged_chunks, &c->slots[s]);
-        c->ready[s] = false;
-        c->merged_chunks++;
-        if (c->req.stop_early && fg_check_look_locked(c)) {
-          c->frozen = true;
-          c->stop = true;
-          c->stopped_early = c->merged_chunks < c->nchunks;
-        }
-      }
-    } else {
-      c->stop = true;
-    }
-    maybe_end(pool, c);
+    if (in_sample) c->in_sample_task = 3;
+    if (!ok || atomic_load(&c->frozen)) set_stop(c);
+    bool fin = claim_end(pool, c, false);
     pthread_cond_broadcast(&pool->work_cv);
-    if (c->state != FG_CHECK_QUEUED && c->state != FG_CHECK_RUNNING &&
-        cur == c) {
+    if (fin) {
+      pthread_mutex_unlock(&pool->mu);
+      fg_check_finish(c);
+      pthread_mutex_lock(&pool->mu);
+    }
+    if (atomic_load(&c->ending) && cur == c) {
       /* Ended: let its memory go now rather than at the next switch. */
+      pthread_mutex_unlock(&pool->mu);
       fg_check_unref(cur);
       cur = NULL;
+      fg_check_unref(c); /* the task's reference */
+      pthread_mutex_lock(&pool->mu);
+      continue;
     }
-    fg_check_unref(c); /* the chunk's reference */
+    pthread_mutex_unlock(&pool->mu);
+    fg_check_unref(c); /* the task's reference */
+    pthread_mutex_lock(&pool->mu);
   }
+  if (me >= 0) pool->exited[me] = true;
+  pthread_cond_broadcast(&pool->exit_cv);
   pthread_mutex_unlock(&pool->mu);
   if (cur) fg_check_unref(cur);
   fg_eval_ctx_free(&ctx);
+  return NULL;
+}
+
+static void deadline_in(struct timespec *ts, double seconds) {
+  clock_gettime(CLOCK_REALTIME, ts);
+  double whole = floor(seconds);
+  ts->tv_sec += (time_t)whole;
+  ts->tv_nsec += (long)((seconds - whole) * 1e9);
+  if (ts->tv_nsec >= 1000000000L) {
+    ts->tv_sec++;
+    ts->tv_nsec -= 1000000000L;
+  }
+}
+
+/* Checks the clock ends in one round, at most (the rest wait a round). */
+#define CLOCK_BATCH 64
+
+/* The pool's clock: deadlines and stuck workers. */
+static void *clock_main(void *arg) {
+  fg_pool *pool = arg;
+  pthread_mutex_lock(&pool->mu);
+  while (!pool->clock_stop) {
+    struct fg_check *end[CLOCK_BATCH];
+    int nend = 0;
+    double now = fg_time_monotonic();
+    for (struct fg_check *c = pool->head, *n; c && nend < CLOCK_BATCH; c = n) {
+      n = c->next_in_pool;
+      if (c->deadline > 0 && now > c->deadline &&
+          !atomic_load(&c->timeout_flag) && !atomic_load(&c->cancel_flag)) {
+        atomic_store(&c->timeout_flag, true);
+        set_stop(c);
+      }
+      if (!c->stop) continue;
+      bool stuck = c->active > 0 && now - c->stop_at >= FG_STUCK_WORKER_S;
+      if (claim_end(pool, c, stuck)) end[nend++] = c;
+    }
+    if (nend > 0) {
+      pthread_cond_broadcast(&pool->work_cv);
+      pthread_mutex_unlock(&pool->mu);
+      for (int i = 0; i < nend; i++) fg_check_finish(end[i]);
+      pthread_mutex_lock(&pool->mu);
+      continue;
+    }
+    struct timespec ts;
+    deadline_in(&ts, FG_POOL_CLOCK_MS / 1000.0);
+    pthread_cond_timedwait(&pool->clock_cv, &pool->mu, &ts);
+  }
+  pthread_mutex_unlock(&pool->mu);
   return NULL;
 }
 
@@ -244,45 +398,104 @@ fg_status fg_pool_new(int workers, int chunk, int queue, fg_pool **out,
   if (!pool) return fg_problem_set(p, FG_ENOMEM, "out of memory");
   pthread_mutex_init(&pool->mu, NULL);
   pthread_cond_init(&pool->work_cv, NULL);
+  pthread_cond_init(&pool->exit_cv, NULL);
+  pthread_cond_init(&pool->clock_cv, NULL);
+  atomic_init(&pool->nchecks, 0);
+  atomic_init(&pool->busy, 0);
   pool->nworkers = workers;
   pool->chunk = chunk;
   pool->queue_cap = queue;
   pool->threads = calloc((size_t)workers, sizeof *pool->threads);
-  if (!pool->threads) {
+  pool->exited = calloc((size_t)workers, sizeof *pool->exited);
+  if (!pool->threads || !pool->exited) {
     fg_pool_free(pool);
     return fg_problem_set(p, FG_ENOMEM, "out of memory");
   }
+  /* Workers look themselves up in pool->threads: start them under mu. */
+  pthread_mutex_lock(&pool->mu);
   for (int i = 0; i < workers; i++) {
     if (pthread_create(&pool->threads[i], NULL, worker_main, pool) != 0) {
+      pthread_mutex_unlock(&pool->mu);
       fg_pool_free(pool);
       return fg_problem_set(p, FG_EIO, "cannot start worker thread %d", i);
     }
     pool->nthreads_started++;
   }
+  pthread_mutex_unlock(&pool->mu);
+  if (pthread_create(&pool->clock, NULL, clock_main, pool) != 0) {
+    fg_pool_free(pool);
+    return fg_problem_set(p, FG_EIO, "cannot start the pool's clock thread");
+  }
+  pool->clock_started = true;
   *out = pool;
   return FG_OK;
 }
+
+/* Pools left to stuck workers at exit: kept reachable on purpose (a
+ * stuck thread may still touch its pool); freed by the process's end. */
+#define ABANDONED_MAX 8
+static fg_pool *abandoned[ABANDONED_MAX];
+static atomic_int nabandoned;
 
 void fg_pool_free(fg_pool *pool) {
   if (!pool) return;
   pthread_mutex_lock(&pool->mu);
   pool->stopping = true;
-  for (struct fg_check *c = pool->head; c; c = c->next_in_pool) {
-    atomic_store(&c->cancel_flag, true);
-    c->stop = true;
-  }
-  /* Checks nobody works on end now; the others end when their worker
-   * returns. */
+  struct fg_check *end[CLOCK_BATCH];
+  int nend = 0;
   for (struct fg_check *c = pool->head, *n; c; c = n) {
     n = c->next_in_pool;
-    maybe_end(pool, c);
+    atomic_store(&c->cancel_flag, true);
+    set_stop(c);
+    /* Checks nobody works on end now; the others when their worker
+     * returns, or by the clock when it is stuck. */
+    if (nend < CLOCK_BATCH && claim_end(pool, c, false)) end[nend++] = c;
   }
   pthread_cond_broadcast(&pool->work_cv);
+  pthread_cond_signal(&pool->clock_cv);
   pthread_mutex_unlock(&pool->mu);
-  for (int i = 0; i < pool->nthreads_started; i++)
-    pthread_join(pool->threads[i], NULL);
+  for (int i = 0; i < nend; i++) fg_check_finish(end[i]);
+
+  /* Wait for the workers to leave, bounded. */
+  pthread_mutex_lock(&pool->mu);
+  struct timespec ts;
+  deadline_in(&ts, FG_POOL_EXIT_WAIT_S);
+  int left;
+  for (;;) {
+    left = 0;
+    for (int i = 0; i < pool->nthreads_started; i++) left += !pool->exited[i];
+    if (left == 0) break;
+    if (pthread_cond_timedwait(&pool->exit_cv, &pool->mu, &ts) != 0) break;
+  }
+  /* Whatever is still listed has a stuck worker: end it now. */
+  nend = 0;
+  for (struct fg_check *c = pool->head, *n; c && nend < CLOCK_BATCH; c = n) {
+    n = c->next_in_pool;
+    if (claim_end(pool, c, true)) end[nend++] = c;
+  }
+  pool->clock_stop = true;
+  pthread_cond_signal(&pool->clock_cv);
+  bool exited[FG_WORKERS_MAX];
+  for (int i = 0; i < pool->nthreads_started; i++) exited[i] = pool->exited[i];
+  pthread_mutex_unlock(&pool->mu);
+  for (int i = 0; i < nend; i++) fg_check_finish(end[i]);
+  if (pool->clock_started) pthread_join(pool->clock, NULL);
+  for (int i = 0; i < pool->nthreads_started; i++) {
+    if (exited[i])
+      pthread_join(pool->threads[i], NULL);
+    else
+      pthread_detach(pool->threads[i]);
+  }
+  if (left > 0) {
+    int k = atomic_fetch_add(&nabandoned, 1);
+    if (k < ABANDONED_MAX) abandoned[k] = pool;
+    return; /* the stuck workers keep the pool */
+  }
   free(pool->threads);
+  free(pool->exited);
   pthread_cond_destroy(&pool->work_cv);
+  pthread_cond_destroy(&pool->exit_cv);
+  pthread_cond_destroy(&pool->clock_cv);
   pthread_mutex_destroy(&pool->mu);
   free(pool);
 }
@@ -291,18 +504,11 @@ int fg_pool_workers(const fg_pool *pool) {
   return pool->nworkers;
 }
 
+/* Probes and metrics: atomics, never the pool's lock. */
 int fg_pool_busy(const fg_pool *pool) {
-  fg_pool *pp = (fg_pool *)pool;
-  pthread_mutex_lock(&pp->mu);
-  int b = pp->busy;
-  pthread_mutex_unlock(&pp->mu);
-  return b;
+  return atomic_load(&((fg_pool *)pool)->busy);
 }
 
 int fg_pool_queued(const fg_pool *pool) {
-  fg_pool *pp = (fg_pool *)pool;
-  pthread_mutex_lock(&pp->mu);
-  int n = pp->nchecks;
-  pthread_mutex_unlock(&pp->mu);
-  return n;
+  return atomic_load(&((fg_pool *)pool)->nchecks);
 }

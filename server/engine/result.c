@@ -7,7 +7,10 @@
  * one) are JSON null, never NaN. Rows are listed worst first (highest
  * violation probability, ties by mean excess).
  *
- * Thread use: any thread; takes the check's lock while reading.
+ * Thread use: any thread, without a lock: a running check's figures come
+ * from its published progress snapshot (the interval computed here, by
+ * the reader), an ended check's from its final figures, published before
+ * its end state (engine_internal.h).
  */
 #include "engine/engine_internal.h"
 
@@ -41,10 +44,10 @@ static cJSON *interval_json(fg_interval iv, const char *method) {
  * Clopper-Pearson interval; no verdict yet) and the same figures as
  * "progress", with how far it has come. */
 static void add_running(cJSON *o, struct fg_check *c) {
-  uint64_t n = c->total.n, k = c->total.satisfied;
+  uint64_t n, k;
+  fg_check_progress(c, &n, &k);
   double pr = n ? (double)k / (double)n : NAN;
-  fg_interval iv = n ? fg_interval_clopper_pearson(k, n, c->req.confidence)
-                     : (fg_interval){0.0, 1.0};
+  fg_interval iv = fg_check_live_interval(c, k, n);
   cJSON *j = cJSON_AddObjectToObject(o, "joint");
   cJSON_AddNumberToObject(j, "samples", (double)n);
   cJSON_AddNumberToObject(j, "satisfied", (double)k);
@@ -211,16 +214,17 @@ static void add_numeric(cJSON *o, struct fg_check *c, bool ended) {
 cJSON *fg_check_result_json(fg_check *c, const fg_check_meta *meta) {
   cJSON *o = cJSON_CreateObject();
   if (!o) return NULL;
-  fg_check_lock(c);
-  bool ended = c->state != FG_CHECK_QUEUED && c->state != FG_CHECK_RUNNING;
+  /* One load of the state: the body is all running or all final. */
+  fg_check_state state = fg_check_get_state(c);
+  bool ended = fg_check_state_is_end(state);
   if (meta && meta->id) cJSON_AddStringToObject(o, "id", meta->id);
-  cJSON_AddStringToObject(o, "status", fg_check_state_name(c->state));
+  cJSON_AddStringToObject(o, "status", fg_check_state_name(state));
   cJSON *mo = cJSON_AddObjectToObject(o, "model");
   cJSON_AddStringToObject(mo, "name", c->model->name);
   if (meta && meta->model_version > 0)
     cJSON_AddNumberToObject(mo, "version", meta->model_version);
   cJSON_AddStringToObject(mo, "digest", c->model->digest);
-  if (ended && c->state == FG_CHECK_DONE)
+  if (ended && state == FG_CHECK_DONE)
     cJSON_AddStringToObject(o, "verdict", fg_verdict_name(c->verdict));
   else cJSON_AddNullToObject(o, "verdict");
   cJSON_AddNumberToObject(o, "target", c->req.target);
@@ -289,7 +293,9 @@ cJSON *fg_check_result_json(fg_check *c, const fg_check_meta *meta) {
     }
   }
 
-  if (c->has_in_sample) {
+  /* Shown once evaluated (it is the check's first task; a cancelled one
+   * shows what was evaluated before the cancel). */
+  if (c->has_in_sample && c->in_sample_count > 0) {
     cJSON *is = cJSON_AddObjectToObject(o, "in_sample");
     add_u64(is, "seed", c->req.in_sample_seed);
     cJSON_AddNumberToObject(is, "count", (double)c->in_sample_count);
@@ -315,6 +321,5 @@ cJSON *fg_check_result_json(fg_check *c, const fg_check_meta *meta) {
   if (c->req.label[0]) cJSON_AddStringToObject(o, "label", c->req.label);
   else cJSON_AddNullToObject(o, "label");
   if (meta && meta->key) cJSON_AddStringToObject(o, "key", meta->key);
-  fg_check_unlock(c);
   return o;
 }

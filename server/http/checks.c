@@ -13,15 +13,15 @@
  *      the request (fg_request_parse: pointers for every fault);
  *   3. 409 when expect_digest names another digest;
  *   4. draw a seed when none was given, so the log can replay the check;
- *   5. record the check as `running` in the store -- before any work, so a
- *      crash from here on leaves a record that the next start-up marks
- *      `interrupted`;
- *   6. queue it on the pool (503 + Retry-After when the queue is full:
- *      checked before step 5 too, so a refused check normally leaves no
- *      record; one refused by the pool after all is closed as `failed`);
- *   7. wait up to wait_s: ended -> record the result, 201 + Location;
- *      still running -> 202 with the running body, and the registry
- *      (registry.c) records it when it ends.
+ *   5. fg_job_start (lifecycle.c): record the check as `running` in the
+ *      store -- before any work, so a crash from here on leaves a record
+ *      that the next start-up marks `interrupted` -- then queue it on the
+ *      pool (503 + Retry-After when the queue is full: checked before too,
+ *      so a refused check normally leaves no record; one refused by the
+ *      pool after all is closed as `failed`);
+ *   6. wait up to wait_s: ended -> record the end (fg_job_record_end),
+ *      201 + Location; still running -> 202 with the running body, and
+ *      the registry's watcher records it when it ends.
  *
  * Check ids: "chk_" + 26 Crockford base32 characters of a 128-bit value,
  * 48 bits of Unix milliseconds then 80 random bits. Ids made in the same
@@ -29,8 +29,8 @@
  * sort in creation order and the list cursor can be an id. The generator's
  * last value is the one piece of process-wide state here (mutex-guarded).
  *
- * Thread use: handlers on connection threads; fg_http_record_end also on
- * the registry's watcher thread.
+ * Thread use: handlers on connection threads. The life of a check itself
+ * (record, queue, end, record) is lifecycle.c's.
  */
 #include "http/http_internal.h"
 #include "http/metrics.h"
@@ -52,7 +52,7 @@ static pthread_mutex_t id_lock = PTHREAD_MUTEX_INITIALIZER;
 static uint64_t id_last_ms;
 static uint8_t id_last_rand[10];
 
-void fg_http_check_id(char out[40]) {
+void fg_http_new_id(const char *prefix, char out[40]) {
   struct timespec ts;
   clock_gettime(CLOCK_REALTIME, &ts);
   uint64_t ms = (uint64_t)ts.tv_sec * 1000u + (uint64_t)ts.tv_nsec / 1000000u;
@@ -79,7 +79,7 @@ void fg_http_check_id(char out[40]) {
     bytes[i] = (uint8_t)(ms >> (8 * (5 - i)));
   memcpy(bytes + 6, rnd, sizeof rnd);
   /* 26 groups of 5 bits over 130 bits: two zero bits, then the 128. */
-  memcpy(out, "chk_", 4);
+  memcpy(out, prefix, 4);
   for (int k = 0; k < 26; k++) {
     int v = 0;
     for (int b = k * 5 - 2; b < k * 5 + 3; b++) {
@@ -91,22 +91,18 @@ void fg_http_check_id(char out[40]) {
   out[30] = '\0';
 }
 
-static bool is_check_id(const char *s) {
-  if (strncmp(s, "chk_", 4) != 0 || strlen(s) != 30) return false;
+void fg_http_check_id(char out[40]) {
+  fg_http_new_id("chk_", out);
+}
+
+bool fg_http_is_id(const char *prefix, const char *s) {
+  if (strncmp(s, prefix, 4) != 0 || strlen(s) != 30) return false;
   for (int i = 4; i < 30; i++)
     if (!strchr(crockford, s[i]) || s[i] == '\0') return false;
   return true;
 }
 
 /* ---- result bodies and records ---- */
-
-static double number_at(const cJSON *o, const char *a, const char *b,
-                        const char *c) {
-  const cJSON *v = cJSON_GetObjectItemCaseSensitive(o, a);
-  if (b) v = cJSON_GetObjectItemCaseSensitive(v, b);
-  if (c) v = cJSON_GetObjectItemCaseSensitive(v, c);
-  return cJSON_IsNumber(v) ? v->valuedouble : NAN;
-}
 
 static void add_number_or_null(cJSON *o, const char *name, double v) {
   if (isfinite(v))
@@ -161,90 +157,6 @@ static cJSON *check_summary(const fg_store_check *c) {
   return o;
 }
 
-fg_status fg_http_record_end(fg_store *store, fg_check *c,
-                             const fg_store_check *rec, cJSON **body,
-                             fg_problem *p) {
-  return fg_http_record_end_keep(store, c, rec, body, NULL, p);
-}
-
-fg_status fg_http_record_end_keep(fg_store *store, fg_check *c,
-                                  const fg_store_check *rec, cJSON **body,
-                                  fg_store_check **unsaved, fg_problem *p) {
-  if (body) *body = NULL;
-  if (unsaved) *unsaved = NULL;
-  char finished[32];
-  fg_time_now_rfc3339(finished, sizeof finished);
-  fg_check_meta meta = {.id = rec->id,
-                        .model_version = rec->version,
-                        .created_at = rec->created_at,
-                        .finished_at = finished,
-                        .key = rec->key[0] ? rec->key : NULL};
-  cJSON *res = fg_check_result_json(c, &meta);
-
-  fg_store_check fin = *rec;
-  fin.request = NULL;
-  fin.result = NULL;
-  snprintf(fin.finished_at, sizeof fin.finished_at, "%s", finished);
-  fg_check_state state = fg_check_get_state(c);
-  const cJSON *s = cJSON_GetObjectItemCaseSensitive(res, "status");
-  snprintf(fin.status, sizeof fin.status, "%s",
-           cJSON_IsString(s) ? s->valuestring : fg_check_state_name(state));
-  const cJSON *vd = cJSON_GetObjectItemCaseSensitive(res, "verdict");
-  if (cJSON_IsString(vd))
-    snprintf(fin.verdict, sizeof fin.verdict, "%s", vd->valuestring);
-  else if (!res && state == FG_CHECK_DONE)
-    snprintf(fin.verdict, sizeof fin.verdict, "%s",
-             fg_verdict_name(fg_check_get_verdict(c)));
-  else
-    fin.verdict[0] = '\0';
-  fin.probability = number_at(res, "joint", "probability", NULL);
-  fin.lower = number_at(res, "joint", "interval", "lower");
-  fin.upper = number_at(res, "joint", "interval", "upper");
-  fin.elapsed_ms = number_at(res, "elapsed_ms", NULL, NULL);
-  fin.result = res ? cJSON_PrintUnformatted(res) : NULL;
-
-  fg_status st = fg_store_finish_check(store, &fin, p);
-  if (st != FG_OK && unsaved && fin.result &&
-      (*unsaved = malloc(sizeof **unsaved)) != NULL) {
-    **unsaved = fin; /* takes the result text */
-    fin.result = NULL;
-  }
-  free(fin.result);
-  fg_metrics_check_ended(fin.status, fin.verdict,
-                         number_at(res, "joint", "samples", NULL),
-                         fin.elapsed_ms / 1000.0);
-
-  cJSON *ev = cJSON_CreateObject();
-  if (ev) {
-    cJSON_AddStringToObject(ev, "event", "check");
-    cJSON_AddStringToObject(ev, "id", rec->id);
-    cJSON_AddStringToObject(ev, "model", rec->model);
-    cJSON_AddNumberToObject(ev, "version", rec->version);
-    cJSON_AddStringToObject(ev, "digest", rec->digest);
-    cJSON_AddStringToObject(ev, "status", fin.status);
-    add_string_or_null(ev, "verdict", fin.verdict);
-    add_number_or_null(ev, "probability", fin.probability);
-    cJSON *iv = cJSON_AddArrayToObject(ev, "interval");
-    if (iv) {
-      cJSON_AddItemToArray(iv, isfinite(fin.lower)
-                                   ? cJSON_CreateNumber(fin.lower)
-                                   : cJSON_CreateNull());
-      cJSON_AddItemToArray(iv, isfinite(fin.upper)
-                                   ? cJSON_CreateNumber(fin.upper)
-                                   : cJSON_CreateNull());
-    }
-    add_number_or_null(ev, "samples", number_at(res, "joint", "samples", NULL));
-    add_number_or_null(ev, "elapsed_ms", fin.elapsed_ms);
-    if (st != FG_OK) cJSON_AddStringToObject(ev, "store_error", p->detail);
-    fg_log_emit(st == FG_OK ? FG_LOG_INFO : FG_LOG_ERROR, ev);
-  }
-  if (body)
-    *body = res;
-  else
-    cJSON_Delete(res);
-  return st;
-}
-
 /* ---- POST .../checks ---- */
 
 void fg_h_checks_create(fg_req *r, fg_resp *out) {
@@ -267,9 +179,7 @@ void fg_h_checks_create(fg_req *r, fg_resp *out) {
   fg_check_request req;
   memset(&req, 0, sizeof req);
   bool have_req = false;
-  fg_store_check rec;
-  memset(&rec, 0, sizeof rec);
-  fg_check *c = NULL;
+  fg_job *job = NULL;
 
   if (!fg_http_load_target(r, name, version, "check",
                            "a check request object with at least "
@@ -305,59 +215,30 @@ void fg_h_checks_create(fg_req *r, fg_resp *out) {
     goto done;
   }
   req.max_seconds = srv->cfg.max_check_s;
-  if (fg_http_record_start(srv->store, &v, m, &req, r->key_name, &rec, &p) !=
-      FG_OK) {
+  if (fg_job_start(srv, &v, m, &req, r->key_name, NULL, &job, &p) != FG_OK) {
     fg_resp_problem(out, &p, 0);
     goto done;
   }
-  if (fg_check_start(srv->pool, m, &req, &c, &p) != FG_OK) {
-    fg_http_record_unstarted(srv->store, &rec);
-    fg_resp_problem(out, &p, 0);
-    goto done;
-  }
-  /* Listed at once, so that DELETE finds it while this handler waits. */
-  if (fg_registry_watch(srv->registry, c, &rec, &p) != FG_OK) {
-    fg_check_cancel(c);
-    fg_check_wait(c, -1);
+  snprintf(out->location, sizeof out->location, "/v1/checks/%s",
+           fg_job_id(job));
+  if (fg_job_wait(job, req.wait_s)) {
     fg_problem sp;
     fg_problem_init(&sp);
-    fg_http_record_end(srv->store, c, &rec, NULL, &sp);
-    fg_check_unref(c);
-    fg_resp_problem(out, &p, 0);
-    goto done;
-  }
-  snprintf(out->location, sizeof out->location, "/v1/checks/%s", rec.id);
-  if (fg_check_wait(c, req.wait_s)) {
-    cJSON *body = NULL;
-    fg_problem sp;
-    fg_problem_init(&sp);
-    fg_status st = fg_http_record_end(srv->store, c, &rec, &body, &sp);
-    fg_registry_drop(srv->registry, rec.id);
-    fg_check_unref(c);
-    c = NULL;
-    if (st != FG_OK) {
-      cJSON_Delete(body);
+    if (fg_job_record_end(job, &sp) != FG_OK) {
       out->location[0] = '\0';
       fg_resp_problem(out, &sp, 0);
       goto done;
     }
-    fg_resp_json(out, 201, body);
+    fg_job_answer(job, 201, out);
     goto done;
   }
-  /* Still running: answer 202 with the running body, hand it over. */
-  fg_check_meta meta = {.id = rec.id,
-                        .model_version = rec.version,
-                        .created_at = rec.created_at,
-                        .finished_at = NULL,
-                        .key = rec.key[0] ? rec.key : NULL};
-  cJSON *running = fg_check_result_json(c, &meta);
-  fg_registry_hand_over(srv->registry, rec.id); /* it records the end */
-  fg_check_unref(c);
-  c = NULL;
-  fg_resp_json(out, 202, running);
+  /* Still running: answer 202 with the running body; the registry's
+   * watcher records its end. */
+  fg_job_detach(job);
+  fg_job_answer(job, 202, out);
 
 done:
-  free(rec.request);
+  fg_job_unref(job);
   if (have_req) fg_request_free(&req);
   cJSON_Delete(json);
   fg_model_unref(m);
@@ -386,7 +267,7 @@ static cJSON *stored_body(const fg_store_check *c) {
   char seed[24]; /* as integer text: doubles print 2^53 in exponent form */
   snprintf(seed, sizeof seed, "%llu", (unsigned long long)c->seed);
   cJSON_AddRawToObject(o, "seed", seed);
-  if (strcmp(c->status, "running") == 0) {
+  if (fg_check_state_parse(c->status) == FG_CHECK_RUNNING) {
     /* Running in another replica that has not noted its progress yet (it
      * does within FG_REGISTRY_PROGRESS_MS of the start): nothing merged
      * is known here. */
@@ -398,6 +279,11 @@ static cJSON *stored_body(const fg_store_check *c) {
     }
   }
   return o;
+}
+
+cJSON *fg_http_stored_check_body(const fg_store_check *c) {
+  cJSON *o = c->result ? cJSON_Parse(c->result) : NULL;
+  return o ? o : stored_body(c);
 }
 
 /* Answers 200 with the stored result body of `c`, sent as stored (the
@@ -415,9 +301,10 @@ static bool send_stored_result(fg_resp *out, fg_store_check *c) {
 
 void fg_h_check_get(fg_req *r, fg_resp *out) {
   const char *id = r->params[0];
-  cJSON *live = fg_registry_live_json(r->srv->registry, id);
-  if (live) {
-    fg_resp_json(out, 200, live);
+  fg_job *job = fg_registry_find(r->srv->registry, id);
+  if (job) {
+    fg_job_answer(job, 200, out);
+    fg_job_unref(job);
     return;
   }
   fg_problem p;
@@ -428,16 +315,17 @@ void fg_h_check_get(fg_req *r, fg_resp *out) {
     return;
   }
   /* A check is recorded as running a moment before it is listed in the
-   * registry (record, start, watch). A GET in that gap would get the
+   * registry (record, start, list). A GET in that gap would get the
    * stored body without progress; look again for a short while. */
-  if (strcmp(c.status, "running") == 0) {
+  if (fg_check_state_parse(c.status) == FG_CHECK_RUNNING) {
     for (int i = 0; i < FG_HTTP_LIVE_RETRIES; i++) {
       struct timespec ts = {0, 2 * 1000 * 1000};
       nanosleep(&ts, NULL);
-      live = fg_registry_live_json(r->srv->registry, id);
-      if (live) {
+      job = fg_registry_find(r->srv->registry, id);
+      if (job) {
         fg_store_check_clear(&c);
-        fg_resp_json(out, 200, live);
+        fg_job_answer(job, 200, out);
+        fg_job_unref(job);
         return;
       }
     }
@@ -448,16 +336,42 @@ void fg_h_check_get(fg_req *r, fg_resp *out) {
 
 /* ---- DELETE /v1/checks/{id} ---- */
 
+/* Cancel a check this process runs: the engine ends it within one block,
+ * or within FG_STUCK_WORKER_S when a worker is stuck; its end is then
+ * recorded here (or was, by whoever came first). */
+static void cancel_here(fg_req *r, fg_job *job, fg_resp *out) {
+  const char *id = fg_job_id(job);
+  if (!fg_job_ended(job)) {
+    fg_job_cancel(job);
+    if (!fg_job_wait(job, FG_HTTP_CANCEL_WAIT_S)) {
+      fg_resp_error(out, 503, FG_EBUSY,
+                    "check %s was told to stop but has not stopped within "
+                    "%g s; GET it shortly",
+                    id, FG_HTTP_CANCEL_WAIT_S);
+      return;
+    }
+    fg_problem sp;
+    fg_problem_init(&sp);
+    if (fg_job_record_end(job, &sp) != FG_OK) {
+      fg_resp_problem(out, &sp, 0);
+      return;
+    }
+    fg_registry_poke(r->srv->registry);
+    if (fg_job_final_state(job) == FG_CHECK_CANCELLED) {
+      fg_job_answer(job, 200, out);
+      return;
+    }
+  }
+  fg_resp_error(out, 409, FG_ECONFLICT, "check %s is not running: it ended %s",
+                id, fg_check_state_name(fg_job_final_state(job)));
+}
 
 void fg_h_check_cancel(fg_req *r, fg_resp *out) {
   const char *id = r->params[0];
-  fg_registry_cancel_result res =
-      fg_registry_cancel(r->srv->registry, id, FG_HTTP_CANCEL_WAIT_S);
-  if (res == FG_REGISTRY_CANCEL_PENDING) {
-    fg_resp_error(out, 503, FG_EBUSY,
-                  "check %s was told to stop but has not stopped within %g s; "
-                  "GET it shortly",
-                  id, FG_HTTP_CANCEL_WAIT_S);
+  fg_job *job = fg_registry_find(r->srv->registry, id);
+  if (job) {
+    cancel_here(r, job, out);
+    fg_job_unref(job);
     return;
   }
   fg_problem p;
@@ -467,8 +381,8 @@ void fg_h_check_cancel(fg_req *r, fg_resp *out) {
     fg_resp_problem(out, &p, 0); /* 404 for an unknown id */
     return;
   }
-  if (res == FG_REGISTRY_NOT_HELD && strcmp(c.status, "running") == 0 &&
-      fg_store_shared(r->srv->store)) {
+  fg_check_state state = fg_check_state_parse(c.status);
+  if (state == FG_CHECK_RUNNING && fg_store_shared(r->srv->store)) {
     /* Running in another replica: ask it through the store, and wait for
      * the record to end. */
     fg_problem_init(&p);
@@ -478,7 +392,7 @@ void fg_h_check_cancel(fg_req *r, fg_resp *out) {
       return;
     }
     double until = fg_time_monotonic() + FG_HTTP_CANCEL_WAIT_S;
-    while (strcmp(c.status, "running") == 0 && fg_time_monotonic() < until) {
+    while (state == FG_CHECK_RUNNING && fg_time_monotonic() < until) {
       struct timespec ts = {0, 50 * 1000 * 1000};
       nanosleep(&ts, NULL);
       fg_store_check_clear(&c);
@@ -487,8 +401,9 @@ void fg_h_check_cancel(fg_req *r, fg_resp *out) {
         fg_resp_problem(out, &p, 0);
         return;
       }
+      state = fg_check_state_parse(c.status);
     }
-    if (strcmp(c.status, "running") == 0) {
+    if (state == FG_CHECK_RUNNING) {
       fg_store_check_clear(&c);
       fg_resp_error(out, 503, FG_EBUSY,
                     "check %s runs in another replica, which was asked to "
@@ -496,22 +411,21 @@ void fg_h_check_cancel(fg_req *r, fg_resp *out) {
                     id, FG_HTTP_CANCEL_WAIT_S);
       return;
     }
-    res = FG_REGISTRY_CANCELLED;
+    if (state == FG_CHECK_CANCELLED) {
+      if (!send_stored_result(out, &c))
+        fg_resp_json(out, 200, check_summary(&c));
+      fg_store_check_clear(&c);
+      return;
+    }
   }
-  if (res != FG_REGISTRY_CANCELLED || strcmp(c.status, "cancelled") != 0) {
-    /* Ended before the cancel reached it (or not running here at all). */
-    if (strcmp(c.status, "running") == 0)
-      fg_resp_error(out, 409, FG_ECONFLICT,
-                    "check %s is ending (or runs in another process) and "
-                    "can no longer be cancelled here",
-                    id);
-    else
-      fg_resp_error(out, 409, FG_ECONFLICT,
-                    "check %s is not running: it ended %s", id, c.status);
-    fg_store_check_clear(&c);
-    return;
-  }
-  if (!send_stored_result(out, &c)) fg_resp_json(out, 200, check_summary(&c));
+  if (state == FG_CHECK_RUNNING)
+    fg_resp_error(out, 409, FG_ECONFLICT,
+                  "check %s is ending (or runs in another process) and "
+                  "can no longer be cancelled here",
+                  id);
+  else
+    fg_resp_error(out, 409, FG_ECONFLICT,
+                  "check %s is not running: it ended %s", id, c.status);
   fg_store_check_clear(&c);
 }
 
@@ -648,7 +562,7 @@ void fg_h_checks_list(fg_req *r, fg_resp *out) {
     f.limit = (int)lim;
   }
   if (q.after) {
-    if (!is_check_id(q.after)) {
+    if (!fg_http_is_id("chk_", q.after)) {
       fg_resp_bad_param(out, "after",
                 "expected the id of the last check seen (chk_...), found "
                 "'%.40s'",

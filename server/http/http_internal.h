@@ -9,8 +9,9 @@
  *             one fg_resp,
  *   problem.c fg_problem -> RFC 9457 problem document, JSON responses,
  *   server.c  queues the fg_resp and writes the request log line (log.c).
- *   registry.c keeps checks that outlived their request's wait and records
- *             them when they end.
+ *   lifecycle.c the life of one check (id, record, queue, end, record);
+ *   comparison.c comparisons as detached jobs of several checks;
+ *   registry.c lists what runs here by id, and its watcher records ends.
  *
  * Ownership: an fg_req lives from the first call of the access handler to
  * MHD's completion callback; an fg_resp's body is malloc'd and handed to
@@ -156,20 +157,16 @@ void fg_h_checks_create(fg_req *r, fg_resp *out);
 void fg_h_check_get(fg_req *r, fg_resp *out);
 void fg_h_checks_list(fg_req *r, fg_resp *out);
 void fg_h_check_cancel(fg_req *r, fg_resp *out);
-/* A new time-sortable check id "chk_" + 26 base32 characters. */
+/* A new time-sortable id: `prefix` ("chk_", "cmp_") + 26 base32
+ * characters (out >= 40 bytes). */
+void fg_http_new_id(const char *prefix, char out[40]);
+/* A check id "chk_..." */
 void fg_http_check_id(char out[40]);
-/* Record the end of check `c` (status, verdict, estimate, result body) in
- * the store and log it; *body (if not NULL) receives the result body. */
-fg_status fg_http_record_end(fg_store *store, fg_check *c,
-                             const fg_store_check *rec, cJSON **body,
-                             fg_problem *p);
-/* The same; when the store write fails and `unsaved` is not NULL,
- * *unsaved receives a malloc'd copy of the final record (result text
- * included, free with fg_store_check_clear + free) to write again later
- * with fg_store_finish_check. */
-fg_status fg_http_record_end_keep(fg_store *store, fg_check *c,
-                                  const fg_store_check *rec, cJSON **body,
-                                  fg_store_check **unsaved, fg_problem *p);
+/* The body of a stored check: its result text, or one made from the row
+ * (interrupted, failed to start, or running in another replica). */
+cJSON *fg_http_stored_check_body(const fg_store_check *c);
+/* True when s is prefix + 26 Crockford base32 characters. */
+bool fg_http_is_id(const char *prefix, const char *s);
 
 /* ---- record.c ---- */
 /* The steps of POST .../checks and .../comparisons before the body is
@@ -187,51 +184,91 @@ bool fg_http_load_target(fg_req *r, const char *name, int version,
 bool fg_http_digest_agrees(const fg_check_request *req,
                            const fg_store_version *v, fg_problem *p,
                            fg_resp *out);
-/* Fill *rec for a check of version `v` about to start (new id, status
- * running, seed, label, the caller's key name -- "" or NULL when none --,
- * the replayable request) and put it in the store; rec->request is
- * malloc'd and the caller frees it. */
-fg_status fg_http_record_start(fg_store *store, const fg_store_version *v,
-                               const fg_model *m, const fg_check_request *req,
-                               const char *key, fg_store_check *rec,
-                               fg_problem *p);
-/* Close the record of a check the pool refused as `failed`. */
-void fg_http_record_unstarted(fg_store *store, const fg_store_check *rec);
 
-/* ---- compare.c ---- */
+/* ---- lifecycle.c: the life of one check (see its top comment) ----
+ * Locking rule: no lock that a reader, the metrics or the readiness probe
+ * needs is ever held across simulation, interval computation, JSON
+ * building or a store call. */
+typedef struct fg_job fg_job;
+/* New id, store row `running`, queued on the pool, listed in the
+ * registry. `comparison`: the id of the comparison it is a candidate of,
+ * or NULL. FG_EBUSY when the pool refuses it (its row is then closed
+ * `failed`). */
+fg_status fg_job_start(fg_server *srv, const fg_store_version *v, fg_model *m,
+                       const fg_check_request *req, const char *key,
+                       const char *comparison, fg_job **out, fg_problem *p);
+fg_job *fg_job_ref(fg_job *j);
+void fg_job_unref(fg_job *j);
+const char *fg_job_id(const fg_job *j);
+const char *fg_job_comparison(const fg_job *j);
+const fg_store_check *fg_job_row(const fg_job *j); /* the running row */
+fg_check *fg_job_check(fg_job *j);
+/* Has the engine ended it? Never blocks. */
+bool fg_job_ended(fg_job *j);
+/* Wait up to timeout_s (< 0: for ever) for the end; true when ended. */
+bool fg_job_wait(fg_job *j, double timeout_s);
+void fg_job_cancel(fg_job *j);
+fg_check_state fg_job_final_state(fg_job *j);
+/* Its request was answered before its end (counted as detached). */
+void fg_job_detach(fg_job *j);
+bool fg_job_detached(fg_job *j);
+/* Record the end once (store, metrics, log, from the engine's outcome);
+ * later calls give the first's status. Only after fg_job_ended. */
+fg_status fg_job_record_end(fg_job *j, fg_problem *p);
+bool fg_job_recorded(fg_job *j);
+bool fg_job_unsaved(fg_job *j); /* the store refused the end: kept */
+fg_status fg_job_retry_unsaved(fg_job *j, fg_problem *p);
+/* The body as GET shows it (the stored text once recorded, else live). */
+cJSON *fg_job_body(fg_job *j);
+/* The same as the answer `status` in *out. */
+void fg_job_answer(fg_job *j, int status, fg_resp *out);
+/* Called once (with no lock held, on the thread that records it) when the
+ * end is recorded -- at once when it already is. For a handler that
+ * suspends its connection instead of waiting: resume it from the hook,
+ * then fg_job_answer. One hook per job; a second call replaces it. */
+typedef void fg_job_hook(void *ctx);
+void fg_job_on_recorded(fg_job *j, fg_job_hook *hook, void *ctx);
+
+/* ---- comparison.c: comparisons as detached jobs ---- */
+typedef struct fg_comparison fg_comparison;
 void fg_h_comparisons_create(fg_req *r, fg_resp *out);
+void fg_h_comparison_get(fg_req *r, fg_resp *out);
+void fg_h_comparison_cancel(fg_req *r, fg_resp *out);
+fg_comparison *fg_comparison_ref(fg_comparison *c);
+void fg_comparison_unref(fg_comparison *c);
+const char *fg_comparison_id(const fg_comparison *c);
+/* Has every candidate ended and the comparison's result been stored?
+ * Never blocks. */
+bool fg_comparison_ended(fg_comparison *c);
+/* Watcher: when every candidate has ended, record them and the
+ * comparison; true when the comparison is stored (it may be unlisted). */
+bool fg_comparison_step(fg_comparison *c);
+/* The body as GET shows it (the stored text once stored, else live). */
+void fg_comparison_answer(fg_comparison *c, int status, fg_resp *out);
+/* As fg_job_on_recorded, once the comparison's result is stored. */
+void fg_comparison_on_stored(fg_comparison *c, fg_job_hook *hook, void *ctx);
 
 /* ---- sizes.c ---- */
 void fg_h_sample_size(fg_req *r, fg_resp *out);
 
-/* ---- registry.c ---- */
+/* ---- registry.c: what runs here, by id; the watcher ---- */
 fg_status fg_registry_new(fg_store *store, fg_registry **out, fg_problem *p);
-/* List a check just started whose handler waits for it (takes its own
- * reference): GET shows it live and fg_registry_cancel finds it, but the
- * watcher does not record it. The handler then calls exactly one of: */
-fg_status fg_registry_watch(fg_registry *g, fg_check *c,
-                            const fg_store_check *rec, fg_problem *p);
-/* ... the handler recorded its end: unlist it and drop the reference; */
-void fg_registry_drop(fg_registry *g, const char *id);
-/* ... it still runs after wait_s: the watcher records it when it ends. */
-void fg_registry_hand_over(fg_registry *g, const char *id);
-
-typedef enum fg_registry_cancel_result {
-  FG_REGISTRY_CANCELLED = 0,  /* cancelled; its end is in the store */
-  FG_REGISTRY_NOT_HELD,       /* no running check of that id here */
-  FG_REGISTRY_ENDED,          /* it had ended already */
-  FG_REGISTRY_CANCEL_PENDING  /* cancelled, not yet recorded in wait_s */
-} fg_registry_cancel_result;
-/* Cancel the running check `id` and wait up to wait_s for its end to be
- * recorded. */
-fg_registry_cancel_result fg_registry_cancel(fg_registry *g, const char *id,
-                                             double wait_s);
-/* The live result body of check `id`, or NULL when not held here. */
-cJSON *fg_registry_live_json(fg_registry *g, const char *id);
+/* List a job / a comparison (takes a reference) until its end is stored. */
+fg_status fg_registry_add(fg_registry *g, fg_job *j, fg_problem *p);
+fg_status fg_registry_add_comparison(fg_registry *g, fg_comparison *c,
+                                     fg_problem *p);
+/* Wake the watcher (something ended). */
+void fg_registry_poke(fg_registry *g);
+/* The listed job / comparison of `id` (a new reference), or NULL. */
+fg_job *fg_registry_find(fg_registry *g, const char *id);
+fg_comparison *fg_registry_find_comparison(fg_registry *g, const char *id);
+/* Running checks whose request was answered before their end. */
 int fg_registry_count(fg_registry *g);
 /* Ended checks whose end the store has not taken yet (retried). */
 int fg_registry_unsaved(fg_registry *g);
-/* Let held checks run up to grace_s, cancel the rest, record every one,
+/* Cancel every listed check still running (shutdown). */
+void fg_registry_cancel_all(fg_registry *g);
+/* Let listed checks run up to grace_s, cancel the rest, record every one,
  * stop the watcher thread. */
 void fg_registry_shutdown(fg_registry *g, double grace_s);
 void fg_registry_free(fg_registry *g);

@@ -17,6 +17,7 @@
  *   open     GET/HEAD /v1/health, /v1/ready, /metrics, /v1/openapi.json
  *   reader   every other GET/HEAD
  *   checker  POST checks and comparisons, GET scenarios, DELETE a check
+ *            or a comparison
  *   author   POST /v1/models, DELETE /v1/models/{name}
  *   admin    everything else (a method on a route not listed below)
  *   A route added to router.c without a line in `policy` is reader when
@@ -88,6 +89,8 @@ static const policy_entry policy[] = {
     {"POST", "/v1/models/{name}/versions/{n}/checks", FG_ROLE_CHECKER},
     {"POST", "/v1/models/{name}/comparisons", FG_ROLE_CHECKER},
     {"DELETE", "/v1/checks/{id}", FG_ROLE_CHECKER},
+    {"GET", "/v1/comparisons/{id}", FG_ROLE_READER},
+    {"DELETE", "/v1/comparisons/{id}", FG_ROLE_CHECKER},
     {"POST", "/v1/models", FG_ROLE_AUTHOR},
     {"DELETE", "/v1/models/{name}", FG_ROLE_AUTHOR},
 };

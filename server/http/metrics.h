@@ -12,7 +12,7 @@
  *
  * Hooks (one call each, so other code stays as it is):
  *   server.c  fg_metrics_request() where the request log line is written;
- *   checks.c  fg_metrics_check_ended() where a check's end is recorded.
+ *   lifecycle.c fg_metrics_check_ended() where a check's end is recorded.
  *
  * Thread use: fg_metrics_request, fg_metrics_check_ended and the handlers
  * from any thread; fg_metrics_start on the main thread at start-up.

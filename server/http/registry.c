@@ -1,41 +1,22 @@
 /*
- * http/registry.c -- checks that outlived their request's wait_s, and
- * checks whose request is still waiting for them (so that DELETE
- * /v1/checks/{id} and GET find every running check of this process).
+ * http/registry.c -- the checks and comparisons this process runs, by id,
+ * and the watcher thread that records their ends.
  *
- * Design: a list of held checks under one mutex, and one watcher thread.
- * The watcher wakes every FG_REGISTRY_POLL_MS (or when signalled), finds a
- * held check that has ended, records its end in the store
- * (fg_http_record_end) while the check is still listed -- so a GET in
- * between sees the live body, never a half-written record -- and only
- * then unlinks it and drops its reference. The store write happens outside
- * the registry mutex; the `recording` flag keeps the entry the watcher's
- * alone meanwhile.
+ * Design: every job (lifecycle.c) is listed from its start until its end
+ * is in the store, so GET /v1/checks/{id} answers live from it and DELETE
+ * finds it; every comparison (comparison.c) likewise until its result is
+ * stored. The watcher looks every FG_REGISTRY_POLL_MS for listed jobs the
+ * engine has ended and records them (fg_job_record_end: once, whoever is
+ * first -- the handler that waited, DELETE, or the watcher), unlists what
+ * is recorded, finishes comparisons whose candidates all ended
+ * (fg_comparison_step), and writes again every FG_REGISTRY_RETRY_MS the
+ * ends the store refused (a database outage loses no result while the
+ * process lives; GET answers from the kept end meanwhile).
  *
- * Waited entries (fg_registry_watch): the handler that started a check
- * lists it at once with its own reference and `waited` set; the watcher
- * leaves such an entry alone. The handler then either records the end
- * itself and drops the entry (fg_registry_drop), or answers 202 and hands
- * it over (fg_registry_hand_over: `waited` cleared, the watcher records
- * it). `count` counts held (handed-over) entries only, as before;
- * `nwaited` the others.
- *
- * Cancelling (fg_registry_cancel): find the entry, cancel the check, then
- * wait on `changed` until the entry is gone -- recorded by the watcher or
- * by its handler -- so the caller reads the cancelled record from the
- * store.
- *
- * Locking rule: `lock` guards the list, `count`, `nwaited`, `stop` and
- * every entry's `recording` and `waited`. A listed check's reference
- * belongs to the registry; live bodies are built under `lock`. Lock order:
- * registry lock, then the engine's pool lock (fg_check_*), never the
- * reverse.
- *
- * A failed store write of an end: the entry stays listed with its final
- * record (`unsaved`), GET answers from it, and the watcher writes it again
- * every FG_REGISTRY_RETRY_MS until the store takes it (a database outage
- * loses no result while the process lives); at shutdown, what is still
- * unsaved is logged.
+ * Locking rule: `lock` guards the two lists and `stop`, nothing else; no
+ * body is built, no interval computed and no store call made under it.
+ * Whoever needs an entry takes a reference under the lock and works after
+ * releasing it. The registry's lock is never held while taking a job's.
  *
  * Shared stores (PostgreSQL, several replicas): every
  * FG_REGISTRY_PROGRESS_MS the watcher also writes the live bodies of the
@@ -44,11 +25,13 @@
  * and the watcher cancels the checks another replica was asked to cancel
  * (fg_store_cancel_requests).
  *
- * Shutdown (fg_registry_shutdown, main thread): wait up to grace_s for held
- * checks to end, cancel the rest, wait up to FG_REGISTRY_CANCEL_WAIT_S for
- * them to stop and be recorded (as cancelled), then stop the watcher. A
- * check that still has not ended stays `running` in the store and is marked
- * `interrupted` at the next start-up.
+ * Shutdown (fg_registry_shutdown, main thread): wait up to grace_s for the
+ * listed jobs to end and be recorded, cancel the rest (the engine ends a
+ * cancelled check within FG_STUCK_WORKER_S even when a worker is stuck),
+ * wait up to FG_REGISTRY_CANCEL_WAIT_S for them to be recorded (as
+ * cancelled), then stop the watcher. A check whose end the store never
+ * took stays `running` there and is marked `interrupted` at the next
+ * start-up.
  *
  * Thread use: any thread; the watcher is internal.
  */
@@ -63,9 +46,10 @@
 /* How often the watcher looks for ended checks: a 202'd check is recorded
  * at most this late. */
 #define FG_REGISTRY_POLL_MS 50
-/* How long cancelled checks get to stop at shutdown: workers test the
- * cancel flag once per block, so this is generous. */
-#define FG_REGISTRY_CANCEL_WAIT_S 10.0
+/* How long cancelled checks get to be recorded at shutdown: the engine
+ * ends a cancelled check within FG_STUCK_WORKER_S whatever its workers
+ * do, and the store write follows. */
+#define FG_REGISTRY_CANCEL_WAIT_S (FG_STUCK_WORKER_S + 2.0)
 /* On a shared store (several replicas), how often the running checks'
  * bodies are written to the store so that another replica answers a GET
  * with progress at most this old. */
@@ -73,30 +57,23 @@
 /* How long after a failed store write of a check's end it is tried again
  * (the check stays listed, so GET still answers with its final body). */
 #define FG_REGISTRY_RETRY_MS 1000
-/* Running checks whose progress one round writes, at most. */
-#define FG_REGISTRY_PROGRESS_MAX 64
+/* Entries one round of the watcher handles, at most (the rest wait for
+ * the next round). */
+#define FG_REGISTRY_BATCH 64
 
-typedef struct fg_held {
-  struct fg_held *next;
-  fg_check *check;
-  fg_store_check rec; /* request and result are NULL */
-  bool recording;
-  bool waited; /* its handler records it; the watcher leaves it alone */
-  /* its end, when writing it to the store failed: written again every
-   * FG_REGISTRY_RETRY_MS until the store takes it */
-  fg_store_check *unsaved;
-  double retry_at; /* monotonic seconds */
-  int attempts;
-} fg_held;
+typedef struct fg_entry {
+  struct fg_entry *next;
+  fg_job *job; /* one of job or cmp */
+  fg_comparison *cmp;
+} fg_entry;
 
 struct fg_registry {
   fg_store *store;
   pthread_mutex_t lock;
   pthread_cond_t wake;    /* watcher: something to look at */
-  pthread_cond_t changed; /* shutdown: an entry went away */
-  fg_held *head;
-  int count;   /* held entries (not waited) */
-  int nwaited; /* waited entries */
+  pthread_cond_t changed; /* an entry went away */
+  fg_entry *head;
+  int njobs, ncmps;
   bool stop;
   pthread_t watcher;
   bool watcher_started;
@@ -113,187 +90,150 @@ static void deadline_in(struct timespec *ts, double seconds) {
   }
 }
 
-/* An ended entry not yet being recorded, or NULL. Called under lock. */
-static fg_held *find_ended(fg_registry *g) {
-  for (fg_held *e = g->head; e; e = e->next)
-    if (!e->recording && !e->waited && !e->unsaved &&
-        fg_check_wait(e->check, 0))
+static double now_s(void) {
+  return fg_time_monotonic();
+}
+
+static const char *entry_id(const fg_entry *e) {
+  return e->job ? fg_job_id(e->job) : fg_comparison_id(e->cmp);
+}
+
+/* Unlink the entry of `job` or `cmp` (under lock); the caller drops the
+ * reference it returns through *out. */
+static fg_entry *unlink_entry(fg_registry *g, const void *item) {
+  for (fg_entry **pp = &g->head; *pp; pp = &(*pp)->next) {
+    fg_entry *e = *pp;
+    if ((const void *)e->job == item || (const void *)e->cmp == item) {
+      *pp = e->next;
+      if (e->job)
+        g->njobs--;
+      else
+        g->ncmps--;
       return e;
-  return NULL;
-}
-
-static double now_s(void);
-
-/* An entry whose unsaved end is due for another try, or NULL. */
-static fg_held *find_due(fg_registry *g) {
-  double now = now_s();
-  for (fg_held *e = g->head; e; e = e->next)
-    if (e->unsaved && !e->recording && now >= e->retry_at) return e;
-  return NULL;
-}
-
-static void free_entry(fg_held *e) {
-  if (e->unsaved) {
-    fg_store_check_clear(e->unsaved);
-    free(e->unsaved);
+    }
   }
-  fg_check_unref(e->check);
+  return NULL;
+}
+
+static void drop_entry(fg_entry *e) {
+  if (!e) return;
+  fg_job_unref(e->job);
+  fg_comparison_unref(e->cmp);
   free(e);
 }
 
-static void unlink_entry(fg_registry *g, fg_held *target) {
-  for (fg_held **pp = &g->head; *pp; pp = &(*pp)->next) {
-    if (*pp == target) {
-      *pp = target->next;
-      if (target->waited)
-        g->nwaited--;
-      else
-        g->count--;
-      return;
-    }
-  }
+static void remove_item(fg_registry *g, const void *item) {
+  pthread_mutex_lock(&g->lock);
+  fg_entry *e = unlink_entry(g, item);
+  pthread_cond_broadcast(&g->changed);
+  pthread_mutex_unlock(&g->lock);
+  drop_entry(e);
 }
 
-/* The entry of check `id`, or NULL. Called under lock. */
-static fg_held *find_id(fg_registry *g, const char *id) {
-  for (fg_held *e = g->head; e; e = e->next)
-    if (strcmp(e->rec.id, id) == 0) return e;
-  return NULL;
-}
-
-static double now_s(void) {
-  struct timespec ts;
-  clock_gettime(CLOCK_MONOTONIC, &ts);
-  return (double)ts.tv_sec + ts.tv_nsec * 1e-9;
-}
-
-/* A running entry's live body (as GET gives it). Called under lock. */
-static cJSON *live_body(const fg_held *e) {
-  if (e->unsaved && e->unsaved->result) /* its final body, as it will be stored */
-    return cJSON_Parse(e->unsaved->result);
-  char ended_at[32] = "";
-  /* Ended but not yet recorded: the body is final, so it carries an end
-   * time (the record's may be later by the poll interval at most). */
-  if (fg_check_wait(e->check, 0))
-    fg_time_now_rfc3339(ended_at, sizeof ended_at);
-  fg_check_meta meta = {.id = e->rec.id,
-                        .model_version = e->rec.version,
-                        .created_at = e->rec.created_at,
-                        .finished_at = ended_at[0] ? ended_at : NULL,
-                        .key = e->rec.key[0] ? e->rec.key : NULL};
-  return fg_check_result_json(e->check, &meta);
-}
-
-/* Shared store: write the bodies of running checks (held and waited) so
- * that other replicas answer GET with progress. Entered and left under
- * lock; the writes happen outside it, on copies. */
+/* Shared store: write the bodies of running checks so that other
+ * replicas answer GET with progress, and cancel what they asked for. */
 static void note_progress(fg_registry *g) {
-  char ids[FG_REGISTRY_PROGRESS_MAX][40];
-  char *bodies[FG_REGISTRY_PROGRESS_MAX];
+  fg_job *jobs[FG_REGISTRY_BATCH];
   int n = 0;
-  for (fg_held *e = g->head; e && n < FG_REGISTRY_PROGRESS_MAX; e = e->next) {
-    if (e->recording || fg_check_wait(e->check, 0)) continue;
-    cJSON *body = live_body(e);
+  pthread_mutex_lock(&g->lock);
+  for (fg_entry *e = g->head; e && n < FG_REGISTRY_BATCH; e = e->next)
+    if (e->job && !fg_job_ended(e->job)) jobs[n++] = fg_job_ref(e->job);
+  pthread_mutex_unlock(&g->lock);
+  char ids[FG_REGISTRY_BATCH][40];
+  for (int i = 0; i < n; i++) {
+    snprintf(ids[i], sizeof ids[i], "%s", fg_job_id(jobs[i]));
+    cJSON *body = fg_job_body(jobs[i]);
     char *text = body ? cJSON_PrintUnformatted(body) : NULL;
     cJSON_Delete(body);
     if (!text) continue;
-    snprintf(ids[n], sizeof ids[n], "%s", e->rec.id);
-    bodies[n++] = text;
-  }
-  pthread_mutex_unlock(&g->lock);
-  for (int i = 0; i < n; i++) {
     fg_problem p;
     fg_problem_init(&p);
-    if (fg_store_note_progress(g->store, ids[i], bodies[i], &p) != FG_OK)
+    if (fg_store_note_progress(g->store, ids[i], text, &p) != FG_OK)
       fg_log_msg(FG_LOG_WARN, "store_error", "noting progress of check %s: %s",
                  ids[i], p.detail);
-    cJSON_free(bodies[i]);
+    cJSON_free(text);
   }
-  /* cancels asked for through other replicas */
   fg_problem p;
   fg_problem_init(&p);
   int nask = 0;
-  if (n > 0 &&
-      fg_store_cancel_requests(g->store, ids, FG_REGISTRY_PROGRESS_MAX, &nask,
-                               &p) != FG_OK)
+  char asked[FG_REGISTRY_BATCH][40];
+  memcpy(asked, ids, sizeof ids);
+  if (n > 0 && fg_store_cancel_requests(g->store, asked, FG_REGISTRY_BATCH,
+                                        &nask, &p) != FG_OK)
     fg_log_msg(FG_LOG_WARN, "store_error", "reading cancel requests: %s",
                p.detail);
+  for (int k = 0; k < nask; k++)
+    for (int i = 0; i < n; i++)
+      if (strcmp(asked[k], fg_job_id(jobs[i])) == 0 && !fg_job_ended(jobs[i])) {
+        fg_job_cancel(jobs[i]);
+        fg_log_msg(FG_LOG_INFO, "check_cancel_asked",
+                   "check %s cancelled at another replica's request", asked[k]);
+      }
+  for (int i = 0; i < n; i++)
+    fg_job_unref(jobs[i]);
+}
+
+/* One round: record ended jobs, retry unsaved ends, step comparisons.
+ * True when something was done (look again at once). */
+static bool round_once(fg_registry *g, double *next_retry) {
+  fg_job *jobs[FG_REGISTRY_BATCH];
+  fg_comparison *cmps[FG_REGISTRY_BATCH];
+  int nj = 0, nc = 0;
+  double now = now_s();
+  bool retry_due = now >= *next_retry;
   pthread_mutex_lock(&g->lock);
-  for (int i = 0; i < nask; i++) {
-    fg_held *e = find_id(g, ids[i]);
-    if (e && !e->recording) {
-      fg_check_cancel(e->check);
-      fg_log_msg(FG_LOG_INFO, "check_cancel_asked",
-                 "check %s cancelled at another replica's request", ids[i]);
-    }
+  for (fg_entry *e = g->head; e; e = e->next) {
+    if (e->job && nj < FG_REGISTRY_BATCH && fg_job_ended(e->job) &&
+        (!fg_job_unsaved(e->job) || retry_due))
+      jobs[nj++] = fg_job_ref(e->job);
+    else if (e->cmp && nc < FG_REGISTRY_BATCH)
+      cmps[nc++] = fg_comparison_ref(e->cmp);
   }
+  pthread_mutex_unlock(&g->lock);
+  if (retry_due) *next_retry = now + FG_REGISTRY_RETRY_MS / 1000.0;
+  bool did = false;
+  for (int i = 0; i < nj; i++) {
+    fg_problem p;
+    fg_problem_init(&p);
+    fg_status st = fg_job_unsaved(jobs[i]) ? fg_job_retry_unsaved(jobs[i], &p)
+                                           : fg_job_record_end(jobs[i], &p);
+    if (st != FG_OK) {
+      fg_log_msg(FG_LOG_ERROR, "store_error",
+                 "recording check %s: %s; trying again every second",
+                 fg_job_id(jobs[i]), p.detail);
+    } else if (fg_job_recorded(jobs[i])) {
+      remove_item(g, jobs[i]);
+      did = true;
+    }
+    fg_job_unref(jobs[i]);
+  }
+  for (int i = 0; i < nc; i++) {
+    if (fg_comparison_step(cmps[i])) {
+      remove_item(g, cmps[i]);
+      did = true;
+    }
+    fg_comparison_unref(cmps[i]);
+  }
+  return did;
 }
 
 static void *watch(void *arg) {
   fg_registry *g = arg;
   const bool shared = fg_store_shared(g->store);
-  double last_note = now_s();
+  double last_note = now_s(), next_retry = 0;
   pthread_mutex_lock(&g->lock);
   while (!g->stop) {
+    pthread_mutex_unlock(&g->lock);
     if (shared && now_s() - last_note >= FG_REGISTRY_PROGRESS_MS / 1000.0) {
       note_progress(g);
       last_note = now_s();
-      continue;
     }
-    fg_held *due = find_due(g);
-    if (due) {
-      due->recording = true;
-      pthread_mutex_unlock(&g->lock);
-      fg_problem p;
-      fg_problem_init(&p);
-      fg_status st = fg_store_finish_check(g->store, due->unsaved, &p);
-      pthread_mutex_lock(&g->lock);
-      due->recording = false;
-      due->attempts++;
-      if (st == FG_OK) {
-        fg_log_msg(FG_LOG_INFO, "recorded_late",
-                   "check %s recorded after %d more attempt(s)", due->rec.id,
-                   due->attempts);
-        unlink_entry(g, due);
-        pthread_cond_broadcast(&g->changed);
-        pthread_mutex_unlock(&g->lock);
-        free_entry(due);
-        pthread_mutex_lock(&g->lock);
-      } else {
-        due->retry_at = now_s() + FG_REGISTRY_RETRY_MS / 1000.0;
-      }
-      continue;
-    }
-    fg_held *e = find_ended(g);
-    if (!e) {
-      struct timespec ts;
-      deadline_in(&ts, FG_REGISTRY_POLL_MS / 1000.0);
-      pthread_cond_timedwait(&g->wake, &g->lock, &ts);
-      continue;
-    }
-    e->recording = true;
-    pthread_mutex_unlock(&g->lock);
-    fg_problem p;
-    fg_problem_init(&p);
-    fg_store_check *unsaved = NULL;
-    fg_status st =
-        fg_http_record_end_keep(g->store, e->check, &e->rec, NULL, &unsaved, &p);
-    if (st != FG_OK)
-      fg_log_msg(FG_LOG_ERROR, "store_error",
-                 "recording check %s: %s%s", e->rec.id, p.detail,
-                 unsaved ? "; trying again every second" : "");
+    bool did = round_once(g, &next_retry);
     pthread_mutex_lock(&g->lock);
-    e->recording = false;
-    if (st != FG_OK && unsaved) { /* stays listed until the store takes it */
-      e->unsaved = unsaved;
-      e->retry_at = now_s() + FG_REGISTRY_RETRY_MS / 1000.0;
-      continue;
-    }
-    unlink_entry(g, e);
-    pthread_cond_broadcast(&g->changed);
-    pthread_mutex_unlock(&g->lock);
-    free_entry(e);
-    pthread_mutex_lock(&g->lock);
+    if (did || g->stop) continue;
+    struct timespec ts;
+    deadline_in(&ts, FG_REGISTRY_POLL_MS / 1000.0);
+    pthread_cond_timedwait(&g->wake, &g->lock, &ts);
   }
   pthread_mutex_unlock(&g->lock);
   return NULL;
@@ -318,111 +258,110 @@ fg_status fg_registry_new(fg_store *store, fg_registry **out, fg_problem *p) {
   return FG_OK;
 }
 
-fg_status fg_registry_watch(fg_registry *g, fg_check *c,
-                            const fg_store_check *rec, fg_problem *p) {
-  fg_held *e = calloc(1, sizeof *e);
+static fg_status add_entry(fg_registry *g, fg_job *j, fg_comparison *c,
+                           fg_problem *p) {
+  fg_entry *e = calloc(1, sizeof *e);
   if (!e)
-    return fg_problem_set(p, FG_ENOMEM,
-                          "out of memory listing check %s as running", rec->id);
-  e->check = fg_check_ref(c);
-  e->rec = *rec;
-  e->rec.request = NULL;
-  e->rec.result = NULL;
-  e->waited = true;
+    return fg_problem_set(p, FG_ENOMEM, "out of memory listing %s as running",
+                          j ? fg_job_id(j) : fg_comparison_id(c));
+  e->job = fg_job_ref(j);
+  e->cmp = fg_comparison_ref(c);
   pthread_mutex_lock(&g->lock);
   e->next = g->head;
   g->head = e;
-  g->nwaited++;
+  if (j)
+    g->njobs++;
+  else
+    g->ncmps++;
+  pthread_cond_signal(&g->wake);
   pthread_mutex_unlock(&g->lock);
   return FG_OK;
 }
 
-void fg_registry_hand_over(fg_registry *g, const char *id) {
-  pthread_mutex_lock(&g->lock);
-  fg_held *e = find_id(g, id);
-  if (e && e->waited) {
-    e->waited = false;
-    g->nwaited--;
-    g->count++;
-    pthread_cond_signal(&g->wake);
-  }
-  pthread_mutex_unlock(&g->lock);
+fg_status fg_registry_add(fg_registry *g, fg_job *j, fg_problem *p) {
+  return add_entry(g, j, NULL, p);
 }
 
-void fg_registry_drop(fg_registry *g, const char *id) {
-  pthread_mutex_lock(&g->lock);
-  fg_held *e = find_id(g, id);
-  if (e && e->waited)
-    unlink_entry(g, e);
-  else
-    e = NULL;
-  pthread_cond_broadcast(&g->changed);
-  pthread_mutex_unlock(&g->lock);
-  if (e) {
-    fg_check_unref(e->check);
-    free(e);
-  }
+fg_status fg_registry_add_comparison(fg_registry *g, fg_comparison *c,
+                                     fg_problem *p) {
+  return add_entry(g, NULL, c, p);
 }
 
-fg_registry_cancel_result fg_registry_cancel(fg_registry *g, const char *id,
-                                             double wait_s) {
+void fg_registry_poke(fg_registry *g) {
   pthread_mutex_lock(&g->lock);
-  fg_held *e = find_id(g, id);
-  if (!e) {
-    pthread_mutex_unlock(&g->lock);
-    return FG_REGISTRY_NOT_HELD;
-  }
-  if (e->recording || fg_check_wait(e->check, 0)) {
-    pthread_mutex_unlock(&g->lock);
-    return FG_REGISTRY_ENDED;
-  }
-  fg_check_cancel(e->check);
   pthread_cond_signal(&g->wake);
-  struct timespec ts;
-  deadline_in(&ts, wait_s);
-  while (find_id(g, id)) {
-    if (pthread_cond_timedwait(&g->changed, &g->lock, &ts) == ETIMEDOUT) {
-      bool still = find_id(g, id) != NULL;
-      pthread_mutex_unlock(&g->lock);
-      return still ? FG_REGISTRY_CANCEL_PENDING : FG_REGISTRY_CANCELLED;
-    }
-  }
   pthread_mutex_unlock(&g->lock);
-  return FG_REGISTRY_CANCELLED;
 }
 
-cJSON *fg_registry_live_json(fg_registry *g, const char *id) {
-  cJSON *body = NULL;
+fg_job *fg_registry_find(fg_registry *g, const char *id) {
+  fg_job *j = NULL;
   pthread_mutex_lock(&g->lock);
-  for (fg_held *e = g->head; e; e = e->next) {
-    if (strcmp(e->rec.id, id) != 0) continue;
-    body = live_body(e);
-    break;
-  }
+  for (fg_entry *e = g->head; e; e = e->next)
+    if (e->job && strcmp(entry_id(e), id) == 0) {
+      j = fg_job_ref(e->job);
+      break;
+    }
   pthread_mutex_unlock(&g->lock);
-  return body;
+  return j;
+}
+
+fg_comparison *fg_registry_find_comparison(fg_registry *g, const char *id) {
+  fg_comparison *c = NULL;
+  pthread_mutex_lock(&g->lock);
+  for (fg_entry *e = g->head; e; e = e->next)
+    if (e->cmp && strcmp(entry_id(e), id) == 0) {
+      c = fg_comparison_ref(e->cmp);
+      break;
+    }
+  pthread_mutex_unlock(&g->lock);
+  return c;
 }
 
 int fg_registry_unsaved(fg_registry *g) {
+  fg_job *jobs[FG_REGISTRY_BATCH];
+  int n = 0, unsaved = 0;
   pthread_mutex_lock(&g->lock);
-  int n = 0;
-  for (fg_held *e = g->head; e; e = e->next) n += e->unsaved != NULL;
+  for (fg_entry *e = g->head; e && n < FG_REGISTRY_BATCH; e = e->next)
+    if (e->job) jobs[n++] = fg_job_ref(e->job);
   pthread_mutex_unlock(&g->lock);
-  return n;
+  for (int i = 0; i < n; i++) {
+    unsaved += fg_job_unsaved(jobs[i]);
+    fg_job_unref(jobs[i]);
+  }
+  return unsaved;
 }
 
 int fg_registry_count(fg_registry *g) {
   pthread_mutex_lock(&g->lock);
-  int n = g->count;
+  int n = 0;
+  for (fg_entry *e = g->head; e; e = e->next)
+    if (e->job && fg_job_detached(e->job) && !fg_job_ended(e->job)) n++;
   pthread_mutex_unlock(&g->lock);
   return n;
+}
+
+void fg_registry_cancel_all(fg_registry *g) {
+  fg_job *jobs[FG_REGISTRY_BATCH];
+  int n = 0;
+  pthread_mutex_lock(&g->lock);
+  for (fg_entry *e = g->head; e && n < FG_REGISTRY_BATCH; e = e->next)
+    if (e->job && !fg_job_ended(e->job)) jobs[n++] = fg_job_ref(e->job);
+  pthread_cond_signal(&g->wake);
+  pthread_mutex_unlock(&g->lock);
+  if (n > 0)
+    fg_log_msg(FG_LOG_WARN, "cancelling", "cancelling %d running check(s)", n);
+  for (int i = 0; i < n; i++) {
+    fg_job_cancel(jobs[i]);
+    fg_job_unref(jobs[i]);
+  }
 }
 
 /* Wait (under lock) until no entry is listed or `seconds` pass. */
 static void wait_empty(fg_registry *g, double seconds) {
   struct timespec ts;
   deadline_in(&ts, seconds);
-  while (g->count + g->nwaited > 0) {
+  while (g->head) {
+    pthread_cond_signal(&g->wake);
     if (pthread_cond_timedwait(&g->changed, &g->lock, &ts) == ETIMEDOUT) break;
   }
 }
@@ -430,24 +369,23 @@ static void wait_empty(fg_registry *g, double seconds) {
 void fg_registry_shutdown(fg_registry *g, double grace_s) {
   if (!g) return;
   pthread_mutex_lock(&g->lock);
-  if (g->count > 0) {
+  if (g->head) {
     fg_log_msg(FG_LOG_INFO, "draining",
-               "%d running check(s); waiting up to %g s", g->count, grace_s);
+               "%d running check(s), %d comparison(s); waiting up to %g s",
+               g->njobs, g->ncmps, grace_s);
     wait_empty(g, grace_s);
   }
-  if (g->count > 0) {
-    fg_log_msg(FG_LOG_WARN, "cancelling", "cancelling %d running check(s)",
-               g->count);
-    for (fg_held *e = g->head; e; e = e->next)
-      fg_check_cancel(e->check);
-    pthread_cond_signal(&g->wake);
+  if (g->head) {
+    pthread_mutex_unlock(&g->lock);
+    fg_registry_cancel_all(g);
+    pthread_mutex_lock(&g->lock);
     wait_empty(g, FG_REGISTRY_CANCEL_WAIT_S);
   }
-  if (g->count > 0)
+  if (g->head)
     fg_log_msg(FG_LOG_ERROR, "abandoned",
-               "%d check(s) did not stop; they stay running in the store "
-               "and are marked interrupted at the next start",
-               g->count);
+               "%d check(s) and %d comparison(s) could not be recorded; "
+               "running checks are marked interrupted at the next start",
+               g->njobs, g->ncmps);
   g->stop = true;
   pthread_cond_signal(&g->wake);
   pthread_mutex_unlock(&g->lock);
@@ -460,16 +398,16 @@ void fg_registry_shutdown(fg_registry *g, double grace_s) {
 void fg_registry_free(fg_registry *g) {
   if (!g) return;
   if (g->watcher_started) fg_registry_shutdown(g, 0);
-  fg_held *e = g->head;
+  fg_entry *e = g->head;
   while (e) {
-    fg_held *next = e->next;
-    if (e->unsaved)
+    fg_entry *next = e->next;
+    if (e->job && fg_job_unsaved(e->job))
       fg_log_msg(FG_LOG_ERROR, "unrecorded",
-                 "the end of check %s (%s) never reached the store; its "
-                 "record stays as it was (running checks are marked "
-                 "interrupted at the next start)",
-                 e->rec.id, e->unsaved->status);
-    free_entry(e);
+                 "the end of check %s never reached the store; its record "
+                 "stays as it was (running checks are marked interrupted at "
+                 "the next start)",
+                 fg_job_id(e->job));
+    drop_entry(e);
     e = next;
   }
   pthread_cond_destroy(&g->wake);

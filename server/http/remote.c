@@ -196,7 +196,7 @@ static int verdict_status(const cJSON *res) {
   const char *status = cJSON_GetStringValue(cJSON_GetObjectItem(res, "status"));
   const char *verdict =
       cJSON_GetStringValue(cJSON_GetObjectItem(res, "verdict"));
-  if (!status || strcmp(status, "done") != 0 || !verdict) {
+  if (fg_check_state_parse(status) != FG_CHECK_DONE || !verdict) {
     fprintf(stderr, "feasgate check: the check ended %s without a verdict\n",
             status ? status : "(no status)");
     return EXIT_ERROR;
@@ -263,7 +263,7 @@ static cJSON *poll_check(remote *rm, const char *id) {
       cJSON_Delete(res);
       return NULL;
     }
-    if (strcmp(st, "running") != 0 && strcmp(st, "queued") != 0) return res;
+    if (fg_check_state_parse(st) != FG_CHECK_RUNNING) return res;
     cJSON_Delete(res);
   }
   fprintf(stderr, "feasgate check: check %s still running after the "

@@ -35,6 +35,8 @@ static const fg_route_entry routes[] = {
     {"POST", "/v1/models/{name}/checks", fg_h_checks_create},
     {"POST", "/v1/models/{name}/versions/{n}/checks", fg_h_checks_create},
     {"POST", "/v1/models/{name}/comparisons", fg_h_comparisons_create},
+    {"GET", "/v1/comparisons/{id}", fg_h_comparison_get},
+    {"DELETE", "/v1/comparisons/{id}", fg_h_comparison_cancel},
     {"GET", "/v1/checks", fg_h_checks_list},
     {"GET", "/v1/checks/{id}", fg_h_check_get},
     {"DELETE", "/v1/checks/{id}", fg_h_check_cancel},

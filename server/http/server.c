@@ -41,9 +41,12 @@
  *   keyless non-loopback listener (exit 3) -> worker pool, model cache,
  *   registry -> daemon -> log
  *   "listening" -> sigwait. On SIGINT/SIGTERM: stop accepting (quiesce),
- *   wait for requests in flight (bounded by --max-wait plus a margin),
- *   stop the daemon, let detached checks finish within --grace (then
- *   cancel and record them), free the pool, close the store, exit 0.
+ *   wait for requests in flight up to --grace (then cancel the running
+ *   checks, which answers the requests waiting for them, and wait
+ *   FG_HTTP_STOP_ANSWER_S more), stop the daemon, let detached checks
+ *   finish within what is left of --grace (then cancel and record them),
+ *   free the pool (stuck workers are left behind), close the store,
+ *   exit 0: within --grace plus a few seconds whatever a worker does.
  *
  * Thread use: the access handler and completion callback run on
  * libmicrohttpd's threads; fg_serve_command on the main thread only.
@@ -55,6 +58,7 @@
 #include <errno.h>
 #include <inttypes.h>
 #include <netdb.h>
+#include <math.h>
 #include <netinet/in.h>
 #include <signal.h>
 #include <stdio.h>
@@ -406,10 +410,18 @@ static void free_pem(char *pem) {
 
 /* ---- the subcommand ---- */
 
-static void wait_inflight(fg_server *srv, double seconds) {
+/* Wait up to `seconds` for the requests in flight; how many are left
+ * (logged when `say` and some are). */
+static int wait_inflight(fg_server *srv, double seconds, bool say) {
   struct timespec ts;
   clock_gettime(CLOCK_REALTIME, &ts);
-  ts.tv_sec += (time_t)seconds + 1;
+  double whole = floor(seconds);
+  ts.tv_sec += (time_t)whole;
+  ts.tv_nsec += (long)((seconds - whole) * 1e9);
+  if (ts.tv_nsec >= 1000000000L) {
+    ts.tv_sec++;
+    ts.tv_nsec -= 1000000000L;
+  }
   pthread_mutex_lock(&srv->inflight_lock);
   while (srv->inflight > 0) {
     if (pthread_cond_timedwait(&srv->inflight_cv, &srv->inflight_lock, &ts) ==
@@ -418,11 +430,12 @@ static void wait_inflight(fg_server *srv, double seconds) {
   }
   int left = srv->inflight;
   pthread_mutex_unlock(&srv->inflight_lock);
-  if (left > 0)
+  if (left > 0 && say)
     fg_log_msg(FG_LOG_WARN, "stopping",
                "%d request(s) still in flight; "
                "closing their connections",
                left);
+  return left;
 }
 
 int fg_serve_command(int argc, char **argv) {
@@ -460,6 +473,9 @@ int fg_serve_command(int argc, char **argv) {
     }
   }
   fg_metrics_start();
+  /* Test builds only (-DFG_FAULTS=ON): arm the faults the environment
+   * names, before any worker exists. */
+  bool faults = fg_faults_init();
   pthread_mutex_init(&srv->inflight_lock, NULL);
   pthread_cond_init(&srv->inflight_cv, NULL);
   atomic_init(&srv->stopping, false);
@@ -569,6 +585,9 @@ int fg_serve_command(int argc, char **argv) {
     /* Written whatever --log-level says: clients wait for this line. */
     fg_log_force(FG_LOG_INFO, ev);
   }
+  if (faults) /* after "listening": clients read that line first */
+    fg_log_msg(FG_LOG_WARN, "fault_seam",
+               "this is a test build with the fault seam compiled in");
   if (interrupted > 0)
     fg_log_msg(FG_LOG_WARN, "interrupted_checks",
                "%d check(s) left running by an earlier process are now "
@@ -585,10 +604,20 @@ int fg_serve_command(int argc, char **argv) {
   atomic_store(&srv->stopping, true);
   MHD_socket lfd = MHD_quiesce_daemon(srv->daemon);
   if (lfd != MHD_INVALID_SOCKET) close(lfd);
-  wait_inflight(srv, srv->cfg.limits.max_wait_s + FG_HTTP_DRAIN_MARGIN_S);
+  /* Requests in flight get --grace (one waiting for its check is
+   * answered when the check ends); then the checks still running are
+   * cancelled -- the engine ends each within FG_STUCK_WORKER_S whatever
+   * its workers do -- which answers the requests waiting for them. So a
+   * stop takes --grace plus a few seconds at most. */
+  double t_stop = fg_time_monotonic();
+  if (wait_inflight(srv, srv->cfg.grace_s, false) > 0) {
+    fg_registry_cancel_all(srv->registry);
+    wait_inflight(srv, FG_HTTP_STOP_ANSWER_S, true);
+  }
   MHD_stop_daemon(srv->daemon);
   srv->daemon = NULL;
-  fg_registry_shutdown(srv->registry, srv->cfg.grace_s);
+  double grace_left = srv->cfg.grace_s - (fg_time_monotonic() - t_stop);
+  fg_registry_shutdown(srv->registry, grace_left > 0 ? grace_left : 0);
   status = 0;
 
 cleanup:

@@ -45,6 +45,12 @@ typedef struct fg_store_ops {
   fg_status (*list_checks)(void *b, const fg_check_filter *f,
                            fg_store_check **out, int *n, fg_problem *p);
   fg_status (*mark_interrupted)(void *b, int *count, fg_problem *p);
+  fg_status (*put_comparison)(void *b, const fg_store_comparison *c,
+                              fg_problem *p);
+  fg_status (*finish_comparison)(void *b, const fg_store_comparison *c,
+                                 fg_problem *p);
+  fg_status (*get_comparison)(void *b, const char *id,
+                              fg_store_comparison *out, fg_problem *p);
   void (*inject_write_fault)(void *b, int nth);
   fg_status (*put_key)(void *b, const fg_store_key *k, fg_problem *p);
   fg_status (*list_keys)(void *b, bool live_only, fg_store_key **out, int *n,

@@ -147,6 +147,19 @@ static const char *const schema_sql =
     "  hash BYTEA NOT NULL,"
     "  created_at TEXT NOT NULL,"
     "  revoked_at TEXT NOT NULL DEFAULT '');"
+    "CREATE TABLE IF NOT EXISTS comparisons ("
+    "  id TEXT PRIMARY KEY,"
+    "  model TEXT NOT NULL,"
+    "  version INTEGER NOT NULL,"
+    "  digest TEXT NOT NULL,"
+    "  status TEXT NOT NULL,"
+    "  created_at TEXT NOT NULL,"
+    "  finished_at TEXT NOT NULL DEFAULT '',"
+    "  key TEXT NOT NULL DEFAULT '',"
+    "  checks TEXT NOT NULL,"
+    "  result TEXT,"
+    "  owner TEXT NOT NULL DEFAULT '',"
+    "  FOREIGN KEY (model, version) REFERENCES versions(name, version));"
     "CREATE TABLE IF NOT EXISTS instances ("
     "  id TEXT PRIMARY KEY,"
     "  host TEXT NOT NULL,"
@@ -172,6 +185,10 @@ enum stmt_id {
   ST_CHECK_CURSOR,
   ST_CHECKS_LIST,
   ST_MARK_STALE,
+  ST_MARK_CMP_STALE,
+  ST_CMP_INSERT,
+  ST_CMP_FINISH,
+  ST_CMP_GET,
   ST_INSTANCE_UPSERT,
   ST_INSTANCE_BEAT,
   ST_INSTANCE_PRUNE,
@@ -263,6 +280,25 @@ static const struct {
          " FROM instances i WHERE i.id = checks.owner AND i.heartbeat_at >"
          " now() - make_interval(secs => $3::int))",
          3},
+    /* comparisons of such owners, likewise */
+    [ST_MARK_CMP_STALE] =
+        {"UPDATE comparisons SET status = 'interrupted', finished_at = $1"
+         " WHERE status = 'running' AND owner <> $2 AND NOT EXISTS (SELECT 1"
+         " FROM instances i WHERE i.id = comparisons.owner AND"
+         " i.heartbeat_at > now() - make_interval(secs => $3::int))",
+         3},
+    [ST_CMP_INSERT] =
+        {"INSERT INTO comparisons(id, model, version, digest, status,"
+         " created_at, finished_at, key, checks, result, owner) VALUES ($1,"
+         " $2, $3::int, $4, $5, $6, $7, $8, $9, $10, $11)",
+         11},
+    [ST_CMP_FINISH] = {"UPDATE comparisons SET status = $2, finished_at = $3,"
+                       " result = $4 WHERE id = $1",
+                       4},
+    [ST_CMP_GET] = {"SELECT id, model, version, digest, status, created_at,"
+                    " finished_at, key, checks, result FROM comparisons"
+                    " WHERE id = $1",
+                    1},
     [ST_INSTANCE_UPSERT] =
         {"INSERT INTO instances(id, host, pid, started_at, heartbeat_at)"
          " VALUES ($1, $2, $3::int, $4, now()) ON CONFLICT(id) DO UPDATE SET"
@@ -995,6 +1031,81 @@ static fg_status pg_get_check(void *b, const char *id, fg_store_check *out,
   return leave(s, res);
 }
 
+/* ---- comparisons ---- */
+
+static fg_status pg_put_comparison(void *b, const fg_store_comparison *c,
+                                   fg_problem *p) {
+  pg_store *st = b;
+  pg_conn *s = NULL;
+  fg_status res = enter(st, &s, p);
+  if (res != FG_OK) return res;
+  params q = {0};
+  par_text(&q, c->id);
+  par_text(&q, c->model);
+  par_int(&q, c->version);
+  par_text(&q, c->digest);
+  par_text(&q, c->status[0] ? c->status : "running");
+  par_text(&q, c->created_at);
+  par_text(&q, c->finished_at);
+  par_text(&q, c->key);
+  par_text(&q, c->checks ? c->checks : "[]");
+  par_text(&q, c->result);
+  par_text(&q, s->store->upkeep_started ? s->store->instance : "");
+  res = write_alone(s, ST_CMP_INSERT, &q, "recording comparison", NULL, c->id,
+                    p);
+  return leave(s, res);
+}
+
+static fg_status pg_finish_comparison(void *b, const fg_store_comparison *c,
+                                      fg_problem *p) {
+  pg_store *st = b;
+  pg_conn *s = NULL;
+  fg_status res = enter(st, &s, p);
+  if (res != FG_OK) return res;
+  params q = {0};
+  par_text(&q, c->id);
+  par_text(&q, c->status);
+  par_text(&q, c->finished_at);
+  par_text(&q, c->result);
+  res = write_alone(s, ST_CMP_FINISH, &q, "finishing comparison",
+                    "no comparison with id '%s'", c->id, p);
+  return leave(s, res);
+}
+
+static fg_status pg_get_comparison(void *b, const char *id,
+                                   fg_store_comparison *out, fg_problem *p) {
+  pg_store *st = b;
+  pg_conn *s = NULL;
+  memset(out, 0, sizeof *out);
+  fg_status res = enter(st, &s, p);
+  if (res != FG_OK) return res;
+  params q = {0};
+  par_text(&q, id);
+  PGresult *r = run(s, ST_CMP_GET, &q);
+  if (PQresultStatus(r) != PGRES_TUPLES_OK) {
+    res = pg_fault(s, p, "reading a comparison", r);
+  } else if (PQntuples(r) == 0) {
+    res = fg_problem_set(p, FG_ENOTFOUND, "no comparison with id '%s'", id);
+  } else {
+    copy_cell(out->id, sizeof out->id, r, 0, 0);
+    copy_cell(out->model, sizeof out->model, r, 0, 1);
+    out->version = (int)int_cell(r, 0, 2);
+    copy_cell(out->digest, sizeof out->digest, r, 0, 3);
+    copy_cell(out->status, sizeof out->status, r, 0, 4);
+    copy_cell(out->created_at, sizeof out->created_at, r, 0, 5);
+    copy_cell(out->finished_at, sizeof out->finished_at, r, 0, 6);
+    copy_cell(out->key, sizeof out->key, r, 0, 7);
+    out->checks = dup_cell(r, 0, 8);
+    out->result = dup_cell(r, 0, 9);
+    if (!out->checks || (!PQgetisnull(r, 0, 9) && !out->result)) {
+      fg_store_comparison_clear(out);
+      res = fg_problem_set(p, FG_ENOMEM, "store: out of memory reading %s", id);
+    }
+  }
+  PQclear(r);
+  return leave(s, res);
+}
+
 static fg_status pg_note_progress(void *b, const char *id, const char *body,
                                   fg_problem *p) {
   pg_store *st = b;
@@ -1124,6 +1235,10 @@ static fg_status sweep_stale(pg_conn *s, int *count, fg_problem *p) {
   par_int(&q, FG_PG_STALE_S);
   long n = write_stmt(s, ST_MARK_STALE, &q, "marking interrupted checks", p);
   if (n < 0) res = p->status;
+  if (res == FG_OK &&
+      write_stmt(s, ST_MARK_CMP_STALE, &q, "marking interrupted comparisons",
+                 p) < 0)
+    res = p->status;
   if (res == FG_OK) {
     q = (params){0};
     par_int(&q, FG_PG_INSTANCE_KEEP_S);
@@ -1353,6 +1468,9 @@ const fg_store_ops fg_store_pgsql_ops = {
     .cancel_requests = pg_cancel_requests,
     .list_checks = pg_list_checks,
     .mark_interrupted = pg_mark_interrupted,
+    .put_comparison = pg_put_comparison,
+    .finish_comparison = pg_finish_comparison,
+    .get_comparison = pg_get_comparison,
     .inject_write_fault = pg_inject_write_fault,
     .put_key = pg_put_key,
     .list_keys = pg_list_keys,

@@ -26,6 +26,10 @@
  *             label, key, probability, lower, upper)
  *   keys     (name PK, role, salt BLOB, hash BLOB = SHA-256(salt || key),
  *             created_at, revoked_at '' while live)
+ *   comparisons (id PK, (model, version) -> versions, digest, status,
+ *             created_at, finished_at, key, checks = JSON array of the
+ *             candidates' check ids, result; added to version 2 without
+ *             a new number: only a table more, made when missing)
  *   Migration: every CREATE is IF NOT EXISTS, so opening a version-1 file
  *   adds the missing tables and raises schema_version to 2 in the same
  *   transaction; no existing row changes.
@@ -112,7 +116,19 @@ static const char *const schema_sql =
     "  salt BLOB NOT NULL,"
     "  hash BLOB NOT NULL,"
     "  created_at TEXT NOT NULL,"
-    "  revoked_at TEXT NOT NULL DEFAULT '');";
+    "  revoked_at TEXT NOT NULL DEFAULT '');"
+    "CREATE TABLE IF NOT EXISTS comparisons ("
+    "  id TEXT PRIMARY KEY,"
+    "  model TEXT NOT NULL,"
+    "  version INTEGER NOT NULL,"
+    "  digest TEXT NOT NULL,"
+    "  status TEXT NOT NULL,"
+    "  created_at TEXT NOT NULL,"
+    "  finished_at TEXT NOT NULL DEFAULT '',"
+    "  key TEXT NOT NULL DEFAULT '',"
+    "  checks TEXT NOT NULL,"
+    "  result TEXT,"
+    "  FOREIGN KEY (model, version) REFERENCES versions(name, version));";
 
 /* Every statement the backend runs, prepared once at open. */
 enum stmt_id {
@@ -133,6 +149,10 @@ enum stmt_id {
   ST_CHECK_CURSOR,
   ST_CHECKS_LIST,
   ST_MARK_INTERRUPTED,
+  ST_MARK_CMP_INTERRUPTED,
+  ST_CMP_INSERT,
+  ST_CMP_FINISH,
+  ST_CMP_GET,
   ST_KEY_EXISTS,
   ST_KEY_INSERT,
   ST_KEYS_LIST,
@@ -195,6 +215,18 @@ static const char *const stmt_sql[ST_COUNT] = {
     [ST_MARK_INTERRUPTED] =
         "UPDATE checks SET status = 'interrupted', finished_at = ?1,"
         " result = NULL WHERE status = 'running'",
+    [ST_MARK_CMP_INTERRUPTED] =
+        "UPDATE comparisons SET status = 'interrupted', finished_at = ?1"
+        " WHERE status = 'running'",
+    [ST_CMP_INSERT] =
+        "INSERT INTO comparisons(id, model, version, digest, status,"
+        " created_at, finished_at, key, checks, result) VALUES (?1, ?2, ?3,"
+        " ?4, ?5, ?6, ?7, ?8, ?9, ?10)",
+    [ST_CMP_FINISH] = "UPDATE comparisons SET status = ?2, finished_at = ?3,"
+                      " result = ?4 WHERE id = ?1",
+    [ST_CMP_GET] = "SELECT id, model, version, digest, status, created_at,"
+                   " finished_at, key, checks, result FROM comparisons"
+                   " WHERE id = ?1",
     [ST_KEY_EXISTS] = "SELECT revoked_at FROM keys WHERE name = ?1",
     [ST_KEY_INSERT] = "INSERT INTO keys(name, role, salt, hash, created_at)"
                       " VALUES (?1, ?2, ?3, ?4, ?5)",
@@ -852,10 +884,88 @@ static fg_status sq_mark_interrupted(void *b, int *count, fg_problem *p) {
     rc = write_step(s, st);
     if (rc == SQLITE_OK) *count = sqlite3_changes(s->db);
   }
+  if (rc == SQLITE_OK) { /* comparisons left running end with them */
+    sqlite3_stmt *st = s->stmt[ST_MARK_CMP_INTERRUPTED];
+    bind_text(st, 1, now);
+    rc = write_step(s, st);
+  }
   if (rc != SQLITE_OK) res = db_fault(s, p, "marking interrupted checks", rc);
   res = tx_end(s, res, "marking interrupted checks", p);
   if (res != FG_OK) *count = 0;
   return unlock_with(s, res);
+}
+
+/* ---- comparisons ---- */
+
+static fg_status sq_put_comparison(void *b, const fg_store_comparison *c,
+                                   fg_problem *p) {
+  sq_store *s = b;
+  pthread_mutex_lock(&s->lock);
+  sqlite3_stmt *st = s->stmt[ST_CMP_INSERT];
+  bind_text(st, 1, c->id);
+  bind_text(st, 2, c->model);
+  sqlite3_bind_int(st, 3, c->version);
+  bind_text(st, 4, c->digest);
+  bind_text(st, 5, c->status[0] ? c->status : "running");
+  bind_text(st, 6, c->created_at);
+  bind_text(st, 7, c->finished_at);
+  bind_text(st, 8, c->key);
+  bind_text(st, 9, c->checks ? c->checks : "[]");
+  bind_text(st, 10, c->result);
+  fg_status res = write_one(s, st, "recording comparison", c->id, false, p);
+  pthread_mutex_unlock(&s->lock);
+  return res;
+}
+
+static fg_status sq_finish_comparison(void *b, const fg_store_comparison *c,
+                                      fg_problem *p) {
+  sq_store *s = b;
+  pthread_mutex_lock(&s->lock);
+  sqlite3_stmt *st = s->stmt[ST_CMP_FINISH];
+  bind_text(st, 1, c->id);
+  bind_text(st, 2, c->status);
+  bind_text(st, 3, c->finished_at);
+  bind_text(st, 4, c->result);
+  fg_status res = write_one(s, st, "finishing comparison", c->id, true, p);
+  if (res == FG_ENOTFOUND)
+    fg_problem_set(p, FG_ENOTFOUND, "no comparison with id '%s'", c->id);
+  pthread_mutex_unlock(&s->lock);
+  return res;
+}
+
+static fg_status sq_get_comparison(void *b, const char *id,
+                                   fg_store_comparison *out, fg_problem *p) {
+  sq_store *s = b;
+  memset(out, 0, sizeof *out);
+  pthread_mutex_lock(&s->lock);
+  sqlite3_stmt *st = s->stmt[ST_CMP_GET];
+  bind_text(st, 1, id);
+  fg_status res = FG_OK;
+  int rc = sqlite3_step(st);
+  if (rc == SQLITE_ROW) {
+    copy_text(out->id, sizeof out->id, st, 0);
+    copy_text(out->model, sizeof out->model, st, 1);
+    out->version = sqlite3_column_int(st, 2);
+    copy_text(out->digest, sizeof out->digest, st, 3);
+    copy_text(out->status, sizeof out->status, st, 4);
+    copy_text(out->created_at, sizeof out->created_at, st, 5);
+    copy_text(out->finished_at, sizeof out->finished_at, st, 6);
+    copy_text(out->key, sizeof out->key, st, 7);
+    out->checks = dup_text(st, 8);
+    out->result = dup_text(st, 9);
+    if (!out->checks ||
+        (sqlite3_column_type(st, 9) != SQLITE_NULL && !out->result)) {
+      fg_store_comparison_clear(out);
+      res = fg_problem_set(p, FG_ENOMEM, "store: out of memory reading %s", id);
+    }
+  } else if (rc == SQLITE_DONE) {
+    res = fg_problem_set(p, FG_ENOTFOUND, "no comparison with id '%s'", id);
+  } else {
+    res = db_fault(s, p, "reading a comparison", rc);
+  }
+  done_stmt(st);
+  pthread_mutex_unlock(&s->lock);
+  return res;
 }
 
 static void sq_inject_write_fault(void *b, int nth) {
@@ -1003,6 +1113,9 @@ const fg_store_ops fg_store_sqlite_ops = {
     .note_progress = sq_note_progress,
     .list_checks = sq_list_checks,
     .mark_interrupted = sq_mark_interrupted,
+    .put_comparison = sq_put_comparison,
+    .finish_comparison = sq_finish_comparison,
+    .get_comparison = sq_get_comparison,
     .inject_write_fault = sq_inject_write_fault,
     .put_key = sq_put_key,
     .list_keys = sq_list_keys,

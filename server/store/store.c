@@ -158,6 +158,29 @@ fg_status fg_store_note_progress(fg_store *s, const char *id, const char *body,
   return s->ops->note_progress(s->impl, id, body, p);
 }
 
+void fg_store_comparison_clear(fg_store_comparison *c) {
+  if (!c) return;
+  free(c->checks);
+  free(c->result);
+  c->checks = c->result = NULL;
+}
+
+fg_status fg_store_put_comparison(fg_store *s, const fg_store_comparison *c,
+                                  fg_problem *p) {
+  return s->ops->put_comparison(s->impl, c, p);
+}
+
+fg_status fg_store_finish_comparison(fg_store *s,
+                                     const fg_store_comparison *c,
+                                     fg_problem *p) {
+  return s->ops->finish_comparison(s->impl, c, p);
+}
+
+fg_status fg_store_get_comparison(fg_store *s, const char *id,
+                                  fg_store_comparison *out, fg_problem *p) {
+  return s->ops->get_comparison(s->impl, id, out, p);
+}
+
 bool fg_store_shared(const fg_store *s) {
   return s->ops->shared;
 }

@@ -19,6 +19,9 @@
  *                interval (for list summaries)
  *   keys      -- API keys: name, role, salt, SHA-256(salt || key),
  *                created_at, revoked_at; never the key itself
+ *   comparisons -- id, model name/version/digest, status, key name, the
+ *                candidates' check ids (JSON array), result JSON,
+ *                created_at, finished_at (each candidate is also a check)
  *
  * Thread use: one fg_store may be used by several threads; the backend
  * serialises access internally (one connection guarded by a mutex).
@@ -128,6 +131,31 @@ fg_status fg_store_request_cancel(fg_store *s, const char *id, fg_problem *p);
  * replica asked for (at most `cap`, into ids[i][40]); *n how many. */
 fg_status fg_store_cancel_requests(fg_store *s, char (*ids)[40], int cap,
                                    int *n, fg_problem *p);
+
+/* A comparison of candidates (each also a check of its own). */
+typedef struct fg_store_comparison {
+  char id[40];
+  char model[FG_NAME_MAX + 1];
+  int version;
+  char digest[FG_DIGEST_MAX];
+  char status[16]; /* running, done, cancelled, timed_out, failed */
+  char created_at[32];
+  char finished_at[32]; /* "" while running */
+  char key[FG_NAME_MAX + 1];
+  char *checks; /* JSON array of the candidates' check ids, in order */
+  char *result; /* JSON text of the final body; NULL while running */
+} fg_store_comparison;
+
+void fg_store_comparison_clear(fg_store_comparison *c);
+/* Record a comparison when accepted (status running). */
+fg_status fg_store_put_comparison(fg_store *s, const fg_store_comparison *c,
+                                  fg_problem *p);
+/* Its end: status, finished_at and result. FG_ENOTFOUND when absent. */
+fg_status fg_store_finish_comparison(fg_store *s,
+                                     const fg_store_comparison *c,
+                                     fg_problem *p);
+fg_status fg_store_get_comparison(fg_store *s, const char *id,
+                                  fg_store_comparison *out, fg_problem *p);
 
 typedef struct fg_check_filter {
   const char *model;   /* NULL = any */

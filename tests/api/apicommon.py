@@ -157,41 +157,13 @@ def schemas():
 
 # ---- the daemon ----------------------------------------------------------
 
-class Daemon:
-    """One `feasgate serve` process; stderr is drained by a thread. With
-    `results`, every answer of request() is checked against its schema."""
+class Endpoint:
+    """An HTTP address that speaks feasgate's API: one daemon, or a load
+    balancer in front of several. With `results`, every answer of
+    request() and fetch() is checked against its schema."""
 
-    def __init__(self, store_url, *extra, env=None, results=None):
-        args = [BIN, "serve", "--listen", "127.0.0.1:0", "--store", store_url,
-                "--workers", "2"] + list(extra)
-        self.results = results
-        self.proc = subprocess.Popen(args, stdin=subprocess.DEVNULL,
-                                     stdout=subprocess.DEVNULL,
-                                     stderr=subprocess.PIPE, env=env)
-        self.lines = []
-        self.first = None
-        ready = threading.Event()
-
-        def drain():
-            for raw in self.proc.stderr:
-                line = raw.decode("utf-8", "replace").rstrip("\n")
-                self.lines.append(line)
-                if self.first is None:
-                    self.first = line
-                    ready.set()
-            ready.set()
-
-        self.thread = threading.Thread(target=drain, daemon=True)
-        self.thread.start()
-        ready.wait(START_TIMEOUT_S)
-        self.address = None
-        try:
-            self.address = json.loads(self.first or "")["address"]
-        except (ValueError, KeyError, TypeError):
-            pass
-        if self.address:
-            self.host, port = self.address.rsplit(":", 1)
-            self.port = int(port)
+    def __init__(self, host, port, results=None):
+        self.host, self.port, self.results = host, port, results
 
     def raw(self, method, path, data=None, headers=None, timeout=120):
         """(status, headers (lower-case names), raw bytes)."""
@@ -243,6 +215,43 @@ class Daemon:
     def check_schema(self, method, path, status, headers, body):
         msgs = schemas().problems(method, path, status, headers, body)
         self.results.check(not msgs, "; ".join(msgs))
+
+
+class Daemon(Endpoint):
+    """One `feasgate serve` process; stderr is drained by a thread. With
+    `results`, every answer of request() is checked against its schema."""
+
+    def __init__(self, store_url, *extra, env=None, results=None):
+        args = [BIN, "serve", "--listen", "127.0.0.1:0", "--store", store_url,
+                "--workers", "2"] + list(extra)
+        self.results = results
+        self.proc = subprocess.Popen(args, stdin=subprocess.DEVNULL,
+                                     stdout=subprocess.DEVNULL,
+                                     stderr=subprocess.PIPE, env=env)
+        self.lines = []
+        self.first = None
+        ready = threading.Event()
+
+        def drain():
+            for raw in self.proc.stderr:
+                line = raw.decode("utf-8", "replace").rstrip("\n")
+                self.lines.append(line)
+                if self.first is None:
+                    self.first = line
+                    ready.set()
+            ready.set()
+
+        self.thread = threading.Thread(target=drain, daemon=True)
+        self.thread.start()
+        ready.wait(START_TIMEOUT_S)
+        self.address = None
+        try:
+            self.address = json.loads(self.first or "")["address"]
+        except (ValueError, KeyError, TypeError):
+            pass
+        if self.address:
+            self.host, port = self.address.rsplit(":", 1)
+            self.port = int(port)
 
     def alive(self):
         """True when the process runs and answers GET /v1/health."""

@@ -191,6 +191,10 @@ def test_matrix(d, store, keys):
     pair = {"candidates": [{"label": "a", "decision": {"x": 1}},
                            {"label": "b", "decision": {"x": 2}}],
             "samples": 1024, "seed": 3}
+    st, _, b = d.request("POST", "/v1/models/%s/comparisons" % name, pair,
+                         admin)
+    check(st == 200, "admin runs a comparison: %d" % st)
+    cmp_ended = b.get("id", "") if isinstance(b, dict) else ""
 
     # (method, path, body, least role); "{retire}" is re-registered first.
     routes = [
@@ -208,6 +212,8 @@ def test_matrix(d, store, keys):
         ("POST", "/v1/models/%s/versions/1/checks" % name, small, "checker"),
         ("POST", "/v1/models/%s/comparisons" % name, pair, "checker"),
         ("DELETE", "/v1/checks/%s" % ended, None, "checker"),
+        ("GET", "/v1/comparisons/%s" % cmp_ended, None, "reader"),
+        ("DELETE", "/v1/comparisons/%s" % cmp_ended, None, "checker"),
         ("POST", "/v1/models", model_doc(name), "author"),
         ("DELETE", "/v1/models/retire-me", None, "author"),
     ]
@@ -219,6 +225,8 @@ def test_matrix(d, store, keys):
     documented = {}
     for template, ops in spec["paths"].items():
         concrete = template
+        if template.startswith("/v1/comparisons/"):
+            concrete = template.replace("{id}", cmp_ended)
         for k, v in subs.items():
             concrete = concrete.replace(k, v)
         for m, op in ops.items():

@@ -161,6 +161,52 @@ def main():
         st, _, again = b.request("DELETE", "/v1/checks/%s" % cid1, headers=H)
         R.check(st == 409, "a second DELETE: 409 (it ended): %s" % st)
 
+        # a comparison run by A, read through B while it runs and after
+        # its end, and cancelled through B (every candidate)
+        pair = {"candidates": [{"label": "lo", "decision": {"cap": 70}},
+                               {"label": "hi", "decision": {"cap": 80}}],
+                "samples": 100000000, "seed": 12, "wait_s": 0}
+        st, _, cmp_a = a.request("POST", "/v1/models/shared-line/comparisons",
+                                 pair, headers=H)
+        cmp_id = cmp_a.get("id", "") if isinstance(cmp_a, dict) else ""
+        R.check(st == 202 and cmp_id.startswith("cmp_"),
+                "a long comparison answered 202 on A: %s" % st)
+        st, _, seen = b.request("GET", "/v1/comparisons/%s" % cmp_id,
+                                headers=H)
+        R.check(st == 200 and seen.get("status") == "running"
+                and len(seen.get("candidates", [])) == 2,
+                "B shows A's comparison running with both candidates: %s %r"
+                % (st, seen.get("status") if isinstance(seen, dict) else seen))
+        st, _, gone = b.request("DELETE", "/v1/comparisons/%s" % cmp_id,
+                                headers=H)
+        R.check(st == 200 and isinstance(gone, dict)
+                and gone.get("status") == "cancelled",
+                "DELETE through B cancels A's comparison: %s %r"
+                % (st, gone.get("status") if isinstance(gone, dict) else gone))
+        st, _, seen = b.request("GET", "/v1/comparisons/%s" % cmp_id,
+                                headers=H)
+        cands = seen.get("candidates", []) if isinstance(seen, dict) else []
+        R.check(st == 200 and seen.get("status") == "cancelled"
+                and len(cands) == 2
+                and all(c.get("status") == "cancelled" for c in cands),
+                "B reads the ended comparison from the store, every candidate "
+                "cancelled: %s" % st)
+        for c in cands:
+            st, _, ch = b.request("GET", "/v1/checks/%s" % c.get("id"),
+                                  headers=H)
+            R.check(st == 200 and ch.get("status") == "cancelled",
+                    "candidate %s is in the check log: %s"
+                    % (c.get("label"), st))
+        st, _, small = a.request("POST", "/v1/models/shared-line/comparisons",
+                                 dict(pair, samples=20000, wait_s=30),
+                                 headers=H)
+        sid = small.get("id", "") if isinstance(small, dict) else ""
+        st, _, via_b = b.request("GET", "/v1/comparisons/%s" % sid, headers=H)
+        R.check(st == 200 and isinstance(via_b, dict)
+                and via_b.get("status") == "done"
+                and via_b.get("pairs") == small.get("pairs"),
+                "a finished comparison reads the same through B: %s" % st)
+
         # a long detached check on A; A dies; B marks it interrupted
         st, rid = start_detached(a, 900000000, 5, H)
         R.check(st == 202, "a long check answered 202 on A: %s" % st)

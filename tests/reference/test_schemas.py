@@ -648,6 +648,8 @@ EXPECTED_OPERATIONS = {
     ("/v1/models/{name}/versions/{n}/checks", "post"),
     ("/v1/checks", "get"), ("/v1/checks/{id}", "get"), ("/v1/checks/{id}", "delete"),
     ("/v1/models/{name}/comparisons", "post"),
+    ("/v1/comparisons/{id}", "get"),
+    ("/v1/comparisons/{id}", "delete"),
     ("/v1/models/{name}/scenarios", "get"),
     ("/v1/sample-size", "get"),
     ("/v1/health", "get"), ("/v1/ready", "get"), ("/metrics", "get"),

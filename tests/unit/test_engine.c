@@ -392,6 +392,55 @@ static void test_designs(fg_model *m) {
   }
 }
 
+/* The deadline holds for a check that waits in the queue behind another
+ * (no worker ever reaches it), the outcome matches the body, and state
+ * names read back as the states. */
+static void test_deadline_and_outcome(fg_model *m) {
+  fg_check_request r, q;
+  fg_problem p;
+  CHECK(parse(m, "{\"decision\":{\"cap\":[10,11,12],\"crew\":1},"
+                 "\"samples\":5000000,\"seed\":3}",
+              &r, &p) == FG_OK);
+  CHECK(parse(m, "{\"decision\":{\"cap\":[10,11,12],\"crew\":1},"
+                 "\"samples\":5000000,\"seed\":4}",
+              &q, &p) == FG_OK);
+  if (!r.decision || !q.decision) return;
+  r.samples = 4000000000ull; /* past the parser's cap: far longer than the
+                                test waits */
+  q.max_seconds = 0.2;
+  fg_pool *pool;
+  fg_problem_init(&p);
+  CHECK(fg_pool_new(1, 4096, 4, &pool, &p) == FG_OK);
+  fg_check *a = NULL, *b = NULL;
+  CHECK(fg_check_start(pool, m, &r, &a, &p) == FG_OK); /* takes the worker */
+  CHECK(fg_check_start(pool, m, &q, &b, &p) == FG_OK); /* waits behind it */
+  double t0 = fg_time_monotonic();
+  CHECK(b && fg_check_wait(b, 5));
+  double waited = fg_time_monotonic() - t0;
+  CHECK(waited < 1.0); /* 0.2 s deadline + the clock's period */
+  CHECK(b && fg_check_get_state(b) == FG_CHECK_TIMED_OUT);
+  CHECK(a && !fg_check_ended(a));
+  fg_check_outcome o;
+  CHECK(b && fg_check_get_outcome(b, &o));
+  CHECK(o.state == FG_CHECK_TIMED_OUT && !o.has_verdict && o.samples == 0);
+  CHECK(a && !fg_check_get_outcome(a, &o)); /* still running */
+  if (a) fg_check_cancel(a);
+  CHECK(a && fg_check_wait(a, 5));
+  CHECK(a && fg_check_get_outcome(a, &o) && o.state == FG_CHECK_CANCELLED);
+  uint64_t n, k;
+  if (a) fg_check_progress(a, &n, &k);
+  CHECK(a && o.samples == n && o.satisfied == k && n > 0);
+  CHECK(fg_check_state_parse("running") == FG_CHECK_RUNNING);
+  CHECK(fg_check_state_parse("timed_out") == FG_CHECK_TIMED_OUT);
+  CHECK(fg_check_state_parse("interrupted") == FG_CHECK_INTERRUPTED);
+  CHECK((int)fg_check_state_parse("paused") == -1);
+  fg_check_unref(a);
+  fg_check_unref(b);
+  fg_pool_free(pool);
+  fg_request_free(&r);
+  fg_request_free(&q);
+}
+
 int main(void) {
   fg_model *m = fg_test_model(MODEL);
   if (!m) return fg_test_finish() | 1;
@@ -399,6 +448,7 @@ int main(void) {
   test_determinism(m);
   test_deterministic_problems(m);
   test_cancel(m);
+  test_deadline_and_outcome(m);
   test_pinned_counts();
   test_stop_early(m);
   test_designs(m);

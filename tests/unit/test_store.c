@@ -498,6 +498,23 @@ static void test_reopen(void) {
   fg_store_check_clear(&g);
   fg_problem_init(&p);
   CHECK_INT(fg_store_ping(s, &p), FG_OK);
+  fg_store_comparison gc;
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_get_comparison(s, "cmp_00000000000000000000000001", &gc,
+                                    &p),
+            FG_OK);
+  CHECK_STR(gc.status, "done");
+  fg_store_comparison_clear(&gc);
+  /* a comparison left running by a process that is gone: interrupted */
+  int left = 0;
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_mark_interrupted(s, &left, &p), FG_OK);
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_get_comparison(s, "cmp_00000000000000000000000003", &gc,
+                                    &p),
+            FG_OK);
+  CHECK_STR(gc.status, "interrupted");
+  fg_store_comparison_clear(&gc);
   fg_store_close(s);
 
   /* SQLite's own verdict on the file */
@@ -706,6 +723,72 @@ static void test_bad_urls(void) {
 
 /* The sections every backend must pass, on a fresh store at `u`; false
  * when it does not open. */
+/* Comparisons: the row kept beside its candidates' checks. */
+static void test_comparisons(fg_store *s) {
+  fg_problem p;
+  const char *d2 = "sha256:2222222222222222222222222222222222222222222222222222"
+                   "222222222222";
+  fg_store_comparison c;
+  memset(&c, 0, sizeof c);
+  snprintf(c.id, sizeof c.id, "cmp_00000000000000000000000001");
+  snprintf(c.model, sizeof c.model, "alpha");
+  c.version = 2;
+  snprintf(c.digest, sizeof c.digest, "%s", d2);
+  snprintf(c.status, sizeof c.status, "running");
+  snprintf(c.created_at, sizeof c.created_at, "2026-01-02T00:00:00Z");
+  snprintf(c.key, sizeof c.key, "ci");
+  c.checks = (char *)"[\"chk_00000000000000000000000001\","
+                     "\"chk_00000000000000000000000002\"]";
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_put_comparison(s, &c, &p), FG_OK);
+  /* the same id again is refused */
+  fg_problem_init(&p);
+  CHECK(fg_store_put_comparison(s, &c, &p) != FG_OK);
+  fg_store_comparison g;
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_get_comparison(s, c.id, &g, &p), FG_OK);
+  CHECK_STR(g.status, "running");
+  CHECK_STR(g.model, "alpha");
+  CHECK_INT(g.version, 2);
+  CHECK_STR(g.key, "ci");
+  CHECK_STR(g.finished_at, "");
+  CHECK_STR(g.checks, c.checks);
+  CHECK(g.result == NULL);
+  fg_store_comparison_clear(&g);
+  /* its end */
+  fg_store_comparison fin = c;
+  snprintf(fin.status, sizeof fin.status, "done");
+  snprintf(fin.finished_at, sizeof fin.finished_at, "2026-01-02T00:00:05Z");
+  fin.checks = NULL;
+  fin.result = (char *)"{\"status\":\"done\",\"pairs\":[]}";
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_finish_comparison(s, &fin, &p), FG_OK);
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_get_comparison(s, c.id, &g, &p), FG_OK);
+  CHECK_STR(g.status, "done");
+  CHECK_STR(g.finished_at, "2026-01-02T00:00:05Z");
+  CHECK_STR(g.result, fin.result);
+  CHECK_STR(g.checks, c.checks); /* kept */
+  fg_store_comparison_clear(&g);
+  /* unknown ids, an unknown model version */
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_get_comparison(s, "cmp_nope", &g, &p), FG_ENOTFOUND);
+  snprintf(fin.id, sizeof fin.id, "cmp_nope");
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_finish_comparison(s, &fin, &p), FG_ENOTFOUND);
+  snprintf(c.id, sizeof c.id, "cmp_00000000000000000000000002");
+  c.version = 9;
+  fg_problem_init(&p);
+  CHECK(fg_store_put_comparison(s, &c, &p) != FG_OK);
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_get_comparison(s, c.id, &g, &p), FG_ENOTFOUND);
+  /* one left running: the next start-up marks it interrupted */
+  c.version = 2;
+  snprintf(c.id, sizeof c.id, "cmp_00000000000000000000000003");
+  fg_problem_init(&p);
+  CHECK_INT(fg_store_put_comparison(s, &c, &p), FG_OK);
+}
+
 static bool run_sections(const char *u) {
   fg_store *s = NULL;
   fg_problem p;
@@ -717,6 +800,7 @@ static bool run_sections(const char *u) {
   }
   test_versions(s);
   test_checks(s);
+  test_comparisons(s);
   test_threads(s);
   test_faults(s);
   test_keys(s);
