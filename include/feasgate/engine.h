@@ -44,6 +44,14 @@ typedef enum fg_sampling {
   FG_SAMPLING_SOBOL
 } fg_sampling;
 
+/* The exact path (engine/exact.c): "auto" computes it beside the
+ * simulation when the model qualifies, "off" never. */
+typedef enum fg_exact_mode {
+  FG_EXACT_AUTO = 0,
+  FG_EXACT_OFF,
+  FG_EXACT_ONLY /* reserved: not accepted by the request parser yet */
+} fg_exact_mode;
+
 typedef enum fg_verdict {
   FG_VERDICT_PASS = 0,
   FG_VERDICT_FAIL = 1,
@@ -84,6 +92,7 @@ typedef struct fg_check_request {
   fg_interval_method interval;
   fg_sampling sampling;
   bool stop_early;
+  fg_exact_mode exact;
   char expect_digest[FG_DIGEST_MAX]; /* "" when absent */
   bool has_in_sample;
   uint64_t in_sample_seed, in_sample_count;

@@ -385,4 +385,49 @@
 #define FG_HTTP_TLS_FILE_MAX (1024 * 1024)
 
 
+
+/* ---- the exact path for jointly normal inputs (estimate/mvnprob.c,
+ * engine/exact.c) ---- */
+
+/* Half-rows (one-sided affine constraints; a range row gives two) one
+ * exact computation takes at most: the pivoted Gram-Schmidt reduction
+ * costs rows^2 * dims, 512^2 * 512 ~ 1.3e8 operations. */
+#define FG_EXACT_ROWS_MAX 512
+
+/* Jointly normal input dimensions the rows may involve at most (same
+ * reason). */
+#define FG_EXACT_DIMS_MAX 512
+
+/* Cells of the affine forms kept while reading coefficients out of the
+ * program (registers x (inputs + 1)): 4 Mi doubles, 32 MiB at most. */
+#define FG_EXACT_FORM_CELLS_MAX (4u * 1024 * 1024)
+
+/* Work bound of one exact computation, in multiply-add units: lattice
+ * points x (rows x rank + 30 x rank) over all rounds and shifts
+ * (estimate/mvnprob.c). 3e8 units is about a second on one idle core of
+ * the test machine: the exact path runs on the thread that starts
+ * the check, so it must stay short; past the bound it answers with the
+ * error it reached (converged false). */
+#define FG_EXACT_WORK_MAX 300000000.0
+
+/* Independent random shifts of the lattice; their spread gives the error
+ * estimate (Genz 1992: a small number, 10 here, of randomisations). */
+#define FG_EXACT_SHIFTS 10
+
+/* Lattice points per shift in the first round; each later round doubles
+ * them, at most FG_EXACT_ROUNDS_MAX rounds (so at most 1000 * 2^14
+ * points per shift before the work bound). */
+#define FG_EXACT_POINTS_FIRST 1000
+#define FG_EXACT_ROUNDS_MAX 15
+
+/* The error the exact path aims at (absolute, on the joint probability):
+ * well inside the 1e-4 the project's tests hold it to. */
+#define FG_EXACT_TARGET_ERROR 2e-5
+
+/* Reported error = this many standard errors of the mean over the
+ * FG_EXACT_SHIFTS shifts: with 9 degrees of freedom, Student's t puts
+ * 99.3% inside 3.5 (two-sided), so the bound is conservative. */
+#define FG_EXACT_ERROR_FACTOR 3.5
+
+
 #endif

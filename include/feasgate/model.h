@@ -42,6 +42,9 @@ typedef struct fg_model_summary {
   int uncertain, uncertain_dims;
   int definitions;
   int constraints, rows, deterministic_rows;
+  /* rows affine in the uncertain inputs / in the decisions / in both
+   * (expr/affine.c) */
+  int affine_in_inputs, affine_in_decisions, affine_in_both;
   bool objective;
 } fg_model_summary;
 

@@ -317,6 +317,7 @@ void fg_check_free_internal(struct fg_check *c) {
   fg_tally_free(&c->total);
   free(c->rows);
   free(c->setup_regs);
+  fg_exact_result_free(&c->exact);
   fg_request_free(&c->req);
   pthread_cond_destroy(&c->done_cv);
   pthread_mutex_destroy(&c->end_mu);
@@ -549,6 +550,18 @@ fg_status fg_check_start(fg_pool *pool, fg_model *m,
     c->setup_regs[c->info.decision_base + i] = c->req.decision[i];
   fg_program_run_setup(m->program, c->setup_regs);
   check_decisions(c);
+
+  /* The exact path (exact.c): here, on the calling thread, before the
+   * check is queued or visible, so no lock is held; its work is bounded
+   * by FG_EXACT_WORK_MAX (about a second at most), not by the check's
+   * cancel flag or deadline. */
+  c->exact.bad_row = -1;
+  if (c->req.exact != FG_EXACT_OFF) {
+    double t0 = fg_time_monotonic();
+    if (fg_exact_compute(m, c->setup_regs, c->req.seed, &c->exact) != FG_OK)
+      goto oom;
+    c->exact.elapsed_ms = (fg_time_monotonic() - t0) * 1000.0;
+  }
 
   /* The in-sample evaluation is the check's first task on the pool, under
    * its cancel flag and deadline (never on the caller's thread). */

@@ -244,6 +244,7 @@ fg_status fg_compare_parse(const fg_model *m, const cJSON *body,
       continue;
     }
     req.keep_outcomes = true;
+    req.exact = FG_EXACT_OFF; /* comparisons report no exact answer */
     req.stop_early = false;
     for (int j = 0; j < out->ncandidates; j++)
       if (strcmp(out->candidates[j].label, req.label) == 0) {

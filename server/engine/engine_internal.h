@@ -57,7 +57,30 @@ typedef struct fg_row_result {
   double excess_mean, excess_mean_if_violated, excess_p95, excess_max;
 } fg_row_result;
 
+/* exact.c: the exact path's answer for one check. */
+typedef struct fg_exact_result {
+  bool qualifies;       /* computed; otherwise `why` says why not */
+  char why[160];
+  int bad_row;          /* first non-qualifying row, or -1 */
+  double probability, error;
+  int rank, rounds;
+  uint64_t points;
+  bool converged;
+  const char *method;
+  double *row_probability; /* per row: exact violation probability */
+  double *row_error;
+  double elapsed_ms; /* time the computation took (fg_check_start) */
+} fg_exact_result;
+
+const char *fg_exact_mode_name(fg_exact_mode m);
+/* Computes the exact path at the decisions behind setup_regs (see
+ * exact.c). FG_OK also when the model does not qualify (qualifies false). */
+fg_status fg_exact_compute(const fg_model *m, const double *setup_regs,
+                           uint64_t seed, fg_exact_result *out);
+void fg_exact_result_free(fg_exact_result *r);
+
 struct fg_check {
+  fg_exact_result exact; /* with req.exact != off: set by fg_check_start */
   atomic_int refs;
   struct fg_pool *pool;
   fg_model *model;

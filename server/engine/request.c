@@ -26,7 +26,7 @@ void fg_request_limits_default(fg_request_limits *l) {
 static const char *const known_members[] = {
     "decision", "samples",     "seed",          "target",
     "confidence", "interval",  "stop_early",    "sampling",
-    "expect_digest", "in_sample", "label",      "wait_s"};
+    "expect_digest", "in_sample", "label",      "wait_s", "exact"};
 
 static bool is_known(const char *name) {
   for (size_t i = 0; i < sizeof known_members / sizeof *known_members; i++)
@@ -157,7 +157,7 @@ fg_status fg_request_parse(const fg_model *m, const cJSON *body,
       fg_problem_add(p, FG_EINVAL, ptr, 0,
                      "unknown member '%s' (known: decision, samples, seed, "
                      "target, confidence, interval, stop_early, sampling, "
-                     "expect_digest, in_sample, label, wait_s)",
+                     "expect_digest, in_sample, label, wait_s, exact)",
                      it->string);
     }
   }
@@ -216,6 +216,14 @@ fg_status fg_request_parse(const fg_model *m, const cJSON *body,
       out->sampling = (fg_sampling)found;
       fg_sampler_design_check(m->sampler, (fg_design)found, p);
     }
+  }
+  if ((v = cJSON_GetObjectItemCaseSensitive(body, "exact"))) {
+    const char *s = cJSON_GetStringValue(v);
+    if (s && strcmp(s, "auto") == 0) out->exact = FG_EXACT_AUTO;
+    else if (s && strcmp(s, "off") == 0) out->exact = FG_EXACT_OFF;
+    else
+      fg_problem_add(p, FG_EINVAL, "/exact", 0,
+                     "exact must be one of auto, off");
   }
   if ((v = cJSON_GetObjectItemCaseSensitive(body, "stop_early"))) {
     if (!cJSON_IsBool(v))
@@ -340,6 +348,7 @@ cJSON *fg_request_json(const fg_model *m, const fg_check_request *r) {
   cJSON_AddNumberToObject(o, "confidence", r->confidence);
   cJSON_AddStringToObject(o, "interval", fg_interval_method_name(r->interval));
   cJSON_AddBoolToObject(o, "stop_early", r->stop_early);
+  cJSON_AddStringToObject(o, "exact", fg_exact_mode_name(r->exact));
   cJSON_AddStringToObject(o, "sampling", fg_sampling_name(r->sampling));
   if (r->expect_digest[0])
     cJSON_AddStringToObject(o, "expect_digest", r->expect_digest);

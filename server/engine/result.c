@@ -77,6 +77,26 @@ static const char *method_of(const struct fg_check *c) {
   return fg_interval_method_name(c->req.interval);
 }
 
+/* joint.exact (exact.c): the exact joint probability, or why there is
+ * none; absent with "exact": "off". */
+static void add_exact(cJSON *j, struct fg_check *c) {
+  if (c->req.exact == FG_EXACT_OFF) return;
+  cJSON *e = cJSON_AddObjectToObject(j, "exact");
+  if (!c->exact.qualifies) {
+    cJSON_AddNullToObject(e, "probability");
+    cJSON_AddStringToObject(e, "not_applicable", c->exact.why);
+    return;
+  }
+  add_num(e, "probability", c->exact.probability);
+  add_num(e, "error", c->exact.error);
+  cJSON_AddStringToObject(e, "method", c->exact.method);
+  cJSON_AddNumberToObject(e, "rank", c->exact.rank);
+  cJSON_AddNumberToObject(e, "points", (double)c->exact.points);
+  cJSON_AddNumberToObject(e, "rounds", c->exact.rounds);
+  cJSON_AddBoolToObject(e, "converged", c->exact.converged);
+  add_num(e, "elapsed_ms", c->exact.elapsed_ms);
+}
+
 static void add_rows(cJSON *o, struct fg_check *c) {
   cJSON *arr = cJSON_AddArrayToObject(o, "constraints");
   if (!c->rows) return;
@@ -89,6 +109,11 @@ static void add_rows(cJSON *o, struct fg_check *c) {
     cJSON_AddNumberToObject(r, "violated", (double)rr->violated);
     add_num(r, "probability", rr->probability);
     cJSON_AddItemToObject(r, "interval", interval_json(rr->interval, method));
+    if (c->exact.qualifies) {
+      cJSON *e = cJSON_AddObjectToObject(r, "exact");
+      add_num(e, "probability", c->exact.row_probability[rr->row]);
+      add_num(e, "error", c->exact.row_error[rr->row]);
+    }
     cJSON *ex = cJSON_AddObjectToObject(r, "excess");
     add_num(ex, "mean", rr->excess_mean);
     /* Given violation: undefined (null) for a row never violated. The
@@ -223,6 +248,7 @@ cJSON *fg_check_result_json(fg_check *c, const fg_check_meta *meta) {
       cJSON_AddNumberToObject(j, "replicates", c->nrep);
       cJSON_AddNumberToObject(j, "replicate_size", (double)c->rep_size);
     }
+    add_exact(j, c);
     add_rows(o, c);
   } else {
     add_running(o, c);

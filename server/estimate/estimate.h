@@ -8,6 +8,8 @@
  *             buckets (bounded relative error) for excess quantiles;
  * tally.c     per-chunk counts: joint, per row, sole cause, excess sums,
  *             first failing scenarios; merged in chunk order.
+ * mvnprob.c   multivariate normal probabilities of polyhedra (Genz), for
+ *             the exact path of jointly normal affine models.
  *
  * Nothing here knows of HTTP, threads or storage. Functions are pure or act
  * on caller-owned structs; any thread may call them on its own data.
@@ -277,5 +279,25 @@ fg_status fg_size_query_solve(const fg_size_query *q, fg_size_answer *a,
  * each marginal combined with the phi correlation of the 2x2 table. */
 fg_interval fg_newcombe_paired(uint64_t both, uint64_t a_only, uint64_t b_only,
                                uint64_t neither, double confidence);
+
+
+/* ---- mvnprob.c: multivariate normal probabilities (Genz's method) ----
+ * P(H e <= b) for e ~ N(0, I_n), H m x n row-major (m <= FG_EXACT_ROWS_MAX,
+ * n <= FG_EXACT_DIMS_MAX), b_i may be +-inf. Singular systems (m > n,
+ * dependent rows, zero rows) are reduced first (see mvnprob.c). Stops when
+ * error <= target_error or at the work bound FG_EXACT_WORK_MAX; the
+ * shifts are drawn from `seed`. FG_ELIMIT beyond the size limits. */
+typedef struct fg_mvn_result {
+  double probability, error; /* error: FG_EXACT_ERROR_FACTOR std errors */
+  int rank, rows;            /* variables and rows after the reduction */
+  uint64_t points;           /* integrand evaluations of the last round */
+  int rounds;
+  bool converged;            /* error <= target_error */
+  const char *method;        /* "genz_lattice" or "closed_form" */
+} fg_mvn_result;
+
+fg_status fg_mvn_probability(const double *H, const double *b, int m, int n,
+                             double target_error, uint64_t seed,
+                             fg_mvn_result *out);
 
 #endif

@@ -161,4 +161,27 @@ void fg_program_run_block(const fg_program *prog, double *block_regs, int n);
  * its source span) for debugging and tests. */
 void fg_program_dump(const fg_program *prog, void *file /* FILE* */);
 
+
+/* ---- affine structure (affine.c; see its top comment) ---- */
+typedef struct fg_affine_row {
+  bool in_inputs;    /* affine in the uncertain inputs (coefficients may
+                        depend on decisions) */
+  bool in_decisions; /* affine in the decisions (coefficients may depend
+                        on uncertain inputs) */
+} fg_affine_row;
+
+fg_affine_row fg_program_affine(const fg_program *prog, int row);
+void fg_program_affine_counts(const fg_program *prog, int *in_inputs,
+                              int *in_decisions, int *both);
+/* The rows at fixed decisions as half-rows c + g . u <= 0 (u the flattened
+ * uncertain vector): `setup_regs` as left by fg_program_run_setup; `out`
+ * receives cap rows of (nuncertain + 1) doubles (c, g), row_of[h] the row
+ * of half-row h (a range row gives two; a deterministic row one with g = 0).
+ * Returns the number of half-rows; -1 when a row is not affine or not
+ * finite at these decisions (*bad_row names it); -2 beyond `cap`,
+ * FG_EXACT_DIMS_MAX inputs or FG_EXACT_FORM_CELLS_MAX; -3 out of memory. */
+int fg_program_affine_halfrows(const fg_program *prog, const double *setup_regs,
+                               double *out, int *row_of, int cap,
+                               int *bad_row);
+
 #endif

@@ -18,6 +18,8 @@
  *   interp.c   the batched interpreter (also used by the folder).
  *   fuse.c     multiply-add chains of the block stream, run as dense
  *              products by interp.c.
+ *   affine.c   which rows are affine in the inputs / decisions, and the
+ *              rows' coefficients at fixed decisions (exact path).
  *
  * Thread use: everything here runs on the one thread that compiles, except
  * the interpreter, which any thread may run on its own registers.
@@ -342,6 +344,10 @@ struct fg_program {
   fg_chain_term *terms;
   bool lane_tiled; /* chains hold most of the block stream: run it in
                       lane passes (interp.c) */
+  fg_affine_row *affine; /* per row (affine.c) */
 };
+
+/* affine.c: the structural analysis, run once by fg_expr_build_program. */
+bool fg_expr_affine_analyse(fg_program *prog);
 
 #endif

@@ -245,6 +245,8 @@ fg_status fg_expr_build_program(fg_expr_compiler *c, fg_program **out,
   st = build(c, prog, order, norder, nsetup, &as, p);
   if (st == FG_OK && !fg_expr_fuse(prog))
     st = fg_problem_set(p, FG_ENOMEM, "out of memory");
+  if (st == FG_OK && !fg_expr_affine_analyse(prog))
+    st = fg_problem_set(p, FG_ENOMEM, "out of memory");
 done:
   free(order);
   free(as.phys);
@@ -266,6 +268,7 @@ void fg_program_free(fg_program *prog) {
   free(prog->bcast);
   free(prog->segs);
   free(prog->terms);
+  free(prog->affine);
   for (int i = 0; i < prog->npointers; i++)
     free(prog->pointers[i]);
   free(prog->pointers);

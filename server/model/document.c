@@ -142,6 +142,9 @@ static fg_status fill_model(fg_model *m, fg_model_plan *pl, cJSON *doc,
       .deterministic_rows = info->ndeterministic_rows,
       .objective = info->objective_sense != FG_OBJECTIVE_NONE,
   };
+  fg_program_affine_counts(m->program, &m->summary.affine_in_inputs,
+                           &m->summary.affine_in_decisions,
+                           &m->summary.affine_in_both);
   m->document = doc;
   return FG_OK;
 }

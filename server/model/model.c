@@ -128,7 +128,10 @@ cJSON *fg_model_summary_json(const fg_model *m) {
                 {"definitions", s->definitions},
                 {"constraints", s->constraints},
                 {"rows", s->rows},
-                {"deterministic_rows", s->deterministic_rows}};
+                {"deterministic_rows", s->deterministic_rows},
+                {"affine_in_inputs", s->affine_in_inputs},
+                {"affine_in_decisions", s->affine_in_decisions},
+                {"affine_in_both", s->affine_in_both}};
   for (size_t i = 0; i < sizeof counts / sizeof counts[0]; i++)
     if (!cJSON_AddNumberToObject(o, counts[i].key, counts[i].value)) {
       cJSON_Delete(o);

@@ -59,6 +59,17 @@ const char *fg_sampler_column(const fg_sampler *s, int j);
  * with integer values, ...); used by CSV output. */
 int fg_sampler_integer_valued(const fg_sampler *s, int j);
 
+/* Dimension j as a coordinate of a jointly normal vector (exact path):
+ * 1 when it is an element of a `normal` input without truncation or of a
+ * `multivariate_normal` input, outside any copula; then *mean is its mean,
+ * its block of jointly normal dimensions is [*group, *group + *gsize) and
+ * *lrow its row of the block's lower factor (gsize values: x_j = mean +
+ * sum_k lrow[k] e_(group + k), e standard normal). 0 otherwise. A Gaussian
+ * copula member with normal margins is jointly normal too, but is not
+ * offered here (its factor lives in the copula). */
+int fg_sampler_gaussian(const fg_sampler *s, int j, double *mean, int *group,
+                        int *gsize, const double **lrow);
+
 fg_sample_scratch *fg_sample_scratch_new(const fg_sampler *s);
 void fg_sample_scratch_free(fg_sample_scratch *w);
 

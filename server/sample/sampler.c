@@ -268,6 +268,27 @@ int fg_sampler_dims(const fg_sampler *s) {
   return s->dims;
 }
 
+int fg_sampler_gaussian(const fg_sampler *s, int j, double *mean, int *group,
+                        int *gsize, const double **lrow) {
+  for (int k = 0; k < s->ninputs; k++) {
+    const fg_input *in = &s->inputs[k];
+    if (j < in->base || j >= in->base + in->size) continue;
+    int e = j - in->base;
+    if (in->copula >= 0) return 0;
+    if (in->kind == FG_FAM_NORMAL && !in->truncated) {
+      *mean = in->par[0][e], *group = j, *gsize = 1, *lrow = &in->par[1][e];
+      return 1;
+    }
+    if (in->kind == FG_FAM_MVN) {
+      *mean = in->par[0][e], *group = in->base, *gsize = in->size;
+      *lrow = in->chol + (size_t)e * (size_t)in->size;
+      return 1;
+    }
+    return 0;
+  }
+  return 0;
+}
+
 const char *fg_sampler_column(const fg_sampler *s, int j) {
   return j >= 0 && j < s->dims ? s->columns[j] : NULL;
 }

@@ -139,6 +139,39 @@ class Daemon:
         shutil.rmtree(self.dir, ignore_errors=True)
 
 
+def exact_vs_simulation(binary, paths, rate1):
+    """The exact path (jointly normal affine rows: Genz's method) against
+    the simulation at the same accuracy: the exact error is 3.5 standard
+    errors, so the simulation needs p(1-p) / (error/3.5)^2 samples for the
+    same standard error; its time is that count at the measured 1-worker
+    rate. The exact time is joint.exact.elapsed_ms of a 64-sample check."""
+    with open(paths["request"]) as f:
+        req = json.load(f)
+    req.update(samples=64, exact="auto")
+    with tempfile.TemporaryDirectory() as d:
+        rp = os.path.join(d, "r.json")
+        with open(rp, "w") as f:
+            json.dump(req, f)
+        proc = subprocess.run([binary, "check", paths["model"], rp, "--workers", "1"],
+                              capture_output=True, text=True)
+    try:
+        ex = json.loads(proc.stdout)["joint"]["exact"]
+    except (ValueError, KeyError):
+        print("exact affine: no answer (%s)" % proc.stderr.strip()[:200])
+        return
+    if ex.get("probability") is None:
+        print("exact affine: not applicable: %s" % ex.get("not_applicable"))
+        return
+    p, err = ex["probability"], ex["error"]
+    se = err / 3.5 if err > 0 else float("nan")
+    n_same = p * (1 - p) / (se * se) if err > 0 else float("inf")
+    print("exact affine: P %.6f, error %.2g (%s, rank %d, %d points), %.1f ms; "
+          "simulation for the same standard error: %.3g samples, %.2f s at "
+          "%s (1 worker)" % (p, err, ex["method"], ex["rank"], ex["points"],
+                             ex["elapsed_ms"], n_same, n_same / rate1,
+                             fmt_rate(rate1)))
+
+
 def fmt_rate(x):
     return "%.3g M/s" % (x / 1e6)
 
@@ -167,9 +200,16 @@ def main():
         "workload", "workers", "samples", "feasgate", "setup", "numpy",
         "ratio", "2w/1w", "P f/np"))
     rates = {}
+    blas_told = False
     for name in names:
         s = SAMPLES[name] // scale
         npres = numpy_side(name, paths[name], NUMPY_SAMPLES[name] // scale)
+        if not blas_told:
+            blas = npres.get("blas") or ["(none mapped)"]
+            kind = ("OpenBLAS" if any("openblas" in b for b in blas) else
+                    "reference BLAS" if any("/blas/" in b for b in blas) else "?")
+            print("numpy BLAS: %s (%s)" % (kind, ", ".join(blas)))
+            blas_told = True
         np_rate = npres["samples"] / npres["seconds"]
         np_p = npres["joint"] / npres["samples"]
         one = None
@@ -184,6 +224,9 @@ def main():
                 rate / np_rate, "%.2fx" % (rate / one) if w == 2 else "",
                 "%.4f/%.4f" % (p, np_p)))
         sys.stdout.flush()
+
+    if "affine" in names and ("affine", 1) in rates:
+        exact_vs_simulation(args.bin, paths["affine"], rates[("affine", 1)])
 
     http_names = [n for n in ("affine", "chain", "theatre") if n in names]
     if http_names:

@@ -2,7 +2,10 @@
 workload, the yardstick feasgate's throughput is compared against.
 
 Usage: /usr/bin/python3 numpy_side.py WORKLOAD PARAMS.json SAMPLES
-prints one JSON line {"samples", "seconds", "joint", "rows"}.
+prints one JSON line {"samples", "seconds", "joint", "rows", "blas"};
+"blas" lists the BLAS/LAPACK libraries the process had mapped after a
+matrix product (read from /proc/self/maps), so every figure says which
+BLAS NumPy ran on.
 
 Design: a straightforward, vectorised NumPy program of the kind a team
 writes in a notebook: numpy.random.default_rng (PCG64, NumPy's ziggurat
@@ -142,6 +145,23 @@ def microgrid(p, rng, b):
     return run
 
 
+def blas_in_use():
+    """The BLAS/LAPACK shared objects this process has mapped after a
+    matrix product (NumPy picks libblas.so.3 through Debian's alternatives:
+    OpenBLAS when libopenblas0-pthread is installed, else the reference
+    BLAS)."""
+    a = np.ones((64, 64))
+    _ = a @ a
+    libs = set()
+    with open("/proc/self/maps") as f:
+        for ln in f:
+            path = ln.split()[-1] if len(ln.split()) >= 6 else ""
+            base = path.rsplit("/", 1)[-1]
+            if "blas" in base or "lapack" in base:
+                libs.add(path)
+    return sorted(libs)
+
+
 def main():
     name, path, samples = sys.argv[1], sys.argv[2], int(sys.argv[3])
     with open(path) as f:
@@ -160,7 +180,7 @@ def main():
         done += n
     secs = time.perf_counter() - t0
     print(json.dumps({"samples": samples, "seconds": secs, "joint": joint,
-                      "rows": [int(x) for x in rows]}))
+                      "rows": [int(x) for x in rows], "blas": blas_in_use()}))
 
 
 if __name__ == "__main__":

@@ -488,6 +488,40 @@ static void test_compile_minimal(void) {
   fg_model_unref(m);
 }
 
+/* The affine structure of rows (expr/affine.c), counted in the summary:
+ * by hand, row by row. */
+static void test_affine_summary(void) {
+  const char *doc =
+      "{\"format\":1,\"name\":\"aff\",\"decisions\":[{\"name\":\"x\","
+      "\"size\":2}],\"uncertain\":[{\"name\":\"z\",\"size\":2,"
+      "\"distribution\":{\"family\":\"normal\",\"mean\":0,\"sd\":1}}],"
+      "\"constraints\":["
+      /* affine in z (coefficient x0) and in x (coefficient z0): both */
+      "{\"name\":\"a\",\"require\":\"x[0]*z[0] + 2*z[1] <= 5 - x[1]\"},"
+      /* z0*z1: in neither z (product) nor... x-free, so affine in x */
+      "{\"name\":\"b\",\"require\":\"z[0]*z[1] <= 3\"},"
+      /* x0*x1: affine in z, not in x */
+      "{\"name\":\"c\",\"require\":\"1 <= x[0]*x[1] + z[0] <= 9\"},"
+      /* division by an input: not affine in z; affine in x */
+      "{\"name\":\"d\",\"require\":\"x[0] / z[1] <= 2\"},"
+      /* max of inputs: not affine in z */
+      "{\"name\":\"e\",\"require\":\"max(z[0], z[1]) <= x[0]\"},"
+      /* deterministic: affine in z (no z), and in x */
+      "{\"name\":\"f\",\"require\":\"x[0] + x[1] <= 4\"}]}";
+  fg_problem p;
+  fg_model *m = NULL;
+  CHECK(compile(doc, &p, &m) == FG_OK);
+  if (!m) {
+    dump_problem(&p);
+    return;
+  }
+  /* in inputs: a, c, f; in decisions: a, b, d, e, f; both: a, f */
+  CHECK_INT(m->summary.affine_in_inputs, 3);
+  CHECK_INT(m->summary.affine_in_decisions, 5);
+  CHECK_INT(m->summary.affine_in_both, 2);
+  fg_model_unref(m);
+}
+
 /* Build a document from the valid one with `from` replaced by `to`. */
 static char *edit(const char *from, const char *to) {
   const char *at = strstr(valid_model, from);
@@ -912,6 +946,7 @@ int main(void) {
   test_canonical();
   test_compile_valid();
   test_compile_minimal();
+  test_affine_summary();
   test_compile_errors();
   test_limits();
   test_cache();

@@ -24,6 +24,7 @@
 #include "estimate/estimate.h"
 
 #include <stdio.h>
+#include <stdlib.h>
 #include <string.h>
 
 static int interval(const char *method, int counted) {
@@ -44,12 +45,36 @@ static int interval(const char *method, int counted) {
   return 0;
 }
 
+/* mvn SEED TARGET: reads "m n", then H (m x n, row-major) and b (m) from
+ * stdin; prints "probability error rank rounds converged". */
+static int mvn(uint64_t seed, double target) {
+  int m, n;
+  if (scanf("%d %d", &m, &n) != 2 || m < 0 || n < 0 ||
+      m > FG_EXACT_ROWS_MAX || n > FG_EXACT_DIMS_MAX)
+    return 2;
+  double *H = malloc(((size_t)m * n + 1) * sizeof(double));
+  double *b = malloc(((size_t)m + 1) * sizeof(double));
+  if (!H || !b) return 2;
+  for (size_t i = 0; i < (size_t)m * n; i++)
+    if (scanf("%lf", &H[i]) != 1) return 2;
+  for (int i = 0; i < m; i++)
+    if (scanf("%lf", &b[i]) != 1) return 2;
+  fg_mvn_result r;
+  if (fg_mvn_probability(H, b, m, n, target, seed, &r) != FG_OK) return 1;
+  printf("%.17g %.17g %d %d %d\n", r.probability, r.error, r.rank, r.rounds,
+         r.converged ? 1 : 0);
+  free(H), free(b);
+  return 0;
+}
+
 int main(int argc, char **argv) {
   const char *cmd = argc >= 2 ? argv[1] : "";
   double a, b, x, u, uc;
   if (argc >= 3 && strcmp(cmd, "interval") == 0) return interval(argv[2], 0);
   if (argc >= 3 && strcmp(cmd, "interval_count") == 0)
     return interval(argv[2], 1);
+  if (argc >= 4 && strcmp(cmd, "mvn") == 0)
+    return mvn(strtoull(argv[2], NULL, 10), strtod(argv[3], NULL));
   if (strcmp(cmd, "quantile") == 0) {
     while (scanf("%lf %lf %lf", &u, &a, &b) == 3)
       printf("%.17g\n", fg_beta_quantile(u, a, b));
