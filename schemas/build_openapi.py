@@ -36,6 +36,7 @@ COMPONENTS = [
     ("comparison-request.schema.json", "ComparisonRequest"),
     ("comparison-result.schema.json", "ComparisonResult"),
     ("scenarios.schema.json", "Scenarios"),
+    ("explained-scenario.schema.json", "ExplainedScenario"),
     ("sample-size.schema.json", "SampleSize"),
     ("health.schema.json", "Health"),
     ("limits.schema.json", "Limits"),
@@ -113,6 +114,7 @@ ERROR_NAMES = {
     410: "Gone",
     413: "PayloadTooLarge",
     415: "UnsupportedMediaType",
+    422: "Unprocessable",
     500: "InternalError",
     503: "Unavailable",
 }
@@ -130,6 +132,8 @@ ERROR_TEXT = {
          "no new checks are accepted.",
     413: "The body exceeds the body-size limit (limit names it).",
     415: "The body is not application/json.",
+    422: "Understood but not possible for this check (for example a "
+         "scenario of a Latin hypercube or Sobol check).",
     500: "An internal fault; nothing was half written.",
     503: "Overloaded (the work queue is full) or not ready; Retry-After "
          "says when to try again.",
@@ -283,6 +287,23 @@ def paths():
                  **errors(401, 403, 404, 409, 500, 503)),
             description="A check that has already ended is answered 409 and "
                         "left as it is.",
+        ),
+    }
+    p["/v1/checks/{id}/scenarios/{index}"] = {
+        "parameters": [id_p, {"name": "index", "in": "path", "required": True,
+                              "schema": {"type": "integer", "minimum": 0},
+                              "description": "Sample index, below the check's samples."}],
+        "get": op(
+            "explainScenario", "One scenario of a check, explained", "reader",
+            dict({"200": json_body("ExplainedScenario",
+                                   "The inputs drawn for that sample, the "
+                                   "definitions and every row's excess, "
+                                   "recomputed from the stored model version, "
+                                   "request and seed.")},
+                 **errors(400, 401, 403, 404, 422, 500, 503)),
+            description="Indices of failing_scenarios give the scenarios that "
+                        "failed. Latin hypercube and Sobol checks are answered "
+                        "422: their samples are drawn replicate by replicate.",
         ),
     }
     p["/v1/models/{name}/comparisons"] = {

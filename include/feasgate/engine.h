@@ -220,6 +220,16 @@ fg_status fg_scenarios_write(const fg_model *m, const fg_scenarios_params *q,
 fg_status fg_scenarios_render(const fg_model *m, const fg_scenarios_params *q,
                               char **out, size_t *len, fg_problem *p);
 
+/* ---- one scenario explained (explain.c) ----
+ * Sample `index` of the check that `req` (seed filled in) describes, on
+ * model `m`: {"index", "seed", "stream", "sampling", "inputs",
+ * "definitions", "rows": [{"name", "excess", "holds"}], "holds"}, exactly
+ * the values the check counted. FG_EUNSUPPORTED for Latin hypercube and
+ * Sobol checks; FG_EINVAL (pointer /index) for an index beyond samples. */
+fg_status fg_explain_scenario(const fg_model *m, const fg_check_request *req,
+                              uint64_t index, struct cJSON **out,
+                              fg_problem *p);
+
 /* ---- comparisons (compare.c) ----
  * Several candidates judged on the same scenarios (common random numbers:
  * one seed on the validation stream for all), then every pair compared

@@ -155,6 +155,8 @@ fg_status fg_http_load_model(fg_server *srv, const char *name, int version,
 /* ---- checks.c ---- */
 void fg_h_checks_create(fg_req *r, fg_resp *out);
 void fg_h_check_get(fg_req *r, fg_resp *out);
+/* explain.c: GET /v1/checks/{id}/scenarios/{index} */
+void fg_h_check_scenario(fg_req *r, fg_resp *out);
 void fg_h_checks_list(fg_req *r, fg_resp *out);
 void fg_h_check_cancel(fg_req *r, fg_resp *out);
 /* A new time-sortable id: `prefix` ("chk_", "cmp_") + 26 base32

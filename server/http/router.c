@@ -39,6 +39,7 @@ static const fg_route_entry routes[] = {
     {"DELETE", "/v1/comparisons/{id}", fg_h_comparison_cancel},
     {"GET", "/v1/checks", fg_h_checks_list},
     {"GET", "/v1/checks/{id}", fg_h_check_get},
+    {"GET", "/v1/checks/{id}/scenarios/{index}", fg_h_check_scenario},
     {"DELETE", "/v1/checks/{id}", fg_h_check_cancel},
     {"GET", "/v1/health", fg_h_health},
     {"GET", "/v1/ready", fg_h_ready},
