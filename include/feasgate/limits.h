@@ -117,8 +117,13 @@
  * about 25 bytes each printed, so the largest body stays near 100 MB. */
 #define FG_SCENARIO_CELLS_MAX 4000000ull
 
-/* Failing scenarios reported per check. */
+/* Failing scenarios reported per check by default. */
 #define FG_FAILING_SCENARIOS 5
+/* Failing scenarios a request may ask for (failing_scenarios_count): each
+ * kept record is ~80 bytes in every chunk tally of a running check, so
+ * 100 keeps a tally's records under 8 kB and a result body small, while
+ * giving enough scenarios to explain one by one. */
+#define FG_FAILING_SCENARIOS_MAX 100
 
 /* Largest seed accepted: seeds travel as JSON numbers, which are exact
  * integers up to 2^53. */
@@ -228,6 +233,7 @@
   X("comparison_candidates", FG_COMPARE_CANDIDATES_MAX)                        \
   X("comparison_samples", FG_COMPARE_SAMPLES_MAX)                              \
   X("failing_scenarios", FG_FAILING_SCENARIOS)                               \
+  X("failing_scenarios_count", FG_FAILING_SCENARIOS_MAX)                     \
   X("sobol_dimensions", FG_SOBOL_DIMS_MAX)                                \
   X("scenario_cells", FG_SCENARIO_CELLS_MAX)
 

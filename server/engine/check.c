@@ -537,6 +537,13 @@ fg_status fg_check_start(fg_pool *pool, fg_model *m,
   for (int i = 0; i < c->window; i++)
     if (fg_tally_init(&c->slots[i], c->info.nrows) != FG_OK) goto oom;
   if (fg_tally_init(&c->total, c->info.nrows) != FG_OK) goto oom;
+  if (c->req.failing_count > 0) {
+    int keep = c->req.failing_count < FG_FAILING_SCENARIOS_MAX
+                   ? c->req.failing_count
+                   : FG_FAILING_SCENARIOS_MAX;
+    c->total.fail_keep = keep;
+    for (int i = 0; i < c->window; i++) c->slots[i].fail_keep = keep;
+  }
   if (c->design == FG_DESIGN_ANTITHETIC) {
     c->total.pairs = true;
     for (int i = 0; i < c->window; i++) c->slots[i].pairs = true;

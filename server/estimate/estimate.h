@@ -155,7 +155,9 @@ typedef struct fg_tally {
   fg_row_tally *rows;
   double objective_sum;
   int nfail;
-  fg_fail_record fail[FG_FAILING_SCENARIOS];
+  int fail_keep; /* records kept, 0..FG_FAILING_SCENARIOS_MAX (init:
+                    FG_FAILING_SCENARIOS); kept by reset */
+  fg_fail_record fail[FG_FAILING_SCENARIOS_MAX];
   /* Non-finite draws of uncertain inputs (fg_tally_inputs): how many
    * values, and the first by sample index (ties: the lower column). */
   uint64_t bad_draws;

@@ -34,6 +34,7 @@
 fg_status fg_tally_init(fg_tally *t, int nrows) {
   memset(t, 0, sizeof *t);
   t->nrows = nrows;
+  t->fail_keep = FG_FAILING_SCENARIOS;
   t->rows = calloc(nrows > 0 ? (size_t)nrows : 1, sizeof *t->rows);
   if (!t->rows) return FG_ENOMEM;
   t->bad_draw_first = FG_INDEX_NONE;
@@ -92,7 +93,7 @@ void fg_tally_merge(fg_tally *dst, const fg_tally *src) {
     d->excess_sum += s->excess_sum;
     fg_hist_merge(&d->hist, &s->hist);
   }
-  for (int i = 0; i < src->nfail && dst->nfail < FG_FAILING_SCENARIOS; i++)
+  for (int i = 0; i < src->nfail && dst->nfail < dst->fail_keep; i++)
     dst->fail[dst->nfail++] = src->fail[i];
   dst->bad_draws += src->bad_draws;
   if (src->bad_draw_first < dst->bad_draw_first ||
@@ -336,9 +337,9 @@ void fg_tally_block(fg_tally *t, const double *const *excess, int n,
   /* the caller's view: scratch[s] is 0 exactly where sample s held */
   for (int s = 0; s < n; s++)
     scratch[s] = (int)((any[s >> 6] >> (s & 63)) & 1);
-  for (int w = 0; w < MASK_WORDS && t->nfail < FG_FAILING_SCENARIOS; w++) {
+  for (int w = 0; w < MASK_WORDS && t->nfail < t->fail_keep; w++) {
     for (uint64_t bits = any[w];
-         bits && t->nfail < FG_FAILING_SCENARIOS; bits &= bits - 1) {
+         bits && t->nfail < t->fail_keep; bits &= bits - 1) {
       int s = 64 * w + __builtin_ctzll(bits);
       fg_fail_record *f = &t->fail[t->nfail++];
       f->index = first + (uint64_t)s;
