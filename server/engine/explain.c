@@ -21,8 +21,9 @@
  *        array}, "rows": [{"name", "excess", "holds"}], "holds"}
  * "excess" is the row's left side minus its limit (for a range row the
  * larger of the two sides' excesses): positive, violated by that much;
- * zero or negative, it holds. Rows are in the model's order. Non-finite
- * values are JSON null (a NaN row does not hold).
+ * zero or negative, it holds. Rows are in the model's order. Numbers are
+ * printed with %.17g (they read back exactly); non-finite values are JSON
+ * null (a NaN row does not hold).
  *
  * Invariants: index < the check's samples (whole pairs for antithetic
  * sampling); definitions come from a second program (model/defprog.c)
@@ -40,8 +41,14 @@
 #include <stdlib.h>
 #include <string.h>
 
+/* A number as %.17g text (cJSON's own printing may drop the last bit:
+ * its round-trip test allows a relative epsilon), so every value reads
+ * back exactly, like the scenarios endpoint's; null when not finite. */
 static cJSON *num_or_null(double v) {
-  return isfinite(v) ? cJSON_CreateNumber(v) : cJSON_CreateNull();
+  if (!isfinite(v)) return cJSON_CreateNull();
+  char t[40];
+  snprintf(t, sizeof t, "%.17g", v);
+  return cJSON_CreateRaw(t);
 }
 
 /* Run the setup and one block of `prog` with decisions and the drawn
