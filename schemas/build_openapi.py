@@ -37,6 +37,7 @@ COMPONENTS = [
     ("comparison-result.schema.json", "ComparisonResult"),
     ("scenarios.schema.json", "Scenarios"),
     ("explained-scenario.schema.json", "ExplainedScenario"),
+    ("replay-result.schema.json", "ReplayResult"),
     ("sample-size.schema.json", "SampleSize"),
     ("health.schema.json", "Health"),
     ("limits.schema.json", "Limits"),
@@ -304,6 +305,24 @@ def paths():
             description="Indices of failing_scenarios give the scenarios that "
                         "failed. Latin hypercube and Sobol checks are answered "
                         "422: their samples are drawn replicate by replicate.",
+        ),
+    }
+    p["/v1/checks/{id}/replay"] = {
+        "parameters": [id_p],
+        "post": op(
+            "replayCheck", "Re-run a logged check and compare its counts", "checker",
+            dict({"201": {"description": "The replay ended within the server's "
+                                         "max_wait: reproduced says whether every "
+                                         "count is identical, differences lists "
+                                         "those that are not.",
+                          "content": {"application/json": {"schema": ref("ReplayResult")}}},
+                  "202": {"description": "The replay still runs (reproduced null); "
+                                         "it is logged as a check with replay_of.",
+                          "content": {"application/json": {"schema": ref("ReplayResult")}}}},
+                 **errors(401, 403, 404, 409, 500, 503)),
+            description="Runs the stored request (its seed included) on the stored "
+                        "model version as a new check that carries replay_of. "
+                        "A check still running, or ended without counts, is 409.",
         ),
     }
     p["/v1/models/{name}/comparisons"] = {

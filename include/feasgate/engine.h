@@ -182,6 +182,7 @@ typedef struct fg_check_meta {
   const char *created_at;  /* RFC 3339 UTC */
   const char *finished_at; /* NULL while running */
   const char *key;         /* key name; NULL when none */
+  const char *replay_of;   /* id of the check this one replays; NULL none */
 } fg_check_meta;
 
 /* The result body of http-api.md (status, verdict, joint, constraints,

@@ -193,6 +193,8 @@ cJSON *fg_check_result_json(fg_check *c, const fg_check_meta *meta) {
   fg_check_state state = fg_check_get_state(c);
   bool ended = fg_check_state_is_end(state);
   if (meta && meta->id) cJSON_AddStringToObject(o, "id", meta->id);
+  if (meta && meta->replay_of && meta->replay_of[0])
+    cJSON_AddStringToObject(o, "replay_of", meta->replay_of);
   cJSON_AddStringToObject(o, "status", fg_check_state_name(state));
   cJSON *mo = cJSON_AddObjectToObject(o, "model");
   cJSON_AddStringToObject(mo, "name", c->model->name);

@@ -40,6 +40,7 @@ static const fg_route_entry routes[] = {
     {"GET", "/v1/checks", fg_h_checks_list},
     {"GET", "/v1/checks/{id}", fg_h_check_get},
     {"GET", "/v1/checks/{id}/scenarios/{index}", fg_h_check_scenario},
+    {"POST", "/v1/checks/{id}/replay", fg_h_check_replay},
     {"DELETE", "/v1/checks/{id}", fg_h_check_cancel},
     {"GET", "/v1/health", fg_h_health},
     {"GET", "/v1/ready", fg_h_ready},
