@@ -31,6 +31,7 @@
 
 #include "core/quantile.h"
 
+#include <float.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -354,6 +355,27 @@ static int row_cmp(const void *pa, const void *pb) {
   return a->row - b->row;
 }
 
+/* Slack to target of one row: the smallest s >= 0 with
+ *   #(excess <= s) >= ceil(target * n).
+ * The rows that hold (n - violated) count at s = 0; the rest must come
+ * from the finite positive excesses, whose histogram gives the value of
+ * rank `need` within FG_HIST_REL_ERROR relative (hist.c). NaN and +inf
+ * excesses never hold, so when too many of them remain no finite slack
+ * exists (NAN). */
+static double slack_to_target(const fg_row_tally *rt, uint64_t n,
+                              double target) {
+  if (n == 0) return NAN;
+  uint64_t holds = n - rt->violated;
+  /* ceil(target * n), the product's rounding kept from adding a sample */
+  double want = ceil(target * (double)n * (1 - 4 * DBL_EPSILON));
+  if ((double)holds >= want) return 0;
+  uint64_t finite = rt->violated - rt->nonfinite - rt->infinite;
+  double need = want - (double)holds; /* >= 1 */
+  if (need > (double)finite || finite == 0) return NAN;
+  /* rank ceil(q * finite) == need exactly with q = (need - 1/2) / finite */
+  return fg_hist_quantile(&rt->hist, (need - 0.5) / (double)finite);
+}
+
 /* Under merge_mu, once the end is decided: the end-of-run figures. */
 static void finalize(struct fg_check *c) {
   fg_fault_slow_interval(c->req.seed);
@@ -405,6 +427,7 @@ static void finalize(struct fg_check *c) {
       rr->excess_mean_if_violated = finite ? rt->excess_sum / (double)finite : 0;
       rr->excess_p95 = finite ? fg_hist_quantile(&rt->hist, 0.95) : 0;
       rr->excess_max = finite ? rt->hist.max : 0;
+      rr->slack_to_target = slack_to_target(rt, n, c->req.target);
     }
     qsort(c->rows, (size_t)c->info.nrows, sizeof *c->rows, row_cmp);
   }

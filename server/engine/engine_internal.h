@@ -55,6 +55,10 @@ typedef struct fg_row_result {
   double probability; /* violation probability */
   fg_interval interval;
   double excess_mean, excess_mean_if_violated, excess_p95, excess_max;
+  /* The least loosening of this row's limit that makes it alone hold in
+   * a fraction >= target of the samples: 0 when it already does; NAN
+   * when no finite loosening can (NaN or +inf excess in too many). */
+  double slack_to_target;
 } fg_row_result;
 
 struct fg_check {

@@ -98,6 +98,9 @@ static void add_rows(cJSON *o, struct fg_check *c) {
     add_num(ex, "mean_if_violated", any ? rr->excess_mean_if_violated : NAN);
     add_num(ex, "p95", any ? rr->excess_p95 : NAN);
     add_num(ex, "max", any ? rr->excess_max : NAN);
+    /* Per row only: loosening every row by its own slack does not by
+     * itself bring the joint probability to the target. */
+    add_num(r, "slack_to_target", rr->slack_to_target);
     cJSON_AddNumberToObject(r, "sole_cause", (double)rr->sole);
     cJSON_AddNumberToObject(r, "nonfinite", (double)rr->nonfinite);
     cJSON_AddBoolToObject(r, "deterministic", row->deterministic);
