@@ -89,6 +89,7 @@ typedef struct fg_check_request {
   uint64_t in_sample_seed, in_sample_count;
   char label[FG_LABEL_MAX + 1]; /* "" when absent */
   double wait_s;
+  bool explain; /* "explain": drivers per row and for the joint */
   int failing_count; /* failing scenarios listed, 1..FG_FAILING_SCENARIOS_MAX;
                         0 (absent) means FG_FAILING_SCENARIOS */
   /* Not part of the request body: set by callers that need every sample's

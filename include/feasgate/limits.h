@@ -125,6 +125,15 @@
  * giving enough scenarios to explain one by one. */
 #define FG_FAILING_SCENARIOS_MAX 100
 
+/* Drivers ("explain": true): one accumulator per constraint row (and the
+ * joint) and uncertain input component, in every chunk tally of a running
+ * check. 65536 cells keep a tally's sums at 512 kB, so a check's window of
+ * tallies stays within tens of MB on the largest pool, and the per-block
+ * cost at rows x components additions per sample. */
+#define FG_EXPLAIN_CELLS_MAX 65536
+/* Drivers listed per row: the components with the largest |shift|. */
+#define FG_DRIVERS_LISTED 5
+
 /* Largest seed accepted: seeds travel as JSON numbers, which are exact
  * integers up to 2^53. */
 #define FG_SEED_MAX 9007199254740991ull
@@ -234,6 +243,7 @@
   X("comparison_samples", FG_COMPARE_SAMPLES_MAX)                              \
   X("failing_scenarios", FG_FAILING_SCENARIOS)                               \
   X("failing_scenarios_count", FG_FAILING_SCENARIOS_MAX)                     \
+  X("explain_cells", FG_EXPLAIN_CELLS_MAX)                                   \
   X("sobol_dimensions", FG_SOBOL_DIMS_MAX)                                \
   X("scenario_cells", FG_SCENARIO_CELLS_MAX)
 

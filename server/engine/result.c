@@ -77,6 +77,26 @@ static const char *method_of(const struct fg_check *c) {
   return fg_interval_method_name(c->req.interval);
 }
 
+/* "drivers" of a row or the joint (with "explain": true): null when no
+ * sample violated, else up to FG_DRIVERS_LISTED {"input", "shift"},
+ * largest |shift| first (check.c drivers_of). */
+static void add_drivers(cJSON *o, const struct fg_check *c,
+                        const fg_drivers *d) {
+  if (!c->req.explain) return;
+  if (!d->known) {
+    cJSON_AddNullToObject(o, "drivers");
+    return;
+  }
+  cJSON *a = cJSON_AddArrayToObject(o, "drivers");
+  for (int i = 0; a && i < d->n; i++) {
+    cJSON *e = cJSON_CreateObject();
+    cJSON_AddStringToObject(e, "input",
+                            fg_sampler_column(c->model->sampler, d->col[i]));
+    cJSON_AddNumberToObject(e, "shift", d->shift[i]);
+    cJSON_AddItemToArray(a, e);
+  }
+}
+
 static void add_rows(cJSON *o, struct fg_check *c) {
   cJSON *arr = cJSON_AddArrayToObject(o, "constraints");
   if (!c->rows) return;
@@ -101,6 +121,7 @@ static void add_rows(cJSON *o, struct fg_check *c) {
     /* Per row only: loosening every row by its own slack does not by
      * itself bring the joint probability to the target. */
     add_num(r, "slack_to_target", rr->slack_to_target);
+    add_drivers(r, c, &rr->drivers);
     cJSON_AddNumberToObject(r, "sole_cause", (double)rr->sole);
     cJSON_AddNumberToObject(r, "nonfinite", (double)rr->nonfinite);
     cJSON_AddBoolToObject(r, "deterministic", row->deterministic);
@@ -228,6 +249,7 @@ cJSON *fg_check_result_json(fg_check *c, const fg_check_meta *meta) {
       cJSON_AddNumberToObject(j, "replicates", c->nrep);
       cJSON_AddNumberToObject(j, "replicate_size", (double)c->rep_size);
     }
+    add_drivers(j, c, &c->joint_drivers);
     add_rows(o, c);
   } else {
     add_running(o, c);
