@@ -195,6 +195,39 @@ def test_limit(d):
           "limits list failing_scenarios_count = 100 and failing_scenarios = 5")
 
 
+def test_explain_cells(d):
+    big = {"format": 1, "name": "explain-big", "decisions": [{"name": "cap"}],
+           "uncertain": [{"name": "x", "size": 300, "distribution":
+                          {"family": "normal", "mean": 0, "sd": 1}}],
+           "constraints": [{"name": "each", "require": "x <= cap"}]}
+    st, _, _ = d.request("POST", "/v1/models", big)
+    if check(st in (200, 201), "register the 300 x 300 model: %d" % st):
+        st, _, b = d.request("POST", "/v1/models/explain-big/checks",
+                             {"decision": {"cap": 3}, "samples": 1000,
+                              "explain": True})
+        check(st == 400 and b.get("limit", {}).get("name") == "explain_cells"
+              and "/explain" in json.dumps(b),
+              "301 x 300 accumulators: 400 naming explain_cells, got %d %r" % (st, b))
+        st, _, b = d.request("POST", "/v1/models/explain-big/checks",
+                             {"decision": {"cap": 3}, "samples": 1000})
+        check(st == 201, "the same check without explain runs: %d" % st)
+
+
+def test_comparison_drivers(d):
+    body = {"candidates": [{"label": "tight", "decision": {"cap": 10}},
+                           {"label": "loose", "decision": {"cap": 12}}],
+            "samples": 4000, "seed": 5, "explain": True}
+    st, _, b = d.request("POST", "/v1/models/explain-api/comparisons", body)
+    ok = st in (200, 201) and all(
+        isinstance(c.get("joint", {}).get("drivers"), list) and
+        all("drivers" in r for r in c["constraints"]) for c in b["candidates"])
+    check(ok, "comparison with explain: every candidate has drivers (%d)" % st)
+    st, _, b = d.request("POST", "/v1/models/explain-api/checks",
+                         dict(REQUEST, explain="yes"))
+    check(st == 400 and "/explain" in json.dumps(b),
+          "explain must be a boolean: 400 naming /explain, got %d" % st)
+
+
 def main():
     if not os.path.exists(BIN):
         print("FEASGATE_BIN %s does not exist" % BIN)
@@ -209,6 +242,8 @@ def main():
                     test_monte_carlo(d, tmp)
                     test_other_designs(d)
                     test_limit(d)
+                    test_comparison_drivers(d)
+                    test_explain_cells(d)
             except Exception as e:  # a crash of the test is a failure
                 check(False, "exception %r" % e)
         check(d.stop() == 0, "SIGTERM: exit status 0")
