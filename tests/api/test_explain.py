@@ -175,6 +175,19 @@ def test_other_designs(d):
                 rows, _ = expected_rows(b["inputs"])
                 check(all(close(r["excess"], e) for r, (_, e) in zip(b["rows"], rows)),
                       "antithetic: excess recomputed from the inputs")
+    # every sample of a small antithetic check: the scenarios that do not
+    # hold are exactly the check's failures (samples - satisfied)
+    req = dict(REQUEST, sampling="antithetic", samples=300, seed=9)
+    st, _, res = d.request("POST", "/v1/models/explain-api/checks", req)
+    if check(st == 201, "small antithetic check: 201, got %d" % st):
+        fails = 0
+        for i in range(res["joint"]["samples"]):
+            st, _, b = explain(d, res["id"], i)
+            fails += st == 200 and not b["holds"]
+        j = res["joint"]
+        check(fails == j["samples"] - j["satisfied"],
+              "antithetic: %d explained failures = samples - satisfied = %d"
+              % (fails, j["samples"] - j["satisfied"]))
     req = dict(REQUEST, sampling="latin_hypercube", samples=1024)
     st, _, res = d.request("POST", "/v1/models/explain-api/checks", req)
     if check(st == 201, "latin hypercube check: 201, got %d" % st):
