@@ -16,7 +16,10 @@ With one temporary SQLite store, runs checks on a daemon with --workers 1
     1 and a replay over HTTP answers reproduced false with
     /joint/satisfied among the differences; an untouched check still
     replays offline with exit 0;
-  - an unknown check is 404.
+  - an unknown check is 404;
+  - with FG_TEST_PG_HOST/PORT/USER set (tests/pg/cluster.sh), the same on
+    the PostgreSQL store: a replay reproduces, and the row's replay_of
+    column (read with psql) names the original; skipped otherwise.
 Counts do not depend on the number of workers or the chunk size (the
 engine merges chunk tallies in order), which is what makes this exact.
 
@@ -67,6 +70,47 @@ def run_daemon(store, workers, chunk, body):
         except Exception as e:  # a crash of the test is a failure
             check(False, "exception %r" % e)
     check(d.stop() == 0, "SIGTERM: exit status 0")
+
+
+def pg_part():
+    need = ("FG_TEST_PG_HOST", "FG_TEST_PG_PORT", "FG_TEST_PG_USER")
+    if not all(os.environ.get(k) for k in need):
+        print("PostgreSQL part not run: %s not set" % ", ".join(need))
+        return
+
+    def psql(sql, db="postgres"):
+        env = dict(os.environ, PGOPTIONS="-c client_min_messages=warning")
+        out = subprocess.run(["psql", "-q", "-At", "-v", "ON_ERROR_STOP=1", "-h",
+                              os.environ["FG_TEST_PG_HOST"], "-p",
+                              os.environ["FG_TEST_PG_PORT"], "-U",
+                              os.environ["FG_TEST_PG_USER"], "-d", db, "-c", sql],
+                             check=True, env=env, capture_output=True, text=True)
+        return out.stdout.strip()
+
+    db = "fgreplay_%d" % os.getpid()
+    psql("DROP DATABASE IF EXISTS %s" % db)
+    psql("CREATE DATABASE %s" % db)
+    url = "postgresql:///%s?host=%s&port=%s&user=%s" % (
+        db, os.environ["FG_TEST_PG_HOST"], os.environ["FG_TEST_PG_PORT"],
+        os.environ["FG_TEST_PG_USER"])
+    d = Daemon(url, results=results)
+    try:
+        if check(d.address is not None, "PostgreSQL daemon started: %r" % d.first):
+            st, _, _ = d.request("POST", "/v1/models", MODEL)
+            st, _, b = d.request("POST", "/v1/models/replay-api/checks", REQ)
+            if check(st == 201, "PostgreSQL check: %d" % st):
+                st, _, r = replay(d, b["id"])
+                check(st == 201 and r["reproduced"] is True,
+                      "PostgreSQL: replay reproduces: %d" % st)
+                if st == 201:
+                    col = psql("SELECT replay_of FROM checks WHERE id = '%s'"
+                               % r["replay"], db)
+                    check(col == b["id"], "PostgreSQL row replay_of: %r" % col)
+                    st, _, g = d.request("GET", "/v1/checks/%s" % r["replay"])
+                    check(g.get("replay_of") == b["id"], "PostgreSQL GET replay_of")
+    finally:
+        check(d.stop() == 0, "PostgreSQL daemon: SIGTERM exit 0")
+        psql("DROP DATABASE IF EXISTS %s" % db)
 
 
 def main():
@@ -150,6 +194,7 @@ def main():
                   (st, fields))
 
         run_daemon(store, 2, 256, third)
+    pg_part()
     return results.summary()
 
 
