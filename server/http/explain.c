@@ -14,7 +14,7 @@
  * can be explained too (its request is recorded before it starts).
  *
  * Errors: an index that is not a whole number or not below the check's
- * samples, 400 naming /index; an unknown check, 404; a Latin hypercube or
+ * samples (those it counted, when it stopped early), 400 naming /index; an unknown check, 404; a Latin hypercube or
  * Sobol check, 422 (its samples are drawn replicate by replicate).
  *
  * Thread use: handlers on connection threads; one block of samples is
@@ -89,6 +89,15 @@ void fg_h_check_scenario(fg_req *r, fg_resp *out) {
   if (fg_request_parse(m, body, &lim, &req, &p) != FG_OK) goto fail;
   have_req = true;
   req.seed = c.seed; /* the seed the check ran with */
+  /* A check that stopped early (or was cancelled) counted fewer samples
+   * than it asked for: its scenarios end where its counts end. */
+  cJSON *stored = c.result ? cJSON_Parse(c.result) : NULL;
+  const cJSON *done = cJSON_GetObjectItemCaseSensitive(
+      cJSON_GetObjectItemCaseSensitive(stored, "joint"), "samples");
+  if (cJSON_IsNumber(done) && done->valuedouble >= 0 &&
+      done->valuedouble < (double)req.samples)
+    req.samples = (uint64_t)done->valuedouble;
+  cJSON_Delete(stored);
   if (fg_explain_scenario(m, &req, index, &res, &p) != FG_OK) goto fail;
   cJSON_AddStringToObject(res, "check", c.id);
   fg_resp_json(out, 200, res);

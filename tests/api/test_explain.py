@@ -226,6 +226,20 @@ def test_explain_cells(d):
         check(st == 201, "the same check without explain runs: %d" % st)
 
 
+def test_stopped_early(d):
+    req = {"decision": {"cap": 40}, "samples": 200000, "seed": 8,
+           "stop_early": True}
+    st, _, res = d.request("POST", "/v1/models/explain-api/checks", req)
+    if check(st == 201 and res.get("stopped_early") is True,
+             "a check that stops early: %d %r" % (st, res.get("stopped_early"))):
+        n = res["joint"]["samples"]
+        st, _, b = explain(d, res["id"], n - 1)
+        check(st == 200 and b["holds"], "its last counted sample is explained")
+        st, _, b = explain(d, res["id"], n)
+        check(st == 400 and "/index" in json.dumps(b),
+              "the first sample it did not count: 400 naming /index, got %d" % st)
+
+
 def test_comparison_drivers(d):
     body = {"candidates": [{"label": "tight", "decision": {"cap": 10}},
                            {"label": "loose", "decision": {"cap": 12}}],
@@ -257,6 +271,7 @@ def main():
                     test_limit(d)
                     test_comparison_drivers(d)
                     test_explain_cells(d)
+                    test_stopped_early(d)
             except Exception as e:  # a crash of the test is a failure
                 check(False, "exception %r" % e)
         check(d.stop() == 0, "SIGTERM: exit status 0")
