@@ -54,6 +54,14 @@ DESCRIPTION = (
     "answer is an RFC 9457 problem document (application/problem+json). "
     "Members named here are the contract; members may be added to answers, "
     "so clients ignore unknown ones.\n\n"
+    "Any route may answer 400 before routing for a request the daemon will "
+    "not read: two Content-Length headers, Content-Length with "
+    "Transfer-Encoding, or %00 (a NUL byte) in the path or the query. Any "
+    "route may answer 503 with Retry-After and Connection: close on the "
+    "first request of a connection opened beyond max_connections or "
+    "max_connections_per_client (GET /v1/limits). Text a problem quotes "
+    "from the request is valid UTF-8 (invalid bytes become U+FFFD). The "
+    "scenarios body is streamed (chunked transfer coding).\n\n"
     "Schemas: this document is self-contained. Each JSON Schema (2020-12) "
     "file of the schemas/ folder is embedded verbatim under "
     "components/schemas (e.g. model.schema.json as Model, "
@@ -66,7 +74,8 @@ DESCRIPTION = (
     "(+ checks, comparisons, scenarios), author (+ register and retire "
     "models), admin (+ keys). x-feasgate-role names the least role of each "
     "operation. Missing or wrong key: 401; right key, wrong role: 403. "
-    "/v1/health, /v1/ready, /metrics and /v1/openapi.json need no key."
+    "/v1/health, /v1/ready, /metrics, /v1/openapi.json and the page (/, "
+    "/page/app.js, /page/app.css) need no key."
 )
 
 
@@ -136,8 +145,8 @@ ERROR_TEXT = {
     422: "Understood but not possible for this check (for example a "
          "scenario of a Latin hypercube or Sobol check).",
     500: "An internal fault; nothing was half written.",
-    503: "Overloaded (the work queue is full) or not ready; Retry-After "
-         "says when to try again.",
+    503: "Overloaded (the work queue is full, or too many connections) or "
+         "not ready; Retry-After says when to try again.",
 }
 
 
@@ -325,6 +334,20 @@ def paths():
                         "A check still running, or ended without counts, is 409.",
         ),
     }
+    p["/v1/checks/{id}/request"] = {
+        "parameters": [id_p],
+        "get": op(
+            "getCheckRequest", "The request a check ran with", "reader",
+            dict({"200": json_body("CheckRequest",
+                                   "The recorded request in its normal form: every "
+                                   "decision value, samples, seed, target, "
+                                   "confidence, interval, stop_early, sampling and "
+                                   "the optional members that were given.")},
+                 **errors(401, 403, 404, 500, 503)),
+            description="Send it again to POST /v1/models/{name}/checks to repeat "
+                        "the check, or change it to try a neighbouring plan.",
+        ),
+    }
     p["/v1/models/{name}/comparisons"] = {
         "parameters": [name_p],
         "post": op(
@@ -442,6 +465,25 @@ def paths():
         "get": op("limits", "Every configured limit", "reader",
                   dict({"200": json_body("Limits", "The limits.")},
                        **errors(401, 403, 500, 503))),
+    }
+    page = "The page a person looks at (models, check history, one check, run, compare). "
+    p["/"] = {
+        "get": op("page", "The page", None,
+                  {"200": {"description": page + "Static HTML; it loads only "
+                           "/page/app.css and /page/app.js and calls only this API, "
+                           "with the key typed into it. Served with a strict "
+                           "Content-Security-Policy.",
+                           "content": {"text/html": {"schema": {"type": "string"}}}}}),
+    }
+    p["/page/app.js"] = {
+        "get": op("pageScript", "The page's script", None,
+                  {"200": {"description": page + "Its script.",
+                           "content": {"text/javascript": {"schema": {"type": "string"}}}}}),
+    }
+    p["/page/app.css"] = {
+        "get": op("pageStyle", "The page's style sheet", None,
+                  {"200": {"description": page + "Its style sheet.",
+                           "content": {"text/css": {"schema": {"type": "string"}}}}}),
     }
     p["/v1/openapi.json"] = {
         "get": op("openapi", "This document", None,

@@ -4,6 +4,9 @@
  *   feasgate serve [flags]                     the daemon (http/http.h)
  *   feasgate check MODEL.json REQUEST.json     one check offline, same engine
  *            [--samples N] [--seed S] [--workers N] [--chunk N] [--summary]
+ *            [--rows N]
+ *   feasgate validate MODEL.json               a model document checked as
+ *                                              registration would (no store)
  *   feasgate register --store URL FILE...      add model documents to a store
  *   feasgate scenarios MODEL.json [--count N]  a model's scenarios, JSON or
  *            [--seed S] [--start I] [--stream design|validation] [--csv]
@@ -13,6 +16,10 @@
  *            MODEL_NAME REQUEST.json           (http/remote.c)
  *   feasgate keys add|list|revoke ...          API keys (http/keys_cli.c)
  *   feasgate version
+ *
+ * Every command answers --help on standard output with exit status 0.
+ * Option errors name the option as typed ("--samples: expected ...");
+ * malformed JSON in a file is reported by line and column.
  *
  * Exit status of `check`: 0 pass, 1 fail, 2 inconclusive, 3 usage or input
  * error, so a pipeline step can gate on it. Everything below main.c
@@ -35,20 +42,67 @@
 
 static void usage(FILE *f) {
   fprintf(f,
-          "usage:\n"
-          "  feasgate serve [--listen HOST:PORT] [--store URL] [--workers N] "
-          "...\n"
-          "  feasgate check MODEL.json REQUEST.json [--samples N] [--seed S]\n"
-          "                 [--workers N] [--chunk N] [--summary]\n"
-          "  feasgate check --server URL [--key KEY] [--timeout S] MODEL_NAME "
+          "usage: feasgate COMMAND [options]\n\n"
+          "commands:\n"
+          "  serve        run the daemon (HTTP API)\n"
+          "  check        judge a candidate: MODEL.json REQUEST.json offline,"
+          "\n"
+          "               or --server URL MODEL_NAME REQUEST.json on a daemon"
+          "\n"
+          "  validate     check a model document without running anything\n"
+          "  register     add model documents to a store\n"
+          "  scenarios    print a model's random scenarios (JSON or CSV)\n"
+          "  sample-size  samples or scenarios needed for a question\n"
+          "  keys         add, list or revoke API keys in a store\n"
+          "  version      print the version\n\n"
+          "`feasgate COMMAND --help` describes one command. `check` exits 0 "
+          "on pass,\n1 on fail, 2 when inconclusive, 3 on a usage or input "
+          "error.\n");
+}
+
+static void check_usage(FILE *f) {
+  fprintf(f,
+          "usage: feasgate check MODEL.json REQUEST.json [--samples N] "
+          "[--seed S]\n"
+          "                      [--workers N] [--chunk N] [--summary] "
+          "[--rows N]\n"
+          "       feasgate check --server URL [--key KEY] [--timeout S] "
+          "[--cacert FILE]\n"
+          "                      [--summary] [--rows N] MODEL_NAME "
           "REQUEST.json\n"
-          "  feasgate keys add NAME --role ROLE | list | revoke NAME "
-          "[--store URL]\n"
-          "  feasgate register --store URL FILE...\n"
-          "  feasgate scenarios MODEL.json [--count N] [--seed S] [--start I]\n"
-          "                 [--stream design|validation] [--csv] [--max M]\n"
-          "  feasgate version\n"
-          "`feasgate serve --help` lists the daemon's settings.\n");
+          "Runs the check of REQUEST.json (the body of POST "
+          "/v1/models/{name}/checks)\nagainst the model and prints the "
+          "result as JSON, or with --summary as a\ntable (at most --rows N "
+          "rows, default %d). --samples and --seed override\nthe request's; "
+          "--workers defaults to the processors online, --chunk to %d\n"
+          "(a multiple of %d from %d to %d). `feasgate check --server URL "
+          "--help`\ndescribes the remote form. Exit status: 0 pass, 1 fail, "
+          "2 inconclusive,\n3 usage or input error.\n",
+          FG_SUMMARY_ROWS_DEFAULT, FG_CHUNK_DEFAULT, FG_BLOCK, FG_CHUNK_MIN,
+          FG_CHUNK_MAX);
+}
+
+static void validate_usage(FILE *f) {
+  fprintf(f,
+          "usage: feasgate validate MODEL.json...\n"
+          "Checks each model document as registration would (parsing, "
+          "names, shapes,\nexpressions, distribution parameters) without a "
+          "store or a daemon, and prints\nits name, digest and summary. "
+          "Exit status: 0 all valid, 3 a document is\ninvalid (each problem "
+          "is printed with its JSON Pointer).\n");
+}
+
+static void register_usage(FILE *f) {
+  fprintf(f,
+          "usage: feasgate register [--store URL] FILE...\n"
+          "Adds each model document to the store (default $FEASGATE_STORE) "
+          "as a new\nversion, or reports it unchanged when the latest "
+          "version has the same digest.\nExit status: 0 done, 1 a store "
+          "fault, 3 an invalid document or usage.\n");
+}
+
+static void version_usage(FILE *f) {
+  fprintf(f, "usage: feasgate version\nPrints the program's version.\n");
 }
 
 /* Read a whole file (at most FG_MAX_BODY_HARD bytes). */
@@ -88,7 +142,19 @@ static char *read_file(const char *path, size_t *len) {
   return buf;
 }
 
-static void print_problem(const char *what, const fg_problem *p) {
+/* `text`/`len`, when given, is the file the problem is about: a byte
+ * offset into it is shown as line and column. */
+static void print_problem(const char *what, const fg_problem *p,
+                          const char *text, size_t len) {
+  if (p->byte_offset >= 0 && text) {
+    /* Malformed JSON: the file's line and column first, as an editor
+     * shows them; the detail repeats the byte offset. */
+    int line, col;
+    fg_text_position(text, len, p->byte_offset, &line, &col);
+    fprintf(stderr, "feasgate: %s: line %d, column %d: %s\n", what, line,
+            col, p->detail[0] ? p->detail : p->title);
+    return;
+  }
   fprintf(stderr, "feasgate: %s: %s%s%s\n", what, p->title,
           p->detail[0] ? ": " : "", p->detail);
   for (int i = 0; i < p->nitems; i++) {
@@ -101,8 +167,9 @@ static void print_problem(const char *what, const fg_problem *p) {
               it->message);
   }
   if (p->dropped) fprintf(stderr, "  ... and %d more\n", p->dropped);
-  if (p->byte_offset >= 0)
+  if (p->byte_offset >= 0) {
     fprintf(stderr, "  (at byte offset %lld)\n", p->byte_offset);
+  }
 }
 
 static bool parse_u64(const char *s, uint64_t max, uint64_t *out) {
@@ -123,98 +190,55 @@ static fg_model *load_model(const char *path) {
   fg_problem_init(&p);
   fg_model *m = NULL;
   if (fg_model_compile(text, len, &m, &p) != FG_OK) {
-    print_problem(path, &p);
+    print_problem(path, &p, text, len);
     m = NULL;
   }
   free(text);
   return m;
 }
 
-static void print_summary(cJSON *res) {
-  const cJSON *j = cJSON_GetObjectItem(res, "joint");
-  const cJSON *iv = cJSON_GetObjectItem(j, "interval");
-  const cJSON *model = cJSON_GetObjectItem(res, "model");
-  printf("model      %s (%s)\n",
-         cJSON_GetStringValue(cJSON_GetObjectItem(model, "name")),
-         cJSON_GetStringValue(cJSON_GetObjectItem(model, "digest")));
-  printf("verdict    %s\n",
-         cJSON_GetStringValue(cJSON_GetObjectItem(res, "verdict")));
-  printf("joint      %.6f  [%.6f, %.6f] %s  target %.4g at %.4g confidence\n",
-         cJSON_GetNumberValue(cJSON_GetObjectItem(j, "probability")),
-         cJSON_GetNumberValue(cJSON_GetObjectItem(iv, "lower")),
-         cJSON_GetNumberValue(cJSON_GetObjectItem(iv, "upper")),
-         cJSON_GetStringValue(cJSON_GetObjectItem(iv, "method")),
-         cJSON_GetNumberValue(cJSON_GetObjectItem(res, "target")),
-         cJSON_GetNumberValue(cJSON_GetObjectItem(res, "confidence")));
-  /* The seed is written as integer text (a raw item), not a double. */
-  const cJSON *seed = cJSON_GetObjectItem(res, "seed");
-  printf("samples    %.0f satisfied of %.0f, seed %s\n",
-         cJSON_GetNumberValue(cJSON_GetObjectItem(j, "satisfied")),
-         cJSON_GetNumberValue(cJSON_GetObjectItem(j, "samples")),
-         cJSON_IsRaw(seed) ? seed->valuestring : "?");
-  const cJSON *det = cJSON_GetObjectItem(res, "deterministic");
-  const cJSON *pr;
-  cJSON_ArrayForEach(pr, cJSON_GetObjectItem(det, "problems"))
-    printf("problem    %s\n",
-           cJSON_GetStringValue(cJSON_GetObjectItem(pr, "message")));
-  const cJSON *num = cJSON_GetObjectItem(res, "numeric");
-  cJSON_ArrayForEach(pr, cJSON_GetObjectItem(num, "problems"))
-    printf("numeric    %s\n",
-           cJSON_GetStringValue(cJSON_GetObjectItem(pr, "message")));
-  printf("\n%-28s %12s %10s %12s %12s %12s\n", "row (worst first)",
-         "P(violated)", "sole", "mean excess", "p95 excess", "max excess");
-  const cJSON *r;
-  int shown = 0;
-  cJSON_ArrayForEach(r, cJSON_GetObjectItem(res, "constraints")) {
-    if (shown++ >= 20) break;
-    const cJSON *ex = cJSON_GetObjectItem(r, "excess");
-    char p95[32] = "-", mx[32] = "-";
-    const cJSON *v95 = cJSON_GetObjectItem(ex, "p95");
-    const cJSON *vmax = cJSON_GetObjectItem(ex, "max");
-    if (cJSON_IsNumber(v95)) snprintf(p95, sizeof p95, "%.4g", v95->valuedouble);
-    if (cJSON_IsNumber(vmax)) snprintf(mx, sizeof mx, "%.4g", vmax->valuedouble);
-    printf("%-28s %12.6f %10.0f %12.4g %12s %12s\n",
-           cJSON_GetStringValue(cJSON_GetObjectItem(r, "name")),
-           cJSON_GetNumberValue(cJSON_GetObjectItem(r, "probability")),
-           cJSON_GetNumberValue(cJSON_GetObjectItem(r, "sole_cause")),
-           cJSON_GetNumberValue(cJSON_GetObjectItem(ex, "mean")), p95, mx);
-  }
-  const cJSON *obj = cJSON_GetObjectItem(res, "objective");
-  if (cJSON_IsNumber(obj)) printf("\nobjective  %.6g\n", obj->valuedouble);
-}
-
 static int cmd_check(int argc, char **argv) {
   const char *files[2] = {NULL, NULL};
   int nfiles = 0;
   uint64_t samples = 0, seed = 0, workers = 0, chunk = FG_CHUNK_DEFAULT;
+  uint64_t rows = FG_SUMMARY_ROWS_DEFAULT;
   bool has_samples = false, has_seed = false, summary = false;
   for (int i = 1; i < argc; i++) {
     const char *a = argv[i];
-    if (strcmp(a, "--samples") == 0 && i + 1 < argc) {
+    if (strcmp(a, "--help") == 0 || strcmp(a, "-h") == 0) {
+      check_usage(stdout);
+      return 0;
+    } else if (strcmp(a, "--rows") == 0 && i + 1 < argc) {
+      if (!parse_u64(argv[++i], 1000000, &rows) || !rows) {
+        fprintf(stderr, "feasgate check: --rows: expected a whole number "
+                        "from 1 to 1000000, found '%s'\n", argv[i]);
+        return EXIT_USAGE;
+      }
+    } else if (strcmp(a, "--samples") == 0 && i + 1 < argc) {
       if (!parse_u64(argv[++i], FG_MAX_SAMPLES_HARD, &samples) || !samples) {
-        fprintf(stderr, "feasgate check: --samples expects 1 to %llu, found "
-                        "'%s'\n",
+        fprintf(stderr, "feasgate check: --samples: expected a whole number "
+                        "from 1 to %llu, found '%s'\n",
                 (unsigned long long)FG_MAX_SAMPLES_HARD, argv[i]);
         return EXIT_USAGE;
       }
       has_samples = true;
     } else if (strcmp(a, "--seed") == 0 && i + 1 < argc) {
       if (!parse_u64(argv[++i], FG_SEED_MAX, &seed)) {
-        fprintf(stderr, "feasgate check: --seed expects 0 to 2^53-1, found "
-                        "'%s'\n", argv[i]);
+        fprintf(stderr, "feasgate check: --seed: expected a whole number "
+                        "from 0 to 2^53-1, found '%s'\n", argv[i]);
         return EXIT_USAGE;
       }
       has_seed = true;
     } else if (strcmp(a, "--workers") == 0 && i + 1 < argc) {
       if (!parse_u64(argv[++i], FG_WORKERS_MAX, &workers) || !workers) {
-        fprintf(stderr, "feasgate check: --workers expects 1 to %d, found "
-                        "'%s'\n", FG_WORKERS_MAX, argv[i]);
+        fprintf(stderr, "feasgate check: --workers: expected a whole number "
+                        "from 1 to %d, found '%s'\n", FG_WORKERS_MAX, argv[i]);
         return EXIT_USAGE;
       }
     } else if (strcmp(a, "--chunk") == 0 && i + 1 < argc) {
       if (!parse_u64(argv[++i], FG_CHUNK_MAX, &chunk) || chunk < FG_CHUNK_MIN ||
           chunk % FG_BLOCK) {
-        fprintf(stderr, "feasgate check: --chunk expects a multiple of %d "
+        fprintf(stderr, "feasgate check: --chunk: expected a multiple of %d "
                         "from %d to %d, found '%s'\n",
                 FG_BLOCK, FG_CHUNK_MIN, FG_CHUNK_MAX, argv[i]);
         return EXIT_USAGE;
@@ -222,8 +246,11 @@ static int cmd_check(int argc, char **argv) {
     } else if (strcmp(a, "--summary") == 0) {
       summary = true;
     } else if (a[0] == '-' && a[1]) {
-      fprintf(stderr, "feasgate check: unknown or incomplete option '%s'\n", a);
-      usage(stderr);
+      bool known = !strcmp(a, "--samples") || !strcmp(a, "--seed") ||
+                   !strcmp(a, "--workers") || !strcmp(a, "--chunk") ||
+                   !strcmp(a, "--rows");
+      fprintf(stderr, "feasgate check: %s: %s (see feasgate check --help)\n",
+              a, known ? "expected a value after it" : "unknown option");
       return EXIT_USAGE;
     } else if (nfiles < 2) {
       files[nfiles++] = a;
@@ -233,7 +260,9 @@ static int cmd_check(int argc, char **argv) {
     }
   }
   if (nfiles != 2) {
-    usage(stderr);
+    fprintf(stderr, "feasgate check: expected MODEL.json and REQUEST.json, "
+                    "found %d file%s\n", nfiles, nfiles == 1 ? "" : "s");
+    check_usage(stderr);
     return EXIT_USAGE;
   }
   if (workers == 0) {
@@ -259,7 +288,7 @@ static int cmd_check(int argc, char **argv) {
   lim.max_wait_s = 1e9;
   int rc = EXIT_USAGE;
   if (fg_json_parse(text, len, &body, &p) != FG_OK) {
-    print_problem(files[1], &p);
+    print_problem(files[1], &p, text, len);
     goto out;
   }
   if (has_samples) {
@@ -271,7 +300,7 @@ static int cmd_check(int argc, char **argv) {
     cJSON_AddNumberToObject(body, "seed", (double)seed);
   }
   if (fg_request_parse(m, body, &lim, &req, &p) != FG_OK) {
-    print_problem(files[1], &p);
+    print_problem(files[1], &p, NULL, 0);
     goto out;
   }
   if (req.expect_digest[0] && strcmp(req.expect_digest, m->digest) != 0) {
@@ -285,7 +314,7 @@ static int cmd_check(int argc, char **argv) {
   fg_time_now_rfc3339(created, sizeof created);
   fg_check *c = NULL;
   if (fg_check_run_sync(m, &req, (int)workers, (int)chunk, &c, &p) != FG_OK) {
-    print_problem("check", &p);
+    print_problem("check", &p, NULL, 0);
     fg_request_free(&req);
     goto out;
   }
@@ -293,7 +322,7 @@ static int cmd_check(int argc, char **argv) {
   fg_check_meta meta = {.created_at = created, .finished_at = finished};
   cJSON *res = fg_check_result_json(c, &meta);
   if (summary) {
-    print_summary(res);
+    fg_summary_print(stdout, res, (int)rows);
   } else {
     char *s = cJSON_Print(res);
     if (s) puts(s);
@@ -347,26 +376,26 @@ static int cmd_scenarios(int argc, char **argv) {
       q.csv = true;
     } else if (strcmp(a, "--count") == 0 && v) {
       if (!parse_u64(argv[++i], FG_SEED_MAX, &q.count) || !q.count) {
-        fprintf(stderr, "feasgate scenarios: --count expects a whole number "
-                        "from 1, found '%s'\n", v);
+        fprintf(stderr, "feasgate scenarios: --count: expected a whole "
+                        "number from 1, found '%s'\n", v);
         return EXIT_USAGE;
       }
     } else if (strcmp(a, "--seed") == 0 && v) {
       if (!parse_u64(argv[++i], FG_SEED_MAX, &q.seed)) {
-        fprintf(stderr, "feasgate scenarios: --seed expects 0 to 2^53-1, "
+        fprintf(stderr, "feasgate scenarios: --seed: expected 0 to 2^53-1, "
                         "found '%s'\n", v);
         return EXIT_USAGE;
       }
       has_seed = true;
     } else if (strcmp(a, "--start") == 0 && v) {
       if (!parse_u64(argv[++i], FG_SEED_MAX, &q.start)) {
-        fprintf(stderr, "feasgate scenarios: --start expects 0 to 2^53-1, "
-                        "found '%s'\n", v);
+        fprintf(stderr, "feasgate scenarios: --start: expected 0 to "
+                        "2^53-1, found '%s'\n", v);
         return EXIT_USAGE;
       }
     } else if (strcmp(a, "--max") == 0 && v) {
       if (!parse_u64(argv[++i], FG_SEED_MAX, &max) || !max) {
-        fprintf(stderr, "feasgate scenarios: --max expects a whole number "
+        fprintf(stderr, "feasgate scenarios: --max: expected a whole number "
                         "from 1, found '%s'\n", v);
         return EXIT_USAGE;
       }
@@ -375,7 +404,7 @@ static int cmd_scenarios(int argc, char **argv) {
       if (strcmp(v, "design") == 0) q.validation = false;
       else if (strcmp(v, "validation") == 0) q.validation = true;
       else {
-        fprintf(stderr, "feasgate scenarios: --stream expects design or "
+        fprintf(stderr, "feasgate scenarios: --stream: expected design or "
                         "validation, found '%s'\n", v);
         return EXIT_USAGE;
       }
@@ -421,7 +450,7 @@ static int cmd_scenarios(int argc, char **argv) {
   int rc = 0;
   if (fg_scenarios_write(m, &q, stdout_sink, stdout, &p) != FG_OK ||
       fflush(stdout) != 0) {
-    print_problem("scenarios", &p);
+    print_problem("scenarios", &p, NULL, 0);
     rc = 1;
   }
   fg_model_unref(m);
@@ -446,9 +475,45 @@ static void sample_size_usage(FILE *f) {
           "Prints the same JSON as GET /v1/sample-size.\n");
 }
 
+/* Copy `msg`, writing "parameter 'half_width'" as "--half-width" and the
+ * names in "(known: a, b_c)" as "--a, --b-c": the command line's spelling
+ * of the query parameters the shared code names. */
+static void flag_spelling(const char *msg, char *out, size_t cap) {
+  size_t o = 0;
+  bool in_known = false;
+  for (const char *s = msg; *s && o + 3 < cap;) {
+    const char *name = NULL;
+    if (strncmp(s, "parameter '", 11) == 0) {
+      name = s + 11;
+    } else if (strncmp(s, "(known: ", 8) == 0) {
+      memcpy(out + o, s, 8);
+      o += 8;
+      s += 8;
+      in_known = true;
+      continue;
+    } else if (in_known && (s[0] >= 'a' && s[0] <= 'z') &&
+               (s[-1] == ' ')) {
+      name = s;
+    }
+    if (!name) {
+      if (*s == ')') in_known = false;
+      out[o++] = *s++;
+      continue;
+    }
+    out[o++] = '-';
+    out[o++] = '-';
+    const char *e = name;
+    while (*e && *e != '\'' && *e != ',' && *e != ')' && o + 2 < cap)
+      out[o++] = *e == '_' ? '-' : *e, e++;
+    s = *e == '\'' ? e + 1 : e;
+  }
+  out[o] = '\0';
+}
+
 static int cmd_sample_size(int argc, char **argv) {
   char names[SAMPLE_SIZE_ARGS_MAX][32];
   const char *np[SAMPLE_SIZE_ARGS_MAX], *vp[SAMPLE_SIZE_ARGS_MAX];
+  const char *flags[SAMPLE_SIZE_ARGS_MAX];
   int n = 0;
   for (int i = 1; i < argc; i++) {
     const char *a = argv[i];
@@ -473,6 +538,7 @@ static int cmd_sample_size(int argc, char **argv) {
     for (char *c = names[n]; *c; c++)
       if (*c == '-') *c = '_';
     np[n] = names[n];
+    flags[n] = a;
     vp[n] = argv[++i];
     n++;
   }
@@ -480,7 +546,31 @@ static int cmd_sample_size(int argc, char **argv) {
   fg_problem_init(&p);
   cJSON *res = NULL;
   if (fg_sample_size_json(n, np, vp, &res, &p) != FG_OK) {
-    print_problem("sample-size", &p);
+    /* The messages name query parameters (half_width); say the flags. */
+    for (int i = 0; i < p.nitems; i++) {
+      char flagged[sizeof p.items[i].message];
+      flag_spelling(p.items[i].message, flagged, sizeof flagged);
+      if (strncmp(flagged, "unknown --", 10) == 0) {
+        /* "unknown --x (known: ...)" -> "--x: unknown option (known: ...)" */
+        size_t nl = strcspn(flagged + 8, " ");
+        fprintf(stderr, "feasgate sample-size: %.*s: unknown option%s\n",
+                (int)nl, flagged + 8, flagged + 8 + nl);
+      } else {
+        /* "half_width must be ..." -> "--half-width: must be ..." */
+        int k = 0;
+        while (k < n && !(strncmp(flagged, np[k], strlen(np[k])) == 0 &&
+                          flagged[strlen(np[k])] == ' '))
+          k++;
+        if (k < n)
+          fprintf(stderr, "feasgate sample-size: %s:%s\n", flags[k],
+                  flagged + strlen(np[k]));
+        else
+          fprintf(stderr, "feasgate sample-size: %s\n", flagged);
+      }
+    }
+    if (p.nitems == 0)
+      fprintf(stderr, "feasgate sample-size: %s\n", p.detail);
+    sample_size_usage(stderr);
     return EXIT_USAGE;
   }
   char *s = cJSON_Print(res);
@@ -493,13 +583,21 @@ static int cmd_sample_size(int argc, char **argv) {
 static int cmd_register(int argc, char **argv) {
   const char *url = getenv("FEASGATE_STORE");
   int first = 1;
+  for (int i = 1; i < argc; i++)
+    if (strcmp(argv[i], "--help") == 0 || strcmp(argv[i], "-h") == 0) {
+      register_usage(stdout);
+      return 0;
+    }
   for (; first < argc; first++) {
     if (strcmp(argv[first], "--store") == 0 && first + 1 < argc)
       url = argv[++first];
     else break;
   }
   if (!url || first >= argc) {
-    fprintf(stderr, "usage: feasgate register --store URL FILE...\n");
+    fprintf(stderr, "feasgate register: %s\n",
+                    !url ? "--store: expected a store URL (or FEASGATE_STORE)"
+                         : "expected at least one model file");
+    register_usage(stderr);
     return EXIT_USAGE;
   }
   fg_problem p;
@@ -508,7 +606,7 @@ static int cmd_register(int argc, char **argv) {
   if (fg_store_open(url, &st, &p) != FG_OK) {
     char shown[4200];
     fg_store_url_display(url, shown, sizeof shown);
-    print_problem(shown, &p);
+    print_problem(shown, &p, NULL, 0);
     return 1;
   }
   int rc = 0;
@@ -523,7 +621,7 @@ static int cmd_register(int argc, char **argv) {
     fg_problem_init(&p);
     if (fg_store_put_version(st, m->name, m->digest, m->canonical, m->title, &v,
                              &created, &p) != FG_OK) {
-      print_problem(argv[i], &p);
+      print_problem(argv[i], &p, NULL, 0);
       rc = 1;
     } else {
       printf("%s %s version %d %s\n", created ? "registered" : "unchanged",
@@ -533,6 +631,44 @@ static int cmd_register(int argc, char **argv) {
     fg_model_unref(m);
   }
   fg_store_close(st);
+  return rc;
+}
+
+/* ---- feasgate validate ---- */
+
+static int cmd_validate(int argc, char **argv) {
+  int nfiles = 0, rc = 0;
+  for (int i = 1; i < argc; i++) {
+    if (strcmp(argv[i], "--help") == 0 || strcmp(argv[i], "-h") == 0) {
+      validate_usage(stdout);
+      return 0;
+    }
+    if (argv[i][0] == '-' && argv[i][1]) {
+      fprintf(stderr, "feasgate validate: %s: unknown option\n", argv[i]);
+      validate_usage(stderr);
+      return EXIT_USAGE;
+    }
+  }
+  for (int i = 1; i < argc; i++) {
+    nfiles++;
+    fg_model *m = load_model(argv[i]);
+    if (!m) {
+      rc = EXIT_USAGE;
+      continue;
+    }
+    cJSON *sum = fg_model_summary_json(m);
+    char *st = sum ? cJSON_PrintUnformatted(sum) : NULL;
+    printf("%s: valid, model %s, %s\n  summary %s\n", argv[i], m->name,
+           m->digest, st ? st : "?");
+    free(st);
+    cJSON_Delete(sum);
+    fg_model_unref(m);
+  }
+  if (nfiles == 0) {
+    fprintf(stderr, "feasgate validate: expected at least one model file\n");
+    validate_usage(stderr);
+    return EXIT_USAGE;
+  }
   return rc;
 }
 
@@ -556,11 +692,22 @@ int main(int argc, char **argv) {
   if (strcmp(cmd, "register") == 0) return cmd_register(argc - 1, argv + 1);
   if (strcmp(cmd, "scenarios") == 0) return cmd_scenarios(argc - 1, argv + 1);
   if (strcmp(cmd, "sample-size") == 0) return cmd_sample_size(argc - 1, argv + 1);
+  if (strcmp(cmd, "validate") == 0) return cmd_validate(argc - 1, argv + 1);
   if (strcmp(cmd, "version") == 0 || strcmp(cmd, "--version") == 0) {
+    if (argc > 2 && (strcmp(argv[2], "--help") == 0 ||
+                     strcmp(argv[2], "-h") == 0)) {
+      version_usage(stdout);
+      return 0;
+    }
+    if (argc > 2) {
+      fprintf(stderr, "feasgate version: %s: unknown argument\n", argv[2]);
+      return EXIT_USAGE;
+    }
     printf("feasgate 0.1.0\n");
     return 0;
   }
-  if (strcmp(cmd, "help") == 0 || strcmp(cmd, "--help") == 0) {
+  if (strcmp(cmd, "help") == 0 || strcmp(cmd, "--help") == 0 ||
+      strcmp(cmd, "-h") == 0) {
     usage(stdout);
     return 0;
   }

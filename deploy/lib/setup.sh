@@ -18,7 +18,7 @@ libgnutls28-dev libpq-dev"
 FG_PKGS_RUN="curl sqlite3"
 FG_PKGS_TEST="python3 python3-scipy python3-numpy python3-statsmodels \
 python3-jsonschema python3-mpmath openssl clang libclang-rt-14-dev postgresql \
-nginx"
+nginx chromium python3-websocket"
 
 fg_missing_packages() {
   local missing=() p

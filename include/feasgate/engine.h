@@ -216,6 +216,23 @@ typedef struct fg_scenarios_params {
 /* Receives the text piece by piece; false stops the writer (FG_EIO). */
 typedef bool fg_text_sink(void *ctx, const char *text, size_t len);
 
+/* A stream of that text, read piece by piece: fg_scenarios_open checks
+ * the parameters, takes a reference to `m`, allocates everything it will
+ * need (memory bounded by FG_SCENARIO_STREAM_BYTES, the header and one
+ * row, whatever count is) and prints the header; so every error comes
+ * before the first byte. fg_scenarios_read copies up to `cap` bytes and
+ * returns 0 only at the end. */
+typedef struct fg_scenarios_stream fg_scenarios_stream;
+fg_status fg_scenarios_open(fg_model *m, const fg_scenarios_params *q,
+                            fg_scenarios_stream **out, fg_problem *p);
+size_t fg_scenarios_read(fg_scenarios_stream *s, char *buf, size_t cap);
+/* True when the stream stopped for lack of memory (the text is cut). */
+bool fg_scenarios_failed(const fg_scenarios_stream *s);
+void fg_scenarios_close(fg_scenarios_stream *s);
+/* The cells a request of `count` scenarios holds: FG_ELIMIT (limit
+ * scenario_cells) beyond FG_SCENARIO_CELLS_MAX. */
+fg_status fg_scenarios_size_check(const fg_model *m, uint64_t count,
+                                  fg_problem *p);
 /* Stream the text to `sink` (offline command: no size limit). */
 fg_status fg_scenarios_write(const fg_model *m, const fg_scenarios_params *q,
                              fg_text_sink *sink, void *ctx, fg_problem *p);

@@ -113,9 +113,20 @@
  * more than the configured cap). */
 #define FG_SCENARIOS_COUNT_DEFAULT 100ull
 
-/* Values (scenarios x columns) in one scenarios response held in memory:
- * about 25 bytes each printed, so the largest body stays near 100 MB. */
+/* Values (scenarios x columns) in one scenarios response: about 25 bytes
+ * each printed, so the longest body stays near 100 MB. The body is
+ * streamed (FG_SCENARIO_STREAM_BYTES below), so this bounds the length of
+ * an answer, not the memory it takes. */
 #define FG_SCENARIO_CELLS_MAX 4000000ull
+
+/* Bytes of drawn values one streamed scenarios response holds: rows are
+ * drawn this many bytes at a time (at most FG_BLOCK rows, at least one),
+ * so a response takes this plus its header and a 16 KiB window of text
+ * and one row, whatever its count (8 concurrent 100,000-row answers of a
+ * 40-column model stay within a few MB together). */
+#ifndef FG_SCENARIO_STREAM_BYTES
+#define FG_SCENARIO_STREAM_BYTES (256u * 1024u)
+#endif
 
 /* Failing scenarios reported per check by default. */
 #define FG_FAILING_SCENARIOS 5
@@ -325,12 +336,48 @@
 /* Bytes of a request file at most. */
 #define FG_REMOTE_REQUEST_MAX (16u * 1024 * 1024)
 
-/* Seconds libmicrohttpd keeps an idle connection open. */
+/* Rows the `check --summary` table prints by default (--rows N changes
+ * it): a terminal page; the table then says how many it left out and the
+ * JSON result lists every row. */
+#define FG_SUMMARY_ROWS_DEFAULT 40
+
+/* Seconds libmicrohttpd keeps an idle connection open once it has sent
+ * the headers of a request (between keep-alive requests too). */
 #define FG_HTTP_IDLE_TIMEOUT_S 120
 
-/* Connections at once: each is a thread; beyond this, new connections are
- * refused by libmicrohttpd instead of exhausting threads. */
-#define FG_HTTP_CONNECTIONS_MAX 512
+/* Seconds a new connection gets to send its first request's headers
+ * before it is closed: an idle or trickling socket holds a connection
+ * slot only this long. A client on a slow link sends a header block of a
+ * few hundred bytes well within it. */
+#define FG_HTTP_HEADER_TIMEOUT_S 10
+
+/* Open connections (--max-connections): default and hard bound. Event
+ * loops serve them (no thread per connection), so each costs a socket
+ * and a FG_HTTP_CONN_MEMORY buffer; the bound keeps the buffers under
+ * 4 GiB and within common descriptor limits once raised. */
+#define FG_HTTP_CONNECTIONS_DEFAULT 1024
+#define FG_HTTP_CONNECTIONS_HARD 65536
+
+/* Open connections from one client address (--max-connections-per-
+ * client): default. A pipeline runner needs a handful; one client
+ * should not hold every slot. Bounded by --max-connections. */
+#define FG_HTTP_CONNECTIONS_PER_CLIENT_DEFAULT 64
+
+/* Connections accepted beyond either limit, only to be answered 503
+ * (Retry-After, Connection: close) on their first request; past these
+ * libmicrohttpd closes new connections at once without an answer. */
+#define FG_HTTP_CONNECTIONS_OVERFLOW 64
+
+/* Event-loop threads serving the connections: the online cores, within
+ * these bounds. Handlers never wait on them (a waiting request is
+ * suspended), so a few threads carry any number of connections. */
+#define FG_HTTP_THREADS_MIN 2
+#define FG_HTTP_THREADS_MAX 8
+
+/* Milliseconds between two looks of the waiter thread at suspended
+ * requests (a check that has ended, a deadline that has passed): the
+ * most a waiting request's answer lags its check's end. */
+#define FG_HTTP_WAITER_TICK_MS 2
 
 /* Bytes of libmicrohttpd's per-connection buffer (request line, headers):
  * limits header size. Bodies are ours and limited by --max-body. */

@@ -2,10 +2,17 @@
  * engine/scenarios.c -- a model's scenarios as text (JSON or CSV), shared by
  * `feasgate scenarios` and GET /v1/models/{name}/scenarios.
  *
- * Design: the sampler draws scenarios start .. start+count-1 of (seed,
- * stream) in blocks of FG_BLOCK (dimension j of sample t of a block at
- * buf[j * FG_BLOCK + t]); each block is printed row by row into a small
- * staging buffer that is handed to a sink whenever it fills. Because
+ * Design: a stream (fg_scenarios_open) is read piece by piece
+ * (fg_scenarios_read): the header is printed at open; each refill draws
+ * the next rows of start .. start+count-1 of (seed, stream) when the last
+ * draw is used up -- FG_SCENARIO_STREAM_BYTES of values at a time, at
+ * most FG_BLOCK rows (dimension j of row t of a draw at buf[j * rows + t])
+ * -- and prints rows until the text holds SCEN_STAGE bytes; the tail
+ * follows the last row. A stream's memory is thus the drawn values, the
+ * header and SCEN_STAGE plus one row of text, whatever count is.
+ * fg_scenarios_write (the offline command) reads a stream into a sink,
+ * and GET .../scenarios hands one to libmicrohttpd, so both print the
+ * same bytes. Because
  * sample i, dimension j is a pure function of (seed, stream, j, i), row i
  * printed alone (start = i, count = 1) is byte for byte row i of any bulk
  * request, and no output depends on how the range is cut into blocks.
@@ -23,11 +30,11 @@
  *
  * Invariants: seed <= FG_SEED_MAX and start + count <= FG_SEED_MAX + 1, so
  * every index and the echoed seed and start are exact JSON numbers.
- * fg_scenarios_render (one buffer) refuses more than FG_SCENARIO_CELLS_MAX
- * cells; fg_scenarios_write (streaming) has no size limit of its own.
+ * fg_scenarios_render (one buffer) and the daemon refuse more than
+ * FG_SCENARIO_CELLS_MAX cells; fg_scenarios_write has no size limit.
  *
- * Thread use: any thread; the model is only read, and every call draws
- * with its own scratch.
+ * Thread use: any thread; the model is only read, and every stream draws
+ * with its own scratch. One stream is used by one thread at a time.
  */
 #include "feasgate/engine.h"
 
@@ -38,90 +45,106 @@
 #include <stdlib.h>
 #include <string.h>
 
-/* Bytes staged before the sink is called. One printed number is at most
- * 24 characters plus a separator, so a staging flush happens at least every
- * ~600 cells and a row of any width is handled field by field. */
+/* Bytes of text produced per refill: rows are appended while the text
+ * holds less than this, so a refill is a few hundred rows of a narrow
+ * model and at least one row of any width. */
 #define SCEN_STAGE 16384
-#define SCEN_FIELD_MAX 40
+/* Longest printed number: %.17g of a double is at most 24 characters
+ * ("-1.2345678901234567e-308"); one more for the separator. */
+#define SCEN_FIELD_MAX 25
 
-typedef struct stage {
-  fg_text_sink *sink;
-  void *ctx;
-  char buf[SCEN_STAGE];
-  size_t n;
-  bool failed;
-} stage;
+/* The growable text buffer of a stream: `len` bytes, `pos` of them read. */
+typedef struct scen_text {
+  char *buf;
+  size_t len, pos, cap;
+  bool failed; /* out of memory; nothing more is appended */
+} scen_text;
 
-static void flush(stage *s) {
-  if (s->failed || s->n == 0) return;
-  if (!s->sink(s->ctx, s->buf, s->n)) s->failed = true;
-  s->n = 0;
-}
+struct fg_scenarios_stream {
+  fg_model *m; /* a reference */
+  fg_scenarios_params q;
+  int dims;
+  int rows_per_draw; /* rows drawn at once (1 .. FG_BLOCK) */
+  double *buf;       /* dims x rows_per_draw drawn values */
+  unsigned char *integer;
+  fg_sample_scratch *w;
+  uint64_t done; /* rows printed */
+  int blk_n, blk_t; /* rows in buf, next row of buf to print */
+  int phase;        /* 0 rows, 1 tail written, 2 finished */
+  scen_text t;
+};
 
-static void put(stage *s, const char *text, size_t len) {
-  while (len > 0 && !s->failed) {
-    size_t room = SCEN_STAGE - s->n;
-    if (room == 0) {
-      flush(s);
-      continue;
-    }
-    size_t k = len < room ? len : room;
-    memcpy(s->buf + s->n, text, k);
-    s->n += k;
-    text += k;
-    len -= k;
+static bool reserve(scen_text *t, size_t more) {
+  if (t->failed) return false;
+  if (t->len + more <= t->cap) return true;
+  size_t cap = t->cap ? t->cap : SCEN_STAGE;
+  while (cap < t->len + more)
+    cap *= 2;
+  char *b = realloc(t->buf, cap);
+  if (!b) {
+    t->failed = true;
+    return false;
   }
+  t->buf = b;
+  t->cap = cap;
+  return true;
 }
 
-static void puts_(stage *s, const char *text) { put(s, text, strlen(text)); }
+static void put(scen_text *t, const char *s, size_t len) {
+  if (!reserve(t, len)) return;
+  memcpy(t->buf + t->len, s, len);
+  t->len += len;
+}
+
+static void puts_(scen_text *t, const char *s) { put(t, s, strlen(s)); }
 
 /* One number; `csv` selects the non-finite spelling. */
-static void put_number(stage *s, double v, bool integer, bool csv) {
-  char f[SCEN_FIELD_MAX];
+static void put_number(scen_text *t, double v, bool integer, bool csv) {
+  char f[40];
   int n;
   if (!isfinite(v)) {
-    if (!csv) puts_(s, "null");
+    if (!csv) puts_(t, "null");
     return;
   }
   if (integer && fabs(v) < 9007199254740992.0)
     n = snprintf(f, sizeof f, "%.0f", v);
   else
     n = snprintf(f, sizeof f, "%.17g", v);
-  if (n > 0) put(s, f, (size_t)n);
+  if (n > 0) put(t, f, (size_t)n);
 }
 
 /* A JSON string; column names are plain ASCII names and indices, but
  * quotes, backslashes and control characters are escaped all the same. */
-static void put_json_string(stage *s, const char *t) {
-  put(s, "\"", 1);
-  for (; *t; t++) {
-    unsigned char c = (unsigned char)*t;
+static void put_json_string(scen_text *t, const char *s) {
+  put(t, "\"", 1);
+  for (; *s; s++) {
+    unsigned char c = (unsigned char)*s;
     if (c == '"' || c == '\\') {
       char e[2] = {'\\', (char)c};
-      put(s, e, 2);
+      put(t, e, 2);
     } else if (c < 0x20) {
       char e[8];
       snprintf(e, sizeof e, "\\u%04x", c);
-      puts_(s, e);
+      puts_(t, e);
     } else {
-      put(s, (const char *)&c, 1);
+      put(t, (const char *)&c, 1);
     }
   }
-  put(s, "\"", 1);
+  put(t, "\"", 1);
 }
 
 /* A CSV field (RFC 4180 section 2, rules 6 and 7). */
-static void put_csv_field(stage *s, const char *t) {
-  if (!strpbrk(t, ",\"\r\n")) {
-    puts_(s, t);
+static void put_csv_field(scen_text *t, const char *s) {
+  if (!strpbrk(s, ",\"\r\n")) {
+    puts_(t, s);
     return;
   }
-  put(s, "\"", 1);
-  for (; *t; t++) {
-    if (*t == '"') put(s, "\"\"", 2);
-    else put(s, t, 1);
+  put(t, "\"", 1);
+  for (; *s; s++) {
+    if (*s == '"') put(t, "\"\"", 2);
+    else put(t, s, 1);
   }
-  put(s, "\"", 1);
+  put(t, "\"", 1);
 }
 
 static fg_status check_params(const fg_scenarios_params *q, fg_problem *p) {
@@ -140,84 +163,176 @@ static fg_status check_params(const fg_scenarios_params *q, fg_problem *p) {
   return FG_OK;
 }
 
-fg_status fg_scenarios_write(const fg_model *m, const fg_scenarios_params *q,
-                             fg_text_sink *sink, void *ctx, fg_problem *p) {
+void fg_scenarios_close(fg_scenarios_stream *s) {
+  if (!s) return;
+  fg_sample_scratch_free(s->w);
+  free(s->integer);
+  free(s->buf);
+  free(s->t.buf);
+  if (s->m) fg_model_unref(s->m);
+  free(s);
+}
+
+fg_status fg_scenarios_open(fg_model *m, const fg_scenarios_params *q,
+                            fg_scenarios_stream **out, fg_problem *p) {
+  *out = NULL;
   fg_status st = check_params(q, p);
   if (st != FG_OK) return st;
+  fg_scenarios_stream *s = calloc(1, sizeof *s);
+  if (!s) return fg_problem_set(p, FG_ENOMEM, "scenarios: out of memory");
+  s->m = fg_model_ref(m);
+  s->q = *q;
   const fg_sampler *smp = m->sampler;
-  int dims = smp ? fg_sampler_dims(smp) : 0;
-  stage *s = malloc(sizeof *s);
-  double *buf = dims ? malloc(sizeof(double) * (size_t)dims * FG_BLOCK) : NULL;
-  unsigned char *integer = dims ? malloc((size_t)dims) : NULL;
-  fg_sample_scratch *w = dims ? fg_sample_scratch_new(smp) : NULL;
-  if (!s || (dims && (!buf || !integer || !w))) {
-    st = fg_problem_set(p, FG_ENOMEM,
-                        "scenarios: out of memory for %d columns", dims);
-    goto out;
+  s->dims = smp ? fg_sampler_dims(smp) : 0;
+  size_t row_bytes = sizeof(double) * (size_t)(s->dims ? s->dims : 1);
+  size_t rows = FG_SCENARIO_STREAM_BYTES / row_bytes;
+  s->rows_per_draw = rows < 1 ? 1 : rows > FG_BLOCK ? FG_BLOCK : (int)rows;
+  if (s->dims) {
+    s->buf = malloc(row_bytes * (size_t)s->rows_per_draw);
+    s->integer = malloc((size_t)s->dims);
+    s->w = fg_sample_scratch_new(smp);
   }
-  s->sink = sink;
-  s->ctx = ctx;
-  s->n = 0;
-  s->failed = false;
-  for (int j = 0; j < dims; j++)
-    integer[j] = fg_sampler_integer_valued(smp, j) ? 1 : 0;
-
-  /* Header. */
+  /* The text never holds more than the header, or SCEN_STAGE bytes plus
+   * one row and the tail: reserved now, so reading never allocates. */
+  size_t row_max = (size_t)s->dims * SCEN_FIELD_MAX + 8;
+  if ((s->dims && (!s->buf || !s->integer || !s->w)) ||
+      !reserve(&s->t, SCEN_STAGE + row_max + 160)) {
+    fg_scenarios_close(s);
+    return fg_problem_set(p, FG_ENOMEM,
+                          "scenarios: out of memory for %d columns", s->dims);
+  }
+  for (int j = 0; j < s->dims; j++)
+    s->integer[j] = fg_sampler_integer_valued(smp, j) ? 1 : 0;
+  scen_text *t = &s->t;
   if (q->csv) {
-    for (int j = 0; j < dims; j++) {
-      if (j) put(s, ",", 1);
-      put_csv_field(s, fg_sampler_column(smp, j));
+    for (int j = 0; j < s->dims; j++) {
+      if (j) put(t, ",", 1);
+      put_csv_field(t, fg_sampler_column(smp, j));
     }
-    put(s, "\r\n", 2);
+    put(t, "\r\n", 2);
   } else {
-    puts_(s, "{\"columns\":[");
-    for (int j = 0; j < dims; j++) {
-      if (j) put(s, ",", 1);
-      put_json_string(s, fg_sampler_column(smp, j));
+    puts_(t, "{\"columns\":[");
+    for (int j = 0; j < s->dims; j++) {
+      if (j) put(t, ",", 1);
+      put_json_string(t, fg_sampler_column(smp, j));
     }
-    puts_(s, "],\"rows\":[");
+    puts_(t, "],\"rows\":[");
   }
+  if (t->failed) {
+    fg_scenarios_close(s);
+    return fg_problem_set(p, FG_ENOMEM,
+                          "scenarios: out of memory for %d column names",
+                          s->dims);
+  }
+  *out = s;
+  return FG_OK;
+}
 
-  /* Rows, one block of draws at a time. */
+/* Refill the (fully read) text: rows until it holds SCEN_STAGE bytes or
+ * the rows run out, then the tail. */
+static void refill(fg_scenarios_stream *s) {
+  scen_text *t = &s->t;
+  t->len = t->pos = 0;
+  const fg_scenarios_params *q = &s->q;
   fg_stream stream = q->validation ? FG_STREAM_VALIDATION : FG_STREAM_DESIGN;
-  for (uint64_t done = 0; done < q->count && !s->failed;) {
-    uint64_t left = q->count - done;
-    int n = left < FG_BLOCK ? (int)left : FG_BLOCK;
-    if (dims)
-      fg_sampler_draw(smp, w, q->seed, stream, q->start + done, n, buf,
-                      FG_BLOCK);
-    for (int t = 0; t < n; t++) {
-      if (!q->csv) puts_(s, done + (uint64_t)t ? ",[" : "[");
-      for (int j = 0; j < dims; j++) {
-        if (j) put(s, ",", 1);
-        put_number(s, buf[(size_t)j * FG_BLOCK + (size_t)t], integer[j],
-                   q->csv);
+  while (s->phase == 0 && t->len < SCEN_STAGE) {
+    if (s->blk_t == s->blk_n) {
+      uint64_t left = q->count - s->done;
+      if (left == 0) {
+        if (!q->csv) {
+          char tail[160];
+          snprintf(tail, sizeof tail,
+                   "],\"seed\":%llu,\"stream\":\"%s\",\"start\":%llu}\n",
+                   (unsigned long long)q->seed,
+                   q->validation ? "validation" : "design",
+                   (unsigned long long)q->start);
+          puts_(t, tail);
+        }
+        s->phase = 1;
+        break;
       }
-      if (q->csv) put(s, "\r\n", 2);
-      else put(s, "]", 1);
+      int n = left < (uint64_t)s->rows_per_draw ? (int)left : s->rows_per_draw;
+      /* sample i, dimension j depends on (seed, stream, j, i) alone, so
+       * the cut into draws never shows in the text */
+      if (s->dims)
+        fg_sampler_draw(s->m->sampler, s->w, q->seed, stream,
+                        q->start + s->done, n, s->buf,
+                        (size_t)s->rows_per_draw);
+      s->blk_n = n;
+      s->blk_t = 0;
     }
-    done += (uint64_t)n;
+    int r = s->blk_t++;
+    if (!q->csv) puts_(t, s->done ? ",[" : "[");
+    for (int j = 0; j < s->dims; j++) {
+      if (j) put(t, ",", 1);
+      put_number(t, s->buf[(size_t)j * (size_t)s->rows_per_draw + (size_t)r],
+                 s->integer[j], q->csv);
+    }
+    if (q->csv) put(t, "\r\n", 2);
+    else put(t, "]", 1);
+    s->done++;
   }
+}
 
-  if (!q->csv) {
-    char tail[160];
-    snprintf(tail, sizeof tail,
-             "],\"seed\":%llu,\"stream\":\"%s\",\"start\":%llu}\n",
-             (unsigned long long)q->seed,
-             q->validation ? "validation" : "design",
-             (unsigned long long)q->start);
-    puts_(s, tail);
+bool fg_scenarios_failed(const fg_scenarios_stream *s) {
+  return s->t.failed;
+}
+
+size_t fg_scenarios_read(fg_scenarios_stream *s, char *buf, size_t cap) {
+  size_t n = 0;
+  while (n < cap && !s->t.failed) {
+    scen_text *t = &s->t;
+    if (t->pos == t->len) {
+      if (s->phase != 0) {
+        s->phase = 2;
+        break;
+      }
+      refill(s);
+      continue;
+    }
+    size_t k = t->len - t->pos;
+    if (k > cap - n) k = cap - n;
+    memcpy(buf + n, t->buf + t->pos, k);
+    t->pos += k;
+    n += k;
   }
-  flush(s);
-  if (s->failed)
-    st = fg_problem_set(p, FG_EIO, "scenarios: the output could not be "
-                                   "written");
-out:
-  fg_sample_scratch_free(w);
-  free(integer);
-  free(buf);
-  free(s);
-  return st;
+  return n;
+}
+
+fg_status fg_scenarios_write(const fg_model *m, const fg_scenarios_params *q,
+                             fg_text_sink *sink, void *ctx, fg_problem *p) {
+  fg_scenarios_stream *s = NULL;
+  /* the stream takes a reference, which the caller's model outlives */
+  fg_status st = fg_scenarios_open((fg_model *)m, q, &s, p);
+  if (st != FG_OK) return st;
+  char chunk[SCEN_STAGE];
+  size_t n;
+  bool ok = true;
+  while (ok && (n = fg_scenarios_read(s, chunk, sizeof chunk)) > 0)
+    ok = sink(ctx, chunk, n);
+  bool oom = fg_scenarios_failed(s);
+  fg_scenarios_close(s);
+  if (oom)
+    return fg_problem_set(p, FG_ENOMEM, "scenarios: out of memory");
+  if (!ok)
+    return fg_problem_set(p, FG_EIO, "scenarios: the output could not be "
+                                     "written");
+  return FG_OK;
+}
+
+fg_status fg_scenarios_size_check(const fg_model *m, uint64_t count,
+                                  fg_problem *p) {
+  int dims = m->sampler ? fg_sampler_dims(m->sampler) : 0;
+  uint64_t width = dims > 0 ? (uint64_t)dims : 1;
+  if (count <= FG_SCENARIO_CELLS_MAX / width) return FG_OK;
+  fg_problem_set(p, FG_ELIMIT,
+                 "scenarios: %llu scenarios of %d columns exceed "
+                 "scenario_cells = %llu values in one response",
+                 (unsigned long long)count, dims,
+                 (unsigned long long)FG_SCENARIO_CELLS_MAX);
+  p->limit_name = "scenario_cells";
+  p->limit_value = (double)FG_SCENARIO_CELLS_MAX;
+  return FG_ELIMIT;
 }
 
 /* ---- into one buffer ---- */
@@ -247,18 +362,8 @@ fg_status fg_scenarios_render(const fg_model *m, const fg_scenarios_params *q,
                               char **out, size_t *len, fg_problem *p) {
   *out = NULL;
   *len = 0;
-  int dims = m->sampler ? fg_sampler_dims(m->sampler) : 0;
-  uint64_t width = dims > 0 ? (uint64_t)dims : 1;
-  if (q->count > FG_SCENARIO_CELLS_MAX / width) {
-    fg_problem_set(p, FG_ELIMIT,
-                   "scenarios: %llu scenarios of %d columns exceed "
-                   "scenario_cells = %llu values in one response",
-                   (unsigned long long)q->count, dims,
-                   (unsigned long long)FG_SCENARIO_CELLS_MAX);
-    p->limit_name = "scenario_cells";
-    p->limit_value = (double)FG_SCENARIO_CELLS_MAX;
-    return FG_ELIMIT;
-  }
+  fg_status sized = fg_scenarios_size_check(m, q->count, p);
+  if (sized != FG_OK) return sized;
   membuf b = {0};
   fg_status st = fg_scenarios_write(m, q, mem_sink, &b, p);
   if (st == FG_EIO) {

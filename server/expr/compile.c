@@ -357,7 +357,7 @@ static const int elementwise_op[FG_FN_COUNT] = {
     [FG_FN_EXP] = FG_OP_EXP,     [FG_FN_LOG] = FG_OP_LOG,
     [FG_FN_LOG10] = FG_OP_LOG10, [FG_FN_FLOOR] = FG_OP_FLOOR,
     [FG_FN_CEIL] = FG_OP_CEIL,   [FG_FN_ROUND] = FG_OP_ROUND,
-    [FG_FN_POS] = FG_OP_POS,
+    [FG_FN_ABOVE_ZERO] = FG_OP_ABOVE_ZERO,
 };
 
 static bool running_sum(fg_expr_compiler *c, fg_value *v, int col,

@@ -91,7 +91,7 @@ typedef enum fg_func {
   FG_FN_FLOOR,
   FG_FN_CEIL,
   FG_FN_ROUND,
-  FG_FN_POS,
+  FG_FN_ABOVE_ZERO,
   FG_FN_MIN,
   FG_FN_MAX,
   FG_FN_SUM,

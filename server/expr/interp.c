@@ -104,7 +104,7 @@ void fg_expr_run(const fg_insn *insns, int count, double *regs, size_t stride,
       for (int i = 0; i < n; i++)
         d[i] = round(a[i]);
       break;
-    case FG_OP_POS:
+    case FG_OP_ABOVE_ZERO:
       for (int i = 0; i < n; i++)
         d[i] = a[i] < 0.0 ? 0.0 : a[i];
       break;

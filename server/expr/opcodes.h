@@ -32,7 +32,7 @@
  * Odd cases:
  *   - MIN and MAX propagate NaN (unlike fmin/fmax), so a NaN never hides
  *     inside a maximum and turns a violated row into a satisfied one;
- *   - POS(NaN) is NaN for the same reason;
+ *   - ABOVE_ZERO(NaN) is NaN for the same reason;
  *   - comparisons with a NaN operand give 0, except NE which gives 1;
  *     comparisons of infinities follow IEEE (inf <= inf is 1);
  *   - EXCESS(a, b) is a - b except 0 where a == b, so two equal
@@ -60,7 +60,7 @@ typedef enum fg_opcode {
   FG_OP_FLOOR,     /* d <- largest integer <= a                  */
   FG_OP_CEIL,      /* d <- smallest integer >= a                 */
   FG_OP_ROUND,     /* d <- a rounded, halves away from zero      */
-  FG_OP_POS,       /* d <- max(a, 0), NaN stays NaN              */
+  FG_OP_ABOVE_ZERO, /* d <- max(a, 0), NaN stays NaN              */
   FG_OP_ADD,       /* d <- a + b                                 */
   FG_OP_SUB,       /* d <- a - b                                 */
   FG_OP_MUL,       /* d <- a * b                                 */
@@ -93,7 +93,7 @@ typedef struct fg_opcode_desc {
 static const fg_opcode_desc fg_opcode_table[] = {
     {"const", 0}, {"neg", 1}, {"not", 1},    {"abs", 1},   {"sqrt", 1},
     {"exp", 1},   {"log", 1}, {"log10", 1},  {"floor", 1}, {"ceil", 1},
-    {"round", 1}, {"pos", 1}, {"add", 2},    {"sub", 2},   {"mul", 2},
+    {"round", 1}, {"above_zero", 1}, {"add", 2},    {"sub", 2},   {"mul", 2},
     {"div", 2},   {"pow", 2}, {"min", 2},    {"max", 2},   {"lt", 2},
     {"le", 2},    {"gt", 2},  {"ge", 2},     {"eq", 2},    {"ne", 2},
     {"and", 2},   {"or", 2},  {"select", 3}, {"clamp", 3}, {"muladd", 3},

@@ -66,7 +66,7 @@ static const struct {
     {"exp", FG_FN_EXP, 1, 1},       {"log", FG_FN_LOG, 1, 1},
     {"log10", FG_FN_LOG10, 1, 1},   {"floor", FG_FN_FLOOR, 1, 1},
     {"ceil", FG_FN_CEIL, 1, 1},     {"round", FG_FN_ROUND, 1, 1},
-    {"pos", FG_FN_POS, 1, 1},       {"min", FG_FN_MIN, 1, -1},
+    {"above_zero", FG_FN_ABOVE_ZERO, 1, 1}, {"min", FG_FN_MIN, 1, -1},
     {"max", FG_FN_MAX, 1, -1},      {"sum", FG_FN_SUM, 1, 1},
     {"mean", FG_FN_MEAN, 1, 1},     {"dot", FG_FN_DOT, 2, 2},
     {"length", FG_FN_LENGTH, 1, 1}, {"running_sum", FG_FN_RUNNING_SUM, 1, 1},

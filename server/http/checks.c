@@ -21,7 +21,10 @@
  *      pool after all is closed as `failed`);
  *   6. wait up to wait_s: ended -> record the end (fg_job_record_end),
  *      201 + Location; still running -> 202 with the running body, and
- *      the registry's watcher records it when it ends.
+ *      the registry's watcher records it when it ends. No wait here holds
+ *      a thread: the request is suspended (out->pending, waiter.c) until
+ *      the job has ended or the time is up; so are DELETE's wait for a
+ *      cancelled check and GET's look for a just-started one.
  *
  * Check ids: "chk_" + 26 Crockford base32 characters of a 128-bit value,
  * 48 bits of Unix milliseconds then 80 random bits. Ids made in the same
@@ -159,6 +162,43 @@ static cJSON *check_summary(const fg_store_check *c) {
 
 /* ---- POST .../checks ---- */
 
+/* Steps 6-7 for a started job: ended -> record the end, 201; still
+ * running -> 202, and the registry's watcher records its end. */
+static void answer_created(fg_job *job, fg_resp *out) {
+  snprintf(out->location, sizeof out->location, "/v1/checks/%s",
+           fg_job_id(job));
+  if (fg_job_ended(job)) {
+    fg_problem sp;
+    fg_problem_init(&sp);
+    if (fg_job_record_end(job, &sp) != FG_OK) {
+      out->location[0] = '\0';
+      fg_resp_problem(out, &sp, 0);
+      return;
+    }
+    fg_job_answer(job, 201, out);
+    return;
+  }
+  /* Still running: answer 202 with the running body; the registry's
+   * watcher records its end. */
+  fg_job_detach(job);
+  fg_job_answer(job, 202, out);
+}
+
+/* The waiter's look: has the job ended? (non-blocking) */
+static bool job_ended(void *ctx) { return fg_job_ended(ctx); }
+
+static void create_finish(fg_req *r, void *ctx, bool timed_out,
+                          fg_resp *out) {
+  answer_created(ctx, out);
+  fg_job_unref(ctx);
+}
+
+/* The request went away while waiting: the watcher records the job. */
+static void create_drop(void *ctx) {
+  fg_job_detach(ctx);
+  fg_job_unref(ctx);
+}
+
 void fg_h_checks_create(fg_req *r, fg_resp *out) {
   fg_server *srv = r->srv;
   const char *name = r->params[0];
@@ -221,21 +261,18 @@ void fg_h_checks_create(fg_req *r, fg_resp *out) {
   }
   snprintf(out->location, sizeof out->location, "/v1/checks/%s",
            fg_job_id(job));
-  if (fg_job_wait(job, req.wait_s)) {
-    fg_problem sp;
-    fg_problem_init(&sp);
-    if (fg_job_record_end(job, &sp) != FG_OK) {
-      out->location[0] = '\0';
-      fg_resp_problem(out, &sp, 0);
-      goto done;
-    }
-    fg_job_answer(job, 201, out);
+  if (req.wait_s > 0 && !fg_job_ended(job)) {
+    /* Wait suspended, holding no thread (waiter.c). */
+    out->location[0] = '\0';
+    out->pending = (fg_pending){.ready = job_ended,
+                                .finish = create_finish,
+                                .drop = create_drop,
+                                .ctx = job,
+                                .deadline = fg_http_now() + req.wait_s};
+    job = NULL; /* the wait owns the reference */
     goto done;
   }
-  /* Still running: answer 202 with the running body; the registry's
-   * watcher records its end. */
-  fg_job_detach(job);
-  fg_job_answer(job, 202, out);
+  answer_created(job, out);
 
 done:
   fg_job_unref(job);
@@ -299,9 +336,32 @@ static bool send_stored_result(fg_resp *out, fg_store_check *c) {
   return true;
 }
 
-void fg_h_check_get(fg_req *r, fg_resp *out) {
-  const char *id = r->params[0];
-  fg_job *job = fg_registry_find(r->srv->registry, id);
+/* A GET of a check stored as running but not (yet) listed here: looks
+ * at the registry for FG_HTTP_LIVE_RETRIES x 2 ms, suspended. */
+typedef struct get_wait {
+  fg_server *srv;
+  char id[FG_HTTP_PATH_MAX + 1];
+} get_wait;
+
+static bool get_listed(void *ctx) {
+  get_wait *gw = ctx;
+  fg_job *job = fg_registry_find(gw->srv->registry, gw->id);
+  fg_job_unref(job);
+  return job != NULL;
+}
+
+static void get_answer(fg_server *srv, const char *id, bool look_again,
+                       fg_resp *out);
+
+static void get_finish(fg_req *r, void *ctx, bool timed_out, fg_resp *out) {
+  get_wait *gw = ctx;
+  get_answer(gw->srv, gw->id, false, out);
+  free(gw);
+}
+
+static void get_answer(fg_server *srv, const char *id, bool look_again,
+                       fg_resp *out) {
+  fg_job *job = fg_registry_find(srv->registry, id);
   if (job) {
     fg_job_answer(job, 200, out);
     fg_job_unref(job);
@@ -310,28 +370,34 @@ void fg_h_check_get(fg_req *r, fg_resp *out) {
   fg_problem p;
   fg_problem_init(&p);
   fg_store_check c;
-  if (fg_store_get_check(r->srv->store, id, &c, &p) != FG_OK) {
+  if (fg_store_get_check(srv->store, id, &c, &p) != FG_OK) {
     fg_resp_problem(out, &p, 0);
     return;
   }
   /* A check is recorded as running a moment before it is listed in the
    * registry (record, start, list). A GET in that gap would get the
    * stored body without progress; look again for a short while. */
-  if (fg_check_state_parse(c.status) == FG_CHECK_RUNNING) {
-    for (int i = 0; i < FG_HTTP_LIVE_RETRIES; i++) {
-      struct timespec ts = {0, 2 * 1000 * 1000};
-      nanosleep(&ts, NULL);
-      job = fg_registry_find(r->srv->registry, id);
-      if (job) {
-        fg_store_check_clear(&c);
-        fg_job_answer(job, 200, out);
-        fg_job_unref(job);
-        return;
-      }
+  if (look_again && fg_check_state_parse(c.status) == FG_CHECK_RUNNING) {
+    get_wait *gw = malloc(sizeof *gw);
+    if (gw) {
+      gw->srv = srv;
+      snprintf(gw->id, sizeof gw->id, "%s", id);
+      fg_store_check_clear(&c);
+      out->pending = (fg_pending){.ready = get_listed,
+                                  .finish = get_finish,
+                                  .drop = free,
+                                  .ctx = gw,
+                                  .deadline = fg_http_now() +
+                                              FG_HTTP_LIVE_RETRIES * 0.002};
+      return;
     }
   }
   if (!send_stored_result(out, &c)) fg_resp_json(out, 200, stored_body(&c));
   fg_store_check_clear(&c);
+}
+
+void fg_h_check_get(fg_req *r, fg_resp *out) {
+  get_answer(r->srv, r->params[0], true, out);
 }
 
 /* ---- DELETE /v1/checks/{id} ---- */
@@ -339,31 +405,130 @@ void fg_h_check_get(fg_req *r, fg_resp *out) {
 /* Cancel a check this process runs: the engine ends it within one block,
  * or within FG_STUCK_WORKER_S when a worker is stuck; its end is then
  * recorded here (or was, by whoever came first). */
+/* The end of a DELETE of a job this process runs, once it has ended. */
+static void cancel_answer(fg_server *srv, fg_job *job, fg_resp *out) {
+  const char *id = fg_job_id(job);
+  fg_problem sp;
+  fg_problem_init(&sp);
+  if (fg_job_record_end(job, &sp) != FG_OK) {
+    fg_resp_problem(out, &sp, 0);
+    return;
+  }
+  fg_registry_poke(srv->registry);
+  if (fg_job_final_state(job) == FG_CHECK_CANCELLED) {
+    fg_job_answer(job, 200, out);
+    return;
+  }
+  fg_resp_error(out, 409, FG_ECONFLICT, "check %s is not running: it ended %s",
+                id, fg_check_state_name(fg_job_final_state(job)));
+}
+
+typedef struct cancel_wait {
+  fg_server *srv;
+  fg_job *job; /* a reference */
+} cancel_wait;
+
+static bool cancel_ended(void *ctx) {
+  return fg_job_ended(((cancel_wait *)ctx)->job);
+}
+
+static void cancel_drop(void *ctx) {
+  cancel_wait *cw = ctx;
+  fg_job_unref(cw->job);
+  free(cw);
+}
+
+static void cancel_finish(fg_req *r, void *ctx, bool timed_out,
+                          fg_resp *out) {
+  cancel_wait *cw = ctx;
+  if (!fg_job_ended(cw->job))
+    fg_resp_error(out, 503, FG_EBUSY,
+                  "check %s was told to stop but has not stopped within "
+                  "%g s; GET it shortly",
+                  fg_job_id(cw->job), FG_HTTP_CANCEL_WAIT_S);
+  else
+    cancel_answer(cw->srv, cw->job, out);
+  cancel_drop(cw);
+}
+
+/* Cancel a check this process runs: the engine ends it within one block,
+ * or within FG_STUCK_WORKER_S when a worker is stuck; its end is then
+ * recorded here (or was, by whoever came first). The wait for the end is
+ * suspended. */
 static void cancel_here(fg_req *r, fg_job *job, fg_resp *out) {
   const char *id = fg_job_id(job);
   if (!fg_job_ended(job)) {
     fg_job_cancel(job);
-    if (!fg_job_wait(job, FG_HTTP_CANCEL_WAIT_S)) {
-      fg_resp_error(out, 503, FG_EBUSY,
-                    "check %s was told to stop but has not stopped within "
-                    "%g s; GET it shortly",
-                    id, FG_HTTP_CANCEL_WAIT_S);
+    if (!fg_job_ended(job)) {
+      cancel_wait *cw = malloc(sizeof *cw);
+      if (!cw) {
+        fg_resp_error(out, 503, FG_ENOMEM,
+                      "out of memory waiting for check %s to stop", id);
+        return;
+      }
+      cw->srv = r->srv;
+      cw->job = fg_job_ref(job);
+      out->pending =
+          (fg_pending){.ready = cancel_ended,
+                       .finish = cancel_finish,
+                       .drop = cancel_drop,
+                       .ctx = cw,
+                       .deadline = fg_http_now() + FG_HTTP_CANCEL_WAIT_S};
       return;
     }
-    fg_problem sp;
-    fg_problem_init(&sp);
-    if (fg_job_record_end(job, &sp) != FG_OK) {
-      fg_resp_problem(out, &sp, 0);
-      return;
-    }
-    fg_registry_poke(r->srv->registry);
-    if (fg_job_final_state(job) == FG_CHECK_CANCELLED) {
-      fg_job_answer(job, 200, out);
-      return;
-    }
+    cancel_answer(r->srv, job, out);
+    return;
   }
   fg_resp_error(out, 409, FG_ECONFLICT, "check %s is not running: it ended %s",
                 id, fg_check_state_name(fg_job_final_state(job)));
+}
+
+/* A DELETE of a check another replica runs, waiting (suspended) for its
+ * record to end: the store is read every REPLICA_LOOK_S (in finish, on a
+ * libmicrohttpd thread; the waiter thread only keeps the time). */
+#define REPLICA_LOOK_S 0.05
+typedef struct replica_wait {
+  fg_server *srv;
+  double until; /* fg_http_now() seconds */
+  char id[FG_HTTP_PATH_MAX + 1];
+} replica_wait;
+
+static void replica_finish(fg_req *r, void *ctx, bool timed_out,
+                           fg_resp *out) {
+  replica_wait *rw = ctx;
+  fg_problem p;
+  fg_problem_init(&p);
+  fg_store_check c;
+  if (fg_store_get_check(rw->srv->store, rw->id, &c, &p) != FG_OK) {
+    fg_resp_problem(out, &p, 0);
+    free(rw);
+    return;
+  }
+  fg_check_state state = fg_check_state_parse(c.status);
+  double now = fg_http_now();
+  if (state == FG_CHECK_RUNNING && now < rw->until) {
+    fg_store_check_clear(&c);
+    out->pending = (fg_pending){
+        .finish = replica_finish,
+        .drop = free,
+        .ctx = rw,
+        .deadline = now + REPLICA_LOOK_S < rw->until ? now + REPLICA_LOOK_S
+                                                     : rw->until};
+    return;
+  }
+  if (state == FG_CHECK_RUNNING)
+    fg_resp_error(out, 503, FG_EBUSY,
+                  "check %s runs in another replica, which was asked to "
+                  "stop it but has not within %g s; GET it shortly",
+                  rw->id, FG_HTTP_CANCEL_WAIT_S);
+  else if (state == FG_CHECK_CANCELLED) {
+    if (!send_stored_result(out, &c))
+      fg_resp_json(out, 200, check_summary(&c));
+  } else
+    fg_resp_error(out, 409, FG_ECONFLICT,
+                  "check %s is not running: it ended %s", rw->id, c.status);
+  fg_store_check_clear(&c);
+  free(rw);
 }
 
 void fg_h_check_cancel(fg_req *r, fg_resp *out) {
@@ -391,32 +556,21 @@ void fg_h_check_cancel(fg_req *r, fg_resp *out) {
       fg_resp_problem(out, &p, 0);
       return;
     }
-    double until = fg_time_monotonic() + FG_HTTP_CANCEL_WAIT_S;
-    while (state == FG_CHECK_RUNNING && fg_time_monotonic() < until) {
-      struct timespec ts = {0, 50 * 1000 * 1000};
-      nanosleep(&ts, NULL);
-      fg_store_check_clear(&c);
-      fg_problem_init(&p);
-      if (fg_store_get_check(r->srv->store, id, &c, &p) != FG_OK) {
-        fg_resp_problem(out, &p, 0);
-        return;
-      }
-      state = fg_check_state_parse(c.status);
-    }
-    if (state == FG_CHECK_RUNNING) {
-      fg_store_check_clear(&c);
-      fg_resp_error(out, 503, FG_EBUSY,
-                    "check %s runs in another replica, which was asked to "
-                    "stop it but has not within %g s; GET it shortly",
-                    id, FG_HTTP_CANCEL_WAIT_S);
+    fg_store_check_clear(&c);
+    replica_wait *rw = malloc(sizeof *rw);
+    if (!rw) {
+      fg_resp_error(out, 503, FG_ENOMEM,
+                    "out of memory waiting for check %s to stop", id);
       return;
     }
-    if (state == FG_CHECK_CANCELLED) {
-      if (!send_stored_result(out, &c))
-        fg_resp_json(out, 200, check_summary(&c));
-      fg_store_check_clear(&c);
-      return;
-    }
+    rw->srv = r->srv;
+    rw->until = fg_http_now() + FG_HTTP_CANCEL_WAIT_S;
+    snprintf(rw->id, sizeof rw->id, "%s", id);
+    out->pending = (fg_pending){.finish = replica_finish,
+                                .drop = free,
+                                .ctx = rw,
+                                .deadline = fg_http_now() + REPLICA_LOOK_S};
+    return;
   }
   if (state == FG_CHECK_RUNNING)
     fg_resp_error(out, 409, FG_ECONFLICT,

@@ -30,7 +30,8 @@
  *      and recorded, and the answer is 503;
  *   4. the comparison's row (`running`, the candidates' check ids) goes
  *      to the store and the comparison to the registry;
- *   5. wait for all candidates until wait_s has passed in total: ended ->
+ *   5. wait (suspended: out->pending, waiter.c -- no thread is held) for
+ *      all candidates until wait_s has passed in total: ended ->
  *      fg_comparison_step records every candidate and the comparison, 200;
  *      else 202 + Location, and the registry's watcher steps it when the
  *      last candidate ends.
@@ -312,6 +313,44 @@ static void abandon(fg_job **jobs, int n) {
   }
 }
 
+/* Have all candidates ended? (the waiter's look; non-blocking) */
+static bool jobs_ended(void *ctx) {
+  fg_comparison *c = ctx;
+  for (int i = 0; i < c->n; i++)
+    if (!fg_job_ended(c->jobs[i])) return false;
+  return true;
+}
+
+/* Step 5's answer: 200 when every candidate ended and the result is
+ * stored, else 202 with the running ones detached. */
+static void answer_created(fg_server *srv, fg_comparison *c, fg_resp *out) {
+  snprintf(out->location, sizeof out->location, "/v1/comparisons/%s",
+           c->rec.id);
+  bool all = jobs_ended(c);
+  for (int i = 0; i < c->n; i++)
+    if (!fg_job_ended(c->jobs[i])) fg_job_detach(c->jobs[i]);
+  if (all && fg_comparison_step(c)) {
+    fg_registry_poke(srv->registry);
+    fg_comparison_answer(c, 200, out);
+    return;
+  }
+  fg_comparison_answer(c, 202, out);
+}
+
+static void created_finish(fg_req *r, void *ctx, bool timed_out,
+                           fg_resp *out) {
+  answer_created(r->srv, ctx, out);
+  fg_comparison_unref(ctx);
+}
+
+/* The request went away while waiting: the watcher finishes it. */
+static void created_drop(void *ctx) {
+  fg_comparison *c = ctx;
+  for (int i = 0; i < c->n; i++)
+    if (!fg_job_ended(c->jobs[i])) fg_job_detach(c->jobs[i]);
+  fg_comparison_unref(c);
+}
+
 void fg_h_comparisons_create(fg_req *r, fg_resp *out) {
   fg_server *srv = r->srv;
   const char *name = r->params[0];
@@ -401,21 +440,17 @@ void fg_h_comparisons_create(fg_req *r, fg_resp *out) {
     fg_resp_problem(out, &p, 0);
     goto done;
   }
-  snprintf(out->location, sizeof out->location, "/v1/comparisons/%s",
-           c->rec.id);
-  bool all = true;
-  for (int i = 0; i < n && all; i++) {
-    double left = wait_s - (fg_time_monotonic() - t0);
-    if (!fg_job_wait(c->jobs[i], left > 0 ? left : 0)) all = false;
-  }
-  for (int i = 0; i < n; i++)
-    if (!fg_job_ended(c->jobs[i])) fg_job_detach(c->jobs[i]);
-  if (all && fg_comparison_step(c)) {
-    fg_registry_poke(srv->registry);
-    fg_comparison_answer(c, 200, out);
+  if (wait_s > 0 && !jobs_ended(c)) {
+    /* Step 5 waits suspended, holding no thread (waiter.c). */
+    out->pending = (fg_pending){.ready = jobs_ended,
+                                .finish = created_finish,
+                                .drop = created_drop,
+                                .ctx = fg_comparison_ref(c),
+                                .deadline = fg_http_now() + wait_s -
+                                            (fg_time_monotonic() - t0)};
     goto done;
   }
-  fg_comparison_answer(c, 202, out);
+  answer_created(srv, c, out);
 
 done:
   fg_comparison_unref(c);
@@ -502,6 +537,65 @@ void fg_h_comparison_get(fg_req *r, fg_resp *out) {
   fg_store_comparison_clear(&row);
 }
 
+/* A DELETE of a comparison another replica runs, waiting (suspended)
+ * for its row to end: the store is read every REPLICA_LOOK_S in finish. */
+#define REPLICA_LOOK_S 0.05
+typedef struct replica_wait {
+  double until; /* fg_http_now() seconds */
+  char id[FG_HTTP_PATH_MAX + 1];
+} replica_wait;
+
+static void replica_finish(fg_req *r, void *ctx, bool timed_out,
+                           fg_resp *out) {
+  replica_wait *rw = ctx;
+  fg_problem p;
+  fg_problem_init(&p);
+  fg_store_comparison row;
+  if (fg_store_get_comparison(r->srv->store, rw->id, &row, &p) != FG_OK) {
+    fg_resp_problem(out, &p, 0);
+    free(rw);
+    return;
+  }
+  fg_check_state state = fg_check_state_parse(row.status);
+  double now = fg_http_now();
+  if (state == FG_CHECK_RUNNING && now < rw->until) {
+    fg_store_comparison_clear(&row);
+    out->pending = (fg_pending){
+        .finish = replica_finish,
+        .drop = free,
+        .ctx = rw,
+        .deadline = now + REPLICA_LOOK_S < rw->until ? now + REPLICA_LOOK_S
+                                                     : rw->until};
+    return;
+  }
+  if (state == FG_CHECK_RUNNING)
+    fg_resp_error(out, 503, FG_EBUSY,
+                  "comparison %s runs in another replica, which was asked "
+                  "to stop it but has not within %g s; GET it shortly",
+                  rw->id, FG_HTTP_CANCEL_WAIT_S);
+  else
+    answer_stored(r, &row, out);
+  fg_store_comparison_clear(&row);
+  free(rw);
+}
+
+static void cancelled_finish(fg_req *r, void *ctx, bool timed_out,
+                             fg_resp *out) {
+  fg_comparison *c = ctx;
+  if (!fg_comparison_step(c)) {
+    fg_resp_error(out, 503, FG_EBUSY,
+                  "comparison %s was told to stop but its end is not "
+                  "recorded yet; GET it shortly",
+                  c->rec.id);
+  } else {
+    fg_comparison_answer(c, 200, out);
+  }
+  fg_registry_poke(r->srv->registry);
+  fg_comparison_unref(c);
+}
+
+static void cancelled_drop(void *ctx) { fg_comparison_unref(ctx); }
+
 void fg_h_comparison_cancel(fg_req *r, fg_resp *out) {
   const char *id = r->params[0];
   if (!valid_id(id, out)) return;
@@ -520,21 +614,13 @@ void fg_h_comparison_cancel(fg_req *r, fg_resp *out) {
     }
     for (int i = 0; i < c->n; i++)
       fg_job_cancel(c->jobs[i]);
-    double until = fg_time_monotonic() + FG_HTTP_CANCEL_WAIT_S;
-    for (int i = 0; i < c->n; i++) {
-      double left = until - fg_time_monotonic();
-      fg_job_wait(c->jobs[i], left > 0 ? left : 0);
-    }
-    if (!fg_comparison_step(c)) {
-      fg_resp_error(out, 503, FG_EBUSY,
-                    "comparison %s was told to stop but its end is not "
-                    "recorded yet; GET it shortly",
-                    id);
-    } else {
-      fg_comparison_answer(c, 200, out);
-    }
-    fg_registry_poke(r->srv->registry);
-    fg_comparison_unref(c);
+    /* The wait for the candidates' ends is suspended (waiter.c). */
+    out->pending = (fg_pending){.ready = jobs_ended,
+                                .finish = cancelled_finish,
+                                .drop = cancelled_drop,
+                                .ctx = c, /* the reference found */
+                                .deadline =
+                                    fg_http_now() + FG_HTTP_CANCEL_WAIT_S};
     return;
   }
   fg_problem p;
@@ -556,26 +642,19 @@ void fg_h_comparison_cancel(fg_req *r, fg_resp *out) {
       fg_store_request_cancel(r->srv->store, cid->valuestring, &p);
     }
     cJSON_Delete(ids);
-    double until = fg_time_monotonic() + FG_HTTP_CANCEL_WAIT_S;
-    while (state == FG_CHECK_RUNNING && fg_time_monotonic() < until) {
-      struct timespec ts = {0, 50 * 1000 * 1000};
-      nanosleep(&ts, NULL);
-      fg_store_comparison_clear(&row);
-      fg_problem_init(&p);
-      if (fg_store_get_comparison(r->srv->store, id, &row, &p) != FG_OK) {
-        fg_resp_problem(out, &p, 0);
-        return;
-      }
-      state = fg_check_state_parse(row.status);
-    }
-    if (state == FG_CHECK_RUNNING)
-      fg_resp_error(out, 503, FG_EBUSY,
-                    "comparison %s runs in another replica, which was asked "
-                    "to stop it but has not within %g s; GET it shortly",
-                    id, FG_HTTP_CANCEL_WAIT_S);
-    else
-      answer_stored(r, &row, out);
     fg_store_comparison_clear(&row);
+    replica_wait *rw = malloc(sizeof *rw);
+    if (!rw) {
+      fg_resp_error(out, 503, FG_ENOMEM,
+                    "out of memory waiting for comparison %s to stop", id);
+      return;
+    }
+    rw->until = fg_http_now() + FG_HTTP_CANCEL_WAIT_S;
+    snprintf(rw->id, sizeof rw->id, "%s", id);
+    out->pending = (fg_pending){.finish = replica_finish,
+                                .drop = free,
+                                .ctx = rw,
+                                .deadline = fg_http_now() + REPLICA_LOOK_S};
     return;
   }
   fg_resp_error(out, 409, FG_ECONFLICT,

@@ -51,7 +51,7 @@ static const opt_def options[] = {
     {"--workers", "FEASGATE_WORKERS", OPT_INT, OFF(workers), 1, FG_WORKERS_MAX,
      "simulation worker threads"},
     {"--chunk", "FEASGATE_CHUNK", OPT_INT, OFF(chunk), FG_CHUNK_MIN,
-     FG_CHUNK_MAX, "samples per worker task (a multiple of FG_BLOCK)"},
+     FG_CHUNK_MAX, "samples per worker task (a multiple of 256)"},
     {"--queue", "FEASGATE_QUEUE", OPT_INT, OFF(queue), 1, FG_HTTP_QUEUE_MAX,
      "checks waiting for a worker at most"},
     {"--max-body", "FEASGATE_MAX_BODY", OPT_BYTES, OFF(max_body), 1,
@@ -74,8 +74,14 @@ static const opt_def options[] = {
      FG_HTTP_URL_MAX, "PEM certificate (chain) file: serve HTTPS"},
     {"--tls-key", "FEASGATE_TLS_KEY", OPT_STRING, OFF(tls_key), 1,
      FG_HTTP_URL_MAX, "PEM private key file of --tls-cert"},
-    {"--insecure", "FEASGATE_INSECURE", OPT_BOOL, OFF(insecure), 0, 0,
-     "allow a non-loopback --listen while the store holds no key"},
+    {"--max-connections", "FEASGATE_MAX_CONNECTIONS", OPT_INT,
+     OFF(max_connections), 1, FG_HTTP_CONNECTIONS_HARD,
+     "open connections at most (more get a 503)"},
+    {"--max-connections-per-client", "FEASGATE_MAX_CONNECTIONS_PER_CLIENT",
+     OPT_INT, OFF(max_connections_per_client), 1, FG_HTTP_CONNECTIONS_HARD,
+     "open connections from one address at most"},
+    {"--allow-keyless", "FEASGATE_ALLOW_KEYLESS", OPT_BOOL, OFF(allow_keyless),
+     0, 0, "allow a non-loopback --listen while the store holds no key"},
 };
 
 #define NOPTIONS (sizeof options / sizeof *options)
@@ -96,6 +102,8 @@ static void defaults(fg_http_config *cfg) {
   cfg->grace_s = FG_HTTP_GRACE_DEFAULT;
   cfg->log_level = FG_LOG_INFO;
   cfg->max_check_s = FG_HTTP_CHECK_TIME_DEFAULT;
+  cfg->max_connections = FG_HTTP_CONNECTIONS_DEFAULT;
+  cfg->max_connections_per_client = FG_HTTP_CONNECTIONS_PER_CLIENT_DEFAULT;
 }
 
 static int fail(char *err, size_t cap, const char *where, const char *value,
@@ -235,12 +243,52 @@ static int set_value(fg_http_config *cfg, const opt_def *o, const char *where,
   return fail(err, cap, where, v, "a known setting");
 }
 
+/* The default of one setting as text, for --help. */
+static void show_default(const fg_http_config *d, const opt_def *o, char *out,
+                         size_t cap) {
+  const char *field = (const char *)d + o->offset;
+  static const char *const levels[] = {"debug", "info", "warn", "error"};
+  switch (o->kind) {
+  case OPT_LISTEN: snprintf(out, cap, "%s:%u", d->host, d->port); return;
+  case OPT_STRING:
+    snprintf(out, cap, "%s", field[0] ? field : "(none)");
+    return;
+  case OPT_INT: snprintf(out, cap, "%d", *(const int *)(const void *)field);
+    return;
+  case OPT_U64:
+  case OPT_BYTES:
+    snprintf(out, cap, "%llu",
+             (unsigned long long)*(const uint64_t *)(const void *)field);
+    return;
+  case OPT_SECONDS:
+    snprintf(out, cap, "%g s", *(const double *)(const void *)field);
+    return;
+  case OPT_LEVEL: {
+    int l = (int)*(const fg_log_level *)(const void *)field;
+    snprintf(out, cap, "%s", l >= 0 && l < 4 ? levels[l] : "?");
+    return;
+  }
+  case OPT_BOOL:
+    snprintf(out, cap, "%s", *(const bool *)(const void *)field ? "on" : "off");
+    return;
+  }
+  snprintf(out, cap, "?");
+}
+
 static void usage(FILE *f) {
-  fprintf(f, "usage: feasgate serve [options]\n\n");
-  for (size_t i = 0; i < NOPTIONS; i++)
-    fprintf(f, "  %-16s %-24s %s\n", options[i].flag, options[i].env,
-            options[i].help);
-  fprintf(f, "\nA flag wins over its environment variable.\n");
+  fg_http_config d;
+  defaults(&d);
+  fprintf(f, "usage: feasgate serve [options]\n\n"
+             "  %-28s %-36s %-24s %s\n", "flag", "environment", "default",
+          "meaning");
+  for (size_t i = 0; i < NOPTIONS; i++) {
+    char shown[FG_HTTP_URL_MAX + 32];
+    show_default(&d, &options[i], shown, sizeof shown);
+    fprintf(f, "  %-28s %-36s %-24s %s\n", options[i].flag, options[i].env,
+            shown, options[i].help);
+  }
+  fprintf(f, "\nA flag wins over its environment variable; --workers "
+             "defaults to the\nnumber of processors online.\n");
 }
 
 static bool flag_given(int argc, char **argv, const char *flag) {
@@ -296,6 +344,13 @@ int fg_http_config_parse(int argc, char **argv, fg_http_config *cfg, char *err,
       value = argv[++a];
     }
     if (set_value(cfg, o, o->flag, value, err, errcap) != 0) return -1;
+  }
+  if (cfg->max_connections_per_client > cfg->max_connections) {
+    snprintf(err, errcap,
+             "--max-connections-per-client %d exceeds --max-connections %d: "
+             "expected at most as many as the whole daemon takes",
+             cfg->max_connections_per_client, cfg->max_connections);
+    return -1;
   }
   if (!cfg->tls_cert[0] != !cfg->tls_key[0]) {
     snprintf(err, errcap, "%s needs %s as well: HTTPS takes a certificate "

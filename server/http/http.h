@@ -27,14 +27,20 @@
  *   --max-check-time FEASGATE_MAX_CHECK_TIME  3600 seconds (deadline of a check)
  *   --tls-cert FILE  FEASGATE_TLS_CERT        none (PEM; HTTPS with --tls-key)
  *   --tls-key FILE   FEASGATE_TLS_KEY         none (PEM private key)
- *   --insecure       FEASGATE_INSECURE        off (allow a non-loopback
+ *   --allow-keyless  FEASGATE_ALLOW_KEYLESS   off (allow a non-loopback
  *                                             listener with no key)
+ *   --max-connections N             FEASGATE_MAX_CONNECTIONS
+ *                                   FG_HTTP_CONNECTIONS_DEFAULT
+ *   --max-connections-per-client N  FEASGATE_MAX_CONNECTIONS_PER_CLIENT
+ *                                   FG_HTTP_CONNECTIONS_PER_CLIENT_DEFAULT
+ *                                   (at most --max-connections)
  *
  * Exit status of fg_serve_command: 0 after a clean stop (SIGINT/SIGTERM),
  * 3 for bad usage or a bad setting (an unreadable TLS file included, and
  * a non-loopback --listen while the store holds no live key and
- * --insecure is not given), 1 when start-up fails for another
- * reason (address in use, store cannot be opened).
+ * --allow-keyless is not given), 1 when start-up fails for another
+ * reason (address in use, store cannot be opened, a SQLite store that
+ * another daemon serves).
  *
  * Thread use: fg_serve_command runs on the main thread and owns the
  * process's signal mask while it runs.
@@ -47,6 +53,7 @@
 
 #include <stdbool.h>
 #include <stddef.h>
+#include <stdio.h>
 #include <stdint.h>
 
 
@@ -69,7 +76,9 @@ typedef struct fg_http_config {
   double max_check_s;                 /* --max-check-time */
   char tls_cert[FG_HTTP_URL_MAX + 1]; /* "" = plain HTTP */
   char tls_key[FG_HTTP_URL_MAX + 1];
-  bool insecure;
+  bool allow_keyless; /* --allow-keyless */
+  int max_connections;            /* --max-connections */
+  int max_connections_per_client; /* --max-connections-per-client */
 } fg_http_config;
 
 /* Defaults, then environment twins, then flags (argv[0] is the subcommand
@@ -98,6 +107,15 @@ int fg_replay_command(int argc, char **argv);
  * (argv[0] = "check"; remote.c): the check run by a daemon, the result
  * printed; 0 pass, 1 fail, 2 inconclusive, 3 anything else. */
 int fg_remote_check_command(int argc, char **argv);
+
+/* The `check --summary` table of a result body, at most `max_rows` rows
+ * and then how many were left out (summary.c). */
+void fg_summary_print(FILE *f, const struct cJSON *res, int max_rows);
+
+/* Line and column (1-based, columns in characters) of byte `offset` of
+ * `text`, for malformed-JSON messages (summary.c). */
+void fg_text_position(const char *text, size_t len, long long offset,
+                      int *line, int *column);
 
 /* The sample-size answer (GET /v1/sample-size, `feasgate sample-size`)
  * for `n` parameters given by name and text: the inputs echoed, "method"

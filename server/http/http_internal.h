@@ -19,8 +19,8 @@
  * fg_serve_command and passed to every handler through the request; there
  * is no global server state.
  *
- * Thread use: handlers run on libmicrohttpd's connection threads, several
- * at once; everything they touch through fg_server is thread-safe (store:
+ * Thread use: handlers run on libmicrohttpd's event-loop threads, several
+ * at once, and must not block (a wait is an fg_pending: waiter.c); everything they touch through fg_server is thread-safe (store:
  * its own mutex; cache: its own mutex; pool and checks: engine.h; registry:
  * its own mutex).
  */
@@ -44,6 +44,26 @@
 
 typedef struct fg_registry fg_registry;
 typedef struct fg_keyring fg_keyring;
+typedef struct fg_req fg_req;
+typedef struct fg_resp fg_resp;
+
+/* Bytes of a client address as counted (IPv6; IPv4 uses 4). */
+#define FG_CLIENT_KEY 16
+typedef struct fg_client {
+  unsigned char key[FG_CLIENT_KEY];
+  size_t len;
+  int count; /* open connections */
+} fg_client;
+
+/* The suspended requests and the thread that resumes them (waiter.c). */
+typedef struct fg_waiter {
+  pthread_mutex_t lock;
+  pthread_cond_t wake;
+  pthread_t thread;
+  fg_req *head; /* listed requests, linked by next_waiting */
+  int count;
+  bool stop, started, joined;
+} fg_waiter;
 
 typedef struct fg_server {
   fg_http_config cfg;
@@ -52,7 +72,7 @@ typedef struct fg_server {
   fg_model_cache *cache;
   fg_registry *registry;
   fg_keyring *keys;   /* live API keys (keys.c) */
-  bool keys_required; /* non-loopback without --insecure: keys even when
+  bool keys_required; /* non-loopback without --allow-keyless: keys even when
                          the store holds none (then nothing keyed opens) */
   struct MHD_Daemon *daemon;
   /* Requests between the first access-handler call and completion. */
@@ -60,9 +80,31 @@ typedef struct fg_server {
   pthread_cond_t inflight_cv;
   int inflight;
   atomic_bool stopping;
+  /* Connections (conns.c): open ones in all and by client address. */
+  pthread_mutex_t conn_lock;
+  int open;
+  fg_client *clients;
+  int nclients, clients_cap;
+  atomic_ullong conns_refused; /* answered 503 for a connection limit */
+  fg_waiter waiter;
 } fg_server;
 
-typedef struct fg_req {
+/* A wait a handler asks for instead of blocking (waiter.c): the waiter
+ * thread polls ready(ctx) (quick, non-blocking, thread-safe) until it is
+ * true or `deadline` (fg_http_now() seconds) passes, then the request's
+ * connection is resumed and finish(r, ctx, timed_out, out) answers on a
+ * libmicrohttpd thread -- or fills out->pending again to wait more.
+ * finish owns ctx (frees it or hands it on); drop(ctx) frees it when the
+ * request ends before finish runs. */
+typedef struct fg_pending {
+  bool (*ready)(void *ctx);
+  void (*finish)(fg_req *r, void *ctx, bool timed_out, fg_resp *out);
+  void (*drop)(void *ctx);
+  void *ctx;
+  double deadline;
+} fg_pending;
+
+struct fg_req {
   fg_server *srv;
   struct MHD_Connection *conn;
   char method[16];
@@ -79,9 +121,16 @@ typedef struct fg_req {
   char params[FG_ROUTE_PARAMS][FG_HTTP_PATH_MAX + 1];
   bool authorized;                 /* fg_auth_request said yes */
   char key_name[FG_NAME_MAX + 1]; /* the caller's key; "" when none */
-} fg_req;
+  /* Suspended (waiter.c): `pending` is the wait; `waiting` while listed
+   * (under the waiter's lock); `resumed` once the waiter let it go, with
+   * `timed_out` when the deadline rather than `ready` did. */
+  bool suspended;
+  fg_pending pending;
+  bool waiting, resumed, timed_out;
+  fg_req *next_waiting;
+};
 
-typedef struct fg_resp {
+struct fg_resp {
   int status;
   char *body; /* malloc'd; NULL for an empty body */
   size_t len;
@@ -90,9 +139,69 @@ typedef struct fg_resp {
   char allow[64];
   int retry_after; /* seconds; 0 = no header */
   char www_authenticate[64]; /* "" = no header */
-} fg_resp;
+  /* A streamed body instead of `body` (reader != NULL): libmicrohttpd
+   * pulls it through `reader` (chunked transfer coding, the length being
+   * unknown) and calls reader_free(reader_ctx) when done; so does queue()
+   * when no response could be made. */
+  MHD_ContentReaderCallback reader;
+  void *reader_ctx;
+  MHD_ContentReaderFreeCallback reader_free;
+  /* status 0 and pending.finish set: suspend and answer later */
+  fg_pending pending;
+  bool close; /* "Connection: close": the connection ends after this */
+  bool page;  /* the page's own files: CSP and other browser headers */
+};
 
 typedef void fg_handler(fg_req *r, fg_resp *out);
+
+/* ---- conns.c: connections, their limits, the header timeout ---- */
+enum { FG_OVER_NONE = 0, FG_OVER_ALL, FG_OVER_CLIENT };
+/* What the daemon keeps per connection (libmicrohttpd's socket context). */
+typedef struct fg_conn {
+  bool nul_seen; /* an escape of the current request decoded to NUL */
+  int over;      /* FG_OVER_*: opened beyond a connection limit */
+  bool counted;  /* counted under its client address */
+  unsigned char key[FG_CLIENT_KEY];
+  size_t len;
+} fg_conn;
+bool fg_http_conns_init(fg_server *srv);
+void fg_http_conns_free(fg_server *srv);
+/* MHD_OPTION_NOTIFY_CONNECTION: an fg_conn per connection, counted. */
+void fg_http_conn_notify(void *cls, struct MHD_Connection *conn,
+                         void **socket_context,
+                         enum MHD_ConnectionNotificationCode code);
+/* The fg_conn of `conn` (NULL if none could be made). */
+fg_conn *fg_http_conn_of(struct MHD_Connection *conn);
+/* Connections open now. */
+int fg_http_conns_open(fg_server *srv);
+/* On the 1st call of a request: false with a 503 (close) in *out when its
+ * connection is beyond a limit; else the idle timeout replaces the
+ * header timeout. */
+bool fg_http_conn_admit(fg_req *r, fg_resp *out);
+
+/* ---- waiter.c: suspended requests ---- */
+bool fg_waiter_start(fg_server *srv);
+/* List r (already suspended) until r->pending says ready or times out. */
+void fg_waiter_add(fg_server *srv, fg_req *r);
+/* Unlist r if listed (its connection is going away). */
+void fg_waiter_remove(fg_server *srv, fg_req *r);
+int fg_waiter_count(fg_server *srv);
+/* Resume every request as timed out, and any added later at once. */
+void fg_waiter_stop(fg_server *srv);
+void fg_waiter_free(fg_server *srv);
+
+/* ---- strict.c: requests refused before routing, echoed text ---- */
+/* MHD_OPTION_UNESCAPE_CALLBACK: libmicrohttpd's decoding; marks "%00". */
+size_t fg_http_unescape(void *cls, struct MHD_Connection *conn, char *s);
+/* False, with a 400 in *out, for two Content-Length headers, one with
+ * Transfer-Encoding, or a NUL decoded in the path or query. */
+bool fg_http_request_strict(fg_req *r, fg_resp *out);
+/* True when `s` is valid UTF-8 (RFC 3629). */
+bool fg_utf8_valid(const char *s);
+/* A malloc'd copy of `s` with each invalid UTF-8 subpart as U+FFFD. */
+char *fg_utf8_fix(const char *s);
+/* The same for every name and string of a cJSON tree (and its siblings). */
+void fg_json_utf8_fix(cJSON *item);
 
 /* ---- router.c ---- */
 /* Find the handler for r->method and r->path, filling r->params and
@@ -263,6 +372,17 @@ void fg_comparison_on_stored(fg_comparison *c, fg_job_hook *hook, void *ctx);
 
 /* ---- sizes.c ---- */
 void fg_h_sample_size(fg_req *r, fg_resp *out);
+
+/* ---- check_request.c: GET /v1/checks/{id}/request ---- */
+void fg_h_check_request(fg_req *r, fg_resp *out);
+
+/* ---- page.c: the page a person looks at (server/http/page/) ---- */
+void fg_h_page(fg_req *r, fg_resp *out);
+void fg_h_page_js(fg_req *r, fg_resp *out);
+void fg_h_page_css(fg_req *r, fg_resp *out);
+/* The Content-Security-Policy and other browser headers of the page's
+ * files (set when fg_resp.page). */
+void fg_page_headers(struct MHD_Response *mr);
 
 /* ---- registry.c: what runs here, by id; the watcher ---- */
 fg_status fg_registry_new(fg_store *store, fg_registry **out, fg_problem *p);

@@ -14,7 +14,9 @@
  *   thousands of keys.
  *
  * Roles nest: reader < checker < author < admin (http-api.md "Access").
- *   open     GET/HEAD /v1/health, /v1/ready, /metrics, /v1/openapi.json
+ *   open     GET/HEAD /v1/health, /v1/ready, /metrics, /v1/openapi.json,
+ *            and the page (/, /page/app.js, /page/app.css: static text;
+ *            the API calls it makes carry the key a person types in)
  *   reader   every other GET/HEAD
  *   checker  POST checks and comparisons, GET scenarios, DELETE a check
  *            or a comparison
@@ -25,7 +27,7 @@
  *
  * Enforcement: keys are required as soon as the store holds a live key,
  *   and always when the daemon listens on a non-loopback address without
- *   --insecure (then an empty key table locks everything but the open
+ *   --allow-keyless (then an empty key table locks everything but the open
  *   routes instead of opening them). The live keys are cached: the cache
  *   is reloaded from the store when older than FG_KEYS_REFRESH_S, or on a
  *   presented key that matches none when the last reload is older than
@@ -35,7 +37,7 @@
  *
  * Thread use: fg_key_* anywhere; the keyring is guarded by its own mutex
  * (held across a reload, which is one indexed read of a small table);
- * fg_auth_request on connection threads.
+ * fg_auth_request on libmicrohttpd's threads.
  */
 #include "http/http_internal.h"
 
@@ -84,6 +86,9 @@ static const policy_entry policy[] = {
     {"GET", "/v1/ready", FG_ROLE_NONE},
     {"GET", "/metrics", FG_ROLE_NONE},
     {"GET", "/v1/openapi.json", FG_ROLE_NONE},
+    {"GET", "/", FG_ROLE_NONE},
+    {"GET", "/page/app.js", FG_ROLE_NONE},
+    {"GET", "/page/app.css", FG_ROLE_NONE},
     {"GET", "/v1/models/{name}/scenarios", FG_ROLE_CHECKER},
     {"POST", "/v1/models/{name}/checks", FG_ROLE_CHECKER},
     {"POST", "/v1/models/{name}/versions/{n}/checks", FG_ROLE_CHECKER},

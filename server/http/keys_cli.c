@@ -96,10 +96,15 @@ static int keys_revoke(fg_store *store, const char *name) {
 
 int fg_keys_command(int argc, char **argv) {
   if (argc < 2 || strcmp(argv[1], "--help") == 0 ||
-      strcmp(argv[1], "help") == 0) {
+      strcmp(argv[1], "-h") == 0 || strcmp(argv[1], "help") == 0) {
     keys_usage(argc < 2 ? stderr : stdout);
     return argc < 2 ? EXIT_USAGE : 0;
   }
+  for (int i = 2; i < argc; i++)
+    if (strcmp(argv[i], "--help") == 0 || strcmp(argv[i], "-h") == 0) {
+      keys_usage(stdout);
+      return 0;
+    }
   const char *action = argv[1];
   const char *url = getenv("FEASGATE_STORE");
   const char *name = NULL, *role = NULL;
@@ -110,7 +115,9 @@ int fg_keys_command(int argc, char **argv) {
     } else if (strcmp(a, "--role") == 0 && i + 1 < argc) {
       role = argv[++i];
     } else if (a[0] == '-' && a[1]) {
-      fprintf(stderr, "feasgate keys: unknown or incomplete option '%s'\n", a);
+      bool known = strcmp(a, "--store") == 0 || strcmp(a, "--role") == 0;
+      fprintf(stderr, "feasgate keys: %s: %s\n", a,
+              known ? "expected a value after it" : "unknown option");
       keys_usage(stderr);
       return EXIT_USAGE;
     } else if (!name) {
@@ -159,7 +166,7 @@ int fg_keys_command(int argc, char **argv) {
       return EXIT_USAGE;
     }
     if (fg_role_parse(role) == FG_ROLE_NONE) {
-      fprintf(stderr, "feasgate keys add: --role expects reader, checker, "
+      fprintf(stderr, "feasgate keys add: --role: expected reader, checker, "
                       "author or admin, found '%s'\n", role);
       return EXIT_USAGE;
     }

@@ -8,6 +8,10 @@
  * of process-wide state here: it is set once at start-up, before any
  * thread is started, and only read afterwards.
  *
+ * Strings from requests may hold any bytes: every line goes through
+ * fg_json_utf8_fix (strict.c) so it is valid UTF-8 JSON whatever a client
+ * sent; cJSON escapes quotes, backslashes and control characters.
+ *
  * A line that cannot be built for lack of memory is dropped; logging never
  * fails its caller.
  *
@@ -84,6 +88,8 @@ void fg_log_force(fg_log_level level, cJSON *obj) {
     item = nextitem;
   }
   cJSON_Delete(obj);
+  /* request text (a path, a parameter) may be any bytes */
+  fg_json_utf8_fix(line);
   char *text = cJSON_PrintUnformatted(line);
   cJSON_Delete(line);
   if (!text) return;

@@ -11,6 +11,8 @@
  *   feasgate_queue_depth, feasgate_workers_busy,
  *   feasgate_workers, feasgate_checks_detached,
  *   feasgate_checks_unrecorded, feasgate_store_info      gauges (read live)
+ *   feasgate_http_connections, feasgate_http_requests_waiting  gauges
+ *   feasgate_http_connections_refused_total             counter (conns.c)
  *   process_start_time_seconds                          gauge
  *
  * Design: one mutex guards every counter. A request takes it once to bump
@@ -302,6 +304,17 @@ char *fg_metrics_render(fg_server *srv, size_t *len) {
        "every second).");
   put(&t, "feasgate_checks_unrecorded %d\n",
       fg_registry_unsaved(srv->registry));
+  head(&t, "feasgate_http_connections", "gauge",
+       "Client connections open now.");
+  put(&t, "feasgate_http_connections %d\n", fg_http_conns_open(srv));
+  head(&t, "feasgate_http_connections_refused_total", "counter",
+       "Connections answered 503 for being beyond --max-connections or "
+       "--max-connections-per-client.");
+  put(&t, "feasgate_http_connections_refused_total %llu\n",
+      (unsigned long long)atomic_load(&srv->conns_refused));
+  head(&t, "feasgate_http_requests_waiting", "gauge",
+       "Requests suspended while they wait for a check (no thread held).");
+  put(&t, "feasgate_http_requests_waiting %d\n", fg_waiter_count(srv));
   head(&t, "feasgate_store_info", "gauge",
        "The store backend this daemon uses (value always 1).");
   put(&t, "feasgate_store_info{backend=\"%s\"} 1\n",

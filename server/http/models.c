@@ -15,7 +15,7 @@
  * serves the same models without re-registration. A retired model stays
  * readable and says so ("retired": true).
  *
- * Thread use: handlers on connection threads.
+ * Thread use: handlers on libmicrohttpd's threads.
  */
 #include "http/http_internal.h"
 

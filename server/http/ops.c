@@ -6,11 +6,16 @@
  *                   when the store answers and the work queue has room,
  *                   else a 503 problem saying why
  *   GET /v1/limits  {"limits": [{"name", "value"}, ...]}: every compiled-in
- *                   limit of FG_LIMITS_TABLE and every runtime setting
+ *                   limit of FG_LIMITS_TABLE and every runtime setting;
+ *                   whole values print as exact integers
  *
- * Thread use: handlers on connection threads; they only read.
+ * Thread use: handlers on libmicrohttpd's threads; they only read.
  */
 #include "http/http_internal.h"
+
+#include <inttypes.h>
+#include <stdint.h>
+#include <stdio.h>
 
 void fg_h_health(fg_req *r, fg_resp *out) {
   cJSON *o = cJSON_CreateObject();
@@ -49,11 +54,20 @@ void fg_h_ready(fg_req *r, fg_resp *out) {
   fg_resp_json(out, 200, o);
 }
 
+/* A whole value prints as an exact integer: cJSON's %.15g would print
+ * seed_max (2^53 - 1) as 9.00719925474099e+15, 2 less than the truth
+ * after the digits it drops. Fractions (seconds) print as cJSON does. */
 static void add_limit(cJSON *arr, const char *name, double value) {
   cJSON *e = cJSON_CreateObject();
   if (!e) return;
   cJSON_AddStringToObject(e, "name", name);
-  cJSON_AddNumberToObject(e, "value", value);
+  if (value >= 0 && value < 0x1p64 && value == (double)(uint64_t)value) {
+    char digits[24];
+    snprintf(digits, sizeof digits, "%" PRIu64, (uint64_t)value);
+    cJSON_AddRawToObject(e, "value", digits);
+  } else {
+    cJSON_AddNumberToObject(e, "value", value);
+  }
   cJSON_AddItemToArray(arr, e);
 }
 
@@ -76,6 +90,12 @@ void fg_h_limits(fg_req *r, fg_resp *out) {
     add_limit(arr, "workers", cfg->workers);
     add_limit(arr, "chunk", cfg->chunk);
     add_limit(arr, "queue", cfg->queue);
+    add_limit(arr, "max_connections", cfg->max_connections);
+    add_limit(arr, "max_connections_per_client",
+              cfg->max_connections_per_client);
+    add_limit(arr, "connection_overflow", FG_HTTP_CONNECTIONS_OVERFLOW);
+    add_limit(arr, "header_timeout", FG_HTTP_HEADER_TIMEOUT_S);
+    add_limit(arr, "idle_timeout", FG_HTTP_IDLE_TIMEOUT_S);
   }
   fg_resp_json(out, 200, o);
 }

@@ -14,6 +14,10 @@
  *   limit   {name, value} when a named limit was exceeded;
  *   offset  the byte offset where parsing stopped, for malformed JSON.
  *
+ * Text a detail or message quotes from a request may be any bytes: each
+ * document passes through fg_json_utf8_fix (strict.c), so invalid UTF-8
+ * comes out as U+FFFD and the document stays valid JSON text.
+ *
  * Building a response never fails its caller: when memory runs out the
  * body falls back to a fixed text.
  *
@@ -135,6 +139,8 @@ void fg_resp_problem(fg_resp *out, const fg_problem *p, int http_status) {
   int status = http_status ? http_status : fg_status_http(p->status);
   if (status < 400) status = 500; /* a problem without a fault status */
   cJSON *o = fg_problem_json(p, status);
+  /* a detail may quote a path or a parameter: any bytes */
+  fg_json_utf8_fix(o);
   char *text = o ? cJSON_PrintUnformatted(o) : NULL;
   cJSON_Delete(o);
   if (!text) {

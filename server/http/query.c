@@ -8,7 +8,7 @@
  * not listed -- or a parameter with an empty name -- is reported, so the
  * handler answers 400 rather than ignoring a misspelt filter.
  *
- * Thread use: a connection thread, on its own request.
+ * Thread use: libmicrohttpd's threads, each on its own request.
  */
 #include "http/http_internal.h"
 

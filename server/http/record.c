@@ -10,7 +10,7 @@
  * both handlers give the same statuses in the same order. The record of
  * a check itself, from `running` to its end, is lifecycle.c's.
  *
- * Thread use: connection threads; the store locks itself.
+ * Thread use: libmicrohttpd's threads; the store locks itself.
  */
 #include "http/http_internal.h"
 #include "http/metrics.h"

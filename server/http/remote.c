@@ -2,7 +2,7 @@
  * http/remote.c -- the remote gate: `feasgate check --server URL ...`.
  *
  *   feasgate check --server URL [--key KEY] [--timeout S] [--cacert FILE]
- *                  MODEL_NAME REQUEST.json
+ *                  [--summary] [--rows N] MODEL_NAME REQUEST.json
  *
  * Submits REQUEST.json (the body of POST /v1/models/{name}/checks, sent
  * as it is) to a running daemon with libcurl. A 201 carries the result; a
@@ -12,7 +12,9 @@
  * (default FG_REMOTE_TIMEOUT_DEFAULT_S, one hour, counted from the start)
  * have passed; then the check is cancelled (DELETE, best effort) so that
  * it does not run on for nobody. The result body is printed on standard
- * output.
+ * output, or with --summary the table of summary.c. REQUEST.json is parsed
+ * here first, so malformed JSON is reported by line and column before
+ * anything is sent.
  *
  * Exit status, as the offline `check`: 0 pass, 1 fail, 2 inconclusive,
  * 3 anything else -- usage, an unreadable request file, an HTTP error
@@ -208,22 +210,29 @@ static int verdict_status(const cJSON *res) {
   return EXIT_ERROR;
 }
 
-static void print_result(const cJSON *res) {
-  char *s = cJSON_Print(res);
-  if (s) puts(s);
-  free(s);
+static void print_result(const cJSON *res, int summary_rows) {
+  if (summary_rows > 0) {
+    fg_summary_print(stdout, res, summary_rows);
+  } else {
+    char *s = cJSON_Print(res);
+    if (s) puts(s);
+    free(s);
+  }
   fflush(stdout);
 }
 
 static void remote_usage(FILE *f) {
   fprintf(f, "usage: feasgate check --server URL [--key KEY] [--timeout S] "
              "[--cacert FILE]\n"
-             "                      MODEL_NAME REQUEST.json\n"
+             "                      [--summary] [--rows N] MODEL_NAME "
+             "REQUEST.json\n"
              "Runs the check on a feasgate daemon (POST "
              "/v1/models/MODEL_NAME/checks),\nwaits for it and prints the "
-             "result. Exit status: 0 pass, 1 fail,\n2 inconclusive, 3 "
-             "error. --key defaults to $FEASGATE_KEY, --cacert to\n"
-             "$FEASGATE_CACERT, --timeout to 3600 seconds.\n");
+             "result (with --summary as a table of at most\n--rows N rows, "
+             "default %d). Exit status: 0 pass, 1 fail, 2 inconclusive,\n"
+             "3 error. --key defaults to $FEASGATE_KEY, --cacert to "
+             "$FEASGATE_CACERT,\n--timeout to %g seconds.\n",
+          FG_SUMMARY_ROWS_DEFAULT, FG_REMOTE_TIMEOUT_DEFAULT_S);
 }
 
 /* Poll until the check `id` has ended; the ended body or NULL. */
@@ -275,7 +284,8 @@ static cJSON *poll_check(remote *rm, const char *id) {
   return NULL;
 }
 
-static int run(remote *rm, const char *model, const char *body, size_t len) {
+static int run(remote *rm, const char *model, const char *body, size_t len,
+               int summary_rows) {
   char path[FG_NAME_MAX + 32];
   snprintf(path, sizeof path, "/v1/models/%s/checks", model);
   answer a;
@@ -305,7 +315,7 @@ static int run(remote *rm, const char *model, const char *body, size_t len) {
     res = poll_check(rm, idbuf);
     if (!res) return EXIT_ERROR;
   }
-  print_result(res);
+  print_result(res, summary_rows);
   int rc = verdict_status(res);
   cJSON_Delete(res);
   return rc;
@@ -317,6 +327,8 @@ int fg_remote_check_command(int argc, char **argv) {
   const char *args[2] = {NULL, NULL};
   int nargs = 0;
   double timeout = FG_REMOTE_TIMEOUT_DEFAULT_S;
+  bool summary = false;
+  int rows = FG_SUMMARY_ROWS_DEFAULT;
   for (int i = 1; i < argc; i++) {
     const char *a = argv[i], *v = i + 1 < argc ? argv[i + 1] : NULL;
     if (strncmp(a, "--server=", 9) == 0) {
@@ -333,17 +345,32 @@ int fg_remote_check_command(int argc, char **argv) {
       timeout = strtod(argv[++i], &end);
       if (errno || !*v || *end || !(timeout > 0) ||
           timeout > FG_REMOTE_TIMEOUT_MAX_S) {
-        fprintf(stderr, "feasgate check: --timeout expects seconds above 0 "
-                        "and at most %g, found '%s'\n",
+        fprintf(stderr, "feasgate check: --timeout: expected seconds above "
+                        "0 and at most %g, found '%s'\n",
                 FG_REMOTE_TIMEOUT_MAX_S, v);
         return EXIT_ERROR;
       }
-    } else if (strcmp(a, "--help") == 0) {
+    } else if (strcmp(a, "--summary") == 0) {
+      summary = true;
+    } else if (strcmp(a, "--rows") == 0 && v) {
+      char *end = NULL;
+      errno = 0;
+      long n = strtol(argv[++i], &end, 10);
+      if (errno || !*v || *end || n < 1 || n > 1000000) {
+        fprintf(stderr, "feasgate check: --rows: expected a whole number "
+                        "from 1 to 1000000, found '%s'\n", v);
+        return EXIT_ERROR;
+      }
+      rows = (int)n;
+    } else if (strcmp(a, "--help") == 0 || strcmp(a, "-h") == 0) {
       remote_usage(stdout);
       return 0;
     } else if (a[0] == '-' && a[1]) {
-      fprintf(stderr, "feasgate check: unknown or incomplete option '%s' "
-                      "(with --server)\n", a);
+      bool known = !strcmp(a, "--server") || !strcmp(a, "--key") ||
+                   !strcmp(a, "--cacert") || !strcmp(a, "--timeout") ||
+                   !strcmp(a, "--rows");
+      fprintf(stderr, "feasgate check: %s: %s (with --server)\n", a,
+              known ? "expected a value after it" : "unknown option");
       remote_usage(stderr);
       return EXIT_ERROR;
     } else if (nargs < 2) {
@@ -381,6 +408,24 @@ int fg_remote_check_command(int argc, char **argv) {
   size_t len = 0;
   char *body = read_request(args[1], &len);
   if (!body) return EXIT_ERROR;
+  {
+    fg_problem p;
+    fg_problem_init(&p);
+    cJSON *parsed = NULL;
+    if (fg_json_parse(body, len, &parsed, &p) != FG_OK) {
+      int line = 0, col = 0;
+      fg_text_position(body, len, p.byte_offset, &line, &col);
+      if (p.byte_offset >= 0)
+        fprintf(stderr, "feasgate check: %s: line %d, column %d: %s\n",
+                args[1], line, col, p.detail[0] ? p.detail : p.title);
+      else
+        fprintf(stderr, "feasgate check: %s: %s%s%s\n", args[1], p.title,
+                p.detail[0] ? ": " : "", p.detail);
+      free(body);
+      return EXIT_ERROR;
+    }
+    cJSON_Delete(parsed);
+  }
 
   remote rm;
   memset(&rm, 0, sizeof rm);
@@ -400,7 +445,7 @@ int fg_remote_check_command(int argc, char **argv) {
   if (!rm.curl) {
     fprintf(stderr, "feasgate check: libcurl: out of memory\n");
   } else {
-    rc = run(&rm, args[0], body, len);
+    rc = run(&rm, args[0], body, len, summary ? rows : 0);
     curl_easy_cleanup(rm.curl);
   }
   curl_global_cleanup();

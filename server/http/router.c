@@ -42,12 +42,16 @@ static const fg_route_entry routes[] = {
     {"GET", "/v1/checks/{id}/scenarios/{index}", fg_h_check_scenario},
     {"POST", "/v1/checks/{id}/replay", fg_h_check_replay},
     {"DELETE", "/v1/checks/{id}", fg_h_check_cancel},
+    {"GET", "/v1/checks/{id}/request", fg_h_check_request},
     {"GET", "/v1/health", fg_h_health},
     {"GET", "/v1/ready", fg_h_ready},
     {"GET", "/v1/limits", fg_h_limits},
     {"GET", "/v1/openapi.json", fg_h_openapi},
     {"GET", "/metrics", fg_h_metrics},
     {"GET", "/v1/sample-size", fg_h_sample_size},
+    {"GET", "/", fg_h_page},
+    {"GET", "/page/app.js", fg_h_page_js},
+    {"GET", "/page/app.css", fg_h_page_css},
 };
 
 #define NROUTES (sizeof routes / sizeof *routes)
@@ -55,6 +59,12 @@ static const fg_route_entry routes[] = {
 /* Match `path` against `pattern`; captures go to params (when not NULL). */
 static bool match(const char *pattern, const char *path, int *nparams,
                   char (*params)[FG_HTTP_PATH_MAX + 1]) {
+  /* The root has no segment: it matches only itself. */
+  if (strcmp(pattern, "/") == 0 || strcmp(path, "/") == 0) {
+    if (strcmp(pattern, path) != 0) return false;
+    if (nparams) *nparams = 0;
+    return true;
+  }
   const char *p = pattern, *s = path;
   int n = 0;
   while (*p && *s) {

@@ -9,6 +9,14 @@
  * `feasgate scenarios`, so the daemon and the offline command print the
  * same bytes for the same model, seed, stream and range.
  *
+ * The body is streamed (chunked transfer coding): the handler checks the
+ * parameters, the model and the size, opens a scenarios stream (which
+ * allocates all it needs), and libmicrohttpd pulls rows from it as the
+ * connection drains, so a request holds FG_SCENARIO_STREAM_BYTES of
+ * draws plus a window of text, whatever its count. Every 4xx comes before
+ * the first byte; running out of memory after it (the stream allocates
+ * nothing more, so this does not happen) would close the connection.
+ *
  * Parameters: count (1 .. --max-scenarios, above it a 400 naming the limit
  * max_scenarios; FG_SCENARIOS_COUNT_DEFAULT or the cap when absent), seed (0 .. 2^53-1; drawn and echoed when
  * absent), start (default 0; start + count <= 2^53), stream (design, the
@@ -17,8 +25,8 @@
  * retired (410). One response holds at most FG_SCENARIO_CELLS_MAX values
  * (scenario_cells).
  *
- * Thread use: handlers on connection threads; drawing happens on the
- * connection thread (it is bounded by the caps above and does no
+ * Thread use: handlers on libmicrohttpd's threads; drawing happens on the
+ * connection's thread as libmicrohttpd asks for more of the body (it is bounded by the caps above and does no
  * simulation of constraints, so it does not go through the worker pool).
  */
 #include "http/http_internal.h"
@@ -99,6 +107,23 @@ static bool wants_csv(const char *accept) {
   }
   return q_csv > 0 && q_csv > q_json;
 }
+
+/* libmicrohttpd's pull of the body: rows are drawn and printed as the
+ * connection takes them. */
+static ssize_t read_stream(void *cls, uint64_t pos, char *buf, size_t max) {
+  fg_scenarios_stream *s = cls;
+  size_t n = fg_scenarios_read(s, buf, max);
+  if (fg_scenarios_failed(s)) {
+    fg_log_msg(FG_LOG_ERROR, "scenarios_aborted",
+               "out of memory after %llu bytes of a scenarios answer; "
+               "connection closed",
+               (unsigned long long)pos);
+    return MHD_CONTENT_READER_END_WITH_ERROR;
+  }
+  return n > 0 ? (ssize_t)n : MHD_CONTENT_READER_END_OF_STREAM;
+}
+
+static void free_stream(void *cls) { fg_scenarios_close(cls); }
 
 void fg_h_model_scenarios(fg_req *r, fg_resp *out) {
   fg_server *srv = r->srv;
@@ -188,16 +213,16 @@ void fg_h_model_scenarios(fg_req *r, fg_resp *out) {
                   "scenarios",
                   v.name);
   } else {
-    char *text = NULL;
-    size_t len = 0;
-    if (fg_scenarios_render(m, &sp, &text, &len, &p) != FG_OK) {
+    fg_scenarios_stream *stream = NULL;
+    if (fg_scenarios_size_check(m, sp.count, &p) != FG_OK ||
+        fg_scenarios_open(m, &sp, &stream, &p) != FG_OK) {
       fg_resp_problem(out, &p, 0);
     } else {
-      free(out->body);
-      out->body = text;
-      out->len = len;
       out->status = 200;
       out->content_type = sp.csv ? FG_CT_CSV : FG_CT_JSON;
+      out->reader = read_stream;
+      out->reader_ctx = stream;
+      out->reader_free = free_stream;
     }
   }
   fg_store_version_clear(&v);

@@ -2,13 +2,20 @@
  * http/server.c -- the libmicrohttpd daemon and `feasgate serve`.
  *
  * Design
- *   libmicrohttpd runs one thread per connection (plus its listening
- *   thread), so a handler waiting for a synchronous check (up to
- *   --max-wait) holds only its own connection. Handlers never simulate:
- *   checks run on the engine's worker pool.
+ *   libmicrohttpd runs a small pool of event-loop threads (epoll where
+ *   available) that serve every connection; connection limits, the
+ *   per-connection state and the header timeout are in conns.c. Handlers
+ *   never simulate (checks run on the engine's worker pool) and never
+ *   block: one that must wait (a check's wait_s, a cancel) leaves
+ *   out->pending, answer() suspends the connection and the waiter
+ *   (waiter.c) resumes it, after which the access handler's next call
+ *   runs pending.finish. Bodies may be streamed (fg_resp.reader).
  *
  *   The access handler is called several times per request:
- *     1st call   set up an fg_req; a Content-Length above --max-body is
+ *     1st call   set up an fg_req; a request with bad framing (two
+ *                Content-Length headers, or one with Transfer-Encoding)
+ *                or a NUL in its path or query is refused with 400
+ *                (strict.c); a Content-Length above --max-body is
  *                refused with 413 at once, before any of the body is read;
  *                so is a request without the key its route needs (401,
  *                403: keys.c), so no body is read for an unknown caller;
@@ -27,8 +34,8 @@
  *   the bound address, which is the first log line) and hand it to
  *   libmicrohttpd with MHD_OPTION_LISTEN_SOCKET. A listener that is not
  *   loopback (127.0.0.0/8, ::1) is refused (exit 3) while the store holds
- *   no live key, unless --insecure; without --insecure it then also keeps
- *   requiring keys should every key be revoked later.
+ *   no live key, unless --allow-keyless; without --allow-keyless it then
+ *   also keeps requiring keys should every key be revoked later.
  *
  *   HTTPS: with --tls-cert and --tls-key both PEM files are read at
  *   start-up (at most FG_HTTP_TLS_FILE_MAX bytes each) and handed to
@@ -39,7 +46,7 @@
  *   -> block SIGINT/SIGTERM in every thread -> bind -> open the store,
  *   mark checks left running as interrupted -> load the keys, refuse a
  *   keyless non-loopback listener (exit 3) -> worker pool, model cache,
- *   registry -> daemon -> log
+ *   registry -> connection table, waiter -> daemon -> log
  *   "listening" -> sigwait. On SIGINT/SIGTERM: stop accepting (quiesce),
  *   wait for requests in flight up to --grace (then cancel the running
  *   checks, which answers the requests waiting for them, and wait
@@ -47,9 +54,11 @@
  *   finish within what is left of --grace (then cancel and record them),
  *   free the pool (stuck workers are left behind), close the store,
  *   exit 0: within --grace plus a few seconds whatever a worker does.
+ *   Whatever is still suspended then is resumed (answered as timed
+ *   out) before the daemon stops.
  *
  * Thread use: the access handler and completion callback run on
- * libmicrohttpd's threads; fg_serve_command on the main thread only.
+ * libmicrohttpd's pool threads; fg_serve_command on the main thread only.
  */
 #include "http/http_internal.h"
 #include "http/metrics.h"
@@ -70,9 +79,19 @@
 
 /* ---- responses ---- */
 
+/* Bytes libmicrohttpd asks a streamed body for at once. */
+#define FG_HTTP_STREAM_BLOCK (32 * 1024)
+
 static void queue(fg_req *r, fg_resp *resp) {
   struct MHD_Response *mr;
-  if (resp->body && resp->len > 0) {
+  if (resp->reader) {
+    mr = MHD_create_response_from_callback(MHD_SIZE_UNKNOWN,
+                                           FG_HTTP_STREAM_BLOCK, resp->reader,
+                                           resp->reader_ctx,
+                                           resp->reader_free);
+    if (!mr && resp->reader_free) resp->reader_free(resp->reader_ctx);
+    resp->reader = NULL;
+  } else if (resp->body && resp->len > 0) {
     mr = MHD_create_response_from_buffer(resp->len, resp->body,
                                          MHD_RESPMEM_MUST_FREE);
     if (mr) resp->body = NULL; /* libmicrohttpd owns it now */
@@ -101,6 +120,9 @@ static void queue(fg_req *r, fg_resp *resp) {
     MHD_add_response_header(mr, MHD_HTTP_HEADER_RETRY_AFTER, ra);
   }
   MHD_add_response_header(mr, "Cache-Control", "no-store");
+  if (resp->close)
+    MHD_add_response_header(mr, MHD_HTTP_HEADER_CONNECTION, "close");
+  if (resp->page) fg_page_headers(mr);
   /* libmicrohttpd takes a response only on the first call or the last;
    * `responded` records whether this one was taken. */
   r->responded =
@@ -144,6 +166,25 @@ static void refuse_too_large(fg_req *r, const char *how) {
   respond(r, &resp);
 }
 
+/* Queue the handler's answer, or suspend the request when the handler
+ * asked to wait (resp->pending): the waiter resumes it and the access
+ * handler's next call runs pending.finish. */
+static enum MHD_Result answer(fg_req *r, fg_resp *resp) {
+  if (resp->status == 0 && resp->pending.finish) {
+    free(resp->body);
+    r->pending = resp->pending;
+    r->suspended = true;
+    MHD_suspend_connection(r->conn);
+    fg_waiter_add(r->srv, r);
+    return MHD_YES;
+  }
+  if (resp->status == 0)
+    fg_resp_error(resp, 500, FG_EINTERNAL, "handler for %s gave no answer",
+                  r->route ? r->route : "?");
+  respond(r, resp);
+  return r->responded ? MHD_YES : MHD_NO;
+}
+
 /* ---- libmicrohttpd callbacks ---- */
 
 static enum MHD_Result on_request(void *cls, struct MHD_Connection *conn,
@@ -165,9 +206,12 @@ static enum MHD_Result on_request(void *cls, struct MHD_Connection *conn,
     pthread_mutex_lock(&srv->inflight_lock);
     srv->inflight++;
     pthread_mutex_unlock(&srv->inflight_lock);
+    fg_resp bad = {0};
+    if (!fg_http_conn_admit(r, &bad) || !fg_http_request_strict(r, &bad))
+      respond(r, &bad);
     const char *cl =
         MHD_lookup_connection_value(conn, MHD_HEADER_KIND, "Content-Length");
-    if (cl) {
+    if (cl && !r->responded) {
       char *end = NULL;
       errno = 0;
       unsigned long long n = strtoull(cl, &end, 10);
@@ -239,6 +283,16 @@ static enum MHD_Result on_request(void *cls, struct MHD_Connection *conn,
     r->body[r->len] = '\0';
     return MHD_YES;
   }
+  if (r->suspended) {
+    /* Resumed by the waiter: the handler's finish answers (or waits
+     * again). */
+    r->suspended = false;
+    fg_pending pd = r->pending;
+    memset(&r->pending, 0, sizeof r->pending);
+    fg_resp resp = {0};
+    pd.finish(r, pd.ctx, r->timed_out, &resp);
+    return answer(r, &resp);
+  }
   if (r->responded) return MHD_YES;
   if (r->too_large) {
     refuse_too_large(r, "exceeds");
@@ -256,11 +310,7 @@ static enum MHD_Result on_request(void *cls, struct MHD_Connection *conn,
     }
   }
   if (h) h(r, &resp);
-  if (resp.status == 0)
-    fg_resp_error(&resp, 500, FG_EINTERNAL, "handler for %s gave no answer",
-                  r->route ? r->route : "?");
-  respond(r, &resp);
-  return r->responded ? MHD_YES : MHD_NO;
+  return answer(r, &resp);
 }
 
 static void on_completed(void *cls, struct MHD_Connection *conn, void **con_cls,
@@ -268,6 +318,12 @@ static void on_completed(void *cls, struct MHD_Connection *conn, void **con_cls,
   fg_server *srv = cls;
   fg_req *r = *con_cls;
   if (!r) return;
+  if (r->suspended) {
+    /* Ended while waiting (the daemon stopped): unlist, free the wait. */
+    fg_waiter_remove(srv, r);
+    if (r->pending.drop) r->pending.drop(r->pending.ctx);
+    r->suspended = false;
+  }
   if (!r->responded)
     fg_log_msg(FG_LOG_DEBUG, "request_aborted",
                "%s %.200s ended (code %d) "
@@ -520,12 +576,14 @@ int fg_serve_command(int argc, char **argv) {
     fg_log_msg(FG_LOG_ERROR, "start_failed", "reading the keys: %s", p.detail);
     goto cleanup;
   }
-  srv->keys_required = !srv->cfg.insecure && !bound_to_loopback(listen_fd);
+  srv->keys_required =
+      !srv->cfg.allow_keyless && !bound_to_loopback(listen_fd);
   if (srv->keys_required && fg_keyring_live(srv->keys) == 0) {
     fg_log_msg(FG_LOG_ERROR, "start_refused",
                "--listen %s is not a loopback address and the store %s holds "
                "no live key: add one with `feasgate keys add NAME --role "
-               "admin --store %s`, or give --insecure to serve without keys",
+               "admin --store %s`, or give --allow-keyless to serve "
+               "without keys",
                address, store_shown, store_shown);
     status = 3;
     goto cleanup;
@@ -551,16 +609,34 @@ int fg_serve_command(int argc, char **argv) {
       {MHD_OPTION_HTTPS_MEM_CERT, 0, tls_cert},
       {MHD_OPTION_END, 0, NULL}};
   struct MHD_OptionItem no_opts[] = {{MHD_OPTION_END, 0, NULL}};
+  if (!fg_http_conns_init(srv) || !fg_waiter_start(srv)) {
+    fg_log_msg(FG_LOG_ERROR, "start_failed",
+               "connection table or waiter thread: out of resources");
+    goto cleanup;
+  }
+  long cores = sysconf(_SC_NPROCESSORS_ONLN);
+  unsigned threads = cores < FG_HTTP_THREADS_MIN   ? FG_HTTP_THREADS_MIN
+                     : cores > FG_HTTP_THREADS_MAX ? FG_HTTP_THREADS_MAX
+                                                   : (unsigned)cores;
+  bool epoll = MHD_is_feature_supported(MHD_FEATURE_EPOLL) == MHD_YES;
   srv->daemon = MHD_start_daemon(
-      MHD_USE_INTERNAL_POLLING_THREAD | MHD_USE_THREAD_PER_CONNECTION |
-          MHD_USE_POLL | MHD_USE_ERROR_LOG | MHD_USE_ITC |
+      MHD_USE_INTERNAL_POLLING_THREAD | (epoll ? MHD_USE_EPOLL : MHD_USE_POLL) |
+          MHD_ALLOW_SUSPEND_RESUME | MHD_USE_ERROR_LOG |
           (tls_key ? MHD_USE_TLS : 0),
       0, NULL, NULL, on_request, srv,
       /* the logger first, so that no message escapes it */
       MHD_OPTION_EXTERNAL_LOGGER, on_mhd_log, srv, MHD_OPTION_LISTEN_SOCKET,
-      listen_fd, MHD_OPTION_NOTIFY_COMPLETED, on_completed, srv,
-      MHD_OPTION_CONNECTION_TIMEOUT, (unsigned int)FG_HTTP_IDLE_TIMEOUT_S,
-      MHD_OPTION_CONNECTION_LIMIT, (unsigned int)FG_HTTP_CONNECTIONS_MAX,
+      listen_fd, MHD_OPTION_THREAD_POOL_SIZE, threads,
+      MHD_OPTION_NOTIFY_COMPLETED, on_completed, srv,
+      MHD_OPTION_NOTIFY_CONNECTION, fg_http_conn_notify, srv,
+      MHD_OPTION_UNESCAPE_CALLBACK, fg_http_unescape, srv,
+      /* until a request's headers are in; conns.c raises it after */
+      MHD_OPTION_CONNECTION_TIMEOUT, (unsigned int)FG_HTTP_HEADER_TIMEOUT_S,
+      MHD_OPTION_CONNECTION_LIMIT,
+      (unsigned int)(srv->cfg.max_connections + FG_HTTP_CONNECTIONS_OVERFLOW),
+      MHD_OPTION_PER_IP_CONNECTION_LIMIT,
+      (unsigned int)(srv->cfg.max_connections_per_client +
+                     FG_HTTP_CONNECTIONS_OVERFLOW),
       MHD_OPTION_CONNECTION_MEMORY_LIMIT, (size_t)FG_HTTP_CONN_MEMORY,
       MHD_OPTION_ARRAY, tls_key ? tls_opts : no_opts, MHD_OPTION_END);
   if (!srv->daemon) {
@@ -579,6 +655,8 @@ int fg_serve_command(int argc, char **argv) {
     cJSON_AddStringToObject(ev, "address", address);
     cJSON_AddStringToObject(ev, "store", store_shown);
     cJSON_AddNumberToObject(ev, "workers", srv->cfg.workers);
+    cJSON_AddNumberToObject(ev, "http_threads", threads);
+    cJSON_AddStringToObject(ev, "event_loop", epoll ? "epoll" : "poll");
     cJSON_AddBoolToObject(ev, "tls", tls_key != NULL);
     cJSON_AddNumberToObject(ev, "keys", fg_keyring_live(srv->keys));
     cJSON_AddNumberToObject(ev, "pid", (double)getpid());
@@ -614,6 +692,10 @@ int fg_serve_command(int argc, char **argv) {
     fg_registry_cancel_all(srv->registry);
     wait_inflight(srv, FG_HTTP_STOP_ANSWER_S, true);
   }
+  /* Requests still waiting are answered now (as timed out); the daemon
+   * must not stop with a suspended connection. */
+  fg_waiter_stop(srv);
+  wait_inflight(srv, FG_HTTP_STOP_ANSWER_S, true);
   MHD_stop_daemon(srv->daemon);
   srv->daemon = NULL;
   double grace_left = srv->cfg.grace_s - (fg_time_monotonic() - t_stop);
@@ -621,7 +703,10 @@ int fg_serve_command(int argc, char **argv) {
   status = 0;
 
 cleanup:
+  fg_waiter_stop(srv);
   if (srv->daemon) MHD_stop_daemon(srv->daemon);
+  fg_waiter_free(srv);
+  fg_http_conns_free(srv);
   if (listen_fd >= 0) close(listen_fd);
   fg_registry_free(srv->registry);
   if (srv->pool) fg_pool_free(srv->pool);

@@ -11,6 +11,12 @@
  *   BEGIN IMMEDIATE ... COMMIT (ROLLBACK on any failure), so a crash leaves
  *   either the old or the new record, never half of one.
  *
+ *   One daemon per file: fg_store_mark_interrupted, which only `serve`
+ *   calls, first takes a write lock (fcntl) on <path>.lock and refuses
+ *   with FG_EBUSY, naming the holder's pid, when another process holds
+ *   it; so a second daemon never marks the first one's running checks.
+ *   Commands that only open the store (keys, offline check) take no lock.
+ *
  *   The database runs in WAL mode with foreign keys on and a busy timeout
  *   (FG_STORE_BUSY_MS), so a second process reading the same file (a CLI
  *   listing checks) does not block the daemon. The schema is created when
@@ -57,6 +63,7 @@
 #include "store/backend.h"
 
 #include <errno.h>
+#include <fcntl.h>
 #include <math.h>
 #include <pthread.h>
 #include <sqlite3.h>
@@ -65,6 +72,7 @@
 #include <string.h>
 #include <sys/stat.h>
 #include <time.h>
+#include <unistd.h>
 
 /* The schema this file writes and understands. */
 #define FG_STORE_SCHEMA_VERSION 2
@@ -248,6 +256,7 @@ typedef struct sq_store {
   sqlite3_stmt *stmt[ST_COUNT];
   char path[FG_STORE_PATH_MAX];
   int fail_countdown; /* test seam: > 0 = writes until an injected fault */
+  int lock_fd;        /* <path>.lock, write-locked by the serving daemon */
 } sq_store;
 
 /* ---- small helpers ---- */
@@ -478,6 +487,7 @@ static fg_status sq_open(const char *url, void **out, fg_problem *p) {
   sq_store *s = calloc(1, sizeof *s);
   if (!s) return fg_problem_set(p, FG_ENOMEM, "store: out of memory");
   snprintf(s->path, sizeof s->path, "%s", path);
+  s->lock_fd = -1;
   pthread_mutex_init(&s->lock, NULL);
 
   fg_status st = FG_OK;
@@ -520,6 +530,7 @@ static void sq_close(void *b) {
   for (int i = 0; i < ST_COUNT; i++)
     sqlite3_finalize(s->stmt[i]);
   if (s->db) sqlite3_close(s->db);
+  if (s->lock_fd >= 0) close(s->lock_fd); /* releases the daemon's lock */
   pthread_mutex_destroy(&s->lock);
   free(s);
 }
@@ -895,9 +906,54 @@ static fg_status sq_list_checks(void *b, const fg_check_filter *f,
   return FG_OK;
 }
 
+/* The daemon's claim on the file: a write lock (fcntl, whole file) on
+ * <path>.lock, which holds the daemon's pid as text for people. The
+ * kernel drops the lock when the process ends however it ends, so a
+ * crashed daemon never blocks the next. A second claim from the same
+ * store is a no-op. FG_EBUSY naming the holder's pid (F_GETLK) when
+ * another process holds it. */
+static fg_status claim_file(sq_store *s, fg_problem *p) {
+  if (s->lock_fd >= 0 || strcmp(s->path, ":memory:") == 0) return FG_OK;
+  char lpath[FG_STORE_PATH_MAX + 8];
+  snprintf(lpath, sizeof lpath, "%s.lock", s->path);
+  int fd = open(lpath, O_RDWR | O_CREAT | O_CLOEXEC, 0644);
+  if (fd < 0)
+    return fg_problem_set(p, FG_EIO, "store %s: cannot open its lock file %s: %s",
+                          s->path, lpath, strerror(errno));
+  struct flock fl = {.l_type = F_WRLCK, .l_whence = SEEK_SET};
+  if (fcntl(fd, F_SETLK, &fl) != 0) {
+    int err = errno;
+    struct flock who = {.l_type = F_WRLCK, .l_whence = SEEK_SET};
+    long pid = fcntl(fd, F_GETLK, &who) == 0 && who.l_type != F_UNLCK
+                   ? (long)who.l_pid
+                   : -1;
+    close(fd);
+    if (err != EACCES && err != EAGAIN)
+      return fg_problem_set(p, FG_EIO, "store %s: cannot lock %s: %s", s->path,
+                            lpath, strerror(err));
+    return fg_problem_set(p, FG_EBUSY,
+                          "store %s is served by another process (pid %ld "
+                          "holds the lock on %s): one daemon per SQLite "
+                          "file; stop it first, or use a PostgreSQL store "
+                          "for several replicas",
+                          s->path, pid, lpath);
+  }
+  char pid[32];
+  int n = snprintf(pid, sizeof pid, "%ld\n", (long)getpid());
+  if (ftruncate(fd, 0) != 0 || pwrite(fd, pid, (size_t)n, 0) != n) {
+    /* the lock is what counts; the text is only a courtesy */
+  }
+  s->lock_fd = fd;
+  return FG_OK;
+}
+
 static fg_status sq_mark_interrupted(void *b, int *count, fg_problem *p) {
   sq_store *s = b;
   *count = 0;
+  /* Only the file's one daemon may call running checks interrupted: a
+   * second daemon stops here, before it touches a check. */
+  fg_status claimed = claim_file(s, p);
+  if (claimed != FG_OK) return claimed;
   char now[32];
   fg_store_now_rfc3339(now);
   pthread_mutex_lock(&s->lock);

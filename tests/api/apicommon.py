@@ -229,11 +229,13 @@ class Daemon(Endpoint):
                                      stdout=subprocess.DEVNULL,
                                      stderr=subprocess.PIPE, env=env)
         self.lines = []
+        self.raw_lines = []  # the same as bytes, undecoded
         self.first = None
         ready = threading.Event()
 
         def drain():
             for raw in self.proc.stderr:
+                self.raw_lines.append(raw)
                 line = raw.decode("utf-8", "replace").rstrip("\n")
                 self.lines.append(line)
                 if self.first is None:

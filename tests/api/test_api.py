@@ -450,6 +450,13 @@ def test_usage(tmp):
                        (["--chunk", "1000"], "--chunk"),
                        (["--max-wait", "-1"], "--max-wait"),
                        (["--log-level", "loud"], "--log-level"),
+                       (["--max-connections", "0"], "--max-connections"),
+                       (["--max-connections", "65537"], "--max-connections"),
+                       (["--max-connections-per-client", "0"],
+                        "--max-connections-per-client"),
+                       (["--max-connections", "10",
+                         "--max-connections-per-client", "11"],
+                        "--max-connections-per-client"),
                        (["--no-such-flag"], "--no-such-flag"),
                        (["--store"], "--store")):
         code, err = run(["--store", store] + args)

@@ -21,7 +21,7 @@ keys are made with `feasgate keys add`, and checks:
   - every check records its key's name (result body, list summary, store
     column, request log);
   - a non-loopback listener (0.0.0.0) refused (exit 3) on a store without
-    keys, accepted with --insecure, accepted with a key -- and then still
+    keys, accepted with --allow-keyless, accepted with a key -- and then still
     closed after that key is revoked.
 
 Standard library (plus apicommon's jsonschema checks of every answer).
@@ -203,6 +203,7 @@ def test_matrix(d, store, keys):
         ("GET", "/v1/models/%s/versions/1" % name, None, "reader"),
         ("GET", "/v1/checks", None, "reader"),
         ("GET", "/v1/checks/%s" % ended, None, "reader"),
+        ("GET", "/v1/checks/%s/request" % ended, None, "reader"),
         ("GET", "/v1/limits", None, "reader"),
         ("GET", "/v1/sample-size?half_width=0.01&confidence=0.95", None,
          "reader"),
@@ -387,19 +388,19 @@ def test_listen(tmp):
     store = "sqlite:" + os.path.join(tmp, "listen.db")
     p = run_serve("--listen", "0.0.0.0:0", "--store", store, "--workers", "1")
     check(p.returncode == 3 and "loopback" in p.stderr
-          and "--insecure" in p.stderr,
+          and "--allow-keyless" in p.stderr,
           "0.0.0.0 without keys is refused with exit 3: %d %r"
           % (p.returncode, p.stderr[-300:]))
-    d = Daemon(store, "--listen", "0.0.0.0:0", "--insecure", results=R)
+    d = Daemon(store, "--listen", "0.0.0.0:0", "--allow-keyless", results=R)
     check(d.address is not None and d.alive(),
-          "0.0.0.0 with --insecure starts")
+          "0.0.0.0 with --allow-keyless starts")
     if d.address:
         st, _, _ = d.request("GET", "/v1/models")
-        check(st == 200, "--insecure without keys: open (%d)" % st)
+        check(st == 200, "--allow-keyless without keys: open (%d)" % st)
     d.stop()
-    env = dict(os.environ, FEASGATE_INSECURE="1")
+    env = dict(os.environ, FEASGATE_ALLOW_KEYLESS="1")
     d = Daemon(store, "--listen", "0.0.0.0:0", env=env, results=R)
-    check(d.address is not None, "FEASGATE_INSECURE=1 is the twin")
+    check(d.address is not None, "FEASGATE_ALLOW_KEYLESS=1 is the twin")
     d.stop()
     key = add_key(store, "ops", "admin")
     d = Daemon(store, "--listen", "0.0.0.0:0", results=R)

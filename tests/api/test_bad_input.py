@@ -15,7 +15,12 @@ bodies. Every case must be answered
   - with a problem that names the fault: every expected word appears in
     an errors[].pointer, errors[].message or the detail,
 
-and after every case the daemon must still answer GET /v1/health. The
+and after every case the daemon must still answer GET /v1/health.
+Then strict HTTP over raw sockets: duplicate or conflicting
+Content-Length, Content-Length with Transfer-Encoding, "%00" in a path,
+a query value or name (400 problems), invalid UTF-8 from a path echoed
+as U+FFFD in valid UTF-8 JSON (problem and log line), and seed_max of
+GET /v1/limits as the exact integer 2^53 - 1. The
 daemon runs with a small --max-body so that the oversize cases stay
 cheap. Needs python3-jsonschema (apicommon.py); run with /usr/bin/python3.
 The last line is "N passed, N failed"; exit status 1 on any failure.
@@ -360,6 +365,136 @@ def chunked_oversize(d, res):
     res.check(d.alive(), "chunked oversize: daemon still answers")
 
 
+def raw_exchange(d, data, timeout=10):
+    """Send raw bytes; (status, headers dict, body bytes) of the answer,
+    or (None, {}, b"") when the connection closes without one."""
+    s = socket.create_connection((d.host, d.port), timeout=timeout)
+    try:
+        s.sendall(data)
+        buf = b""
+        while True:
+            try:
+                more = s.recv(65536)
+            except socket.timeout:
+                break
+            if not more:
+                break
+            buf += more
+            head, sep, rest = buf.partition(b"\r\n\r\n")
+            if sep:
+                hdrs = {}
+                for line in head.split(b"\r\n")[1:]:
+                    k, _, v = line.partition(b":")
+                    hdrs[k.strip().lower().decode()] = v.strip().decode()
+                n = int(hdrs.get("content-length", "0"))
+                if len(rest) >= n:
+                    status = int(head.split(b" ")[1])
+                    return status, hdrs, rest[:n]
+        return None, {}, b""
+    finally:
+        s.close()
+
+
+# Framing that two readers may split differently (RFC 9112 section 6.3):
+# (name, raw request). Each must be a 400 problem.
+FRAMING = [
+    ("two equal Content-Length headers",
+     b"POST /v1/models HTTP/1.1\r\nHost: x\r\nContent-Type: application/json"
+     b"\r\nContent-Length: 2\r\nContent-Length: 2\r\n\r\n{}"),
+    ("two different Content-Length headers",
+     b"POST /v1/models HTTP/1.1\r\nHost: x\r\nContent-Length: 2\r\n"
+     b"Content-Length: 40\r\n\r\n{}"),
+    ("Content-Length and Transfer-Encoding",
+     b"POST /v1/models HTTP/1.1\r\nHost: x\r\nContent-Length: 2\r\n"
+     b"Transfer-Encoding: chunked\r\n\r\n2\r\n{}\r\n0\r\n\r\n"),
+    ("Transfer-Encoding then Content-Length",
+     b"POST /v1/checks HTTP/1.1\r\nHost: x\r\nTransfer-Encoding: chunked"
+     b"\r\nContent-Length: 5\r\n\r\n0\r\n\r\n"),
+    ("two Content-Length headers on a GET",
+     b"GET /v1/health HTTP/1.1\r\nHost: x\r\nContent-Length: 0\r\n"
+     b"Content-Length: 0\r\n\r\n"),
+]
+
+
+def strict_http(d, res):
+    """Bad framing, NUL bytes, invalid UTF-8 echoed, exact seed_max."""
+    for name, data in FRAMING:
+        st, h, raw = raw_exchange(d, data)
+        body = None
+        try:
+            body = json.loads(raw)
+        except ValueError:
+            pass
+        res.check(st == 400 and is_problem(st, h, body),
+                  "%s: 400 problem, got %s %r" % (name, st, raw[:200]))
+        res.check(d.alive(), "%s: daemon still answers" % name)
+    # A list value in one header is refused by libmicrohttpd itself (its
+    # own 400 text, connection closed): a 400 either way.
+    st, _, _ = raw_exchange(d, b"POST /v1/models HTTP/1.1\r\nHost: x\r\n"
+                               b"Content-Length: 2, 2\r\n\r\n{}")
+    res.check(st in (400, None), "Content-Length list: 400 or closed, got %s"
+              % st)
+
+    # %00 decodes to NUL: in the path, in a query value, in a query name.
+    for path in ["/v1/models/bad-input%00/scenarios",
+                 "/v1/models/bad%00input",
+                 "/v1/checks?label=a%00b",
+                 "/v1/models/bad-input/scenarios?count=1%00",
+                 "/v1/checks?lab%00el=x",
+                 "/v1/health%00"]:
+        st, h, raw = d.raw("GET", path)
+        body = json.loads(raw) if raw else None
+        res.check(st == 400 and is_problem(st, h, body)
+                  and "nul" in body.get("detail", "").lower(),
+                  "NUL in %s: 400 problem naming NUL, got %s %r"
+                  % (path, st, raw[:200]))
+    # "%2500" is the text "%00", not a NUL: an ordinary 404
+    st, _, raw = d.raw("GET", "/v1/models/x%2500")
+    res.check(st == 404, "%%2500: 404 (no NUL), got %s %r" % (st, raw[:200]))
+
+    # Invalid UTF-8 and a control character in a path: the problem and the
+    # log line are valid UTF-8 JSON, the bad bytes U+FFFD (Unicode 15,
+    # section 3.9, maximal subparts: \xff, \xfe, \xc3 each one U+FFFD;
+    # \xe2\x82 one U+FFFD), the control character escaped.
+    before = len(d.raw_lines)
+    st, h, raw = d.raw("GET", "/v1/models/q%FF%FEz%C3%e2%82y%01")
+    text = None
+    try:
+        text = raw.decode("utf-8")  # strict: fails on invalid UTF-8
+    except UnicodeDecodeError:
+        pass
+    res.check(st == 404 and text is not None,
+              "invalid UTF-8 path: 404 in valid UTF-8, got %s %r"
+              % (st, raw[:200]))
+    if text is not None:
+        body = json.loads(text)
+        want = "q\ufffd\ufffdz\ufffd\ufffdy\x01"
+        res.check(want in body.get("detail", ""),
+                  "invalid UTF-8 path: detail holds %r: %r"
+                  % (want, body.get("detail")))
+        res.check("\\u0001" in text, "control character escaped: %r" % text)
+    d.alive()  # one more request, so that the log line is surely out
+    logged = [x for x in d.raw_lines[before:] if b'"path":"/v1/models/q' in x]
+    res.check(len(logged) == 1, "one log line for the path: %r" % logged)
+    for line in logged:
+        try:
+            obj = json.loads(line.decode("utf-8"))
+            res.check(obj["path"] == "/v1/models/" + want,
+                      "log path: %r" % obj["path"])
+        except (UnicodeDecodeError, ValueError) as e:
+            res.check(False, "log line not UTF-8 JSON (%r): %r" % (e, line))
+
+    # seed_max is 2^53 - 1 exactly (JSON numbers are exact integers up to
+    # there, RFC 8259 section 6), as a plain integer in the text.
+    st, _, raw = d.raw("GET", "/v1/limits")
+    lim = {e["name"]: e["value"] for e in json.loads(raw)["limits"]}
+    res.check(lim.get("seed_max") == 2 ** 53 - 1
+              and isinstance(lim.get("seed_max"), int),
+              "seed_max exact: %r" % lim.get("seed_max"))
+    res.check(b'"value":9007199254740991}' in raw,
+              "seed_max printed as an integer: %r" % raw[:100])
+
+
 def main():
     res = Results()
     if not os.path.exists(apicommon.BIN):
@@ -383,6 +518,7 @@ def main():
             for case in CORPUS:
                 run_case(d, res, case)
             chunked_oversize(d, res)
+            strict_http(d, res)
         except Exception as e:  # a crash of the test is a failure
             res.check(False, "exception %r" % e)
         code = d.stop()

@@ -182,6 +182,13 @@ def test_ready(res, tmp):
               "one detached check")
     res.check(value(m, "feasgate_checks_unrecorded") == 0,
               "no check end waiting for the store")
+    res.check(value(m, "feasgate_http_connections") >= 1,
+              "open connections gauge counts the scrape's own: %s"
+              % value(m, "feasgate_http_connections"))
+    res.check(value(m, "feasgate_http_requests_waiting") == 0,
+              "no request waiting for a check")
+    res.check(value(m, "feasgate_http_connections_refused_total") == 0,
+              "no connection refused")
     res.check(value(m, "feasgate_store_info", backend="sqlite") == 1,
               "the store backend: feasgate_store_info{backend=\"sqlite\"} 1")
     res.check(d.stop() == 0, "ready daemon: exit 0")

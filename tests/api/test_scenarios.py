@@ -14,7 +14,10 @@ copula-tied inputs, and checks:
     and replays; the daemon prints the same bytes as `feasgate scenarios`;
   - the count cap (400 naming max_scenarios), bad parameters (400 naming
     the parameter), unknown model (404), retired model (410), wrong method
-    (405).
+    (405);
+  - streaming: 8 concurrent 100,000-row answers of a 40-column model
+    (77 MB each) leave the daemon's VmRSS within 50 MB of where it was,
+    and are the same bytes.
 
 Standard library (plus apicommon's jsonschema checks of every answer).
 Prints one line per failed check and
@@ -200,6 +203,105 @@ def test_retired(d):
     problem(d, path(count=1, seed=1), 410, "retired", "scenarios of a retired model")
 
 
+WIDE = {
+    "format": 1,
+    "name": "scen-wide",
+    "title": "forty inflows of a reservoir cascade",
+    "decisions": [{"name": "release", "lower": 0, "upper": 100}],
+    "uncertain": [
+        {"name": "inflow", "size": 20, "distribution":
+         {"family": "normal", "mean": 10, "sd": 2}},
+        {"name": "rain", "size": 10, "distribution":
+         {"family": "uniform", "low": 0, "high": 3}},
+        {"name": "spill", "size": 10, "distribution":
+         {"family": "poisson", "mean": 2}},
+    ],
+    "constraints": [{"name": "level",
+                     "require": "inflow[0] + rain[0] - release <= 30"}],
+}
+WIDE_ROWS = 100000
+STREAMS = 8
+RSS_GROWTH_MAX_KB = 50 * 1024
+
+
+def rss_kb(pid):
+    with open("/proc/%d/status" % pid) as f:
+        for line in f:
+            if line.startswith("VmRSS:"):
+                return int(line.split()[1])
+    return -1
+
+
+def test_memory(tmp):
+    """8 concurrent 100,000-row answers of a 40-column model (77 MB each):
+    the daemon's resident memory (VmRSS, /proc/PID/status) grows by less
+    than 50 MB while they stream, and all 8 bodies are the same bytes."""
+    import hashlib
+    import http.client
+    import threading
+    import time
+    d = Daemon("sqlite:%s/wide.db" % tmp)
+    if not check(d.address is not None, "wide daemon started: %r" % d.first):
+        d.stop()
+        return
+    try:
+        pid = json.loads(d.first)["pid"]
+        st, _, _ = d.fetch("POST", "/v1/models", WIDE)
+        check(st == 201, "wide model registered: %s" % st)
+        url = path("scen-wide", count=WIDE_ROWS, seed=5)
+        st, _, b = d.request("GET", path("scen-wide", count=2, seed=5))
+        check(st == 200 and len(b.get("columns", [])) == 40,
+              "40 columns: %r" % (b.get("columns") if isinstance(b, dict)
+                                   else b))
+        base = rss_kb(pid)
+        digests, sizes, errors = [], [], []
+
+        def fetch():
+            try:
+                conn = http.client.HTTPConnection(d.host, d.port, timeout=300)
+                conn.request("GET", url)
+                resp = conn.getresponse()
+                h = hashlib.sha256()
+                n = 0
+                while True:
+                    block = resp.read(1 << 16)
+                    if not block:
+                        break
+                    h.update(block)
+                    n += len(block)
+                conn.close()
+                digests.append((resp.status, h.hexdigest()))
+                sizes.append(n)
+            except Exception as e:  # reported below
+                errors.append(repr(e))
+
+        threads = [threading.Thread(target=fetch) for _ in range(STREAMS)]
+        for t in threads:
+            t.start()
+        peak = base
+        while any(t.is_alive() for t in threads):
+            peak = max(peak, rss_kb(pid))
+            time.sleep(0.05)
+        for t in threads:
+            t.join()
+        check(not errors, "streams failed: %r" % errors[:2])
+        check(len(digests) == STREAMS
+              and all(x == digests[0] for x in digests)
+              and digests[0][0] == 200,
+              "%d equal 200 answers: %r" % (STREAMS, digests[:2]))
+        check(sizes and min(sizes) > WIDE_ROWS * 40 * 10,
+              "each body holds 100,000 rows of 40 numbers: %r" % sizes[:2])
+        print("VmRSS %d kB before, %d kB at most during %d streams"
+              % (base, peak, STREAMS))
+        check(base > 0 and peak - base < RSS_GROWTH_MAX_KB,
+              "resident memory grew by %d kB (< %d kB) over %d concurrent "
+              "%d-row answers" % (peak - base, RSS_GROWTH_MAX_KB, STREAMS,
+                                  WIDE_ROWS))
+    except Exception as e:  # a crash of the test is a failure
+        check(False, "memory test exception %r" % e)
+    check(d.stop() == 0, "wide daemon: SIGTERM exit 0")
+
+
 def main():
     if not os.path.exists(BIN):
         print("FEASGATE_BIN %s does not exist" % BIN)
@@ -220,6 +322,7 @@ def main():
             except Exception as e:  # a crash of the test is a failure
                 check(False, "exception %r" % e)
         check(d.stop() == 0, "SIGTERM: exit status 0")
+        test_memory(tmp)
     return results.summary()
 
 

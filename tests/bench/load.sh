@@ -11,6 +11,12 @@
 # /proc/PID/status) before and after, plus the check counters from
 # /metrics.
 #
+# Then the same run again with LOAD_IDLE (1000) more connections held
+# open that send nothing -- from 127.0.1.x source addresses, 50 to an
+# address (within the per-client limit), reopened as soon as the
+# daemon's header timeout closes them -- to show that idle sockets do
+# not slow the clients that talk. LOAD_IDLE=0 skips it.
+#
 # A benchmark, not a test: it never fails on speed and ctest does not run
 # it. Traffic goes to 127.0.0.1 only; wrk runs for a fixed time and is
 # itself bounded by `timeout`. Needs Debian's wrk and curl.
@@ -27,6 +33,7 @@ CONNECTIONS="${LOAD_CONNECTIONS:-32}"
 THREADS="${LOAD_THREADS:-2}"
 SAMPLES="${LOAD_SAMPLES:-2000}"
 WORKERS="${LOAD_WORKERS:-$(nproc)}"
+IDLE="${LOAD_IDLE:-1000}"
 # wrk's own time plus start-up and the final report.
 WRK_BOUND_S=$((SECONDS_RUN + 30))
 
@@ -52,8 +59,13 @@ trap cleanup EXIT
 # LOAD_STORE: another store URL (e.g. a PostgreSQL database); the default
 # is a fresh SQLite file.
 STORE="${LOAD_STORE:-sqlite:$tmp/load.db}"
+# room for the idle sockets: descriptors and --max-connections
+hard="$(ulimit -Hn)"
+[ "$hard" = unlimited ] && hard=$((IDLE + 512))
+ulimit -n "$(( hard < IDLE + 512 ? hard : IDLE + 512 ))" 2>/dev/null || true
 "$BIN" serve --listen 127.0.0.1:0 --store "$STORE" \
-  --workers "$WORKERS" --log-level warn 2>"$tmp/daemon.log" &
+  --workers "$WORKERS" --log-level warn \
+  --max-connections "$((IDLE + CONNECTIONS + 64))" 2>"$tmp/daemon.log" &
 pid=$!
 addr=""
 for _ in $(seq 1 100); do # up to 10 s for the "listening" line
@@ -108,10 +120,51 @@ end
 EOF
 
 rss() { sed -n 's/^VmRSS:[[:space:]]*//p' "/proc/$pid/status"; }
+run_wrk() {
+  timeout "$WRK_BOUND_S" wrk -t "$THREADS" -c "$CONNECTIONS" -d "${SECONDS_RUN}s" \
+    --timeout 30s -s "$tmp/check.lua" "$url" | sed -n '/^requests  /,$p'
+}
 echo "feasgate load benchmark: $CONNECTIONS connections, $THREADS wrk threads, ${SECONDS_RUN} s, $SAMPLES samples per check, $WORKERS workers"
 echo "daemon          $BIN ($url)"
 echo "VmRSS before    $(rss)"
-timeout "$WRK_BOUND_S" wrk -t "$THREADS" -c "$CONNECTIONS" -d "${SECONDS_RUN}s" \
-  --timeout 30s -s "$tmp/check.lua" "$url" | sed -n '/^requests  /,$p'
+run_wrk
 echo "VmRSS after     $(rss)"
 curl -s "$url/metrics" | grep -E '^feasgate_(checks_total\{status="done"\}|samples_simulated_total|http_requests_total\{method="POST",route="/v1/models/\{name\}/checks")' || true
+
+[ "$IDLE" -gt 0 ] || exit 0
+# IDLE sockets held open for the whole second run (reopened when the
+# header timeout closes them); prints how many were open at the end.
+cat >"$tmp/idle.py" <<'EOF'
+import select, socket, sys, time
+host, port, n, seconds = sys.argv[1], int(sys.argv[2]), int(sys.argv[3]), float(sys.argv[4])
+def one(i):
+    s = socket.socket()
+    s.bind(("127.0.1.%d" % (1 + i // 50), 0))
+    s.connect((host, port))
+    return s
+socks = [one(i) for i in range(n)]
+reopened = 0
+end = time.monotonic() + seconds
+while time.monotonic() < end:
+    p = select.poll()
+    for s in socks:
+        p.register(s, select.POLLIN)
+    ready = {fd for fd, _ in p.poll(500)}
+    for i, s in enumerate(socks):
+        if s.fileno() in ready:
+            s.close()
+            socks[i] = one(i)
+            reopened += 1
+print("idle sockets    %d held open (%d reopened after the header timeout)"
+      % (len(socks), reopened))
+EOF
+echo
+echo "the same with $IDLE idle connections held open"
+/usr/bin/python3 "$tmp/idle.py" 127.0.0.1 "${addr##*:}" "$IDLE" "$((SECONDS_RUN + 3))" &
+idle_pid=$!
+sleep 2
+echo "VmRSS before    $(rss)"
+echo "daemon threads  $(ls "/proc/$pid/task" | wc -l)"
+run_wrk
+echo "VmRSS after     $(rss)"
+wait "$idle_pid" || true

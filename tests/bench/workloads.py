@@ -94,7 +94,7 @@ def chain(rng):
             "family": "lognormal", "mean": mean, "sd": sd}}],
         "definitions": [
             {"name": "finish", "elements": elements},
-            {"name": "wait", "value": "pos(%s - start)" % prev}],
+            {"name": "wait", "value": "above_zero(%s - start)" % prev}],
         "constraints": [
             {"name": "waiting", "require": "wait <= 25"},
             {"name": "finished", "require": "finish <= due"}],

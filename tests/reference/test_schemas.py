@@ -122,9 +122,9 @@ WATER_POINTS = {
         {"name": "held", "value": "tanks * (1 - leak) + refills / 3"},
         {"name": "drawn", "value": "visitors * heat_hours / 7 * (1 + reserve_share)"},
         {"name": "spare", "elements": [
-            "pos(held[0] - drawn[0])",
-            "spare[0] + pos(held[1] - drawn[1])",
-            "spare[1] + pos(held[2] - drawn[2])"]},
+            "above_zero(held[0] - drawn[0])",
+            "spare[0] + above_zero(held[1] - drawn[1])",
+            "spare[1] + above_zero(held[2] - drawn[2])"]},
     ],
     "constraints": [
         {"name": "no_shortfall", "require": "drawn <= held"},
@@ -682,6 +682,7 @@ EXPECTED_OPERATIONS = {
     ("/v1/models/{name}/checks", "post"),
     ("/v1/models/{name}/versions/{n}/checks", "post"),
     ("/v1/checks", "get"), ("/v1/checks/{id}", "get"), ("/v1/checks/{id}", "delete"),
+    ("/v1/checks/{id}/request", "get"),
     ("/v1/models/{name}/comparisons", "post"),
     ("/v1/comparisons/{id}", "get"),
     ("/v1/comparisons/{id}", "delete"),
@@ -691,9 +692,11 @@ EXPECTED_OPERATIONS = {
     ("/v1/limits", "get"), ("/v1/openapi.json", "get"),
     ("/v1/checks/{id}/scenarios/{index}", "get"),
     ("/v1/checks/{id}/replay", "post"),
+    ("/", "get"), ("/page/app.js", "get"), ("/page/app.css", "get"),
 }
 PUBLIC = {("/v1/health", "get"), ("/v1/ready", "get"), ("/metrics", "get"),
-          ("/v1/openapi.json", "get")}
+          ("/v1/openapi.json", "get"),
+          ("/", "get"), ("/page/app.js", "get"), ("/page/app.css", "get")}
 METHODS = {"get", "put", "post", "delete", "patch", "head", "options", "trace"}
 
 

@@ -405,8 +405,8 @@ static void test_functions(void) {
   CHECK_NEAR(eval1("round(-2.5)", 0), -3, 0);  /* folded */
   CHECK_NEAR(eval1("round(u - 4)", 0), -3, 0); /* -2.5 at run time */
   CHECK_NEAR(eval1("round(2.4999)", 0), 2, 0);
-  CHECK_NEAR(eval1("pos(u - 3)", 0), 0, 0);
-  CHECK_NEAR(eval1("pos(u - 1)", 0), 0.5, 0);
+  CHECK_NEAR(eval1("above_zero(u - 3)", 0), 0, 0);
+  CHECK_NEAR(eval1("above_zero(u - 1)", 0), 0.5, 0);
   CHECK_NEAR(eval1("min(u, a)", 0), 1.5, 0);
   CHECK_NEAR(eval1("max(u, a, 1)", 0), 2, 0);
   CHECK_NEAR(eval1("min(w)", 0), -2, 0); /* reduction */
@@ -429,7 +429,7 @@ static void test_functions(void) {
   check_vec("floor(w / 2)", (double[]){0, -1, 1}, 3);
   check_vec("ceil(w / 2)", (double[]){1, -1, 2}, 3);
   check_vec("round(w / 2)", (double[]){1, -1, 2}, 3); /* .5 away from 0 */
-  check_vec("pos(w)", (double[]){1, 0, 3.5}, 3);
+  check_vec("above_zero(w)", (double[]){1, 0, 3.5}, 3);
   check_vec("min(v, w)", (double[]){1, -2, 3.5}, 3);
   check_vec("max(v, w, 2)", (double[]){2, 4, 9}, 3);
   check_vec("min(v, u)", (double[]){1, 1.5, 1.5}, 3);
@@ -442,7 +442,7 @@ static void test_functions(void) {
   /* NaN propagates through min, max and pos */
   CHECK(isnan(eval1("max(sqrt(0 - u), 0)", 0)));
   CHECK(isnan(eval1("min(1, sqrt(0 - u))", 0)));
-  CHECK(isnan(eval1("pos(log(0 - u))", 0)));
+  CHECK(isnan(eval1("above_zero(log(0 - u))", 0)));
   CHECK(isnan(eval1("clamp(sqrt(0 - u), 0, 1)", 0)));
 }
 
@@ -509,7 +509,7 @@ static void test_elements_queue(void) {
   /* three jobs booked at start = [0, 10, 20]; a job begins when it is due
    * and the previous one has finished:
    *   finish[k] = max(start[k], finish[k-1]) + dur[k]
-   *   wait = pos([0, finish[0], finish[1]] - start)
+   *   wait = above_zero([0, finish[0], finish[1]] - start)
    * lane 0, dur = [15, 5, 8]: finish = [15, 20, 28], wait = [0, 5, 0]
    * lane 1, dur = [5, 30, 1]: finish = [5, 40, 41],  wait = [0, 0, 20] */
   model m;
@@ -522,7 +522,7 @@ static void test_elements_queue(void) {
                                     "/definitions/0/elements", &m.p),
             FG_OK);
   CHECK_INT(fg_expr_define(m.c, "wait",
-                           "pos([0, finish[0], finish[1]] - start)",
+                           "above_zero([0, finish[0], finish[1]] - start)",
                            "/definitions/1/value", &m.p),
             FG_OK);
   CHECK_INT(fg_expr_constraint(m.c, "patient_wait", "wait <= 5",
@@ -544,7 +544,7 @@ static void test_elements_queue(void) {
   CHECK_INT(m.info.rows[3].element, -1);
   CHECK_INT(m.info.rows[3].constraint, 1);
   CHECK_INT(m.info.rows[0].kind, FG_ROW_LE);
-  /* wait[0] = pos(0 - start[0]) needs no uncertain input: element-wise
+  /* wait[0] = above_zero(0 - start[0]) needs no uncertain input: element-wise
    * determinism puts it in the setup stream */
   CHECK(m.info.rows[0].deterministic);
   CHECK(!m.info.rows[1].deterministic);
@@ -671,7 +671,7 @@ static void test_register_reuse(void) {
   m_init(&m);
   fg_expr_declare_decision(m.c, "x", N, "/decisions/0", &m.p);
   fg_expr_declare_uncertain(m.c, "y", N, "/uncertain/0", &m.p);
-  fg_expr_define(m.c, "d", "pos(x - y) * 2 + y / 3 - abs(y) ^ 2",
+  fg_expr_define(m.c, "d", "above_zero(x - y) * 2 + y / 3 - abs(y) ^ 2",
                  "/definitions/0/value", &m.p);
   fg_expr_define(m.c, "e", "sqrt(abs(d)) + 1", "/definitions/1/value", &m.p);
   fg_expr_constraint(m.c, "c", "sum(e) + max(d) <= 10", "/c/0", &m.p);
