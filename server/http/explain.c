@@ -160,6 +160,13 @@ int fg_explain_command(int argc, char **argv) {
   int nfiles = 0;
   const char *index_text = NULL;
   for (int i = 1; i < argc; i++) {
+    if (strcmp(argv[i], "--help") == 0) {
+      printf("usage: feasgate explain MODEL.json REQUEST.json --index I\n"
+             "Prints sample I of the check REQUEST.json describes (its "
+             "\"seed\" is needed):\nthe inputs drawn, the definitions and "
+             "every row's excess, as JSON.\n");
+      return 0;
+    }
     if (strcmp(argv[i], "--index") == 0 && i + 1 < argc) {
       index_text = argv[++i];
     } else if (argv[i][0] == '-' && argv[i][1]) {

@@ -261,6 +261,13 @@ static void print_problem(const char *what, const fg_problem *p) {
 int fg_replay_command(int argc, char **argv) {
   const char *url = getenv("FEASGATE_STORE"), *id = NULL;
   for (int i = 1; i < argc; i++) {
+    if (strcmp(argv[i], "--help") == 0) {
+      printf("usage: feasgate replay --store STORE CHECK_ID\n"
+             "Re-runs a logged check's request on its model version and "
+             "prints whether\nevery count is reproduced (exit 0) or not "
+             "(exit 1).\n");
+      return 0;
+    }
     if (strcmp(argv[i], "--store") == 0 && i + 1 < argc) url = argv[++i];
     else if (!id && argv[i][0] != '-') id = argv[i];
     else id = NULL, url = NULL, i = argc;
