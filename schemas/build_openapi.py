@@ -36,6 +36,8 @@ COMPONENTS = [
     ("comparison-request.schema.json", "ComparisonRequest"),
     ("comparison-result.schema.json", "ComparisonResult"),
     ("scenarios.schema.json", "Scenarios"),
+    ("explained-scenario.schema.json", "ExplainedScenario"),
+    ("replay-result.schema.json", "ReplayResult"),
     ("sample-size.schema.json", "SampleSize"),
     ("health.schema.json", "Health"),
     ("limits.schema.json", "Limits"),
@@ -122,6 +124,7 @@ ERROR_NAMES = {
     410: "Gone",
     413: "PayloadTooLarge",
     415: "UnsupportedMediaType",
+    422: "Unprocessable",
     500: "InternalError",
     503: "Unavailable",
 }
@@ -139,6 +142,8 @@ ERROR_TEXT = {
          "no new checks are accepted.",
     413: "The body exceeds the body-size limit (limit names it).",
     415: "The body is not application/json.",
+    422: "Understood but not possible for this check (for example a "
+         "scenario of a Latin hypercube or Sobol check).",
     500: "An internal fault; nothing was half written.",
     503: "Overloaded (the work queue is full, or too many connections) or "
          "not ready; Retry-After says when to try again.",
@@ -292,6 +297,41 @@ def paths():
                  **errors(401, 403, 404, 409, 500, 503)),
             description="A check that has already ended is answered 409 and "
                         "left as it is.",
+        ),
+    }
+    p["/v1/checks/{id}/scenarios/{index}"] = {
+        "parameters": [id_p, {"name": "index", "in": "path", "required": True,
+                              "schema": {"type": "integer", "minimum": 0},
+                              "description": "Sample index, below the check's samples."}],
+        "get": op(
+            "explainScenario", "One scenario of a check, explained", "reader",
+            dict({"200": json_body("ExplainedScenario",
+                                   "The inputs drawn for that sample, the "
+                                   "definitions and every row's excess, "
+                                   "recomputed from the stored model version, "
+                                   "request and seed.")},
+                 **errors(400, 401, 403, 404, 422, 500, 503)),
+            description="Indices of failing_scenarios give the scenarios that "
+                        "failed. Latin hypercube and Sobol checks are answered "
+                        "422: their samples are drawn replicate by replicate.",
+        ),
+    }
+    p["/v1/checks/{id}/replay"] = {
+        "parameters": [id_p],
+        "post": op(
+            "replayCheck", "Re-run a logged check and compare its counts", "checker",
+            dict({"201": {"description": "The replay ended within the server's "
+                                         "max_wait: reproduced says whether every "
+                                         "count is identical, differences lists "
+                                         "those that are not.",
+                          "content": {"application/json": {"schema": ref("ReplayResult")}}},
+                  "202": {"description": "The replay still runs (reproduced null); "
+                                         "it is logged as a check with replay_of.",
+                          "content": {"application/json": {"schema": ref("ReplayResult")}}}},
+                 **errors(401, 403, 404, 409, 500, 503)),
+            description="Runs the stored request (its seed included) on the stored "
+                        "model version as a new check that carries replay_of. "
+                        "A check still running, or ended without counts, is 409.",
         ),
     }
     p["/v1/checks/{id}/request"] = {

@@ -687,6 +687,8 @@ int main(int argc, char **argv) {
     return cmd_check(argc - 1, argv + 1);
   }
   if (strcmp(cmd, "keys") == 0) return fg_keys_command(argc - 1, argv + 1);
+  if (strcmp(cmd, "explain") == 0) return fg_explain_command(argc - 1, argv + 1);
+  if (strcmp(cmd, "replay") == 0) return fg_replay_command(argc - 1, argv + 1);
   if (strcmp(cmd, "register") == 0) return cmd_register(argc - 1, argv + 1);
   if (strcmp(cmd, "scenarios") == 0) return cmd_scenarios(argc - 1, argv + 1);
   if (strcmp(cmd, "sample-size") == 0) return cmd_sample_size(argc - 1, argv + 1);

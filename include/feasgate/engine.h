@@ -98,6 +98,9 @@ typedef struct fg_check_request {
   uint64_t in_sample_seed, in_sample_count;
   char label[FG_LABEL_MAX + 1]; /* "" when absent */
   double wait_s;
+  bool explain; /* "explain": drivers per row and for the joint */
+  int failing_count; /* failing scenarios listed, 1..FG_FAILING_SCENARIOS_MAX;
+                        0 (absent) means FG_FAILING_SCENARIOS */
   /* Not part of the request body: set by callers that need every sample's
    * joint outcome afterwards (comparisons). Costs samples/8 bytes. */
   bool keep_outcomes;
@@ -189,6 +192,7 @@ typedef struct fg_check_meta {
   const char *created_at;  /* RFC 3339 UTC */
   const char *finished_at; /* NULL while running */
   const char *key;         /* key name; NULL when none */
+  const char *replay_of;   /* id of the check this one replays; NULL none */
 } fg_check_meta;
 
 /* The result body of http-api.md (status, verdict, joint, constraints,
@@ -245,6 +249,16 @@ fg_status fg_scenarios_write(const fg_model *m, const fg_scenarios_params *q,
  * FG_ELIMIT beyond FG_SCENARIO_CELLS_MAX values. */
 fg_status fg_scenarios_render(const fg_model *m, const fg_scenarios_params *q,
                               char **out, size_t *len, fg_problem *p);
+
+/* ---- one scenario explained (explain.c) ----
+ * Sample `index` of the check that `req` (seed filled in) describes, on
+ * model `m`: {"index", "seed", "stream", "sampling", "inputs",
+ * "definitions", "rows": [{"name", "excess", "holds"}], "holds"}, exactly
+ * the values the check counted. FG_EUNSUPPORTED for Latin hypercube and
+ * Sobol checks; FG_EINVAL (pointer /index) for an index beyond samples. */
+fg_status fg_explain_scenario(const fg_model *m, const fg_check_request *req,
+                              uint64_t index, struct cJSON **out,
+                              fg_problem *p);
 
 /* ---- comparisons (compare.c) ----
  * Several candidates judged on the same scenarios (common random numbers:

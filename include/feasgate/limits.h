@@ -128,8 +128,22 @@
 #define FG_SCENARIO_STREAM_BYTES (256u * 1024u)
 #endif
 
-/* Failing scenarios reported per check. */
+/* Failing scenarios reported per check by default. */
 #define FG_FAILING_SCENARIOS 5
+/* Failing scenarios a request may ask for (failing_scenarios_count): each
+ * kept record is ~80 bytes in every chunk tally of a running check, so
+ * 100 keeps a tally's records under 8 kB and a result body small, while
+ * giving enough scenarios to explain one by one. */
+#define FG_FAILING_SCENARIOS_MAX 100
+
+/* Drivers ("explain": true): one accumulator per constraint row (and the
+ * joint) and uncertain input component, in every chunk tally of a running
+ * check. 65536 cells keep a tally's sums at 512 kB, so a check's window of
+ * tallies stays within tens of MB on the largest pool, and the per-block
+ * cost at rows x components additions per sample. */
+#define FG_EXPLAIN_CELLS_MAX 65536
+/* Drivers listed per row: the components with the largest |shift|. */
+#define FG_DRIVERS_LISTED 5
 
 /* Largest seed accepted: seeds travel as JSON numbers, which are exact
  * integers up to 2^53. */
@@ -239,6 +253,8 @@
   X("comparison_candidates", FG_COMPARE_CANDIDATES_MAX)                        \
   X("comparison_samples", FG_COMPARE_SAMPLES_MAX)                              \
   X("failing_scenarios", FG_FAILING_SCENARIOS)                               \
+  X("failing_scenarios_count", FG_FAILING_SCENARIOS_MAX)                     \
+  X("explain_cells", FG_EXPLAIN_CELLS_MAX)                                   \
   X("sobol_dimensions", FG_SOBOL_DIMS_MAX)                                \
   X("scenario_cells", FG_SCENARIO_CELLS_MAX)
 

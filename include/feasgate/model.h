@@ -82,6 +82,12 @@ void fg_model_unref(fg_model *m);
 /* {"decisions": .., "decision_dims": .., ...} as the API's "summary". */
 struct cJSON *fg_model_summary_json(const fg_model *m);
 
+/* A program whose rows read back the model's definitions (model/defprog.c):
+ * row k's excess is definition row->constraint, element row->element. */
+fg_status fg_model_definitions_program(const fg_model *m,
+                                       struct fg_program **out,
+                                       fg_problem *p);
+
 /* Canonical text of any JSON value (malloc'd; NULL on out of memory). */
 char *fg_json_canonical(const struct cJSON *v, size_t *len);
 /* Hex SHA-256 (FIPS 180-4) of data into hex[65]. */

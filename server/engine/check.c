@@ -31,6 +31,7 @@
 
 #include "core/quantile.h"
 
+#include <float.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -316,6 +317,7 @@ void fg_check_free_internal(struct fg_check *c) {
   free(c->ready);
   fg_tally_free(&c->total);
   free(c->rows);
+  free(c->drv_centre);
   free(c->setup_regs);
   fg_exact_result_free(&c->exact);
   fg_request_free(&c->req);
@@ -353,6 +355,61 @@ static int row_cmp(const void *pa, const void *pb) {
   if (a->excess_mean != b->excess_mean)
     return a->excess_mean > b->excess_mean ? -1 : 1;
   return a->row - b->row;
+}
+
+/* Slack to target of one row: the smallest s >= 0 with
+ *   #(excess <= s) >= ceil(target * n).
+ * The rows that hold (n - violated) count at s = 0; the rest must come
+ * from the finite positive excesses, whose histogram gives the value of
+ * rank `need` within FG_HIST_REL_ERROR relative (hist.c). NaN and +inf
+ * excesses never hold, so when too many of them remain no finite slack
+ * exists (NAN). */
+static double slack_to_target(const fg_row_tally *rt, uint64_t n,
+                              double target) {
+  if (n == 0) return NAN;
+  uint64_t holds = n - rt->violated;
+  /* ceil(target * n), the product's rounding kept from adding a sample */
+  double want = ceil(target * (double)n * (1 - 4 * DBL_EPSILON));
+  if ((double)holds >= want) return 0;
+  uint64_t finite = rt->violated - rt->nonfinite - rt->infinite;
+  double need = want - (double)holds; /* >= 1 */
+  if (need > (double)finite || finite == 0) return NAN;
+  /* rank ceil(q * finite) == need exactly with q = (need - 1/2) / finite */
+  return fg_hist_quantile(&rt->hist, (need - 0.5) / (double)finite);
+}
+
+/* Drivers from the driver sums of `t` (tally.c's layout), block `slot`
+ * (a row, or nrows for the joint) and its violation count: shift_j =
+ * (mean of x_j over the violating samples - mean over all) / sd over all
+ * (population sd); components with no spread are skipped. Top
+ * FG_DRIVERS_LISTED by |shift|, ties to the lower column. */
+static void drivers_of(const fg_tally *t, int slot, uint64_t nviol,
+                       fg_drivers *out) {
+  memset(out, 0, sizeof *out);
+  if (!t->drv || t->n == 0 || nviol == 0) return;
+  out->known = true;
+  int D = t->drv_dims;
+  double n = (double)t->n, nv = (double)nviol;
+  const double *sv = t->drv + (size_t)(2 + slot) * (size_t)D;
+  for (int j = 0; j < D; j++) {
+    double mean = t->drv[j] / n;
+    double var = t->drv[D + j] / n - mean * mean;
+    if (!(var > 0) || !isfinite(var)) continue;
+    double shift = (sv[j] / nv - mean) / sqrt(var);
+    if (!isfinite(shift)) continue;
+    int k = out->n < FG_DRIVERS_LISTED ? out->n : FG_DRIVERS_LISTED - 1;
+    if (out->n == FG_DRIVERS_LISTED && !(fabs(shift) > fabs(out->shift[k])))
+      continue;
+    /* insertion: strictly larger |shift| moves ahead (stable on ties) */
+    while (k > 0 && fabs(shift) > fabs(out->shift[k - 1])) {
+      out->shift[k] = out->shift[k - 1];
+      out->col[k] = out->col[k - 1];
+      k--;
+    }
+    out->shift[k] = shift;
+    out->col[k] = j;
+    if (out->n < FG_DRIVERS_LISTED) out->n++;
+  }
 }
 
 /* Under merge_mu, once the end is decided: the end-of-run figures. */
@@ -406,9 +463,12 @@ static void finalize(struct fg_check *c) {
       rr->excess_mean_if_violated = finite ? rt->excess_sum / (double)finite : 0;
       rr->excess_p95 = finite ? fg_hist_quantile(&rt->hist, 0.95) : 0;
       rr->excess_max = finite ? rt->hist.max : 0;
+      rr->slack_to_target = slack_to_target(rt, n, c->req.target);
+      drivers_of(t, r, rt->violated, &rr->drivers);
     }
     qsort(c->rows, (size_t)c->info.nrows, sizeof *c->rows, row_cmp);
   }
+  drivers_of(t, c->info.nrows, n - k, &c->joint_drivers);
   c->has_objective = c->info.objective_reg >= 0;
   if (c->has_objective) {
     if (c->info.objective_deterministic)
@@ -538,6 +598,35 @@ fg_status fg_check_start(fg_pool *pool, fg_model *m,
   for (int i = 0; i < c->window; i++)
     if (fg_tally_init(&c->slots[i], c->info.nrows) != FG_OK) goto oom;
   if (fg_tally_init(&c->total, c->info.nrows) != FG_OK) goto oom;
+  if (c->req.failing_count > 0) {
+    int keep = c->req.failing_count < FG_FAILING_SCENARIOS_MAX
+                   ? c->req.failing_count
+                   : FG_FAILING_SCENARIOS_MAX;
+    c->total.fail_keep = keep;
+    for (int i = 0; i < c->window; i++) c->slots[i].fail_keep = keep;
+  }
+  if (req->explain && c->info.nuncertain > 0) {
+    /* The sums' centre: sample 0 of the validation stream, a fixed point
+     * near the inputs' bulk whatever the chunking. */
+    int D = c->info.nuncertain;
+    c->drv_centre = calloc((size_t)D, sizeof *c->drv_centre);
+    double *buf = calloc((size_t)D * FG_BLOCK, sizeof *buf);
+    fg_sample_scratch *w = fg_sample_scratch_new(m->sampler);
+    if (c->drv_centre && buf && w) {
+      fg_sampler_draw(m->sampler, w, req->seed, FG_STREAM_VALIDATION, 0, 1,
+                      buf, FG_BLOCK);
+      for (int j = 0; j < D; j++) {
+        double v = buf[(size_t)j * FG_BLOCK];
+        c->drv_centre[j] = isfinite(v) ? v : 0;
+      }
+    }
+    fg_sample_scratch_free(w);
+    free(buf);
+    if (!c->drv_centre || fg_tally_drivers_init(&c->total, D, c->drv_centre))
+      goto oom;
+    for (int i = 0; i < c->window; i++)
+      if (fg_tally_drivers_init(&c->slots[i], D, c->drv_centre)) goto oom;
+  }
   if (c->design == FG_DESIGN_ANTITHETIC) {
     c->total.pairs = true;
     for (int i = 0; i < c->window; i++) c->slots[i].pairs = true;

@@ -34,7 +34,8 @@
 
 static const char *const shared_members[] = {
     "samples",  "seed",       "target",        "confidence", "interval",
-    "sampling", "stop_early", "expect_digest", "in_sample",  "wait_s"};
+    "sampling", "stop_early", "expect_digest", "in_sample",  "wait_s",
+    "explain"};
 #define NSHARED (sizeof shared_members / sizeof *shared_members)
 
 static bool is_shared(const char *name) {
@@ -138,7 +139,8 @@ fg_status fg_compare_parse(const fg_model *m, const cJSON *body,
     fg_problem_add(p, FG_EINVAL, ptr, 0,
                    "unknown member '%s' (known: candidates, samples, seed, "
                    "target, confidence, interval, sampling, stop_early, "
-                   "expect_digest, in_sample, wait_s; labels and decisions "
+                   "expect_digest, in_sample, wait_s, explain; labels and "
+                   "decisions "
                    "go in each candidate)",
                    it->string);
   }

@@ -48,6 +48,17 @@ typedef struct fg_det_problem {
   char message[192];
 } fg_det_problem;
 
+/* Drivers of one row (or the joint): the input components whose mean
+ * over the violating samples is furthest from their overall mean, in
+ * overall standard deviations, largest |shift| first. known is false
+ * when no sample violated (the result shows null). */
+typedef struct fg_drivers {
+  bool known;
+  int n;
+  int col[FG_DRIVERS_LISTED]; /* sampler column */
+  double shift[FG_DRIVERS_LISTED];
+} fg_drivers;
+
 /* Per-row figures computed when a check ends. */
 typedef struct fg_row_result {
   int row; /* index into the program's rows */
@@ -55,6 +66,11 @@ typedef struct fg_row_result {
   double probability; /* violation probability */
   fg_interval interval;
   double excess_mean, excess_mean_if_violated, excess_p95, excess_max;
+  /* The least loosening of this row's limit that makes it alone hold in
+   * a fraction >= target of the samples: 0 when it already does; NAN
+   * when no finite loosening can (NaN or +inf excess in too many). */
+  double slack_to_target;
+  fg_drivers drivers; /* with req.explain */
 } fg_row_result;
 
 /* exact.c: the exact path's answer for one check. */
@@ -160,6 +176,8 @@ struct fg_check {
   fg_interval interval;
   double probability, std_error;
   fg_row_result *rows; /* sorted worst first */
+  double *drv_centre;  /* with req.explain: sample 0's draw, per column */
+  fg_drivers joint_drivers;
   double objective;
   bool has_objective;
   double samples_to_settle;

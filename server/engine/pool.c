@@ -121,6 +121,8 @@ bool fg_engine_run_range(const struct fg_check *c, fg_sample_scratch *w,
     }
     fg_program_run_block(c->model->program, regs, n);
     fg_tally_block(t, excess, n, first + done, obj, scratch);
+    if (t->drv)
+      fg_tally_drivers_block(t, ureg, FG_BLOCK, excess, scratch, n);
     if (outcomes) {
       /* Blocks start on multiples of 64 samples (chunk bounds are
        * multiples of FG_BLOCK), so each block owns whole words and

@@ -26,7 +26,8 @@ void fg_request_limits_default(fg_request_limits *l) {
 static const char *const known_members[] = {
     "decision", "samples",     "seed",          "target",
     "confidence", "interval",  "stop_early",    "sampling",
-    "expect_digest", "in_sample", "label",      "wait_s", "exact"};
+    "expect_digest", "in_sample", "label",      "wait_s",
+    "failing_scenarios_count", "explain", "exact"};
 
 static bool is_known(const char *name) {
   for (size_t i = 0; i < sizeof known_members / sizeof *known_members; i++)
@@ -157,7 +158,8 @@ fg_status fg_request_parse(const fg_model *m, const cJSON *body,
       fg_problem_add(p, FG_EINVAL, ptr, 0,
                      "unknown member '%s' (known: decision, samples, seed, "
                      "target, confidence, interval, stop_early, sampling, "
-                     "expect_digest, in_sample, label, wait_s, exact)",
+                     "expect_digest, in_sample, label, wait_s, "
+                     "failing_scenarios_count, explain, exact)",
                      it->string);
     }
   }
@@ -286,6 +288,41 @@ fg_status fg_request_parse(const fg_model *m, const cJSON *body,
                        strlen(s), FG_LABEL_MAX);
     else snprintf(out->label, sizeof out->label, "%s", s);
   }
+  if ((v = cJSON_GetObjectItemCaseSensitive(body, "failing_scenarios_count"))) {
+    uint64_t k = 0;
+    if (!get_whole(v, 1, 1e18, &k))
+      fg_problem_add(p, FG_EINVAL, "/failing_scenarios_count", 0,
+                     "failing_scenarios_count must be a whole number from 1 "
+                     "to %d",
+                     FG_FAILING_SCENARIOS_MAX);
+    else if (k > FG_FAILING_SCENARIOS_MAX)
+      fg_problem_limit(p, "/failing_scenarios_count",
+                       "failing_scenarios_count", FG_FAILING_SCENARIOS_MAX,
+                       "failing_scenarios_count %llu exceeds "
+                       "failing_scenarios_count = %d",
+                       (unsigned long long)k, FG_FAILING_SCENARIOS_MAX);
+    else out->failing_count = (int)k;
+  }
+  if ((v = cJSON_GetObjectItemCaseSensitive(body, "explain"))) {
+    if (!cJSON_IsBool(v)) {
+      fg_problem_add(p, FG_EINVAL, "/explain", 0,
+                     "explain must be true or false");
+    } else if (cJSON_IsTrue(v)) {
+      fg_program_info in;
+      fg_program_get_info(m->program, &in);
+      double cells = (double)(in.nrows + 1) * (double)in.nuncertain;
+      if (cells > (double)FG_EXPLAIN_CELLS_MAX)
+        fg_problem_limit(p, "/explain", "explain_cells",
+                         (double)FG_EXPLAIN_CELLS_MAX,
+                         "explain needs (rows + 1) x uncertain components = "
+                         "%d x %d = %.0f accumulators, more than "
+                         "explain_cells = %d",
+                         in.nrows + 1, in.nuncertain, cells,
+                         FG_EXPLAIN_CELLS_MAX);
+      else
+        out->explain = true;
+    }
+  }
   if ((v = cJSON_GetObjectItemCaseSensitive(body, "wait_s"))) {
     if (!cJSON_IsNumber(v) || !(v->valuedouble >= 0) ||
         !isfinite(v->valuedouble))
@@ -359,5 +396,8 @@ cJSON *fg_request_json(const fg_model *m, const fg_check_request *r) {
     cJSON_AddNumberToObject(is, "count", (double)r->in_sample_count);
   }
   if (r->label[0]) cJSON_AddStringToObject(o, "label", r->label);
+  if (r->explain) cJSON_AddBoolToObject(o, "explain", true);
+  if (r->failing_count > 0 && r->failing_count != FG_FAILING_SCENARIOS)
+    cJSON_AddNumberToObject(o, "failing_scenarios_count", r->failing_count);
   return o;
 }

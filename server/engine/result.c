@@ -97,6 +97,26 @@ static void add_exact(cJSON *j, struct fg_check *c) {
   add_num(e, "elapsed_ms", c->exact.elapsed_ms);
 }
 
+/* "drivers" of a row or the joint (with "explain": true): null when no
+ * sample violated, else up to FG_DRIVERS_LISTED {"input", "shift"},
+ * largest |shift| first (check.c drivers_of). */
+static void add_drivers(cJSON *o, const struct fg_check *c,
+                        const fg_drivers *d) {
+  if (!c->req.explain) return;
+  if (!d->known) {
+    cJSON_AddNullToObject(o, "drivers");
+    return;
+  }
+  cJSON *a = cJSON_AddArrayToObject(o, "drivers");
+  for (int i = 0; a && i < d->n; i++) {
+    cJSON *e = cJSON_CreateObject();
+    cJSON_AddStringToObject(e, "input",
+                            fg_sampler_column(c->model->sampler, d->col[i]));
+    cJSON_AddNumberToObject(e, "shift", d->shift[i]);
+    cJSON_AddItemToArray(a, e);
+  }
+}
+
 static void add_rows(cJSON *o, struct fg_check *c) {
   cJSON *arr = cJSON_AddArrayToObject(o, "constraints");
   if (!c->rows) return;
@@ -123,6 +143,10 @@ static void add_rows(cJSON *o, struct fg_check *c) {
     add_num(ex, "mean_if_violated", any ? rr->excess_mean_if_violated : NAN);
     add_num(ex, "p95", any ? rr->excess_p95 : NAN);
     add_num(ex, "max", any ? rr->excess_max : NAN);
+    /* Per row only: loosening every row by its own slack does not by
+     * itself bring the joint probability to the target. */
+    add_num(r, "slack_to_target", rr->slack_to_target);
+    add_drivers(r, c, &rr->drivers);
     cJSON_AddNumberToObject(r, "sole_cause", (double)rr->sole);
     cJSON_AddNumberToObject(r, "nonfinite", (double)rr->nonfinite);
     cJSON_AddBoolToObject(r, "deterministic", row->deterministic);
@@ -218,6 +242,8 @@ cJSON *fg_check_result_json(fg_check *c, const fg_check_meta *meta) {
   fg_check_state state = fg_check_get_state(c);
   bool ended = fg_check_state_is_end(state);
   if (meta && meta->id) cJSON_AddStringToObject(o, "id", meta->id);
+  if (meta && meta->replay_of && meta->replay_of[0])
+    cJSON_AddStringToObject(o, "replay_of", meta->replay_of);
   cJSON_AddStringToObject(o, "status", fg_check_state_name(state));
   cJSON *mo = cJSON_AddObjectToObject(o, "model");
   cJSON_AddStringToObject(mo, "name", c->model->name);
@@ -249,6 +275,7 @@ cJSON *fg_check_result_json(fg_check *c, const fg_check_meta *meta) {
       cJSON_AddNumberToObject(j, "replicate_size", (double)c->rep_size);
     }
     add_exact(j, c);
+    add_drivers(j, c, &c->joint_drivers);
     add_rows(o, c);
   } else {
     add_running(o, c);

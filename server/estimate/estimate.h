@@ -157,12 +157,26 @@ typedef struct fg_tally {
   fg_row_tally *rows;
   double objective_sum;
   int nfail;
-  fg_fail_record fail[FG_FAILING_SCENARIOS];
+  int fail_keep; /* records kept, 0..FG_FAILING_SCENARIOS_MAX (init:
+                    FG_FAILING_SCENARIOS); kept by reset */
+  fg_fail_record fail[FG_FAILING_SCENARIOS_MAX];
   /* Non-finite draws of uncertain inputs (fg_tally_inputs): how many
    * values, and the first by sample index (ties: the lower column). */
   uint64_t bad_draws;
   uint64_t bad_draw_first; /* FG_INDEX_NONE when there are none */
   int bad_draw_column;
+  /* Drivers (NULL when not asked): sums over the samples of d_j = x_j -
+   * centre_j for every input component j < drv_dims, laid out as
+   *   [0, D)                 sum of d_j over all samples
+   *   [D, 2D)                sum of d_j^2 over all samples
+   *   [(2 + r) D, (3 + r) D) sum of d_j over the samples violating row r
+   *   [(2 + R) D, (3 + R) D) sum of d_j over the samples violating any
+   * (D = drv_dims, R = nrows). Plain sums, merged by addition in chunk
+   * order like every other tally. drv_centre (not owned) is fixed per
+   * check, so the sums stay well scaled whatever the inputs' means. */
+  double *drv;
+  int drv_dims;
+  const double *drv_centre;
 } fg_tally;
 
 fg_status fg_tally_init(fg_tally *t, int nrows);
@@ -184,6 +198,16 @@ void fg_tally_block(fg_tally *t, const double *const *excess, int n,
  * column. */
 void fg_tally_inputs(fg_tally *t, const double *x, int ncols, size_t stride,
                      int n, uint64_t first);
+/* Give `t` driver sums for `dims` input components about `centre`
+ * (dims values, kept by pointer); FG_ENOMEM when they cannot be had. */
+fg_status fg_tally_drivers_init(fg_tally *t, int dims, const double *centre);
+/* After fg_tally_block on the same block: add the block's draws (`x`,
+ * column j at x + j * stride) to the driver sums; `excess` as for
+ * fg_tally_block; `failed[s]` nonzero where sample s failed some row
+ * (fg_tally_block's scratch). No-op without driver sums. */
+void fg_tally_drivers_block(fg_tally *t, const double *x, size_t stride,
+                            const double *const *excess, const int *failed,
+                            int n);
 /* Tests: 1 makes fg_tally_block use its SSE2 / scalar violation masks
  * even where AVX-512F exists, 0 lets it choose again. */
 void fg_tally_force_portable(int on);

@@ -34,6 +34,7 @@
 fg_status fg_tally_init(fg_tally *t, int nrows) {
   memset(t, 0, sizeof *t);
   t->nrows = nrows;
+  t->fail_keep = FG_FAILING_SCENARIOS;
   t->rows = calloc(nrows > 0 ? (size_t)nrows : 1, sizeof *t->rows);
   if (!t->rows) return FG_ENOMEM;
   t->bad_draw_first = FG_INDEX_NONE;
@@ -48,6 +49,8 @@ fg_status fg_tally_init(fg_tally *t, int nrows) {
 }
 
 void fg_tally_free(fg_tally *t) {
+  free(t->drv);
+  t->drv = NULL;
   if (!t->rows) return;
   for (int r = 0; r < t->nrows; r++) fg_hist_free(&t->rows[r].hist);
   free(t->rows);
@@ -69,6 +72,51 @@ void fg_tally_reset(fg_tally *t) {
     rt->pair_both = rt->pair_one = 0;
     rt->excess_sum = 0;
     fg_hist_reset(&rt->hist);
+  }
+  if (t->drv)
+    memset(t->drv, 0,
+           sizeof *t->drv * (size_t)t->drv_dims * (size_t)(t->nrows + 3));
+}
+
+fg_status fg_tally_drivers_init(fg_tally *t, int dims, const double *centre) {
+  free(t->drv);
+  t->drv = NULL;
+  t->drv_dims = 0;
+  t->drv_centre = centre;
+  if (dims <= 0) return FG_OK;
+  t->drv = calloc((size_t)dims * (size_t)(t->nrows + 3), sizeof *t->drv);
+  if (!t->drv) return FG_ENOMEM;
+  t->drv_dims = dims;
+  return FG_OK;
+}
+
+void fg_tally_drivers_block(fg_tally *t, const double *x, size_t stride,
+                            const double *const *excess, const int *failed,
+                            int n) {
+  if (!t->drv || n <= 0) return;
+  int D = t->drv_dims, R = t->nrows;
+  double d[FG_BLOCK], w[FG_BLOCK];
+  for (int j = 0; j < D; j++) {
+    const double *xj = x + (size_t)j * stride;
+    double c = t->drv_centre[j], s1 = 0, s2 = 0;
+    for (int s = 0; s < n; s++) {
+      d[s] = xj[s] - c;
+      s1 += d[s];
+      s2 += d[s] * d[s];
+    }
+    t->drv[j] += s1;
+    t->drv[D + j] += s2;
+    for (int r = 0; r <= R; r++) {
+      double acc = 0;
+      if (r < R) {
+        const double *e = excess[r];
+        for (int s = 0; s < n; s++) w[s] = e[s] <= 0 ? 0.0 : 1.0;
+      } else {
+        for (int s = 0; s < n; s++) w[s] = failed[s] ? 1.0 : 0.0;
+      }
+      for (int s = 0; s < n; s++) acc += w[s] * d[s];
+      t->drv[(size_t)(2 + r) * (size_t)D + (size_t)j] += acc;
+    }
   }
 }
 
@@ -92,7 +140,11 @@ void fg_tally_merge(fg_tally *dst, const fg_tally *src) {
     d->excess_sum += s->excess_sum;
     fg_hist_merge(&d->hist, &s->hist);
   }
-  for (int i = 0; i < src->nfail && dst->nfail < FG_FAILING_SCENARIOS; i++)
+  if (dst->drv && src->drv && dst->drv_dims == src->drv_dims) {
+    size_t m = (size_t)dst->drv_dims * (size_t)(dst->nrows + 3);
+    for (size_t i = 0; i < m; i++) dst->drv[i] += src->drv[i];
+  }
+  for (int i = 0; i < src->nfail && dst->nfail < dst->fail_keep; i++)
     dst->fail[dst->nfail++] = src->fail[i];
   dst->bad_draws += src->bad_draws;
   if (src->bad_draw_first < dst->bad_draw_first ||
@@ -336,9 +388,9 @@ void fg_tally_block(fg_tally *t, const double *const *excess, int n,
   /* the caller's view: scratch[s] is 0 exactly where sample s held */
   for (int s = 0; s < n; s++)
     scratch[s] = (int)((any[s >> 6] >> (s & 63)) & 1);
-  for (int w = 0; w < MASK_WORDS && t->nfail < FG_FAILING_SCENARIOS; w++) {
+  for (int w = 0; w < MASK_WORDS && t->nfail < t->fail_keep; w++) {
     for (uint64_t bits = any[w];
-         bits && t->nfail < FG_FAILING_SCENARIOS; bits &= bits - 1) {
+         bits && t->nfail < t->fail_keep; bits &= bits - 1) {
       int s = 64 * w + __builtin_ctzll(bits);
       fg_fail_record *f = &t->fail[t->nfail++];
       f->index = first + (uint64_t)s;

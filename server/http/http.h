@@ -95,6 +95,14 @@ int fg_serve_command(int argc, char **argv);
  * 1 store or system fault, 3 usage, unknown or duplicate name. */
 int fg_keys_command(int argc, char **argv);
 
+/* `feasgate explain MODEL.json REQUEST.json --index I` (argv[0] =
+ * "explain"; explain.c): 0 printed, 3 usage or invalid input. */
+int fg_explain_command(int argc, char **argv);
+
+/* `feasgate replay --store STORE ID` (argv[0] = "replay"; replay.c): 0
+ * every count reproduced, 1 not, 3 usage or input faults. */
+int fg_replay_command(int argc, char **argv);
+
 /* `feasgate check --server URL [--key KEY] MODEL_NAME REQUEST.json`
  * (argv[0] = "check"; remote.c): the check run by a daemon, the result
  * printed; 0 pass, 1 fail, 2 inconclusive, 3 anything else. */

@@ -264,6 +264,13 @@ fg_status fg_http_load_model(fg_server *srv, const char *name, int version,
 /* ---- checks.c ---- */
 void fg_h_checks_create(fg_req *r, fg_resp *out);
 void fg_h_check_get(fg_req *r, fg_resp *out);
+/* explain.c: GET /v1/checks/{id}/scenarios/{index} */
+void fg_h_check_scenario(fg_req *r, fg_resp *out);
+/* replay.c: POST /v1/checks/{id}/replay */
+void fg_h_check_replay(fg_req *r, fg_resp *out);
+/* The differing counts of two check result bodies (replay.c): an array
+ * of {"field", "original", "replay"}; empty when every count agrees. */
+cJSON *fg_replay_differences(const cJSON *orig, const cJSON *rep);
 void fg_h_checks_list(fg_req *r, fg_resp *out);
 void fg_h_check_cancel(fg_req *r, fg_resp *out);
 /* A new time-sortable id: `prefix` ("chk_", "cmp_") + 26 base32
@@ -306,6 +313,12 @@ typedef struct fg_job fg_job;
 fg_status fg_job_start(fg_server *srv, const fg_store_version *v, fg_model *m,
                        const fg_check_request *req, const char *key,
                        const char *comparison, fg_job **out, fg_problem *p);
+/* The same for a replay of check `replay_of` (replay.c): its row and
+ * result body carry replay_of. */
+fg_status fg_job_start_replay(fg_server *srv, const fg_store_version *v,
+                              fg_model *m, const fg_check_request *req,
+                              const char *key, const char *replay_of,
+                              fg_job **out, fg_problem *p);
 fg_job *fg_job_ref(fg_job *j);
 void fg_job_unref(fg_job *j);
 const char *fg_job_id(const fg_job *j);

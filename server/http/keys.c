@@ -95,6 +95,8 @@ static const policy_entry policy[] = {
     {"POST", "/v1/models/{name}/comparisons", FG_ROLE_CHECKER},
     {"DELETE", "/v1/checks/{id}", FG_ROLE_CHECKER},
     {"GET", "/v1/comparisons/{id}", FG_ROLE_READER},
+    {"GET", "/v1/checks/{id}/scenarios/{index}", FG_ROLE_READER},
+    {"POST", "/v1/checks/{id}/replay", FG_ROLE_CHECKER},
     {"DELETE", "/v1/comparisons/{id}", FG_ROLE_CHECKER},
     {"POST", "/v1/models", FG_ROLE_AUTHOR},
     {"DELETE", "/v1/models/{name}", FG_ROLE_AUTHOR},

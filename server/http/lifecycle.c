@@ -93,9 +93,11 @@ static void add_number_or_null(cJSON *o, const char *name, double v) {
 
 static fg_status record_running(fg_store *store, const fg_store_version *v,
                                 const fg_model *m, const fg_check_request *req,
-                                const char *key, fg_store_check *rec,
-                                fg_problem *p) {
+                                const char *key, const char *replay_of,
+                                fg_store_check *rec, fg_problem *p) {
   memset(rec, 0, sizeof *rec);
+  snprintf(rec->replay_of, sizeof rec->replay_of, "%s",
+           replay_of ? replay_of : "");
   fg_http_check_id(rec->id);
   snprintf(rec->model, sizeof rec->model, "%s", v->name);
   rec->version = v->version;
@@ -132,9 +134,11 @@ static void record_unstarted(fg_store *store, const fg_store_check *rec) {
   fg_metrics_check_ended(fin.status, NULL, NAN, NAN); /* never ran */
 }
 
-fg_status fg_job_start(fg_server *srv, const fg_store_version *v, fg_model *m,
-                       const fg_check_request *req, const char *key,
-                       const char *comparison, fg_job **out, fg_problem *p) {
+static fg_status job_start(fg_server *srv, const fg_store_version *v,
+                           fg_model *m, const fg_check_request *req,
+                           const char *key, const char *comparison,
+                           const char *replay_of, fg_job **out,
+                           fg_problem *p) {
   *out = NULL;
   fg_job *j = calloc(1, sizeof *j);
   if (!j) return fg_problem_set(p, FG_ENOMEM, "out of memory starting a check");
@@ -145,7 +149,8 @@ fg_status fg_job_start(fg_server *srv, const fg_store_version *v, fg_model *m,
   j->srv = srv;
   snprintf(j->comparison, sizeof j->comparison, "%s",
            comparison ? comparison : "");
-  fg_status st = record_running(srv->store, v, m, req, key, &j->rec, p);
+  fg_status st =
+      record_running(srv->store, v, m, req, key, replay_of, &j->rec, p);
   free(j->rec.request);
   j->rec.request = NULL;
   if (st != FG_OK) {
@@ -170,6 +175,19 @@ fg_status fg_job_start(fg_server *srv, const fg_store_version *v, fg_model *m,
   }
   *out = j;
   return FG_OK;
+}
+
+fg_status fg_job_start(fg_server *srv, const fg_store_version *v, fg_model *m,
+                       const fg_check_request *req, const char *key,
+                       const char *comparison, fg_job **out, fg_problem *p) {
+  return job_start(srv, v, m, req, key, comparison, NULL, out, p);
+}
+
+fg_status fg_job_start_replay(fg_server *srv, const fg_store_version *v,
+                              fg_model *m, const fg_check_request *req,
+                              const char *key, const char *replay_of,
+                              fg_job **out, fg_problem *p) {
+  return job_start(srv, v, m, req, key, NULL, replay_of, out, p);
 }
 
 /* ---- reading ---- */
@@ -248,7 +266,8 @@ static cJSON *live_body(fg_job *j) {
                         .model_version = j->rec.version,
                         .created_at = j->rec.created_at,
                         .finished_at = ended_at[0] ? ended_at : NULL,
-                        .key = j->rec.key[0] ? j->rec.key : NULL};
+                        .key = j->rec.key[0] ? j->rec.key : NULL,
+                        .replay_of = j->rec.replay_of};
   return fg_check_result_json(j->check, &meta);
 }
 
@@ -382,7 +401,8 @@ fg_status fg_job_record_end(fg_job *j, fg_problem *p) {
                         .model_version = j->rec.version,
                         .created_at = j->rec.created_at,
                         .finished_at = finished,
-                        .key = j->rec.key[0] ? j->rec.key : NULL};
+                        .key = j->rec.key[0] ? j->rec.key : NULL,
+                        .replay_of = j->rec.replay_of};
   cJSON *res = fg_check_result_json(j->check, &meta);
   char *text = res ? cJSON_PrintUnformatted(res) : NULL;
   cJSON_Delete(res);

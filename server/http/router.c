@@ -39,6 +39,8 @@ static const fg_route_entry routes[] = {
     {"DELETE", "/v1/comparisons/{id}", fg_h_comparison_cancel},
     {"GET", "/v1/checks", fg_h_checks_list},
     {"GET", "/v1/checks/{id}", fg_h_check_get},
+    {"GET", "/v1/checks/{id}/scenarios/{index}", fg_h_check_scenario},
+    {"POST", "/v1/checks/{id}/replay", fg_h_check_replay},
     {"DELETE", "/v1/checks/{id}", fg_h_check_cancel},
     {"GET", "/v1/checks/{id}/request", fg_h_check_request},
     {"GET", "/v1/health", fg_h_health},

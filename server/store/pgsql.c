@@ -137,6 +137,8 @@ static const char *const schema_sql =
     "  owner TEXT NOT NULL DEFAULT '',"
     "  cancel_requested BOOLEAN NOT NULL DEFAULT false,"
     "  FOREIGN KEY (model, version) REFERENCES versions(name, version));"
+    "ALTER TABLE checks ADD COLUMN IF NOT EXISTS replay_of TEXT NOT NULL"
+    "  DEFAULT '';"
     "CREATE INDEX IF NOT EXISTS checks_by_time ON checks(created_at, id);"
     "CREATE INDEX IF NOT EXISTS checks_by_model ON checks(model, created_at);"
     "CREATE INDEX IF NOT EXISTS checks_by_status ON checks(status);"
@@ -202,7 +204,8 @@ enum stmt_id {
 
 #define CHECK_COLUMNS                                                          \
   "id, model, version, digest, status, verdict, seed, created_at,"             \
-  " finished_at, elapsed_ms, label, key, probability, lower, upper"
+  " finished_at, elapsed_ms, label, key, probability, lower, upper,"        \
+  " replay_of"
 
 static const struct {
   const char *sql;
@@ -237,10 +240,10 @@ static const struct {
     [ST_CHECK_INSERT] =
         {"INSERT INTO checks(id, model, version, digest, status, verdict, seed,"
          " created_at, finished_at, elapsed_ms, label, key, probability, lower,"
-         " upper, request, result, owner) VALUES ($1, $2, $3::int, $4, $5, $6,"
-         " $7::bigint, $8, $9, $10::float8, $11, $12, $13::float8,"
-         " $14::float8, $15::float8, $16, $17, $18)",
-         18},
+         " upper, request, result, owner, replay_of) VALUES ($1, $2, $3::int,"
+         " $4, $5, $6, $7::bigint, $8, $9, $10::float8, $11, $12, $13::float8,"
+         " $14::float8, $15::float8, $16, $17, $18, $19)",
+         19},
     [ST_CHECK_FINISH] =
         {"UPDATE checks SET status = $2, verdict = $3, finished_at = $4,"
          " elapsed_ms = $5::float8, probability = $6::float8,"
@@ -351,12 +354,12 @@ struct pg_store {
 
 /* ---- parameters ---- */
 
-/* Up to 18 parameters of one statement, as text (bytea as binary). */
+/* Up to 20 parameters of one statement, as text (bytea as binary). */
 typedef struct params {
   int n;
-  const char *v[18];
-  int len[18], fmt[18];
-  char num[18][40]; /* formatted numbers */
+  const char *v[20];
+  int len[20], fmt[20];
+  char num[20][40]; /* formatted numbers */
 } params;
 
 static void par_text(params *q, const char *v) {
@@ -953,6 +956,7 @@ static void read_check_row(const PGresult *r, int row, fg_store_check *out) {
   out->probability = real_cell(r, row, 12);
   out->lower = real_cell(r, row, 13);
   out->upper = real_cell(r, row, 14);
+  copy_cell(out->replay_of, sizeof out->replay_of, r, row, 15);
 }
 
 static fg_status pg_put_check(void *b, const fg_store_check *c, fg_problem *p) {
@@ -979,6 +983,7 @@ static fg_status pg_put_check(void *b, const fg_store_check *c, fg_problem *p) {
   par_text(&q, c->request ? c->request : "{}");
   par_text(&q, c->result);
   par_text(&q, s->store->upkeep_started ? s->store->instance : "");
+  par_text(&q, c->replay_of);
   res = write_alone(s, ST_CHECK_INSERT, &q, "recording check", NULL, c->id, p);
   return leave(s, res);
 }
@@ -1020,9 +1025,9 @@ static fg_status pg_get_check(void *b, const char *id, fg_store_check *out,
     res = fg_problem_set(p, FG_ENOTFOUND, "no check with id '%s'", id);
   } else {
     read_check_row(r, 0, out);
-    out->request = dup_cell(r, 0, 15);
-    out->result = dup_cell(r, 0, 16);
-    if (!out->request || (!PQgetisnull(r, 0, 16) && !out->result)) {
+    out->request = dup_cell(r, 0, 16);
+    out->result = dup_cell(r, 0, 17);
+    if (!out->request || (!PQgetisnull(r, 0, 17) && !out->result)) {
       fg_store_check_clear(out);
       res = fg_problem_set(p, FG_ENOMEM, "store: out of memory reading %s", id);
     }

@@ -29,7 +29,9 @@
  *             PK (name, version))
  *   checks   (id PK, (model, version) -> versions, digest, status, verdict,
  *             seed, request, result, created_at, finished_at, elapsed_ms,
- *             label, key, probability, lower, upper)
+ *             label, key, probability, lower, upper, replay_of = the id
+ *             of the check it replays or ''; a file made before that
+ *             column is given it with ALTER TABLE at open, old rows '')
  *   keys     (name PK, role, salt BLOB, hash BLOB = SHA-256(salt || key),
  *             created_at, revoked_at '' while live)
  *   comparisons (id PK, (model, version) -> versions, digest, status,
@@ -114,6 +116,7 @@ static const char *const schema_sql =
     "  probability REAL,"
     "  lower REAL,"
     "  upper REAL,"
+    "  replay_of TEXT NOT NULL DEFAULT '',"
     "  FOREIGN KEY (model, version) REFERENCES versions(name, version));"
     "CREATE INDEX IF NOT EXISTS checks_by_time ON checks(created_at, id);"
     "CREATE INDEX IF NOT EXISTS checks_by_model ON checks(model, created_at);"
@@ -170,7 +173,8 @@ enum stmt_id {
 
 #define CHECK_COLUMNS                                                          \
   "id, model, version, digest, status, verdict, seed, created_at,"             \
-  " finished_at, elapsed_ms, label, key, probability, lower, upper"
+  " finished_at, elapsed_ms, label, key, probability, lower, upper,"        \
+  " replay_of"
 
 static const char *const stmt_sql[ST_COUNT] = {
     [ST_BEGIN] = "BEGIN IMMEDIATE",
@@ -201,8 +205,8 @@ static const char *const stmt_sql[ST_COUNT] = {
     [ST_CHECK_INSERT] =
         "INSERT INTO checks(id, model, version, digest, status, verdict, seed,"
         " created_at, finished_at, elapsed_ms, label, key, probability, lower,"
-        " upper, request, result) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9,"
-        " ?10, ?11, ?12, ?13, ?14, ?15, ?16, ?17)",
+        " upper, request, result, replay_of) VALUES (?1, ?2, ?3, ?4, ?5, ?6,"
+        " ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16, ?17, ?18)",
     [ST_CHECK_FINISH] =
         "UPDATE checks SET status = ?2, verdict = ?3, finished_at = ?4,"
         " elapsed_ms = ?5, probability = ?6, lower = ?7, upper = ?8,"
@@ -404,6 +408,25 @@ static fg_status setup_schema(sq_store *s, fg_problem *p) {
   }
   rc = sqlite3_exec(s->db, "BEGIN IMMEDIATE", NULL, NULL, &err);
   if (rc == SQLITE_OK) rc = sqlite3_exec(s->db, schema_sql, NULL, NULL, &err);
+  if (rc == SQLITE_OK) {
+    /* A file made before checks.replay_of existed: add the column (every
+     * old row gets '', "not a replay"). */
+    sqlite3_stmt *q = NULL;
+    bool has = false;
+    int qrc = sqlite3_prepare_v2(s->db,
+                                 "SELECT count(*) FROM pragma_table_info("
+                                 "'checks') WHERE name = 'replay_of'",
+                                 -1, &q, NULL);
+    if (qrc == SQLITE_OK && sqlite3_step(q) == SQLITE_ROW)
+      has = sqlite3_column_int(q, 0) > 0;
+    sqlite3_finalize(q);
+    if (qrc != SQLITE_OK) rc = qrc;
+    else if (!has)
+      rc = sqlite3_exec(s->db,
+                        "ALTER TABLE checks ADD COLUMN replay_of TEXT NOT "
+                        "NULL DEFAULT ''",
+                        NULL, NULL, &err);
+  }
   if (rc != SQLITE_OK) {
     fg_problem_set(p, rc == SQLITE_BUSY ? FG_EBUSY : FG_EIO,
                    "store %s: creating the schema: %s", s->path,
@@ -704,7 +727,7 @@ static fg_status sq_retire_model(void *b, const char *name, fg_problem *p) {
 
 /* ---- checks ---- */
 
-/* Columns CHECK_COLUMNS (0..14) into *out. */
+/* Columns CHECK_COLUMNS (0..15) into *out. */
 static void read_check_row(sqlite3_stmt *st, fg_store_check *out) {
   memset(out, 0, sizeof *out);
   copy_text(out->id, sizeof out->id, st, 0);
@@ -722,6 +745,7 @@ static void read_check_row(sqlite3_stmt *st, fg_store_check *out) {
   out->probability = column_real(st, 12);
   out->lower = column_real(st, 13);
   out->upper = column_real(st, 14);
+  copy_text(out->replay_of, sizeof out->replay_of, st, 15);
 }
 
 /* Run one write statement (already bound) in its own transaction. When
@@ -768,6 +792,7 @@ static fg_status sq_put_check(void *b, const fg_store_check *c, fg_problem *p) {
   bind_real(st, 15, c->upper);
   bind_text(st, 16, c->request ? c->request : "{}");
   bind_text(st, 17, c->result);
+  bind_text(st, 18, c->replay_of);
   fg_status res = write_one(s, st, "recording check", c->id, false, p);
   pthread_mutex_unlock(&s->lock);
   return res;
@@ -803,10 +828,10 @@ static fg_status sq_get_check(void *b, const char *id, fg_store_check *out,
   int rc = sqlite3_step(st);
   if (rc == SQLITE_ROW) {
     read_check_row(st, out);
-    out->request = dup_text(st, 15);
-    out->result = dup_text(st, 16);
+    out->request = dup_text(st, 16);
+    out->result = dup_text(st, 17);
     if (!out->request ||
-        (sqlite3_column_type(st, 16) != SQLITE_NULL && !out->result)) {
+        (sqlite3_column_type(st, 17) != SQLITE_NULL && !out->result)) {
       fg_store_check_clear(out);
       res = fg_problem_set(p, FG_ENOMEM, "store: out of memory reading %s", id);
     }

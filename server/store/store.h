@@ -98,6 +98,7 @@ typedef struct fg_store_check {
   char label[FG_LABEL_MAX + 1];
   char key[FG_NAME_MAX + 1];
   double probability, lower, upper; /* NAN while unknown */
+  char replay_of[40]; /* the check this one replays; "" when none */
   char *request;                    /* JSON text */
   char *result; /* JSON text of the result body; may be NULL */
 } fg_store_check;

@@ -214,6 +214,8 @@ def test_matrix(d, store, keys):
         ("POST", "/v1/models/%s/comparisons" % name, pair, "checker"),
         ("DELETE", "/v1/checks/%s" % ended, None, "checker"),
         ("GET", "/v1/comparisons/%s" % cmp_ended, None, "reader"),
+        ("GET", "/v1/checks/%s/scenarios/0" % ended, None, "reader"),
+        ("POST", "/v1/checks/%s/replay" % ended, {}, "checker"),
         ("DELETE", "/v1/comparisons/%s" % cmp_ended, None, "checker"),
         ("POST", "/v1/models", model_doc(name), "author"),
         ("DELETE", "/v1/models/retire-me", None, "author"),
@@ -222,7 +224,7 @@ def test_matrix(d, store, keys):
     # least role its x-feasgate-role names.
     with open(os.path.join(ROOT, "schemas", "openapi.json")) as f:
         spec = json.load(f)
-    subs = {"{name}": name, "{n}": "1", "{id}": ended}
+    subs = {"{name}": name, "{n}": "1", "{id}": ended, "{index}": "0"}
     documented = {}
     for template, ops in spec["paths"].items():
         concrete = template

@@ -34,6 +34,7 @@ SCHEMA_FILES = [
     "check-list.schema.json", "comparison-request.schema.json",
     "comparison-result.schema.json", "scenarios.schema.json",
     "sample-size.schema.json", "health.schema.json", "limits.schema.json",
+    "explained-scenario.schema.json", "replay-result.schema.json",
 ]
 
 passed = 0
@@ -442,8 +443,10 @@ CHECK_RESULT_INVALID = [
     ("row without excess", changed(CHECK_DONE, "/constraints/0/excess", REMOVE)),
     ("excess without p95", changed(CHECK_DONE, "/constraints/0/excess/p95", REMOVE)),
     ("bad row name", changed(CHECK_DONE, "/constraints/0/name", "no stockout")),
-    ("six failing scenarios", changed(CHECK_DONE, "/failing_scenarios",
-                                      [{"index": i, "violated": ["crew_load"]} for i in range(6)])),
+    ("101 failing scenarios", changed(CHECK_DONE, "/failing_scenarios",
+                                      [{"index": i, "violated": ["crew_load"]} for i in range(101)])),
+    ("drivers not a list", changed(CHECK_DONE, "/constraints/0/drivers", 1.5)),
+    ("negative slack", changed(CHECK_DONE, "/constraints/0/slack_to_target", -0.5)),
     ("failing scenario without rows", changed(CHECK_DONE, "/failing_scenarios",
                                               [{"index": 3, "violated": []}])),
     ("objective as text", changed(CHECK_DONE, "/objective", "4386.5")),
@@ -595,6 +598,36 @@ SCENARIOS_INVALID = [
     ("text cell", {"columns": ["x"], "rows": [["1"]], "seed": 7, "stream": "design", "start": 0}),
 ]
 
+EXPLAINED_VALID = [
+    ("a failing scenario", {"check": "chk_01M8VET64AF0E7EPWMFKVX9T6T", "index": 3,
+                            "seed": 42, "stream": "validation", "sampling": "monte_carlo",
+                            "inputs": {"dur": [3.4, 2.5, 5.1], "extra": 1.06},
+                            "definitions": {"total": 12.1},
+                            "rows": [{"name": "fits", "excess": 1.12, "holds": False},
+                                     {"name": "each[2]", "excess": None, "holds": False}],
+                            "holds": False}),
+]
+EXPLAINED_INVALID = [
+    ("design stream", {"index": 0, "seed": 1, "stream": "design", "sampling": "monte_carlo",
+                       "inputs": {}, "definitions": {}, "rows": [], "holds": True}),
+    ("sobol", {"index": 0, "seed": 1, "stream": "validation", "sampling": "sobol",
+               "inputs": {}, "definitions": {}, "rows": [], "holds": True}),
+    ("row without holds", {"index": 0, "seed": 1, "stream": "validation",
+                           "sampling": "monte_carlo", "inputs": {}, "definitions": {},
+                           "rows": [{"name": "a", "excess": 1}], "holds": False}),
+]
+REPLAY_VALID = [
+    ("reproduced", {"check": "chk_A", "replay": "chk_B", "reproduced": True,
+                    "differences": []}),
+    ("running", {"check": "chk_A", "replay": "chk_B", "reproduced": None,
+                 "differences": []}),
+]
+REPLAY_INVALID = [
+    ("no reproduced", {"check": "chk_A", "replay": "chk_B", "differences": []}),
+    ("difference without field", {"check": "chk_A", "replay": None, "reproduced": False,
+                                  "differences": [{"original": 1, "replay": 2}]}),
+]
+
 SAMPLE_SIZE_VALID = [
     ("half-width", {"half_width": 0.002, "confidence": 0.95, "samples": 240092,
                     "method": "normal_approximation"}),
@@ -633,6 +666,8 @@ SAMPLES = [
     ("comparison-request.schema.json", COMPARISON_REQUEST_VALID, COMPARISON_REQUEST_INVALID),
     ("comparison-result.schema.json", COMPARISON_RESULT_VALID, COMPARISON_RESULT_INVALID),
     ("scenarios.schema.json", SCENARIOS_VALID, SCENARIOS_INVALID),
+    ("explained-scenario.schema.json", EXPLAINED_VALID, EXPLAINED_INVALID),
+    ("replay-result.schema.json", REPLAY_VALID, REPLAY_INVALID),
     ("sample-size.schema.json", SAMPLE_SIZE_VALID, SAMPLE_SIZE_INVALID),
     ("health.schema.json", HEALTH_VALID, HEALTH_INVALID),
     ("limits.schema.json", LIMITS_VALID, LIMITS_INVALID),
@@ -655,6 +690,8 @@ EXPECTED_OPERATIONS = {
     ("/v1/sample-size", "get"),
     ("/v1/health", "get"), ("/v1/ready", "get"), ("/metrics", "get"),
     ("/v1/limits", "get"), ("/v1/openapi.json", "get"),
+    ("/v1/checks/{id}/scenarios/{index}", "get"),
+    ("/v1/checks/{id}/replay", "post"),
     ("/", "get"), ("/page/app.js", "get"), ("/page/app.css", "get"),
 }
 PUBLIC = {("/v1/health", "get"), ("/v1/ready", "get"), ("/metrics", "get"),

@@ -1,0 +1,354 @@
+/*
+ * http/replay.c -- re-running a logged check for audit, over HTTP and
+ * offline.
+ *
+ *   POST /v1/checks/{id}/replay       (role: checker)
+ *   feasgate replay --store STORE ID
+ *
+ * A replay runs the stored request (decision, samples, seed, sampling,
+ * ...) on the stored model version as a new check, logged like any other
+ * with replay_of = the original's id (store column and result member),
+ * and compares the two checks' counts. Answer:
+ *   {"check": ORIGINAL, "replay": NEW_ID, "reproduced": true|false|null,
+ *    "differences": [{"field": "/joint/satisfied", "original": x,
+ *                     "replay": y}, ...], "result": the replay's body}
+ * 201 + Location of the replay when it ended within the server's max_wait;
+ * else 202 with "reproduced": null, the replay running (its own GET shows
+ * it; compare again by replaying once it is done).
+ *
+ * What is compared (replay_differences): status, verdict, joint samples
+ * and satisfied, and for every constraint row by name violated,
+ * sole_cause and nonfinite, and the failing scenarios' indices. Counts do
+ * not depend on the number of workers or the chunk size (engine.h), so a
+ * replay on another daemon or worker count reproduces them exactly;
+ * floating-point sums (mean excess) may differ in the last bits with the
+ * chunk size and are not compared. reproduced is true when no count
+ * differs.
+ *
+ * Errors: unknown check 404; a check still running, or one that ended
+ * without counts (interrupted, failed before it started), 409. The stored
+ * request is read with the hard caps, not this server's (it was accepted
+ * once).
+ *
+ * The offline command opens the store, runs the replay on a private pool
+ * with as many workers as processors, prints the same answer (without a
+ * new id: the offline replay is not logged) and exits 0 when reproduced,
+ * 1 when not, 3 on usage or input faults.
+ *
+ * Thread use: handlers on connection threads; the replay runs on the
+ * pool like any check, and the handler waits for it without any lock.
+ */
+#include "http/http_internal.h"
+
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <unistd.h>
+
+/* ---- comparing two result bodies ---- */
+
+static void add_diff(cJSON *diffs, const char *field, const cJSON *a,
+                     const cJSON *b) {
+  cJSON *d = cJSON_CreateObject();
+  cJSON_AddStringToObject(d, "field", field);
+  cJSON_AddItemToObject(d, "original",
+                        a ? cJSON_Duplicate(a, true) : cJSON_CreateNull());
+  cJSON_AddItemToObject(d, "replay",
+                        b ? cJSON_Duplicate(b, true) : cJSON_CreateNull());
+  cJSON_AddItemToArray(diffs, d);
+}
+
+static void compare_item(cJSON *diffs, const char *field, const cJSON *a,
+                         const cJSON *b) {
+  if (!cJSON_Compare(a, b, true)) add_diff(diffs, field, a, b);
+}
+
+static const cJSON *member(const cJSON *o, const char *name) {
+  return cJSON_GetObjectItemCaseSensitive(o, name);
+}
+
+static const cJSON *row_named(const cJSON *rows, const char *name) {
+  const cJSON *r;
+  cJSON_ArrayForEach(r, rows) {
+    const char *n = cJSON_GetStringValue(member(r, "name"));
+    if (n && strcmp(n, name) == 0) return r;
+  }
+  return NULL;
+}
+
+/* The failing scenarios' indices as an array (owned by the caller). */
+static cJSON *failing_indices(const cJSON *body) {
+  cJSON *a = cJSON_CreateArray();
+  const cJSON *f;
+  cJSON_ArrayForEach(f, member(body, "failing_scenarios"))
+    cJSON_AddItemToArray(a, cJSON_Duplicate(member(f, "index"), true));
+  return a;
+}
+
+cJSON *fg_replay_differences(const cJSON *orig, const cJSON *rep) {
+  cJSON *diffs = cJSON_CreateArray();
+  if (!diffs) return NULL;
+  compare_item(diffs, "/status", member(orig, "status"), member(rep, "status"));
+  compare_item(diffs, "/verdict", member(orig, "verdict"),
+               member(rep, "verdict"));
+  const cJSON *ja = member(orig, "joint"), *jb = member(rep, "joint");
+  compare_item(diffs, "/joint/samples", member(ja, "samples"),
+               member(jb, "samples"));
+  compare_item(diffs, "/joint/satisfied", member(ja, "satisfied"),
+               member(jb, "satisfied"));
+  static const char *const counts[] = {"violated", "sole_cause", "nonfinite"};
+  const cJSON *ra = member(orig, "constraints"), *rb = member(rep, "constraints");
+  const cJSON *r;
+  cJSON_ArrayForEach(r, ra) {
+    const char *name = cJSON_GetStringValue(member(r, "name"));
+    if (!name) continue;
+    const cJSON *o = row_named(rb, name);
+    for (size_t i = 0; i < sizeof counts / sizeof *counts; i++) {
+      char field[FG_NAME_MAX + 96];
+      snprintf(field, sizeof field, "/constraints/%s/%s", name, counts[i]);
+      compare_item(diffs, field, member(r, counts[i]),
+                   o ? member(o, counts[i]) : NULL);
+    }
+  }
+  cJSON_ArrayForEach(r, rb) { /* rows only the replay has */
+    const char *name = cJSON_GetStringValue(member(r, "name"));
+    if (name && !row_named(ra, name)) {
+      char field[FG_NAME_MAX + 96];
+      snprintf(field, sizeof field, "/constraints/%s/violated", name);
+      add_diff(diffs, field, NULL, member(r, "violated"));
+    }
+  }
+  cJSON *fa = failing_indices(orig), *fb = failing_indices(rep);
+  compare_item(diffs, "/failing_scenarios", fa, fb);
+  cJSON_Delete(fa);
+  cJSON_Delete(fb);
+  return diffs;
+}
+
+/* Limits for re-reading a request that was accepted once: the hard caps. */
+static void replay_limits(fg_request_limits *lim) {
+  fg_request_limits_default(lim);
+  lim->max_samples = FG_MAX_SAMPLES_HARD;
+  lim->max_scenarios = FG_HTTP_MAX_SCENARIOS_HARD;
+  lim->max_wait_s = 1e9;
+}
+
+/* The stored check's counts must exist: it ended with a result body. */
+static bool has_counts(const fg_store_check *c, fg_problem *p) {
+  fg_check_state s = fg_check_state_parse(c->status);
+  if (s == FG_CHECK_RUNNING) {
+    fg_problem_set(p, FG_ECONFLICT,
+                   "check %s is still running; replay it once it has ended",
+                   c->id);
+    return false;
+  }
+  if (!c->result || s == FG_CHECK_INTERRUPTED) {
+    fg_problem_set(p, FG_ECONFLICT,
+                   "check %s ended %s without counts to compare a replay "
+                   "with",
+                   c->id, c->status);
+    return false;
+  }
+  return true;
+}
+
+static cJSON *answer(const char *orig_id, const char *replay_id,
+                     const cJSON *orig_body, cJSON *rep_body, bool ended) {
+  cJSON *o = cJSON_CreateObject();
+  cJSON_AddStringToObject(o, "check", orig_id);
+  if (replay_id) cJSON_AddStringToObject(o, "replay", replay_id);
+  else cJSON_AddNullToObject(o, "replay");
+  if (ended) {
+    cJSON *d = fg_replay_differences(orig_body, rep_body);
+    cJSON_AddBoolToObject(o, "reproduced", cJSON_GetArraySize(d) == 0);
+    cJSON_AddItemToObject(o, "differences", d);
+  } else {
+    cJSON_AddNullToObject(o, "reproduced");
+    cJSON_AddItemToObject(o, "differences", cJSON_CreateArray());
+  }
+  if (rep_body) cJSON_AddItemToObject(o, "result", rep_body);
+  return o;
+}
+
+void fg_h_check_replay(fg_req *r, fg_resp *out) {
+  fg_server *srv = r->srv;
+  const char *id = r->params[0];
+  fg_problem p;
+  fg_problem_init(&p);
+  fg_store_check c;
+  if (fg_store_get_check(srv->store, id, &c, &p) != FG_OK) {
+    fg_resp_problem(out, &p, 0);
+    return;
+  }
+  fg_store_version v;
+  memset(&v, 0, sizeof v);
+  fg_model *m = NULL;
+  cJSON *body = NULL, *orig = NULL;
+  fg_check_request req;
+  bool have_req = false;
+  fg_job *job = NULL;
+  if (!has_counts(&c, &p)) goto fail;
+  orig = cJSON_Parse(c.result);
+  if (!orig) {
+    fg_problem_set(&p, FG_EINTERNAL, "check %s: its stored result is not "
+                                     "JSON",
+                   id);
+    goto fail;
+  }
+  if (fg_http_load_model(srv, c.model, c.version, &v, &m, &p) != FG_OK)
+    goto fail;
+  if (fg_json_parse(c.request, strlen(c.request), &body, &p) != FG_OK)
+    goto fail;
+  fg_request_limits lim;
+  replay_limits(&lim);
+  if (fg_request_parse(m, body, &lim, &req, &p) != FG_OK) goto fail;
+  have_req = true;
+  req.seed = c.seed;
+  req.seed_given = true;
+  req.max_seconds = srv->cfg.max_check_s;
+  if (fg_pool_queued(srv->pool) >= srv->cfg.queue) {
+    fg_problem_set(&p, FG_EBUSY,
+                   "the check queue is full (%d checks waiting or running); "
+                   "try again shortly",
+                   srv->cfg.queue);
+    goto fail;
+  }
+  if (fg_job_start_replay(srv, &v, m, &req, r->key_name, c.id, &job, &p) !=
+      FG_OK)
+    goto fail;
+  snprintf(out->location, sizeof out->location, "/v1/checks/%s",
+           fg_job_id(job));
+  if (fg_job_wait(job, srv->cfg.limits.max_wait_s)) {
+    fg_problem sp;
+    fg_problem_init(&sp);
+    if (fg_job_record_end(job, &sp) != FG_OK) {
+      out->location[0] = '\0';
+      fg_resp_problem(out, &sp, 0);
+      goto done;
+    }
+    fg_resp_json(out, 201,
+                 answer(c.id, fg_job_id(job), orig, fg_job_body(job), true));
+  } else {
+    fg_job_detach(job);
+    fg_resp_json(out, 202,
+                 answer(c.id, fg_job_id(job), orig, fg_job_body(job), false));
+  }
+  goto done;
+fail:
+  fg_resp_problem(out, &p, 0);
+done:
+  fg_job_unref(job);
+  if (have_req) fg_request_free(&req);
+  cJSON_Delete(body);
+  cJSON_Delete(orig);
+  if (m) fg_model_unref(m);
+  fg_store_version_clear(&v);
+  fg_store_check_clear(&c);
+}
+
+/* ---- feasgate replay ---- */
+
+static void print_problem(const char *what, const fg_problem *p) {
+  fprintf(stderr, "feasgate replay: %s: %s%s%s\n", what, p->title,
+          p->detail[0] ? ": " : "", p->detail);
+  for (int i = 0; i < p->nitems; i++)
+    fprintf(stderr, "  %s: %s\n",
+            p->items[i].pointer[0] ? p->items[i].pointer : "(body)",
+            p->items[i].message);
+}
+
+int fg_replay_command(int argc, char **argv) {
+  const char *url = getenv("FEASGATE_STORE"), *id = NULL;
+  for (int i = 1; i < argc; i++) {
+    if (strcmp(argv[i], "--help") == 0) {
+      printf("usage: feasgate replay --store STORE CHECK_ID\n"
+             "Re-runs a logged check's request on its model version and "
+             "prints whether\nevery count is reproduced (exit 0) or not "
+             "(exit 1).\n");
+      return 0;
+    }
+    if (strcmp(argv[i], "--store") == 0 && i + 1 < argc) url = argv[++i];
+    else if (!id && argv[i][0] != '-') id = argv[i];
+    else id = NULL, url = NULL, i = argc;
+  }
+  if (!url || !id) {
+    fprintf(stderr,
+            "usage: feasgate replay --store STORE CHECK_ID\n"
+            "Re-runs a logged check's request on its model version and "
+            "prints whether\nevery count is reproduced (exit 0) or not "
+            "(exit 1).\n");
+    return 3;
+  }
+  fg_problem p;
+  fg_problem_init(&p);
+  fg_store *st = NULL;
+  if (fg_store_open(url, &st, &p) != FG_OK) {
+    char shown[4200];
+    fg_store_url_display(url, shown, sizeof shown);
+    print_problem(shown, &p);
+    return 3;
+  }
+  int rc = 3;
+  fg_store_check c;
+  memset(&c, 0, sizeof c);
+  fg_store_version v;
+  memset(&v, 0, sizeof v);
+  fg_model *m = NULL;
+  cJSON *body = NULL, *orig = NULL;
+  fg_check_request req;
+  bool have_req = false;
+  fg_check *chk = NULL;
+  if (fg_store_get_check(st, id, &c, &p) != FG_OK || !has_counts(&c, &p) ||
+      !(orig = cJSON_Parse(c.result))) {
+    if (!p.status) fg_problem_set(&p, FG_EINTERNAL, "unreadable result");
+    print_problem(id, &p);
+    goto out;
+  }
+  if (fg_store_get_version(st, c.model, c.version, &v, &p) != FG_OK ||
+      fg_model_compile(v.document, strlen(v.document), &m, &p) != FG_OK ||
+      fg_json_parse(c.request, strlen(c.request), &body, &p) != FG_OK) {
+    print_problem(id, &p);
+    goto out;
+  }
+  fg_request_limits lim;
+  replay_limits(&lim);
+  if (fg_request_parse(m, body, &lim, &req, &p) != FG_OK) {
+    print_problem(id, &p);
+    goto out;
+  }
+  have_req = true;
+  req.seed = c.seed;
+  req.seed_given = true;
+  long ncpu = sysconf(_SC_NPROCESSORS_ONLN);
+  int workers = ncpu < 1 ? 1 : ncpu > FG_WORKERS_MAX ? FG_WORKERS_MAX
+                                                     : (int)ncpu;
+  if (fg_check_run_sync(m, &req, workers, FG_CHUNK_DEFAULT, &chk, &p) !=
+      FG_OK) {
+    print_problem(id, &p);
+    goto out;
+  }
+  char now[32];
+  fg_time_now_rfc3339(now, sizeof now);
+  fg_check_meta meta = {.model_version = c.version,
+                        .created_at = now,
+                        .finished_at = now,
+                        .replay_of = c.id};
+  cJSON *res = answer(c.id, NULL, orig, fg_check_result_json(chk, &meta),
+                      true);
+  char *s = cJSON_Print(res);
+  if (s) puts(s);
+  free(s);
+  rc = cJSON_IsTrue(cJSON_GetObjectItem(res, "reproduced")) ? 0 : 1;
+  cJSON_Delete(res);
+out:
+  fg_check_unref(chk);
+  if (have_req) fg_request_free(&req);
+  cJSON_Delete(body);
+  cJSON_Delete(orig);
+  if (m) fg_model_unref(m);
+  fg_store_version_clear(&v);
+  fg_store_check_clear(&c);
+  fg_store_close(st);
+  return rc;
+}
