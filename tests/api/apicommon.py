@@ -29,6 +29,7 @@ import signal
 import subprocess
 import sys
 import threading
+import time
 from pathlib import Path
 
 ROOT = Path(__file__).resolve().parents[2]
@@ -287,3 +288,26 @@ def is_problem(status, headers, body, code=None):
                 "application/problem+json")
             and isinstance(body, dict) and body.get("status") == status
             and all(k in body for k in ("type", "title", "detail")))
+
+
+def wait_until(pred, seconds, step=0.2):
+    """Polls pred() every `step` seconds for up to `seconds`; its last
+    value."""
+    end = time.time() + seconds
+    while time.time() < end:
+        if pred():
+            return True
+        time.sleep(step)
+    return pred()
+
+
+def psql(sql, db="postgres"):
+    """Runs one statement on the PostgreSQL test server (FG_TEST_PG_HOST,
+    _PORT, _USER: tests/pg/cluster.sh); its output, unaligned."""
+    env = dict(os.environ, PGOPTIONS="-c client_min_messages=warning")
+    out = subprocess.run(["psql", "-q", "-At", "-v", "ON_ERROR_STOP=1", "-h",
+                          os.environ["FG_TEST_PG_HOST"], "-p",
+                          os.environ["FG_TEST_PG_PORT"], "-U",
+                          os.environ["FG_TEST_PG_USER"], "-d", db, "-c", sql],
+                         check=True, env=env, capture_output=True, text=True)
+    return out.stdout.strip()

@@ -36,7 +36,7 @@ import tempfile
 import time
 from pathlib import Path
 
-from apicommon import BIN, ROOT, Daemon, Endpoint, Results
+from apicommon import BIN, ROOT, Daemon, Endpoint, Results, psql, wait_until
 
 R = Results()
 NGINX = shutil.which("nginx") or "/usr/sbin/nginx"
@@ -52,16 +52,6 @@ MODEL = {
     "constraints": [{"name": "cover", "require": "draw <= stock"}],
 }
 
-
-def psql(sql, db="postgres"):
-    """Run one statement on the test server; its output, unaligned."""
-    env = dict(os.environ, PGOPTIONS="-c client_min_messages=warning")
-    out = subprocess.run(["psql", "-q", "-At", "-v", "ON_ERROR_STOP=1", "-h",
-                          os.environ["FG_TEST_PG_HOST"], "-p",
-                          os.environ["FG_TEST_PG_PORT"], "-U",
-                          os.environ["FG_TEST_PG_USER"], "-d", db, "-c", sql],
-                         check=True, env=env, capture_output=True, text=True)
-    return out.stdout.strip()
 
 
 def free_port():
@@ -104,14 +94,6 @@ http {{
     (workdir / "nginx.conf").write_text(main)
     return workdir / "nginx.conf"
 
-
-def wait_until(pred, seconds, step=0.2):
-    end = time.time() + seconds
-    while time.time() < end:
-        if pred():
-            return True
-        time.sleep(step)
-    return pred()
 
 
 def owner_pid(db, check_id):

@@ -97,18 +97,18 @@ def test_validate():
                         p.stdout), "validate names %s and its digest" % name)
     check('"rows":7' in p.stdout, "validate prints the summary")
     bad = write("bad.model.json", {
-        "format": 1, "name": "dock-doors", "decisions": [{"name": "doors"}],
-        "uncertain": [{"name": "trucks", "distribution":
+        "format": 1, "name": "water-points", "decisions": [{"name": "taps"}],
+        "uncertain": [{"name": "queue_share", "distribution":
                        {"family": "beta", "a": 0.01, "b": 2}}],
-        "constraints": [{"name": "c", "require": "trucks <= doors"}]})
+        "constraints": [{"name": "c", "require": "queue_share <= taps"}]})
     p = run("validate", bad)
     check(p.returncode == 3 and "/uncertain/0/distribution/a" in p.stderr,
           "an invalid model exits 3 with its pointer (%d: %s)"
           % (p.returncode, p.stderr.strip()))
     old = write("old.model.json", {
-        "format": 1, "name": "dock-doors", "decisions": [{"name": "doors"}],
+        "format": 1, "name": "water-points", "decisions": [{"name": "taps"}],
         "uncertain": [], "constraints": [{"name": "c",
-                                          "require": "pos(doors) <= 3"}]})
+                                          "require": "pos(taps) <= 3"}]})
     p = run("validate", old)
     check(p.returncode == 3 and "unknown function 'pos'" in p.stderr
           and "/constraints/0/require" in p.stderr,

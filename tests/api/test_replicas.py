@@ -33,7 +33,7 @@ import subprocess
 import sys
 import time
 
-from apicommon import BIN, Daemon, Results
+from apicommon import BIN, Daemon, Results, psql, wait_until
 
 R = Results()
 
@@ -47,16 +47,6 @@ MODEL = {
 }
 
 
-def psql(sql, db="postgres"):
-    """Run one statement on the test server; its output, unaligned."""
-    env = dict(os.environ, PGOPTIONS="-c client_min_messages=warning")
-    out = subprocess.run(["psql", "-q", "-At", "-v", "ON_ERROR_STOP=1", "-h",
-                          os.environ["FG_TEST_PG_HOST"], "-p",
-                          os.environ["FG_TEST_PG_PORT"], "-U",
-                          os.environ["FG_TEST_PG_USER"], "-d", db, "-c", sql],
-                         check=True, env=env, capture_output=True, text=True)
-    return out.stdout.strip()
-
 
 def start_detached(d, samples, seed, headers):
     """A check answered at once (wait_s 0): (status, id)."""
@@ -66,14 +56,6 @@ def start_detached(d, samples, seed, headers):
                             headers=headers)
     return st, body.get("id") if isinstance(body, dict) else None
 
-
-def wait_until(pred, seconds, step=0.2):
-    end = time.time() + seconds
-    while time.time() < end:
-        if pred():
-            return True
-        time.sleep(step)
-    return pred()
 
 
 def main():
