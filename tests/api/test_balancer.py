@@ -36,7 +36,7 @@ import tempfile
 import time
 from pathlib import Path
 
-from apicommon import BIN, ROOT, Daemon, Endpoint, Results, psql, wait_until
+from apicommon import ROOT, Daemon, Endpoint, Results, psql, wait_until
 
 R = Results()
 NGINX = shutil.which("nginx") or "/usr/sbin/nginx"
