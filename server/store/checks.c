@@ -1,0 +1,262 @@
+/*
+ * store/checks.c -- checks and comparisons: record, finish, read, list,
+ * progress notes.
+ *
+ * Rules
+ *   - A check is recorded when accepted (status running) and finished
+ *     once; finishing an unknown id is FG_ENOTFOUND. Seeds are kept as
+ *     signed 64-bit integers by both databases, so a larger one is refused.
+ *   - On a shared store every check and comparison records its owner, the
+ *     instance of the daemon running it ("" before the daemon registered,
+ *     e.g. a tool that only opened the store), so a replica's sweep and
+ *     cancel requests can find them (replicas.c).
+ *   - A progress note replaces the result body only while the check is
+ *     running, so a late note never hides the final record.
+ *   - Paging: newest first by (created_at, id); the cursor `after` is the
+ *     id of the last item seen, an unknown one FG_EINVAL. One row more
+ *     than a page is read to tell whether more remain; then *next is the
+ *     page's last id.
+ *   - A comparison is one row beside its candidates' checks (each a check
+ *     of its own); finishing keeps its list of check ids.
+ *
+ * Thread use: any thread (db.h).
+ */
+#include "store/db.h"
+
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+/* Columns CHECK_COLUMNS (sql.c, 0..15) into *out. */
+static void read_check_row(fg_conn *c, fg_store_check *out) {
+  memset(out, 0, sizeof *out);
+  fg_db_copy(c, 0, out->id, sizeof out->id);
+  fg_db_copy(c, 1, out->model, sizeof out->model);
+  out->version = (int)fg_db_int(c, 2);
+  fg_db_copy(c, 3, out->digest, sizeof out->digest);
+  fg_db_copy(c, 4, out->status, sizeof out->status);
+  fg_db_copy(c, 5, out->verdict, sizeof out->verdict);
+  out->seed = (uint64_t)fg_db_int(c, 6);
+  fg_db_copy(c, 7, out->created_at, sizeof out->created_at);
+  fg_db_copy(c, 8, out->finished_at, sizeof out->finished_at);
+  out->elapsed_ms = fg_db_real(c, 9);
+  fg_db_copy(c, 10, out->label, sizeof out->label);
+  fg_db_copy(c, 11, out->key, sizeof out->key);
+  out->probability = fg_db_real(c, 12);
+  out->lower = fg_db_real(c, 13);
+  out->upper = fg_db_real(c, 14);
+  fg_db_copy(c, 15, out->replay_of, sizeof out->replay_of);
+}
+
+/* One write alone on a connection of its own. */
+static fg_status write_alone(fg_store *s, fg_sql id, const fg_arg *a, int n,
+                             const char *what, const char *missing,
+                             const char *key, fg_problem *p) {
+  fg_conn *c;
+  fg_status res = fg_db_enter(s, &c, p);
+  if (res != FG_OK) return res;
+  res = fg_db_write_alone(s, c, id, a, n, what, missing, key, p);
+  fg_db_leave(c);
+  return res;
+}
+
+fg_status fg_store_put_check(fg_store *s, const fg_store_check *c,
+                             fg_problem *p) {
+  if (c->seed > (uint64_t)INT64_MAX)
+    return fg_problem_set(p, FG_EINVAL, "store: seed %llu out of range",
+                          (unsigned long long)c->seed);
+  char owner[33];
+  fg_arg a[] = {fg_text(c->id),
+                fg_text(c->model),
+                fg_int(c->version),
+                fg_text(c->digest),
+                fg_text(c->status[0] ? c->status : "running"),
+                fg_text(c->verdict),
+                fg_int((long long)c->seed),
+                fg_text(c->created_at),
+                fg_text(c->finished_at),
+                fg_real(c->elapsed_ms),
+                fg_text(c->label),
+                fg_text(c->key),
+                fg_real(c->probability),
+                fg_real(c->lower),
+                fg_real(c->upper),
+                fg_text(c->request ? c->request : "{}"),
+                fg_text(c->result),
+                fg_text(c->replay_of),
+                fg_text(fg_replica_owner(s, owner))};
+  const bool shared = s->b->shared;
+  return write_alone(s, shared ? SQL_CHECK_INSERT_OWNED : SQL_CHECK_INSERT, a,
+                     shared ? 19 : 18, "recording check", NULL, c->id, p);
+}
+
+fg_status fg_store_finish_check(fg_store *s, const fg_store_check *c,
+                                fg_problem *p) {
+  fg_arg a[] = {fg_text(c->id),         fg_text(c->status),
+                fg_text(c->verdict),    fg_text(c->finished_at),
+                fg_real(c->elapsed_ms), fg_real(c->probability),
+                fg_real(c->lower),      fg_real(c->upper),
+                fg_text(c->result)};
+  return write_alone(s, SQL_CHECK_FINISH, FG_ARGS(a), "finishing check",
+                     "no check with id '%s'", c->id, p);
+}
+
+fg_status fg_store_note_progress(fg_store *s, const char *id, const char *body,
+                                 fg_problem *p) {
+  fg_arg a[] = {fg_text(id), fg_text(body)};
+  return write_alone(s, SQL_CHECK_PROGRESS, FG_ARGS(a),
+                     "noting progress of check", NULL, id, p);
+}
+
+fg_status fg_store_get_check(fg_store *s, const char *id, fg_store_check *out,
+                             fg_problem *p) {
+  memset(out, 0, sizeof *out);
+  fg_conn *c;
+  fg_status res = fg_db_enter(s, &c, p);
+  if (res != FG_OK) return res;
+  fg_arg a[] = {fg_text(id)};
+  bool row = false;
+  res = fg_db_first(c, SQL_CHECK_GET, FG_ARGS(a), "reading a check", &row, p);
+  if (res == FG_OK && !row) {
+    res = fg_problem_set(p, FG_ENOTFOUND, "no check with id '%s'", id);
+  } else if (res == FG_OK) {
+    read_check_row(c, out);
+    out->request = fg_db_dup(c, 16);
+    out->result = fg_db_dup(c, 17);
+    if (!out->request || fg_db_dup_failed(c, 17, out->result)) {
+      fg_store_check_clear(out);
+      res = fg_problem_set(p, FG_ENOMEM, "store: out of memory reading %s", id);
+    }
+  }
+  fg_db_done(c);
+  fg_db_leave(c);
+  return res;
+}
+
+/* The created_at of the cursor's check into `time`. */
+static fg_status read_cursor(fg_conn *c, const char *after, char time[32],
+                             fg_problem *p) {
+  fg_arg a[] = {fg_text(after)};
+  bool row = false;
+  fg_status res = fg_db_first(c, SQL_CHECK_CURSOR, FG_ARGS(a),
+                              "reading the list cursor", &row, p);
+  if (res == FG_OK && !row)
+    res = fg_problem_set(p, FG_EINVAL, "cursor '%s' names no check", after);
+  else if (res == FG_OK)
+    fg_db_copy(c, 0, time, 32);
+  fg_db_done(c);
+  return res;
+}
+
+fg_status fg_store_list_checks(fg_store *s, const fg_check_filter *f,
+                               fg_store_check **out, int *n, char next[40],
+                               fg_problem *p) {
+  *out = NULL;
+  *n = 0;
+  next[0] = '\0';
+  int limit = f->limit;
+  if (limit <= 0) limit = FG_LIST_LIMIT_DEFAULT;
+  if (limit > FG_LIST_LIMIT_MAX) limit = FG_LIST_LIMIT_MAX;
+  fg_store_check *arr = calloc((size_t)limit + 1, sizeof *arr);
+  if (!arr) return fg_problem_set(p, FG_ENOMEM, "store: out of memory");
+  fg_conn *c;
+  fg_status res = fg_db_enter(s, &c, p);
+  if (res != FG_OK) {
+    free(arr);
+    return res;
+  }
+  char cursor_time[32] = "";
+  if (f->after && f->after[0]) res = read_cursor(c, f->after, cursor_time, p);
+  int count = 0;
+  if (res == FG_OK) {
+    fg_arg a[] = {fg_filter(f->model), fg_filter(f->verdict),
+                  fg_filter(f->since), fg_filter(f->label),
+                  fg_filter(cursor_time), fg_filter(f->after),
+                  fg_int(limit + 1), /* one more tells if more remain */
+                  fg_filter(f->key)};
+    bool row = false;
+    res = fg_db_first(c, SQL_CHECKS_LIST, FG_ARGS(a), "listing checks", &row,
+                      p);
+    while (res == FG_OK && row && count <= limit) {
+      read_check_row(c, &arr[count++]);
+      res = fg_db_next(c, &row, p);
+    }
+    fg_db_done(c);
+  }
+  fg_db_leave(c);
+  if (res != FG_OK) {
+    fg_store_checks_free(arr, count);
+    return res;
+  }
+  if (count > limit) {
+    fg_store_check_clear(&arr[limit]);
+    count = limit;
+    snprintf(next, 40, "%s", arr[limit - 1].id);
+  }
+  *out = arr;
+  *n = count;
+  return FG_OK;
+}
+
+/* ---- comparisons ---- */
+
+fg_status fg_store_put_comparison(fg_store *s, const fg_store_comparison *c,
+                                  fg_problem *p) {
+  char owner[33];
+  fg_arg a[] = {fg_text(c->id),
+                fg_text(c->model),
+                fg_int(c->version),
+                fg_text(c->digest),
+                fg_text(c->status[0] ? c->status : "running"),
+                fg_text(c->created_at),
+                fg_text(c->finished_at),
+                fg_text(c->key),
+                fg_text(c->checks ? c->checks : "[]"),
+                fg_text(c->result),
+                fg_text(fg_replica_owner(s, owner))};
+  const bool shared = s->b->shared;
+  return write_alone(s, shared ? SQL_CMP_INSERT_OWNED : SQL_CMP_INSERT, a,
+                     shared ? 11 : 10, "recording comparison", NULL, c->id, p);
+}
+
+fg_status fg_store_finish_comparison(fg_store *s,
+                                     const fg_store_comparison *c,
+                                     fg_problem *p) {
+  fg_arg a[] = {fg_text(c->id), fg_text(c->status), fg_text(c->finished_at),
+                fg_text(c->result)};
+  return write_alone(s, SQL_CMP_FINISH, FG_ARGS(a), "finishing comparison",
+                     "no comparison with id '%s'", c->id, p);
+}
+
+fg_status fg_store_get_comparison(fg_store *s, const char *id,
+                                  fg_store_comparison *out, fg_problem *p) {
+  memset(out, 0, sizeof *out);
+  fg_conn *c;
+  fg_status res = fg_db_enter(s, &c, p);
+  if (res != FG_OK) return res;
+  fg_arg a[] = {fg_text(id)};
+  bool row = false;
+  res = fg_db_first(c, SQL_CMP_GET, FG_ARGS(a), "reading a comparison", &row,
+                    p);
+  if (res == FG_OK && !row) {
+    res = fg_problem_set(p, FG_ENOTFOUND, "no comparison with id '%s'", id);
+  } else if (res == FG_OK) {
+    fg_db_copy(c, 0, out->id, sizeof out->id);
+    fg_db_copy(c, 1, out->model, sizeof out->model);
+    out->version = (int)fg_db_int(c, 2);
+    fg_db_copy(c, 3, out->digest, sizeof out->digest);
+    fg_db_copy(c, 4, out->status, sizeof out->status);
+    fg_db_copy(c, 5, out->created_at, sizeof out->created_at);
+    fg_db_copy(c, 6, out->finished_at, sizeof out->finished_at);
+    fg_db_copy(c, 7, out->key, sizeof out->key);
+    out->checks = fg_db_dup(c, 8);
+    out->result = fg_db_dup(c, 9);
+    if (!out->checks || fg_db_dup_failed(c, 9, out->result)) {
+      fg_store_comparison_clear(out);
+      res = fg_problem_set(p, FG_ENOMEM, "store: out of memory reading %s", id);
+    }
+  }
+  fg_db_done(c);
+  fg_db_leave(c);
+  return res;
+}
