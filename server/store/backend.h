@@ -164,6 +164,15 @@ typedef struct fg_backend {
   fg_status (*claim)(void *db, fg_problem *p);
 } fg_backend;
 
+/* The members of a backend's table that a backend file fills with static
+ * functions of the same names (sqlite.c, pgsql.c), so each table lists
+ * only what sets it apart. */
+#define FG_BACKEND_FUNCTIONS                                                   \
+  .acquire = acquire, .release = release, .begin = begin, .commit = commit,    \
+  .rollback = rollback, .exec = exec, .query = query, .next = next,            \
+  .done = done, .text = text, .integer = integer, .real = real,                \
+  .bytes = bytes, .script = script, .scalar = scalar
+
 extern const fg_backend fg_store_sqlite_backend;
 extern const fg_backend fg_store_pgsql_backend;
 

@@ -108,44 +108,28 @@ fg_status fg_store_note_progress(fg_store *s, const char *id, const char *body,
                      "noting progress of check", NULL, id, p);
 }
 
+/* A row of SQL_CHECK_GET: the listed columns, request and result. */
+static bool read_check_full(fg_conn *c, void *out) {
+  fg_store_check *k = out;
+  read_check_row(c, k);
+  k->request = fg_db_dup(c, 16);
+  k->result = fg_db_dup(c, 17);
+  if (k->request && !fg_db_dup_failed(c, 17, k->result)) return true;
+  fg_store_check_clear(k);
+  return false;
+}
+
 fg_status fg_store_get_check(fg_store *s, const char *id, fg_store_check *out,
                              fg_problem *p) {
   memset(out, 0, sizeof *out);
-  fg_conn *c;
-  fg_status res = fg_db_enter(s, &c, p);
-  if (res != FG_OK) return res;
   fg_arg a[] = {fg_text(id)};
-  bool row = false;
-  res = fg_db_first(c, SQL_CHECK_GET, FG_ARGS(a), "reading a check", &row, p);
-  if (res == FG_OK && !row) {
-    res = fg_problem_set(p, FG_ENOTFOUND, "no check with id '%s'", id);
-  } else if (res == FG_OK) {
-    read_check_row(c, out);
-    out->request = fg_db_dup(c, 16);
-    out->result = fg_db_dup(c, 17);
-    if (!out->request || fg_db_dup_failed(c, 17, out->result)) {
-      fg_store_check_clear(out);
-      res = fg_problem_set(p, FG_ENOMEM, "store: out of memory reading %s", id);
-    }
-  }
-  fg_db_done(c);
-  fg_db_leave(c);
-  return res;
+  return fg_db_get_one(s, SQL_CHECK_GET, FG_ARGS(a), "reading a check",
+                       "no check with id '%s'", id, read_check_full, out, p);
 }
 
-/* The created_at of the cursor's check into `time`. */
-static fg_status read_cursor(fg_conn *c, const char *after, char time[32],
-                             fg_problem *p) {
-  fg_arg a[] = {fg_text(after)};
-  bool row = false;
-  fg_status res = fg_db_first(c, SQL_CHECK_CURSOR, FG_ARGS(a),
-                              "reading the list cursor", &row, p);
-  if (res == FG_OK && !row)
-    res = fg_problem_set(p, FG_EINVAL, "cursor '%s' names no check", after);
-  else if (res == FG_OK)
-    fg_db_copy(c, 0, time, 32);
-  fg_db_done(c);
-  return res;
+static int read_listed_check(fg_conn *c, void *elem) {
+  read_check_row(c, elem);
+  return 1;
 }
 
 fg_status fg_store_list_checks(fg_store *s, const fg_check_filter *f,
@@ -157,16 +141,23 @@ fg_status fg_store_list_checks(fg_store *s, const fg_check_filter *f,
   int limit = f->limit;
   if (limit <= 0) limit = FG_LIST_LIMIT_DEFAULT;
   if (limit > FG_LIST_LIMIT_MAX) limit = FG_LIST_LIMIT_MAX;
-  fg_store_check *arr = calloc((size_t)limit + 1, sizeof *arr);
-  if (!arr) return fg_problem_set(p, FG_ENOMEM, "store: out of memory");
   fg_conn *c;
   fg_status res = fg_db_enter(s, &c, p);
-  if (res != FG_OK) {
-    free(arr);
-    return res;
-  }
+  if (res != FG_OK) return res;
   char cursor_time[32] = "";
-  if (f->after && f->after[0]) res = read_cursor(c, f->after, cursor_time, p);
+  if (f->after && f->after[0]) { /* the created_at of the cursor's check */
+    fg_arg a[] = {fg_text(f->after)};
+    bool row = false;
+    res = fg_db_first(c, SQL_CHECK_CURSOR, FG_ARGS(a),
+                      "reading the list cursor", &row, p);
+    if (res == FG_OK && !row)
+      res = fg_problem_set(p, FG_EINVAL, "cursor '%s' names no check",
+                           f->after);
+    else if (res == FG_OK)
+      fg_db_copy(c, 0, cursor_time, sizeof cursor_time);
+    fg_db_done(c);
+  }
+  void *arr = NULL;
   int count = 0;
   if (res == FG_OK) {
     fg_arg a[] = {fg_filter(f->model), fg_filter(f->verdict),
@@ -174,26 +165,22 @@ fg_status fg_store_list_checks(fg_store *s, const fg_check_filter *f,
                   fg_filter(cursor_time), fg_filter(f->after),
                   fg_int(limit + 1), /* one more tells if more remain */
                   fg_filter(f->key)};
-    bool row = false;
-    res = fg_db_first(c, SQL_CHECKS_LIST, FG_ARGS(a), "listing checks", &row,
-                      p);
-    while (res == FG_OK && row && count <= limit) {
-      read_check_row(c, &arr[count++]);
-      res = fg_db_next(c, &row, p);
-    }
-    fg_db_done(c);
+    res = fg_db_rows(c, SQL_CHECKS_LIST, FG_ARGS(a), "listing checks",
+                     sizeof **out, limit + 1, read_listed_check, &arr, &count,
+                     p);
   }
   fg_db_leave(c);
+  fg_store_check *list = arr;
   if (res != FG_OK) {
-    fg_store_checks_free(arr, count);
+    fg_store_checks_free(list, count);
     return res;
   }
   if (count > limit) {
-    fg_store_check_clear(&arr[limit]);
+    fg_store_check_clear(&list[limit]);
     count = limit;
-    snprintf(next, 40, "%s", arr[limit - 1].id);
+    snprintf(next, 40, "%s", list[limit - 1].id);
   }
-  *out = arr;
+  *out = list;
   *n = count;
   return FG_OK;
 }
@@ -228,35 +215,28 @@ fg_status fg_store_finish_comparison(fg_store *s,
                      "no comparison with id '%s'", c->id, p);
 }
 
+static bool read_comparison(fg_conn *c, void *out) {
+  fg_store_comparison *k = out;
+  fg_db_copy(c, 0, k->id, sizeof k->id);
+  fg_db_copy(c, 1, k->model, sizeof k->model);
+  k->version = (int)fg_db_int(c, 2);
+  fg_db_copy(c, 3, k->digest, sizeof k->digest);
+  fg_db_copy(c, 4, k->status, sizeof k->status);
+  fg_db_copy(c, 5, k->created_at, sizeof k->created_at);
+  fg_db_copy(c, 6, k->finished_at, sizeof k->finished_at);
+  fg_db_copy(c, 7, k->key, sizeof k->key);
+  k->checks = fg_db_dup(c, 8);
+  k->result = fg_db_dup(c, 9);
+  if (k->checks && !fg_db_dup_failed(c, 9, k->result)) return true;
+  fg_store_comparison_clear(k);
+  return false;
+}
+
 fg_status fg_store_get_comparison(fg_store *s, const char *id,
                                   fg_store_comparison *out, fg_problem *p) {
   memset(out, 0, sizeof *out);
-  fg_conn *c;
-  fg_status res = fg_db_enter(s, &c, p);
-  if (res != FG_OK) return res;
   fg_arg a[] = {fg_text(id)};
-  bool row = false;
-  res = fg_db_first(c, SQL_CMP_GET, FG_ARGS(a), "reading a comparison", &row,
-                    p);
-  if (res == FG_OK && !row) {
-    res = fg_problem_set(p, FG_ENOTFOUND, "no comparison with id '%s'", id);
-  } else if (res == FG_OK) {
-    fg_db_copy(c, 0, out->id, sizeof out->id);
-    fg_db_copy(c, 1, out->model, sizeof out->model);
-    out->version = (int)fg_db_int(c, 2);
-    fg_db_copy(c, 3, out->digest, sizeof out->digest);
-    fg_db_copy(c, 4, out->status, sizeof out->status);
-    fg_db_copy(c, 5, out->created_at, sizeof out->created_at);
-    fg_db_copy(c, 6, out->finished_at, sizeof out->finished_at);
-    fg_db_copy(c, 7, out->key, sizeof out->key);
-    out->checks = fg_db_dup(c, 8);
-    out->result = fg_db_dup(c, 9);
-    if (!out->checks || fg_db_dup_failed(c, 9, out->result)) {
-      fg_store_comparison_clear(out);
-      res = fg_problem_set(p, FG_ENOMEM, "store: out of memory reading %s", id);
-    }
-  }
-  fg_db_done(c);
-  fg_db_leave(c);
-  return res;
+  return fg_db_get_one(s, SQL_CMP_GET, FG_ARGS(a), "reading a comparison",
+                       "no comparison with id '%s'", id, read_comparison, out,
+                       p);
 }

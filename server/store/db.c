@@ -100,6 +100,72 @@ void fg_db_done(fg_conn *c) {
   c->b->done(c);
 }
 
+fg_status fg_db_read_one(fg_conn *c, fg_sql id, const fg_arg *a, int n,
+                         const char *what, const char *missing,
+                         const char *key, fg_db_reader read, void *out,
+                         fg_problem *p) {
+  bool row = false;
+  fg_status res = fg_db_first(c, id, a, n, what, &row, p);
+  if (res == FG_OK && !row)
+    res = fg_problem_set(p, FG_ENOTFOUND, missing, key);
+  else if (res == FG_OK && !read(c, out))
+    res = fg_problem_set(p, FG_ENOMEM, "store: out of memory reading %s", key);
+  fg_db_done(c);
+  return res;
+}
+
+fg_status fg_db_get_one(fg_store *s, fg_sql id, const fg_arg *a, int n,
+                        const char *what, const char *missing,
+                        const char *key, fg_db_reader read, void *out,
+                        fg_problem *p) {
+  fg_conn *c;
+  fg_status res = fg_db_enter(s, &c, p);
+  if (res != FG_OK) return res;
+  res = fg_db_read_one(c, id, a, n, what, missing, key, read, out, p);
+  fg_db_leave(c);
+  return res;
+}
+
+fg_status fg_db_rows(fg_conn *c, fg_sql id, const fg_arg *a, int n,
+                     const char *what, size_t size, int max,
+                     fg_db_row_reader read, void **arr, int *count,
+                     fg_problem *p) {
+  char *out = NULL;
+  int cap = 0;
+  *count = 0;
+  bool row = false;
+  fg_status res = fg_db_first(c, id, a, n, what, &row, p);
+  while (res == FG_OK && row && (max <= 0 || *count < max)) {
+    if (*count == cap) {
+      int ncap = cap ? cap * 2 : 16;
+      if (max > 0 && ncap > max) ncap = max;
+      char *grown = realloc(out, (size_t)ncap * size);
+      if (!grown) {
+        res = fg_problem_set(p, FG_ENOMEM, "store: out of memory %s", what);
+        break;
+      }
+      out = grown;
+      cap = ncap;
+    }
+    char *elem = out + (size_t)*count * size;
+    memset(elem, 0, size);
+    int got = read(c, elem);
+    if (got != 0) ++*count;
+    if (got < 0) {
+      res = fg_problem_set(p, FG_ENOMEM, "store: out of memory %s", what);
+      break;
+    }
+    res = fg_db_next(c, &row, p);
+  }
+  fg_db_done(c);
+  if (*count == 0) {
+    free(out);
+    out = NULL;
+  }
+  *arr = out;
+  return res;
+}
+
 void fg_db_copy(fg_conn *c, int col, char *dst, size_t cap) {
   const char *t = c->b->text(c, col);
   snprintf(dst, cap, "%s", t ? t : "");

@@ -93,6 +93,31 @@ fg_status fg_db_first(fg_conn *c, fg_sql id, const fg_arg *a, int n,
 /* Ends the statement; after every query, also a failed one. */
 void fg_db_done(fg_conn *c);
 
+/* One row: `read` takes it (false when out of memory: FG_ENOMEM, naming
+ * `key`); no row is FG_ENOTFOUND with `missing` (its %s `key`).
+ * fg_db_read_one runs on a connection held, fg_db_get_one on one of its
+ * own. */
+typedef bool (*fg_db_reader)(fg_conn *c, void *out);
+fg_status fg_db_read_one(fg_conn *c, fg_sql id, const fg_arg *a, int n,
+                         const char *what, const char *missing,
+                         const char *key, fg_db_reader read, void *out,
+                         fg_problem *p);
+fg_status fg_db_get_one(fg_store *s, fg_sql id, const fg_arg *a, int n,
+                        const char *what, const char *missing,
+                        const char *key, fg_db_reader read, void *out,
+                        fg_problem *p);
+/* Every row of a query (at most `max`; 0 = no bound) into a malloc'd
+ * array of elements of `size` bytes, on a connection held. `read` fills
+ * the (zeroed) element: 1 keep it, 0 leave the row out, -1 out of memory
+ * (the element is still counted, so the caller's free function sees it).
+ * On failure *arr holds the *n elements read so far, for the caller to
+ * free; with no row kept, *arr is NULL. */
+typedef int (*fg_db_row_reader)(fg_conn *c, void *elem);
+fg_status fg_db_rows(fg_conn *c, fg_sql id, const fg_arg *a, int n,
+                     const char *what, size_t size, int max,
+                     fg_db_row_reader read, void **arr, int *count,
+                     fg_problem *p);
+
 /* ---- columns of the current row ---- */
 
 void fg_db_copy(fg_conn *c, int col, char *dst, size_t cap);

@@ -62,6 +62,17 @@ fg_status fg_store_put_key(fg_store *s, const fg_store_key *k, fg_problem *p) {
   return res;
 }
 
+/* A damaged row (salt or hash of the wrong size) is left out. */
+static int read_key(fg_conn *c, void *elem) {
+  fg_store_key *k = elem;
+  fg_db_copy(c, 0, k->name, sizeof k->name);
+  fg_db_copy(c, 1, k->role, sizeof k->role);
+  fg_db_copy(c, 4, k->created_at, sizeof k->created_at);
+  fg_db_copy(c, 5, k->revoked_at, sizeof k->revoked_at);
+  return fg_db_bytes(c, 2, k->salt, sizeof k->salt) &&
+         fg_db_bytes(c, 3, k->hash, sizeof k->hash);
+}
+
 fg_status fg_store_list_keys(fg_store *s, bool live_only, fg_store_key **out,
                              int *n, fg_problem *p) {
   *out = NULL;
@@ -69,36 +80,13 @@ fg_status fg_store_list_keys(fg_store *s, bool live_only, fg_store_key **out,
   fg_conn *c;
   fg_status res = fg_db_enter(s, &c, p);
   if (res != FG_OK) return res;
-  fg_store_key *arr = NULL;
-  int count = 0, cap = 0;
   fg_arg a[] = {fg_int(live_only ? 1 : 0)};
-  bool row = false;
-  res = fg_db_first(c, SQL_KEYS_LIST, FG_ARGS(a), "listing keys", &row, p);
-  while (res == FG_OK && row) {
-    if (count == cap) {
-      int ncap = cap ? cap * 2 : 16;
-      fg_store_key *grown = realloc(arr, (size_t)ncap * sizeof *arr);
-      if (!grown) {
-        res = fg_problem_set(p, FG_ENOMEM, "store: out of memory listing keys");
-        break;
-      }
-      arr = grown;
-      cap = ncap;
-    }
-    fg_store_key *k = &arr[count];
-    memset(k, 0, sizeof *k);
-    fg_db_copy(c, 0, k->name, sizeof k->name);
-    fg_db_copy(c, 1, k->role, sizeof k->role);
-    fg_db_copy(c, 4, k->created_at, sizeof k->created_at);
-    fg_db_copy(c, 5, k->revoked_at, sizeof k->revoked_at);
-    if (fg_db_bytes(c, 2, k->salt, sizeof k->salt) &&
-        fg_db_bytes(c, 3, k->hash, sizeof k->hash))
-      count++; /* else damaged: left out */
-    res = fg_db_next(c, &row, p);
-  }
-  fg_db_done(c);
+  void *arr = NULL;
+  int count = 0;
+  res = fg_db_rows(c, SQL_KEYS_LIST, FG_ARGS(a), "listing keys", sizeof **out,
+                   0, read_key, &arr, &count, p);
   fg_db_leave(c);
-  if (res != FG_OK || count == 0) {
+  if (res != FG_OK) {
     free(arr);
     return res;
   }

@@ -18,6 +18,7 @@
  */
 #include "store/db.h"
 
+#include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -40,25 +41,25 @@ static bool read_version_row(fg_conn *c, fg_store_version *out,
   return true;
 }
 
+static bool read_version_full(fg_conn *c, void *out) {
+  if (read_version_row(c, out, true)) return true;
+  fg_store_version_clear(out);
+  return false;
+}
+
 /* Version `version` of `name` (0 = latest) on a connection held. */
 static fg_status read_version(fg_conn *c, const char *name, int version,
                               fg_store_version *out, fg_problem *p) {
+  char missing[FG_NAME_MAX + 64];
+  if (version > 0)
+    snprintf(missing, sizeof missing, "model '%%s' has no version %d",
+             version);
+  else
+    snprintf(missing, sizeof missing, "no model named '%%s'");
   fg_arg a[] = {fg_text(name), fg_int(version)};
-  bool row = false;
-  fg_status res = fg_db_first(c, SQL_VERSION_GET, FG_ARGS(a),
-                              "reading a model version", &row, p);
-  if (res == FG_OK && !row) {
-    if (version > 0)
-      res = fg_problem_set(p, FG_ENOTFOUND, "model '%s' has no version %d",
-                           name, version);
-    else
-      res = fg_problem_set(p, FG_ENOTFOUND, "no model named '%s'", name);
-  } else if (res == FG_OK && !read_version_row(c, out, true)) {
-    fg_store_version_clear(out);
-    res = fg_problem_set(p, FG_ENOMEM, "store: out of memory reading %s", name);
-  }
-  fg_db_done(c);
-  return res;
+  return fg_db_read_one(c, SQL_VERSION_GET, FG_ARGS(a),
+                        "reading a model version", missing, name,
+                        read_version_full, out, p);
 }
 
 fg_status fg_store_put_version(fg_store *s, const char *name,
@@ -120,6 +121,10 @@ fg_status fg_store_get_version(fg_store *s, const char *name, int version,
   return res;
 }
 
+static int read_listed_version(fg_conn *c, void *elem) {
+  return read_version_row(c, elem, false) ? 1 : -1;
+}
+
 fg_status fg_store_list_models(fg_store *s, fg_store_version **out, int *n,
                                fg_problem *p) {
   *out = NULL;
@@ -127,29 +132,10 @@ fg_status fg_store_list_models(fg_store *s, fg_store_version **out, int *n,
   fg_conn *c;
   fg_status res = fg_db_enter(s, &c, p);
   if (res != FG_OK) return res;
-  fg_store_version *arr = NULL;
-  int count = 0, cap = 0;
-  bool row = false;
-  res = fg_db_first(c, SQL_MODELS_LIST, NULL, 0, "listing models", &row, p);
-  while (res == FG_OK && row) {
-    if (count == cap) {
-      int ncap = cap ? cap * 2 : 16;
-      fg_store_version *grown = realloc(arr, (size_t)ncap * sizeof *arr);
-      if (!grown) {
-        res = fg_problem_set(p, FG_ENOMEM, "store: out of memory listing "
-                                           "models");
-        break;
-      }
-      arr = grown;
-      cap = ncap;
-    }
-    if (!read_version_row(c, &arr[count++], false)) {
-      res = fg_problem_set(p, FG_ENOMEM, "store: out of memory listing models");
-      break;
-    }
-    res = fg_db_next(c, &row, p);
-  }
-  fg_db_done(c);
+  void *arr = NULL;
+  int count = 0;
+  res = fg_db_rows(c, SQL_MODELS_LIST, NULL, 0, "listing models",
+                   sizeof **out, 0, read_listed_version, &arr, &count, p);
   fg_db_leave(c);
   if (res != FG_OK) {
     fg_store_versions_free(arr, count);
