@@ -91,8 +91,13 @@ typedef enum fg_sql {
 extern const char *const fg_sql_text[SQL_COUNT];
 
 /* A statement's parameter. NULL text and NaN reals travel as SQL NULL. */
-typedef enum { FG_ARG_NULL, FG_ARG_TEXT, FG_ARG_INT, FG_ARG_REAL, FG_ARG_BYTES }
-    fg_arg_kind;
+typedef enum {
+  FG_ARG_NULL,
+  FG_ARG_TEXT,
+  FG_ARG_INT,
+  FG_ARG_REAL,
+  FG_ARG_BYTES
+} fg_arg_kind;
 typedef struct fg_arg {
   fg_arg_kind kind;
   const char *text;
@@ -105,13 +110,13 @@ typedef struct fg_arg {
 /* The words a dialect fills into the shared schema (sql.c): the text in
  * braces, e.g. {int64}, is looked up here. */
 typedef enum fg_schema_word {
-  FG_W_FLAG,          /* a boolean column that defaults to false */
-  FG_W_INT64,         /* a signed 64-bit integer */
-  FG_W_REAL,          /* a double */
-  FG_W_BYTES,         /* raw bytes */
-  FG_W_CHECK_SHARED,  /* extra columns of checks in a shared store */
-  FG_W_CMP_SHARED,    /* extra columns of comparisons in a shared store */
-  FG_W_TAIL,          /* statements after the tables (upgrades, instances) */
+  FG_W_FLAG,         /* a boolean column that defaults to false */
+  FG_W_INT64,        /* a signed 64-bit integer */
+  FG_W_REAL,         /* a double */
+  FG_W_BYTES,        /* raw bytes */
+  FG_W_CHECK_SHARED, /* extra columns of checks in a shared store */
+  FG_W_CMP_SHARED,   /* extra columns of comparisons in a shared store */
+  FG_W_TAIL,         /* statements after the tables (upgrades, instances) */
   FG_W_COUNT
 } fg_schema_word;
 
@@ -122,10 +127,10 @@ typedef struct fg_conn {
 } fg_conn;
 
 typedef struct fg_backend {
-  const char *scheme; /* "sqlite", "postgresql" */
-  bool shared;        /* several daemons may serve one store */
-  bool lone_write_atomic; /* one write statement needs no BEGIN/COMMIT */
-  int schema_version;     /* what this backend's schema_version row holds */
+  const char *scheme;       /* "sqlite", "postgresql" */
+  bool shared;              /* several daemons may serve one store */
+  bool lone_write_atomic;   /* one write statement needs no BEGIN/COMMIT */
+  int schema_version;       /* what this backend's schema_version row holds */
   const char *const *words; /* [FG_W_COUNT] */
   /* the whole URL (sqlite: "sqlite:PATH"; postgresql: read by libpq); the
    * backend makes the schema (fg_schema_setup) before it prepares */
@@ -177,7 +182,7 @@ extern const fg_backend fg_store_sqlite_backend;
 extern const fg_backend fg_store_pgsql_backend;
 
 /* The schema in the backend's dialect, made or checked on connection `c`
- * inside one transaction (schema.c): tables made when missing, upgrades,
+ * inside one transaction (sql.c): tables made when missing, upgrades,
  * schema_version inserted for a new store, raised for an older one, a
  * newer one refused. `where` names the store in problems. */
 fg_status fg_schema_setup(fg_conn *c, const char *where, fg_problem *p);

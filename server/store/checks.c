@@ -60,43 +60,50 @@ static fg_status write_alone(fg_store *s, fg_sql id, const fg_arg *a, int n,
   return res;
 }
 
+/* Records a new check or comparison alone; a shared store also records
+ * its owner, appended as the last value (`a` has room for it). */
+static fg_status put_row(fg_store *s, fg_sql plain, fg_sql owned, fg_arg *a,
+                         int n, const char *what, const char *id,
+                         fg_problem *p) {
+  if (!s->b->shared) return write_alone(s, plain, a, n, what, NULL, id, p);
+  char owner[33];
+  a[n] = fg_text(fg_replica_owner(s, owner));
+  return write_alone(s, owned, a, n + 1, what, NULL, id, p);
+}
+
 fg_status fg_store_put_check(fg_store *s, const fg_store_check *c,
                              fg_problem *p) {
   if (c->seed > (uint64_t)INT64_MAX)
     return fg_problem_set(p, FG_EINVAL, "store: seed %llu out of range",
                           (unsigned long long)c->seed);
-  char owner[33];
-  fg_arg a[] = {fg_text(c->id),
-                fg_text(c->model),
-                fg_int(c->version),
-                fg_text(c->digest),
-                fg_text(c->status[0] ? c->status : "running"),
-                fg_text(c->verdict),
-                fg_int((long long)c->seed),
-                fg_text(c->created_at),
-                fg_text(c->finished_at),
-                fg_real(c->elapsed_ms),
-                fg_text(c->label),
-                fg_text(c->key),
-                fg_real(c->probability),
-                fg_real(c->lower),
-                fg_real(c->upper),
-                fg_text(c->request ? c->request : "{}"),
-                fg_text(c->result),
-                fg_text(c->replay_of),
-                fg_text(fg_replica_owner(s, owner))};
-  const bool shared = s->b->shared;
-  return write_alone(s, shared ? SQL_CHECK_INSERT_OWNED : SQL_CHECK_INSERT, a,
-                     shared ? 19 : 18, "recording check", NULL, c->id, p);
+  fg_arg a[19] = {fg_text(c->id),
+                  fg_text(c->model),
+                  fg_int(c->version),
+                  fg_text(c->digest),
+                  fg_text(c->status[0] ? c->status : "running"),
+                  fg_text(c->verdict),
+                  fg_int((long long)c->seed),
+                  fg_text(c->created_at),
+                  fg_text(c->finished_at),
+                  fg_real(c->elapsed_ms),
+                  fg_text(c->label),
+                  fg_text(c->key),
+                  fg_real(c->probability),
+                  fg_real(c->lower),
+                  fg_real(c->upper),
+                  fg_text(c->request ? c->request : "{}"),
+                  fg_text(c->result),
+                  fg_text(c->replay_of)};
+  return put_row(s, SQL_CHECK_INSERT, SQL_CHECK_INSERT_OWNED, a, 18,
+                 "recording check", c->id, p);
 }
 
 fg_status fg_store_finish_check(fg_store *s, const fg_store_check *c,
                                 fg_problem *p) {
-  fg_arg a[] = {fg_text(c->id),         fg_text(c->status),
-                fg_text(c->verdict),    fg_text(c->finished_at),
-                fg_real(c->elapsed_ms), fg_real(c->probability),
-                fg_real(c->lower),      fg_real(c->upper),
-                fg_text(c->result)};
+  fg_arg a[] = {
+      fg_text(c->id),          fg_text(c->status),     fg_text(c->verdict),
+      fg_text(c->finished_at), fg_real(c->elapsed_ms), fg_real(c->probability),
+      fg_real(c->lower),       fg_real(c->upper),      fg_text(c->result)};
   return write_alone(s, SQL_CHECK_FINISH, FG_ARGS(a), "finishing check",
                      "no check with id '%s'", c->id, p);
 }
@@ -151,8 +158,8 @@ fg_status fg_store_list_checks(fg_store *s, const fg_check_filter *f,
     res = fg_db_first(c, SQL_CHECK_CURSOR, FG_ARGS(a),
                       "reading the list cursor", &row, p);
     if (res == FG_OK && !row)
-      res = fg_problem_set(p, FG_EINVAL, "cursor '%s' names no check",
-                           f->after);
+      res =
+          fg_problem_set(p, FG_EINVAL, "cursor '%s' names no check", f->after);
     else if (res == FG_OK)
       fg_db_copy(c, 0, cursor_time, sizeof cursor_time);
     fg_db_done(c);
@@ -160,14 +167,14 @@ fg_status fg_store_list_checks(fg_store *s, const fg_check_filter *f,
   void *arr = NULL;
   int count = 0;
   if (res == FG_OK) {
-    fg_arg a[] = {fg_filter(f->model), fg_filter(f->verdict),
-                  fg_filter(f->since), fg_filter(f->label),
+    fg_arg a[] = {fg_filter(f->model),    fg_filter(f->verdict),
+                  fg_filter(f->since),    fg_filter(f->label),
                   fg_filter(cursor_time), fg_filter(f->after),
                   fg_int(limit + 1), /* one more tells if more remain */
                   fg_filter(f->key)};
-    res = fg_db_rows(c, SQL_CHECKS_LIST, FG_ARGS(a), "listing checks",
-                     sizeof **out, limit + 1, read_listed_check, &arr, &count,
-                     p);
+    res =
+        fg_db_rows(c, SQL_CHECKS_LIST, FG_ARGS(a), "listing checks",
+                   sizeof **out, limit + 1, read_listed_check, &arr, &count, p);
   }
   fg_db_leave(c);
   fg_store_check *list = arr;
@@ -189,25 +196,21 @@ fg_status fg_store_list_checks(fg_store *s, const fg_check_filter *f,
 
 fg_status fg_store_put_comparison(fg_store *s, const fg_store_comparison *c,
                                   fg_problem *p) {
-  char owner[33];
-  fg_arg a[] = {fg_text(c->id),
-                fg_text(c->model),
-                fg_int(c->version),
-                fg_text(c->digest),
-                fg_text(c->status[0] ? c->status : "running"),
-                fg_text(c->created_at),
-                fg_text(c->finished_at),
-                fg_text(c->key),
-                fg_text(c->checks ? c->checks : "[]"),
-                fg_text(c->result),
-                fg_text(fg_replica_owner(s, owner))};
-  const bool shared = s->b->shared;
-  return write_alone(s, shared ? SQL_CMP_INSERT_OWNED : SQL_CMP_INSERT, a,
-                     shared ? 11 : 10, "recording comparison", NULL, c->id, p);
+  fg_arg a[11] = {fg_text(c->id),
+                  fg_text(c->model),
+                  fg_int(c->version),
+                  fg_text(c->digest),
+                  fg_text(c->status[0] ? c->status : "running"),
+                  fg_text(c->created_at),
+                  fg_text(c->finished_at),
+                  fg_text(c->key),
+                  fg_text(c->checks ? c->checks : "[]"),
+                  fg_text(c->result)};
+  return put_row(s, SQL_CMP_INSERT, SQL_CMP_INSERT_OWNED, a, 10,
+                 "recording comparison", c->id, p);
 }
 
-fg_status fg_store_finish_comparison(fg_store *s,
-                                     const fg_store_comparison *c,
+fg_status fg_store_finish_comparison(fg_store *s, const fg_store_comparison *c,
                                      fg_problem *p) {
   fg_arg a[] = {fg_text(c->id), fg_text(c->status), fg_text(c->finished_at),
                 fg_text(c->result)};

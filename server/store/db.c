@@ -64,10 +64,9 @@ fg_status fg_db_write(fg_store *s, fg_conn *c, fg_sql id, const fg_arg *a,
   return c->b->exec(c, id, a, n, what, changed, p);
 }
 
-fg_status fg_db_write_alone(fg_store *s, fg_conn *c, fg_sql id,
-                            const fg_arg *a, int n, const char *what,
-                            const char *missing, const char *key,
-                            fg_problem *p) {
+fg_status fg_db_write_alone(fg_store *s, fg_conn *c, fg_sql id, const fg_arg *a,
+                            int n, const char *what, const char *missing,
+                            const char *key, fg_problem *p) {
   const bool wrap = !c->b->lone_write_atomic;
   fg_status res = wrap ? c->b->begin(c, what, p) : FG_OK;
   if (res != FG_OK) return res;
@@ -101,9 +100,8 @@ void fg_db_done(fg_conn *c) {
 }
 
 fg_status fg_db_read_one(fg_conn *c, fg_sql id, const fg_arg *a, int n,
-                         const char *what, const char *missing,
-                         const char *key, fg_db_reader read, void *out,
-                         fg_problem *p) {
+                         const char *what, const char *missing, const char *key,
+                         fg_db_reader read, void *out, fg_problem *p) {
   bool row = false;
   fg_status res = fg_db_first(c, id, a, n, what, &row, p);
   if (res == FG_OK && !row)
@@ -115,9 +113,8 @@ fg_status fg_db_read_one(fg_conn *c, fg_sql id, const fg_arg *a, int n,
 }
 
 fg_status fg_db_get_one(fg_store *s, fg_sql id, const fg_arg *a, int n,
-                        const char *what, const char *missing,
-                        const char *key, fg_db_reader read, void *out,
-                        fg_problem *p) {
+                        const char *what, const char *missing, const char *key,
+                        fg_db_reader read, void *out, fg_problem *p) {
   fg_conn *c;
   fg_status res = fg_db_enter(s, &c, p);
   if (res != FG_OK) return res;

@@ -27,7 +27,7 @@ struct fg_store {
   const fg_backend *b;
   void *db;
   pthread_mutex_t lock; /* fail_countdown and the upkeep fields */
-  int fail_countdown; /* test seam: > 0 = writes until an injected fault */
+  int fail_countdown;   /* test seam: > 0 = writes until an injected fault */
   /* replicas.c: this daemon's instance on a shared store */
   char instance[33]; /* random hex id */
   pthread_t upkeep;
@@ -79,10 +79,9 @@ fg_status fg_db_write(fg_store *s, fg_conn *c, fg_sql id, const fg_arg *a,
 /* One write statement as its own transaction. When `missing` is set, no
  * row changed is FG_ENOTFOUND with `missing` as the message (its %s
  * `key`). */
-fg_status fg_db_write_alone(fg_store *s, fg_conn *c, fg_sql id,
-                            const fg_arg *a, int n, const char *what,
-                            const char *missing, const char *key,
-                            fg_problem *p);
+fg_status fg_db_write_alone(fg_store *s, fg_conn *c, fg_sql id, const fg_arg *a,
+                            int n, const char *what, const char *missing,
+                            const char *key, fg_problem *p);
 fg_status fg_db_query(fg_conn *c, fg_sql id, const fg_arg *a, int n,
                       const char *what, fg_problem *p);
 /* *row set when one more row came (its columns then readable) */
@@ -99,13 +98,11 @@ void fg_db_done(fg_conn *c);
  * own. */
 typedef bool (*fg_db_reader)(fg_conn *c, void *out);
 fg_status fg_db_read_one(fg_conn *c, fg_sql id, const fg_arg *a, int n,
-                         const char *what, const char *missing,
-                         const char *key, fg_db_reader read, void *out,
-                         fg_problem *p);
+                         const char *what, const char *missing, const char *key,
+                         fg_db_reader read, void *out, fg_problem *p);
 fg_status fg_db_get_one(fg_store *s, fg_sql id, const fg_arg *a, int n,
-                        const char *what, const char *missing,
-                        const char *key, fg_db_reader read, void *out,
-                        fg_problem *p);
+                        const char *what, const char *missing, const char *key,
+                        fg_db_reader read, void *out, fg_problem *p);
 /* Every row of a query (at most `max`; 0 = no bound) into a malloc'd
  * array of elements of `size` bytes, on a connection held. `read` fills
  * the (zeroed) element: 1 keep it, 0 leave the row out, -1 out of memory

@@ -26,8 +26,8 @@
 static fg_status key_exists(fg_conn *c, const char *name, bool *exists,
                             fg_problem *p) {
   fg_arg a[] = {fg_text(name)};
-  fg_status res = fg_db_first(c, SQL_KEY_EXISTS, FG_ARGS(a),
-                              "looking up a key", exists, p);
+  fg_status res =
+      fg_db_first(c, SQL_KEY_EXISTS, FG_ARGS(a), "looking up a key", exists, p);
   fg_db_done(c);
   return res;
 }

@@ -52,8 +52,7 @@ static fg_status read_version(fg_conn *c, const char *name, int version,
                               fg_store_version *out, fg_problem *p) {
   char missing[FG_NAME_MAX + 64];
   if (version > 0)
-    snprintf(missing, sizeof missing, "model '%%s' has no version %d",
-             version);
+    snprintf(missing, sizeof missing, "model '%%s' has no version %d", version);
   else
     snprintf(missing, sizeof missing, "no model named '%%s'");
   fg_arg a[] = {fg_text(name), fg_int(version)};
@@ -134,8 +133,8 @@ fg_status fg_store_list_models(fg_store *s, fg_store_version **out, int *n,
   if (res != FG_OK) return res;
   void *arr = NULL;
   int count = 0;
-  res = fg_db_rows(c, SQL_MODELS_LIST, NULL, 0, "listing models",
-                   sizeof **out, 0, read_listed_version, &arr, &count, p);
+  res = fg_db_rows(c, SQL_MODELS_LIST, NULL, 0, "listing models", sizeof **out,
+                   0, read_listed_version, &arr, &count, p);
   fg_db_leave(c);
   if (res != FG_OK) {
     fg_store_versions_free(arr, count);

@@ -300,8 +300,8 @@ static fg_status exec(fg_conn *c, fg_sql id, const fg_arg *a, int n,
                       const char *what, long *changed, fg_problem *p) {
   pg_conn *s = (pg_conn *)c;
   PGresult *r = run(s, id, a, n);
-  fg_status st = PQresultStatus(r) == PGRES_COMMAND_OK ? FG_OK
-                                                       : fault(s, p, what, r);
+  fg_status st =
+      PQresultStatus(r) == PGRES_COMMAND_OK ? FG_OK : fault(s, p, what, r);
   if (st == FG_OK && changed) *changed = atol(PQcmdTuples(r));
   PQclear(r);
   return st;
@@ -373,8 +373,8 @@ static fg_status scalar(fg_conn *c, const char *sql, long long *out,
   pg_conn *s = (pg_conn *)c;
   *out = -1;
   PGresult *r = PQexec(s->conn, sql);
-  fg_status st = PQresultStatus(r) == PGRES_TUPLES_OK ? FG_OK
-                                                      : fault(s, p, what, r);
+  fg_status st =
+      PQresultStatus(r) == PGRES_TUPLES_OK ? FG_OK : fault(s, p, what, r);
   if (st == FG_OK && PQntuples(r) > 0 && !PQgetisnull(r, 0, 0))
     *out = strtoll(PQgetvalue(r, 0, 0), NULL, 10);
   PQclear(r);
@@ -424,7 +424,8 @@ static fg_status pg_open(const char *url, void **out, fg_problem *p) {
   }
   set_session(c);
   fg_status st = fg_schema_setup(&c->base, "postgresql", p);
-  if (st == FG_OK && !prepare_all(c, p)) st = p && p->status ? p->status : FG_EIO;
+  if (st == FG_OK && !prepare_all(c, p))
+    st = p && p->status ? p->status : FG_EIO;
   if (st != FG_OK) {
     pg_close(s);
     return st;

@@ -85,8 +85,7 @@ static fg_status mark(fg_store *s, fg_conn *c, int *count, fg_problem *p) {
   fg_status res = c->b->begin(c, what, p);
   if (res != FG_OK) return res;
   const bool shared = s->b->shared;
-  fg_arg a[] = {fg_text(now), fg_text(s->instance),
-                fg_int(FG_REPLICA_STALE_S)};
+  fg_arg a[] = {fg_text(now), fg_text(s->instance), fg_int(FG_REPLICA_STALE_S)};
   const int n = shared ? 3 : 1;
   long marked = 0;
   res = fg_db_write(s, c, shared ? SQL_MARK_STALE : SQL_MARK_RUNNING, a, n,

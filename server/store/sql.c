@@ -53,8 +53,8 @@
   "INSERT INTO checks(id, model, version, digest, status, verdict, seed,"      \
   " created_at, finished_at, elapsed_ms, label, key, probability, lower,"      \
   " upper, request, result, replay_of" more_cols ") VALUES (?1, ?2, ?3, ?4,"   \
-  " ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16, ?17, ?18"           \
-  more_vals ")"
+  " ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16, ?17, ?18" more_vals \
+  ")"
 #define CMP_INSERT(more_cols, more_vals)                                       \
   "INSERT INTO comparisons(id, model, version, digest, status, created_at,"    \
   " finished_at, key, checks, result" more_cols ") VALUES (?1, ?2, ?3, ?4,"    \
@@ -100,16 +100,15 @@ const char *const fg_sql_text[SQL_COUNT] = {
                            " AND status = 'running'",
     [SQL_CHECK_CURSOR] = "SELECT created_at FROM checks WHERE id = ?1",
     /* filters are NULL when unused; ?5/?6 = cursor (created_at, id) */
-    [SQL_CHECKS_LIST] =
-        "SELECT " CHECK_COLUMNS " FROM checks"
-        " WHERE (CAST(?1 AS TEXT) IS NULL OR model = ?1)"
-        " AND (CAST(?2 AS TEXT) IS NULL OR verdict = ?2)"
-        " AND (CAST(?3 AS TEXT) IS NULL OR created_at >= ?3)"
-        " AND (CAST(?4 AS TEXT) IS NULL OR label = ?4)"
-        " AND (CAST(?5 AS TEXT) IS NULL OR created_at < ?5 OR"
-        " (created_at = ?5 AND id < ?6))"
-        " AND (CAST(?8 AS TEXT) IS NULL OR key = ?8)"
-        " ORDER BY created_at DESC, id DESC LIMIT ?7",
+    [SQL_CHECKS_LIST] = "SELECT " CHECK_COLUMNS " FROM checks"
+                        " WHERE (CAST(?1 AS TEXT) IS NULL OR model = ?1)"
+                        " AND (CAST(?2 AS TEXT) IS NULL OR verdict = ?2)"
+                        " AND (CAST(?3 AS TEXT) IS NULL OR created_at >= ?3)"
+                        " AND (CAST(?4 AS TEXT) IS NULL OR label = ?4)"
+                        " AND (CAST(?5 AS TEXT) IS NULL OR created_at < ?5 OR"
+                        " (created_at = ?5 AND id < ?6))"
+                        " AND (CAST(?8 AS TEXT) IS NULL OR key = ?8)"
+                        " ORDER BY created_at DESC, id DESC LIMIT ?7",
     [SQL_CMP_INSERT] = CMP_INSERT("", ""),
     [SQL_CMP_FINISH] = "UPDATE comparisons SET status = ?2, finished_at = ?3,"
                        " result = ?4 WHERE id = ?1",
@@ -143,9 +142,8 @@ const char *const fg_sql_text[SQL_COUNT] = {
     [SQL_MARK_STALE] =
         "UPDATE checks SET status = 'interrupted', finished_at = ?1,"
         " result = NULL" STALE_OWNER("checks"),
-    [SQL_MARK_CMP_STALE] =
-        "UPDATE comparisons SET status = 'interrupted', finished_at = ?1"
-        STALE_OWNER("comparisons"),
+    [SQL_MARK_CMP_STALE] = "UPDATE comparisons SET status = 'interrupted', "
+                           "finished_at = ?1" STALE_OWNER("comparisons"),
     [SQL_INSTANCE_UPSERT] =
         "INSERT INTO instances(id, host, pid, started_at, heartbeat_at)"
         " VALUES (?1, ?2, ?3, ?4, now()) ON CONFLICT(id) DO UPDATE SET"

@@ -139,8 +139,8 @@ static fg_status exec(fg_conn *c, fg_sql id, const fg_arg *a, int n,
                       const char *what, long *changed, fg_problem *p) {
   sq_db *s = (sq_db *)c;
   sqlite3_stmt *st = bind(s, id, a, n);
-  if (!st) return fg_problem_set(p, FG_EINTERNAL, "store %s: no statement",
-                                 what);
+  if (!st)
+    return fg_problem_set(p, FG_EINTERNAL, "store %s: no statement", what);
   int rc = step_done(st);
   if (rc != SQLITE_OK) return fault(s, p, what, rc);
   if (changed) *changed = sqlite3_changes(s->db);
@@ -152,9 +152,9 @@ static fg_status query(fg_conn *c, fg_sql id, const fg_arg *a, int n,
   sq_db *s = (sq_db *)c;
   s->cur = bind(s, id, a, n);
   s->what = what;
-  return s->cur ? FG_OK
-                : fg_problem_set(p, FG_EINTERNAL, "store %s: no statement",
-                                 what);
+  return s->cur
+             ? FG_OK
+             : fg_problem_set(p, FG_EINTERNAL, "store %s: no statement", what);
 }
 
 static fg_status next(fg_conn *c, bool *row, fg_problem *p) {
@@ -245,8 +245,9 @@ static fg_status claim(void *b, fg_problem *p) {
   snprintf(lpath, sizeof lpath, "%s.lock", s->path);
   int fd = open(lpath, O_RDWR | O_CREAT | O_CLOEXEC, 0644);
   if (fd < 0)
-    return fg_problem_set(p, FG_EIO, "store %s: cannot open its lock file %s: %s",
-                          s->path, lpath, strerror(errno));
+    return fg_problem_set(p, FG_EIO,
+                          "store %s: cannot open its lock file %s: %s", s->path,
+                          lpath, strerror(errno));
   struct flock fl = {.l_type = F_WRLCK, .l_whence = SEEK_SET};
   if (fcntl(fd, F_SETLK, &fl) != 0) {
     int err = errno;
@@ -306,8 +307,8 @@ static void sq_close(void *b) {
 
 static fg_status prepare(sq_db *s, const char *sql, sqlite3_stmt **st,
                          fg_problem *p) {
-  int rc = sqlite3_prepare_v3(s->db, sql, -1, SQLITE_PREPARE_PERSISTENT, st,
-                              NULL);
+  int rc =
+      sqlite3_prepare_v3(s->db, sql, -1, SQLITE_PREPARE_PERSISTENT, st, NULL);
   return rc == SQLITE_OK ? FG_OK : fault(s, p, "prepare", rc);
 }
 
