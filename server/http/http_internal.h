@@ -39,6 +39,16 @@
 #include <stdatomic.h>
 #include <stdbool.h>
 
+/* Who may call a route (keys.c); each route in router.c names its least
+ * role. */
+typedef enum fg_role {
+  FG_ROLE_NONE = 0, /* open routes */
+  FG_ROLE_READER,
+  FG_ROLE_CHECKER,
+  FG_ROLE_AUTHOR,
+  FG_ROLE_ADMIN
+} fg_role;
+
 /* Path parameters of one route at most ({name}, {n}, {id}). */
 #define FG_ROUTE_PARAMS 4
 
@@ -117,6 +127,7 @@ struct fg_req {
   bool responded;
   double t0;         /* monotonic seconds at the first call */
   const char *route; /* the matched pattern, for the log */
+  fg_role role;      /* the matched route's least role (router.c) */
   int nparams;
   char params[FG_ROUTE_PARAMS][FG_HTTP_PATH_MAX + 1];
   bool authorized;                 /* fg_auth_request said yes */
@@ -207,6 +218,9 @@ void fg_json_utf8_fix(cJSON *item);
 /* Find the handler for r->method and r->path, filling r->params and
  * r->route; on no match fill *out with 404 or 405 and return NULL. */
 fg_handler *fg_route(fg_req *r, fg_resp *out);
+/* The least role for `method` on router pattern `route` (router.c; admin
+ * for a pair that is not a route). */
+fg_role fg_route_role(const char *method, const char *route);
 
 /* ---- query.c ---- */
 /* Longest parameter name kept for a problem message. */
@@ -217,6 +231,12 @@ fg_handler *fg_route(fg_req *r, fg_resp *out);
 bool fg_http_query_args(fg_req *r, const char *const *names,
                         const char **const *slots, int n,
                         char unknown[FG_HTTP_PARAM_NAME_MAX]);
+/* The same over given pairs (keys[i] NULL: an empty name); the unit
+ * tests' way in, and what fg_http_query_args does per parameter. */
+bool fg_http_query_pairs(const char *const *keys, const char *const *values,
+                         int npairs, const char *const *names,
+                         const char **const *slots, int n,
+                         char unknown[FG_HTTP_PARAM_NAME_MAX]);
 /* 400: "query parameter 'NAME': <message>". */
 void fg_resp_bad_param(fg_resp *out, const char *name, const char *fmt, ...)
     __attribute__((format(printf, 3, 4)));
@@ -411,13 +431,6 @@ void fg_registry_free(fg_registry *g);
 #define FG_KEY_PREFIX "fgk_"
 #define FG_KEY_BYTES 32
 
-typedef enum fg_role {
-  FG_ROLE_NONE = 0, /* open routes */
-  FG_ROLE_READER,
-  FG_ROLE_CHECKER,
-  FG_ROLE_AUTHOR,
-  FG_ROLE_ADMIN
-} fg_role;
 
 typedef enum fg_auth_result {
   FG_AUTH_OK = 0,
@@ -427,8 +440,6 @@ typedef enum fg_auth_result {
 
 const char *fg_role_name(fg_role r);
 fg_role fg_role_parse(const char *s); /* FG_ROLE_NONE when unknown */
-/* The least role for `method` on router pattern `route`. */
-fg_role fg_route_role(const char *method, const char *route);
 /* [A-Za-z0-9][A-Za-z0-9_.-]{0,63} */
 bool fg_key_name_valid(const char *s);
 /* hash (FG_STORE_KEY_HASH bytes) = SHA-256(salt || text). */

@@ -21,9 +21,8 @@
  *   checker  POST checks and comparisons, GET scenarios, DELETE a check
  *            or a comparison
  *   author   POST /v1/models, DELETE /v1/models/{name}
- *   admin    everything else (a method on a route not listed below)
- *   A route added to router.c without a line in `policy` is reader when
- *   read with GET and admin otherwise: new routes fail closed.
+ *   admin    everything else
+ *   Each route's least role is a column of router.c's one route table.
  *
  * Enforcement: keys are required as soon as the store holds a live key,
  *   and always when the daemon listens on a non-loopback address without
@@ -72,43 +71,6 @@ fg_role fg_role_parse(const char *s) {
   for (int r = FG_ROLE_READER; r <= FG_ROLE_ADMIN; r++)
     if (s && strcmp(s, fg_role_name((fg_role)r)) == 0) return (fg_role)r;
   return FG_ROLE_NONE;
-}
-
-typedef struct policy_entry {
-  const char *method, *route;
-  fg_role role;
-} policy_entry;
-
-/* Every route whose least role is not the default (GET: reader, other
- * methods: admin). Patterns as in router.c. */
-static const policy_entry policy[] = {
-    {"GET", "/v1/health", FG_ROLE_NONE},
-    {"GET", "/v1/ready", FG_ROLE_NONE},
-    {"GET", "/metrics", FG_ROLE_NONE},
-    {"GET", "/v1/openapi.json", FG_ROLE_NONE},
-    {"GET", "/", FG_ROLE_NONE},
-    {"GET", "/page/app.js", FG_ROLE_NONE},
-    {"GET", "/page/app.css", FG_ROLE_NONE},
-    {"GET", "/v1/models/{name}/scenarios", FG_ROLE_CHECKER},
-    {"POST", "/v1/models/{name}/checks", FG_ROLE_CHECKER},
-    {"POST", "/v1/models/{name}/versions/{n}/checks", FG_ROLE_CHECKER},
-    {"POST", "/v1/models/{name}/comparisons", FG_ROLE_CHECKER},
-    {"DELETE", "/v1/checks/{id}", FG_ROLE_CHECKER},
-    {"GET", "/v1/comparisons/{id}", FG_ROLE_READER},
-    {"GET", "/v1/checks/{id}/scenarios/{index}", FG_ROLE_READER},
-    {"POST", "/v1/checks/{id}/replay", FG_ROLE_CHECKER},
-    {"DELETE", "/v1/comparisons/{id}", FG_ROLE_CHECKER},
-    {"POST", "/v1/models", FG_ROLE_AUTHOR},
-    {"DELETE", "/v1/models/{name}", FG_ROLE_AUTHOR},
-};
-
-fg_role fg_route_role(const char *method, const char *route) {
-  bool read = strcmp(method, "GET") == 0 || strcmp(method, "HEAD") == 0;
-  const char *m = read ? "GET" : method;
-  for (size_t i = 0; i < sizeof policy / sizeof *policy; i++)
-    if (strcmp(policy[i].method, m) == 0 && strcmp(policy[i].route, route) == 0)
-      return policy[i].role;
-  return read ? FG_ROLE_READER : FG_ROLE_ADMIN;
 }
 
 /* ---- keys ---- */
@@ -362,7 +324,7 @@ bool fg_auth_request(fg_req *r, bool routed, fg_resp *out) {
   /* An unknown path or method needs some key, so that only key holders
    * learn which paths exist (404/405). */
   fg_role need =
-      routed && r->route ? fg_route_role(r->method, r->route) : FG_ROLE_READER;
+      routed && r->route ? r->role : FG_ROLE_READER;
   if (need == FG_ROLE_NONE) return true;
   int live = fg_keyring_live(srv->keys);
   if (live < 0) {
