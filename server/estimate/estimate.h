@@ -324,4 +324,14 @@ fg_status fg_mvn_probability(const double *H, const double *b, int m, int n,
                              double target_error, uint64_t seed,
                              fg_mvn_result *out);
 
+/* The sample-size answer (GET /v1/sample-size, `feasgate sample-size`)
+ * for `n` parameters given by name and text: the inputs echoed, "method"
+ * and "samples" or "scenarios"/"epsilon" (sizes_json.c). Unknown,
+ * repeated, ambiguous, missing or out-of-range parameters are named in
+ * `p`. */
+struct cJSON;
+fg_status fg_sample_size_json(int n, const char *const *names,
+                              const char *const *values, struct cJSON **out,
+                              fg_problem *p);
+
 #endif

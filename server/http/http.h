@@ -91,39 +91,29 @@ int fg_http_config_parse(int argc, char **argv, fg_http_config *cfg, char *err,
 /* The whole `feasgate serve` subcommand (argv[0] = "serve"). */
 int fg_serve_command(int argc, char **argv);
 
-/* `feasgate keys add|list|revoke` (argv[0] = "keys"; keys_cli.c): 0 done,
- * 1 store or system fault, 3 usage, unknown or duplicate name. */
-int fg_keys_command(int argc, char **argv);
-
-/* `feasgate explain MODEL.json REQUEST.json --index I` (argv[0] =
- * "explain"; explain.c): 0 printed, 3 usage or invalid input. */
-int fg_explain_command(int argc, char **argv);
-
-/* `feasgate replay --store STORE ID` (argv[0] = "replay"; replay.c): 0
- * every count reproduced, 1 not, 3 usage or input faults. */
-int fg_replay_command(int argc, char **argv);
-
-/* `feasgate check --server URL [--key KEY] MODEL_NAME REQUEST.json`
- * (argv[0] = "check"; remote.c): the check run by a daemon, the result
- * printed; 0 pass, 1 fail, 2 inconclusive, 3 anything else. */
-int fg_remote_check_command(int argc, char **argv);
-
-/* The `check --summary` table of a result body, at most `max_rows` rows
- * and then how many were left out (summary.c). */
-void fg_summary_print(FILE *f, const struct cJSON *res, int max_rows);
-
-/* Line and column (1-based, columns in characters) of byte `offset` of
- * `text`, for malformed-JSON messages (summary.c). */
-void fg_text_position(const char *text, size_t len, long long offset,
-                      int *line, int *column);
-
-/* The sample-size answer (GET /v1/sample-size, `feasgate sample-size`)
- * for `n` parameters given by name and text: the inputs echoed, "method"
- * and "samples" or "scenarios"/"epsilon" (http/sizes.c). Unknown,
- * repeated, ambiguous, missing or out-of-range parameters are named in
- * `p`. */
-fg_status fg_sample_size_json(int n, const char *const *names,
-                              const char *const *values, struct cJSON **out,
-                              fg_problem *p);
+/* ---- for the command line (cli/) ---- */
+struct fg_store_check;
+/* Limits for re-reading a request that was accepted once: the hard caps,
+ * so a request logged under a larger --max-samples still parses after a
+ * restart with a smaller one (replay.c). */
+void fg_replay_limits(fg_request_limits *lim);
+/* False, with a 409 problem, when a stored check has no counts to compare
+ * a replay with (still running, interrupted, or no result) (replay.c). */
+bool fg_replay_has_counts(const struct fg_store_check *c, fg_problem *p);
+/* The replay answer {"check", "replay", "reproduced", "differences",
+ * "result"}; takes rep_body (replay.c). */
+struct cJSON *fg_replay_answer(const char *orig_id, const char *replay_id,
+                               const struct cJSON *orig_body,
+                               struct cJSON *rep_body, bool ended);
+/* A sample index: digits only, at most 20 of them (explain.c). */
+bool fg_explain_parse_index(const char *s, uint64_t *out);
+struct fg_store_key;
+/* [A-Za-z0-9][A-Za-z0-9_.-]{0,63} (keys.c). */
+bool fg_key_name_valid(const char *s);
+/* reader, checker, author or admin (keys.c). */
+bool fg_key_role_valid(const char *s);
+/* A new key's text (cap >= 64) and its salt and hash in *k (keys.c). */
+fg_status fg_key_generate(char *text, size_t cap, struct fg_store_key *k,
+                          fg_problem *p);
 
 #endif

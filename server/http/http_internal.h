@@ -440,14 +440,9 @@ typedef enum fg_auth_result {
 
 const char *fg_role_name(fg_role r);
 fg_role fg_role_parse(const char *s); /* FG_ROLE_NONE when unknown */
-/* [A-Za-z0-9][A-Za-z0-9_.-]{0,63} */
-bool fg_key_name_valid(const char *s);
 /* hash (FG_STORE_KEY_HASH bytes) = SHA-256(salt || text). */
 fg_status fg_key_hash(const char *text, const uint8_t *salt, uint8_t *hash,
                       fg_problem *p);
-/* A new key's text (cap >= 64) and its salt and hash in *k. */
-fg_status fg_key_generate(char *text, size_t cap, fg_store_key *k,
-                          fg_problem *p);
 
 fg_status fg_keyring_new(fg_store *store, fg_keyring **out, fg_problem *p);
 void fg_keyring_free(fg_keyring *k);

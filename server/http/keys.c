@@ -73,6 +73,10 @@ fg_role fg_role_parse(const char *s) {
   return FG_ROLE_NONE;
 }
 
+bool fg_key_role_valid(const char *s) {
+  return fg_role_parse(s) != FG_ROLE_NONE;
+}
+
 /* ---- keys ---- */
 
 bool fg_key_name_valid(const char *s) {
