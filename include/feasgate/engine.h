@@ -182,8 +182,6 @@ fg_check *fg_check_ref(fg_check *c);
  * satisfied every row; *n is the number of samples merged. Valid once the
  * check has ended; NULL otherwise. */
 const uint64_t *fg_check_outcomes(fg_check *c, uint64_t *n);
-/* True when the check stopped early on its confidence sequence. */
-bool fg_check_stopped_early(fg_check *c);
 
 /* Identity and timing the caller attaches to the result body. */
 typedef struct fg_check_meta {

@@ -301,10 +301,6 @@ const uint64_t *fg_check_outcomes(fg_check *c, uint64_t *n) {
   return c->outcomes;
 }
 
-bool fg_check_stopped_early(fg_check *c) {
-  return atomic_load(&c->stopped_early);
-}
-
 void fg_check_free_internal(struct fg_check *c) {
   free(c->bounds);
   free(c->outcomes);

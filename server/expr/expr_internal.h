@@ -105,7 +105,6 @@ typedef enum fg_func {
   FG_FN_COUNT
 } fg_func;
 
-const char *fg_expr_function_name(fg_func f);
 
 typedef enum fg_node_kind {
   FG_N_NUM,       /* num */

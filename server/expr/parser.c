@@ -87,12 +87,6 @@ bool fg_expr_is_function_name(const char *name) {
   return name && function_index(name, strlen(name)) >= 0;
 }
 
-const char *fg_expr_function_name(fg_func f) {
-  for (size_t i = 0; i < sizeof functions / sizeof functions[0]; i++)
-    if (functions[i].fn == f) return functions[i].name;
-  return "?";
-}
-
 /* ---- precedence of the binary operators (higher binds tighter) ---- */
 enum { LEVEL_OR = 1, LEVEL_AND, LEVEL_CMP, LEVEL_ADD, LEVEL_MUL, LEVEL_TOP };
 
