@@ -165,6 +165,21 @@ struct fg_resp {
 
 typedef void fg_handler(fg_req *r, fg_resp *out);
 
+/* ---- listen.c: the listening socket and the TLS files ---- */
+/* A listening socket on cfg's host and port; its bound address as
+ * "HOST:PORT" or "[V6]:PORT" in addr; -1 with err naming --listen. */
+int fg_http_bind_listener(const fg_http_config *cfg, char *addr, size_t cap,
+                          char *err, size_t errcap);
+/* True when the socket is bound to a loopback address (127.0.0.0/8, ::1,
+ * or ::ffff:127.x.y.z). */
+bool fg_http_bound_to_loopback(int fd);
+/* A whole PEM file as a NUL-terminated string; NULL with err naming the
+ * flag and the path. */
+char *fg_http_read_pem(const char *flag, const char *path, char *err,
+                       size_t errcap);
+/* Free PEM text after wiping it (the key is a secret). */
+void fg_http_free_pem(char *pem);
+
 /* ---- conns.c: connections, their limits, the header timeout ---- */
 enum { FG_OVER_NONE = 0, FG_OVER_ALL, FG_OVER_CLIENT };
 /* What the daemon keeps per connection (libmicrohttpd's socket context). */
