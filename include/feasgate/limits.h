@@ -2,9 +2,9 @@
  * feasgate/limits.h -- every limit feasgate enforces, in one place.
  *
  * Each limit is a named constant with the reason it exists. A limit that a
- * client can reach is checked in one helper per kind (fg_limit_exceeded in
- * core/problem.c) so the error always names the limit and its value, and
- * GET /v1/limits reports them all (see FG_LIMITS_TABLE below). Every value
+ * client can reach is reported through fg_problem_limit (core/problem.c)
+ * with its fg_limit, so the error always names the limit and its value,
+ * and GET /v1/limits reports them all (see FG_LIMITS_TABLE below). Every value
  * may be overridden at compile time with -DFG_...=N; runtime settings
  * (--max-body, --max-samples, ...) are range-checked against the hard
  * bounds given here.
@@ -229,34 +229,68 @@
 #define FG_T_DF_MIN 1.0
 #define FG_T_DF_MAX 1e12
 
-/* The limits a client can run into, as (name, value) pairs for
- * GET /v1/limits and for error messages. Runtime-configurable ones are
- * reported from the server configuration instead (http/). */
+/* The limits a client can run into, as (ID, name, value): GET /v1/limits
+ * lists them and a 400/413 names the one reached (fg_problem_limit with
+ * FG_LIMIT_<ID>). The enum fg_limit below is generated from these two
+ * tables, so a limit's name is written here and nowhere else. The values
+ * of the table's last six are defined further down (http/). */
 #define FG_LIMITS_TABLE(X)                                                     \
-  X("name_length", FG_NAME_MAX)                                                \
-  X("expression_length", FG_EXPR_MAX_LENGTH)                                   \
-  X("expression_depth", FG_EXPR_MAX_DEPTH)                                     \
-  X("vector_length", FG_VECTOR_MAX)                                            \
-  X("program_registers", FG_PROGRAM_MAX_REGS)                                  \
-  X("program_instructions", FG_PROGRAM_MAX_INSNS)                              \
-  X("decision_dimensions", FG_DECISION_DIMS_MAX)                               \
-  X("uncertain_dimensions", FG_UNCERTAIN_DIMS_MAX)                             \
-  X("constraint_rows", FG_ROWS_MAX)                                            \
-  X("members", FG_MEMBERS_MAX)                                                 \
-  X("table_cells", FG_TABLE_CELLS_MAX)                                         \
-  X("json_depth", FG_JSON_MAX_DEPTH)                                           \
-  X("label_length", FG_LABEL_MAX)                                              \
-  X("sample_size_decisions", FG_SIZE_DECISIONS_MAX)                            \
-  X("sample_size_discarded", FG_SIZE_DISCARDED_MAX)                            \
-  X("sample_size_scenarios", FG_SIZE_SCENARIOS_MAX)                            \
-  X("sample_size_samples", FG_SIZE_SAMPLES_MAX)                                \
-  X("comparison_candidates", FG_COMPARE_CANDIDATES_MAX)                        \
-  X("comparison_samples", FG_COMPARE_SAMPLES_MAX)                              \
-  X("failing_scenarios", FG_FAILING_SCENARIOS)                               \
-  X("failing_scenarios_count", FG_FAILING_SCENARIOS_MAX)                     \
-  X("explain_cells", FG_EXPLAIN_CELLS_MAX)                                   \
-  X("sobol_dimensions", FG_SOBOL_DIMS_MAX)                                \
-  X("scenario_cells", FG_SCENARIO_CELLS_MAX)
+  X(NAME_LENGTH, "name_length", FG_NAME_MAX)                                   \
+  X(EXPRESSION_LENGTH, "expression_length", FG_EXPR_MAX_LENGTH)                \
+  X(EXPRESSION_DEPTH, "expression_depth", FG_EXPR_MAX_DEPTH)                   \
+  X(VECTOR_LENGTH, "vector_length", FG_VECTOR_MAX)                             \
+  X(PROGRAM_REGISTERS, "program_registers", FG_PROGRAM_MAX_REGS)               \
+  X(PROGRAM_INSTRUCTIONS, "program_instructions", FG_PROGRAM_MAX_INSNS)        \
+  X(DECISION_DIMENSIONS, "decision_dimensions", FG_DECISION_DIMS_MAX)          \
+  X(UNCERTAIN_DIMENSIONS, "uncertain_dimensions", FG_UNCERTAIN_DIMS_MAX)       \
+  X(CONSTRAINT_ROWS, "constraint_rows", FG_ROWS_MAX)                           \
+  X(MEMBERS, "members", FG_MEMBERS_MAX)                                        \
+  X(TABLE_CELLS, "table_cells", FG_TABLE_CELLS_MAX)                            \
+  X(JSON_DEPTH, "json_depth", FG_JSON_MAX_DEPTH)                               \
+  X(LABEL_LENGTH, "label_length", FG_LABEL_MAX)                                \
+  X(SAMPLE_SIZE_DECISIONS, "sample_size_decisions", FG_SIZE_DECISIONS_MAX)     \
+  X(SAMPLE_SIZE_DISCARDED, "sample_size_discarded", FG_SIZE_DISCARDED_MAX)     \
+  X(SAMPLE_SIZE_SCENARIOS, "sample_size_scenarios", FG_SIZE_SCENARIOS_MAX)     \
+  X(SAMPLE_SIZE_SAMPLES, "sample_size_samples", FG_SIZE_SAMPLES_MAX)           \
+  X(COMPARISON_CANDIDATES, "comparison_candidates", FG_COMPARE_CANDIDATES_MAX) \
+  X(COMPARISON_SAMPLES, "comparison_samples", FG_COMPARE_SAMPLES_MAX)          \
+  X(FAILING_SCENARIOS, "failing_scenarios", FG_FAILING_SCENARIOS)              \
+  X(FAILING_SCENARIOS_COUNT, "failing_scenarios_count", FG_FAILING_SCENARIOS_MAX) \
+  X(EXPLAIN_CELLS, "explain_cells", FG_EXPLAIN_CELLS_MAX)                      \
+  X(SOBOL_DIMENSIONS, "sobol_dimensions", FG_SOBOL_DIMS_MAX)                   \
+  X(SCENARIO_CELLS, "scenario_cells", FG_SCENARIO_CELLS_MAX)                   \
+  X(SAMPLES_DEFAULT, "samples_default", FG_SAMPLES_DEFAULT)                    \
+  X(SEED_MAX, "seed_max", FG_SEED_MAX)                                         \
+  X(LIST_LIMIT, "list_limit", FG_LIST_LIMIT_MAX)                               \
+  X(CONNECTION_OVERFLOW, "connection_overflow", FG_HTTP_CONNECTIONS_OVERFLOW)  \
+  X(HEADER_TIMEOUT, "header_timeout", FG_HTTP_HEADER_TIMEOUT_S)                \
+  X(IDLE_TIMEOUT, "idle_timeout", FG_HTTP_IDLE_TIMEOUT_S)
+
+/* Limits set when the daemon starts (--max-body, --max-samples, ...): the
+ * names here, the values from the running configuration (http/ops.c). */
+#define FG_SETTINGS_LIMITS_TABLE(X)                                            \
+  X(MAX_BODY, "max_body")                                                      \
+  X(MAX_SAMPLES, "max_samples")                                                \
+  X(MAX_SCENARIOS, "max_scenarios")                                            \
+  X(MAX_WAIT, "max_wait")                                                      \
+  X(MAX_CHECK_TIME, "max_check_time")                                          \
+  X(WORKERS, "workers")                                                        \
+  X(CHUNK, "chunk")                                                            \
+  X(QUEUE, "queue")                                                            \
+  X(MAX_CONNECTIONS, "max_connections")                                        \
+  X(MAX_CONNECTIONS_PER_CLIENT, "max_connections_per_client")
+
+typedef enum fg_limit {
+#define FG_LIMIT_ENUM3_(id, name, value) FG_LIMIT_##id,
+#define FG_LIMIT_ENUM2_(id, name) FG_LIMIT_##id,
+  FG_LIMITS_TABLE(FG_LIMIT_ENUM3_) FG_SETTINGS_LIMITS_TABLE(FG_LIMIT_ENUM2_)
+#undef FG_LIMIT_ENUM3_
+#undef FG_LIMIT_ENUM2_
+  FG_LIMIT_COUNT
+} fg_limit;
+
+/* The limit's name as clients see it ("table_cells", "max_body"). */
+const char *fg_limit_name(fg_limit which);
 
 /* ---- operating the daemon and the remote client (http/) ----
  * Settings with a flag (--queue, --max-wait, --grace, --max-check-time,

@@ -330,7 +330,7 @@ fg_status fg_scenarios_size_check(const fg_model *m, uint64_t count,
                  "scenario_cells = %llu values in one response",
                  (unsigned long long)count, dims,
                  (unsigned long long)FG_SCENARIO_CELLS_MAX);
-  p->limit_name = "scenario_cells";
+  p->limit_name = fg_limit_name(FG_LIMIT_SCENARIO_CELLS);
   p->limit_value = (double)FG_SCENARIO_CELLS_MAX;
   return FG_ELIMIT;
 }

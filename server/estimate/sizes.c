@@ -85,7 +85,7 @@ fg_status fg_size_half_width(double h, double confidence, double p,
   double n = ceil(z * z * p * (1 - p) / (h * h));
   if (n < 1) n = 1;
   if (!(n <= (double)FG_SIZE_SAMPLES_MAX))
-    return fg_problem_limit(pr, "", "sample_size_samples",
+    return fg_problem_limit(pr, "", FG_LIMIT_SAMPLE_SIZE_SAMPLES,
                             (double)FG_SIZE_SAMPLES_MAX,
                             "half_width %g needs %.3g samples, more than "
                             "sample_size_samples = %.0f",
@@ -122,7 +122,7 @@ fg_status fg_size_power(double target, double p, double confidence,
   double n = ceil(r * r);
   if (n < 1) n = 1;
   if (!(n <= (double)FG_SIZE_SAMPLES_MAX))
-    return fg_problem_limit(pr, "", "sample_size_samples",
+    return fg_problem_limit(pr, "", FG_LIMIT_SAMPLE_SIZE_SAMPLES,
                             (double)FG_SIZE_SAMPLES_MAX,
                             "probability %g against target %g needs %.3g "
                             "samples, more than sample_size_samples = %.0f",
@@ -179,13 +179,13 @@ static fg_status check_scenario_inputs(double beta, uint64_t d, uint64_t k,
                           (unsigned long long)d);
   if (d > FG_SIZE_DECISIONS_MAX)
     return fg_problem_limit(
-        pr, "", "sample_size_decisions", (double)FG_SIZE_DECISIONS_MAX,
+        pr, "", FG_LIMIT_SAMPLE_SIZE_DECISIONS, (double)FG_SIZE_DECISIONS_MAX,
         "decisions %llu exceeds sample_size_decisions = "
         "%llu",
         (unsigned long long)d, (unsigned long long)FG_SIZE_DECISIONS_MAX);
   if (k > FG_SIZE_DISCARDED_MAX)
     return fg_problem_limit(
-        pr, "", "sample_size_discarded", (double)FG_SIZE_DISCARDED_MAX,
+        pr, "", FG_LIMIT_SAMPLE_SIZE_DISCARDED, (double)FG_SIZE_DISCARDED_MAX,
         "discarded %llu exceeds sample_size_discarded = "
         "%llu",
         (unsigned long long)k, (unsigned long long)FG_SIZE_DISCARDED_MAX);
@@ -208,7 +208,7 @@ fg_status fg_scenario_size(double eps, double beta, uint64_t d, uint64_t k,
   while (fg_scenario_log_bound((double)hi, eps, d, k) > lb) {
     lo = hi;
     if (hi >= max)
-      return fg_problem_limit(pr, "", "sample_size_scenarios", (double)max,
+      return fg_problem_limit(pr, "", FG_LIMIT_SAMPLE_SIZE_SCENARIOS, (double)max,
                               "epsilon %g and beta %g need more than "
                               "sample_size_scenarios = %llu scenarios",
                               eps, beta, (unsigned long long)max);
@@ -232,7 +232,7 @@ fg_status fg_scenario_epsilon(uint64_t n, double beta, uint64_t d, uint64_t k,
   if (st != FG_OK) return st;
   if (n > FG_SIZE_SCENARIOS_MAX)
     return fg_problem_limit(
-        pr, "", "sample_size_scenarios", (double)FG_SIZE_SCENARIOS_MAX,
+        pr, "", FG_LIMIT_SAMPLE_SIZE_SCENARIOS, (double)FG_SIZE_SCENARIOS_MAX,
         "scenarios %llu exceeds sample_size_scenarios = "
         "%llu",
         (unsigned long long)n, (unsigned long long)FG_SIZE_SCENARIOS_MAX);
@@ -442,7 +442,7 @@ fg_status fg_size_query_solve(const fg_size_query *q, fg_size_answer *a,
   a->gives_epsilon = true;
   double n = v[FG_SZ_SCENARIOS];
   if (n > (double)FG_SIZE_SCENARIOS_MAX)
-    return fg_problem_limit(p, "", "sample_size_scenarios",
+    return fg_problem_limit(p, "", FG_LIMIT_SAMPLE_SIZE_SCENARIOS,
                             (double)FG_SIZE_SCENARIOS_MAX,
                             "scenarios %.0f exceeds sample_size_scenarios = "
                             "%llu",

@@ -157,9 +157,9 @@ static void respond(fg_req *r, fg_resp *resp) {
 static void refuse_too_large(fg_req *r, const char *how) {
   fg_problem p;
   fg_problem_init(&p);
-  fg_problem_limit(&p, "", "max_body", (double)r->srv->cfg.max_body,
-                   "request body %s the limit max_body = %" PRIu64 " bytes",
-                   how, r->srv->cfg.max_body);
+  fg_problem_limit(&p, "", FG_LIMIT_MAX_BODY, (double)r->srv->cfg.max_body,
+                   "request body %s the limit %s = %" PRIu64 " bytes", how,
+                   fg_limit_name(FG_LIMIT_MAX_BODY), r->srv->cfg.max_body);
   fg_resp resp = {0};
   fg_resp_problem(&resp, &p, 413);
   r->route = "(body too large)";

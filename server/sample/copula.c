@@ -179,7 +179,7 @@ static fg_status parse_full(fg_copula *cop, const cJSON *c, const char *ptr,
                             fg_problem *p) {
   int d = cop->d;
   if ((double)d * (double)d > FG_TABLE_CELLS_MAX)
-    return fg_problem_limit(p, ptr, "table_cells", FG_TABLE_CELLS_MAX,
+    return fg_problem_limit(p, ptr, FG_LIMIT_TABLE_CELLS, FG_TABLE_CELLS_MAX,
                             "expected a matrix of at most %d cells, found %d "
                             "x %d (use {\"equal\": r} or {\"ar1\": r})",
                             FG_TABLE_CELLS_MAX, d, d);

@@ -526,7 +526,7 @@ fg_status fg_sampler_design_check(const fg_sampler *s, fg_design d,
   if (st != FG_OK) return st;
   int max = fg_design_sobol_max_dims();
   if (d == FG_DESIGN_SOBOL && coords > max)
-    return fg_problem_limit(p, "/sampling", "sobol_dimensions", max,
+    return fg_problem_limit(p, "/sampling", FG_LIMIT_SOBOL_DIMENSIONS, max,
                             "expected at most %d Sobol dimensions, found %ld "
                             "(one per uncertain element, one per scenario "
                             "table); use latin_hypercube",

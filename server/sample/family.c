@@ -575,7 +575,7 @@ static void parse_scenario_table(fg_input *in, fg_params *c) {
     return;
   }
   if ((double)nrows * in->size > FG_TABLE_CELLS_MAX) {
-    fg_problem_limit(c->p, ptr, "table_cells", FG_TABLE_CELLS_MAX,
+    fg_problem_limit(c->p, ptr, FG_LIMIT_TABLE_CELLS, FG_TABLE_CELLS_MAX,
                      "expected at most %d cells, found %d rows of %d",
                      FG_TABLE_CELLS_MAX, nrows, in->size);
     c->st = c->st ? c->st : FG_ELIMIT;

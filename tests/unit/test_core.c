@@ -1,6 +1,6 @@
 /*
- * tests/unit/test_core.c -- the problem collector and JSON Pointers, and
- * closed forms of the quantile module (core/quantile.c).
+ * tests/unit/test_core.c -- the problem collector and JSON Pointers, the
+ * limits' names, and closed forms of the quantile module (core/quantile.c).
  * Pointer escaping follows RFC 6901 section 3 (~ as ~0, / as ~1).
  * Quantile closed forms (Abramowitz & Stegun 26.7.1 and 6.5; the sweeps
  * against SciPy and mpmath are tests/reference/test_quantiles.py):
@@ -13,6 +13,7 @@
 #include "feasgate/status.h"
 
 #include <math.h>
+#include <string.h>
 
 /* Closed forms and work caps of core/quantile.c. */
 static void test_quantile(void) {
@@ -41,8 +42,25 @@ static void test_quantile(void) {
   CHECK(cnt.steps > 0 && cnt.terms > 0 && cnt.terms <= FG_Q_TERMS_MAX);
 }
 
+/* The names of the limits (core/limits.c): one per fg_limit, non-empty,
+ * distinct, lower case with underscores (as GET /v1/limits shows them). */
+static void test_limit_names(void) {
+  for (int i = 0; i < FG_LIMIT_COUNT; i++) {
+    const char *a = fg_limit_name((fg_limit)i);
+    CHECK(a && a[0] && strcmp(a, "?") != 0);
+    CHECK(strspn(a, "abcdefghijklmnopqrstuvwxyz_") == strlen(a));
+    for (int j = 0; j < i; j++)
+      CHECK_MSG(strcmp(a, fg_limit_name((fg_limit)j)) != 0,
+                "limit name %s twice", a);
+  }
+  CHECK_STR(fg_limit_name(FG_LIMIT_TABLE_CELLS), "table_cells");
+  CHECK_STR(fg_limit_name(FG_LIMIT_MAX_BODY), "max_body");
+  CHECK_STR(fg_limit_name(FG_LIMIT_COUNT), "?");
+}
+
 int main(void) {
   test_quantile();
+  test_limit_names();
   char buf[FG_POINTER_MAX];
   fg_pointer_join(buf, sizeof buf, "/constraints", "a/b~c");
   CHECK_STR(buf, "/constraints/a~1b~0c");
@@ -64,7 +82,7 @@ int main(void) {
   CHECK_STR(p.detail, "bad thing at /x");
   CHECK_STR(p.title, "invalid input");
   /* A later fault keeps the first status and detail. */
-  fg_problem_limit(&p, "/y", "vector_length", 100, "too long");
+  fg_problem_limit(&p, "/y", FG_LIMIT_VECTOR_LENGTH, 100, "too long");
   CHECK(p.status == FG_EINVAL);
   CHECK_STR(p.limit_name, "vector_length");
   CHECK_STR(p.detail, "bad thing at /x");
