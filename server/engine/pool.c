@@ -334,16 +334,6 @@ static void *worker_main(void *arg) {
   return NULL;
 }
 
-static void deadline_in(struct timespec *ts, double seconds) {
-  clock_gettime(CLOCK_REALTIME, ts);
-  double whole = floor(seconds);
-  ts->tv_sec += (time_t)whole;
-  ts->tv_nsec += (long)((seconds - whole) * 1e9);
-  if (ts->tv_nsec >= 1000000000L) {
-    ts->tv_sec++;
-    ts->tv_nsec -= 1000000000L;
-  }
-}
 
 /* Checks the clock ends in one round, at most (the rest wait a round). */
 #define CLOCK_BATCH 64
@@ -375,7 +365,7 @@ static void *clock_main(void *arg) {
       continue;
     }
     struct timespec ts;
-    deadline_in(&ts, FG_POOL_CLOCK_MS / 1000.0);
+    fg_clock_abs_deadline(&ts, FG_POOL_CLOCK_MS / 1000.0);
     pthread_cond_timedwait(&pool->clock_cv, &pool->mu, &ts);
   }
   pthread_mutex_unlock(&pool->mu);
@@ -461,7 +451,7 @@ void fg_pool_free(fg_pool *pool) {
   /* Wait for the workers to leave, bounded. */
   pthread_mutex_lock(&pool->mu);
   struct timespec ts;
-  deadline_in(&ts, FG_POOL_EXIT_WAIT_S);
+  fg_clock_abs_deadline(&ts, FG_POOL_EXIT_WAIT_S);
   int left;
   for (;;) {
     left = 0;

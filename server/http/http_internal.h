@@ -101,7 +101,7 @@ typedef struct fg_server {
 
 /* A wait a handler asks for instead of blocking (waiter.c): the waiter
  * thread polls ready(ctx) (quick, non-blocking, thread-safe) until it is
- * true or `deadline` (fg_http_now() seconds) passes, then the request's
+ * true or `deadline` (fg_time_monotonic() seconds) passes, then the request's
  * connection is resumed and finish(r, ctx, timed_out, out) answers on a
  * libmicrohttpd thread -- or fills out->pending again to wait more.
  * finish owns ctx (frees it or hands it on); drop(ctx) frees it when the
@@ -281,7 +281,6 @@ void fg_log_force(fg_log_level level, cJSON *obj);
 /* A one-off message: {"event": event, "message": ...}. */
 void fg_log_msg(fg_log_level level, const char *event, const char *fmt, ...)
     __attribute__((format(printf, 3, 4)));
-double fg_http_now(void); /* monotonic seconds */
 
 /* ---- models.c ---- */
 void fg_h_models_register(fg_req *r, fg_resp *out);

@@ -175,7 +175,7 @@ static bool reload_locked(fg_keyring *k) {
   fg_problem_init(&p);
   fg_store_key *keys = NULL;
   int n = 0;
-  k->loaded_at = fg_http_now();
+  k->loaded_at = fg_time_monotonic();
   if (fg_store_list_keys(k->store, true, &keys, &n, &p) != FG_OK) {
     fg_log_msg(FG_LOG_WARN, "keys_unreadable",
                "reading the live keys: %s; %s", p.detail,
@@ -202,7 +202,7 @@ fg_status fg_keyring_new(fg_store *store, fg_keyring **out, fg_problem *p) {
     return st;
   }
   k->loaded = true;
-  k->loaded_at = fg_http_now();
+  k->loaded_at = fg_time_monotonic();
   *out = k;
   return FG_OK;
 }
@@ -216,7 +216,7 @@ void fg_keyring_free(fg_keyring *k) {
 
 int fg_keyring_live(fg_keyring *k) {
   pthread_mutex_lock(&k->lock);
-  if (fg_http_now() - k->loaded_at >= FG_KEYS_REFRESH_S) reload_locked(k);
+  if (fg_time_monotonic() - k->loaded_at >= FG_KEYS_REFRESH_S) reload_locked(k);
   int n = k->loaded ? k->n : -1;
   pthread_mutex_unlock(&k->lock);
   return n;
@@ -241,7 +241,7 @@ fg_auth_result fg_keyring_check(fg_keyring *k, const char *text,
   name[0] = '\0';
   *role = FG_ROLE_NONE;
   pthread_mutex_lock(&k->lock);
-  double age = fg_http_now() - k->loaded_at;
+  double age = fg_time_monotonic() - k->loaded_at;
   if (age >= FG_KEYS_REFRESH_S) reload_locked(k);
   if (!k->loaded) {
     pthread_mutex_unlock(&k->lock);
@@ -249,7 +249,7 @@ fg_auth_result fg_keyring_check(fg_keyring *k, const char *text,
   }
   int i = match_locked(k, text);
   if (i < 0 && age < FG_KEYS_REFRESH_S &&
-      fg_http_now() - k->loaded_at >= FG_KEYS_MISS_REFRESH_S &&
+      fg_time_monotonic() - k->loaded_at >= FG_KEYS_MISS_REFRESH_S &&
       reload_locked(k))
     i = match_locked(k, text); /* perhaps added since the last reload */
   fg_auth_result res = FG_AUTH_WRONG;

@@ -143,7 +143,7 @@ static void log_request(const fg_req *r, int status) {
     cJSON_AddStringToObject(o, "key", r->key_name);
   else
     cJSON_AddNullToObject(o, "key");
-  double ms = (fg_http_now() - r->t0) * 1000.0;
+  double ms = (fg_time_monotonic() - r->t0) * 1000.0;
   cJSON_AddNumberToObject(o, "duration_ms", (double)(long)(ms * 1000) / 1000);
   fg_log_emit(status >= 500 ? FG_LOG_WARN : FG_LOG_INFO, o);
 }
@@ -198,7 +198,7 @@ static enum MHD_Result on_request(void *cls, struct MHD_Connection *conn,
     if (!r) return MHD_NO; /* libmicrohttpd closes the connection */
     r->srv = srv;
     r->conn = conn;
-    r->t0 = fg_http_now();
+    r->t0 = fg_time_monotonic();
     snprintf(r->method, sizeof r->method, "%s", method);
     if (strlen(url) > FG_HTTP_PATH_MAX) r->path_too_long = true;
     snprintf(r->path, sizeof r->path, "%s", url);
@@ -353,14 +353,7 @@ static void on_mhd_log(void *cls, const char *fmt, va_list ap) {
  * (logged when `say` and some are). */
 static int wait_inflight(fg_server *srv, double seconds, bool say) {
   struct timespec ts;
-  clock_gettime(CLOCK_REALTIME, &ts);
-  double whole = floor(seconds);
-  ts.tv_sec += (time_t)whole;
-  ts.tv_nsec += (long)((seconds - whole) * 1e9);
-  if (ts.tv_nsec >= 1000000000L) {
-    ts.tv_sec++;
-    ts.tv_nsec -= 1000000000L;
-  }
+  fg_clock_abs_deadline(&ts, seconds);
   pthread_mutex_lock(&srv->inflight_lock);
   while (srv->inflight > 0) {
     if (pthread_cond_timedwait(&srv->inflight_cv, &srv->inflight_lock, &ts) ==
