@@ -479,5 +479,92 @@ const char *fg_limit_name(fg_limit which);
  * 99.3% inside 3.5 (two-sided), so the bound is conservative. */
 #define FG_EXACT_ERROR_FACTOR 3.5
 
+/* ==== tuning constants ====
+ * Not limits a client reaches: how often, how many at once, how precise.
+ * Each with its reason; grouped by the subsystem that uses it. */
+
+/* ---- engine: pool, checks, scenarios ---- */
+/* Checks the clock ends in one round, at most (the rest wait a round). */
+#define FG_POOL_CLOCK_BATCH 64
+/* Pools left to stuck workers at exit: kept reachable on purpose (a
+ * stuck thread may still touch its pool); freed by the process's end. */
+#define FG_POOL_ABANDONED_MAX 8
+/* Non-finite values noted per check at most (numeric.problems lists the
+ * first, by row or input, stream and sample index): one per row or input
+ * of any model that fits the row limit's common use, bounded memory. */
+#define FG_DET_PROBLEMS_MAX 64
+/* Independent replicates of a Latin hypercube or Sobol design: the
+ * Student-t interval on their estimates has R - 1 degrees of freedom;
+ * 16 keeps the t quantile within 7% of the normal one while each
+ * replicate stays a large design. */
+#define FG_DESIGN_REPLICATES 16
+/* Bytes of text produced per refill: rows are appended while the text
+ * holds less than this, so a refill is a few hundred rows of a narrow
+ * model and at least one row of any width. */
+#define FG_SCENARIO_STAGE_BYTES 16384
+
+/* ---- estimate: the confidence sequence, sample sizes, tallies ---- */
+/* Strength, in pseudo-samples, of the confidence sequence's Beta prior
+ * centred on the target (estimate/cs.c): small enough that the data
+ * dominate after a few thousand samples, large enough to keep the
+ * sequence tight where the verdict is decided. */
+#define FG_CS_PRIOR_STRENGTH 10.0
+/* First look after this many samples, then after every doubling. */
+#define FG_CS_FIRST_ROUND 4096
+/* The sequence's bounds are found by bisection to a relative width of
+ * FG_CS_REL_TOL, or after FG_CS_BISECT_MAX halvings: from a bracket as
+ * wide as the doubles allow, 1200 halvings reach any width a double has. */
+#define FG_CS_BISECT_MAX 1200
+/* Relative width at which the bisection above stops. */
+#define FG_CS_REL_TOL 0x1p-50
+/* Terms smaller than this fraction of the running sum are dropped: they
+ * cannot change a double. */
+#define FG_SIZE_TAIL_NEGLIGIBLE 1e-18
+/* Relative precision of the epsilon bisection. */
+#define FG_SIZE_EPS_REL_PRECISION 1e-12
+/* Iterations of any bisection at most (each halves the bracket). */
+#define FG_SIZE_BISECT_MAX 4000
+/* Violated rows kept per failing scenario: enough to show which rows a
+ * scenario breaks; the scenario endpoint recomputes all of them. */
+#define FG_FAIL_ROWS_MAX 16
+
+/* ---- http: keys, registry, replicas, streaming, queries ---- */
+/* Seconds the cache of live keys is used before it is reloaded. */
+#define FG_KEYS_REFRESH_S 1.0
+/* Least seconds between two reloads caused by unknown keys: bounds the
+ * store reads a client sending wrong keys can cause. */
+#define FG_KEYS_MISS_REFRESH_S 0.05
+/* How often the watcher looks for ended checks: a 202'd check is recorded
+ * at most this late. */
+#define FG_REGISTRY_POLL_MS 50
+/* How long cancelled checks get to be recorded at shutdown: the engine
+ * ends a cancelled check within FG_STUCK_WORKER_S whatever its workers
+ * do, and the store write follows. */
+#define FG_REGISTRY_CANCEL_WAIT_S (FG_STUCK_WORKER_S + 2.0)
+/* On a shared store (several replicas), how often the running checks'
+ * bodies are written to the store so that another replica answers a GET
+ * with progress at most this old. */
+#define FG_REGISTRY_PROGRESS_MS 1000
+/* How long after a failed store write of a check's end it is tried again
+ * (the check stays listed, so GET still answers with its final body). */
+#define FG_REGISTRY_RETRY_MS 1000
+/* Entries one round of the watcher handles, at most (the rest wait for
+ * the next round). */
+#define FG_REGISTRY_BATCH 64
+/* A DELETE of a check or comparison another replica runs waits
+ * (suspended) for its record to end, reading the store this often (in
+ * finish, on a libmicrohttpd thread; the waiter thread only keeps the
+ * time). */
+#define FG_HTTP_REPLICA_LOOK_S 0.05
+/* Bytes libmicrohttpd asks a streamed body for at once. */
+#define FG_HTTP_STREAM_BLOCK (32 * 1024)
+/* Query parameters read at most: more than the calculation can use. */
+#define FG_HTTP_SIZE_QUERY_PARAMS_MAX 32
+/* Longest parameter name kept for a problem message. */
+#define FG_HTTP_PARAM_NAME_MAX 64
+
+/* ---- the command line ---- */
+/* Parameters of one sample-size question at most (each --name value). */
+#define FG_CLI_SIZE_ARGS_MAX 16
 
 #endif

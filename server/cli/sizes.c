@@ -17,9 +17,6 @@
 #include <string.h>
 #include <unistd.h>
 
-/* Parameters of one sample-size question at most (each --name value). */
-#define SAMPLE_SIZE_ARGS_MAX 16
-
 static void sample_size_usage(FILE *f) {
   fprintf(f,
           "usage: feasgate sample-size --half-width H --confidence C "
@@ -69,9 +66,9 @@ static void flag_spelling(const char *msg, char *out, size_t cap) {
 }
 
 int fg_sample_size_command(int argc, char **argv) {
-  char names[SAMPLE_SIZE_ARGS_MAX][32];
-  const char *np[SAMPLE_SIZE_ARGS_MAX], *vp[SAMPLE_SIZE_ARGS_MAX];
-  const char *flags[SAMPLE_SIZE_ARGS_MAX];
+  char names[FG_CLI_SIZE_ARGS_MAX][32];
+  const char *np[FG_CLI_SIZE_ARGS_MAX], *vp[FG_CLI_SIZE_ARGS_MAX];
+  const char *flags[FG_CLI_SIZE_ARGS_MAX];
   int n = 0;
   for (int i = 1; i < argc; i++) {
     const char *a = argv[i];
@@ -86,9 +83,9 @@ int fg_sample_size_command(int argc, char **argv) {
       sample_size_usage(stderr);
       return FG_EXIT_USAGE;
     }
-    if (n >= SAMPLE_SIZE_ARGS_MAX) {
+    if (n >= FG_CLI_SIZE_ARGS_MAX) {
       fprintf(stderr, "feasgate sample-size: more than %d parameters\n",
-              SAMPLE_SIZE_ARGS_MAX);
+              FG_CLI_SIZE_ARGS_MAX);
       return FG_EXIT_USAGE;
     }
     /* --half-width -> half_width, the query parameter's name. */

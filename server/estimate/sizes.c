@@ -43,14 +43,6 @@
 #include <stdlib.h>
 #include <string.h>
 
-/* Terms smaller than this fraction of the running sum are dropped: they
- * cannot change a double. */
-#define TAIL_NEGLIGIBLE 1e-18
-/* Relative precision of the epsilon bisection. */
-#define EPS_REL_PRECISION 1e-12
-/* Iterations of any bisection at most (each halves the bracket). */
-#define BISECT_MAX 4000
-
 static double z_upper(double tail) {
   /* The quantile with `tail` above it; Qinv keeps accuracy for small
    * tails. */
@@ -155,14 +147,14 @@ double fg_scenario_log_bound(double n, double eps, uint64_t d, uint64_t k) {
     t *= i / ((n - i + 1) * odds);
     i -= 1;
     sum += t;
-    if (t < TAIL_NEGLIGIBLE * sum) break;
+    if (t < FG_SIZE_TAIL_NEGLIGIBLE * sum) break;
   }
   t = 1.0;
   for (double i = j; i < m;) { /* upwards, to m */
     t *= (n - i) / (i + 1) * odds;
     i += 1;
     sum += t;
-    if (t < TAIL_NEGLIGIBLE * sum) break;
+    if (t < FG_SIZE_TAIL_NEGLIGIBLE * sum) break;
   }
   return log_c + log_term(n, j, leps, l1m) + log(sum);
 }
@@ -214,7 +206,7 @@ fg_status fg_scenario_size(double eps, double beta, uint64_t d, uint64_t k,
                               eps, beta, (unsigned long long)max);
     hi = hi > max / 2 ? max : hi * 2;
   }
-  for (int it = 0; hi - lo > 1 && it < BISECT_MAX; it++) {
+  for (int it = 0; hi - lo > 1 && it < FG_SIZE_BISECT_MAX; it++) {
     uint64_t mid = lo + (hi - lo) / 2;
     if (fg_scenario_log_bound((double)mid, eps, d, k) > lb)
       lo = mid;
@@ -250,7 +242,7 @@ fg_status fg_scenario_epsilon(uint64_t n, double beta, uint64_t d, uint64_t k,
     lo = hi;
     hi = 1.0;
     /* Approach 1 from below by halving the distance. */
-    for (int it = 0; it < BISECT_MAX; it++) {
+    for (int it = 0; it < FG_SIZE_BISECT_MAX; it++) {
       double cand = 1 - (1 - lo) / 2;
       if (cand >= 1) break;
       if (fg_scenario_log_bound(nn, cand, d, k) <= lb) {
@@ -267,13 +259,13 @@ fg_status fg_scenario_epsilon(uint64_t n, double beta, uint64_t d, uint64_t k,
   } else {
     lo = hi / 2;
     for (int it = 0;
-         it < BISECT_MAX && fg_scenario_log_bound(nn, lo, d, k) <= lb; it++) {
+         it < FG_SIZE_BISECT_MAX && fg_scenario_log_bound(nn, lo, d, k) <= lb; it++) {
       hi = lo;
       lo /= 2;
       if (lo == 0) break;
     }
   }
-  for (int it = 0; it < BISECT_MAX && hi - lo > EPS_REL_PRECISION * hi; it++) {
+  for (int it = 0; it < FG_SIZE_BISECT_MAX && hi - lo > FG_SIZE_EPS_REL_PRECISION * hi; it++) {
     double mid = lo + (hi - lo) / 2;
     if (fg_scenario_log_bound(nn, mid, d, k) > lb)
       lo = mid;

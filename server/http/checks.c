@@ -479,10 +479,6 @@ static void cancel_here(fg_req *r, fg_job *job, fg_resp *out) {
                 id, fg_check_state_name(fg_job_final_state(job)));
 }
 
-/* A DELETE of a check another replica runs, waiting (suspended) for its
- * record to end: the store is read every REPLICA_LOOK_S (in finish, on a
- * libmicrohttpd thread; the waiter thread only keeps the time). */
-#define REPLICA_LOOK_S 0.05
 typedef struct replica_wait {
   fg_server *srv;
   double until; /* fg_time_monotonic() seconds */
@@ -508,7 +504,7 @@ static void replica_finish(fg_req *r, void *ctx, bool timed_out,
         .finish = replica_finish,
         .drop = free,
         .ctx = rw,
-        .deadline = now + REPLICA_LOOK_S < rw->until ? now + REPLICA_LOOK_S
+        .deadline = now + FG_HTTP_REPLICA_LOOK_S < rw->until ? now + FG_HTTP_REPLICA_LOOK_S
                                                      : rw->until};
     return;
   }
@@ -565,7 +561,7 @@ void fg_h_check_cancel(fg_req *r, fg_resp *out) {
     out->pending = (fg_pending){.finish = replica_finish,
                                 .drop = free,
                                 .ctx = rw,
-                                .deadline = fg_time_monotonic() + REPLICA_LOOK_S};
+                                .deadline = fg_time_monotonic() + FG_HTTP_REPLICA_LOOK_S};
     return;
   }
   if (state == FG_CHECK_RUNNING)

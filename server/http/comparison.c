@@ -538,8 +538,7 @@ void fg_h_comparison_get(fg_req *r, fg_resp *out) {
 }
 
 /* A DELETE of a comparison another replica runs, waiting (suspended)
- * for its row to end: the store is read every REPLICA_LOOK_S in finish. */
-#define REPLICA_LOOK_S 0.05
+ * for its row to end: the store is read every FG_HTTP_REPLICA_LOOK_S in finish. */
 typedef struct replica_wait {
   double until; /* fg_time_monotonic() seconds */
   char id[FG_HTTP_PATH_MAX + 1];
@@ -564,7 +563,7 @@ static void replica_finish(fg_req *r, void *ctx, bool timed_out,
         .finish = replica_finish,
         .drop = free,
         .ctx = rw,
-        .deadline = now + REPLICA_LOOK_S < rw->until ? now + REPLICA_LOOK_S
+        .deadline = now + FG_HTTP_REPLICA_LOOK_S < rw->until ? now + FG_HTTP_REPLICA_LOOK_S
                                                      : rw->until};
     return;
   }
@@ -654,7 +653,7 @@ void fg_h_comparison_cancel(fg_req *r, fg_resp *out) {
     out->pending = (fg_pending){.finish = replica_finish,
                                 .drop = free,
                                 .ctx = rw,
-                                .deadline = fg_time_monotonic() + REPLICA_LOOK_S};
+                                .deadline = fg_time_monotonic() + FG_HTTP_REPLICA_LOOK_S};
     return;
   }
   fg_resp_error(out, 409, FG_ECONFLICT,

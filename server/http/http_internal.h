@@ -238,8 +238,6 @@ fg_handler *fg_route(fg_req *r, fg_resp *out);
 fg_role fg_route_role(const char *method, const char *route);
 
 /* ---- query.c ---- */
-/* Longest parameter name kept for a problem message. */
-#define FG_HTTP_PARAM_NAME_MAX 64
 /* Query parameters named names[i] into *slots[i] (first occurrence; NULL
  * when absent). False when a parameter has another name (or an empty
  * one): that name is in `unknown` ("" for the empty one). */

@@ -48,12 +48,6 @@
 #include <strings.h>
 #include <sys/random.h>
 
-/* Seconds the cache of live keys is used before it is reloaded. */
-#define FG_KEYS_REFRESH_S 1.0
-/* Least seconds between two reloads caused by unknown keys: bounds the
- * store reads a client sending wrong keys can cause. */
-#define FG_KEYS_MISS_REFRESH_S 0.05
-
 /* ---- roles ---- */
 
 const char *fg_role_name(fg_role r) {

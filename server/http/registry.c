@@ -43,24 +43,6 @@
 #include <string.h>
 #include <time.h>
 
-/* How often the watcher looks for ended checks: a 202'd check is recorded
- * at most this late. */
-#define FG_REGISTRY_POLL_MS 50
-/* How long cancelled checks get to be recorded at shutdown: the engine
- * ends a cancelled check within FG_STUCK_WORKER_S whatever its workers
- * do, and the store write follows. */
-#define FG_REGISTRY_CANCEL_WAIT_S (FG_STUCK_WORKER_S + 2.0)
-/* On a shared store (several replicas), how often the running checks'
- * bodies are written to the store so that another replica answers a GET
- * with progress at most this old. */
-#define FG_REGISTRY_PROGRESS_MS 1000
-/* How long after a failed store write of a check's end it is tried again
- * (the check stays listed, so GET still answers with its final body). */
-#define FG_REGISTRY_RETRY_MS 1000
-/* Entries one round of the watcher handles, at most (the rest wait for
- * the next round). */
-#define FG_REGISTRY_BATCH 64
-
 typedef struct fg_entry {
   struct fg_entry *next;
   fg_job *job; /* one of job or cmp */

@@ -79,9 +79,6 @@
 
 /* ---- responses ---- */
 
-/* Bytes libmicrohttpd asks a streamed body for at once. */
-#define FG_HTTP_STREAM_BLOCK (32 * 1024)
-
 static void queue(fg_req *r, fg_resp *resp) {
   struct MHD_Response *mr;
   if (resp->reader) {

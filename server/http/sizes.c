@@ -20,20 +20,17 @@
 #include <stdio.h>
 #include <string.h>
 
-/* Query parameters read at most: more than the calculation can use. */
-#define SIZE_QUERY_PARAMS_MAX 32
-
 typedef struct size_args {
   int n;
   bool overflow;
-  const char *names[SIZE_QUERY_PARAMS_MAX];
-  const char *values[SIZE_QUERY_PARAMS_MAX];
+  const char *names[FG_HTTP_SIZE_QUERY_PARAMS_MAX];
+  const char *values[FG_HTTP_SIZE_QUERY_PARAMS_MAX];
 } size_args;
 
 static enum MHD_Result collect(void *cls, enum MHD_ValueKind kind,
                                const char *key, const char *value) {
   size_args *a = cls;
-  if (a->n >= SIZE_QUERY_PARAMS_MAX) {
+  if (a->n >= FG_HTTP_SIZE_QUERY_PARAMS_MAX) {
     a->overflow = true;
     return MHD_YES;
   }
@@ -53,7 +50,7 @@ void fg_h_sample_size(fg_req *r, fg_resp *out) {
     fg_problem_set(&p, FG_EINVAL,
                    "more than %d query parameters; the calculation uses at "
                    "most 4",
-                   SIZE_QUERY_PARAMS_MAX);
+                   FG_HTTP_SIZE_QUERY_PARAMS_MAX);
     fg_resp_problem(out, &p, 400);
     return;
   }
