@@ -60,27 +60,41 @@ static void version_usage(FILE *f) {
   fprintf(f, "usage: feasgate version\nPrints the program's version.\n");
 }
 
+/* `check --server ...` is the remote form (cli/remote.c). */
+static int check_either(int argc, char **argv) {
+  for (int i = 1; i < argc; i++)
+    if (strcmp(argv[i], "--server") == 0 ||
+        strncmp(argv[i], "--server=", 9) == 0)
+      return fg_remote_check_command(argc, argv);
+  return fg_check_command(argc, argv);
+}
+
+/* Every command but version and help: a new command is one line here
+ * (and one in usage()). */
+static const struct {
+  const char *name;
+  int (*run)(int argc, char **argv);
+} commands[] = {
+    {"serve", fg_serve_command},
+    {"check", check_either},
+    {"validate", fg_validate_command},
+    {"explain", fg_explain_command},
+    {"replay", fg_replay_command},
+    {"register", fg_register_command},
+    {"scenarios", fg_scenarios_command},
+    {"sample-size", fg_sample_size_command},
+    {"keys", fg_keys_command},
+};
+
 int main(int argc, char **argv) {
   if (argc < 2) {
     usage(stderr);
     return FG_EXIT_USAGE;
   }
   const char *cmd = argv[1];
-  if (strcmp(cmd, "serve") == 0) return fg_serve_command(argc - 1, argv + 1);
-  if (strcmp(cmd, "check") == 0) {
-    for (int i = 2; i < argc; i++)
-      if (strcmp(argv[i], "--server") == 0 ||
-          strncmp(argv[i], "--server=", 9) == 0)
-        return fg_remote_check_command(argc - 1, argv + 1);
-    return fg_check_command(argc - 1, argv + 1);
-  }
-  if (strcmp(cmd, "keys") == 0) return fg_keys_command(argc - 1, argv + 1);
-  if (strcmp(cmd, "explain") == 0) return fg_explain_command(argc - 1, argv + 1);
-  if (strcmp(cmd, "replay") == 0) return fg_replay_command(argc - 1, argv + 1);
-  if (strcmp(cmd, "register") == 0) return fg_register_command(argc - 1, argv + 1);
-  if (strcmp(cmd, "scenarios") == 0) return fg_scenarios_command(argc - 1, argv + 1);
-  if (strcmp(cmd, "sample-size") == 0) return fg_sample_size_command(argc - 1, argv + 1);
-  if (strcmp(cmd, "validate") == 0) return fg_validate_command(argc - 1, argv + 1);
+  for (size_t i = 0; i < sizeof commands / sizeof *commands; i++)
+    if (strcmp(cmd, commands[i].name) == 0)
+      return commands[i].run(argc - 1, argv + 1);
   if (strcmp(cmd, "version") == 0 || strcmp(cmd, "--version") == 0) {
     if (argc > 2 && (strcmp(argv[2], "--help") == 0 ||
                      strcmp(argv[2], "-h") == 0)) {

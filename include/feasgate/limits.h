@@ -255,7 +255,8 @@
   X(COMPARISON_CANDIDATES, "comparison_candidates", FG_COMPARE_CANDIDATES_MAX) \
   X(COMPARISON_SAMPLES, "comparison_samples", FG_COMPARE_SAMPLES_MAX)          \
   X(FAILING_SCENARIOS, "failing_scenarios", FG_FAILING_SCENARIOS)              \
-  X(FAILING_SCENARIOS_COUNT, "failing_scenarios_count", FG_FAILING_SCENARIOS_MAX) \
+  X(FAILING_SCENARIOS_COUNT, "failing_scenarios_count",                        \
+    FG_FAILING_SCENARIOS_MAX)                                                  \
   X(EXPLAIN_CELLS, "explain_cells", FG_EXPLAIN_CELLS_MAX)                      \
   X(SOBOL_DIMENSIONS, "sobol_dimensions", FG_SOBOL_DIMS_MAX)                   \
   X(SCENARIO_CELLS, "scenario_cells", FG_SCENARIO_CELLS_MAX)                   \

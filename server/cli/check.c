@@ -57,7 +57,8 @@ int fg_check_command(int argc, char **argv) {
         return FG_EXIT_USAGE;
       }
     } else if (strcmp(a, "--samples") == 0 && i + 1 < argc) {
-      if (!fg_cli_parse_u64(argv[++i], FG_MAX_SAMPLES_HARD, &samples) || !samples) {
+      if (!fg_cli_parse_u64(argv[++i], FG_MAX_SAMPLES_HARD, &samples) ||
+          !samples) {
         fprintf(stderr, "feasgate check: --samples: expected a whole number "
                         "from 1 to %llu, found '%s'\n",
                 (unsigned long long)FG_MAX_SAMPLES_HARD, argv[i]);
@@ -78,8 +79,8 @@ int fg_check_command(int argc, char **argv) {
         return FG_EXIT_USAGE;
       }
     } else if (strcmp(a, "--chunk") == 0 && i + 1 < argc) {
-      if (!fg_cli_parse_u64(argv[++i], FG_CHUNK_MAX, &chunk) || chunk < FG_CHUNK_MIN ||
-          chunk % FG_BLOCK) {
+      if (!fg_cli_parse_u64(argv[++i], FG_CHUNK_MAX, &chunk) ||
+          chunk < FG_CHUNK_MIN || chunk % FG_BLOCK) {
         fprintf(stderr, "feasgate check: --chunk: expected a multiple of %d "
                         "from %d to %d, found '%s'\n",
                 FG_BLOCK, FG_CHUNK_MIN, FG_CHUNK_MAX, argv[i]);

@@ -42,7 +42,8 @@ int fg_explain_command(int argc, char **argv) {
     }
   }
   uint64_t index = 0;
-  if (nfiles != 2 || !index_text || !fg_explain_parse_index(index_text, &index)) {
+  if (nfiles != 2 || !index_text ||
+      !fg_explain_parse_index(index_text, &index)) {
     fprintf(stderr,
             "usage: feasgate explain MODEL.json REQUEST.json --index I\n"
             "Prints sample I of the check REQUEST.json describes (its "

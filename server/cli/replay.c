@@ -58,8 +58,8 @@ int fg_replay_command(int argc, char **argv) {
   fg_check_request req;
   bool have_req = false;
   fg_check *chk = NULL;
-  if (fg_store_get_check(st, id, &c, &p) != FG_OK || !fg_replay_has_counts(&c, &p) ||
-      !(orig = cJSON_Parse(c.result))) {
+  if (fg_store_get_check(st, id, &c, &p) != FG_OK ||
+      !fg_replay_has_counts(&c, &p) || !(orig = cJSON_Parse(c.result))) {
     if (!p.status) fg_problem_set(&p, FG_EINTERNAL, "unreadable result");
     fg_cli_print_problem(id, &p, NULL, 0);
     goto out;
@@ -93,8 +93,8 @@ int fg_replay_command(int argc, char **argv) {
                         .created_at = now,
                         .finished_at = now,
                         .replay_of = c.id};
-  cJSON *res = fg_replay_answer(c.id, NULL, orig, fg_check_result_json(chk, &meta),
-                      true);
+  cJSON *res = fg_replay_answer(c.id, NULL, orig,
+                                fg_check_result_json(chk, &meta), true);
   char *s = cJSON_Print(res);
   if (s) puts(s);
   free(s);

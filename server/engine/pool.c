@@ -343,7 +343,8 @@ static void *clock_main(void *arg) {
     struct fg_check *end[FG_POOL_CLOCK_BATCH];
     int nend = 0;
     double now = fg_time_monotonic();
-    for (struct fg_check *c = pool->head, *n; c && nend < FG_POOL_CLOCK_BATCH; c = n) {
+    for (struct fg_check *c = pool->head, *n; c && nend < FG_POOL_CLOCK_BATCH;
+         c = n) {
       n = c->next_in_pool;
       if (c->deadline > 0 && now > c->deadline &&
           !atomic_load(&c->timeout_flag) && !atomic_load(&c->cancel_flag)) {
@@ -435,7 +436,8 @@ void fg_pool_free(fg_pool *pool) {
     set_stop(c);
     /* Checks nobody works on end now; the others when their worker
      * returns, or by the clock when it is stuck. */
-    if (nend < FG_POOL_CLOCK_BATCH && claim_end(pool, c, false)) end[nend++] = c;
+    if (nend < FG_POOL_CLOCK_BATCH && claim_end(pool, c, false))
+      end[nend++] = c;
   }
   pthread_cond_broadcast(&pool->work_cv);
   pthread_cond_signal(&pool->clock_cv);
@@ -455,7 +457,8 @@ void fg_pool_free(fg_pool *pool) {
   }
   /* Whatever is still listed has a stuck worker: end it now. */
   nend = 0;
-  for (struct fg_check *c = pool->head, *n; c && nend < FG_POOL_CLOCK_BATCH; c = n) {
+  for (struct fg_check *c = pool->head, *n; c && nend < FG_POOL_CLOCK_BATCH;
+       c = n) {
     n = c->next_in_pool;
     if (claim_end(pool, c, true)) end[nend++] = c;
   }

@@ -174,10 +174,11 @@ fg_status fg_request_parse(const fg_model *m, const cJSON *body,
       fg_problem_add(p, FG_EINVAL, "/samples", 0,
                      "samples must be a whole number of at least 1");
     else if (n > lim->max_samples)
-      fg_problem_limit(p, "/samples", FG_LIMIT_MAX_SAMPLES, (double)lim->max_samples,
-                       "samples %llu exceeds this server's limit %s = %llu",
-                       (unsigned long long)n, fg_limit_name(FG_LIMIT_MAX_SAMPLES),
-                       (unsigned long long)lim->max_samples);
+      fg_problem_limit(
+          p, "/samples", FG_LIMIT_MAX_SAMPLES, (double)lim->max_samples,
+          "samples %llu exceeds this server's limit %s = %llu",
+          (unsigned long long)n, fg_limit_name(FG_LIMIT_MAX_SAMPLES),
+          (unsigned long long)lim->max_samples);
     else out->samples = n;
   }
   if ((v = cJSON_GetObjectItemCaseSensitive(body, "seed"))) {
@@ -296,7 +297,8 @@ fg_status fg_request_parse(const fg_model *m, const cJSON *body,
                      FG_FAILING_SCENARIOS_MAX);
     else if (k > FG_FAILING_SCENARIOS_MAX)
       fg_problem_limit(p, "/failing_scenarios_count",
-                       FG_LIMIT_FAILING_SCENARIOS_COUNT, FG_FAILING_SCENARIOS_MAX,
+                       FG_LIMIT_FAILING_SCENARIOS_COUNT,
+                       FG_FAILING_SCENARIOS_MAX,
                        "failing_scenarios_count %llu exceeds "
                        "failing_scenarios_count = %d",
                        (unsigned long long)k, FG_FAILING_SCENARIOS_MAX);

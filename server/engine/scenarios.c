@@ -7,8 +7,8 @@
  * the next rows of start .. start+count-1 of (seed, stream) when the last
  * draw is used up -- FG_SCENARIO_STREAM_BYTES of values at a time, at
  * most FG_BLOCK rows (dimension j of row t of a draw at buf[j * rows + t])
- * -- and prints rows until the text holds FG_SCENARIO_STAGE_BYTES bytes; the tail
- * follows the last row. A stream's memory is thus the drawn values, the
+ * -- and prints rows until the text holds FG_SCENARIO_STAGE_BYTES bytes; the
+ * tail follows the last row. A stream's memory is thus the drawn values, the
  * header and FG_SCENARIO_STAGE_BYTES plus one row of text, whatever count is.
  * fg_scenarios_write (the offline command) reads a stream into a sink,
  * and GET .../scenarios hands one to libmicrohttpd, so both print the
@@ -188,8 +188,8 @@ fg_status fg_scenarios_open(fg_model *m, const fg_scenarios_params *q,
     s->integer = malloc((size_t)s->dims);
     s->w = fg_sample_scratch_new(smp);
   }
-  /* The text never holds more than the header, or FG_SCENARIO_STAGE_BYTES bytes plus
-   * one row and the tail: reserved now, so reading never allocates. */
+  /* The text never holds more than the header, or FG_SCENARIO_STAGE_BYTES bytes
+   * plus one row and the tail: reserved now, so reading never allocates. */
   size_t row_max = (size_t)s->dims * SCEN_FIELD_MAX + 8;
   if ((s->dims && (!s->buf || !s->integer || !s->w)) ||
       !reserve(&s->t, FG_SCENARIO_STAGE_BYTES + row_max + 160)) {
@@ -224,8 +224,8 @@ fg_status fg_scenarios_open(fg_model *m, const fg_scenarios_params *q,
   return FG_OK;
 }
 
-/* Refill the (fully read) text: rows until it holds FG_SCENARIO_STAGE_BYTES bytes or
- * the rows run out, then the tail. */
+/* Refill the (fully read) text: rows until it holds FG_SCENARIO_STAGE_BYTES
+ * bytes or the rows run out, then the tail. */
 static void refill(fg_scenarios_stream *s) {
   scen_text *t = &s->t;
   t->len = t->pos = 0;

@@ -59,7 +59,8 @@ static fg_interval cs_small_side(uint64_t k, uint64_t n, double a, double b,
       iv.lower = 0.0; /* the minimum is <= 0 in exact arithmetic; if
                          rounding says otherwise claim nothing */
     } else {
-      for (int i = 0; i < FG_CS_BISECT_MAX && hi - lo > FG_CS_REL_TOL * hi; i++) {
+      for (int i = 0; i < FG_CS_BISECT_MAX && hi - lo > FG_CS_REL_TOL * hi;
+           i++) {
         double mid = 0.5 * (lo + hi);
         if (!(mid > lo && mid < hi)) break;
         if (log_m(mid, k, m, a, b, lbeta0) >= thr) lo = mid;

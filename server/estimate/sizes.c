@@ -200,7 +200,8 @@ fg_status fg_scenario_size(double eps, double beta, uint64_t d, uint64_t k,
   while (fg_scenario_log_bound((double)hi, eps, d, k) > lb) {
     lo = hi;
     if (hi >= max)
-      return fg_problem_limit(pr, "", FG_LIMIT_SAMPLE_SIZE_SCENARIOS, (double)max,
+      return fg_problem_limit(pr, "", FG_LIMIT_SAMPLE_SIZE_SCENARIOS,
+                              (double)max,
                               "epsilon %g and beta %g need more than "
                               "sample_size_scenarios = %llu scenarios",
                               eps, beta, (unsigned long long)max);
@@ -259,13 +260,16 @@ fg_status fg_scenario_epsilon(uint64_t n, double beta, uint64_t d, uint64_t k,
   } else {
     lo = hi / 2;
     for (int it = 0;
-         it < FG_SIZE_BISECT_MAX && fg_scenario_log_bound(nn, lo, d, k) <= lb; it++) {
+         it < FG_SIZE_BISECT_MAX && fg_scenario_log_bound(nn, lo, d, k) <= lb;
+         it++) {
       hi = lo;
       lo /= 2;
       if (lo == 0) break;
     }
   }
-  for (int it = 0; it < FG_SIZE_BISECT_MAX && hi - lo > FG_SIZE_EPS_REL_PRECISION * hi; it++) {
+  for (int it = 0;
+       it < FG_SIZE_BISECT_MAX && hi - lo > FG_SIZE_EPS_REL_PRECISION * hi;
+       it++) {
     double mid = lo + (hi - lo) / 2;
     if (fg_scenario_log_bound(nn, mid, d, k) > lb)
       lo = mid;

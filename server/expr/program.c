@@ -169,7 +169,8 @@ static fg_status build(fg_expr_compiler *c, fg_program *prog, const int *order,
   fg_program_info *info = &prog->info;
   info->nregs = as->next;
   if (info->nregs > FG_PROGRAM_MAX_REGS)
-    return fg_problem_limit(p, "", FG_LIMIT_PROGRAM_REGISTERS, FG_PROGRAM_MAX_REGS,
+    return fg_problem_limit(p, "", FG_LIMIT_PROGRAM_REGISTERS,
+                            FG_PROGRAM_MAX_REGS,
                             "the program needs %d registers, more than %d "
                             "(limit %s)",
                             info->nregs, FG_PROGRAM_MAX_REGS,

@@ -500,12 +500,13 @@ static void replica_finish(fg_req *r, void *ctx, bool timed_out,
   double now = fg_time_monotonic();
   if (state == FG_CHECK_RUNNING && now < rw->until) {
     fg_store_check_clear(&c);
-    out->pending = (fg_pending){
-        .finish = replica_finish,
-        .drop = free,
-        .ctx = rw,
-        .deadline = now + FG_HTTP_REPLICA_LOOK_S < rw->until ? now + FG_HTTP_REPLICA_LOOK_S
-                                                     : rw->until};
+    out->pending =
+        (fg_pending){.finish = replica_finish,
+                     .drop = free,
+                     .ctx = rw,
+                     .deadline = now + FG_HTTP_REPLICA_LOOK_S < rw->until
+                                     ? now + FG_HTTP_REPLICA_LOOK_S
+                                     : rw->until};
     return;
   }
   if (state == FG_CHECK_RUNNING)
@@ -558,10 +559,11 @@ void fg_h_check_cancel(fg_req *r, fg_resp *out) {
     rw->srv = r->srv;
     rw->until = fg_time_monotonic() + FG_HTTP_CANCEL_WAIT_S;
     snprintf(rw->id, sizeof rw->id, "%s", id);
-    out->pending = (fg_pending){.finish = replica_finish,
-                                .drop = free,
-                                .ctx = rw,
-                                .deadline = fg_time_monotonic() + FG_HTTP_REPLICA_LOOK_S};
+    out->pending =
+        (fg_pending){.finish = replica_finish,
+                     .drop = free,
+                     .ctx = rw,
+                     .deadline = fg_time_monotonic() + FG_HTTP_REPLICA_LOOK_S};
     return;
   }
   if (state == FG_CHECK_RUNNING)

@@ -538,7 +538,8 @@ void fg_h_comparison_get(fg_req *r, fg_resp *out) {
 }
 
 /* A DELETE of a comparison another replica runs, waiting (suspended)
- * for its row to end: the store is read every FG_HTTP_REPLICA_LOOK_S in finish. */
+ * for its row to end: the store is read every FG_HTTP_REPLICA_LOOK_S in finish.
+ */
 typedef struct replica_wait {
   double until; /* fg_time_monotonic() seconds */
   char id[FG_HTTP_PATH_MAX + 1];
@@ -559,12 +560,13 @@ static void replica_finish(fg_req *r, void *ctx, bool timed_out,
   double now = fg_time_monotonic();
   if (state == FG_CHECK_RUNNING && now < rw->until) {
     fg_store_comparison_clear(&row);
-    out->pending = (fg_pending){
-        .finish = replica_finish,
-        .drop = free,
-        .ctx = rw,
-        .deadline = now + FG_HTTP_REPLICA_LOOK_S < rw->until ? now + FG_HTTP_REPLICA_LOOK_S
-                                                     : rw->until};
+    out->pending =
+        (fg_pending){.finish = replica_finish,
+                     .drop = free,
+                     .ctx = rw,
+                     .deadline = now + FG_HTTP_REPLICA_LOOK_S < rw->until
+                                     ? now + FG_HTTP_REPLICA_LOOK_S
+                                     : rw->until};
     return;
   }
   if (state == FG_CHECK_RUNNING)
@@ -614,12 +616,12 @@ void fg_h_comparison_cancel(fg_req *r, fg_resp *out) {
     for (int i = 0; i < c->n; i++)
       fg_job_cancel(c->jobs[i]);
     /* The wait for the candidates' ends is suspended (waiter.c). */
-    out->pending = (fg_pending){.ready = jobs_ended,
-                                .finish = cancelled_finish,
-                                .drop = cancelled_drop,
-                                .ctx = c, /* the reference found */
-                                .deadline =
-                                    fg_time_monotonic() + FG_HTTP_CANCEL_WAIT_S};
+    out->pending =
+        (fg_pending){.ready = jobs_ended,
+                     .finish = cancelled_finish,
+                     .drop = cancelled_drop,
+                     .ctx = c, /* the reference found */
+                     .deadline = fg_time_monotonic() + FG_HTTP_CANCEL_WAIT_S};
     return;
   }
   fg_problem p;
@@ -650,10 +652,11 @@ void fg_h_comparison_cancel(fg_req *r, fg_resp *out) {
     }
     rw->until = fg_time_monotonic() + FG_HTTP_CANCEL_WAIT_S;
     snprintf(rw->id, sizeof rw->id, "%s", id);
-    out->pending = (fg_pending){.finish = replica_finish,
-                                .drop = free,
-                                .ctx = rw,
-                                .deadline = fg_time_monotonic() + FG_HTTP_REPLICA_LOOK_S};
+    out->pending =
+        (fg_pending){.finish = replica_finish,
+                     .drop = free,
+                     .ctx = rw,
+                     .deadline = fg_time_monotonic() + FG_HTTP_REPLICA_LOOK_S};
     return;
   }
   fg_resp_error(out, 409, FG_ECONFLICT,

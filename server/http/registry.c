@@ -192,7 +192,8 @@ static void *watch(void *arg) {
   pthread_mutex_lock(&g->lock);
   while (!g->stop) {
     pthread_mutex_unlock(&g->lock);
-    if (shared && fg_time_monotonic() - last_note >= FG_REGISTRY_PROGRESS_MS / 1000.0) {
+    if (shared &&
+        fg_time_monotonic() - last_note >= FG_REGISTRY_PROGRESS_MS / 1000.0) {
       note_progress(g);
       last_note = fg_time_monotonic();
     }

@@ -227,12 +227,14 @@ void fg_h_check_replay(fg_req *r, fg_resp *out) {
       fg_resp_problem(out, &sp, 0);
       goto done;
     }
-    fg_resp_json(out, 201,
-                 fg_replay_answer(c.id, fg_job_id(job), orig, fg_job_body(job), true));
+    fg_resp_json(
+        out, 201,
+        fg_replay_answer(c.id, fg_job_id(job), orig, fg_job_body(job), true));
   } else {
     fg_job_detach(job);
-    fg_resp_json(out, 202,
-                 fg_replay_answer(c.id, fg_job_id(job), orig, fg_job_body(job), false));
+    fg_resp_json(
+        out, 202,
+        fg_replay_answer(c.id, fg_job_id(job), orig, fg_job_body(job), false));
   }
   goto done;
 fail:

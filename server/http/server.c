@@ -391,9 +391,11 @@ int fg_serve_command(int argc, char **argv) {
       free(srv);
       return 3;
     }
-    tls_cert = fg_http_read_pem("--tls-cert", srv->cfg.tls_cert, err, sizeof err);
+    tls_cert =
+        fg_http_read_pem("--tls-cert", srv->cfg.tls_cert, err, sizeof err);
     if (tls_cert)
-      tls_key = fg_http_read_pem("--tls-key", srv->cfg.tls_key, err, sizeof err);
+      tls_key =
+          fg_http_read_pem("--tls-key", srv->cfg.tls_key, err, sizeof err);
     if (!tls_key) {
       fprintf(stderr, "feasgate serve: %s\n", err);
       fg_http_free_pem(tls_cert);
@@ -424,8 +426,8 @@ int fg_serve_command(int argc, char **argv) {
   fg_problem_init(&p);
   char address[INET6_ADDRSTRLEN + 16] = "";
 
-  listen_fd =
-      fg_http_bind_listener(&srv->cfg, address, sizeof address, err, sizeof err);
+  listen_fd = fg_http_bind_listener(&srv->cfg, address, sizeof address, err,
+                                    sizeof err);
   if (listen_fd < 0) {
     fg_log_msg(FG_LOG_ERROR, "start_failed", "%s", err);
     goto cleanup;
