@@ -49,51 +49,27 @@ int fg_replay_command(int argc, char **argv) {
     return 3;
   }
   int rc = 3;
-  fg_store_check c;
-  memset(&c, 0, sizeof c);
-  fg_store_version v;
-  memset(&v, 0, sizeof v);
-  fg_model *m = NULL;
-  cJSON *body = NULL, *orig = NULL;
-  fg_check_request req;
-  bool have_req = false;
+  fg_replay_source src;
   fg_check *chk = NULL;
-  if (fg_store_get_check(st, id, &c, &p) != FG_OK ||
-      !fg_replay_has_counts(&c, &p) || !(orig = cJSON_Parse(c.result))) {
-    if (!p.status) fg_problem_set(&p, FG_EINTERNAL, "unreadable result");
+  if (fg_replay_load(NULL, st, id, &src, &p) != FG_OK) {
     fg_cli_print_problem(id, &p, NULL, 0);
     goto out;
   }
-  if (fg_store_get_version(st, c.model, c.version, &v, &p) != FG_OK ||
-      fg_model_compile(v.document, strlen(v.document), &m, &p) != FG_OK ||
-      fg_json_parse(c.request, strlen(c.request), &body, &p) != FG_OK) {
-    fg_cli_print_problem(id, &p, NULL, 0);
-    goto out;
-  }
-  fg_request_limits lim;
-  fg_replay_limits(&lim);
-  if (fg_request_parse(m, body, &lim, &req, &p) != FG_OK) {
-    fg_cli_print_problem(id, &p, NULL, 0);
-    goto out;
-  }
-  have_req = true;
-  req.seed = c.seed;
-  req.seed_given = true;
   long ncpu = sysconf(_SC_NPROCESSORS_ONLN);
   int workers = ncpu < 1 ? 1 : ncpu > FG_WORKERS_MAX ? FG_WORKERS_MAX
                                                      : (int)ncpu;
-  if (fg_check_run_sync(m, &req, workers, FG_CHUNK_DEFAULT, &chk, &p) !=
+  if (fg_check_run_sync(src.model, &src.req, workers, FG_CHUNK_DEFAULT, &chk, &p) !=
       FG_OK) {
     fg_cli_print_problem(id, &p, NULL, 0);
     goto out;
   }
   char now[32];
   fg_time_now_rfc3339(now, sizeof now);
-  fg_check_meta meta = {.model_version = c.version,
+  fg_check_meta meta = {.model_version = src.check.version,
                         .created_at = now,
                         .finished_at = now,
-                        .replay_of = c.id};
-  cJSON *res = fg_replay_answer(c.id, NULL, orig,
+                        .replay_of = src.check.id};
+  cJSON *res = fg_replay_answer(src.check.id, NULL, src.orig,
                                 fg_check_result_json(chk, &meta), true);
   char *s = cJSON_Print(res);
   if (s) puts(s);
@@ -102,12 +78,7 @@ int fg_replay_command(int argc, char **argv) {
   cJSON_Delete(res);
 out:
   fg_check_unref(chk);
-  if (have_req) fg_request_free(&req);
-  cJSON_Delete(body);
-  cJSON_Delete(orig);
-  if (m) fg_model_unref(m);
-  fg_store_version_clear(&v);
-  fg_store_check_clear(&c);
+  fg_replay_source_clear(&src);
   fg_store_close(st);
   return rc;
 }

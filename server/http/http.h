@@ -50,6 +50,7 @@
 
 #include "feasgate/engine.h"
 #include "feasgate/limits.h"
+#include "store/store.h"
 
 #include <stdbool.h>
 #include <stddef.h>
@@ -92,7 +93,6 @@ int fg_http_config_parse(int argc, char **argv, fg_http_config *cfg, char *err,
 int fg_serve_command(int argc, char **argv);
 
 /* ---- for the command line (cli/) ---- */
-struct fg_store_check;
 /* Limits for re-reading a request that was accepted once: the hard caps,
  * so a request logged under a larger --max-samples still parses after a
  * restart with a smaller one (replay.c). */
@@ -105,6 +105,25 @@ bool fg_replay_has_counts(const struct fg_store_check *c, fg_problem *p);
 struct cJSON *fg_replay_answer(const char *orig_id, const char *replay_id,
                                const struct cJSON *orig_body,
                                struct cJSON *rep_body, bool ended);
+/* What a replay of a logged check runs: the stored check and its
+ * original result, the model version, the stored request parsed with
+ * the hard caps and the seed it ran with (replay.c). */
+typedef struct fg_replay_source {
+  fg_store_check check;
+  bool have_check, have_req;
+  fg_store_version version;
+  fg_model *model;
+  struct cJSON *orig, *body;
+  fg_check_request req;
+} fg_replay_source;
+/* Load it for check `id` from `st`; the model through srv's cache, or
+ * compiled from the stored document when srv is NULL (offline). 404 for
+ * an unknown check, 409 when it has no counts (fg_replay_has_counts). */
+struct fg_server;
+fg_status fg_replay_load(struct fg_server *srv, fg_store *st,
+                         const char *id, fg_replay_source *src,
+                         fg_problem *p);
+void fg_replay_source_clear(fg_replay_source *src);
 /* A sample index: digits only, at most 20 of them (explain.c). */
 bool fg_explain_parse_index(const char *s, uint64_t *out);
 struct fg_store_key;

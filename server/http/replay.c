@@ -171,42 +171,61 @@ cJSON *fg_replay_answer(const char *orig_id, const char *replay_id,
   return o;
 }
 
+fg_status fg_replay_load(fg_server *srv, fg_store *st, const char *id,
+                         fg_replay_source *src, fg_problem *p) {
+  memset(src, 0, sizeof *src);
+  if (fg_store_get_check(st, id, &src->check, p) != FG_OK) return p->status;
+  src->have_check = true;
+  if (!fg_replay_has_counts(&src->check, p)) return p->status;
+  src->orig = cJSON_Parse(src->check.result);
+  if (!src->orig)
+    return fg_problem_set(p, FG_EINTERNAL,
+                          "check %s: its stored result is not JSON", id);
+  const fg_store_check *c = &src->check;
+  if (srv) {
+    if (fg_http_load_model(srv, c->model, c->version, &src->version,
+                           &src->model, p) != FG_OK)
+      return p->status;
+  } else if (fg_store_get_version(st, c->model, c->version, &src->version,
+                                  p) != FG_OK ||
+             fg_model_compile(src->version.document,
+                              strlen(src->version.document), &src->model,
+                              p) != FG_OK) {
+    return p->status;
+  }
+  if (fg_json_parse(c->request, strlen(c->request), &src->body, p) != FG_OK)
+    return p->status;
+  fg_request_limits lim;
+  fg_replay_limits(&lim);
+  if (fg_request_parse(src->model, src->body, &lim, &src->req, p) != FG_OK)
+    return p->status;
+  src->have_req = true;
+  src->req.seed = c->seed;
+  src->req.seed_given = true;
+  return FG_OK;
+}
+
+void fg_replay_source_clear(fg_replay_source *src) {
+  if (src->have_req) fg_request_free(&src->req);
+  cJSON_Delete(src->body);
+  cJSON_Delete(src->orig);
+  if (src->model) fg_model_unref(src->model);
+  fg_store_version_clear(&src->version);
+  if (src->have_check) fg_store_check_clear(&src->check);
+  memset(src, 0, sizeof *src);
+}
+
 void fg_h_check_replay(fg_req *r, fg_resp *out) {
   fg_server *srv = r->srv;
   const char *id = r->params[0];
   fg_problem p;
   fg_problem_init(&p);
-  fg_store_check c;
-  if (fg_store_get_check(srv->store, id, &c, &p) != FG_OK) {
-    fg_resp_problem(out, &p, 0);
-    return;
-  }
-  fg_store_version v;
-  memset(&v, 0, sizeof v);
-  fg_model *m = NULL;
-  cJSON *body = NULL, *orig = NULL;
-  fg_check_request req;
-  bool have_req = false;
+  fg_replay_source src;
   fg_job *job = NULL;
-  if (!fg_replay_has_counts(&c, &p)) goto fail;
-  orig = cJSON_Parse(c.result);
-  if (!orig) {
-    fg_problem_set(&p, FG_EINTERNAL, "check %s: its stored result is not "
-                                     "JSON",
-                   id);
-    goto fail;
-  }
-  if (fg_http_load_model(srv, c.model, c.version, &v, &m, &p) != FG_OK)
-    goto fail;
-  if (fg_json_parse(c.request, strlen(c.request), &body, &p) != FG_OK)
-    goto fail;
-  fg_request_limits lim;
-  fg_replay_limits(&lim);
-  if (fg_request_parse(m, body, &lim, &req, &p) != FG_OK) goto fail;
-  have_req = true;
-  req.seed = c.seed;
-  req.seed_given = true;
-  req.max_seconds = srv->cfg.max_check_s;
+  if (fg_replay_load(srv, srv->store, id, &src, &p) != FG_OK) goto fail;
+  const fg_store_check *cs = &src.check;
+  fg_check_request *req = &src.req;
+  req->max_seconds = srv->cfg.max_check_s;
   if (fg_pool_queued(srv->pool) >= srv->cfg.queue) {
     fg_problem_set(&p, FG_EBUSY,
                    "the check queue is full (%d checks waiting or running); "
@@ -214,8 +233,8 @@ void fg_h_check_replay(fg_req *r, fg_resp *out) {
                    srv->cfg.queue);
     goto fail;
   }
-  if (fg_job_start_replay(srv, &v, m, &req, r->key_name, c.id, &job, &p) !=
-      FG_OK)
+  if (fg_job_start_replay(srv, &src.version, src.model, req, r->key_name,
+                          cs->id, &job, &p) != FG_OK)
     goto fail;
   snprintf(out->location, sizeof out->location, "/v1/checks/%s",
            fg_job_id(job));
@@ -229,22 +248,19 @@ void fg_h_check_replay(fg_req *r, fg_resp *out) {
     }
     fg_resp_json(
         out, 201,
-        fg_replay_answer(c.id, fg_job_id(job), orig, fg_job_body(job), true));
+        fg_replay_answer(cs->id, fg_job_id(job), src.orig, fg_job_body(job),
+                         true));
   } else {
     fg_job_detach(job);
     fg_resp_json(
         out, 202,
-        fg_replay_answer(c.id, fg_job_id(job), orig, fg_job_body(job), false));
+        fg_replay_answer(cs->id, fg_job_id(job), src.orig, fg_job_body(job),
+                         false));
   }
   goto done;
 fail:
   fg_resp_problem(out, &p, 0);
 done:
   fg_job_unref(job);
-  if (have_req) fg_request_free(&req);
-  cJSON_Delete(body);
-  cJSON_Delete(orig);
-  if (m) fg_model_unref(m);
-  fg_store_version_clear(&v);
-  fg_store_check_clear(&c);
+  fg_replay_source_clear(&src);
 }
