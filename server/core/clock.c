@@ -15,6 +15,7 @@
 #include "feasgate/limits.h"
 
 #include <stdatomic.h>
+#include <stdbool.h>
 #include <stdio.h>
 #include <sys/random.h>
 #include <unistd.h>
@@ -66,16 +67,8 @@ static void wall_parts(time_t *sec, int *ms) {
   *ms = (int)(ts.tv_nsec / 1000000L) % 1000;
 }
 
-void fg_time_now_rfc3339(char *buf, size_t cap) {
-  time_t sec;
-  int ms;
-  wall_parts(&sec, &ms);
-  struct tm tm;
-  gmtime_r(&sec, &tm);
-  strftime(buf, cap, "%Y-%m-%dT%H:%M:%SZ", &tm);
-}
-
-void fg_time_now_rfc3339_ms(char *buf, size_t cap) {
+/* "YYYY-MM-DDTHH:MM:SS" then ".mmmZ" (with_ms) or "Z". */
+static void rfc3339(char *buf, size_t cap, bool with_ms) {
   time_t sec;
   int ms;
   wall_parts(&sec, &ms);
@@ -83,7 +76,16 @@ void fg_time_now_rfc3339_ms(char *buf, size_t cap) {
   gmtime_r(&sec, &tm);
   char base[32];
   strftime(base, sizeof base, "%Y-%m-%dT%H:%M:%S", &tm);
-  snprintf(buf, cap, "%s.%03dZ", base, ms);
+  if (with_ms)
+    snprintf(buf, cap, "%s.%03dZ", base, ms);
+  else
+    snprintf(buf, cap, "%sZ", base);
+}
+
+void fg_time_now_rfc3339(char *buf, size_t cap) { rfc3339(buf, cap, false); }
+
+void fg_time_now_rfc3339_ms(char *buf, size_t cap) {
+  rfc3339(buf, cap, true);
 }
 
 void fg_clock_abs_deadline(struct timespec *ts, double seconds) {
