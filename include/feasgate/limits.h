@@ -229,6 +229,10 @@
 #define FG_T_DF_MIN 1.0
 #define FG_T_DF_MAX 1e12
 
+/* Largest poisson mean and binomial trials: draws are GSL unsigned ints,
+ * and inverse-CDF searches stay short below this. */
+#define FG_COUNT_PARAM_MAX 1e9
+
 /* The limits a client can run into, as (ID, name, value): GET /v1/limits
  * lists them and a 400/413 names the one reached (fg_problem_limit with
  * FG_LIMIT_<ID>). The enum fg_limit below is generated from these two
