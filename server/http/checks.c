@@ -56,16 +56,12 @@ static uint64_t id_last_ms;
 static uint8_t id_last_rand[10];
 
 void fg_http_new_id(const char *prefix, char out[40]) {
-  struct timespec ts;
-  clock_gettime(CLOCK_REALTIME, &ts);
-  uint64_t ms = (uint64_t)ts.tv_sec * 1000u + (uint64_t)ts.tv_nsec / 1000000u;
+  uint64_t ms = (uint64_t)floor(fg_time_wall() * 1000.0);
+  /* 80 random bits from the seed source (53 bits a draw): 6 + 4 bytes. */
   uint8_t rnd[10];
-  if (getrandom(rnd, sizeof rnd, 0) != (ssize_t)sizeof rnd) {
-    /* No entropy: fall back to the clock; monotonicity still holds. */
-    uint64_t x = (uint64_t)ts.tv_nsec * 0x9E3779B97F4A7C15ull;
-    for (size_t i = 0; i < sizeof rnd; i++)
-      rnd[i] = (uint8_t)(x >> (i * 6));
-  }
+  uint64_t r0 = fg_seed_draw(), r1 = fg_seed_draw();
+  for (int i = 0; i < 6; i++) rnd[i] = (uint8_t)(r0 >> (8 * i));
+  for (int i = 0; i < 4; i++) rnd[6 + i] = (uint8_t)(r1 >> (8 * i));
   pthread_mutex_lock(&id_lock);
   if (ms <= id_last_ms) {
     ms = id_last_ms;
@@ -268,7 +264,7 @@ void fg_h_checks_create(fg_req *r, fg_resp *out) {
                                 .finish = create_finish,
                                 .drop = create_drop,
                                 .ctx = job,
-                                .deadline = fg_http_now() + req.wait_s};
+                                .deadline = fg_time_monotonic() + req.wait_s};
     job = NULL; /* the wait owns the reference */
     goto done;
   }
@@ -387,7 +383,7 @@ static void get_answer(fg_server *srv, const char *id, bool look_again,
                                   .finish = get_finish,
                                   .drop = free,
                                   .ctx = gw,
-                                  .deadline = fg_http_now() +
+                                  .deadline = fg_time_monotonic() +
                                               FG_HTTP_LIVE_RETRIES * 0.002};
       return;
     }
@@ -473,7 +469,7 @@ static void cancel_here(fg_req *r, fg_job *job, fg_resp *out) {
                        .finish = cancel_finish,
                        .drop = cancel_drop,
                        .ctx = cw,
-                       .deadline = fg_http_now() + FG_HTTP_CANCEL_WAIT_S};
+                       .deadline = fg_time_monotonic() + FG_HTTP_CANCEL_WAIT_S};
       return;
     }
     cancel_answer(r->srv, job, out);
@@ -483,13 +479,9 @@ static void cancel_here(fg_req *r, fg_job *job, fg_resp *out) {
                 id, fg_check_state_name(fg_job_final_state(job)));
 }
 
-/* A DELETE of a check another replica runs, waiting (suspended) for its
- * record to end: the store is read every REPLICA_LOOK_S (in finish, on a
- * libmicrohttpd thread; the waiter thread only keeps the time). */
-#define REPLICA_LOOK_S 0.05
 typedef struct replica_wait {
   fg_server *srv;
-  double until; /* fg_http_now() seconds */
+  double until; /* fg_time_monotonic() seconds */
   char id[FG_HTTP_PATH_MAX + 1];
 } replica_wait;
 
@@ -505,15 +497,16 @@ static void replica_finish(fg_req *r, void *ctx, bool timed_out,
     return;
   }
   fg_check_state state = fg_check_state_parse(c.status);
-  double now = fg_http_now();
+  double now = fg_time_monotonic();
   if (state == FG_CHECK_RUNNING && now < rw->until) {
     fg_store_check_clear(&c);
-    out->pending = (fg_pending){
-        .finish = replica_finish,
-        .drop = free,
-        .ctx = rw,
-        .deadline = now + REPLICA_LOOK_S < rw->until ? now + REPLICA_LOOK_S
-                                                     : rw->until};
+    out->pending =
+        (fg_pending){.finish = replica_finish,
+                     .drop = free,
+                     .ctx = rw,
+                     .deadline = now + FG_HTTP_REPLICA_LOOK_S < rw->until
+                                     ? now + FG_HTTP_REPLICA_LOOK_S
+                                     : rw->until};
     return;
   }
   if (state == FG_CHECK_RUNNING)
@@ -564,12 +557,13 @@ void fg_h_check_cancel(fg_req *r, fg_resp *out) {
       return;
     }
     rw->srv = r->srv;
-    rw->until = fg_http_now() + FG_HTTP_CANCEL_WAIT_S;
+    rw->until = fg_time_monotonic() + FG_HTTP_CANCEL_WAIT_S;
     snprintf(rw->id, sizeof rw->id, "%s", id);
-    out->pending = (fg_pending){.finish = replica_finish,
-                                .drop = free,
-                                .ctx = rw,
-                                .deadline = fg_http_now() + REPLICA_LOOK_S};
+    out->pending =
+        (fg_pending){.finish = replica_finish,
+                     .drop = free,
+                     .ctx = rw,
+                     .deadline = fg_time_monotonic() + FG_HTTP_REPLICA_LOOK_S};
     return;
   }
   if (state == FG_CHECK_RUNNING)

@@ -446,7 +446,7 @@ void fg_h_comparisons_create(fg_req *r, fg_resp *out) {
                                 .finish = created_finish,
                                 .drop = created_drop,
                                 .ctx = fg_comparison_ref(c),
-                                .deadline = fg_http_now() + wait_s -
+                                .deadline = fg_time_monotonic() + wait_s -
                                             (fg_time_monotonic() - t0)};
     goto done;
   }
@@ -538,10 +538,10 @@ void fg_h_comparison_get(fg_req *r, fg_resp *out) {
 }
 
 /* A DELETE of a comparison another replica runs, waiting (suspended)
- * for its row to end: the store is read every REPLICA_LOOK_S in finish. */
-#define REPLICA_LOOK_S 0.05
+ * for its row to end: the store is read every FG_HTTP_REPLICA_LOOK_S in finish.
+ */
 typedef struct replica_wait {
-  double until; /* fg_http_now() seconds */
+  double until; /* fg_time_monotonic() seconds */
   char id[FG_HTTP_PATH_MAX + 1];
 } replica_wait;
 
@@ -557,15 +557,16 @@ static void replica_finish(fg_req *r, void *ctx, bool timed_out,
     return;
   }
   fg_check_state state = fg_check_state_parse(row.status);
-  double now = fg_http_now();
+  double now = fg_time_monotonic();
   if (state == FG_CHECK_RUNNING && now < rw->until) {
     fg_store_comparison_clear(&row);
-    out->pending = (fg_pending){
-        .finish = replica_finish,
-        .drop = free,
-        .ctx = rw,
-        .deadline = now + REPLICA_LOOK_S < rw->until ? now + REPLICA_LOOK_S
-                                                     : rw->until};
+    out->pending =
+        (fg_pending){.finish = replica_finish,
+                     .drop = free,
+                     .ctx = rw,
+                     .deadline = now + FG_HTTP_REPLICA_LOOK_S < rw->until
+                                     ? now + FG_HTTP_REPLICA_LOOK_S
+                                     : rw->until};
     return;
   }
   if (state == FG_CHECK_RUNNING)
@@ -615,12 +616,12 @@ void fg_h_comparison_cancel(fg_req *r, fg_resp *out) {
     for (int i = 0; i < c->n; i++)
       fg_job_cancel(c->jobs[i]);
     /* The wait for the candidates' ends is suspended (waiter.c). */
-    out->pending = (fg_pending){.ready = jobs_ended,
-                                .finish = cancelled_finish,
-                                .drop = cancelled_drop,
-                                .ctx = c, /* the reference found */
-                                .deadline =
-                                    fg_http_now() + FG_HTTP_CANCEL_WAIT_S};
+    out->pending =
+        (fg_pending){.ready = jobs_ended,
+                     .finish = cancelled_finish,
+                     .drop = cancelled_drop,
+                     .ctx = c, /* the reference found */
+                     .deadline = fg_time_monotonic() + FG_HTTP_CANCEL_WAIT_S};
     return;
   }
   fg_problem p;
@@ -649,12 +650,13 @@ void fg_h_comparison_cancel(fg_req *r, fg_resp *out) {
                     "out of memory waiting for comparison %s to stop", id);
       return;
     }
-    rw->until = fg_http_now() + FG_HTTP_CANCEL_WAIT_S;
+    rw->until = fg_time_monotonic() + FG_HTTP_CANCEL_WAIT_S;
     snprintf(rw->id, sizeof rw->id, "%s", id);
-    out->pending = (fg_pending){.finish = replica_finish,
-                                .drop = free,
-                                .ctx = rw,
-                                .deadline = fg_http_now() + REPLICA_LOOK_S};
+    out->pending =
+        (fg_pending){.finish = replica_finish,
+                     .drop = free,
+                     .ctx = rw,
+                     .deadline = fg_time_monotonic() + FG_HTTP_REPLICA_LOOK_S};
     return;
   }
   fg_resp_error(out, 409, FG_ECONFLICT,

@@ -37,6 +37,8 @@
  *
  * Thread use: any thread; the store's lock guards only the pool's flags.
  */
+#include "feasgate/clock.h"
+#include "feasgate/limits.h"
 #include "store/backend.h"
 
 #include <libpq-fe.h>
@@ -45,24 +47,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
-#include <time.h>
 
-/* Connections per daemon: calls from several request threads run at once
- * up to this many; the rest wait for one to be given back. Opened when
- * first needed. */
-#define FG_PG_POOL 4
-/* Longest store URL kept (libpq reads the URL itself). */
-#define FG_PG_URL_MAX 4096
-/* How long one statement, one wait for a row lock, and one connection
- * attempt may take: a database that hangs must not hold a connection (and
- * so, once all are taken, every request) for ever. A URL's own
- * connect_timeout wins. */
-#define FG_PG_STATEMENT_TIMEOUT_MS 30000
-#define FG_PG_LOCK_TIMEOUT_MS 10000
-#define FG_PG_CONNECT_TIMEOUT_S "10"
-/* After a failed reconnection, calls fail at once for this long instead of
- * each trying again (and waiting out the connect time-out). */
-#define FG_PG_RETRY_MS 1000
 /* The advisory lock key held while creating the schema ("fgst"). */
 #define FG_PG_SCHEMA_LOCK "1718055796" /* 0x66677374 */
 /* Parameters of one statement at most. */
@@ -78,7 +63,7 @@ typedef struct pg_conn {
   PGconn *conn;  /* NULL until first needed */
   bool prepared; /* the statements exist on this connection */
   bool busy;
-  struct timespec reset_failed; /* last failed (re)connection (monotonic) */
+  double reset_failed; /* last failed (re)connection, fg_time_monotonic */
   bool reset_failed_set;
   PGresult *res; /* the query being read, and its row */
   int row;
@@ -161,12 +146,6 @@ static void set_session(pg_conn *s) {
   command(s, sql, "session settings", NULL);
 }
 
-static double since_s(const struct timespec *t) {
-  struct timespec now;
-  clock_gettime(CLOCK_MONOTONIC, &now);
-  return (double)(now.tv_sec - t->tv_sec) + (now.tv_nsec - t->tv_nsec) * 1e-9;
-}
-
 /* Opens the connection of slot `s` (keywords before "dbname" are defaults
  * the URL may override). */
 static void open_conn(pg_conn *s) {
@@ -182,7 +161,7 @@ static void open_conn(pg_conn *s) {
 static fg_status ready(pg_conn *s, fg_problem *p) {
   if (!s->conn || PQstatus(s->conn) != CONNECTION_OK) {
     if (s->reset_failed_set &&
-        since_s(&s->reset_failed) < FG_PG_RETRY_MS / 1000.0)
+        fg_time_monotonic() - s->reset_failed < FG_PG_RETRY_MS / 1000.0)
       return fg_problem_set(p, FG_EIO,
                             "store postgresql: connection lost; trying again "
                             "at most every %d ms",
@@ -193,7 +172,7 @@ static fg_status ready(pg_conn *s, fg_problem *p) {
       open_conn(s);
     s->prepared = false;
     if (!s->conn || PQstatus(s->conn) != CONNECTION_OK) {
-      clock_gettime(CLOCK_MONOTONIC, &s->reset_failed);
+      s->reset_failed = fg_time_monotonic();
       s->reset_failed_set = true;
       return fault(s, p, "connection lost and not re-established", NULL);
     }

@@ -21,34 +21,24 @@
  *   clocks do not matter) and every FG_REPLICA_SWEEP_MS marks interrupted
  *   the running checks and comparisons whose owner's heartbeat is older
  *   than FG_REPLICA_STALE_S (a replica that died or lost the database),
- *   and removes instance rows silent for FG_REPLICA_KEEP_S. A cancel asked
- *   through another replica sets the check's `cancel_requested`; the owner
- *   reads its requests every second (fg_store_cancel_requests) and
- *   cancels. A daemon that stops cleanly removes its instance row. Tools
+ *   and removes instance rows silent for FG_REPLICA_KEEP_S (all in
+ *   limits.h). A cancel asked through another replica sets the check's
+ *   `cancel_requested`; the owner reads its requests every second
+ *   (fg_store_cancel_requests) and cancels. A daemon that stops cleanly removes its instance row. Tools
  *   that only open the store (`feasgate keys`) are no instance.
  *
  * Thread use: any thread; the store's lock guards the upkeep fields and is
  * never held while a connection is used. The upkeep thread takes a
  * connection for each beat.
  */
+#include "feasgate/clock.h"
+#include "feasgate/limits.h"
 #include "store/db.h"
 
 #include <stdio.h>
 #include <string.h>
 #include <sys/random.h>
-#include <time.h>
 #include <unistd.h>
-
-/* How often a daemon says it is alive, how often it looks for checks of
- * replicas that stopped doing so, and how long a silent replica counts as
- * alive: a few missed beats (a database failover, a long pause) must not
- * interrupt a replica's checks, and a dead replica's checks should not stay
- * `running` for long. */
-#define FG_REPLICA_HEARTBEAT_MS 2000
-#define FG_REPLICA_SWEEP_MS 5000
-#define FG_REPLICA_STALE_S 10
-/* Instance rows older than this are removed by the sweep. */
-#define FG_REPLICA_KEEP_S 86400
 
 fg_status fg_replica_init(fg_store *s, fg_problem *p) {
   uint8_t rnd[16];
@@ -109,13 +99,7 @@ static void *upkeep_main(void *arg) {
   pthread_mutex_lock(&s->lock);
   while (!s->stopping) {
     struct timespec until;
-    clock_gettime(CLOCK_REALTIME, &until);
-    until.tv_sec += FG_REPLICA_HEARTBEAT_MS / 1000;
-    until.tv_nsec += (FG_REPLICA_HEARTBEAT_MS % 1000) * 1000000L;
-    if (until.tv_nsec >= 1000000000L) {
-      until.tv_sec++;
-      until.tv_nsec -= 1000000000L;
-    }
+    fg_clock_abs_deadline(&until, FG_REPLICA_HEARTBEAT_MS / 1000.0);
     while (!s->stopping &&
            pthread_cond_timedwait(&s->stop_cv, &s->lock, &until) == 0) {
     }

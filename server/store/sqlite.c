@@ -31,6 +31,7 @@
  *
  * Thread use: any thread; see the mutex above.
  */
+#include "feasgate/limits.h"
 #include "store/backend.h"
 
 #include <errno.h>
@@ -43,13 +44,6 @@
 #include <string.h>
 #include <sys/stat.h>
 #include <unistd.h>
-
-/* How long a statement waits for a lock held by another connection before
- * giving up with FG_EBUSY: long enough to ride out a checkpoint or a CLI
- * reader, short enough that an HTTP request does not hang. */
-#define FG_SQLITE_BUSY_MS 5000
-/* Characters of a store path ("sqlite:" prefix removed). */
-#define FG_SQLITE_PATH_MAX 4096
 
 enum { TX_BEGIN, TX_COMMIT, TX_ROLLBACK, TX_COUNT };
 static const char *const tx_sql[TX_COUNT] = {"BEGIN IMMEDIATE", "COMMIT",

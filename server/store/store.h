@@ -182,7 +182,7 @@ void fg_store_checks_free(fg_store_check *c, int n);
  * that is gone become "interrupted"; *count says how many. SQLite: every
  * running check (one daemon per file). PostgreSQL: this registers the
  * daemon as an instance and starts its heartbeat; running checks of
- * instances silent for FG_REPLICA_STALE_S (replicas.c) are marked now and by a
+ * instances silent for FG_REPLICA_STALE_S (limits.h) are marked now and by a
  * sweep every few seconds for as long as the store is open. */
 fg_status fg_store_mark_interrupted(fg_store *s, int *count, fg_problem *p);
 
