@@ -479,49 +479,26 @@ static void cancel_here(fg_req *r, fg_job *job, fg_resp *out) {
                 id, fg_check_state_name(fg_job_final_state(job)));
 }
 
-typedef struct replica_wait {
-  fg_server *srv;
-  double until; /* fg_time_monotonic() seconds */
-  char id[FG_HTTP_PATH_MAX + 1];
-} replica_wait;
-
-static void replica_finish(fg_req *r, void *ctx, bool timed_out,
-                           fg_resp *out) {
-  replica_wait *rw = ctx;
+/* Another replica's check, read from the store (fg_replica_look). */
+static bool look_check(fg_req *r, const char *id, fg_resp *out) {
   fg_problem p;
   fg_problem_init(&p);
   fg_store_check c;
-  if (fg_store_get_check(rw->srv->store, rw->id, &c, &p) != FG_OK) {
+  if (fg_store_get_check(r->srv->store, id, &c, &p) != FG_OK) {
     fg_resp_problem(out, &p, 0);
-    free(rw);
-    return;
+    return true;
   }
   fg_check_state state = fg_check_state_parse(c.status);
-  double now = fg_time_monotonic();
-  if (state == FG_CHECK_RUNNING && now < rw->until) {
-    fg_store_check_clear(&c);
-    out->pending =
-        (fg_pending){.finish = replica_finish,
-                     .drop = free,
-                     .ctx = rw,
-                     .deadline = now + FG_HTTP_REPLICA_LOOK_S < rw->until
-                                     ? now + FG_HTTP_REPLICA_LOOK_S
-                                     : rw->until};
-    return;
-  }
-  if (state == FG_CHECK_RUNNING)
-    fg_resp_error(out, 503, FG_EBUSY,
-                  "check %s runs in another replica, which was asked to "
-                  "stop it but has not within %g s; GET it shortly",
-                  rw->id, FG_HTTP_CANCEL_WAIT_S);
-  else if (state == FG_CHECK_CANCELLED) {
+  bool answered = state != FG_CHECK_RUNNING;
+  if (state == FG_CHECK_CANCELLED) {
     if (!send_stored_result(out, &c))
       fg_resp_json(out, 200, check_summary(&c));
-  } else
+  } else if (answered) {
     fg_resp_error(out, 409, FG_ECONFLICT,
-                  "check %s is not running: it ended %s", rw->id, c.status);
+                  "check %s is not running: it ended %s", id, c.status);
+  }
   fg_store_check_clear(&c);
-  free(rw);
+  return answered;
 }
 
 void fg_h_check_cancel(fg_req *r, fg_resp *out) {
@@ -550,20 +527,7 @@ void fg_h_check_cancel(fg_req *r, fg_resp *out) {
       return;
     }
     fg_store_check_clear(&c);
-    replica_wait *rw = malloc(sizeof *rw);
-    if (!rw) {
-      fg_resp_error(out, 503, FG_ENOMEM,
-                    "out of memory waiting for check %s to stop", id);
-      return;
-    }
-    rw->srv = r->srv;
-    rw->until = fg_time_monotonic() + FG_HTTP_CANCEL_WAIT_S;
-    snprintf(rw->id, sizeof rw->id, "%s", id);
-    out->pending =
-        (fg_pending){.finish = replica_finish,
-                     .drop = free,
-                     .ctx = rw,
-                     .deadline = fg_time_monotonic() + FG_HTTP_REPLICA_LOOK_S};
+    fg_replica_wait("check", id, look_check, out);
     return;
   }
   if (state == FG_CHECK_RUNNING)
