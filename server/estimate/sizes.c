@@ -53,6 +53,21 @@ static bool open_unit(double x) {
   return x > 0 && x < 1;
 }
 
+/* ceil(n), at least 1, or the sample_size_samples limit naming `what`. */
+static fg_status whole_samples(double n, const char *what, double *samples,
+                               fg_problem *pr) {
+  n = ceil(n);
+  if (n < 1) n = 1;
+  if (!(n <= (double)FG_SIZE_SAMPLES_MAX))
+    return fg_problem_limit(pr, "", FG_LIMIT_SAMPLE_SIZE_SAMPLES,
+                            (double)FG_SIZE_SAMPLES_MAX,
+                            "%s needs %.3g samples, more than %s = %.0f", what,
+                            n, fg_limit_name(FG_LIMIT_SAMPLE_SIZE_SAMPLES),
+                            (double)FG_SIZE_SAMPLES_MAX);
+  *samples = n;
+  return FG_OK;
+}
+
 fg_status fg_size_half_width(double h, double confidence, double p,
                              double *samples, fg_problem *pr) {
   *samples = NAN;
@@ -74,16 +89,9 @@ fg_status fg_size_half_width(double h, double confidence, double p,
                           "found %g",
                           p);
   double z = z_upper((1 - confidence) / 2);
-  double n = ceil(z * z * p * (1 - p) / (h * h));
-  if (n < 1) n = 1;
-  if (!(n <= (double)FG_SIZE_SAMPLES_MAX))
-    return fg_problem_limit(pr, "", FG_LIMIT_SAMPLE_SIZE_SAMPLES,
-                            (double)FG_SIZE_SAMPLES_MAX,
-                            "half_width %g needs %.3g samples, more than "
-                            "sample_size_samples = %.0f",
-                            h, n, (double)FG_SIZE_SAMPLES_MAX);
-  *samples = n;
-  return FG_OK;
+  char what[64];
+  snprintf(what, sizeof what, "half_width %g", h);
+  return whole_samples(z * z * p * (1 - p) / (h * h), what, samples, pr);
 }
 
 fg_status fg_size_power(double target, double p, double confidence,
@@ -111,16 +119,9 @@ fg_status fg_size_power(double target, double p, double confidence,
   double za = z_upper((1 - confidence) / 2), zp = z_upper(1 - power);
   double r = (za * sqrt(target * (1 - target)) + zp * sqrt(p * (1 - p))) /
              (p - target);
-  double n = ceil(r * r);
-  if (n < 1) n = 1;
-  if (!(n <= (double)FG_SIZE_SAMPLES_MAX))
-    return fg_problem_limit(pr, "", FG_LIMIT_SAMPLE_SIZE_SAMPLES,
-                            (double)FG_SIZE_SAMPLES_MAX,
-                            "probability %g against target %g needs %.3g "
-                            "samples, more than sample_size_samples = %.0f",
-                            p, target, n, (double)FG_SIZE_SAMPLES_MAX);
-  *samples = n;
-  return FG_OK;
+  char what[96];
+  snprintf(what, sizeof what, "probability %g against target %g", p, target);
+  return whole_samples(r * r, what, samples, pr);
 }
 
 /* ---- the scenario-approach bound ---- */
