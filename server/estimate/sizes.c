@@ -53,6 +53,14 @@ static bool open_unit(double x) {
   return x > 0 && x < 1;
 }
 
+/* The limit `which` (of value max) exceeded by parameter `param` = v. */
+static fg_status over_limit(fg_problem *pr, fg_limit which, const char *param,
+                            uint64_t v, uint64_t max) {
+  return fg_problem_limit(
+      pr, "", which, (double)max, "%s %llu exceeds %s = %llu", param,
+      (unsigned long long)v, fg_limit_name(which), (unsigned long long)max);
+}
+
 /* ceil(n), at least 1, or the sample_size_samples limit naming `what`. */
 static fg_status whole_samples(double n, const char *what, double *samples,
                                fg_problem *pr) {
@@ -171,17 +179,11 @@ static fg_status check_scenario_inputs(double beta, uint64_t d, uint64_t k,
                           "decisions must be at least 1, found %llu",
                           (unsigned long long)d);
   if (d > FG_SIZE_DECISIONS_MAX)
-    return fg_problem_limit(
-        pr, "", FG_LIMIT_SAMPLE_SIZE_DECISIONS, (double)FG_SIZE_DECISIONS_MAX,
-        "decisions %llu exceeds sample_size_decisions = "
-        "%llu",
-        (unsigned long long)d, (unsigned long long)FG_SIZE_DECISIONS_MAX);
+    return over_limit(pr, FG_LIMIT_SAMPLE_SIZE_DECISIONS, "decisions", d,
+                      FG_SIZE_DECISIONS_MAX);
   if (k > FG_SIZE_DISCARDED_MAX)
-    return fg_problem_limit(
-        pr, "", FG_LIMIT_SAMPLE_SIZE_DISCARDED, (double)FG_SIZE_DISCARDED_MAX,
-        "discarded %llu exceeds sample_size_discarded = "
-        "%llu",
-        (unsigned long long)k, (unsigned long long)FG_SIZE_DISCARDED_MAX);
+    return over_limit(pr, FG_LIMIT_SAMPLE_SIZE_DISCARDED, "discarded", k,
+                      FG_SIZE_DISCARDED_MAX);
   return FG_OK;
 }
 
@@ -225,11 +227,8 @@ fg_status fg_scenario_epsilon(uint64_t n, double beta, uint64_t d, uint64_t k,
   fg_status st = check_scenario_inputs(beta, d, k, pr);
   if (st != FG_OK) return st;
   if (n > FG_SIZE_SCENARIOS_MAX)
-    return fg_problem_limit(
-        pr, "", FG_LIMIT_SAMPLE_SIZE_SCENARIOS, (double)FG_SIZE_SCENARIOS_MAX,
-        "scenarios %llu exceeds sample_size_scenarios = "
-        "%llu",
-        (unsigned long long)n, (unsigned long long)FG_SIZE_SCENARIOS_MAX);
+    return over_limit(pr, FG_LIMIT_SAMPLE_SIZE_SCENARIOS, "scenarios", n,
+                      FG_SIZE_SCENARIOS_MAX);
   if (n <= k + d - 1)
     return fg_problem_add(pr, FG_EINVAL, "", 0,
                           "scenarios must exceed decisions + discarded - 1 = "
