@@ -17,11 +17,11 @@
 #include <string.h>
 #include <unistd.h>
 
+/* FEASGATE_STORE stands in for --store. */
 static const char usage_text[] =
     "usage: feasgate replay --store STORE CHECK_ID\n"
-    "Re-runs a logged check's request on its model version and "
-    "prints whether\nevery count is reproduced (exit 0) or not "
-    "(exit 1).\n";
+    "Re-runs a logged check's request on its model version and prints "
+    "whether\nevery count is reproduced (exit 0) or not (exit 1).\n";
 
 int fg_replay_command(int argc, char **argv) {
   const char *url = getenv("FEASGATE_STORE"), *id = NULL;
