@@ -216,6 +216,17 @@ int fg_waiter_count(fg_server *srv);
 void fg_waiter_stop(fg_server *srv);
 void fg_waiter_free(fg_server *srv);
 
+/* ---- replica_wait.c: a DELETE waiting for another replica ---- */
+/* Reads record `id` from the store: true when it answered in *out (the
+ * record ended, or an error), false when it still runs (nothing
+ * written). */
+typedef bool fg_replica_look(fg_req *r, const char *id, fg_resp *out);
+/* Suspend the request until `look` answers, reading every
+ * FG_HTTP_REPLICA_LOOK_S, or 503 after FG_HTTP_CANCEL_WAIT_S ("WHAT ID
+ * runs in another replica ..."). */
+void fg_replica_wait(const char *what, const char *id, fg_replica_look *look,
+                     fg_resp *out);
+
 /* ---- strict.c: requests refused before routing, echoed text ---- */
 /* MHD_OPTION_UNESCAPE_CALLBACK: libmicrohttpd's decoding; marks "%00". */
 size_t fg_http_unescape(void *cls, struct MHD_Connection *conn, char *s);
@@ -415,6 +426,11 @@ void fg_h_page_css(fg_req *r, fg_resp *out);
 /* The Content-Security-Policy and other browser headers of the page's
  * files (set when fg_resp.page). */
 void fg_page_headers(struct MHD_Response *mr);
+/* 200 with a copy of an embedded document (libmicrohttpd frees the body
+ * it is given; the documents are fetched rarely); false after a 503 when
+ * the copy cannot be made (page.c). */
+bool fg_resp_embedded(fg_resp *out, const unsigned char *doc, size_t len,
+                      const char *type);
 
 /* ---- registry.c: what runs here, by id; the watcher ---- */
 fg_status fg_registry_new(fg_store *store, fg_registry **out, fg_problem *p);

@@ -49,13 +49,12 @@
 
 /* multivariate_normal: its parser is mvn.c's; it is drawn as a joint
  * block (sampler.c), never element-wise. */
-static void mvn_parse(fg_input *in, fg_params *c) {
+static void parse_multivariate_normal(fg_input *in, fg_params *c) {
   fg_family_mvn_parse(in, c);
 }
-static const char *const p_mvn[] = {"mean", "covariance", "sd", "correlation",
+static const char *const p_multivariate_normal[] = {"mean", "covariance", "sd", "correlation",
                                     NULL};
-const fg_family_def fg_family_mvn = {
-    "multivariate_normal", FG_FAM_MVN, p_mvn, 1, mvn_parse, NULL, NULL, NULL};
+FG_FAMILY(multivariate_normal, MVN, NULL, NULL, NULL);
 
 /* Every family, indexed by its kind (in the order of fg_family_kind). */
 static const fg_family_def *const families[] = {
@@ -73,7 +72,7 @@ static const fg_family_def *const families[] = {
     [FG_FAM_BINOMIAL] = &fg_family_binomial,
     [FG_FAM_DISCRETE] = &fg_family_discrete,
     [FG_FAM_EMPIRICAL] = &fg_family_empirical,
-    [FG_FAM_MVN] = &fg_family_mvn,
+    [FG_FAM_MVN] = &fg_family_multivariate_normal,
     [FG_FAM_SCENARIO_TABLE] = &fg_family_scenario_table,
 };
 #define NFAMILIES ((int)(sizeof families / sizeof families[0]))

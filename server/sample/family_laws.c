@@ -401,31 +401,13 @@ static const char *const p_beta[] = {"a", "b", "low", "high", NULL};
 static const char *const p_weibull[] = {"shape", "scale", NULL};
 static const char *const p_student_t[] = {"df", "location", "scale", NULL};
 
-const fg_family_def fg_family_normal = {
-    "normal", FG_FAM_NORMAL, p_normal, 1, parse_normal, normal_icdf,
-    normal_block, NULL};
-const fg_family_def fg_family_lognormal = {
-    "lognormal", FG_FAM_LOGNORMAL, p_lognormal, 1, parse_lognormal,
-    lognormal_icdf, lognormal_block, NULL};
-const fg_family_def fg_family_uniform = {
-    "uniform", FG_FAM_UNIFORM, p_uniform, 1, parse_uniform, uniform_icdf,
-    uniform_block, NULL};
-const fg_family_def fg_family_triangular = {
-    "triangular", FG_FAM_TRIANGULAR, p_triangular, 1, parse_triangular,
-    triangular_icdf, triangular_block, NULL};
-const fg_family_def fg_family_pert = {
-    "pert", FG_FAM_PERT, p_pert, 1, parse_pert, beta_icdf, NULL, beta_draw};
-const fg_family_def fg_family_exponential = {
-    "exponential", FG_FAM_EXPONENTIAL, p_exponential, 1, parse_exponential,
-    exponential_icdf, NULL, NULL};
-const fg_family_def fg_family_gamma = {
-    "gamma", FG_FAM_GAMMA, p_gamma, 1, parse_gamma, gamma_icdf, NULL,
-    gamma_draw};
-const fg_family_def fg_family_beta = {
-    "beta", FG_FAM_BETA, p_beta, 1, parse_beta, beta_icdf, NULL, beta_draw};
-const fg_family_def fg_family_weibull = {
-    "weibull", FG_FAM_WEIBULL, p_weibull, 1, parse_weibull, weibull_icdf,
-    NULL, NULL};
-const fg_family_def fg_family_student_t = {
-    "student_t", FG_FAM_STUDENT_T, p_student_t, 1, parse_student_t,
-    student_t_icdf, NULL, student_t_draw};
+FG_FAMILY(normal, NORMAL, normal_icdf, normal_block, NULL);
+FG_FAMILY(lognormal, LOGNORMAL, lognormal_icdf, lognormal_block, NULL);
+FG_FAMILY(uniform, UNIFORM, uniform_icdf, uniform_block, NULL);
+FG_FAMILY(triangular, TRIANGULAR, triangular_icdf, triangular_block, NULL);
+FG_FAMILY(pert, PERT, beta_icdf, NULL, beta_draw);
+FG_FAMILY(exponential, EXPONENTIAL, exponential_icdf, NULL, NULL);
+FG_FAMILY(gamma, GAMMA, gamma_icdf, NULL, gamma_draw);
+FG_FAMILY(beta, BETA, beta_icdf, NULL, beta_draw);
+FG_FAMILY(weibull, WEIBULL, weibull_icdf, NULL, NULL);
+FG_FAMILY(student_t, STUDENT_T, student_t_icdf, NULL, student_t_draw);

@@ -360,22 +360,12 @@ static const char *const p_poisson[] = {"mean", NULL};
 static const char *const p_binomial[] = {"trials", "p", NULL};
 static const char *const p_discrete[] = {"values", "weights", NULL};
 static const char *const p_empirical[] = {"data", NULL};
-static const char *const p_scenario[] = {"rows", "weights", NULL};
+static const char *const p_scenario_table[] = {"rows", "weights", NULL};
 
-const fg_family_def fg_family_poisson = {
-    "poisson", FG_FAM_POISSON, p_poisson, 1, parse_poisson, poisson_icdf,
-    NULL, poisson_draw};
-const fg_family_def fg_family_binomial = {
-    "binomial", FG_FAM_BINOMIAL, p_binomial, 1, parse_binomial,
-    binomial_icdf, NULL, binomial_draw};
-const fg_family_def fg_family_discrete = {
-    "discrete", FG_FAM_DISCRETE, p_discrete, 1, parse_discrete,
-    discrete_icdf, NULL, discrete_draw};
+FG_FAMILY(poisson, POISSON, poisson_icdf, NULL, poisson_draw);
+FG_FAMILY(binomial, BINOMIAL, binomial_icdf, NULL, binomial_draw);
+FG_FAMILY(discrete, DISCRETE, discrete_icdf, NULL, discrete_draw);
 /* empirical and scenario_table have no inverse CDF: not copula members */
-const fg_family_def fg_family_empirical = {
-    "empirical", FG_FAM_EMPIRICAL, p_empirical, 1, parse_empirical, NULL,
-    NULL, empirical_draw};
+FG_FAMILY(empirical, EMPIRICAL, NULL, NULL, empirical_draw);
 /* a joint block: drawn row by row in sampler.c, not element-wise here */
-const fg_family_def fg_family_scenario_table = {
-    "scenario_table", FG_FAM_SCENARIO_TABLE, p_scenario, 1,
-    parse_scenario_table, NULL, NULL, NULL};
+FG_FAMILY(scenario_table, SCENARIO_TABLE, NULL, NULL, NULL);

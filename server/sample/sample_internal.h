@@ -236,13 +236,18 @@ typedef struct fg_family_def {
   double (*draw)(const fg_input *in, int e, gsl_rng *r);
 } fg_family_def;
 
+/* One entry: fg_family_<id> named "<id>", of kind FG_FAM_<KIND>, with
+ * parameter names p_<id> and parser parse_<id> (static in its file). */
+#define FG_FAMILY(id, KIND, icdf, block, draw)                                 \
+  const fg_family_def fg_family_##id = {#id, FG_FAM_##KIND, p_##id, 1,         \
+                                        parse_##id, icdf, block, draw}
 /* The entries (family_laws.c, family_tables.c, family.c). */
 extern const fg_family_def fg_family_normal, fg_family_lognormal,
     fg_family_uniform, fg_family_triangular, fg_family_pert,
     fg_family_exponential, fg_family_gamma, fg_family_beta,
     fg_family_weibull, fg_family_student_t, fg_family_poisson,
     fg_family_binomial, fg_family_discrete, fg_family_empirical,
-    fg_family_mvn, fg_family_scenario_table;
+    fg_family_multivariate_normal, fg_family_scenario_table;
 /* Standard normal quantile from whichever tail is exact (uc = 1 - u). */
 double fg_family_std_quantile(double u, double uc);
 
