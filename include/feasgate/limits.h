@@ -421,10 +421,18 @@
 /* Work bound of one exact computation, in multiply-add units: lattice
  * points x (rows x rank + 30 x rank) over all rounds and shifts
  * (estimate/mvnprob.c). 3e8 units is about a second on one idle core of
- * the test machine: the exact path runs on the thread that starts
- * the check, so it must stay short; past the bound it answers with the
- * error it reached (converged false). */
+ * the test machine: the exact path is one task of its check on the
+ * worker pool (it holds one worker that long at most); past the bound it
+ * answers with the error it reached (converged false). */
 #define FG_EXACT_WORK_MAX 300000000.0
+
+/* Work units between two looks at the check's cancel flag and deadline
+ * during an exact computation (a run of lattice points, one pivot step of
+ * the reduction at most 6 x rows x dims, one half-row of the coefficient
+ * product): 1e6 units is about 3 ms on the test machine, so a DELETE or a
+ * deadline ends an exact computation within a few milliseconds plus the
+ * pool clock's round (FG_POOL_CLOCK_MS). */
+#define FG_EXACT_POLL_WORK 1000000.0
 
 /* Independent random shifts of the lattice; their spread gives the error
  * estimate (Genz 1992: a small number, 10 here, of randomisations). */
