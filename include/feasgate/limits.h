@@ -442,6 +442,11 @@
  * them, at most FG_EXACT_ROUNDS_MAX rounds (so at most 1000 * 2^14
  * points per shift before the work bound). */
 #define FG_EXACT_POINTS_FIRST 1000
+/* The first round's points per shift at least, when FG_EXACT_POINTS_FIRST
+ * would pass FG_EXACT_WORK_MAX (512 half-rows of rank 512: 64 points,
+ * about 3.5e8 units): fewer would leave the shifts' spread too noisy to
+ * be an error estimate. */
+#define FG_EXACT_POINTS_MIN 64
 #define FG_EXACT_ROUNDS_MAX 15
 
 /* The error the exact path aims at (absolute, on the joint probability):

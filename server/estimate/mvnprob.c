@@ -35,7 +35,9 @@
  *      independent uniform shifts s (splitmix64 from the caller's seed).
  *      The estimate is the mean over shifts; the error is
  *      FG_EXACT_ERROR_FACTOR standard errors of that mean.
- *   5. Rounds: FG_EXACT_POINTS_FIRST points per shift, doubling each round
+ *   5. Rounds: FG_EXACT_POINTS_FIRST points per shift (fewer, down to
+ *      FG_EXACT_POINTS_MIN, when one round would pass the work bound),
+ *      doubling each round
  *      (fresh shifts each round) until half the previous round's error
  *      is at most the target, at most FG_EXACT_ROUNDS_MAX rounds, and
  *      never past FG_EXACT_WORK_MAX work units in all (see step_cost). The answer is
@@ -345,7 +347,16 @@ fg_status fg_mvn_probability_poll(const double *H, const double *b, int m,
   uint64_t poll_every = per < 1 ? 1 : (uint64_t)per;
   double work = 0;
   uint64_t rng = seed ^ UINT64_C(0x6a09e667f3bcc909);
+  /* The first round always runs; it is cut below FG_EXACT_POINTS_FIRST
+   * when that many points would pass the work bound (large systems), so
+   * the bound holds from the first round on, but never below
+   * FG_EXACT_POINTS_MIN points per shift. */
   uint64_t npts = FG_EXACT_POINTS_FIRST;
+  {
+    double fit = FG_EXACT_WORK_MAX / (2.0 * FG_EXACT_SHIFTS * step_cost);
+    if (fit < (double)npts)
+      npts = fit > FG_EXACT_POINTS_MIN ? (uint64_t)fit : FG_EXACT_POINTS_MIN;
+  }
   double prev_error = -1;
   for (int round = 0; round < FG_EXACT_ROUNDS_MAX; round++) {
     double round_work = (double)npts * 2.0 * FG_EXACT_SHIFTS * step_cost;
