@@ -255,6 +255,9 @@
   X("failing_scenarios", FG_FAILING_SCENARIOS)                               \
   X("failing_scenarios_count", FG_FAILING_SCENARIOS_MAX)                     \
   X("explain_cells", FG_EXPLAIN_CELLS_MAX)                                   \
+  X("exact_rows", FG_EXACT_ROWS_MAX)                                         \
+  X("exact_dims", FG_EXACT_DIMS_MAX)                                         \
+  X("exact_form_cells", FG_EXACT_FORM_CELLS_MAX)                             \
   X("sobol_dimensions", FG_SOBOL_DIMS_MAX)                                \
   X("scenario_cells", FG_SCENARIO_CELLS_MAX)
 

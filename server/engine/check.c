@@ -537,7 +537,7 @@ void fg_check_finish(struct fg_check *c) {
   pthread_mutex_lock(&c->merge_mu);
   bool all = atomic_load(&c->merged_chunks) == c->nchunks &&
              (!c->has_in_sample || atomic_load(&c->in_sample_whole)) &&
-             (c->exact_task == 0 || atomic_load(&c->exact_whole));
+             (!c->has_exact || atomic_load(&c->exact_whole));
   fg_check_state end;
   if (all || atomic_load(&c->frozen))
     end = FG_CHECK_DONE;
@@ -715,6 +715,7 @@ fg_status fg_check_start(fg_pool *pool, fg_model *m,
     if (fg_exact_prepare(m, c->setup_regs, &c->exact_prep, &c->exact) != FG_OK)
       goto oom;
     if (c->exact.qualifies) {
+      c->has_exact = true;
       c->exact_task = 1;
     } else if (c->req.exact == FG_EXACT_ONLY) {
       /* fg_request_parse refuses this first; a caller that skipped it */

@@ -130,6 +130,7 @@ struct fg_check {
    * written by its pool task under merge_mu (read once ended). */
   fg_exact_result exact;
   fg_exact_prep exact_prep;
+  bool has_exact;           /* the exact task exists (set before queueing) */
   int exact_task;           /* (pool) 0 none, 1 waiting, 2 running, 3 ended */
   atomic_bool exact_whole;  /* the task computed its answer */
   atomic_int refs;
