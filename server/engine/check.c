@@ -4,9 +4,11 @@
  *
  * Life of a check: fg_check_start() copies the request, runs the setup
  * stream once (decision arithmetic, deterministic rows: no sampling),
- * records decision bound and integrality problems, and queues the check
- * on the pool (state QUEUED) with its in-sample evaluation, if asked, as
- * the first task. Workers move it to RUNNING and merge chunk tallies,
+ * records decision bound and integrality problems, prepares the exact
+ * path (exact.c), and queues the check on the pool (state QUEUED) with
+ * its exact computation (when the model qualifies) and its in-sample
+ * evaluation (if asked) as the first tasks. With "exact": "only" there are
+ * no chunks: the exact task alone makes the figures (finalize_exact_only). Workers move it to RUNNING and merge chunk tallies,
  * publishing a progress snapshot at each merge; when the last chunk is
  * merged, or the check was cancelled or ran out of time and no worker is
  * on it (or its worker is stuck, pool.c), the thread that ends it calls

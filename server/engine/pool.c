@@ -34,7 +34,7 @@
  * check, and the pool's counters (atomics, so probes read them without
  * it); nothing is computed under it. A worker holds no lock while it
  * simulates; it tests the check's cancel and timeout flags (atomics) once
- * per block. Workers touch no HTTP or store state.
+ * per block (the exact task every FG_EXACT_POLL_WORK work units). Workers touch no HTTP or store state.
  *
  * Exit: fg_pool_free waits FG_POOL_EXIT_WAIT_S for the workers to leave;
  * a worker still stuck then is detached and the pool's memory is left to
