@@ -258,6 +258,7 @@
   X("exact_rows", FG_EXACT_ROWS_MAX)                                         \
   X("exact_dims", FG_EXACT_DIMS_MAX)                                         \
   X("exact_form_cells", FG_EXACT_FORM_CELLS_MAX)                             \
+  X("exact_form_work", FG_EXACT_FORM_WORK_MAX)                               \
   X("sobol_dimensions", FG_SOBOL_DIMS_MAX)                                \
   X("scenario_cells", FG_SCENARIO_CELLS_MAX)
 
@@ -420,6 +421,13 @@
 /* Cells of the affine forms kept while reading coefficients out of the
  * program (registers x (inputs + 1)): 4 Mi doubles, 32 MiB at most. */
 #define FG_EXACT_FORM_CELLS_MAX (4u * 1024 * 1024)
+
+/* Work of reading the coefficients out of the program: block instructions
+ * x (inputs + 1), each a pass over one affine form. It runs on the thread
+ * that starts the check (and again in the request's parse for exact
+ * "only", to answer 400), so it is held to about 0.1 s: 64e6 allows e.g.
+ * 125,000 instructions over 512 inputs. */
+#define FG_EXACT_FORM_WORK_MAX 64000000.0
 
 /* Work bound of one exact computation, in multiply-add units: lattice
  * points x (rows x rank + 30 x rank) over all rounds and shifts

@@ -23,8 +23,9 @@
  *                     not qualify is a 400 before anything is recorded):
  *                     the half-rows, the qualification of every input
  *                     used, the means and factor rows L. Bounded by the
- *                     size limits: FG_EXACT_FORM_CELLS_MAX cells of forms,
- *                     dims^2 for L (FG_EXACT_DIMS_MAX^2 = 262,144).
+ *                     size limits: FG_EXACT_FORM_WORK_MAX operations and
+ *                     FG_EXACT_FORM_CELLS_MAX cells of forms, dims^2 for L
+ *                     (FG_EXACT_DIMS_MAX^2 = 262,144).
  *   fg_exact_task     the check's first task on the worker pool: H = G L
  *                     (half-rows x dims^2, up to 1.3e8 multiply-adds) and
  *                     the Genz computation, looking at the check's cancel
@@ -118,6 +119,12 @@ fg_status fg_exact_prepare(const fg_model *m, const double *setup_regs,
     set_limit(out, "exact_dims", FG_EXACT_DIMS_MAX,
               "the model has more uncertain dimensions than the exact path "
               "takes");
+    return FG_OK;
+  }
+  if ((double)info.nblock_insns * (double)w > FG_EXACT_FORM_WORK_MAX) {
+    set_limit(out, "exact_form_work", FG_EXACT_FORM_WORK_MAX,
+              "reading the coefficients (block instructions x (inputs + 1)) "
+              "would take more work than the exact path allows");
     return FG_OK;
   }
   prep->nu = nu;
