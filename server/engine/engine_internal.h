@@ -35,14 +35,6 @@
 #include <pthread.h>
 #include <stdatomic.h>
 
-#define FG_DET_PROBLEMS_MAX 64
-
-/* Independent replicates of a Latin hypercube or Sobol design: the
- * Student-t interval on their estimates has R - 1 degrees of freedom;
- * 16 keeps the t quantile within 7% of the normal one while each
- * replicate stays a large design. */
-#define FG_DESIGN_REPLICATES 16
-
 typedef struct fg_det_problem {
   char name[FG_ROW_NAME_MAX];
   char message[192];
@@ -81,7 +73,8 @@ typedef struct fg_exact_result {
   char where[FG_POINTER_MAX]; /* pointer into the model (or "/exact" for a
                                  limit) of what does not qualify */
   int where_col;        /* column in that expression; 0 none */
-  const char *limit_name; /* a size limit was passed (NULL: none) */
+  bool over_limit;      /* a size limit was passed: */
+  fg_limit limit;       /* which one */
   double limit_value;
   int bad_row;          /* first non-qualifying row, or -1 */
   double probability, error;

@@ -63,12 +63,13 @@ void fg_exact_prep_free(fg_exact_prep *p) {
   memset(p, 0, sizeof *p);
 }
 
-static void set_limit(fg_exact_result *out, const char *name, double value,
+static void set_limit(fg_exact_result *out, fg_limit which, double value,
                       const char *what) {
-  out->limit_name = name;
+  out->over_limit = true;
+  out->limit = which;
   out->limit_value = value;
   snprintf(out->why, sizeof out->why, "%s, beyond the limit %s = %.0f", what,
-           name, value);
+           fg_limit_name(which), value);
   snprintf(out->where, sizeof out->where, "/exact");
 }
 
@@ -111,18 +112,18 @@ fg_status fg_exact_prepare(const fg_model *m, const double *setup_regs,
   fg_program_get_info(m->program, &info);
   int nu = info.nuncertain, w = nu + 1, cap = 2 * info.nrows;
   if (cap > FG_EXACT_ROWS_MAX) {
-    set_limit(out, "exact_rows", FG_EXACT_ROWS_MAX,
+    set_limit(out, FG_LIMIT_EXACT_ROWS, FG_EXACT_ROWS_MAX,
               "the rows give more half-rows than the exact path takes");
     return FG_OK;
   }
   if (nu > FG_EXACT_DIMS_MAX) {
-    set_limit(out, "exact_dims", FG_EXACT_DIMS_MAX,
+    set_limit(out, FG_LIMIT_EXACT_DIMS, FG_EXACT_DIMS_MAX,
               "the model has more uncertain dimensions than the exact path "
               "takes");
     return FG_OK;
   }
   if ((double)info.nblock_insns * (double)w > FG_EXACT_FORM_WORK_MAX) {
-    set_limit(out, "exact_form_work", FG_EXACT_FORM_WORK_MAX,
+    set_limit(out, FG_LIMIT_EXACT_FORM_WORK, FG_EXACT_FORM_WORK_MAX,
               "reading the coefficients (block instructions x (inputs + 1)) "
               "would take more work than the exact path allows");
     return FG_OK;
@@ -143,7 +144,7 @@ fg_status fg_exact_prepare(const fg_model *m, const double *setup_regs,
                                       prep->row_of, cap, &bad);
   if (nh == -3) { st = FG_ENOMEM; goto fail; }
   if (nh == -2) {
-    set_limit(out, "exact_form_cells", FG_EXACT_FORM_CELLS_MAX,
+    set_limit(out, FG_LIMIT_EXACT_FORM_CELLS, FG_EXACT_FORM_CELLS_MAX,
               "the program's affine forms need more cells than the exact "
               "path keeps");
     goto fail;
@@ -299,8 +300,8 @@ bool fg_exact_task(struct fg_check *c) {
 fg_status fg_exact_refusal(const fg_model *m, const fg_exact_result *e,
                            fg_problem *p) {
   fg_status st;
-  if (e->limit_name)
-    st = fg_problem_limit(p, "/exact", e->limit_name, e->limit_value,
+  if (e->over_limit)
+    st = fg_problem_limit(p, "/exact", e->limit, e->limit_value,
                           "exact \"only\": %s", e->why);
   else
     st = fg_problem_add(p, FG_EINVAL, e->where, e->where_col,
