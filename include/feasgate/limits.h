@@ -262,6 +262,10 @@
   X(FAILING_SCENARIOS_COUNT, "failing_scenarios_count",                        \
     FG_FAILING_SCENARIOS_MAX)                                                  \
   X(EXPLAIN_CELLS, "explain_cells", FG_EXPLAIN_CELLS_MAX)                      \
+  X(EXACT_ROWS, "exact_rows", FG_EXACT_ROWS_MAX)                               \
+  X(EXACT_DIMS, "exact_dims", FG_EXACT_DIMS_MAX)                               \
+  X(EXACT_FORM_CELLS, "exact_form_cells", FG_EXACT_FORM_CELLS_MAX)             \
+  X(EXACT_FORM_WORK, "exact_form_work", FG_EXACT_FORM_WORK_MAX)                \
   X(SOBOL_DIMENSIONS, "sobol_dimensions", FG_SOBOL_DIMS_MAX)                   \
   X(SCENARIO_CELLS, "scenario_cells", FG_SCENARIO_CELLS_MAX)                   \
   X(SAMPLES_DEFAULT, "samples_default", FG_SAMPLES_DEFAULT)                    \
@@ -457,13 +461,28 @@ const char *fg_limit_name(fg_limit which);
  * program (registers x (inputs + 1)): 4 Mi doubles, 32 MiB at most. */
 #define FG_EXACT_FORM_CELLS_MAX (4u * 1024 * 1024)
 
+/* Work of reading the coefficients out of the program: block instructions
+ * x (inputs + 1), each a pass over one affine form. It runs on the thread
+ * that starts the check (and again in the request's parse for exact
+ * "only", to answer 400), so it is held to about 0.1 s: 64e6 allows e.g.
+ * 125,000 instructions over 512 inputs. */
+#define FG_EXACT_FORM_WORK_MAX 64000000.0
+
 /* Work bound of one exact computation, in multiply-add units: lattice
  * points x (rows x rank + 30 x rank) over all rounds and shifts
  * (estimate/mvnprob.c). 3e8 units is about a second on one idle core of
- * the test machine: the exact path runs on the thread that starts
- * the check, so it must stay short; past the bound it answers with the
- * error it reached (converged false). */
+ * the test machine: the exact path is one task of its check on the
+ * worker pool (it holds one worker that long at most); past the bound it
+ * answers with the error it reached (converged false). */
 #define FG_EXACT_WORK_MAX 300000000.0
+
+/* Work units between two looks at the check's cancel flag and deadline
+ * during an exact computation (a run of lattice points, one pivot step of
+ * the reduction at most 6 x rows x dims, one half-row of the coefficient
+ * product): 1e6 units is about 3 ms on the test machine, so a DELETE or a
+ * deadline ends an exact computation within a few milliseconds plus the
+ * pool clock's round (FG_POOL_CLOCK_MS). */
+#define FG_EXACT_POLL_WORK 1000000.0
 
 /* Independent random shifts of the lattice; their spread gives the error
  * estimate (Genz 1992: a small number, 10 here, of randomisations). */
@@ -473,6 +492,11 @@ const char *fg_limit_name(fg_limit which);
  * them, at most FG_EXACT_ROUNDS_MAX rounds (so at most 1000 * 2^14
  * points per shift before the work bound). */
 #define FG_EXACT_POINTS_FIRST 1000
+/* The first round's points per shift at least, when FG_EXACT_POINTS_FIRST
+ * would pass FG_EXACT_WORK_MAX (512 half-rows of rank 512: 64 points,
+ * about 3.5e8 units): fewer would leave the shifts' spread too noisy to
+ * be an error estimate. */
+#define FG_EXACT_POINTS_MIN 64
 #define FG_EXACT_ROUNDS_MAX 15
 
 /* The error the exact path aims at (absolute, on the joint probability):
