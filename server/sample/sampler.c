@@ -22,6 +22,13 @@
  * draw path does not allocate or lock: the generator, the word and lane
  * buffers live in the scratch.
  *
+ * Raw draws (engine/rowplan.c): fg_sampler_draw_raw leaves flagged
+ * untruncated normal elements and multivariate normal inputs (outside
+ * copulas) as their standard normals, from the same slots; a row plan
+ * evaluates its folded rows from them. fg_sampler_finish_raw applies the
+ * transforms the plain draw would have (m + sd e, the lower map) with the
+ * same code, so finished values are the plain draw's bits.
+ *
  * GSL's error handler: GSL aborts on errors by default, which a daemon
  * must never do on a client's input. The first build switches it off once
  * for the process (pthread_once); every GSL result used here is checked or
