@@ -30,6 +30,10 @@
  */
 #include "core/dense.h"
 
+#if defined(__x86_64__) && defined(__GNUC__)
+#define FG_DENSE_X86 1
+#endif
+
 #include <pthread.h>
 #include <stdbool.h>
 #include <string.h>
@@ -43,6 +47,10 @@ typedef struct dense_job {
   const double *const *in;
   double *const *out;
 } dense_job;
+
+/* Columns a tile copies into a contiguous buffer (dense_tile.h): 128
+ * columns x 16 lanes x 8 bytes = 16 KiB of stack at the widest path. */
+#define DENSE_PACK_COLS 128
 
 /* The reference: lane by lane, rows from the last (for the in-place lower
  * map, row i reads columns k <= i, none written yet for this lane). */
@@ -60,15 +68,19 @@ static void lanes_scalar(const dense_job *j, int t0, int n) {
     }
 }
 
-#if defined(__x86_64__) && defined(__GNUC__)
-#define FG_DENSE_X86 1
-#endif
 
 /* The baseline vector path (SSE2 on x86-64; plain vector code elsewhere,
  * which the compiler lowers to whatever it has). */
+#if defined(FG_DENSE_X86)
+#include <immintrin.h>
+#endif
+
 #define DT_W 2
 #define DT_SUF base
 #define DT_ATTR
+#if defined(FG_DENSE_X86)
+#define DT_SPLATP(p) _mm_load1_pd(p)
+#endif
 #include "core/dense_tile.h"
 #undef DT_W
 #undef DT_SUF
@@ -78,6 +90,7 @@ static void lanes_scalar(const dense_job *j, int t0, int n) {
 #define DT_W 4
 #define DT_SUF avx2
 #define DT_ATTR __attribute__((target("avx2")))
+#define DT_SPLATP(p) _mm256_broadcast_sd(p)
 #include "core/dense_tile.h"
 #undef DT_W
 #undef DT_SUF
@@ -86,6 +99,7 @@ static void lanes_scalar(const dense_job *j, int t0, int n) {
 #define DT_W 8
 #define DT_SUF avx512
 #define DT_ATTR __attribute__((target("avx512f")))
+#define DT_SPLATP(p) _mm512_set1_pd(*(p))
 #include "core/dense_tile.h"
 #undef DT_W
 #undef DT_SUF
