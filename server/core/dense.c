@@ -8,10 +8,12 @@
  * hundred each) times a block of lanes (FG_BLOCK samples). Lanes go in
  * tiles of two vectors; within a tile, rows go four at a time with their
  * eight accumulators in registers (dense_tile.h), so each column's tile is
- * loaded once per four rows. A tile's columns (d x 16 lanes x 8 bytes for
- * AVX2: 6.4 KiB at d = 50) stay in L1 through all row blocks. Lanes beyond
- * the last whole tile run the scalar loop below, which is also the
- * reference.
+ * loaded once per four rows and each coefficient broadcast once per tile.
+ * A tile's columns (d x 8 lanes x 8 bytes for AVX2: 3.2 KiB at d = 50) are
+ * first copied into one contiguous buffer, which stays in L1 through all
+ * row blocks (the columns themselves lie FG_BLOCK doubles apart and would
+ * crowd two cache sets). Lanes beyond the last whole tile run the scalar
+ * loop below, which is also the reference.
  *
  * Paths: the scalar loop; SSE2 (the x86-64 baseline, 2 lanes a vector);
  * AVX2 and AVX-512F built with target attributes and chosen at first use
