@@ -168,7 +168,7 @@ fg_rowplan *fg_rowplan_build(const fg_model *m, const double *setup_regs,
   if ((double)p->nh * (double)p->ncol > FG_ROWPLAN_COST_FACTOR * general)
     goto done;
   p->nregs = in.nregs;
-  p->col = malloc((size_t)p->ncol * sizeof(int));
+  p->col = malloc((size_t)p->ncol * sizeof(int) + 1); /* ncol may be 0 */
   p->g = calloc((size_t)p->nh * (size_t)p->ncol + 1, sizeof(double));
   p->start = calloc((size_t)p->nh, sizeof(double));
   p->out_reg = malloc((size_t)p->nh * sizeof(int));

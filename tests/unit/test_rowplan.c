@@ -414,9 +414,51 @@ static void test_checks(void) {
   fg_model_unref(m);
 }
 
+/* A row whose coefficients vanish at these decisions (x = 0): the plan
+ * has no column at all and the row is its constant; the same counts as
+ * the block stream (every sample holds, 0 <= 1; at x = 2 about 69%). */
+static void test_vanishing_row(void) {
+  static const char *doc =
+      "{\"format\":1,\"name\":\"plan-zero\",\"decisions\":[{\"name\":\"x\"}],"
+      "\"uncertain\":[{\"name\":\"z\",\"distribution\":{\"family\":"
+      "\"normal\",\"mean\":0,\"sd\":1}}],\"constraints\":[{\"name\":"
+      "\"a\",\"require\":\"x * z <= 1\"}]}";
+  fg_model *m = fg_test_model(doc);
+  if (!m) return;
+  for (int k = 0; k < 2; k++) {
+    double x = k ? 2 : 0;
+    fg_program_info in;
+    fg_program_get_info(m->program, &in);
+    double setup[64] = {0};
+    CHECK(in.nregs <= 64);
+    setup[in.decision_base] = x;
+    fg_program_run_setup(m->program, setup);
+    bool oom = false;
+    fg_rowplan *pl = fg_rowplan_build(m, setup, &oom);
+    CHECK(pl != NULL && !oom);
+    fg_rowplan_free(pl);
+    char req[128];
+    snprintf(req, sizeof req, "{\"decision\":{\"x\":%g},\"seed\":5,"
+                              "\"samples\":20000}", x);
+    uint64_t kp, ko;
+    char *a = run_check(m, req, 2, &kp);
+    fg_rowplan_force_off(true);
+    char *b = run_check(m, req, 2, &ko);
+    fg_rowplan_force_off(false);
+    CHECK_MSG(kp == ko, "x = %g: plan %llu, block stream %llu", x,
+              (unsigned long long)kp, (unsigned long long)ko);
+    if (k == 0) CHECK_INT(kp, 20000);
+    /* P(2 z <= 1) = Phi(0.5) = 0.6915 (normal table); 5 s.e. = 0.016 */
+    if (k == 1) CHECK_NEAR((double)kp / 20000, 0.6915, 0.016);
+    free(a), free(b);
+  }
+  fg_model_unref(m);
+}
+
 int main(void) {
   test_dense_paths();
   test_plans_against_block_stream();
   test_checks();
+  test_vanishing_row();
   return fg_test_finish();
 }
