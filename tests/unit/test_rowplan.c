@@ -160,12 +160,13 @@ static void build(built *m, int d, int rows) {
     for (int j = 0; j < d; j++) put(b, cap, &at, j ? ",%.6f" : "%.6f", cov[i][j]);
     at += (size_t)snprintf(b + at, cap - at, "]");
   }
+  double wmean = unif(-1, 1), wsd = unif(0.2, 3); /* in this order */
   at += (size_t)snprintf(
       b + at, cap - at,
       "]}},{\"name\":\"w\",\"size\":2,\"distribution\":{\"family\":\"normal\","
       "\"mean\":[%.2f,-1.5],\"sd\":[0.5,%.2f]}},{\"name\":\"q\",\"distribution\":"
       "{\"family\":\"lognormal\",\"mean\":3,\"sd\":1}}],\"constraints\":[",
-      unif(-1, 1), unif(0.2, 3));
+      wmean, wsd);
   for (int r = 0; r < rows; r++) {
     char dot[2048];
     size_t da = 0;
