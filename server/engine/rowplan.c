@@ -27,7 +27,8 @@
  * What changes: the row values round differently from the block stream's
  * (the sums are regrouped), by a few units in the last place of the terms'
  * magnitude; counts can differ only for samples that lie that close to a
- * row's boundary (tests/unit/test_rowplan.c bounds it sample by sample).
+ * row's boundary (tests/unit/engine/test_rowplan.c bounds it sample by
+ * sample).
  * The random streams do not change.
  *
  * When a check has no plan (fg_rowplan_build returns NULL): an uncertain

@@ -1,5 +1,5 @@
 /*
- * tests/unit/test_rowplan.c -- the dense kernels (core/dense.c) and row
+ * tests/unit/engine/test_rowplan.c -- the dense kernels (core/dense.c) and row
  * plans (engine/rowplan.c).
  *
  *  1. Every dispatch path of fg_dense_rows and fg_dense_lower gives the
