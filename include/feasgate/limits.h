@@ -445,6 +445,23 @@ const char *fg_limit_name(fg_limit which);
 
 
 
+/* ---- row plans: affine rows folded with the inputs' factors
+ * (engine/rowplan.c) ---- */
+
+/* Cells of the half-row forms a row plan reads out of the program
+ * (2 x rows x (inputs + 1)): 1 Mi doubles, 8 MiB while the check starts;
+ * larger models keep the block stream. */
+#define FG_ROWPLAN_CELLS_MAX (1024.0 * 1024.0)
+
+/* A plan is kept when its dense product (half-rows x folded columns
+ * multiply-adds per sample) is at most this many times the work it
+ * replaces (block instructions plus the factors' multiply-adds): a
+ * register-blocked multiply-add costs well under half of one interpreted
+ * instruction per lane, so 2 keeps plans only where they clearly win,
+ * and refuses sparse rows over a large factor, which folding would make
+ * dense. */
+#define FG_ROWPLAN_COST_FACTOR 2.0
+
 /* ---- the exact path for jointly normal inputs (estimate/mvnprob.c,
  * engine/exact.c) ---- */
 

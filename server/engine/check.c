@@ -317,6 +317,7 @@ void fg_check_free_internal(struct fg_check *c) {
   free(c->rows);
   free(c->drv_centre);
   free(c->setup_regs);
+  fg_rowplan_free(c->plan);
   fg_exact_result_free(&c->exact);
   fg_exact_prep_free(&c->exact_prep);
   fg_request_free(&c->req);
@@ -722,6 +723,12 @@ fg_status fg_check_start(fg_pool *pool, fg_model *m,
       return st;
     }
   }
+
+  /* The row plan (rowplan.c): affine rows in jointly normal inputs folded
+   * with the inputs' factors, once, at these decisions. */
+  bool plan_oom = false;
+  c->plan = fg_rowplan_build(m, c->setup_regs, &plan_oom);
+  if (plan_oom) goto oom;
 
   /* The in-sample evaluation is the check's first task on the pool, under
    * its cancel flag and deadline (never on the caller's thread). */

@@ -35,6 +35,8 @@
 #include <pthread.h>
 #include <stdatomic.h>
 
+typedef struct fg_rowplan fg_rowplan; /* rowplan.c */
+
 typedef struct fg_det_problem {
   char name[FG_ROW_NAME_MAX];
   char message[192];
@@ -126,6 +128,7 @@ struct fg_check {
   bool has_exact;           /* the exact task exists (set before queueing) */
   int exact_task;           /* (pool) 0 none, 1 waiting, 2 running, 3 ended */
   atomic_bool exact_whole;  /* the task computed its answer */
+  fg_rowplan *plan;          /* rowplan.c; NULL: the block stream */
   atomic_int refs;
   struct fg_pool *pool;
   fg_model *model;
@@ -260,11 +263,13 @@ bool fg_fault_stall(uint64_t seed, uint64_t first, int n);
 void fg_fault_slow_interval(uint64_t seed);
 
 /* Run samples [first, first + count) of (seed, stream) into `t` with a private
- * register file `regs` (info.nregs * FG_BLOCK doubles, already broadcast).
- * Stops early (returning false) when `cancel` or `timeout` becomes true or
+ * register file `regs` (info.nregs * FG_BLOCK doubles plus the row plan's
+ * extra registers, already broadcast); `plan_ptrs`: the check's row plan
+ * bound to `regs` (NULL: none). Stops early (returning false) when `cancel` or `timeout` becomes true or
  * the deadline passes. */
 bool fg_engine_run_range(const struct fg_check *c, fg_sample_scratch *w,
                          double *regs, const double **excess, int *scratch,
+                         double *const *plan_ptrs,
                          uint64_t seed, fg_stream stream, uint64_t first,
                          uint64_t count,
                          fg_tally *t, atomic_bool *cancel,
@@ -279,6 +284,27 @@ bool fg_check_look_locked(struct fg_check *c);
 void fg_check_merged_chunk_locked(struct fg_check *c, uint64_t idx,
                                   const fg_tally *t);
 
+/* rowplan.c: a check's row plan (see its top comment). NULL when the
+ * check does not qualify (or, with *oom set, out of memory). */
+fg_rowplan *fg_rowplan_build(const fg_model *m, const double *setup_regs,
+                             bool *oom);
+void fg_rowplan_free(fg_rowplan *p);
+/* Registers (FG_BLOCK doubles each) the plan needs after the program's
+ * nregs, and pointers a binding takes. */
+int fg_rowplan_extra_regs(const fg_rowplan *p);
+int fg_rowplan_nptrs(const fg_rowplan *p);
+/* Per dimension: drawn raw (pass to fg_sampler_draw_raw / finish_raw). */
+const unsigned char *fg_rowplan_raw(const fg_rowplan *p);
+/* Points ptrs (fg_rowplan_nptrs of them) at the raw draw `u` (dimension j
+ * at u + j * FG_BLOCK) and the register file `regs` (nregs + extra
+ * registers) of one thread. */
+void fg_rowplan_bind(const fg_rowplan *p, const double *u, double *regs,
+                     double **ptrs);
+/* Every uncertain row's excess register for lanes [0, n). */
+void fg_rowplan_rows(const fg_rowplan *p, double *const *ptrs, int n);
+/* Tests: true makes fg_rowplan_build return NULL (the block stream). */
+void fg_rowplan_force_off(bool off);
+
 /* Per-thread evaluation state for one check. */
 typedef struct fg_eval_ctx {
   double *regs;
@@ -286,6 +312,7 @@ typedef struct fg_eval_ctx {
   const double **excess;
   int *scratch;
   fg_sample_scratch *sscratch;
+  double **plan_ptrs; /* the check's row plan bound to regs, or NULL */
   const struct fg_check *for_check;
 } fg_eval_ctx;
 

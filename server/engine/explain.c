@@ -80,6 +80,34 @@ static fg_status run_block(const fg_program *prog, const double *decision,
   return FG_OK;
 }
 
+/* The row plan the check had at these decisions (rowplan.c), with a
+ * register file and pointers for it; *plan NULL when it had none. */
+static fg_status plan_rows(const fg_model *m, const double *decision,
+                           fg_rowplan **plan, double **regs, double ***ptrs,
+                           fg_problem *p) {
+  fg_program_info in;
+  fg_program_get_info(m->program, &in);
+  double *setup = calloc(in.nregs > 0 ? (size_t)in.nregs : 1, sizeof *setup);
+  bool oom = setup == NULL;
+  if (setup) {
+    for (int i = 0; i < in.ndecision; i++)
+      setup[in.decision_base + i] = decision[i];
+    fg_program_run_setup(m->program, setup);
+    *plan = fg_rowplan_build(m, setup, &oom);
+  }
+  free(setup);
+  if (*plan) {
+    size_t nr = (size_t)in.nregs + (size_t)fg_rowplan_extra_regs(*plan);
+    *regs = calloc(nr * FG_BLOCK, sizeof **regs);
+    *ptrs = malloc((size_t)fg_rowplan_nptrs(*plan) * sizeof **ptrs);
+    oom = !*regs || !*ptrs;
+  }
+  if (oom)
+    return fg_problem_set(p, FG_ENOMEM, "explain: out of memory for the "
+                                        "row plan");
+  return FG_OK;
+}
+
 /* Sampler columns "x" or "x[k]" grouped by name, in order. */
 static void add_inputs(cJSON *obj, const fg_sampler *s, const double *draw,
                        int lane) {
@@ -181,13 +209,29 @@ fg_status fg_explain_scenario(const fg_model *m, const fg_check_request *req,
                         sizeof *draw);
   fg_sample_scratch *w = dims ? fg_sample_scratch_new(s) : NULL;
   double *regs = NULL;
+  fg_rowplan *plan = NULL;
+  double *plan_regs = NULL;
+  double **plan_ptrs = NULL;
   cJSON *o = cJSON_CreateObject();
   fg_status st = FG_OK;
   if (!draw || !o || (dims && !w)) {
     st = fg_problem_set(p, FG_ENOMEM, "explain: out of memory");
     goto done;
   }
-  if (dims) {
+  if (dims && design == FG_DESIGN_MONTE_CARLO) {
+    st = plan_rows(m, req->decision, &plan, &plan_regs, &plan_ptrs, p);
+    if (st != FG_OK) goto done;
+  }
+  if (plan) {
+    /* the check's own path (rowplan.c): rows from the raw normals, then
+     * the inputs finished with the plain draw's operations */
+    const unsigned char *raw = fg_rowplan_raw(plan);
+    fg_sampler_draw_raw(s, w, req->seed, FG_STREAM_VALIDATION, first, n, raw,
+                        draw, FG_BLOCK);
+    fg_rowplan_bind(plan, draw, plan_regs, plan_ptrs);
+    fg_rowplan_rows(plan, plan_ptrs, n);
+    fg_sampler_finish_raw(s, w, n, raw, draw, FG_BLOCK);
+  } else if (dims) {
     if (design == FG_DESIGN_MONTE_CARLO)
       fg_sampler_draw(s, w, req->seed, FG_STREAM_VALIDATION, first, n, draw,
                       FG_BLOCK);
@@ -197,6 +241,15 @@ fg_status fg_explain_scenario(const fg_model *m, const fg_check_request *req,
   }
   st = run_block(m->program, req->decision, draw, n, &regs, p);
   if (st != FG_OK) goto done;
+  if (plan) {
+    fg_program_info pi;
+    fg_program_get_info(m->program, &pi);
+    for (int r = 0; r < pi.nrows; r++) {
+      if (pi.rows[r].deterministic) continue;
+      size_t at = (size_t)pi.rows[r].excess_reg * FG_BLOCK + (size_t)lane;
+      regs[at] = plan_regs[at];
+    }
+  }
 
   char seed[24];
   cJSON_AddNumberToObject(o, "index", (double)index);
@@ -227,6 +280,9 @@ fg_status fg_explain_scenario(const fg_model *m, const fg_check_request *req,
   o = NULL;
 done:
   cJSON_Delete(o);
+  fg_rowplan_free(plan);
+  free(plan_regs);
+  free(plan_ptrs);
   free(regs);
   fg_sample_scratch_free(w);
   free(draw);

@@ -49,7 +49,9 @@
 #include <unistd.h>
 
 fg_status fg_eval_ctx_prepare(fg_eval_ctx *e, const struct fg_check *c) {
-  size_t need = (size_t)c->info.nregs * FG_BLOCK;
+  size_t need =
+      ((size_t)c->info.nregs + (size_t)fg_rowplan_extra_regs(c->plan)) *
+      FG_BLOCK;
   if (need == 0) need = FG_BLOCK;
   if (need > e->regs_cap) {
     free(e->regs);
@@ -62,6 +64,8 @@ fg_status fg_eval_ctx_prepare(fg_eval_ctx *e, const struct fg_check *c) {
   }
   free(e->excess);
   free(e->scratch);
+  free(e->plan_ptrs);
+  e->plan_ptrs = NULL;
   e->excess = calloc((size_t)c->info.nrows + 1, sizeof *e->excess);
   e->scratch = calloc(2 * FG_BLOCK, sizeof *e->scratch);
   fg_sample_scratch_free(e->sscratch);
@@ -71,6 +75,13 @@ fg_status fg_eval_ctx_prepare(fg_eval_ctx *e, const struct fg_check *c) {
   fg_program_broadcast(c->model->program, c->setup_regs, e->regs);
   for (int r = 0; r < c->info.nrows; r++)
     e->excess[r] = e->regs + (size_t)c->info.rows[r].excess_reg * FG_BLOCK;
+  if (c->plan) {
+    e->plan_ptrs = malloc((size_t)fg_rowplan_nptrs(c->plan) * sizeof(double *));
+    if (!e->plan_ptrs) return FG_ENOMEM;
+    fg_rowplan_bind(c->plan,
+                    e->regs + (size_t)c->info.uncertain_base * FG_BLOCK,
+                    e->regs, e->plan_ptrs);
+  }
   e->for_check = c;
   return FG_OK;
 }
@@ -79,13 +90,14 @@ void fg_eval_ctx_free(fg_eval_ctx *e) {
   free(e->regs);
   free(e->excess);
   free(e->scratch);
+  free(e->plan_ptrs);
   fg_sample_scratch_free(e->sscratch);
   memset(e, 0, sizeof *e);
 }
 
 bool fg_engine_run_range(const struct fg_check *c, fg_sample_scratch *w,
                          double *regs, const double **excess, int *scratch,
-                         uint64_t seed, fg_stream stream, uint64_t first,
+                         double *const *plan_ptrs, uint64_t seed, fg_stream stream, uint64_t first,
                          uint64_t count,
                          fg_tally *t, atomic_bool *cancel,
                          atomic_bool *timeout, uint64_t *outcomes) {
@@ -94,6 +106,13 @@ bool fg_engine_run_range(const struct fg_check *c, fg_sample_scratch *w,
   const double *obj = NULL;
   if (in->objective_reg >= 0 && !in->objective_deterministic)
     obj = regs + (size_t)in->objective_reg * FG_BLOCK;
+  /* The row plan (rowplan.c) serves Monte Carlo draws: the folded inputs
+   * are drawn raw, the rows come from one dense product, and the inputs'
+   * values are finished only when the drivers read them. */
+  bool plan = plan_ptrs && c->plan &&
+              (c->design == FG_DESIGN_MONTE_CARLO ||
+               stream != FG_STREAM_VALIDATION);
+  const unsigned char *raw = plan ? fg_rowplan_raw(c->plan) : NULL;
   for (uint64_t done = 0; done < count;) {
     if (cancel && atomic_load_explicit(cancel, memory_order_relaxed))
       return false;
@@ -109,7 +128,14 @@ bool fg_engine_run_range(const struct fg_check *c, fg_sample_scratch *w,
       }
     }
     int n = (count - done) < FG_BLOCK ? (int)(count - done) : FG_BLOCK;
-    if (in->nuncertain > 0) {
+    if (plan) {
+      fg_sampler_draw_raw(c->model->sampler, w, seed, stream, first + done, n,
+                          raw, ureg, FG_BLOCK);
+      fg_tally_inputs(t, ureg, in->nuncertain, FG_BLOCK, n, first + done);
+      fg_rowplan_rows(c->plan, plan_ptrs, n);
+      if (t->drv)
+        fg_sampler_finish_raw(c->model->sampler, w, n, raw, ureg, FG_BLOCK);
+    } else if (in->nuncertain > 0) {
       if (c->design == FG_DESIGN_MONTE_CARLO || stream != FG_STREAM_VALIDATION)
         fg_sampler_draw(c->model->sampler, w, seed, stream,
                         first + done, n, ureg, FG_BLOCK);
@@ -120,7 +146,7 @@ bool fg_engine_run_range(const struct fg_check *c, fg_sample_scratch *w,
       /* a non-finite draw is reported, never judged (check.c) */
       fg_tally_inputs(t, ureg, in->nuncertain, FG_BLOCK, n, first + done);
     }
-    fg_program_run_block(c->model->program, regs, n);
+    if (!plan) fg_program_run_block(c->model->program, regs, n);
     fg_tally_block(t, excess, n, first + done, obj, scratch);
     if (t->drv)
       fg_tally_drivers_block(t, ureg, FG_BLOCK, excess, scratch, n);
@@ -210,7 +236,7 @@ static bool run_in_sample(fg_eval_ctx *ctx, struct fg_check *c) {
   fg_tally t;
   if (fg_tally_init(&t, c->info.nrows) != FG_OK) return false;
   bool ok = fg_engine_run_range(c, ctx->sscratch, ctx->regs, ctx->excess,
-                                ctx->scratch, c->req.in_sample_seed,
+                                ctx->scratch, ctx->plan_ptrs, c->req.in_sample_seed,
                                 FG_STREAM_DESIGN, 0, c->req.in_sample_count,
                                 &t, &c->cancel_flag, &c->timeout_flag, NULL);
   pthread_mutex_lock(&c->merge_mu);
@@ -296,7 +322,7 @@ static void *worker_main(void *arg) {
       fg_check_chunk_range(c, idx, &first, &count);
       if (ok)
         ok = fg_engine_run_range(c, ctx.sscratch, ctx.regs, ctx.excess,
-                                 ctx.scratch, c->req.seed,
+                                 ctx.scratch, ctx.plan_ptrs, c->req.seed,
                                  FG_STREAM_VALIDATION, first, count, t,
                                  &c->cancel_flag, &c->timeout_flag,
                                  c->outcomes);

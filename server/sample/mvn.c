@@ -22,6 +22,8 @@
  */
 #include "sample/sample_internal.h"
 
+#include "core/dense.h"
+
 #include "feasgate/limits.h"
 
 #include <cjson/cJSON.h>
@@ -240,72 +242,17 @@ fg_status fg_family_mvn_parse(fg_input *in, fg_params *c) {
 }
 
 /* x_i = mean_i + sum_{k <= i} L_ik z_k for every lane, in place over the
- * columns that hold z (cols[k] = z_k). The lanes go in tiles of TILE = 8
- * (one cache line per column); within a tile rows go from the last to the
- * first, so row i still finds z_0 .. z_i unchanged, and the row's
- * accumulators stay in vector registers while its factor entries stream
- * past. A tile's d cache lines stay in L1 through all d rows, where a
- * row-by-row sweep over whole columns would stream d^2/2 columns from L2.
- * Per lane the sum runs over k in increasing order from the mean, exactly
- * as a scalar loop would (SSE2's packed multiply and add are the same
- * IEEE operations, and no fused multiply-add is used): the values do not
- * depend on the tile a lane falls in, on n, or on the block's position.
+ * columns that hold z (cols[k] = z_k): core/dense.c's register-blocked
+ * lower map. Per lane the sum runs over k in increasing order from the
+ * mean with each product and sum rounded, exactly as a scalar loop would,
+ * on every vector path: the values depend neither on the tile a lane falls
+ * in, nor on n, nor on the block's position, nor on the processor.
  * Deliberately not done: skipping zero factor entries (sparse factors are
  * rare and the branch would cost the dense case), and sums in another
- * order (they would change the values with the block size). */
-#define TILE 8
-
-#if defined(__SSE2__)
-#include <emmintrin.h>
-
-static void lower_tile(const double *chol, const double *mean, int d, int t0,
-                       double *const *cols) {
-  for (int i = d - 1; i >= 0; i--) {
-    const double *li = chol + (size_t)i * (size_t)d;
-    __m128d acc[TILE / 2];
-    for (int h = 0; h < TILE / 2; h++)
-      acc[h] = _mm_set1_pd(mean ? mean[i] : 0.0);
-    for (int k = 0; k <= i; k++) {
-      const double *zk = cols[k] + t0;
-      __m128d l = _mm_set1_pd(li[k]);
-      for (int h = 0; h < TILE / 2; h++)
-        acc[h] = _mm_add_pd(acc[h], _mm_mul_pd(l, _mm_loadu_pd(zk + 2 * h)));
-    }
-    double *xi = cols[i] + t0;
-    for (int h = 0; h < TILE / 2; h++)
-      _mm_storeu_pd(xi + 2 * h, acc[h]);
-  }
-}
-#else
-static void lower_tile(const double *chol, const double *mean, int d, int t0,
-                       double *const *cols) {
-  for (int i = d - 1; i >= 0; i--) {
-    const double *li = chol + (size_t)i * (size_t)d;
-    double acc[TILE];
-    for (int q = 0; q < TILE; q++)
-      acc[q] = mean ? mean[i] : 0.0;
-    for (int k = 0; k <= i; k++)
-      for (int q = 0; q < TILE; q++)
-        acc[q] += li[k] * cols[k][t0 + q];
-    for (int q = 0; q < TILE; q++)
-      cols[i][t0 + q] = acc[q];
-  }
-}
-#endif
-
+ * order (they would change the values with the blocking). */
 void fg_family_lower_apply(const double *chol, const double *mean, int d, int n,
                            double *const *cols) {
-  int t0 = 0;
-  for (; t0 + TILE <= n; t0 += TILE)
-    lower_tile(chol, mean, d, t0, cols);
-  for (int t = t0; t < n; t++) /* the last lanes of a short block */
-    for (int i = d - 1; i >= 0; i--) {
-      const double *li = chol + (size_t)i * (size_t)d;
-      double acc = mean ? mean[i] : 0.0;
-      for (int k = 0; k <= i; k++)
-        acc += li[k] * cols[k][t];
-      cols[i][t] = acc;
-    }
+  fg_dense_lower(chol, mean, d, cols, n);
 }
 
 void fg_family_mvn_draw(const fg_input *in, const fg_draw_ctx *dc, double *out,

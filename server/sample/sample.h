@@ -88,6 +88,21 @@ void fg_sampler_draw(const fg_sampler *s, fg_sample_scratch *w, uint64_t seed,
                      fg_stream stream, uint64_t first, int n, double *out,
                      size_t stride);
 
+/* Row plans (engine/rowplan.c): like fg_sampler_draw, except that every
+ * element j with raw[j] set of an untruncated `normal` input and every
+ * `multivariate_normal` input whose first element has raw set (outside
+ * any copula, as fg_sampler_gaussian offers them) is left as its standard
+ * normal e_j (slot j), without mean or factor. raw has one flag per
+ * dimension; flags of other inputs are ignored. */
+void fg_sampler_draw_raw(const fg_sampler *s, fg_sample_scratch *w,
+                         uint64_t seed, fg_stream stream, uint64_t first, int n,
+                         const unsigned char *raw, double *out, size_t stride);
+/* Turns what fg_sampler_draw_raw left raw into the values fg_sampler_draw
+ * gives (the same operations, so the same bits), in place, lanes [0, n). */
+void fg_sampler_finish_raw(const fg_sampler *s, fg_sample_scratch *w, int n,
+                           const unsigned char *raw, double *out,
+                           size_t stride);
+
 /* ---- sampling designs (design.c) ----
  * A design decides where the uniforms behind each scenario come from;
  * every input is then mapped through its inverse CDF (multivariate normal

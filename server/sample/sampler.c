@@ -22,6 +22,13 @@
  * draw path does not allocate or lock: the generator, the word and lane
  * buffers live in the scratch.
  *
+ * Raw draws (engine/rowplan.c): fg_sampler_draw_raw leaves flagged
+ * untruncated normal elements and multivariate normal inputs (outside
+ * copulas) as their standard normals, from the same slots; a row plan
+ * evaluates its folded rows from them. fg_sampler_finish_raw applies the
+ * transforms the plain draw would have (m + sd e, the lower map) with the
+ * same code, so finished values are the plain draw's bits.
+ *
  * GSL's error handler: GSL aborts on errors by default, which a daemon
  * must never do on a client's input. The first build switches it off once
  * for the process (pthread_once); every GSL result used here is checked or
@@ -338,9 +345,21 @@ static void draw_table(const fg_input *in, gsl_rng *r, fg_stream_key key,
   }
 }
 
-void fg_sampler_draw(const fg_sampler *s, fg_sample_scratch *w, uint64_t seed,
-                     fg_stream stream, uint64_t first, int n, double *out,
-                     size_t stride) {
+/* Is input `in` (or its element e) left raw by these flags? */
+static int raw_input(const fg_input *in, const unsigned char *raw) {
+  if (!raw || in->copula >= 0) return 0;
+  if (in->kind == FG_FAM_MVN) return raw[in->base] != 0;
+  return 0;
+}
+
+static int raw_element(const fg_input *in, int e, const unsigned char *raw) {
+  return raw && in->copula < 0 && in->kind == FG_FAM_NORMAL &&
+         !in->truncated && raw[in->base + e] != 0;
+}
+
+static void draw(const fg_sampler *s, fg_sample_scratch *w, uint64_t seed,
+                 fg_stream stream, uint64_t first, int n,
+                 const unsigned char *raw, double *out, size_t stride) {
   if (n > FG_BLOCK) n = FG_BLOCK; /* the lane buffers' size; callers obey */
   fg_draw_ctx dc = {.key = fg_stream_key_make(seed, stream),
                     .first = first,
@@ -355,7 +374,12 @@ void fg_sampler_draw(const fg_sampler *s, fg_sample_scratch *w, uint64_t seed,
     const fg_input *in = &s->inputs[i];
     if (in->copula >= 0) continue;
     if (in->kind == FG_FAM_MVN) {
-      fg_family_mvn_draw(in, &dc, out, stride);
+      if (raw_input(in, raw))
+        for (int k = 0; k < in->size; k++)
+          fg_stream_normals(dc.key, first, n, (uint32_t)(in->base + k),
+                            dc.words, out + (size_t)(in->base + k) * stride);
+      else
+        fg_family_mvn_draw(in, &dc, out, stride);
       continue;
     }
     if (in->kind == FG_FAM_SCENARIO_TABLE) {
@@ -364,11 +388,51 @@ void fg_sampler_draw(const fg_sampler *s, fg_sample_scratch *w, uint64_t seed,
     }
     for (int e = 0; e < in->size; e++) {
       uint32_t slot = (uint32_t)(in->base + e);
-      fg_family_draw_block(in, e, slot, &dc, out + (size_t)slot * stride);
+      if (raw_element(in, e, raw))
+        fg_stream_normals(dc.key, first, n, slot, dc.words,
+                          out + (size_t)slot * stride);
+      else
+        fg_family_draw_block(in, e, slot, &dc, out + (size_t)slot * stride);
     }
   }
   for (int c = 0; c < s->ncopulas; c++)
     fg_sampler_copula_draw(&s->copulas[c], s->inputs, &dc, out, stride);
+}
+
+void fg_sampler_draw(const fg_sampler *s, fg_sample_scratch *w, uint64_t seed,
+                     fg_stream stream, uint64_t first, int n, double *out,
+                     size_t stride) {
+  draw(s, w, seed, stream, first, n, NULL, out, stride);
+}
+
+void fg_sampler_draw_raw(const fg_sampler *s, fg_sample_scratch *w,
+                         uint64_t seed, fg_stream stream, uint64_t first, int n,
+                         const unsigned char *raw, double *out, size_t stride) {
+  draw(s, w, seed, stream, first, n, raw, out, stride);
+}
+
+/* The transforms fg_family_draw_block (normal: m + sd * e) and
+ * fg_family_mvn_draw (the lower map) apply after their normals. */
+void fg_sampler_finish_raw(const fg_sampler *s, fg_sample_scratch *w, int n,
+                           const unsigned char *raw, double *out,
+                           size_t stride) {
+  if (n > FG_BLOCK) n = FG_BLOCK;
+  for (int i = 0; i < s->ninputs; i++) {
+    const fg_input *in = &s->inputs[i];
+    if (raw_input(in, raw)) {
+      for (int k = 0; k < in->size; k++)
+        w->cols[k] = out + (size_t)(in->base + k) * stride;
+      fg_family_lower_apply(in->chol, in->par[0], in->size, n, w->cols);
+      continue;
+    }
+    for (int e = 0; e < in->size; e++) {
+      if (!raw_element(in, e, raw)) continue;
+      double *x = out + (size_t)(in->base + e) * stride;
+      double m = in->par[0][e], sd = in->par[1][e];
+      for (int t = 0; t < n; t++)
+        x[t] = m + sd * x[t];
+    }
+  }
 }
 
 /* ---- for design.c ------------------------------------------------------ */

@@ -314,6 +314,24 @@ static void test_pinned_counts(void) {
   pin_counts(joint, "{\"decision\":{\"x\":1.5},\"samples\":60000,"
                     "\"seed\":77}",
              13654, rows_b, "abcdf", "joint families");
+  /* Every row affine in jointly normal inputs: the rows come from the row
+   * plan (engine/rowplan.c, folded coefficients and raw normals). Pinned
+   * when the plan came in; the block stream gives the same counts here. */
+  static const char *folded =
+      "{\"format\":1,\"name\":\"pin-c\",\"decisions\":[{\"name\":\"x\"}],"
+      "\"uncertain\":["
+      "{\"name\":\"m\",\"size\":3,\"distribution\":{\"family\":"
+      "\"multivariate_normal\",\"mean\":[0,1,2],\"covariance\":"
+      "[[1,0.5,0.2],[0.5,2,0.3],[0.2,0.3,1.5]]}},"
+      "{\"name\":\"n\",\"size\":2,\"distribution\":{\"family\":\"normal\","
+      "\"mean\":[1,-1],\"sd\":[0.5,2]}}],"
+      "\"constraints\":[{\"name\":\"a\",\"require\":\"m[0] + 2 * m[1] - n[0] <= x + 1\"},"
+      "{\"name\":\"b\",\"require\":\"1 <= m[2] + n[1] <= x + 4\"},"
+      "{\"name\":\"c\",\"require\":\"dot([0.5, -1, 2], m) >= -x * n[0]\"}]}";
+  static const uint64_t rows_c[] = {19718, 31523, 3049};
+  pin_counts(folded, "{\"decision\":{\"x\":1.5},\"samples\":60000,"
+                     "\"seed\":78}",
+             18269, rows_c, "abc", "folded rows");
 }
 
 /* Early stopping: the same look points whatever the chunk size and worker
