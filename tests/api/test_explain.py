@@ -249,6 +249,26 @@ def test_comparison_drivers(d):
         isinstance(c.get("joint", {}).get("drivers"), list) and
         all("drivers" in r for r in c["constraints"]) for c in b["candidates"])
     check(ok, "comparison with explain: every candidate has drivers (%d)" % st)
+    if ok:
+        # a candidate is a check on the comparison's seed: the same samples,
+        # so the same drivers as the plain check of that decision
+        for cand in b["candidates"]:
+            cap = next(x["decision"]["cap"] for x in body["candidates"]
+                       if x["label"] == cand["label"])
+            st, _, one = d.request("POST", "/v1/models/explain-api/checks",
+                                   {"decision": {"cap": cap}, "samples": 4000,
+                                    "seed": 5, "explain": True})
+            pairs = [(cand["joint"]["drivers"], one["joint"]["drivers"])]
+            rows = {r["name"]: r["drivers"] for r in one["constraints"]}
+            pairs += [(r["drivers"], rows.get(r["name"])) for r in cand["constraints"]]
+            same = st == 201 and all(
+                (x is None and y is None) or
+                (x is not None and y is not None and len(x) == len(y) and
+                 all(p["input"] == q["input"] and close(p["shift"], q["shift"], 1e-9)
+                     for p, q in zip(x, y)))
+                for x, y in pairs)
+            check(same, "comparison candidate %s: drivers equal the check of "
+                  "the same decision and seed" % cand["label"])
     st, _, b = d.request("POST", "/v1/models/explain-api/checks",
                          dict(REQUEST, explain="yes"))
     check(st == 400 and "/explain" in json.dumps(b),
