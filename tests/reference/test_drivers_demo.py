@@ -20,7 +20,6 @@ chunk, so only the last bits may differ); the listed inputs are the 5
 largest |shift| (ties within 1e-9 either way); a row never violated has
 drivers null; the joint's violation count matches the recomputed one.
 """
-import math
 import os
 
 import numpy as np

@@ -13,8 +13,10 @@ and takes the exact quantile of each row's excess.
 Quantile definition: with n samples and k = ceil(target * n), the k-th
 smallest excess X_(k) (NaN counted as +infinity), i.e. the inverse of the
 empirical distribution function, numpy.quantile(..., method=
-"inverted_cdf") -- definition 1 of Hyndman & Fan, "Sample quantiles in
-statistical packages", The American Statistician 50 (1996). Why it is the
+"inverted_cdf"), which the test also asks for each row as a check on its
+own indexing -- definition 1 of Hyndman & Fan, "Sample quantiles in
+statistical packages", The American Statistician 50 (1996) (citation
+from memory; NumPy's documentation names the same). Why it is the
 slack: loosening a row's limit by s makes it hold exactly in the samples
 with excess <= s, so it holds in at least a target fraction of the n
 samples iff #(excess <= s) >= k, and the smallest such s is X_(k); the
@@ -115,6 +117,10 @@ for name, rows_of in MODELS:
                 c.check(r["violated"] == nv, "%s %s: violated %d, recomputed %d"
                         % (tag, row, r["violated"], nv))
                 lo, xk, hi = order_stats(x, k)
+                npq = np.quantile(np.where(np.isnan(x), np.inf, x), target,
+                                  method="inverted_cdf")
+                c.check(npq == xk, "%s %s: X_(%d) %r equals numpy's inverted_cdf "
+                        "quantile %r" % (tag, row, k, float(xk), float(npq)))
                 exact = max(0.0, float(xk))
                 got = r["slack_to_target"]
                 if xk <= 0:
