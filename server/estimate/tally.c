@@ -13,7 +13,9 @@
  * non-finite, with the first sample index where it happened: the minimum
  * over chunks when merging, so it does not depend on workers or chunk
  * sizes); a +infinity excess is a violation like any other but stays out
- * of the excess sum and histogram (counted as `infinite`).
+ * of the excess sum and histogram (counted as `infinite`). Driver sums
+ * ("explain": true) are added per block after the tally, over each row's
+ * violating lanes only (fg_tally_drivers_block).
  *
  * Merging: counts add; sums add in merge order (the engine merges chunks in
  * chunk order, so sums do not depend on the number of workers); failing
