@@ -43,14 +43,6 @@
 #include <stdlib.h>
 #include <string.h>
 
-/* Terms smaller than this fraction of the running sum are dropped: they
- * cannot change a double. */
-#define TAIL_NEGLIGIBLE 1e-18
-/* Relative precision of the epsilon bisection. */
-#define EPS_REL_PRECISION 1e-12
-/* Iterations of any bisection at most (each halves the bracket). */
-#define BISECT_MAX 4000
-
 static double z_upper(double tail) {
   /* The quantile with `tail` above it; Qinv keeps accuracy for small
    * tails. */
@@ -85,7 +77,7 @@ fg_status fg_size_half_width(double h, double confidence, double p,
   double n = ceil(z * z * p * (1 - p) / (h * h));
   if (n < 1) n = 1;
   if (!(n <= (double)FG_SIZE_SAMPLES_MAX))
-    return fg_problem_limit(pr, "", "sample_size_samples",
+    return fg_problem_limit(pr, "", FG_LIMIT_SAMPLE_SIZE_SAMPLES,
                             (double)FG_SIZE_SAMPLES_MAX,
                             "half_width %g needs %.3g samples, more than "
                             "sample_size_samples = %.0f",
@@ -122,7 +114,7 @@ fg_status fg_size_power(double target, double p, double confidence,
   double n = ceil(r * r);
   if (n < 1) n = 1;
   if (!(n <= (double)FG_SIZE_SAMPLES_MAX))
-    return fg_problem_limit(pr, "", "sample_size_samples",
+    return fg_problem_limit(pr, "", FG_LIMIT_SAMPLE_SIZE_SAMPLES,
                             (double)FG_SIZE_SAMPLES_MAX,
                             "probability %g against target %g needs %.3g "
                             "samples, more than sample_size_samples = %.0f",
@@ -155,14 +147,14 @@ double fg_scenario_log_bound(double n, double eps, uint64_t d, uint64_t k) {
     t *= i / ((n - i + 1) * odds);
     i -= 1;
     sum += t;
-    if (t < TAIL_NEGLIGIBLE * sum) break;
+    if (t < FG_SIZE_TAIL_NEGLIGIBLE * sum) break;
   }
   t = 1.0;
   for (double i = j; i < m;) { /* upwards, to m */
     t *= (n - i) / (i + 1) * odds;
     i += 1;
     sum += t;
-    if (t < TAIL_NEGLIGIBLE * sum) break;
+    if (t < FG_SIZE_TAIL_NEGLIGIBLE * sum) break;
   }
   return log_c + log_term(n, j, leps, l1m) + log(sum);
 }
@@ -179,13 +171,13 @@ static fg_status check_scenario_inputs(double beta, uint64_t d, uint64_t k,
                           (unsigned long long)d);
   if (d > FG_SIZE_DECISIONS_MAX)
     return fg_problem_limit(
-        pr, "", "sample_size_decisions", (double)FG_SIZE_DECISIONS_MAX,
+        pr, "", FG_LIMIT_SAMPLE_SIZE_DECISIONS, (double)FG_SIZE_DECISIONS_MAX,
         "decisions %llu exceeds sample_size_decisions = "
         "%llu",
         (unsigned long long)d, (unsigned long long)FG_SIZE_DECISIONS_MAX);
   if (k > FG_SIZE_DISCARDED_MAX)
     return fg_problem_limit(
-        pr, "", "sample_size_discarded", (double)FG_SIZE_DISCARDED_MAX,
+        pr, "", FG_LIMIT_SAMPLE_SIZE_DISCARDED, (double)FG_SIZE_DISCARDED_MAX,
         "discarded %llu exceeds sample_size_discarded = "
         "%llu",
         (unsigned long long)k, (unsigned long long)FG_SIZE_DISCARDED_MAX);
@@ -208,13 +200,14 @@ fg_status fg_scenario_size(double eps, double beta, uint64_t d, uint64_t k,
   while (fg_scenario_log_bound((double)hi, eps, d, k) > lb) {
     lo = hi;
     if (hi >= max)
-      return fg_problem_limit(pr, "", "sample_size_scenarios", (double)max,
+      return fg_problem_limit(pr, "", FG_LIMIT_SAMPLE_SIZE_SCENARIOS,
+                              (double)max,
                               "epsilon %g and beta %g need more than "
                               "sample_size_scenarios = %llu scenarios",
                               eps, beta, (unsigned long long)max);
     hi = hi > max / 2 ? max : hi * 2;
   }
-  for (int it = 0; hi - lo > 1 && it < BISECT_MAX; it++) {
+  for (int it = 0; hi - lo > 1 && it < FG_SIZE_BISECT_MAX; it++) {
     uint64_t mid = lo + (hi - lo) / 2;
     if (fg_scenario_log_bound((double)mid, eps, d, k) > lb)
       lo = mid;
@@ -232,7 +225,7 @@ fg_status fg_scenario_epsilon(uint64_t n, double beta, uint64_t d, uint64_t k,
   if (st != FG_OK) return st;
   if (n > FG_SIZE_SCENARIOS_MAX)
     return fg_problem_limit(
-        pr, "", "sample_size_scenarios", (double)FG_SIZE_SCENARIOS_MAX,
+        pr, "", FG_LIMIT_SAMPLE_SIZE_SCENARIOS, (double)FG_SIZE_SCENARIOS_MAX,
         "scenarios %llu exceeds sample_size_scenarios = "
         "%llu",
         (unsigned long long)n, (unsigned long long)FG_SIZE_SCENARIOS_MAX);
@@ -250,7 +243,7 @@ fg_status fg_scenario_epsilon(uint64_t n, double beta, uint64_t d, uint64_t k,
     lo = hi;
     hi = 1.0;
     /* Approach 1 from below by halving the distance. */
-    for (int it = 0; it < BISECT_MAX; it++) {
+    for (int it = 0; it < FG_SIZE_BISECT_MAX; it++) {
       double cand = 1 - (1 - lo) / 2;
       if (cand >= 1) break;
       if (fg_scenario_log_bound(nn, cand, d, k) <= lb) {
@@ -267,13 +260,16 @@ fg_status fg_scenario_epsilon(uint64_t n, double beta, uint64_t d, uint64_t k,
   } else {
     lo = hi / 2;
     for (int it = 0;
-         it < BISECT_MAX && fg_scenario_log_bound(nn, lo, d, k) <= lb; it++) {
+         it < FG_SIZE_BISECT_MAX && fg_scenario_log_bound(nn, lo, d, k) <= lb;
+         it++) {
       hi = lo;
       lo /= 2;
       if (lo == 0) break;
     }
   }
-  for (int it = 0; it < BISECT_MAX && hi - lo > EPS_REL_PRECISION * hi; it++) {
+  for (int it = 0;
+       it < FG_SIZE_BISECT_MAX && hi - lo > FG_SIZE_EPS_REL_PRECISION * hi;
+       it++) {
     double mid = lo + (hi - lo) / 2;
     if (fg_scenario_log_bound(nn, mid, d, k) > lb)
       lo = mid;
@@ -442,7 +438,7 @@ fg_status fg_size_query_solve(const fg_size_query *q, fg_size_answer *a,
   a->gives_epsilon = true;
   double n = v[FG_SZ_SCENARIOS];
   if (n > (double)FG_SIZE_SCENARIOS_MAX)
-    return fg_problem_limit(p, "", "sample_size_scenarios",
+    return fg_problem_limit(p, "", FG_LIMIT_SAMPLE_SIZE_SCENARIOS,
                             (double)FG_SIZE_SCENARIOS_MAX,
                             "scenarios %.0f exceeds sample_size_scenarios = "
                             "%llu",

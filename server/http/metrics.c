@@ -81,10 +81,9 @@ static unsigned long long duration_count;
 static double duration_sum;
 
 void fg_metrics_start(void) {
-  struct timespec ts;
-  clock_gettime(CLOCK_REALTIME, &ts);
+  double now = floor(fg_time_wall() * 1000.0) / 1000.0;
   pthread_mutex_lock(&lock);
-  start_time_s = (double)ts.tv_sec + (double)(ts.tv_nsec / 1000000) / 1000.0;
+  start_time_s = now;
   pthread_mutex_unlock(&lock);
 }
 

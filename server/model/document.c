@@ -107,7 +107,7 @@ static void check_layout(const fg_model_plan *pl, const fg_program_info *info,
     return;
   }
   if (info->nrows > FG_ROWS_MAX)
-    fg_model_limit(cx, "/constraints", "constraint_rows", FG_ROWS_MAX,
+    fg_model_limit(cx, "/constraints", FG_LIMIT_CONSTRAINT_ROWS, FG_ROWS_MAX,
                    "constraints expand to %d rows; the limit is %d",
                    info->nrows, FG_ROWS_MAX);
 }
