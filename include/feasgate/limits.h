@@ -139,8 +139,9 @@
 /* Drivers ("explain": true): one accumulator per constraint row (and the
  * joint) and uncertain input component, in every chunk tally of a running
  * check. 65536 cells keep a tally's sums at 512 kB, so a check's window of
- * tallies stays within tens of MB on the largest pool, and the per-block
- * cost at rows x components additions per sample. */
+ * tallies stays within tens of MB on the largest pool, and the per-sample
+ * cost at rows x components / 16 mask tests plus one addition per
+ * violation and component (estimate/tally.c). */
 #define FG_EXPLAIN_CELLS_MAX 65536
 /* Drivers listed per row: the components with the largest |shift|. */
 #define FG_DRIVERS_LISTED 5

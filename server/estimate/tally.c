@@ -13,7 +13,9 @@
  * non-finite, with the first sample index where it happened: the minimum
  * over chunks when merging, so it does not depend on workers or chunk
  * sizes); a +infinity excess is a violation like any other but stays out
- * of the excess sum and histogram (counted as `infinite`).
+ * of the excess sum and histogram (counted as `infinite`). Driver sums
+ * ("explain": true) are added per block after the tally, over each row's
+ * violating lanes only (fg_tally_drivers_block).
  *
  * Merging: counts add; sums add in merge order (the engine merges chunks in
  * chunk order, so sums do not depend on the number of workers); failing
@@ -90,32 +92,69 @@ fg_status fg_tally_drivers_init(fg_tally *t, int dims, const double *centre) {
   return FG_OK;
 }
 
+/* The violators' sums in tiles of DRV_TILE components: the tile's
+ * deviations d = x - centre are laid out sample-major (dt[s][jt]), each
+ * row's violating lanes are listed once per tile, and the sums run over
+ * those lanes only, the tile's components side by side (independent
+ * chains, so the compiler may put them in vector lanes). Every sum is
+ * still formed in sample order, one rounding per addend, from +0: the
+ * same bits as summing w[s] * d[s] over all lanes with w in {0, 1} (a
+ * +-0 addend changes no partial sum, which is never -0 in round to
+ * nearest), except where a d is non-finite, and then the component's own
+ * sums are non-finite and check.c skips it. Cost: per tile the rows'
+ * masks (rows x n) plus one addition per violation and component, where
+ * the mask-weighted form paid rows x components x n dependent additions. */
+enum { DRV_TILE = 16 };
+
 void fg_tally_drivers_block(fg_tally *t, const double *x, size_t stride,
                             const double *const *excess, const int *failed,
                             int n) {
   if (!t->drv || n <= 0) return;
+  if (n > FG_BLOCK) n = FG_BLOCK;
   int D = t->drv_dims, R = t->nrows;
-  double d[FG_BLOCK], w[FG_BLOCK];
-  for (int j = 0; j < D; j++) {
-    const double *xj = x + (size_t)j * stride;
-    double c = t->drv_centre[j], s1 = 0, s2 = 0;
-    for (int s = 0; s < n; s++) {
-      d[s] = xj[s] - c;
-      s1 += d[s];
-      s2 += d[s] * d[s];
+  double dt[FG_BLOCK][DRV_TILE];
+  int idx[FG_BLOCK];
+  for (int j0 = 0; j0 < D; j0 += DRV_TILE) {
+    int jn = D - j0 < DRV_TILE ? D - j0 : DRV_TILE;
+    for (int jt = 0; jt < jn; jt++) {
+      int j = j0 + jt;
+      const double *xj = x + (size_t)j * stride;
+      double c = t->drv_centre[j], s1 = 0, s2 = 0;
+      for (int s = 0; s < n; s++) {
+        double d = xj[s] - c;
+        dt[s][jt] = d;
+        s1 += d;
+        s2 += d * d;
+      }
+      t->drv[j] += s1;
+      t->drv[D + j] += s2;
     }
-    t->drv[j] += s1;
-    t->drv[D + j] += s2;
+    /* a last, partial tile: its unused columns summed (fixed width) but
+     * never stored */
+    for (int s = 0; s < n && jn < DRV_TILE; s++)
+      for (int jt = jn; jt < DRV_TILE; jt++) dt[s][jt] = 0;
     for (int r = 0; r <= R; r++) {
-      double acc = 0;
+      int m = 0;
       if (r < R) {
         const double *e = excess[r];
-        for (int s = 0; s < n; s++) w[s] = e[s] <= 0 ? 0.0 : 1.0;
+        for (int s = 0; s < n; s++) {
+          idx[m] = s;
+          m += !(e[s] <= 0); /* NaN counts as violated, as in the tally */
+        }
       } else {
-        for (int s = 0; s < n; s++) w[s] = failed[s] ? 1.0 : 0.0;
+        for (int s = 0; s < n; s++) {
+          idx[m] = s;
+          m += failed[s] != 0;
+        }
       }
-      for (int s = 0; s < n; s++) acc += w[s] * d[s];
-      t->drv[(size_t)(2 + r) * (size_t)D + (size_t)j] += acc;
+      if (m == 0) continue;
+      double acc[DRV_TILE] = {0};
+      for (int k = 0; k < m; k++) {
+        const double *dk = dt[idx[k]];
+        for (int jt = 0; jt < DRV_TILE; jt++) acc[jt] += dk[jt];
+      }
+      double *out = t->drv + (size_t)(2 + r) * (size_t)D + (size_t)j0;
+      for (int jt = 0; jt < jn; jt++) out[jt] += acc[jt];
     }
   }
 }

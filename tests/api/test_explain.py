@@ -21,7 +21,11 @@ checks:
   - a Latin hypercube check is answered 422; an index at or beyond samples
     and a non-numeric index 400 naming /index; an unknown check 404;
   - failing_scenarios_count above the limit is a 400 naming the limit,
-    which GET /v1/limits lists.
+    which GET /v1/limits lists;
+  - a comparison with "explain": true gives each candidate the drivers
+    of the plain check of its decision and seed;
+  - after a second version of the model (other means) is registered, an
+    earlier check's scenarios are unchanged (the stored version is used).
 
 Standard library (plus apicommon's jsonschema checks of every answer).
 Prints one line per failed check and "N passed, N failed" last; exits
@@ -90,10 +94,13 @@ def test_monte_carlo(d, tmp):
     check(len(failing) == 40, "40 failing scenarios listed: %d" % len(failing))
     last = max(failing)
     seen_true = 0
+    answers = {}
     for i in range(last + 1):
         st, _, b = explain(d, cid, i)
         if not check(st == 200, "explain %d: 200, got %d %r" % (i, st, b)):
             return
+        if i in (0, last):
+            answers[i] = b
         check(b["check"] == cid and b["index"] == i and b["seed"] == SEED
               and b["stream"] == "validation" and b["sampling"] == "monte_carlo",
               "explain %d: identity members %r" % (i, {k: b[k] for k in
@@ -155,6 +162,22 @@ def test_monte_carlo(d, tmp):
               "index %s: 400 naming /index, got %d %r" % (idx, st, b))
     st, _, b = explain(d, "chk_00000000000000000000000000", 0)
     check(st == 404, "unknown check: 404, got %d" % st)
+    return cid, answers
+
+
+def test_new_version(d, cid, answers):
+    """A later version of the model (other means) does not change an
+    earlier check's scenarios: they come from the version it ran on."""
+    moved = json.loads(json.dumps(MODEL))
+    moved["uncertain"][0]["distribution"]["mean"] = [m + 10 for m in MEANS]
+    st, _, b = d.request("POST", "/v1/models", moved)
+    if not check(st in (200, 201) and b.get("version") == 2,
+                 "a second version registers: %d %r" % (st, b.get("version"))):
+        return
+    for i, before in answers.items():
+        st, _, now = explain(d, cid, i)
+        check(st == 200 and now == before,
+              "index %d after version 2: the same scenario as before" % i)
 
 
 def test_other_designs(d):
@@ -249,6 +272,26 @@ def test_comparison_drivers(d):
         isinstance(c.get("joint", {}).get("drivers"), list) and
         all("drivers" in r for r in c["constraints"]) for c in b["candidates"])
     check(ok, "comparison with explain: every candidate has drivers (%d)" % st)
+    if ok:
+        # a candidate is a check on the comparison's seed: the same samples,
+        # so the same drivers as the plain check of that decision
+        for cand in b["candidates"]:
+            cap = next(x["decision"]["cap"] for x in body["candidates"]
+                       if x["label"] == cand["label"])
+            st, _, one = d.request("POST", "/v1/models/explain-api/checks",
+                                   {"decision": {"cap": cap}, "samples": 4000,
+                                    "seed": 5, "explain": True})
+            pairs = [(cand["joint"]["drivers"], one["joint"]["drivers"])]
+            rows = {r["name"]: r["drivers"] for r in one["constraints"]}
+            pairs += [(r["drivers"], rows.get(r["name"])) for r in cand["constraints"]]
+            same = st == 201 and all(
+                (x is None and y is None) or
+                (x is not None and y is not None and len(x) == len(y) and
+                 all(p["input"] == q["input"] and close(p["shift"], q["shift"], 1e-9)
+                     for p, q in zip(x, y)))
+                for x, y in pairs)
+            check(same, "comparison candidate %s: drivers equal the check of "
+                  "the same decision and seed" % cand["label"])
     st, _, b = d.request("POST", "/v1/models/explain-api/checks",
                          dict(REQUEST, explain="yes"))
     check(st == 400 and "/explain" in json.dumps(b),
@@ -266,12 +309,14 @@ def main():
             try:
                 st, h, raw = d.fetch("POST", "/v1/models", MODEL)
                 if check(st in (200, 201), "register: %d %s" % (st, raw[:300])):
-                    test_monte_carlo(d, tmp)
+                    first = test_monte_carlo(d, tmp)
                     test_other_designs(d)
                     test_limit(d)
                     test_comparison_drivers(d)
                     test_explain_cells(d)
                     test_stopped_early(d)
+                    if first:
+                        test_new_version(d, *first)  # last: moves the model on
             except Exception as e:  # a crash of the test is a failure
                 check(False, "exception %r" % e)
         check(d.stop() == 0, "SIGTERM: exit status 0")

@@ -2,9 +2,12 @@
 """tests/bench/bench.py -- feasgate's throughput benchmarks.
 
 Usage: /usr/bin/python3 tests/bench/bench.py [--bin build/feasgate]
-       [--quick] [--only affine,chain,...]
+       [--quick] [--only affine,chain,...,explain,...]
 (or `cmake --build build --target bench`). Prints figures; never fails on
-speed, and ctest never runs it.
+speed, and ctest never runs it. `--only` takes workload names and section
+names (throughput, exact, http, explain): the sections named run on the
+workloads named; no section named means every section, no workload named
+every workload.
 
 What it measures, per workload of workloads.py (affine, chain, table,
 theatre, microgrid):
@@ -23,6 +26,10 @@ theatre, microgrid):
             4,000,000-sample synchronous check of affine and chain, and the
             median overhead (wall time minus `elapsed_ms`) of 10,000-sample
             checks of the theatre demo.
+  explain   the same offline check with `"explain": true` (drivers) and
+            without, same build, same invocation, same worker count (1 and
+            2), best of REPEAT each, the two alternating: both rates and the
+            relative cost (time with explain over time without).
 Both sides' joint probabilities are printed so a reader sees the two
 implementations simulate the same thing.
 
@@ -52,10 +59,10 @@ NUMPY_SAMPLES = {"affine": 1000000, "chain": 1000000, "table": 1000000,
 REPEAT = 5  # offline runs per worker count; the fastest is reported
 
 
-def offline_once(binary, paths, workers, samples):
+def offline_once(binary, paths, workers, samples, request=None):
     t0 = time.perf_counter()
     proc = subprocess.run(
-        [binary, "check", paths["model"], paths["request"],
+        [binary, "check", paths["model"], request or paths["request"],
          "--workers", str(workers), "--samples", str(samples)],
         capture_output=True, text=True)
     wall = time.perf_counter() - t0
@@ -172,6 +179,37 @@ def exact_vs_simulation(binary, paths, rate1):
                              fmt_rate(rate1)))
 
 
+def explain_cost(binary, name, paths, samples):
+    """The workload's check with "explain": true against the same check
+    without: same binary, request, seed and sample count, at 1 and 2
+    workers; per worker count the best of REPEAT runs each, the plain and
+    the explained run alternating so a slow spell of a shared machine falls
+    on both. Prints both rates and the cost: time with explain over time
+    without (simulation time, the result's elapsed_ms, as above)."""
+    with open(paths["request"]) as f:
+        req = json.load(f)
+    req["explain"] = True
+    on = paths["request"].replace(".request.json", ".explain.json")
+    with open(on, "w") as f:
+        json.dump(req, f)
+    best = {}
+    for _ in range(REPEAT):
+        for w in (1, 2):
+            for mode, rq in (("off", None), ("on", on)):
+                sim = offline_once(binary, paths, w, samples, rq)[0]
+                if (w, mode) not in best or sim < best[(w, mode)]:
+                    best[(w, mode)] = sim
+    for w in (1, 2):
+        off, with_ = best[(w, "off")], best[(w, "on")]
+        print("%-10s %7d %11d %11s %11s %8.2fx %+8.0f%%" % (
+            name, w, samples, fmt_rate(samples / off),
+            fmt_rate(samples / with_), with_ / off, (with_ / off - 1) * 100))
+    sys.stdout.flush()
+
+
+SECTIONS = ("throughput", "exact", "http", "explain")
+
+
 def fmt_rate(x):
     return "%.3g M/s" % (x / 1e6)
 
@@ -188,20 +226,29 @@ def main():
     scale = 10 if args.quick else 1
     if args.quick:
         REPEAT = 1
+    only = [x for x in args.only.split(",") if x]
+    unknown = [x for x in only if x not in workloads.BUILDERS and x not in SECTIONS]
+    if unknown:
+        ap.error("--only: unknown workload or section %s (workloads: %s; "
+                 "sections: %s)" % (", ".join(unknown), ", ".join(workloads.BUILDERS),
+                                    ", ".join(SECTIONS)))
     names = [n for n in workloads.BUILDERS
-             if not args.only or n in args.only.split(",")]
+             if n in only or not any(x in workloads.BUILDERS for x in only)]
+    sections = [x for x in SECTIONS
+                if x in only or not any(y in SECTIONS for y in only)]
     tmp = tempfile.mkdtemp(prefix="fgbench-docs-")
     paths = workloads.write_all(tmp, names)
     with open("/proc/cpuinfo") as f:
         cpu = next((ln.split(":", 1)[1].strip() for ln in f
                     if ln.startswith("model name")), "?")
     print("machine: nproc %d, %s" % (os.cpu_count(), cpu))
-    print("%-10s %7s %11s %11s %9s %11s %8s %8s %9s" % (
-        "workload", "workers", "samples", "feasgate", "setup", "numpy",
-        "ratio", "2w/1w", "P f/np"))
+    if "throughput" in sections:
+        print("%-10s %7s %11s %11s %9s %11s %8s %8s %9s" % (
+            "workload", "workers", "samples", "feasgate", "setup", "numpy",
+            "ratio", "2w/1w", "P f/np"))
     rates = {}
     blas_told = False
-    for name in names:
+    for name in (names if "throughput" in sections else []):
         s = SAMPLES[name] // scale
         npres = numpy_side(name, paths[name], NUMPY_SAMPLES[name] // scale)
         if not blas_told:
@@ -225,10 +272,14 @@ def main():
                 "%.4f/%.4f" % (p, np_p)))
         sys.stdout.flush()
 
-    if "affine" in names and ("affine", 1) in rates:
+    if "exact" in sections and "affine" in names:
+        if ("affine", 1) not in rates:  # throughput not run: measure it here
+            s = SAMPLES["affine"] // scale
+            rates[("affine", 1)] = s / offline(args.bin, paths["affine"], s)[1][0]
         exact_vs_simulation(args.bin, paths["affine"], rates[("affine", 1)])
 
-    http_names = [n for n in ("affine", "chain", "theatre") if n in names]
+    http_names = [n for n in ("affine", "chain", "theatre")
+                  if n in names and "http" in sections]
     if http_names:
         d = Daemon(args.bin, 2)
         try:
@@ -272,6 +323,15 @@ def main():
                           min(over), max(over)))
         finally:
             d.close()
+
+    if "explain" in sections:
+        print("explain: the same check with \"explain\": true and without; "
+              "best of %d each" % REPEAT)
+        print("%-10s %7s %11s %11s %11s %9s %9s" % (
+            "workload", "workers", "samples", "plain", "explain", "time",
+            "cost"))
+        for name in names:
+            explain_cost(args.bin, name, paths[name], SAMPLES[name] // scale)
     shutil.rmtree(tmp, ignore_errors=True)
 
 

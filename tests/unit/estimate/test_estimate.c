@@ -512,6 +512,78 @@ static void test_mvn_poll(void) {
   CHECK(stop.calls == 7);
 }
 
+/* Driver sums (fg_tally_drivers_block, tiled over violating lanes)
+ * against their definition written plainly: per component, sum of w[s] *
+ * d[s] over every lane with w in {0, 1}, in lane order. Bit for bit, over
+ * several blocks (a short one included), 37 components (two full tiles
+ * and a partial one), rows violated often, rarely, never and with NaN
+ * excess, and the "any row" slot; and a merge of two halves equals the
+ * whole. */
+static void test_drivers_block(void) {
+  enum { D = 37, R = 4, BLOCKS = 3 };
+  static double x[D][FG_BLOCK], ex[R][FG_BLOCK], centre[D];
+  double ref[(R + 3) * D];
+  memset(ref, 0, sizeof ref);
+  gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+  gsl_rng_set(rng, 20261202);
+  fg_tally t, a, b;
+  CHECK(fg_tally_init(&t, R) == FG_OK);
+  CHECK(fg_tally_init(&a, R) == FG_OK);
+  CHECK(fg_tally_init(&b, R) == FG_OK);
+  for (int j = 0; j < D; j++) centre[j] = 0.25 * j - 3;
+  CHECK(fg_tally_drivers_init(&t, D, centre) == FG_OK);
+  CHECK(fg_tally_drivers_init(&a, D, centre) == FG_OK);
+  CHECK(fg_tally_drivers_init(&b, D, centre) == FG_OK);
+  int scratch[2 * FG_BLOCK];
+  uint64_t first = 0;
+  for (int blk = 0; blk < BLOCKS; blk++) {
+    int n = blk == 1 ? 77 : FG_BLOCK;
+    for (int s = 0; s < n; s++) {
+      for (int j = 0; j < D; j++)
+        x[j][s] = centre[j] + (1 + j % 5) * gsl_ran_gaussian(rng, 1.0);
+      double u = gsl_rng_uniform(rng);
+      ex[0][s] = u - 0.5;   /* violated about half the time */
+      ex[1][s] = u - 0.97;  /* rarely */
+      ex[2][s] = -1 - u;    /* never */
+      ex[3][s] = (s % 50 == 7) ? NAN : (s % 2 ? 0.0 : -0.0); /* NaN only */
+    }
+    const double *rows[R] = {ex[0], ex[1], ex[2], ex[3]};
+    fg_tally *half = blk < 2 ? &a : &b;
+    fg_tally_block(&t, rows, n, first, NULL, scratch);
+    fg_tally_drivers_block(&t, &x[0][0], FG_BLOCK, rows, scratch, n);
+    fg_tally_block(half, rows, n, first, NULL, scratch);
+    fg_tally_drivers_block(half, &x[0][0], FG_BLOCK, rows, scratch, n);
+    for (int j = 0; j < D; j++) {
+      double d[FG_BLOCK], s1 = 0, s2 = 0;
+      for (int s = 0; s < n; s++) {
+        d[s] = x[j][s] - centre[j];
+        s1 += d[s];
+        s2 += d[s] * d[s];
+      }
+      ref[j] += s1;
+      ref[D + j] += s2;
+      for (int r = 0; r <= R; r++) {
+        double acc = 0;
+        for (int s = 0; s < n; s++) {
+          double w = r < R ? (rows[r][s] <= 0 ? 0.0 : 1.0)
+                           : (scratch[s] ? 1.0 : 0.0);
+          acc += w * d[s];
+        }
+        ref[(2 + r) * D + j] += acc;
+      }
+    }
+    first += (uint64_t)n;
+  }
+  gsl_rng_free(rng);
+  CHECK(memcmp(ref, t.drv, sizeof ref) == 0);
+  for (int j = 0; j < D; j++) CHECK(t.drv[(2 + 2) * D + j] == 0); /* never */
+  fg_tally_merge(&a, &b);
+  CHECK(memcmp(t.drv, a.drv, sizeof ref) == 0);
+  fg_tally_free(&t);
+  fg_tally_free(&a);
+  fg_tally_free(&b);
+}
+
 int main(void) {
   test_mvn_poll();
   test_confidence_sequence();
@@ -524,5 +596,6 @@ int main(void) {
   test_tally();
   test_tally_paths();
   test_hist_batch();
+  test_drivers_block();
   return fg_test_finish();
 }
