@@ -11,6 +11,8 @@
  *   feasgate scenarios MODEL.json [--count N]  a model's scenarios, JSON or
  *            [--seed S] [--start I] [--stream design|validation] [--csv]
  *            [--max M]                         CSV (engine/scenarios.c)
+ *   feasgate sample-model MODEL.json           the scenario program in free
+ *            --scenarios S [--seed N] [--form all]  MPS (http/samplemodels.c)
  *   feasgate sample-size --half-width H ...    sample sizes (estimate/sizes.c)
  *   feasgate check --server URL [--key KEY]    the same gate run by a daemon
  *            MODEL_NAME REQUEST.json           (http/remote.c)
@@ -56,6 +58,7 @@ static void usage(FILE *f) {
           "               (--store STORE ID)\n"
           "  register     add model documents to a store\n"
           "  scenarios    print a model's random scenarios (JSON or CSV)\n"
+          "  sample-model write the scenario program for a solver (free MPS)\n"
           "  sample-size  samples or scenarios needed for a question\n"
           "  keys         add, list or revoke API keys in a store\n"
           "  version      print the version\n\n"
@@ -695,6 +698,8 @@ int main(int argc, char **argv) {
   if (strcmp(cmd, "replay") == 0) return fg_replay_command(argc - 1, argv + 1);
   if (strcmp(cmd, "register") == 0) return cmd_register(argc - 1, argv + 1);
   if (strcmp(cmd, "scenarios") == 0) return cmd_scenarios(argc - 1, argv + 1);
+  if (strcmp(cmd, "sample-model") == 0)
+    return fg_sample_model_command(argc - 1, argv + 1);
   if (strcmp(cmd, "sample-size") == 0) return cmd_sample_size(argc - 1, argv + 1);
   if (strcmp(cmd, "validate") == 0) return cmd_validate(argc - 1, argv + 1);
   if (strcmp(cmd, "version") == 0 || strcmp(cmd, "--version") == 0) {

@@ -229,6 +229,33 @@
 #define FG_T_DF_MIN 1.0
 #define FG_T_DF_MAX 1e12
 
+/* ---- the scenario model export (engine/samplemodel.c, engine/mps.c) ----
+ * The export runs on the request's own thread (like a scenarios answer),
+ * so everything it does is bounded here. */
+/* Scenarios of one export: the indicator form has one binary each, and
+ * mixed-integer solvers stall long before this many. */
+#define FG_SAMPLE_MODEL_SCENARIOS_MAX 100000
+/* Scenario rows of one export (scenarios x half-rows per scenario): the
+ * matrix is gathered in memory (about (decisions + 1) x 12 bytes per row)
+ * before it is written column by column. */
+#define FG_SAMPLE_MODEL_ROWS_MAX 1000000
+/* Bytes of MPS text of one export: the text is held whole and then sent
+ * in a JSON string (escaped once more), so a request stays near 200 MB. */
+#define FG_SAMPLE_MODEL_TEXT_MAX (64u * 1024 * 1024)
+/* Cells of the affine forms in the decisions (registers x (decision
+ * components + 1)), four copies kept: 1 Mi cells is 32 MiB. */
+#define FG_SAMPLE_MODEL_FORM_CELLS_MAX (1u * 1024 * 1024)
+/* Work of reading the coefficients out of the program, in cell updates:
+ * scenarios x (broadcast registers + block instructions) x (decision
+ * components + 1); 3e8 is about a second on one core of the test machine. */
+#define FG_SAMPLE_MODEL_WORK_MAX 300000000.0
+#define FG_SAMPLE_MODEL_LIMITS(X)                                              \
+  X("sample_model_scenarios", FG_SAMPLE_MODEL_SCENARIOS_MAX)                   \
+  X("sample_model_rows", FG_SAMPLE_MODEL_ROWS_MAX)                             \
+  X("sample_model_text_bytes", FG_SAMPLE_MODEL_TEXT_MAX)                       \
+  X("sample_model_form_cells", FG_SAMPLE_MODEL_FORM_CELLS_MAX)                 \
+  X("sample_model_work", FG_SAMPLE_MODEL_WORK_MAX)
+
 /* The limits a client can run into, as (name, value) pairs for
  * GET /v1/limits and for error messages. Runtime-configurable ones are
  * reported from the server configuration instead (http/). */
@@ -256,7 +283,8 @@
   X("failing_scenarios_count", FG_FAILING_SCENARIOS_MAX)                     \
   X("explain_cells", FG_EXPLAIN_CELLS_MAX)                                   \
   X("sobol_dimensions", FG_SOBOL_DIMS_MAX)                                \
-  X("scenario_cells", FG_SCENARIO_CELLS_MAX)
+  X("scenario_cells", FG_SCENARIO_CELLS_MAX)                                   \
+  FG_SAMPLE_MODEL_LIMITS(X)
 
 /* ---- operating the daemon and the remote client (http/) ----
  * Settings with a flag (--queue, --max-wait, --grace, --max-check-time,

@@ -99,6 +99,10 @@ int fg_keys_command(int argc, char **argv);
  * "explain"; explain.c): 0 printed, 3 usage or invalid input. */
 int fg_explain_command(int argc, char **argv);
 
+/* `feasgate sample-model MODEL.json --scenarios S ...` (argv[0] =
+ * "sample-model"; samplemodels.c): 0 written, 3 usage or invalid input. */
+int fg_sample_model_command(int argc, char **argv);
+
 /* `feasgate replay --store STORE ID` (argv[0] = "replay"; replay.c): 0
  * every count reproduced, 1 not, 3 usage or input faults. */
 int fg_replay_command(int argc, char **argv);

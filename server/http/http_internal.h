@@ -217,6 +217,10 @@ fg_handler *fg_route(fg_req *r, fg_resp *out);
 bool fg_http_query_args(fg_req *r, const char *const *names,
                         const char **const *slots, int n,
                         char unknown[FG_HTTP_PARAM_NAME_MAX]);
+/* True when the Accept header prefers media type `type` (e.g. "text/csv")
+ * to JSON (RFC 9110 section 12.5.1: the highest q wins; JSON, any type and
+ * application/anything win ties, JSON being the default). */
+bool fg_http_accept_prefers(const char *accept, const char *type);
 /* 400: "query parameter 'NAME': <message>". */
 void fg_resp_bad_param(fg_resp *out, const char *name, const char *fmt, ...)
     __attribute__((format(printf, 3, 4)));
@@ -451,6 +455,8 @@ bool fg_auth_request(fg_req *r, bool routed, fg_resp *out);
 
 /* ---- scenarios.c ---- */
 void fg_h_model_scenarios(fg_req *r, fg_resp *out);
+/* samplemodels.c: POST /v1/models/{name}/sample-models */
+void fg_h_model_sample_models(fg_req *r, fg_resp *out);
 
 /* ---- ops.c ---- */
 void fg_h_health(fg_req *r, fg_resp *out);

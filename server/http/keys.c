@@ -90,6 +90,7 @@ static const policy_entry policy[] = {
     {"GET", "/page/app.js", FG_ROLE_NONE},
     {"GET", "/page/app.css", FG_ROLE_NONE},
     {"GET", "/v1/models/{name}/scenarios", FG_ROLE_CHECKER},
+    {"POST", "/v1/models/{name}/sample-models", FG_ROLE_CHECKER},
     {"POST", "/v1/models/{name}/checks", FG_ROLE_CHECKER},
     {"POST", "/v1/models/{name}/versions/{n}/checks", FG_ROLE_CHECKER},
     {"POST", "/v1/models/{name}/comparisons", FG_ROLE_CHECKER},

@@ -32,6 +32,7 @@ static const fg_route_entry routes[] = {
     {"DELETE", "/v1/models/{name}", fg_h_model_retire},
     {"GET", "/v1/models/{name}/versions/{n}", fg_h_model_version_get},
     {"GET", "/v1/models/{name}/scenarios", fg_h_model_scenarios},
+    {"POST", "/v1/models/{name}/sample-models", fg_h_model_sample_models},
     {"POST", "/v1/models/{name}/checks", fg_h_checks_create},
     {"POST", "/v1/models/{name}/versions/{n}/checks", fg_h_checks_create},
     {"POST", "/v1/models/{name}/comparisons", fg_h_comparisons_create},
