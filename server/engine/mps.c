@@ -202,24 +202,24 @@ static void write_bounds(text *t, const fg_lp *lp, const lp_col *c) {
   char a[32], b[32];
   bool lo = isfinite(c->lower), up = isfinite(c->upper);
   if (c->integer && c->lower == 0 && c->upper == 1) {
-    putf(t, " BV BND %s\n", n);
+    putf(t, " BV  BND %s\n", n);
   } else if (lo && up && c->lower == c->upper) {
     number(c->lower, a, sizeof a);
-    putf(t, " FX BND %s %s\n", n, a);
+    putf(t, " FX  BND %s %s\n", n, a);
   } else if (!lo && !up) {
-    putf(t, " FR BND %s\n", n);
+    putf(t, " FR  BND %s\n", n);
   } else {
     if (!lo) {
-      putf(t, " MI BND %s\n", n);
+      putf(t, " MI  BND %s\n", n);
     } else {
       number(c->lower, a, sizeof a);
-      putf(t, " LO BND %s %s\n", n, a);
+      putf(t, " LO  BND %s %s\n", n, a);
     }
     if (!up) {
-      putf(t, " PL BND %s\n", n);
+      putf(t, " PL  BND %s\n", n);
     } else {
       number(c->upper, b, sizeof b);
-      putf(t, " UP BND %s %s\n", n, b);
+      putf(t, " UP  BND %s %s\n", n, b);
     }
   }
 }
