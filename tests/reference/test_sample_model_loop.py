@@ -35,69 +35,7 @@ S = 200
 MARGIN = 1e-4
 SAMPLES = 1000000
 
-WATER = {
-    "format": 1, "name": "water-summer",
-    "title": "Summer supply of a small water utility (invented figures)",
-    "decisions": [
-        {"name": "draw", "size": 3, "lower": 0, "upper": [25, 30, 25]},
-        {"name": "tanker_days", "lower": 0, "upper": 10, "integer": True},
-    ],
-    "uncertain": [
-        {"name": "demand", "size": 2, "distribution": {"family": "normal", "mean": [50, 30], "sd": [6, 4]}},
-        {"name": "loss", "distribution": {"family": "uniform", "low": 0.05, "high": 0.15}},
-    ],
-    "constraints": [
-        {"name": "town", "require": "(1 - loss) * (draw[0] + draw[1]) + 2 * tanker_days >= demand[0]"},
-        {"name": "farms", "require": "draw[1] + draw[2] >= demand[1]"},
-        {"name": "licence", "require": "sum(draw) <= 70"},
-    ],
-    "objective": {"minimize": "1.0 * draw[0] + 1.4 * draw[1] + 0.8 * draw[2] + 5 * tanker_days"},
-    "target": {"probability": 0.95},
-}
-
-WAREHOUSE = {
-    "format": 1, "name": "warehouse-week",
-    "title": "Stock and crew of a regional warehouse for one week (invented figures)",
-    "decisions": [
-        {"name": "stock", "size": 2, "lower": 0, "upper": [60, 50], "integer": True},
-        {"name": "overtime", "lower": 0, "upper": 8},
-        {"name": "temps", "lower": 0, "upper": 6, "integer": True},
-        {"name": "transfer", "lower": -10, "upper": 10},
-    ],
-    "uncertain": [
-        {"name": "orders", "size": 2, "distribution": {"family": "gamma", "shape": [20, 12], "scale": [1.5, 2]}},
-        {"name": "speed", "distribution": {"family": "uniform", "low": 0.8, "high": 1.2}},
-        {"name": "returns", "distribution": {"family": "discrete", "values": [0, 3, 6], "weights": [0.6, 0.3, 0.1]}},
-    ],
-    "definitions": [{"name": "picked", "value": "speed * (20 + 4 * temps) + 3 * overtime * speed"}],
-    "constraints": [
-        {"name": "cover", "require": "stock + [0.5, -0.5] * transfer >= orders"},
-        {"name": "pick", "require": "picked >= 0.6 * (orders[0] + orders[1]) - returns"},
-        {"name": "budget", "require": "stock[0] + stock[1] + 4 * overtime <= 110"},
-    ],
-    "objective": {"maximize": "500 - 2 * sum(stock) - 9 * overtime * speed - 15 * temps - 0.5 * transfer"},
-    "target": {"probability": 0.95},
-}
-
-DEPOT = {
-    "format": 1, "name": "depot-morning",
-    "title": "Buses out of one depot on six routes at the morning peak (invented figures)",
-    "decisions": [
-        {"name": "buses", "size": 6, "lower": 1, "upper": 9, "integer": True},
-        {"name": "spare", "lower": 0, "upper": 4, "integer": True},
-        {"name": "coach_hours", "lower": 0, "upper": 6},
-    ],
-    "uncertain": [
-        {"name": "riders", "size": 6, "distribution": {"family": "poisson", "mean": [240, 180, 300, 150, 210, 260]}},
-        {"name": "sick", "distribution": {"family": "binomial", "trials": 30, "p": 0.1}},
-    ],
-    "constraints": [
-        {"name": "seats", "require": "60 * buses + [20, 0, 20, 0, 0, 20] * coach_hours >= riders"},
-        {"name": "drivers", "require": "sum(buses) + sick <= 36 + spare"},
-    ],
-    "objective": {"minimize": "100 * sum(buses) + 60 * spare + 45 * coach_hours"},
-    "target": {"probability": 0.95},
-}
+WATER, WAREHOUSE, DEPOT = milp.WATER, milp.WAREHOUSE, milp.DEPOT
 
 
 def loop(model, form, seed):
