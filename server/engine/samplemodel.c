@@ -236,9 +236,8 @@ static uint64_t keep_at_least(double target, uint64_t s) {
 /* Largest value of c + g . x over the box; *inf_at the first component
  * whose missing bound makes it infinite (-1 when none), *inf_upper its
  * side. */
-static double box_max(const double *f, int nd, const fg_model *m,
-                      const double *lo, const double *up, int *inf_at,
-                      bool *inf_upper) {
+static double box_max(const double *f, int nd, const double *lo,
+                      const double *up, int *inf_at, bool *inf_upper) {
   double M = f[0];
   *inf_at = -1;
   for (int j = 0; j < nd; j++) {
@@ -251,7 +250,6 @@ static double box_max(const double *f, int nd, const fg_model *m,
       M += g * lo[j];
     }
   }
-  (void)m;
   return M;
 }
 
@@ -290,8 +288,6 @@ static cJSON *answer_json(const fg_model *m, const build *b, uint64_t keep,
   else cJSON_AddNullToObject(o, "indicator_prefix");
   cJSON *rows = cJSON_AddObjectToObject(o, "rows");
   if (rows) {
-    const fg_row *r = m->summary.rows ? NULL : NULL;
-    (void)r;
     fg_program_info in;
     fg_program_get_info(m->program, &in);
     cJSON *per = cJSON_AddObjectToObject(rows, "per_scenario");
@@ -518,7 +514,7 @@ fg_status fg_sample_model_build(const fg_model *m,
                         : second ? (row->kind == FG_ROW_EQ ? 1 : 2) : 0;
         int inf_at;
         bool inf_upper = false;
-        double M = box_max(f, nd, m, lo, up, &inf_at, &inf_upper);
+        double M = box_max(f, nd, lo, up, &inf_at, &inf_upper);
         if (row->deterministic) {
           if (l != 0) continue;
           if (inf_at < 0 && M <= 0) { always_held++; continue; }
@@ -550,7 +546,7 @@ fg_status fg_sample_model_build(const fg_model *m,
                               (unsigned long long)l);
           break;
         }
-        if (ind && !isfinite(M)) {
+        if (ind && (!isfinite(M) || !isfinite(M - f[0]))) {
           st = fg_problem_add(p, FG_EUNSUPPORTED, "", 0,
                               "row '%s' (design scenario %llu) has a big-M "
                               "beyond the range of doubles",
