@@ -272,7 +272,9 @@ static cJSON *answer_json(const fg_model *m, const build *b, uint64_t keep,
   cJSON_AddStringToObject(o, "digest", m->digest);
   cJSON_AddStringToObject(o, "form", ind ? "indicator" : "all");
   cJSON_AddNumberToObject(o, "scenarios", (double)q->scenarios);
-  cJSON_AddNumberToObject(o, "seed", (double)q->seed);
+  char seed[24]; /* exact: a whole number up to 2^53 - 1, never 1e+15 */
+  snprintf(seed, sizeof seed, "%llu", (unsigned long long)q->seed);
+  cJSON_AddRawToObject(o, "seed", seed);
   cJSON_AddStringToObject(o, "stream", "design");
   cJSON_AddNumberToObject(o, "target", q->target);
   if (ind) cJSON_AddNumberToObject(o, "keep_at_least", (double)keep);

@@ -133,6 +133,9 @@ def test_answer(d, tmp):
         st, _, b2 = post(d, "water-summer", {"scenarios": 5, "seed": b["seed"]})
         check(st == 200 and b2["text"] == b["text"], "the echoed seed replays the text")
 
+    st, _, b = post(d, "water-summer", {"scenarios": 2, "seed": 9007199254740991})
+    check(st == 200 and b.get("seed") == 9007199254740991 and isinstance(b["seed"], int),
+          "the largest seed is echoed as an exact integer: %r" % (b.get("seed") if isinstance(b, dict) else b))
     st, _, g = post(d, "water-summer", {"scenarios": 200, "seed": 3, "form": "all", "confidence": 0.99})
     if check(st == 200, "all form: 200, got %d %r" % (st, g)):
         check(g["big_m"] is None and g["keep_at_least"] is None, "all form: no big-M, no keep row")
