@@ -23,6 +23,7 @@
 #ifndef FEASGATE_ENGINE_H
 #define FEASGATE_ENGINE_H
 
+#include "feasgate/clock.h"
 #include "feasgate/model.h"
 #include "feasgate/status.h"
 
@@ -118,8 +119,6 @@ fg_status fg_request_parse(const fg_model *m, const struct cJSON *body,
 void fg_request_free(fg_check_request *r);
 /* The request as it will be replayed (seed filled in), for the log. */
 struct cJSON *fg_request_json(const fg_model *m, const fg_check_request *r);
-/* A fresh seed in [0, FG_SEED_MAX] from the system's entropy. */
-uint64_t fg_seed_draw(void);
 
 /* ---- worker pool ---- */
 typedef struct fg_pool fg_pool;
@@ -182,8 +181,6 @@ fg_check *fg_check_ref(fg_check *c);
  * satisfied every row; *n is the number of samples merged. Valid once the
  * check has ended; NULL otherwise. */
 const uint64_t *fg_check_outcomes(fg_check *c, uint64_t *n);
-/* True when the check stopped early on its confidence sequence. */
-bool fg_check_stopped_early(fg_check *c);
 
 /* Identity and timing the caller attaches to the result body. */
 typedef struct fg_check_meta {
@@ -205,9 +202,6 @@ fg_status fg_check_run_sync(fg_model *m, const fg_check_request *req,
                             int workers, int chunk, fg_check **out,
                             fg_problem *p);
 
-/* RFC 3339 UTC time of now, e.g. "2026-12-01T21:40:00Z" (buf >= 32). */
-void fg_time_now_rfc3339(char *buf, size_t cap);
-double fg_time_monotonic(void);
 
 /* ---- scenarios (scenarios.c) ---- */
 /* Scenarios start .. start+count-1 of (seed, stream) as text: the JSON

@@ -2,9 +2,9 @@
  * feasgate/limits.h -- every limit feasgate enforces, in one place.
  *
  * Each limit is a named constant with the reason it exists. A limit that a
- * client can reach is checked in one helper per kind (fg_limit_exceeded in
- * core/problem.c) so the error always names the limit and its value, and
- * GET /v1/limits reports them all (see FG_LIMITS_TABLE below). Every value
+ * client can reach is reported through fg_problem_limit (core/problem.c)
+ * with its fg_limit, so the error always names the limit and its value,
+ * and GET /v1/limits reports them all (see FG_LIMITS_TABLE below). Every value
  * may be overridden at compile time with -DFG_...=N; runtime settings
  * (--max-body, --max-samples, ...) are range-checked against the hard
  * bounds given here.
@@ -249,42 +249,82 @@
  * scenarios x (broadcast registers + block instructions) x (decision
  * components + 1); 3e8 is about a second on one core of the test machine. */
 #define FG_SAMPLE_MODEL_WORK_MAX 300000000.0
-#define FG_SAMPLE_MODEL_LIMITS(X)                                              \
-  X("sample_model_scenarios", FG_SAMPLE_MODEL_SCENARIOS_MAX)                   \
-  X("sample_model_rows", FG_SAMPLE_MODEL_ROWS_MAX)                             \
-  X("sample_model_text_bytes", FG_SAMPLE_MODEL_TEXT_MAX)                       \
-  X("sample_model_form_cells", FG_SAMPLE_MODEL_FORM_CELLS_MAX)                 \
-  X("sample_model_work", FG_SAMPLE_MODEL_WORK_MAX)
 
-/* The limits a client can run into, as (name, value) pairs for
- * GET /v1/limits and for error messages. Runtime-configurable ones are
- * reported from the server configuration instead (http/). */
+/* Largest poisson mean and binomial trials: draws are GSL unsigned ints,
+ * and inverse-CDF searches stay short below this. */
+#define FG_COUNT_PARAM_MAX 1e9
+
+/* The limits a client can run into, as (ID, name, value): GET /v1/limits
+ * lists them and a 400/413 names the one reached (fg_problem_limit with
+ * FG_LIMIT_<ID>). The enum fg_limit below is generated from these two
+ * tables, so a limit's name is written here and nowhere else. The values
+ * of the table's last six are defined further down (http/). */
 #define FG_LIMITS_TABLE(X)                                                     \
-  X("name_length", FG_NAME_MAX)                                                \
-  X("expression_length", FG_EXPR_MAX_LENGTH)                                   \
-  X("expression_depth", FG_EXPR_MAX_DEPTH)                                     \
-  X("vector_length", FG_VECTOR_MAX)                                            \
-  X("program_registers", FG_PROGRAM_MAX_REGS)                                  \
-  X("program_instructions", FG_PROGRAM_MAX_INSNS)                              \
-  X("decision_dimensions", FG_DECISION_DIMS_MAX)                               \
-  X("uncertain_dimensions", FG_UNCERTAIN_DIMS_MAX)                             \
-  X("constraint_rows", FG_ROWS_MAX)                                            \
-  X("members", FG_MEMBERS_MAX)                                                 \
-  X("table_cells", FG_TABLE_CELLS_MAX)                                         \
-  X("json_depth", FG_JSON_MAX_DEPTH)                                           \
-  X("label_length", FG_LABEL_MAX)                                              \
-  X("sample_size_decisions", FG_SIZE_DECISIONS_MAX)                            \
-  X("sample_size_discarded", FG_SIZE_DISCARDED_MAX)                            \
-  X("sample_size_scenarios", FG_SIZE_SCENARIOS_MAX)                            \
-  X("sample_size_samples", FG_SIZE_SAMPLES_MAX)                                \
-  X("comparison_candidates", FG_COMPARE_CANDIDATES_MAX)                        \
-  X("comparison_samples", FG_COMPARE_SAMPLES_MAX)                              \
-  X("failing_scenarios", FG_FAILING_SCENARIOS)                               \
-  X("failing_scenarios_count", FG_FAILING_SCENARIOS_MAX)                     \
-  X("explain_cells", FG_EXPLAIN_CELLS_MAX)                                   \
-  X("sobol_dimensions", FG_SOBOL_DIMS_MAX)                                \
-  X("scenario_cells", FG_SCENARIO_CELLS_MAX)                                   \
-  FG_SAMPLE_MODEL_LIMITS(X)
+  X(NAME_LENGTH, "name_length", FG_NAME_MAX)                                   \
+  X(EXPRESSION_LENGTH, "expression_length", FG_EXPR_MAX_LENGTH)                \
+  X(EXPRESSION_DEPTH, "expression_depth", FG_EXPR_MAX_DEPTH)                   \
+  X(VECTOR_LENGTH, "vector_length", FG_VECTOR_MAX)                             \
+  X(PROGRAM_REGISTERS, "program_registers", FG_PROGRAM_MAX_REGS)               \
+  X(PROGRAM_INSTRUCTIONS, "program_instructions", FG_PROGRAM_MAX_INSNS)        \
+  X(DECISION_DIMENSIONS, "decision_dimensions", FG_DECISION_DIMS_MAX)          \
+  X(UNCERTAIN_DIMENSIONS, "uncertain_dimensions", FG_UNCERTAIN_DIMS_MAX)       \
+  X(CONSTRAINT_ROWS, "constraint_rows", FG_ROWS_MAX)                           \
+  X(MEMBERS, "members", FG_MEMBERS_MAX)                                        \
+  X(TABLE_CELLS, "table_cells", FG_TABLE_CELLS_MAX)                            \
+  X(JSON_DEPTH, "json_depth", FG_JSON_MAX_DEPTH)                               \
+  X(LABEL_LENGTH, "label_length", FG_LABEL_MAX)                                \
+  X(SAMPLE_SIZE_DECISIONS, "sample_size_decisions", FG_SIZE_DECISIONS_MAX)     \
+  X(SAMPLE_SIZE_DISCARDED, "sample_size_discarded", FG_SIZE_DISCARDED_MAX)     \
+  X(SAMPLE_SIZE_SCENARIOS, "sample_size_scenarios", FG_SIZE_SCENARIOS_MAX)     \
+  X(SAMPLE_SIZE_SAMPLES, "sample_size_samples", FG_SIZE_SAMPLES_MAX)           \
+  X(COMPARISON_CANDIDATES, "comparison_candidates", FG_COMPARE_CANDIDATES_MAX) \
+  X(COMPARISON_SAMPLES, "comparison_samples", FG_COMPARE_SAMPLES_MAX)          \
+  X(FAILING_SCENARIOS, "failing_scenarios", FG_FAILING_SCENARIOS)              \
+  X(FAILING_SCENARIOS_COUNT, "failing_scenarios_count",                        \
+    FG_FAILING_SCENARIOS_MAX)                                                  \
+  X(EXPLAIN_CELLS, "explain_cells", FG_EXPLAIN_CELLS_MAX)                      \
+  X(SOBOL_DIMENSIONS, "sobol_dimensions", FG_SOBOL_DIMS_MAX)                   \
+  X(SCENARIO_CELLS, "scenario_cells", FG_SCENARIO_CELLS_MAX)                   \
+  X(SAMPLE_MODEL_SCENARIOS, "sample_model_scenarios",                          \
+    FG_SAMPLE_MODEL_SCENARIOS_MAX)                                             \
+  X(SAMPLE_MODEL_ROWS, "sample_model_rows", FG_SAMPLE_MODEL_ROWS_MAX)          \
+  X(SAMPLE_MODEL_TEXT_BYTES, "sample_model_text_bytes",                        \
+    FG_SAMPLE_MODEL_TEXT_MAX)                                                  \
+  X(SAMPLE_MODEL_FORM_CELLS, "sample_model_form_cells",                        \
+    FG_SAMPLE_MODEL_FORM_CELLS_MAX)                                            \
+  X(SAMPLE_MODEL_WORK, "sample_model_work", FG_SAMPLE_MODEL_WORK_MAX)          \
+  X(SAMPLES_DEFAULT, "samples_default", FG_SAMPLES_DEFAULT)                    \
+  X(SEED_MAX, "seed_max", FG_SEED_MAX)                                         \
+  X(LIST_LIMIT, "list_limit", FG_LIST_LIMIT_MAX)                               \
+  X(CONNECTION_OVERFLOW, "connection_overflow", FG_HTTP_CONNECTIONS_OVERFLOW)  \
+  X(HEADER_TIMEOUT, "header_timeout", FG_HTTP_HEADER_TIMEOUT_S)                \
+  X(IDLE_TIMEOUT, "idle_timeout", FG_HTTP_IDLE_TIMEOUT_S)
+
+/* Limits set when the daemon starts (--max-body, --max-samples, ...): the
+ * names here, the values from the running configuration (http/ops.c). */
+#define FG_SETTINGS_LIMITS_TABLE(X)                                            \
+  X(MAX_BODY, "max_body")                                                      \
+  X(MAX_SAMPLES, "max_samples")                                                \
+  X(MAX_SCENARIOS, "max_scenarios")                                            \
+  X(MAX_WAIT, "max_wait")                                                      \
+  X(MAX_CHECK_TIME, "max_check_time")                                          \
+  X(WORKERS, "workers")                                                        \
+  X(CHUNK, "chunk")                                                            \
+  X(QUEUE, "queue")                                                            \
+  X(MAX_CONNECTIONS, "max_connections")                                        \
+  X(MAX_CONNECTIONS_PER_CLIENT, "max_connections_per_client")
+
+typedef enum fg_limit {
+#define FG_LIMIT_ENUM3_(id, name, value) FG_LIMIT_##id,
+#define FG_LIMIT_ENUM2_(id, name) FG_LIMIT_##id,
+  FG_LIMITS_TABLE(FG_LIMIT_ENUM3_) FG_SETTINGS_LIMITS_TABLE(FG_LIMIT_ENUM2_)
+#undef FG_LIMIT_ENUM3_
+#undef FG_LIMIT_ENUM2_
+  FG_LIMIT_COUNT
+} fg_limit;
+
+/* The limit's name as clients see it ("table_cells", "max_body"). */
+const char *fg_limit_name(fg_limit which);
 
 /* ---- operating the daemon and the remote client (http/) ----
  * Settings with a flag (--queue, --max-wait, --grace, --max-check-time,
@@ -473,5 +513,92 @@
  * 99.3% inside 3.5 (two-sided), so the bound is conservative. */
 #define FG_EXACT_ERROR_FACTOR 3.5
 
+/* ==== tuning constants ====
+ * Not limits a client reaches: how often, how many at once, how precise.
+ * Each with its reason; grouped by the subsystem that uses it. */
+
+/* ---- engine: pool, checks, scenarios ---- */
+/* Checks the clock ends in one round, at most (the rest wait a round). */
+#define FG_POOL_CLOCK_BATCH 64
+/* Pools left to stuck workers at exit: kept reachable on purpose (a
+ * stuck thread may still touch its pool); freed by the process's end. */
+#define FG_POOL_ABANDONED_MAX 8
+/* Non-finite values noted per check at most (numeric.problems lists the
+ * first, by row or input, stream and sample index): one per row or input
+ * of any model that fits the row limit's common use, bounded memory. */
+#define FG_DET_PROBLEMS_MAX 64
+/* Independent replicates of a Latin hypercube or Sobol design: the
+ * Student-t interval on their estimates has R - 1 degrees of freedom;
+ * 16 keeps the t quantile within 7% of the normal one while each
+ * replicate stays a large design. */
+#define FG_DESIGN_REPLICATES 16
+/* Bytes of text produced per refill: rows are appended while the text
+ * holds less than this, so a refill is a few hundred rows of a narrow
+ * model and at least one row of any width. */
+#define FG_SCENARIO_STAGE_BYTES 16384
+
+/* ---- estimate: the confidence sequence, sample sizes, tallies ---- */
+/* Strength, in pseudo-samples, of the confidence sequence's Beta prior
+ * centred on the target (estimate/cs.c): small enough that the data
+ * dominate after a few thousand samples, large enough to keep the
+ * sequence tight where the verdict is decided. */
+#define FG_CS_PRIOR_STRENGTH 10.0
+/* First look after this many samples, then after every doubling. */
+#define FG_CS_FIRST_ROUND 4096
+/* The sequence's bounds are found by bisection to a relative width of
+ * FG_CS_REL_TOL, or after FG_CS_BISECT_MAX halvings: from a bracket as
+ * wide as the doubles allow, 1200 halvings reach any width a double has. */
+#define FG_CS_BISECT_MAX 1200
+/* Relative width at which the bisection above stops. */
+#define FG_CS_REL_TOL 0x1p-50
+/* Terms smaller than this fraction of the running sum are dropped: they
+ * cannot change a double. */
+#define FG_SIZE_TAIL_NEGLIGIBLE 1e-18
+/* Relative precision of the epsilon bisection. */
+#define FG_SIZE_EPS_REL_PRECISION 1e-12
+/* Iterations of any bisection at most (each halves the bracket). */
+#define FG_SIZE_BISECT_MAX 4000
+/* Violated rows kept per failing scenario: enough to show which rows a
+ * scenario breaks; the scenario endpoint recomputes all of them. */
+#define FG_FAIL_ROWS_MAX 16
+
+/* ---- http: keys, registry, replicas, streaming, queries ---- */
+/* Seconds the cache of live keys is used before it is reloaded. */
+#define FG_KEYS_REFRESH_S 1.0
+/* Least seconds between two reloads caused by unknown keys: bounds the
+ * store reads a client sending wrong keys can cause. */
+#define FG_KEYS_MISS_REFRESH_S 0.05
+/* How often the watcher looks for ended checks: a 202'd check is recorded
+ * at most this late. */
+#define FG_REGISTRY_POLL_MS 50
+/* How long cancelled checks get to be recorded at shutdown: the engine
+ * ends a cancelled check within FG_STUCK_WORKER_S whatever its workers
+ * do, and the store write follows. */
+#define FG_REGISTRY_CANCEL_WAIT_S (FG_STUCK_WORKER_S + 2.0)
+/* On a shared store (several replicas), how often the running checks'
+ * bodies are written to the store so that another replica answers a GET
+ * with progress at most this old. */
+#define FG_REGISTRY_PROGRESS_MS 1000
+/* How long after a failed store write of a check's end it is tried again
+ * (the check stays listed, so GET still answers with its final body). */
+#define FG_REGISTRY_RETRY_MS 1000
+/* Entries one round of the watcher handles, at most (the rest wait for
+ * the next round). */
+#define FG_REGISTRY_BATCH 64
+/* A DELETE of a check or comparison another replica runs waits
+ * (suspended) for its record to end, reading the store this often (in
+ * finish, on a libmicrohttpd thread; the waiter thread only keeps the
+ * time). */
+#define FG_HTTP_REPLICA_LOOK_S 0.05
+/* Bytes libmicrohttpd asks a streamed body for at once. */
+#define FG_HTTP_STREAM_BLOCK (32 * 1024)
+/* Query parameters read at most: more than the calculation can use. */
+#define FG_HTTP_SIZE_QUERY_PARAMS_MAX 32
+/* Longest parameter name kept for a problem message. */
+#define FG_HTTP_PARAM_NAME_MAX 64
+
+/* ---- the command line ---- */
+/* Parameters of one sample-size question at most (each --name value). */
+#define FG_CLI_SIZE_ARGS_MAX 16
 
 #endif

@@ -17,6 +17,8 @@
 #ifndef FEASGATE_STATUS_H
 #define FEASGATE_STATUS_H
 
+#include "feasgate/limits.h"
+
 #include <stdarg.h>
 #include <stddef.h>
 
@@ -72,10 +74,11 @@ fg_status fg_problem_add(fg_problem *p, fg_status st, const char *pointer,
                          int column, const char *fmt, ...)
     __attribute__((format(printf, 5, 6)));
 
-/* Record that limit `name` with value `value` was exceeded at `pointer`. */
-fg_status fg_problem_limit(fg_problem *p, const char *pointer,
-                           const char *name, double value, const char *fmt,
-                           ...) __attribute__((format(printf, 5, 6)));
+/* Record that limit `which` (its value here `value`: a setting's may be
+ * the running configuration's) was exceeded at `pointer`. */
+fg_status fg_problem_limit(fg_problem *p, const char *pointer, fg_limit which,
+                           double value, const char *fmt, ...)
+    __attribute__((format(printf, 5, 6)));
 
 /* Set the status, title and detail without an item (whole-request faults:
  * not found, busy, I/O). */

@@ -91,13 +91,12 @@ fg_status fg_problem_add(fg_problem *p, fg_status st, const char *pointer,
   return st;
 }
 
-fg_status fg_problem_limit(fg_problem *p, const char *pointer,
-                           const char *name, double value, const char *fmt,
-                           ...) {
+fg_status fg_problem_limit(fg_problem *p, const char *pointer, fg_limit which,
+                           double value, const char *fmt, ...) {
   if (!p) return FG_ELIMIT;
   set_first(p, FG_ELIMIT);
   if (!p->limit_name) {
-    p->limit_name = name;
+    p->limit_name = fg_limit_name(which);
     p->limit_value = value;
   }
   va_list ap;

@@ -301,10 +301,6 @@ const uint64_t *fg_check_outcomes(fg_check *c, uint64_t *n) {
   return c->outcomes;
 }
 
-bool fg_check_stopped_early(fg_check *c) {
-  return atomic_load(&c->stopped_early);
-}
-
 void fg_check_free_internal(struct fg_check *c) {
   free(c->bounds);
   free(c->outcomes);
@@ -697,14 +693,7 @@ bool fg_check_wait(fg_check *c, double timeout_s) {
     while (!fg_check_ended(c)) pthread_cond_wait(&c->done_cv, &c->end_mu);
   } else {
     struct timespec ts;
-    clock_gettime(CLOCK_REALTIME, &ts);
-    double whole = floor(timeout_s);
-    ts.tv_sec += (time_t)whole;
-    ts.tv_nsec += (long)((timeout_s - whole) * 1e9);
-    if (ts.tv_nsec >= 1000000000L) {
-      ts.tv_sec++;
-      ts.tv_nsec -= 1000000000L;
-    }
+    fg_clock_abs_deadline(&ts, timeout_s);
     while (!fg_check_ended(c))
       if (pthread_cond_timedwait(&c->done_cv, &c->end_mu, &ts) != 0) break;
   }

@@ -148,11 +148,12 @@ fg_status fg_compare_parse(const fg_model *m, const cJSON *body,
   if (cJSON_IsNumber(samples) &&
       samples->valuedouble > (double)FG_COMPARE_SAMPLES_MAX &&
       samples->valuedouble <= (double)lim->max_samples)
-    fg_problem_limit(
-        p, "/samples", "comparison_samples", (double)FG_COMPARE_SAMPLES_MAX,
-        "samples %.0f exceeds comparison_samples = %llu (each "
-        "candidate keeps one bit per sample)",
-        samples->valuedouble, (unsigned long long)FG_COMPARE_SAMPLES_MAX);
+    fg_problem_limit(p, "/samples", FG_LIMIT_COMPARISON_SAMPLES,
+                     (double)FG_COMPARE_SAMPLES_MAX,
+                     "samples %.0f exceeds comparison_samples = %llu (each "
+                     "candidate keeps one bit per sample)",
+                     samples->valuedouble,
+                     (unsigned long long)FG_COMPARE_SAMPLES_MAX);
   const cJSON *stop = cJSON_GetObjectItemCaseSensitive(body, "stop_early");
   if (cJSON_IsTrue(stop))
     fg_problem_add(p, FG_EINVAL, "/stop_early", 0,
@@ -174,7 +175,7 @@ fg_status fg_compare_parse(const fg_model *m, const cJSON *body,
   } else {
     ncand = cJSON_GetArraySize(cands);
     if (ncand > FG_COMPARE_CANDIDATES_MAX) {
-      fg_problem_limit(p, "/candidates", "comparison_candidates",
+      fg_problem_limit(p, "/candidates", FG_LIMIT_COMPARISON_CANDIDATES,
                        FG_COMPARE_CANDIDATES_MAX,
                        "%d candidates exceed comparison_candidates = %d", ncand,
                        FG_COMPARE_CANDIDATES_MAX);

@@ -35,14 +35,6 @@
 #include <pthread.h>
 #include <stdatomic.h>
 
-#define FG_DET_PROBLEMS_MAX 64
-
-/* Independent replicates of a Latin hypercube or Sobol design: the
- * Student-t interval on their estimates has R - 1 degrees of freedom;
- * 16 keeps the t quantile within 7% of the normal one while each
- * replicate stays a large design. */
-#define FG_DESIGN_REPLICATES 16
-
 typedef struct fg_det_problem {
   char name[FG_ROW_NAME_MAX];
   char message[192];

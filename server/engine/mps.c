@@ -289,7 +289,7 @@ fg_status fg_lp_write_mps(const fg_lp *lp, const char *name,
   free(start), free(order);
   if (t.over) {
     free(t.buf);
-    return fg_problem_limit(p, "/scenarios", "sample_model_text_bytes",
+    return fg_problem_limit(p, "/scenarios", FG_LIMIT_SAMPLE_MODEL_TEXT_BYTES,
                             (double)max_bytes,
                             "the model's MPS text exceeds "
                             "sample_model_text_bytes = %zu bytes; ask for "

@@ -334,29 +334,17 @@ static void *worker_main(void *arg) {
   return NULL;
 }
 
-static void deadline_in(struct timespec *ts, double seconds) {
-  clock_gettime(CLOCK_REALTIME, ts);
-  double whole = floor(seconds);
-  ts->tv_sec += (time_t)whole;
-  ts->tv_nsec += (long)((seconds - whole) * 1e9);
-  if (ts->tv_nsec >= 1000000000L) {
-    ts->tv_sec++;
-    ts->tv_nsec -= 1000000000L;
-  }
-}
-
-/* Checks the clock ends in one round, at most (the rest wait a round). */
-#define CLOCK_BATCH 64
 
 /* The pool's clock: deadlines and stuck workers. */
 static void *clock_main(void *arg) {
   fg_pool *pool = arg;
   pthread_mutex_lock(&pool->mu);
   while (!pool->clock_stop) {
-    struct fg_check *end[CLOCK_BATCH];
+    struct fg_check *end[FG_POOL_CLOCK_BATCH];
     int nend = 0;
     double now = fg_time_monotonic();
-    for (struct fg_check *c = pool->head, *n; c && nend < CLOCK_BATCH; c = n) {
+    for (struct fg_check *c = pool->head, *n; c && nend < FG_POOL_CLOCK_BATCH;
+         c = n) {
       n = c->next_in_pool;
       if (c->deadline > 0 && now > c->deadline &&
           !atomic_load(&c->timeout_flag) && !atomic_load(&c->cancel_flag)) {
@@ -375,7 +363,7 @@ static void *clock_main(void *arg) {
       continue;
     }
     struct timespec ts;
-    deadline_in(&ts, FG_POOL_CLOCK_MS / 1000.0);
+    fg_clock_abs_deadline(&ts, FG_POOL_CLOCK_MS / 1000.0);
     pthread_cond_timedwait(&pool->clock_cv, &pool->mu, &ts);
   }
   pthread_mutex_unlock(&pool->mu);
@@ -433,17 +421,14 @@ fg_status fg_pool_new(int workers, int chunk, int queue, fg_pool **out,
   return FG_OK;
 }
 
-/* Pools left to stuck workers at exit: kept reachable on purpose (a
- * stuck thread may still touch its pool); freed by the process's end. */
-#define ABANDONED_MAX 8
-static fg_pool *abandoned[ABANDONED_MAX];
+static fg_pool *abandoned[FG_POOL_ABANDONED_MAX];
 static atomic_int nabandoned;
 
 void fg_pool_free(fg_pool *pool) {
   if (!pool) return;
   pthread_mutex_lock(&pool->mu);
   pool->stopping = true;
-  struct fg_check *end[CLOCK_BATCH];
+  struct fg_check *end[FG_POOL_CLOCK_BATCH];
   int nend = 0;
   for (struct fg_check *c = pool->head, *n; c; c = n) {
     n = c->next_in_pool;
@@ -451,7 +436,8 @@ void fg_pool_free(fg_pool *pool) {
     set_stop(c);
     /* Checks nobody works on end now; the others when their worker
      * returns, or by the clock when it is stuck. */
-    if (nend < CLOCK_BATCH && claim_end(pool, c, false)) end[nend++] = c;
+    if (nend < FG_POOL_CLOCK_BATCH && claim_end(pool, c, false))
+      end[nend++] = c;
   }
   pthread_cond_broadcast(&pool->work_cv);
   pthread_cond_signal(&pool->clock_cv);
@@ -461,7 +447,7 @@ void fg_pool_free(fg_pool *pool) {
   /* Wait for the workers to leave, bounded. */
   pthread_mutex_lock(&pool->mu);
   struct timespec ts;
-  deadline_in(&ts, FG_POOL_EXIT_WAIT_S);
+  fg_clock_abs_deadline(&ts, FG_POOL_EXIT_WAIT_S);
   int left;
   for (;;) {
     left = 0;
@@ -471,7 +457,8 @@ void fg_pool_free(fg_pool *pool) {
   }
   /* Whatever is still listed has a stuck worker: end it now. */
   nend = 0;
-  for (struct fg_check *c = pool->head, *n; c && nend < CLOCK_BATCH; c = n) {
+  for (struct fg_check *c = pool->head, *n; c && nend < FG_POOL_CLOCK_BATCH;
+       c = n) {
     n = c->next_in_pool;
     if (claim_end(pool, c, true)) end[nend++] = c;
   }
@@ -490,7 +477,7 @@ void fg_pool_free(fg_pool *pool) {
   }
   if (left > 0) {
     int k = atomic_fetch_add(&nabandoned, 1);
-    if (k < ABANDONED_MAX) abandoned[k] = pool;
+    if (k < FG_POOL_ABANDONED_MAX) abandoned[k] = pool;
     return; /* the stuck workers keep the pool */
   }
   free(pool->threads);

@@ -174,11 +174,11 @@ fg_status fg_request_parse(const fg_model *m, const cJSON *body,
       fg_problem_add(p, FG_EINVAL, "/samples", 0,
                      "samples must be a whole number of at least 1");
     else if (n > lim->max_samples)
-      fg_problem_limit(p, "/samples", "max_samples", (double)lim->max_samples,
-                       "samples %llu exceeds this server's limit max_samples "
-                       "= %llu",
-                       (unsigned long long)n,
-                       (unsigned long long)lim->max_samples);
+      fg_problem_limit(
+          p, "/samples", FG_LIMIT_MAX_SAMPLES, (double)lim->max_samples,
+          "samples %llu exceeds this server's limit %s = %llu",
+          (unsigned long long)n, fg_limit_name(FG_LIMIT_MAX_SAMPLES),
+          (unsigned long long)lim->max_samples);
     else out->samples = n;
   }
   if ((v = cJSON_GetObjectItemCaseSensitive(body, "seed"))) {
@@ -267,7 +267,7 @@ fg_status fg_request_parse(const fg_model *m, const cJSON *body,
         fg_problem_add(p, FG_EINVAL, "/in_sample/count", 0,
                        "count must be a whole number of at least 1");
       else if (n > lim->max_scenarios)
-        fg_problem_limit(p, "/in_sample/count", "max_scenarios",
+        fg_problem_limit(p, "/in_sample/count", FG_LIMIT_MAX_SCENARIOS,
                          (double)lim->max_scenarios,
                          "in_sample count %llu exceeds max_scenarios = %llu",
                          (unsigned long long)n,
@@ -283,7 +283,7 @@ fg_status fg_request_parse(const fg_model *m, const cJSON *body,
     if (!s)
       fg_problem_add(p, FG_EINVAL, "/label", 0, "label must be a string");
     else if (strlen(s) > FG_LABEL_MAX)
-      fg_problem_limit(p, "/label", "label_length", FG_LABEL_MAX,
+      fg_problem_limit(p, "/label", FG_LIMIT_LABEL_LENGTH, FG_LABEL_MAX,
                        "label is %zu bytes, longer than label_length = %d",
                        strlen(s), FG_LABEL_MAX);
     else snprintf(out->label, sizeof out->label, "%s", s);
@@ -297,7 +297,8 @@ fg_status fg_request_parse(const fg_model *m, const cJSON *body,
                      FG_FAILING_SCENARIOS_MAX);
     else if (k > FG_FAILING_SCENARIOS_MAX)
       fg_problem_limit(p, "/failing_scenarios_count",
-                       "failing_scenarios_count", FG_FAILING_SCENARIOS_MAX,
+                       FG_LIMIT_FAILING_SCENARIOS_COUNT,
+                       FG_FAILING_SCENARIOS_MAX,
                        "failing_scenarios_count %llu exceeds "
                        "failing_scenarios_count = %d",
                        (unsigned long long)k, FG_FAILING_SCENARIOS_MAX);
@@ -312,7 +313,7 @@ fg_status fg_request_parse(const fg_model *m, const cJSON *body,
       fg_program_get_info(m->program, &in);
       double cells = (double)(in.nrows + 1) * (double)in.nuncertain;
       if (cells > (double)FG_EXPLAIN_CELLS_MAX)
-        fg_problem_limit(p, "/explain", "explain_cells",
+        fg_problem_limit(p, "/explain", FG_LIMIT_EXPLAIN_CELLS,
                          (double)FG_EXPLAIN_CELLS_MAX,
                          "explain needs (rows + 1) x uncertain components = "
                          "%d x %d = %.0f accumulators, more than "
@@ -329,9 +330,10 @@ fg_status fg_request_parse(const fg_model *m, const cJSON *body,
       fg_problem_add(p, FG_EINVAL, "/wait_s", 0,
                      "wait_s must be a number of seconds, 0 or more");
     else if (v->valuedouble > lim->max_wait_s)
-      fg_problem_limit(p, "/wait_s", "max_wait", lim->max_wait_s,
-                       "wait_s %g exceeds this server's limit max_wait = %g",
-                       v->valuedouble, lim->max_wait_s);
+      fg_problem_limit(p, "/wait_s", FG_LIMIT_MAX_WAIT, lim->max_wait_s,
+                       "wait_s %g exceeds this server's limit %s = %g",
+                       v->valuedouble, fg_limit_name(FG_LIMIT_MAX_WAIT),
+                       lim->max_wait_s);
     else out->wait_s = v->valuedouble;
   }
   if (out->stop_early && out->sampling != FG_SAMPLING_MONTE_CARLO)

@@ -106,7 +106,7 @@ fg_status fg_sample_model_parse(const fg_model *m, const cJSON *body,
     fg_problem_add(p, FG_EINVAL, "/scenarios", 0,
                    "scenarios must be a whole number of at least 1");
   } else if (out->scenarios > FG_SAMPLE_MODEL_SCENARIOS_MAX) {
-    fg_problem_limit(p, "/scenarios", "sample_model_scenarios",
+    fg_problem_limit(p, "/scenarios", FG_LIMIT_SAMPLE_MODEL_SCENARIOS,
                      (double)FG_SAMPLE_MODEL_SCENARIOS_MAX,
                      "scenarios %llu exceeds sample_model_scenarios = %d",
                      (unsigned long long)out->scenarios,
@@ -406,7 +406,7 @@ fg_status fg_sample_model_build(const fg_model *m,
                           m->name);
   double work = (double)s * ((double)in.nregs + in.nblock_insns) * w;
   if (work > FG_SAMPLE_MODEL_WORK_MAX)
-    return fg_problem_limit(p, "/scenarios", "sample_model_work",
+    return fg_problem_limit(p, "/scenarios", FG_LIMIT_SAMPLE_MODEL_WORK,
                             FG_SAMPLE_MODEL_WORK_MAX,
                             "%llu scenarios of this model take %.3g units "
                             "of work, beyond sample_model_work = %.3g",
@@ -430,7 +430,7 @@ fg_status fg_sample_model_build(const fg_model *m,
   double *lo = malloc((size_t)w * 2 * sizeof(double)), *up = lo ? lo + w : NULL;
   bool *integer = calloc((size_t)w, sizeof(bool));
   if (!b.df && err == -2) {
-    st = fg_problem_limit(p, "", "sample_model_form_cells",
+    st = fg_problem_limit(p, "", FG_LIMIT_SAMPLE_MODEL_FORM_CELLS,
                           (double)FG_SAMPLE_MODEL_FORM_CELLS_MAX,
                           "the model's %d registers x %d decision components "
                           "exceed sample_model_form_cells = %u",
@@ -572,7 +572,7 @@ fg_status fg_sample_model_build(const fg_model *m,
       }
       if (st != FG_OK) break;
       if (l == 0 && s * (uint64_t)nlabels > FG_SAMPLE_MODEL_ROWS_MAX) {
-        st = fg_problem_limit(p, "/scenarios", "sample_model_rows",
+        st = fg_problem_limit(p, "/scenarios", FG_LIMIT_SAMPLE_MODEL_ROWS,
                               FG_SAMPLE_MODEL_ROWS_MAX,
                               "%llu scenarios x %d rows each exceed "
                               "sample_model_rows = %d",
@@ -582,7 +582,7 @@ fg_status fg_sample_model_build(const fg_model *m,
       }
       double est = (double)fg_lp_entries(b.lp) * TEXT_PER_ENTRY;
       if (est > (double)FG_SAMPLE_MODEL_TEXT_MAX) {
-        st = fg_problem_limit(p, "/scenarios", "sample_model_text_bytes",
+        st = fg_problem_limit(p, "/scenarios", FG_LIMIT_SAMPLE_MODEL_TEXT_BYTES,
                               (double)FG_SAMPLE_MODEL_TEXT_MAX,
                               "the model's MPS text exceeds "
                               "sample_model_text_bytes = %u bytes; ask for "

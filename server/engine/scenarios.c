@@ -7,9 +7,9 @@
  * the next rows of start .. start+count-1 of (seed, stream) when the last
  * draw is used up -- FG_SCENARIO_STREAM_BYTES of values at a time, at
  * most FG_BLOCK rows (dimension j of row t of a draw at buf[j * rows + t])
- * -- and prints rows until the text holds SCEN_STAGE bytes; the tail
- * follows the last row. A stream's memory is thus the drawn values, the
- * header and SCEN_STAGE plus one row of text, whatever count is.
+ * -- and prints rows until the text holds FG_SCENARIO_STAGE_BYTES bytes; the
+ * tail follows the last row. A stream's memory is thus the drawn values, the
+ * header and FG_SCENARIO_STAGE_BYTES plus one row of text, whatever count is.
  * fg_scenarios_write (the offline command) reads a stream into a sink,
  * and GET .../scenarios hands one to libmicrohttpd, so both print the
  * same bytes. Because
@@ -45,10 +45,6 @@
 #include <stdlib.h>
 #include <string.h>
 
-/* Bytes of text produced per refill: rows are appended while the text
- * holds less than this, so a refill is a few hundred rows of a narrow
- * model and at least one row of any width. */
-#define SCEN_STAGE 16384
 /* Longest printed number: %.17g of a double is at most 24 characters
  * ("-1.2345678901234567e-308"); one more for the separator. */
 #define SCEN_FIELD_MAX 25
@@ -77,7 +73,7 @@ struct fg_scenarios_stream {
 static bool reserve(scen_text *t, size_t more) {
   if (t->failed) return false;
   if (t->len + more <= t->cap) return true;
-  size_t cap = t->cap ? t->cap : SCEN_STAGE;
+  size_t cap = t->cap ? t->cap : FG_SCENARIO_STAGE_BYTES;
   while (cap < t->len + more)
     cap *= 2;
   char *b = realloc(t->buf, cap);
@@ -192,11 +188,11 @@ fg_status fg_scenarios_open(fg_model *m, const fg_scenarios_params *q,
     s->integer = malloc((size_t)s->dims);
     s->w = fg_sample_scratch_new(smp);
   }
-  /* The text never holds more than the header, or SCEN_STAGE bytes plus
-   * one row and the tail: reserved now, so reading never allocates. */
+  /* The text never holds more than the header, or FG_SCENARIO_STAGE_BYTES bytes
+   * plus one row and the tail: reserved now, so reading never allocates. */
   size_t row_max = (size_t)s->dims * SCEN_FIELD_MAX + 8;
   if ((s->dims && (!s->buf || !s->integer || !s->w)) ||
-      !reserve(&s->t, SCEN_STAGE + row_max + 160)) {
+      !reserve(&s->t, FG_SCENARIO_STAGE_BYTES + row_max + 160)) {
     fg_scenarios_close(s);
     return fg_problem_set(p, FG_ENOMEM,
                           "scenarios: out of memory for %d columns", s->dims);
@@ -228,14 +224,14 @@ fg_status fg_scenarios_open(fg_model *m, const fg_scenarios_params *q,
   return FG_OK;
 }
 
-/* Refill the (fully read) text: rows until it holds SCEN_STAGE bytes or
- * the rows run out, then the tail. */
+/* Refill the (fully read) text: rows until it holds FG_SCENARIO_STAGE_BYTES
+ * bytes or the rows run out, then the tail. */
 static void refill(fg_scenarios_stream *s) {
   scen_text *t = &s->t;
   t->len = t->pos = 0;
   const fg_scenarios_params *q = &s->q;
   fg_stream stream = q->validation ? FG_STREAM_VALIDATION : FG_STREAM_DESIGN;
-  while (s->phase == 0 && t->len < SCEN_STAGE) {
+  while (s->phase == 0 && t->len < FG_SCENARIO_STAGE_BYTES) {
     if (s->blk_t == s->blk_n) {
       uint64_t left = q->count - s->done;
       if (left == 0) {
@@ -305,7 +301,7 @@ fg_status fg_scenarios_write(const fg_model *m, const fg_scenarios_params *q,
   /* the stream takes a reference, which the caller's model outlives */
   fg_status st = fg_scenarios_open((fg_model *)m, q, &s, p);
   if (st != FG_OK) return st;
-  char chunk[SCEN_STAGE];
+  char chunk[FG_SCENARIO_STAGE_BYTES];
   size_t n;
   bool ok = true;
   while (ok && (n = fg_scenarios_read(s, chunk, sizeof chunk)) > 0)
@@ -330,7 +326,7 @@ fg_status fg_scenarios_size_check(const fg_model *m, uint64_t count,
                  "scenario_cells = %llu values in one response",
                  (unsigned long long)count, dims,
                  (unsigned long long)FG_SCENARIO_CELLS_MAX);
-  p->limit_name = "scenario_cells";
+  p->limit_name = fg_limit_name(FG_LIMIT_SCENARIO_CELLS);
   p->limit_value = (double)FG_SCENARIO_CELLS_MAX;
   return FG_ELIMIT;
 }

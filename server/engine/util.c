@@ -1,5 +1,6 @@
 /*
- * engine/util.c -- names of the engine's enums, clocks and seeds.
+ * engine/util.c -- names of the engine's enums (the clock and seeds are
+ * core/clock.c).
  *
  * Thread use: all functions are safe from any thread.
  */
@@ -50,29 +51,4 @@ const char *fg_sampling_name(fg_sampling s) {
   case FG_SAMPLING_SOBOL: return "sobol";
   }
   return "unknown";
-}
-
-void fg_time_now_rfc3339(char *buf, size_t cap) {
-  struct timespec ts;
-  clock_gettime(CLOCK_REALTIME, &ts);
-  struct tm tm;
-  gmtime_r(&ts.tv_sec, &tm);
-  strftime(buf, cap, "%Y-%m-%dT%H:%M:%SZ", &tm);
-}
-
-double fg_time_monotonic(void) {
-  struct timespec ts;
-  clock_gettime(CLOCK_MONOTONIC, &ts);
-  return (double)ts.tv_sec + (double)ts.tv_nsec * 1e-9;
-}
-
-uint64_t fg_seed_draw(void) {
-  uint64_t v = 0;
-  if (getrandom(&v, sizeof v, 0) != (ssize_t)sizeof v) {
-    struct timespec ts;
-    clock_gettime(CLOCK_REALTIME, &ts);
-    v = (uint64_t)ts.tv_nsec * 0x9E3779B97F4A7C15ull ^ (uint64_t)ts.tv_sec ^
-        ((uint64_t)getpid() << 32);
-  }
-  return v & FG_SEED_MAX;
 }

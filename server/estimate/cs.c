@@ -23,7 +23,7 @@
  * interval never shrinks through rounding.
  *
  * Iterations: each end is a bisection of [lo, hi] that stops when
- * hi - lo <= 2^-50 hi or after CS_BISECT_MAX = 1200 halvings (from an
+ * hi - lo <= 2^-50 hi or after FG_CS_BISECT_MAX = 1200 halvings (from an
  * interval no wider than 1/2, 1200 halvings pass below the smallest
  * subnormal, so the cap is never the reason for stopping when the root is
  * a normal double).
@@ -33,9 +33,6 @@
 #include "estimate/estimate.h"
 
 #include <math.h>
-
-#define CS_BISECT_MAX 1200
-#define CS_REL_TOL 0x1p-50
 
 /* log M_n(x) for x in (0, 1) with k successes of n, m = n - k failures,
  * prior Beta(a, b); every argument is formed without cancellation. */
@@ -62,7 +59,8 @@ static fg_interval cs_small_side(uint64_t k, uint64_t n, double a, double b,
       iv.lower = 0.0; /* the minimum is <= 0 in exact arithmetic; if
                          rounding says otherwise claim nothing */
     } else {
-      for (int i = 0; i < CS_BISECT_MAX && hi - lo > CS_REL_TOL * hi; i++) {
+      for (int i = 0; i < FG_CS_BISECT_MAX && hi - lo > FG_CS_REL_TOL * hi;
+           i++) {
         double mid = 0.5 * (lo + hi);
         if (!(mid > lo && mid < hi)) break;
         if (log_m(mid, k, m, a, b, lbeta0) >= thr) lo = mid;
@@ -76,7 +74,7 @@ static fg_interval cs_small_side(uint64_t k, uint64_t n, double a, double b,
   if (!(log_m(lo, k, m, a, b, lbeta0) < thr)) {
     iv.upper = 1.0;
   } else {
-    for (int i = 0; i < CS_BISECT_MAX && hi - lo > CS_REL_TOL * hi; i++) {
+    for (int i = 0; i < FG_CS_BISECT_MAX && hi - lo > FG_CS_REL_TOL * hi; i++) {
       double mid = 0.5 * (lo + hi);
       if (!(mid > lo && mid < hi)) break;
       if (log_m(mid, k, m, a, b, lbeta0) >= thr) hi = mid;

@@ -63,15 +63,12 @@ double fg_log_beta(double a, double b);
  * with probability at least 1 - alpha/2 (Ville's inequality), so each of
  * the two wrong verdicts has probability at most alpha/2, as with the
  * fixed-n interval. The prior is centred on the target with strength
- * FG_CS_PRIOR_STRENGTH pseudo-samples, which keeps the sequence tight where
- * the verdict is decided. Accurate (tests/reference/test_sequence.py) for
- * prior means up to 1 - 1e-15 and n up to FG_MAX_SAMPLES_HARD; ends are
- * rounded outwards. The engine reports it widened to contain the
- * Clopper-Pearson interval of the same counts (engine/check.c). */
-#define FG_CS_PRIOR_STRENGTH 10.0
-/* First look after this many samples, then after every doubling. */
-#define FG_CS_FIRST_ROUND 4096
-
+ * FG_CS_PRIOR_STRENGTH pseudo-samples (limits.h), which keeps the
+ * sequence tight where the verdict is decided. Accurate
+ * (tests/reference/test_sequence.py) for prior means up to 1 - 1e-15 and
+ * n up to FG_MAX_SAMPLES_HARD; ends are rounded outwards. The engine
+ * reports it widened to contain the Clopper-Pearson interval of the same
+ * counts (engine/check.c). */
 fg_interval fg_cs_interval(uint64_t k, uint64_t n, double confidence,
                            double prior_mean);
 
@@ -121,8 +118,6 @@ void fg_hist_merge(fg_hist *dst, const fg_hist *src);
 double fg_hist_quantile(const fg_hist *h, double q);
 
 /* ---- tallies ---- */
-#define FG_FAIL_ROWS_MAX 16 /* violated rows kept per failing scenario */
-
 typedef struct fg_row_tally {
   uint64_t pair_both, pair_one; /* paired tallies: pairs with 2 / 1 violations */
   uint64_t violated;  /* samples where the row does not hold */
@@ -323,5 +318,15 @@ typedef struct fg_mvn_result {
 fg_status fg_mvn_probability(const double *H, const double *b, int m, int n,
                              double target_error, uint64_t seed,
                              fg_mvn_result *out);
+
+/* The sample-size answer (GET /v1/sample-size, `feasgate sample-size`)
+ * for `n` parameters given by name and text: the inputs echoed, "method"
+ * and "samples" or "scenarios"/"epsilon" (sizes_json.c). Unknown,
+ * repeated, ambiguous, missing or out-of-range parameters are named in
+ * `p`. */
+struct cJSON;
+fg_status fg_sample_size_json(int n, const char *const *names,
+                              const char *const *values, struct cJSON **out,
+                              fg_problem *p);
 
 #endif

@@ -43,14 +43,6 @@
 #include <stdlib.h>
 #include <string.h>
 
-/* Terms smaller than this fraction of the running sum are dropped: they
- * cannot change a double. */
-#define TAIL_NEGLIGIBLE 1e-18
-/* Relative precision of the epsilon bisection. */
-#define EPS_REL_PRECISION 1e-12
-/* Iterations of any bisection at most (each halves the bracket). */
-#define BISECT_MAX 4000
-
 static double z_upper(double tail) {
   /* The quantile with `tail` above it; Qinv keeps accuracy for small
    * tails. */
@@ -59,6 +51,29 @@ static double z_upper(double tail) {
 
 static bool open_unit(double x) {
   return x > 0 && x < 1;
+}
+
+/* The limit `which` (of value max) exceeded by parameter `param` = v. */
+static fg_status over_limit(fg_problem *pr, fg_limit which, const char *param,
+                            uint64_t v, uint64_t max) {
+  return fg_problem_limit(
+      pr, "", which, (double)max, "%s %llu exceeds %s = %llu", param,
+      (unsigned long long)v, fg_limit_name(which), (unsigned long long)max);
+}
+
+/* ceil(n), at least 1, or the sample_size_samples limit naming `what`. */
+static fg_status whole_samples(double n, const char *what, double *samples,
+                               fg_problem *pr) {
+  n = ceil(n);
+  if (n < 1) n = 1;
+  if (!(n <= (double)FG_SIZE_SAMPLES_MAX))
+    return fg_problem_limit(pr, "", FG_LIMIT_SAMPLE_SIZE_SAMPLES,
+                            (double)FG_SIZE_SAMPLES_MAX,
+                            "%s needs %.3g samples, more than %s = %.0f", what,
+                            n, fg_limit_name(FG_LIMIT_SAMPLE_SIZE_SAMPLES),
+                            (double)FG_SIZE_SAMPLES_MAX);
+  *samples = n;
+  return FG_OK;
 }
 
 fg_status fg_size_half_width(double h, double confidence, double p,
@@ -82,16 +97,9 @@ fg_status fg_size_half_width(double h, double confidence, double p,
                           "found %g",
                           p);
   double z = z_upper((1 - confidence) / 2);
-  double n = ceil(z * z * p * (1 - p) / (h * h));
-  if (n < 1) n = 1;
-  if (!(n <= (double)FG_SIZE_SAMPLES_MAX))
-    return fg_problem_limit(pr, "", "sample_size_samples",
-                            (double)FG_SIZE_SAMPLES_MAX,
-                            "half_width %g needs %.3g samples, more than "
-                            "sample_size_samples = %.0f",
-                            h, n, (double)FG_SIZE_SAMPLES_MAX);
-  *samples = n;
-  return FG_OK;
+  char what[64];
+  snprintf(what, sizeof what, "half_width %g", h);
+  return whole_samples(z * z * p * (1 - p) / (h * h), what, samples, pr);
 }
 
 fg_status fg_size_power(double target, double p, double confidence,
@@ -119,16 +127,9 @@ fg_status fg_size_power(double target, double p, double confidence,
   double za = z_upper((1 - confidence) / 2), zp = z_upper(1 - power);
   double r = (za * sqrt(target * (1 - target)) + zp * sqrt(p * (1 - p))) /
              (p - target);
-  double n = ceil(r * r);
-  if (n < 1) n = 1;
-  if (!(n <= (double)FG_SIZE_SAMPLES_MAX))
-    return fg_problem_limit(pr, "", "sample_size_samples",
-                            (double)FG_SIZE_SAMPLES_MAX,
-                            "probability %g against target %g needs %.3g "
-                            "samples, more than sample_size_samples = %.0f",
-                            p, target, n, (double)FG_SIZE_SAMPLES_MAX);
-  *samples = n;
-  return FG_OK;
+  char what[96];
+  snprintf(what, sizeof what, "probability %g against target %g", p, target);
+  return whole_samples(r * r, what, samples, pr);
 }
 
 /* ---- the scenario-approach bound ---- */
@@ -155,14 +156,14 @@ double fg_scenario_log_bound(double n, double eps, uint64_t d, uint64_t k) {
     t *= i / ((n - i + 1) * odds);
     i -= 1;
     sum += t;
-    if (t < TAIL_NEGLIGIBLE * sum) break;
+    if (t < FG_SIZE_TAIL_NEGLIGIBLE * sum) break;
   }
   t = 1.0;
   for (double i = j; i < m;) { /* upwards, to m */
     t *= (n - i) / (i + 1) * odds;
     i += 1;
     sum += t;
-    if (t < TAIL_NEGLIGIBLE * sum) break;
+    if (t < FG_SIZE_TAIL_NEGLIGIBLE * sum) break;
   }
   return log_c + log_term(n, j, leps, l1m) + log(sum);
 }
@@ -178,17 +179,11 @@ static fg_status check_scenario_inputs(double beta, uint64_t d, uint64_t k,
                           "decisions must be at least 1, found %llu",
                           (unsigned long long)d);
   if (d > FG_SIZE_DECISIONS_MAX)
-    return fg_problem_limit(
-        pr, "", "sample_size_decisions", (double)FG_SIZE_DECISIONS_MAX,
-        "decisions %llu exceeds sample_size_decisions = "
-        "%llu",
-        (unsigned long long)d, (unsigned long long)FG_SIZE_DECISIONS_MAX);
+    return over_limit(pr, FG_LIMIT_SAMPLE_SIZE_DECISIONS, "decisions", d,
+                      FG_SIZE_DECISIONS_MAX);
   if (k > FG_SIZE_DISCARDED_MAX)
-    return fg_problem_limit(
-        pr, "", "sample_size_discarded", (double)FG_SIZE_DISCARDED_MAX,
-        "discarded %llu exceeds sample_size_discarded = "
-        "%llu",
-        (unsigned long long)k, (unsigned long long)FG_SIZE_DISCARDED_MAX);
+    return over_limit(pr, FG_LIMIT_SAMPLE_SIZE_DISCARDED, "discarded", k,
+                      FG_SIZE_DISCARDED_MAX);
   return FG_OK;
 }
 
@@ -208,13 +203,14 @@ fg_status fg_scenario_size(double eps, double beta, uint64_t d, uint64_t k,
   while (fg_scenario_log_bound((double)hi, eps, d, k) > lb) {
     lo = hi;
     if (hi >= max)
-      return fg_problem_limit(pr, "", "sample_size_scenarios", (double)max,
+      return fg_problem_limit(pr, "", FG_LIMIT_SAMPLE_SIZE_SCENARIOS,
+                              (double)max,
                               "epsilon %g and beta %g need more than "
                               "sample_size_scenarios = %llu scenarios",
                               eps, beta, (unsigned long long)max);
     hi = hi > max / 2 ? max : hi * 2;
   }
-  for (int it = 0; hi - lo > 1 && it < BISECT_MAX; it++) {
+  for (int it = 0; hi - lo > 1 && it < FG_SIZE_BISECT_MAX; it++) {
     uint64_t mid = lo + (hi - lo) / 2;
     if (fg_scenario_log_bound((double)mid, eps, d, k) > lb)
       lo = mid;
@@ -231,11 +227,8 @@ fg_status fg_scenario_epsilon(uint64_t n, double beta, uint64_t d, uint64_t k,
   fg_status st = check_scenario_inputs(beta, d, k, pr);
   if (st != FG_OK) return st;
   if (n > FG_SIZE_SCENARIOS_MAX)
-    return fg_problem_limit(
-        pr, "", "sample_size_scenarios", (double)FG_SIZE_SCENARIOS_MAX,
-        "scenarios %llu exceeds sample_size_scenarios = "
-        "%llu",
-        (unsigned long long)n, (unsigned long long)FG_SIZE_SCENARIOS_MAX);
+    return over_limit(pr, FG_LIMIT_SAMPLE_SIZE_SCENARIOS, "scenarios", n,
+                      FG_SIZE_SCENARIOS_MAX);
   if (n <= k + d - 1)
     return fg_problem_add(pr, FG_EINVAL, "", 0,
                           "scenarios must exceed decisions + discarded - 1 = "
@@ -250,7 +243,7 @@ fg_status fg_scenario_epsilon(uint64_t n, double beta, uint64_t d, uint64_t k,
     lo = hi;
     hi = 1.0;
     /* Approach 1 from below by halving the distance. */
-    for (int it = 0; it < BISECT_MAX; it++) {
+    for (int it = 0; it < FG_SIZE_BISECT_MAX; it++) {
       double cand = 1 - (1 - lo) / 2;
       if (cand >= 1) break;
       if (fg_scenario_log_bound(nn, cand, d, k) <= lb) {
@@ -267,13 +260,16 @@ fg_status fg_scenario_epsilon(uint64_t n, double beta, uint64_t d, uint64_t k,
   } else {
     lo = hi / 2;
     for (int it = 0;
-         it < BISECT_MAX && fg_scenario_log_bound(nn, lo, d, k) <= lb; it++) {
+         it < FG_SIZE_BISECT_MAX && fg_scenario_log_bound(nn, lo, d, k) <= lb;
+         it++) {
       hi = lo;
       lo /= 2;
       if (lo == 0) break;
     }
   }
-  for (int it = 0; it < BISECT_MAX && hi - lo > EPS_REL_PRECISION * hi; it++) {
+  for (int it = 0;
+       it < FG_SIZE_BISECT_MAX && hi - lo > FG_SIZE_EPS_REL_PRECISION * hi;
+       it++) {
     double mid = lo + (hi - lo) / 2;
     if (fg_scenario_log_bound(nn, mid, d, k) > lb)
       lo = mid;
@@ -442,7 +438,7 @@ fg_status fg_size_query_solve(const fg_size_query *q, fg_size_answer *a,
   a->gives_epsilon = true;
   double n = v[FG_SZ_SCENARIOS];
   if (n > (double)FG_SIZE_SCENARIOS_MAX)
-    return fg_problem_limit(p, "", "sample_size_scenarios",
+    return fg_problem_limit(p, "", FG_LIMIT_SAMPLE_SIZE_SCENARIOS,
                             (double)FG_SIZE_SCENARIOS_MAX,
                             "scenarios %.0f exceeds sample_size_scenarios = "
                             "%llu",

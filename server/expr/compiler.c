@@ -135,9 +135,9 @@ static int add_sym(fg_expr_compiler *c, const char *name, fg_sym_kind kind,
   if (!name) name = "";
   size_t len = strlen(name);
   if (len > FG_NAME_MAX) {
-    fg_problem_limit(p, pointer, "name_length", FG_NAME_MAX,
-                     "name longer than %d characters (limit name_length)",
-                     FG_NAME_MAX);
+    fg_problem_limit(p, pointer, FG_LIMIT_NAME_LENGTH, FG_NAME_MAX,
+                     "name longer than %d characters (limit %s)",
+                     FG_NAME_MAX, fg_limit_name(FG_LIMIT_NAME_LENGTH));
     return -1;
   }
   if (!valid_name(name)) {
@@ -167,7 +167,7 @@ static int add_sym(fg_expr_compiler *c, const char *name, fg_sym_kind kind,
     return -1;
   }
   if (size > FG_VECTOR_MAX) {
-    fg_problem_limit(p, pointer, "vector_length", FG_VECTOR_MAX,
+    fg_problem_limit(p, pointer, FG_LIMIT_VECTOR_LENGTH, FG_VECTOR_MAX,
                      "'%s' has %d elements, more than %d (limit "
                      "vector_length)",
                      name, size, FG_VECTOR_MAX);
@@ -242,10 +242,11 @@ static bool check_source(const char *src, const char *pointer, bool cons,
                          fg_problem *p) {
   size_t len = strlen(src);
   if (len > FG_EXPR_MAX_LENGTH) {
-    fg_problem_limit(p, pointer, "expression_length", FG_EXPR_MAX_LENGTH,
+    fg_problem_limit(p, pointer, FG_LIMIT_EXPRESSION_LENGTH, FG_EXPR_MAX_LENGTH,
                      "expression of %zu characters is longer than %d "
-                     "(limit expression_length)",
-                     len, FG_EXPR_MAX_LENGTH);
+                     "(limit %s)",
+                     len, FG_EXPR_MAX_LENGTH,
+                     fg_limit_name(FG_LIMIT_EXPRESSION_LENGTH));
     return false;
   }
   fg_arena arena = {0};
@@ -255,7 +256,7 @@ static bool check_source(const char *src, const char *pointer, bool cons,
   if (n) return true;
   if (err.nomem)
     fg_problem_set(p, FG_ENOMEM, "out of memory");
-  else if (err.limit)
+  else if (err.limited)
     fg_problem_limit(p, pointer, err.limit, err.limit_value, "%s (column %d)",
                      err.msg, err.col);
   else

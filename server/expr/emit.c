@@ -69,7 +69,7 @@ static bool push_insn(fg_expr_compiler *c, fg_insn in, bool uncertain, int col,
                       int *reg) {
   if (c->ninsns >= FG_PROGRAM_MAX_INSNS) {
     if (!c->limit_hit)
-      fg_problem_limit(c->p, c->pointer, "program_instructions",
+      fg_problem_limit(c->p, c->pointer, FG_LIMIT_PROGRAM_INSTRUCTIONS,
                        FG_PROGRAM_MAX_INSNS,
                        "the program needs more than %d instructions (limit "
                        "program_instructions)",

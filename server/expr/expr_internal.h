@@ -105,7 +105,6 @@ typedef enum fg_func {
   FG_FN_COUNT
 } fg_func;
 
-const char *fg_expr_function_name(fg_func f);
 
 typedef enum fg_node_kind {
   FG_N_NUM,       /* num */
@@ -146,7 +145,8 @@ void fg_expr_arena_free(fg_arena *a);
 
 typedef struct fg_parse_error {
   int col;
-  const char *limit; /* a named limit was reached (else NULL) */
+  bool limited;   /* a named limit was reached: `limit` */
+  fg_limit limit;
   double limit_value;
   bool nomem;
   char msg[FG_MESSAGE_MAX];

@@ -48,10 +48,11 @@ static bool parse_again(fg_expr_compiler *c, const fg_item *it, int i,
 static bool keep_elements(fg_expr_compiler *c, fg_sym *s, int count) {
   c->def_elements += count;
   if (c->def_elements > FG_PROGRAM_MAX_REGS) {
-    fg_problem_limit(c->p, c->pointer, "program_registers", FG_PROGRAM_MAX_REGS,
-                     "definitions hold more than %d elements in total "
-                     "(limit program_registers)",
-                     FG_PROGRAM_MAX_REGS);
+    fg_problem_limit(
+        c->p, c->pointer, FG_LIMIT_PROGRAM_REGISTERS, FG_PROGRAM_MAX_REGS,
+        "definitions hold more than %d elements in total "
+        "(limit %s)",
+        FG_PROGRAM_MAX_REGS, fg_limit_name(FG_LIMIT_PROGRAM_REGISTERS));
     return false;
   }
   s->val = malloc(sizeof *s->val * (size_t)count);
@@ -233,7 +234,7 @@ static bool compile_constraint(fg_expr_compiler *c, const fg_item *it) {
     for (int i = 0; i < n->nkids; i++)
       if (v[i].n) shape = v[i].n;
     if (c->nrows + (shape ? shape : 1) > FG_ROWS_MAX) {
-      fg_problem_limit(c->p, c->pointer, "constraint_rows", FG_ROWS_MAX,
+      fg_problem_limit(c->p, c->pointer, FG_LIMIT_CONSTRAINT_ROWS, FG_ROWS_MAX,
                        "the constraints expand to more than %d rows (limit "
                        "constraint_rows)",
                        FG_ROWS_MAX);

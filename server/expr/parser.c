@@ -87,12 +87,6 @@ bool fg_expr_is_function_name(const char *name) {
   return name && function_index(name, strlen(name)) >= 0;
 }
 
-const char *fg_expr_function_name(fg_func f) {
-  for (size_t i = 0; i < sizeof functions / sizeof functions[0]; i++)
-    if (functions[i].fn == f) return functions[i].name;
-  return "?";
-}
-
 /* ---- precedence of the binary operators (higher binds tighter) ---- */
 enum { LEVEL_OR = 1, LEVEL_AND, LEVEL_CMP, LEVEL_ADD, LEVEL_MUL, LEVEL_TOP };
 
@@ -214,12 +208,13 @@ static bool push_kid(parser *ps, fg_node *n, fg_node *kid, int *cap,
 static bool enter(parser *ps) {
   if (++ps->depth > FG_EXPR_MAX_DEPTH) {
     if (!ps->failed) {
-      ps->err->limit = "expression_depth";
+      ps->err->limited = true;
+      ps->err->limit = FG_LIMIT_EXPRESSION_DEPTH;
       ps->err->limit_value = FG_EXPR_MAX_DEPTH;
     }
     fail(ps, ps->tok.col,
-         "expression nested deeper than %d levels (limit expression_depth)",
-         FG_EXPR_MAX_DEPTH);
+         "expression nested deeper than %d levels (limit %s)",
+         FG_EXPR_MAX_DEPTH, fg_limit_name(FG_LIMIT_EXPRESSION_DEPTH));
     return false;
   }
   return true;
@@ -321,7 +316,8 @@ static fg_node *parse_primary(parser *ps) {
     }
     if (!expect(ps, FG_TOK_RBRACK, "',' or ']'")) return NULL;
     if (n->nkids > FG_VECTOR_MAX) {
-      ps->err->limit = "vector_length";
+      ps->err->limited = true;
+      ps->err->limit = FG_LIMIT_VECTOR_LENGTH;
       ps->err->limit_value = FG_VECTOR_MAX;
       fail(ps, t.col, "vector literal longer than %d elements", FG_VECTOR_MAX);
       return NULL;

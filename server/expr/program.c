@@ -169,10 +169,12 @@ static fg_status build(fg_expr_compiler *c, fg_program *prog, const int *order,
   fg_program_info *info = &prog->info;
   info->nregs = as->next;
   if (info->nregs > FG_PROGRAM_MAX_REGS)
-    return fg_problem_limit(p, "", "program_registers", FG_PROGRAM_MAX_REGS,
+    return fg_problem_limit(p, "", FG_LIMIT_PROGRAM_REGISTERS,
+                            FG_PROGRAM_MAX_REGS,
                             "the program needs %d registers, more than %d "
-                            "(limit program_registers)",
-                            info->nregs, FG_PROGRAM_MAX_REGS);
+                            "(limit %s)",
+                            info->nregs, FG_PROGRAM_MAX_REGS,
+                            fg_limit_name(FG_LIMIT_PROGRAM_REGISTERS));
   info->decision_base = 0;
   info->ndecision = c->ndecision;
   info->uncertain_base = c->ndecision;

@@ -26,11 +26,7 @@
  *      the job has ended or the time is up; so are DELETE's wait for a
  *      cancelled check and GET's look for a just-started one.
  *
- * Check ids: "chk_" + 26 Crockford base32 characters of a 128-bit value,
- * 48 bits of Unix milliseconds then 80 random bits. Ids made in the same
- * millisecond by this process increase by one in their random part, so ids
- * sort in creation order and the list cursor can be an id. The generator's
- * last value is the one piece of process-wide state here (mutex-guarded).
+ * Check ids are made by ids.c.
  *
  * Thread use: handlers on connection threads. The life of a check itself
  * (record, queue, end, record) is lifecycle.c's.
@@ -46,64 +42,6 @@
 #include <string.h>
 #include <sys/random.h>
 #include <time.h>
-
-/* ---- ids ---- */
-
-static const char crockford[] = "0123456789ABCDEFGHJKMNPQRSTVWXYZ";
-
-static pthread_mutex_t id_lock = PTHREAD_MUTEX_INITIALIZER;
-static uint64_t id_last_ms;
-static uint8_t id_last_rand[10];
-
-void fg_http_new_id(const char *prefix, char out[40]) {
-  struct timespec ts;
-  clock_gettime(CLOCK_REALTIME, &ts);
-  uint64_t ms = (uint64_t)ts.tv_sec * 1000u + (uint64_t)ts.tv_nsec / 1000000u;
-  uint8_t rnd[10];
-  if (getrandom(rnd, sizeof rnd, 0) != (ssize_t)sizeof rnd) {
-    /* No entropy: fall back to the clock; monotonicity still holds. */
-    uint64_t x = (uint64_t)ts.tv_nsec * 0x9E3779B97F4A7C15ull;
-    for (size_t i = 0; i < sizeof rnd; i++)
-      rnd[i] = (uint8_t)(x >> (i * 6));
-  }
-  pthread_mutex_lock(&id_lock);
-  if (ms <= id_last_ms) {
-    ms = id_last_ms;
-    memcpy(rnd, id_last_rand, sizeof rnd);
-    for (int i = (int)sizeof rnd - 1; i >= 0; i--)
-      if (++rnd[i] != 0) break;
-  }
-  id_last_ms = ms;
-  memcpy(id_last_rand, rnd, sizeof rnd);
-  pthread_mutex_unlock(&id_lock);
-
-  uint8_t bytes[16];
-  for (int i = 0; i < 6; i++)
-    bytes[i] = (uint8_t)(ms >> (8 * (5 - i)));
-  memcpy(bytes + 6, rnd, sizeof rnd);
-  /* 26 groups of 5 bits over 130 bits: two zero bits, then the 128. */
-  memcpy(out, prefix, 4);
-  for (int k = 0; k < 26; k++) {
-    int v = 0;
-    for (int b = k * 5 - 2; b < k * 5 + 3; b++) {
-      int bit = b < 0 ? 0 : (bytes[b / 8] >> (7 - b % 8)) & 1;
-      v = (v << 1) | bit;
-    }
-    out[4 + k] = crockford[v];
-  }
-  out[30] = '\0';
-}
-
-void fg_http_check_id(char out[40]) {
-  fg_http_new_id("chk_", out);
-}
-
-bool fg_http_is_id(const char *prefix, const char *s) {
-  if (strncmp(s, prefix, 4) != 0 || strlen(s) != 30) return false;
-  for (int i = 4; i < 30; i++)
-    if (!strchr(crockford, s[i]) || s[i] == '\0') return false;
-  return true;
-}
 
 /* ---- result bodies and records ---- */
 
@@ -268,7 +206,7 @@ void fg_h_checks_create(fg_req *r, fg_resp *out) {
                                 .finish = create_finish,
                                 .drop = create_drop,
                                 .ctx = job,
-                                .deadline = fg_http_now() + req.wait_s};
+                                .deadline = fg_time_monotonic() + req.wait_s};
     job = NULL; /* the wait owns the reference */
     goto done;
   }
@@ -387,7 +325,7 @@ static void get_answer(fg_server *srv, const char *id, bool look_again,
                                   .finish = get_finish,
                                   .drop = free,
                                   .ctx = gw,
-                                  .deadline = fg_http_now() +
+                                  .deadline = fg_time_monotonic() +
                                               FG_HTTP_LIVE_RETRIES * 0.002};
       return;
     }
@@ -473,7 +411,7 @@ static void cancel_here(fg_req *r, fg_job *job, fg_resp *out) {
                        .finish = cancel_finish,
                        .drop = cancel_drop,
                        .ctx = cw,
-                       .deadline = fg_http_now() + FG_HTTP_CANCEL_WAIT_S};
+                       .deadline = fg_time_monotonic() + FG_HTTP_CANCEL_WAIT_S};
       return;
     }
     cancel_answer(r->srv, job, out);
@@ -483,52 +421,26 @@ static void cancel_here(fg_req *r, fg_job *job, fg_resp *out) {
                 id, fg_check_state_name(fg_job_final_state(job)));
 }
 
-/* A DELETE of a check another replica runs, waiting (suspended) for its
- * record to end: the store is read every REPLICA_LOOK_S (in finish, on a
- * libmicrohttpd thread; the waiter thread only keeps the time). */
-#define REPLICA_LOOK_S 0.05
-typedef struct replica_wait {
-  fg_server *srv;
-  double until; /* fg_http_now() seconds */
-  char id[FG_HTTP_PATH_MAX + 1];
-} replica_wait;
-
-static void replica_finish(fg_req *r, void *ctx, bool timed_out,
-                           fg_resp *out) {
-  replica_wait *rw = ctx;
+/* Another replica's check, read from the store (fg_replica_look). */
+static bool look_check(fg_req *r, const char *id, fg_resp *out) {
   fg_problem p;
   fg_problem_init(&p);
   fg_store_check c;
-  if (fg_store_get_check(rw->srv->store, rw->id, &c, &p) != FG_OK) {
+  if (fg_store_get_check(r->srv->store, id, &c, &p) != FG_OK) {
     fg_resp_problem(out, &p, 0);
-    free(rw);
-    return;
+    return true;
   }
   fg_check_state state = fg_check_state_parse(c.status);
-  double now = fg_http_now();
-  if (state == FG_CHECK_RUNNING && now < rw->until) {
-    fg_store_check_clear(&c);
-    out->pending = (fg_pending){
-        .finish = replica_finish,
-        .drop = free,
-        .ctx = rw,
-        .deadline = now + REPLICA_LOOK_S < rw->until ? now + REPLICA_LOOK_S
-                                                     : rw->until};
-    return;
-  }
-  if (state == FG_CHECK_RUNNING)
-    fg_resp_error(out, 503, FG_EBUSY,
-                  "check %s runs in another replica, which was asked to "
-                  "stop it but has not within %g s; GET it shortly",
-                  rw->id, FG_HTTP_CANCEL_WAIT_S);
-  else if (state == FG_CHECK_CANCELLED) {
+  bool answered = state != FG_CHECK_RUNNING;
+  if (state == FG_CHECK_CANCELLED) {
     if (!send_stored_result(out, &c))
       fg_resp_json(out, 200, check_summary(&c));
-  } else
+  } else if (answered) {
     fg_resp_error(out, 409, FG_ECONFLICT,
-                  "check %s is not running: it ended %s", rw->id, c.status);
+                  "check %s is not running: it ended %s", id, c.status);
+  }
   fg_store_check_clear(&c);
-  free(rw);
+  return answered;
 }
 
 void fg_h_check_cancel(fg_req *r, fg_resp *out) {
@@ -557,19 +469,7 @@ void fg_h_check_cancel(fg_req *r, fg_resp *out) {
       return;
     }
     fg_store_check_clear(&c);
-    replica_wait *rw = malloc(sizeof *rw);
-    if (!rw) {
-      fg_resp_error(out, 503, FG_ENOMEM,
-                    "out of memory waiting for check %s to stop", id);
-      return;
-    }
-    rw->srv = r->srv;
-    rw->until = fg_http_now() + FG_HTTP_CANCEL_WAIT_S;
-    snprintf(rw->id, sizeof rw->id, "%s", id);
-    out->pending = (fg_pending){.finish = replica_finish,
-                                .drop = free,
-                                .ctx = rw,
-                                .deadline = fg_http_now() + REPLICA_LOOK_S};
+    fg_replica_wait("check", id, look_check, out);
     return;
   }
   if (state == FG_CHECK_RUNNING)
@@ -641,6 +541,20 @@ static bool normalise_time(const char *s, char out[32]) {
   return true;
 }
 
+/* A filter given as `value`: into *dst when `ok`, else a 400 naming the
+ * parameter, what was expected and what was found; true when absent. */
+static bool filter(fg_resp *out, const char *name, const char *value, bool ok,
+                   const char *expected, const char **dst) {
+  if (!value) return true;
+  if (!ok) {
+    fg_resp_bad_param(out, name, "expected %s, found '%.64s'", expected,
+                      value);
+    return false;
+  }
+  *dst = value;
+  return true;
+}
+
 void fg_h_checks_list(fg_req *r, fg_resp *out) {
   list_query q;
   static const char *const names[] = {"model", "verdict", "since", "label",
@@ -655,54 +569,26 @@ void fg_h_checks_list(fg_req *r, fg_resp *out) {
     return;
   }
   fg_check_filter f = {.limit = FG_LIST_LIMIT_DEFAULT};
-  if (q.model) {
-    if (!fg_model_is_model_name(q.model)) {
-      fg_resp_bad_param(out, "model",
-                "expected a model name ([a-z0-9][a-z0-9_.-]{0,63}), found "
-                "'%.64s'",
-                q.model);
-      return;
-    }
-    f.model = q.model;
-  }
-  if (q.verdict) {
-    if (strcmp(q.verdict, "pass") && strcmp(q.verdict, "fail") &&
-        strcmp(q.verdict, "inconclusive")) {
-      fg_resp_bad_param(out, "verdict",
-                "expected pass, fail or inconclusive, found '%.32s'",
-                q.verdict);
-      return;
-    }
-    f.verdict = q.verdict;
-  }
   char since[32];
-  if (q.since) {
-    if (!normalise_time(q.since, since)) {
-      fg_resp_bad_param(out, "since",
-                "expected an RFC 3339 date-time such as "
-                "2026-12-01T21:40:00Z, found '%.64s'",
-                q.since);
-      return;
-    }
-    f.since = since;
-  }
-  if (q.label) {
-    if (strlen(q.label) > FG_LABEL_MAX) {
-      fg_resp_bad_param(out, "label", "longer than label_length");
-      return;
-    }
-    f.label = q.label;
-  }
-  if (q.key) {
-    if (!fg_key_name_valid(q.key)) {
-      fg_resp_bad_param(out, "key",
-                "expected an API key's name (as `feasgate keys list` shows "
-                "it), found '%.64s'",
-                q.key);
-      return;
-    }
-    f.key = q.key;
-  }
+  bool verdict_ok = q.verdict && (!strcmp(q.verdict, "pass") ||
+                                  !strcmp(q.verdict, "fail") ||
+                                  !strcmp(q.verdict, "inconclusive"));
+  if (!filter(out, "model", q.model, q.model && fg_model_is_model_name(q.model),
+              "a model name ([a-z0-9][a-z0-9_.-]{0,63})", &f.model) ||
+      !filter(out, "verdict", q.verdict, verdict_ok,
+              "pass, fail or inconclusive", &f.verdict) ||
+      !filter(out, "since", q.since, q.since && normalise_time(q.since, since),
+              "an RFC 3339 date-time such as 2026-12-01T21:40:00Z",
+              &f.since) ||
+      !filter(out, "label", q.label, q.label && strlen(q.label) <= FG_LABEL_MAX,
+              "a label of at most label_length characters", &f.label) ||
+      !filter(out, "key", q.key, q.key && fg_key_name_valid(q.key),
+              "an API key's name (as `feasgate keys list` shows it)",
+              &f.key) ||
+      !filter(out, "after", q.after, q.after && fg_http_is_id("chk_", q.after),
+              "the id of the last check seen (chk_...)", &f.after))
+    return;
+  if (f.since) f.since = since;
   if (q.limit) {
     char *end = NULL;
     errno = 0;
@@ -714,16 +600,6 @@ void fg_h_checks_list(fg_req *r, fg_resp *out) {
       return;
     }
     f.limit = (int)lim;
-  }
-  if (q.after) {
-    if (!fg_http_is_id("chk_", q.after)) {
-      fg_resp_bad_param(out, "after",
-                "expected the id of the last check seen (chk_...), found "
-                "'%.40s'",
-                q.after);
-      return;
-    }
-    f.after = q.after;
   }
 
   fg_problem p;

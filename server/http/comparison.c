@@ -446,7 +446,7 @@ void fg_h_comparisons_create(fg_req *r, fg_resp *out) {
                                 .finish = created_finish,
                                 .drop = created_drop,
                                 .ctx = fg_comparison_ref(c),
-                                .deadline = fg_http_now() + wait_s -
+                                .deadline = fg_time_monotonic() + wait_s -
                                             (fg_time_monotonic() - t0)};
     goto done;
   }
@@ -517,6 +517,18 @@ static bool valid_id(const char *id, fg_resp *out) {
   return false;
 }
 
+/* The stored row of comparison `id`; false after answering the problem
+ * (404 for an unknown id). */
+static bool read_row(fg_req *r, const char *id, fg_store_comparison *row,
+                     fg_resp *out) {
+  fg_problem p;
+  fg_problem_init(&p);
+  if (fg_store_get_comparison(r->srv->store, id, row, &p) == FG_OK)
+    return true;
+  fg_resp_problem(out, &p, 0);
+  return false;
+}
+
 void fg_h_comparison_get(fg_req *r, fg_resp *out) {
   const char *id = r->params[0];
   if (!valid_id(id, out)) return;
@@ -526,57 +538,20 @@ void fg_h_comparison_get(fg_req *r, fg_resp *out) {
     fg_comparison_unref(c);
     return;
   }
-  fg_problem p;
-  fg_problem_init(&p);
   fg_store_comparison row;
-  if (fg_store_get_comparison(r->srv->store, id, &row, &p) != FG_OK) {
-    fg_resp_problem(out, &p, 0);
-    return;
-  }
+  if (!read_row(r, id, &row, out)) return;
   answer_stored(r, &row, out);
   fg_store_comparison_clear(&row);
 }
 
-/* A DELETE of a comparison another replica runs, waiting (suspended)
- * for its row to end: the store is read every REPLICA_LOOK_S in finish. */
-#define REPLICA_LOOK_S 0.05
-typedef struct replica_wait {
-  double until; /* fg_http_now() seconds */
-  char id[FG_HTTP_PATH_MAX + 1];
-} replica_wait;
-
-static void replica_finish(fg_req *r, void *ctx, bool timed_out,
-                           fg_resp *out) {
-  replica_wait *rw = ctx;
-  fg_problem p;
-  fg_problem_init(&p);
+/* Another replica's comparison, read from the store (fg_replica_look). */
+static bool look_comparison(fg_req *r, const char *id, fg_resp *out) {
   fg_store_comparison row;
-  if (fg_store_get_comparison(r->srv->store, rw->id, &row, &p) != FG_OK) {
-    fg_resp_problem(out, &p, 0);
-    free(rw);
-    return;
-  }
-  fg_check_state state = fg_check_state_parse(row.status);
-  double now = fg_http_now();
-  if (state == FG_CHECK_RUNNING && now < rw->until) {
-    fg_store_comparison_clear(&row);
-    out->pending = (fg_pending){
-        .finish = replica_finish,
-        .drop = free,
-        .ctx = rw,
-        .deadline = now + REPLICA_LOOK_S < rw->until ? now + REPLICA_LOOK_S
-                                                     : rw->until};
-    return;
-  }
-  if (state == FG_CHECK_RUNNING)
-    fg_resp_error(out, 503, FG_EBUSY,
-                  "comparison %s runs in another replica, which was asked "
-                  "to stop it but has not within %g s; GET it shortly",
-                  rw->id, FG_HTTP_CANCEL_WAIT_S);
-  else
-    answer_stored(r, &row, out);
+  if (!read_row(r, id, &row, out)) return true;
+  bool answered = fg_check_state_parse(row.status) != FG_CHECK_RUNNING;
+  if (answered) answer_stored(r, &row, out);
   fg_store_comparison_clear(&row);
-  free(rw);
+  return answered;
 }
 
 static void cancelled_finish(fg_req *r, void *ctx, bool timed_out,
@@ -615,21 +590,16 @@ void fg_h_comparison_cancel(fg_req *r, fg_resp *out) {
     for (int i = 0; i < c->n; i++)
       fg_job_cancel(c->jobs[i]);
     /* The wait for the candidates' ends is suspended (waiter.c). */
-    out->pending = (fg_pending){.ready = jobs_ended,
-                                .finish = cancelled_finish,
-                                .drop = cancelled_drop,
-                                .ctx = c, /* the reference found */
-                                .deadline =
-                                    fg_http_now() + FG_HTTP_CANCEL_WAIT_S};
+    out->pending =
+        (fg_pending){.ready = jobs_ended,
+                     .finish = cancelled_finish,
+                     .drop = cancelled_drop,
+                     .ctx = c, /* the reference found */
+                     .deadline = fg_time_monotonic() + FG_HTTP_CANCEL_WAIT_S};
     return;
   }
-  fg_problem p;
-  fg_problem_init(&p);
   fg_store_comparison row;
-  if (fg_store_get_comparison(r->srv->store, id, &row, &p) != FG_OK) {
-    fg_resp_problem(out, &p, 0);
-    return;
-  }
+  if (!read_row(r, id, &row, out)) return;
   fg_check_state state = fg_check_state_parse(row.status);
   if (state == FG_CHECK_RUNNING && fg_store_shared(r->srv->store)) {
     /* Runs in another replica: ask it to cancel every candidate, then
@@ -638,23 +608,13 @@ void fg_h_comparison_cancel(fg_req *r, fg_resp *out) {
     const cJSON *cid;
     cJSON_ArrayForEach(cid, ids) {
       if (!cJSON_IsString(cid)) continue;
+      fg_problem p; /* a candidate already ended: nothing to ask */
       fg_problem_init(&p);
       fg_store_request_cancel(r->srv->store, cid->valuestring, &p);
     }
     cJSON_Delete(ids);
     fg_store_comparison_clear(&row);
-    replica_wait *rw = malloc(sizeof *rw);
-    if (!rw) {
-      fg_resp_error(out, 503, FG_ENOMEM,
-                    "out of memory waiting for comparison %s to stop", id);
-      return;
-    }
-    rw->until = fg_http_now() + FG_HTTP_CANCEL_WAIT_S;
-    snprintf(rw->id, sizeof rw->id, "%s", id);
-    out->pending = (fg_pending){.finish = replica_finish,
-                                .drop = free,
-                                .ctx = rw,
-                                .deadline = fg_http_now() + REPLICA_LOOK_S};
+    fg_replica_wait("comparison", id, look_comparison, out);
     return;
   }
   fg_resp_error(out, 409, FG_ECONFLICT,

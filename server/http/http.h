@@ -50,6 +50,7 @@
 
 #include "feasgate/engine.h"
 #include "feasgate/limits.h"
+#include "store/store.h"
 
 #include <stdbool.h>
 #include <stddef.h>
@@ -91,43 +92,47 @@ int fg_http_config_parse(int argc, char **argv, fg_http_config *cfg, char *err,
 /* The whole `feasgate serve` subcommand (argv[0] = "serve"). */
 int fg_serve_command(int argc, char **argv);
 
-/* `feasgate keys add|list|revoke` (argv[0] = "keys"; keys_cli.c): 0 done,
- * 1 store or system fault, 3 usage, unknown or duplicate name. */
-int fg_keys_command(int argc, char **argv);
-
-/* `feasgate explain MODEL.json REQUEST.json --index I` (argv[0] =
- * "explain"; explain.c): 0 printed, 3 usage or invalid input. */
-int fg_explain_command(int argc, char **argv);
-
-/* `feasgate sample-model MODEL.json --scenarios S ...` (argv[0] =
- * "sample-model"; samplemodels.c): 0 written, 3 usage or invalid input. */
-int fg_sample_model_command(int argc, char **argv);
-
-/* `feasgate replay --store STORE ID` (argv[0] = "replay"; replay.c): 0
- * every count reproduced, 1 not, 3 usage or input faults. */
-int fg_replay_command(int argc, char **argv);
-
-/* `feasgate check --server URL [--key KEY] MODEL_NAME REQUEST.json`
- * (argv[0] = "check"; remote.c): the check run by a daemon, the result
- * printed; 0 pass, 1 fail, 2 inconclusive, 3 anything else. */
-int fg_remote_check_command(int argc, char **argv);
-
-/* The `check --summary` table of a result body, at most `max_rows` rows
- * and then how many were left out (summary.c). */
-void fg_summary_print(FILE *f, const struct cJSON *res, int max_rows);
-
-/* Line and column (1-based, columns in characters) of byte `offset` of
- * `text`, for malformed-JSON messages (summary.c). */
-void fg_text_position(const char *text, size_t len, long long offset,
-                      int *line, int *column);
-
-/* The sample-size answer (GET /v1/sample-size, `feasgate sample-size`)
- * for `n` parameters given by name and text: the inputs echoed, "method"
- * and "samples" or "scenarios"/"epsilon" (http/sizes.c). Unknown,
- * repeated, ambiguous, missing or out-of-range parameters are named in
- * `p`. */
-fg_status fg_sample_size_json(int n, const char *const *names,
-                              const char *const *values, struct cJSON **out,
-                              fg_problem *p);
+/* ---- for the command line (cli/) ---- */
+/* Limits for re-reading a request that was accepted once: the hard caps,
+ * so a request logged under a larger --max-samples still parses after a
+ * restart with a smaller one (replay.c). */
+void fg_replay_limits(fg_request_limits *lim);
+/* False, with a 409 problem, when a stored check has no counts to compare
+ * a replay with (still running, interrupted, or no result) (replay.c). */
+bool fg_replay_has_counts(const struct fg_store_check *c, fg_problem *p);
+/* The replay answer {"check", "replay", "reproduced", "differences",
+ * "result"}; takes rep_body (replay.c). */
+struct cJSON *fg_replay_answer(const char *orig_id, const char *replay_id,
+                               const struct cJSON *orig_body,
+                               struct cJSON *rep_body, bool ended);
+/* What a replay of a logged check runs: the stored check and its
+ * original result, the model version, the stored request parsed with
+ * the hard caps and the seed it ran with (replay.c). */
+typedef struct fg_replay_source {
+  fg_store_check check;
+  bool have_check, have_req;
+  fg_store_version version;
+  fg_model *model;
+  struct cJSON *orig, *body;
+  fg_check_request req;
+} fg_replay_source;
+/* Load it for check `id` from `st`; the model through srv's cache, or
+ * compiled from the stored document when srv is NULL (offline). 404 for
+ * an unknown check, 409 when it has no counts (fg_replay_has_counts). */
+struct fg_server;
+fg_status fg_replay_load(struct fg_server *srv, fg_store *st,
+                         const char *id, fg_replay_source *src,
+                         fg_problem *p);
+void fg_replay_source_clear(fg_replay_source *src);
+/* A sample index: digits only, at most 20 of them (explain.c). */
+bool fg_explain_parse_index(const char *s, uint64_t *out);
+struct fg_store_key;
+/* [A-Za-z0-9][A-Za-z0-9_.-]{0,63} (keys.c). */
+bool fg_key_name_valid(const char *s);
+/* reader, checker, author or admin (keys.c). */
+bool fg_key_role_valid(const char *s);
+/* A new key's text (cap >= 64) and its salt and hash in *k (keys.c). */
+fg_status fg_key_generate(char *text, size_t cap, struct fg_store_key *k,
+                          fg_problem *p);
 
 #endif

@@ -39,6 +39,16 @@
 #include <stdatomic.h>
 #include <stdbool.h>
 
+/* Who may call a route (keys.c); each route in router.c names its least
+ * role. */
+typedef enum fg_role {
+  FG_ROLE_NONE = 0, /* open routes */
+  FG_ROLE_READER,
+  FG_ROLE_CHECKER,
+  FG_ROLE_AUTHOR,
+  FG_ROLE_ADMIN
+} fg_role;
+
 /* Path parameters of one route at most ({name}, {n}, {id}). */
 #define FG_ROUTE_PARAMS 4
 
@@ -91,7 +101,7 @@ typedef struct fg_server {
 
 /* A wait a handler asks for instead of blocking (waiter.c): the waiter
  * thread polls ready(ctx) (quick, non-blocking, thread-safe) until it is
- * true or `deadline` (fg_http_now() seconds) passes, then the request's
+ * true or `deadline` (fg_time_monotonic() seconds) passes, then the request's
  * connection is resumed and finish(r, ctx, timed_out, out) answers on a
  * libmicrohttpd thread -- or fills out->pending again to wait more.
  * finish owns ctx (frees it or hands it on); drop(ctx) frees it when the
@@ -117,6 +127,7 @@ struct fg_req {
   bool responded;
   double t0;         /* monotonic seconds at the first call */
   const char *route; /* the matched pattern, for the log */
+  fg_role role;      /* the matched route's least role (router.c) */
   int nparams;
   char params[FG_ROUTE_PARAMS][FG_HTTP_PATH_MAX + 1];
   bool authorized;                 /* fg_auth_request said yes */
@@ -154,6 +165,21 @@ struct fg_resp {
 
 typedef void fg_handler(fg_req *r, fg_resp *out);
 
+/* ---- listen.c: the listening socket and the TLS files ---- */
+/* A listening socket on cfg's host and port; its bound address as
+ * "HOST:PORT" or "[V6]:PORT" in addr; -1 with err naming --listen. */
+int fg_http_bind_listener(const fg_http_config *cfg, char *addr, size_t cap,
+                          char *err, size_t errcap);
+/* True when the socket is bound to a loopback address (127.0.0.0/8, ::1,
+ * or ::ffff:127.x.y.z). */
+bool fg_http_bound_to_loopback(int fd);
+/* A whole PEM file as a NUL-terminated string; NULL with err naming the
+ * flag and the path. */
+char *fg_http_read_pem(const char *flag, const char *path, char *err,
+                       size_t errcap);
+/* Free PEM text after wiping it (the key is a secret). */
+void fg_http_free_pem(char *pem);
+
 /* ---- conns.c: connections, their limits, the header timeout ---- */
 enum { FG_OVER_NONE = 0, FG_OVER_ALL, FG_OVER_CLIENT };
 /* What the daemon keeps per connection (libmicrohttpd's socket context). */
@@ -190,6 +216,17 @@ int fg_waiter_count(fg_server *srv);
 void fg_waiter_stop(fg_server *srv);
 void fg_waiter_free(fg_server *srv);
 
+/* ---- replica_wait.c: a DELETE waiting for another replica ---- */
+/* Reads record `id` from the store: true when it answered in *out (the
+ * record ended, or an error), false when it still runs (nothing
+ * written). */
+typedef bool fg_replica_look(fg_req *r, const char *id, fg_resp *out);
+/* Suspend the request until `look` answers, reading every
+ * FG_HTTP_REPLICA_LOOK_S, or 503 after FG_HTTP_CANCEL_WAIT_S ("WHAT ID
+ * runs in another replica ..."). */
+void fg_replica_wait(const char *what, const char *id, fg_replica_look *look,
+                     fg_resp *out);
+
 /* ---- strict.c: requests refused before routing, echoed text ---- */
 /* MHD_OPTION_UNESCAPE_CALLBACK: libmicrohttpd's decoding; marks "%00". */
 size_t fg_http_unescape(void *cls, struct MHD_Connection *conn, char *s);
@@ -207,16 +244,23 @@ void fg_json_utf8_fix(cJSON *item);
 /* Find the handler for r->method and r->path, filling r->params and
  * r->route; on no match fill *out with 404 or 405 and return NULL. */
 fg_handler *fg_route(fg_req *r, fg_resp *out);
+/* The least role for `method` on router pattern `route` (router.c; admin
+ * for a pair that is not a route). */
+fg_role fg_route_role(const char *method, const char *route);
 
 /* ---- query.c ---- */
-/* Longest parameter name kept for a problem message. */
-#define FG_HTTP_PARAM_NAME_MAX 64
 /* Query parameters named names[i] into *slots[i] (first occurrence; NULL
  * when absent). False when a parameter has another name (or an empty
  * one): that name is in `unknown` ("" for the empty one). */
 bool fg_http_query_args(fg_req *r, const char *const *names,
                         const char **const *slots, int n,
                         char unknown[FG_HTTP_PARAM_NAME_MAX]);
+/* The same over given pairs (keys[i] NULL: an empty name); the unit
+ * tests' way in, and what fg_http_query_args does per parameter. */
+bool fg_http_query_pairs(const char *const *keys, const char *const *values,
+                         int npairs, const char *const *names,
+                         const char **const *slots, int n,
+                         char unknown[FG_HTTP_PARAM_NAME_MAX]);
 /* True when the Accept header prefers media type `type` (e.g. "text/csv")
  * to JSON (RFC 9110 section 12.5.1: the highest q wins; JSON, any type and
  * application/anything win ties, JSON being the default). */
@@ -250,7 +294,6 @@ void fg_log_force(fg_log_level level, cJSON *obj);
 /* A one-off message: {"event": event, "message": ...}. */
 void fg_log_msg(fg_log_level level, const char *event, const char *fmt, ...)
     __attribute__((format(printf, 3, 4)));
-double fg_http_now(void); /* monotonic seconds */
 
 /* ---- models.c ---- */
 void fg_h_models_register(fg_req *r, fg_resp *out);
@@ -387,6 +430,11 @@ void fg_h_page_css(fg_req *r, fg_resp *out);
 /* The Content-Security-Policy and other browser headers of the page's
  * files (set when fg_resp.page). */
 void fg_page_headers(struct MHD_Response *mr);
+/* 200 with a copy of an embedded document (libmicrohttpd frees the body
+ * it is given; the documents are fetched rarely); false after a 503 when
+ * the copy cannot be made (page.c). */
+bool fg_resp_embedded(fg_resp *out, const unsigned char *doc, size_t len,
+                      const char *type);
 
 /* ---- registry.c: what runs here, by id; the watcher ---- */
 fg_status fg_registry_new(fg_store *store, fg_registry **out, fg_problem *p);
@@ -415,13 +463,6 @@ void fg_registry_free(fg_registry *g);
 #define FG_KEY_PREFIX "fgk_"
 #define FG_KEY_BYTES 32
 
-typedef enum fg_role {
-  FG_ROLE_NONE = 0, /* open routes */
-  FG_ROLE_READER,
-  FG_ROLE_CHECKER,
-  FG_ROLE_AUTHOR,
-  FG_ROLE_ADMIN
-} fg_role;
 
 typedef enum fg_auth_result {
   FG_AUTH_OK = 0,
@@ -431,16 +472,9 @@ typedef enum fg_auth_result {
 
 const char *fg_role_name(fg_role r);
 fg_role fg_role_parse(const char *s); /* FG_ROLE_NONE when unknown */
-/* The least role for `method` on router pattern `route`. */
-fg_role fg_route_role(const char *method, const char *route);
-/* [A-Za-z0-9][A-Za-z0-9_.-]{0,63} */
-bool fg_key_name_valid(const char *s);
 /* hash (FG_STORE_KEY_HASH bytes) = SHA-256(salt || text). */
 fg_status fg_key_hash(const char *text, const uint8_t *salt, uint8_t *hash,
                       fg_problem *p);
-/* A new key's text (cap >= 64) and its salt and hash in *k. */
-fg_status fg_key_generate(char *text, size_t cap, fg_store_key *k,
-                          fg_problem *p);
 
 fg_status fg_keyring_new(fg_store *store, fg_keyring **out, fg_problem *p);
 void fg_keyring_free(fg_keyring *k);

@@ -21,9 +21,8 @@
  *   checker  POST checks and comparisons, GET scenarios, DELETE a check
  *            or a comparison
  *   author   POST /v1/models, DELETE /v1/models/{name}
- *   admin    everything else (a method on a route not listed below)
- *   A route added to router.c without a line in `policy` is reader when
- *   read with GET and admin otherwise: new routes fail closed.
+ *   admin    everything else
+ *   Each route's least role is a column of router.c's one route table.
  *
  * Enforcement: keys are required as soon as the store holds a live key,
  *   and always when the daemon listens on a non-loopback address without
@@ -49,12 +48,6 @@
 #include <strings.h>
 #include <sys/random.h>
 
-/* Seconds the cache of live keys is used before it is reloaded. */
-#define FG_KEYS_REFRESH_S 1.0
-/* Least seconds between two reloads caused by unknown keys: bounds the
- * store reads a client sending wrong keys can cause. */
-#define FG_KEYS_MISS_REFRESH_S 0.05
-
 /* ---- roles ---- */
 
 const char *fg_role_name(fg_role r) {
@@ -74,42 +67,8 @@ fg_role fg_role_parse(const char *s) {
   return FG_ROLE_NONE;
 }
 
-typedef struct policy_entry {
-  const char *method, *route;
-  fg_role role;
-} policy_entry;
-
-/* Every route whose least role is not the default (GET: reader, other
- * methods: admin). Patterns as in router.c. */
-static const policy_entry policy[] = {
-    {"GET", "/v1/health", FG_ROLE_NONE},
-    {"GET", "/v1/ready", FG_ROLE_NONE},
-    {"GET", "/metrics", FG_ROLE_NONE},
-    {"GET", "/v1/openapi.json", FG_ROLE_NONE},
-    {"GET", "/", FG_ROLE_NONE},
-    {"GET", "/page/app.js", FG_ROLE_NONE},
-    {"GET", "/page/app.css", FG_ROLE_NONE},
-    {"GET", "/v1/models/{name}/scenarios", FG_ROLE_CHECKER},
-    {"POST", "/v1/models/{name}/sample-models", FG_ROLE_CHECKER},
-    {"POST", "/v1/models/{name}/checks", FG_ROLE_CHECKER},
-    {"POST", "/v1/models/{name}/versions/{n}/checks", FG_ROLE_CHECKER},
-    {"POST", "/v1/models/{name}/comparisons", FG_ROLE_CHECKER},
-    {"DELETE", "/v1/checks/{id}", FG_ROLE_CHECKER},
-    {"GET", "/v1/comparisons/{id}", FG_ROLE_READER},
-    {"GET", "/v1/checks/{id}/scenarios/{index}", FG_ROLE_READER},
-    {"POST", "/v1/checks/{id}/replay", FG_ROLE_CHECKER},
-    {"DELETE", "/v1/comparisons/{id}", FG_ROLE_CHECKER},
-    {"POST", "/v1/models", FG_ROLE_AUTHOR},
-    {"DELETE", "/v1/models/{name}", FG_ROLE_AUTHOR},
-};
-
-fg_role fg_route_role(const char *method, const char *route) {
-  bool read = strcmp(method, "GET") == 0 || strcmp(method, "HEAD") == 0;
-  const char *m = read ? "GET" : method;
-  for (size_t i = 0; i < sizeof policy / sizeof *policy; i++)
-    if (strcmp(policy[i].method, m) == 0 && strcmp(policy[i].route, route) == 0)
-      return policy[i].role;
-  return read ? FG_ROLE_READER : FG_ROLE_ADMIN;
+bool fg_key_role_valid(const char *s) {
+  return fg_role_parse(s) != FG_ROLE_NONE;
 }
 
 /* ---- keys ---- */
@@ -210,7 +169,7 @@ static bool reload_locked(fg_keyring *k) {
   fg_problem_init(&p);
   fg_store_key *keys = NULL;
   int n = 0;
-  k->loaded_at = fg_http_now();
+  k->loaded_at = fg_time_monotonic();
   if (fg_store_list_keys(k->store, true, &keys, &n, &p) != FG_OK) {
     fg_log_msg(FG_LOG_WARN, "keys_unreadable",
                "reading the live keys: %s; %s", p.detail,
@@ -237,7 +196,7 @@ fg_status fg_keyring_new(fg_store *store, fg_keyring **out, fg_problem *p) {
     return st;
   }
   k->loaded = true;
-  k->loaded_at = fg_http_now();
+  k->loaded_at = fg_time_monotonic();
   *out = k;
   return FG_OK;
 }
@@ -251,7 +210,7 @@ void fg_keyring_free(fg_keyring *k) {
 
 int fg_keyring_live(fg_keyring *k) {
   pthread_mutex_lock(&k->lock);
-  if (fg_http_now() - k->loaded_at >= FG_KEYS_REFRESH_S) reload_locked(k);
+  if (fg_time_monotonic() - k->loaded_at >= FG_KEYS_REFRESH_S) reload_locked(k);
   int n = k->loaded ? k->n : -1;
   pthread_mutex_unlock(&k->lock);
   return n;
@@ -276,7 +235,7 @@ fg_auth_result fg_keyring_check(fg_keyring *k, const char *text,
   name[0] = '\0';
   *role = FG_ROLE_NONE;
   pthread_mutex_lock(&k->lock);
-  double age = fg_http_now() - k->loaded_at;
+  double age = fg_time_monotonic() - k->loaded_at;
   if (age >= FG_KEYS_REFRESH_S) reload_locked(k);
   if (!k->loaded) {
     pthread_mutex_unlock(&k->lock);
@@ -284,7 +243,7 @@ fg_auth_result fg_keyring_check(fg_keyring *k, const char *text,
   }
   int i = match_locked(k, text);
   if (i < 0 && age < FG_KEYS_REFRESH_S &&
-      fg_http_now() - k->loaded_at >= FG_KEYS_MISS_REFRESH_S &&
+      fg_time_monotonic() - k->loaded_at >= FG_KEYS_MISS_REFRESH_S &&
       reload_locked(k))
     i = match_locked(k, text); /* perhaps added since the last reload */
   fg_auth_result res = FG_AUTH_WRONG;
@@ -363,7 +322,7 @@ bool fg_auth_request(fg_req *r, bool routed, fg_resp *out) {
   /* An unknown path or method needs some key, so that only key holders
    * learn which paths exist (404/405). */
   fg_role need =
-      routed && r->route ? fg_route_role(r->method, r->route) : FG_ROLE_READER;
+      routed && r->route ? r->role : FG_ROLE_READER;
   if (need == FG_ROLE_NONE) return true;
   int live = fg_keyring_live(srv->keys);
   if (live < 0) {

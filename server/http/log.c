@@ -44,21 +44,6 @@ bool fg_log_enabled(fg_log_level level) {
   return level >= threshold;
 }
 
-double fg_http_now(void) {
-  struct timespec ts;
-  clock_gettime(CLOCK_MONOTONIC, &ts);
-  return (double)ts.tv_sec + (double)ts.tv_nsec * 1e-9;
-}
-
-static void wall_time(char buf[48]) {
-  struct timespec ts;
-  struct tm tm;
-  clock_gettime(CLOCK_REALTIME, &ts);
-  gmtime_r(&ts.tv_sec, &tm);
-  char base[32];
-  strftime(base, sizeof base, "%Y-%m-%dT%H:%M:%S", &tm);
-  snprintf(buf, 48, "%s.%03dZ", base, (int)(ts.tv_nsec / 1000000L) % 1000);
-}
 
 void fg_log_emit(fg_log_level level, cJSON *obj) {
   if (obj && !fg_log_enabled(level)) {
@@ -72,7 +57,7 @@ void fg_log_force(fg_log_level level, cJSON *obj) {
   if (!obj) return;
   /* time and level first, so that the lines read well */
   char now[48];
-  wall_time(now);
+  fg_time_now_rfc3339_ms(now, 48);
   cJSON *line = cJSON_CreateObject();
   if (!line) {
     cJSON_Delete(obj);

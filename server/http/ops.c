@@ -76,26 +76,21 @@ void fg_h_limits(fg_req *r, fg_resp *out) {
   cJSON *o = cJSON_CreateObject();
   cJSON *arr = o ? cJSON_AddArrayToObject(o, "limits") : NULL;
   if (arr) {
-#define FG_ADD_LIMIT(name, value) add_limit(arr, name, (double)(value));
+#define FG_ADD_LIMIT(id, name, value) add_limit(arr, name, (double)(value));
     FG_LIMITS_TABLE(FG_ADD_LIMIT)
 #undef FG_ADD_LIMIT
-    add_limit(arr, "max_body", (double)cfg->max_body);
-    add_limit(arr, "max_samples", (double)cfg->limits.max_samples);
-    add_limit(arr, "max_scenarios", (double)cfg->limits.max_scenarios);
-    add_limit(arr, "max_wait", cfg->limits.max_wait_s);
-    add_limit(arr, "max_check_time", cfg->max_check_s);
-    add_limit(arr, "samples_default", (double)FG_SAMPLES_DEFAULT);
-    add_limit(arr, "seed_max", (double)FG_SEED_MAX);
-    add_limit(arr, "list_limit", FG_LIST_LIMIT_MAX);
-    add_limit(arr, "workers", cfg->workers);
-    add_limit(arr, "chunk", cfg->chunk);
-    add_limit(arr, "queue", cfg->queue);
-    add_limit(arr, "max_connections", cfg->max_connections);
-    add_limit(arr, "max_connections_per_client",
-              cfg->max_connections_per_client);
-    add_limit(arr, "connection_overflow", FG_HTTP_CONNECTIONS_OVERFLOW);
-    add_limit(arr, "header_timeout", FG_HTTP_HEADER_TIMEOUT_S);
-    add_limit(arr, "idle_timeout", FG_HTTP_IDLE_TIMEOUT_S);
+#define SETTING(id, value) add_limit(arr, fg_limit_name(FG_LIMIT_##id), value)
+    SETTING(MAX_BODY, (double)cfg->max_body);
+    SETTING(MAX_SAMPLES, (double)cfg->limits.max_samples);
+    SETTING(MAX_SCENARIOS, (double)cfg->limits.max_scenarios);
+    SETTING(MAX_WAIT, cfg->limits.max_wait_s);
+    SETTING(MAX_CHECK_TIME, cfg->max_check_s);
+    SETTING(WORKERS, cfg->workers);
+    SETTING(CHUNK, cfg->chunk);
+    SETTING(QUEUE, cfg->queue);
+    SETTING(MAX_CONNECTIONS, cfg->max_connections);
+    SETTING(MAX_CONNECTIONS_PER_CLIENT, cfg->max_connections_per_client);
+#undef SETTING
   }
   fg_resp_json(out, 200, o);
 }

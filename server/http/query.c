@@ -28,29 +28,51 @@ typedef struct query_walk {
   bool bad;
 } query_walk;
 
-static enum MHD_Result take(void *cls, enum MHD_ValueKind kind,
-                            const char *key, const char *value) {
-  query_walk *w = cls;
+/* One parameter (key may be NULL: an empty name) into its slot. */
+static void take_one(query_walk *w, const char *key, const char *value) {
   const char *k = key ? key : "";
   for (int i = 0; i < w->n; i++) {
     if (strcmp(k, w->names[i]) != 0) continue;
     if (!*w->slots[i]) *w->slots[i] = value ? value : "";
-    return MHD_YES;
+    return;
   }
   if (!w->bad) {
     w->bad = true;
     snprintf(w->unknown, FG_HTTP_PARAM_NAME_MAX, "%s", k);
   }
+}
+
+static enum MHD_Result take(void *cls, enum MHD_ValueKind kind,
+                            const char *key, const char *value) {
+  (void)kind;
+  take_one(cls, key, value);
   return MHD_YES;
+}
+
+static void walk_init(query_walk *w, const char *const *names,
+                      const char **const *slots, int n,
+                      char unknown[FG_HTTP_PARAM_NAME_MAX]) {
+  unknown[0] = '\0';
+  for (int i = 0; i < n; i++) *slots[i] = NULL;
+  *w = (query_walk){.names = names, .slots = slots, .n = n, .unknown = unknown};
 }
 
 bool fg_http_query_args(fg_req *r, const char *const *names,
                         const char **const *slots, int n,
                         char unknown[FG_HTTP_PARAM_NAME_MAX]) {
-  unknown[0] = '\0';
-  for (int i = 0; i < n; i++) *slots[i] = NULL;
-  query_walk w = {.names = names, .slots = slots, .n = n, .unknown = unknown};
+  query_walk w;
+  walk_init(&w, names, slots, n, unknown);
   MHD_get_connection_values(r->conn, MHD_GET_ARGUMENT_KIND, take, &w);
+  return !w.bad;
+}
+
+bool fg_http_query_pairs(const char *const *keys, const char *const *values,
+                         int npairs, const char *const *names,
+                         const char **const *slots, int n,
+                         char unknown[FG_HTTP_PARAM_NAME_MAX]) {
+  query_walk w;
+  walk_init(&w, names, slots, n, unknown);
+  for (int i = 0; i < npairs; i++) take_one(&w, keys[i], values[i]);
   return !w.bad;
 }
 

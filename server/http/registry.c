@@ -43,24 +43,6 @@
 #include <string.h>
 #include <time.h>
 
-/* How often the watcher looks for ended checks: a 202'd check is recorded
- * at most this late. */
-#define FG_REGISTRY_POLL_MS 50
-/* How long cancelled checks get to be recorded at shutdown: the engine
- * ends a cancelled check within FG_STUCK_WORKER_S whatever its workers
- * do, and the store write follows. */
-#define FG_REGISTRY_CANCEL_WAIT_S (FG_STUCK_WORKER_S + 2.0)
-/* On a shared store (several replicas), how often the running checks'
- * bodies are written to the store so that another replica answers a GET
- * with progress at most this old. */
-#define FG_REGISTRY_PROGRESS_MS 1000
-/* How long after a failed store write of a check's end it is tried again
- * (the check stays listed, so GET still answers with its final body). */
-#define FG_REGISTRY_RETRY_MS 1000
-/* Entries one round of the watcher handles, at most (the rest wait for
- * the next round). */
-#define FG_REGISTRY_BATCH 64
-
 typedef struct fg_entry {
   struct fg_entry *next;
   fg_job *job; /* one of job or cmp */
@@ -79,20 +61,6 @@ struct fg_registry {
   bool watcher_started;
 };
 
-static void deadline_in(struct timespec *ts, double seconds) {
-  clock_gettime(CLOCK_REALTIME, ts);
-  double whole = (double)(long)seconds;
-  ts->tv_sec += (time_t)whole;
-  ts->tv_nsec += (long)((seconds - whole) * 1e9);
-  if (ts->tv_nsec >= 1000000000L) {
-    ts->tv_sec++;
-    ts->tv_nsec -= 1000000000L;
-  }
-}
-
-static double now_s(void) {
-  return fg_time_monotonic();
-}
 
 static const char *entry_id(const fg_entry *e) {
   return e->job ? fg_job_id(e->job) : fg_comparison_id(e->cmp);
@@ -179,7 +147,7 @@ static bool round_once(fg_registry *g, double *next_retry) {
   fg_job *jobs[FG_REGISTRY_BATCH];
   fg_comparison *cmps[FG_REGISTRY_BATCH];
   int nj = 0, nc = 0;
-  double now = now_s();
+  double now = fg_time_monotonic();
   bool retry_due = now >= *next_retry;
   pthread_mutex_lock(&g->lock);
   for (fg_entry *e = g->head; e; e = e->next) {
@@ -220,19 +188,20 @@ static bool round_once(fg_registry *g, double *next_retry) {
 static void *watch(void *arg) {
   fg_registry *g = arg;
   const bool shared = fg_store_shared(g->store);
-  double last_note = now_s(), next_retry = 0;
+  double last_note = fg_time_monotonic(), next_retry = 0;
   pthread_mutex_lock(&g->lock);
   while (!g->stop) {
     pthread_mutex_unlock(&g->lock);
-    if (shared && now_s() - last_note >= FG_REGISTRY_PROGRESS_MS / 1000.0) {
+    if (shared &&
+        fg_time_monotonic() - last_note >= FG_REGISTRY_PROGRESS_MS / 1000.0) {
       note_progress(g);
-      last_note = now_s();
+      last_note = fg_time_monotonic();
     }
     bool did = round_once(g, &next_retry);
     pthread_mutex_lock(&g->lock);
     if (did || g->stop) continue;
     struct timespec ts;
-    deadline_in(&ts, FG_REGISTRY_POLL_MS / 1000.0);
+    fg_clock_abs_deadline(&ts, FG_REGISTRY_POLL_MS / 1000.0);
     pthread_cond_timedwait(&g->wake, &g->lock, &ts);
   }
   pthread_mutex_unlock(&g->lock);
@@ -359,7 +328,7 @@ void fg_registry_cancel_all(fg_registry *g) {
 /* Wait (under lock) until no entry is listed or `seconds` pass. */
 static void wait_empty(fg_registry *g, double seconds) {
   struct timespec ts;
-  deadline_in(&ts, seconds);
+  fg_clock_abs_deadline(&ts, seconds);
   while (g->head) {
     pthread_cond_signal(&g->wake);
     if (pthread_cond_timedwait(&g->changed, &g->lock, &ts) == ETIMEDOUT) break;

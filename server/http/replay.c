@@ -127,7 +127,7 @@ cJSON *fg_replay_differences(const cJSON *orig, const cJSON *rep) {
 }
 
 /* Limits for re-reading a request that was accepted once: the hard caps. */
-static void replay_limits(fg_request_limits *lim) {
+void fg_replay_limits(fg_request_limits *lim) {
   fg_request_limits_default(lim);
   lim->max_samples = FG_MAX_SAMPLES_HARD;
   lim->max_scenarios = FG_HTTP_MAX_SCENARIOS_HARD;
@@ -135,7 +135,7 @@ static void replay_limits(fg_request_limits *lim) {
 }
 
 /* The stored check's counts must exist: it ended with a result body. */
-static bool has_counts(const fg_store_check *c, fg_problem *p) {
+bool fg_replay_has_counts(const fg_store_check *c, fg_problem *p) {
   fg_check_state s = fg_check_state_parse(c->status);
   if (s == FG_CHECK_RUNNING) {
     fg_problem_set(p, FG_ECONFLICT,
@@ -153,7 +153,7 @@ static bool has_counts(const fg_store_check *c, fg_problem *p) {
   return true;
 }
 
-static cJSON *answer(const char *orig_id, const char *replay_id,
+cJSON *fg_replay_answer(const char *orig_id, const char *replay_id,
                      const cJSON *orig_body, cJSON *rep_body, bool ended) {
   cJSON *o = cJSON_CreateObject();
   cJSON_AddStringToObject(o, "check", orig_id);
@@ -171,42 +171,61 @@ static cJSON *answer(const char *orig_id, const char *replay_id,
   return o;
 }
 
+fg_status fg_replay_load(fg_server *srv, fg_store *st, const char *id,
+                         fg_replay_source *src, fg_problem *p) {
+  memset(src, 0, sizeof *src);
+  if (fg_store_get_check(st, id, &src->check, p) != FG_OK) return p->status;
+  src->have_check = true;
+  if (!fg_replay_has_counts(&src->check, p)) return p->status;
+  src->orig = cJSON_Parse(src->check.result);
+  if (!src->orig)
+    return fg_problem_set(p, FG_EINTERNAL,
+                          "check %s: its stored result is not JSON", id);
+  const fg_store_check *c = &src->check;
+  if (srv) {
+    if (fg_http_load_model(srv, c->model, c->version, &src->version,
+                           &src->model, p) != FG_OK)
+      return p->status;
+  } else if (fg_store_get_version(st, c->model, c->version, &src->version,
+                                  p) != FG_OK ||
+             fg_model_compile(src->version.document,
+                              strlen(src->version.document), &src->model,
+                              p) != FG_OK) {
+    return p->status;
+  }
+  if (fg_json_parse(c->request, strlen(c->request), &src->body, p) != FG_OK)
+    return p->status;
+  fg_request_limits lim;
+  fg_replay_limits(&lim);
+  if (fg_request_parse(src->model, src->body, &lim, &src->req, p) != FG_OK)
+    return p->status;
+  src->have_req = true;
+  src->req.seed = c->seed;
+  src->req.seed_given = true;
+  return FG_OK;
+}
+
+void fg_replay_source_clear(fg_replay_source *src) {
+  if (src->have_req) fg_request_free(&src->req);
+  cJSON_Delete(src->body);
+  cJSON_Delete(src->orig);
+  if (src->model) fg_model_unref(src->model);
+  fg_store_version_clear(&src->version);
+  if (src->have_check) fg_store_check_clear(&src->check);
+  memset(src, 0, sizeof *src);
+}
+
 void fg_h_check_replay(fg_req *r, fg_resp *out) {
   fg_server *srv = r->srv;
   const char *id = r->params[0];
   fg_problem p;
   fg_problem_init(&p);
-  fg_store_check c;
-  if (fg_store_get_check(srv->store, id, &c, &p) != FG_OK) {
-    fg_resp_problem(out, &p, 0);
-    return;
-  }
-  fg_store_version v;
-  memset(&v, 0, sizeof v);
-  fg_model *m = NULL;
-  cJSON *body = NULL, *orig = NULL;
-  fg_check_request req;
-  bool have_req = false;
+  fg_replay_source src;
   fg_job *job = NULL;
-  if (!has_counts(&c, &p)) goto fail;
-  orig = cJSON_Parse(c.result);
-  if (!orig) {
-    fg_problem_set(&p, FG_EINTERNAL, "check %s: its stored result is not "
-                                     "JSON",
-                   id);
-    goto fail;
-  }
-  if (fg_http_load_model(srv, c.model, c.version, &v, &m, &p) != FG_OK)
-    goto fail;
-  if (fg_json_parse(c.request, strlen(c.request), &body, &p) != FG_OK)
-    goto fail;
-  fg_request_limits lim;
-  replay_limits(&lim);
-  if (fg_request_parse(m, body, &lim, &req, &p) != FG_OK) goto fail;
-  have_req = true;
-  req.seed = c.seed;
-  req.seed_given = true;
-  req.max_seconds = srv->cfg.max_check_s;
+  if (fg_replay_load(srv, srv->store, id, &src, &p) != FG_OK) goto fail;
+  const fg_store_check *cs = &src.check;
+  fg_check_request *req = &src.req;
+  req->max_seconds = srv->cfg.max_check_s;
   if (fg_pool_queued(srv->pool) >= srv->cfg.queue) {
     fg_problem_set(&p, FG_EBUSY,
                    "the check queue is full (%d checks waiting or running); "
@@ -214,8 +233,8 @@ void fg_h_check_replay(fg_req *r, fg_resp *out) {
                    srv->cfg.queue);
     goto fail;
   }
-  if (fg_job_start_replay(srv, &v, m, &req, r->key_name, c.id, &job, &p) !=
-      FG_OK)
+  if (fg_job_start_replay(srv, &src.version, src.model, req, r->key_name,
+                          cs->id, &job, &p) != FG_OK)
     goto fail;
   snprintf(out->location, sizeof out->location, "/v1/checks/%s",
            fg_job_id(job));
@@ -227,128 +246,21 @@ void fg_h_check_replay(fg_req *r, fg_resp *out) {
       fg_resp_problem(out, &sp, 0);
       goto done;
     }
-    fg_resp_json(out, 201,
-                 answer(c.id, fg_job_id(job), orig, fg_job_body(job), true));
+    fg_resp_json(
+        out, 201,
+        fg_replay_answer(cs->id, fg_job_id(job), src.orig, fg_job_body(job),
+                         true));
   } else {
     fg_job_detach(job);
-    fg_resp_json(out, 202,
-                 answer(c.id, fg_job_id(job), orig, fg_job_body(job), false));
+    fg_resp_json(
+        out, 202,
+        fg_replay_answer(cs->id, fg_job_id(job), src.orig, fg_job_body(job),
+                         false));
   }
   goto done;
 fail:
   fg_resp_problem(out, &p, 0);
 done:
   fg_job_unref(job);
-  if (have_req) fg_request_free(&req);
-  cJSON_Delete(body);
-  cJSON_Delete(orig);
-  if (m) fg_model_unref(m);
-  fg_store_version_clear(&v);
-  fg_store_check_clear(&c);
-}
-
-/* ---- feasgate replay ---- */
-
-static void print_problem(const char *what, const fg_problem *p) {
-  fprintf(stderr, "feasgate replay: %s: %s%s%s\n", what, p->title,
-          p->detail[0] ? ": " : "", p->detail);
-  for (int i = 0; i < p->nitems; i++)
-    fprintf(stderr, "  %s: %s\n",
-            p->items[i].pointer[0] ? p->items[i].pointer : "(body)",
-            p->items[i].message);
-}
-
-int fg_replay_command(int argc, char **argv) {
-  const char *url = getenv("FEASGATE_STORE"), *id = NULL;
-  for (int i = 1; i < argc; i++) {
-    if (strcmp(argv[i], "--help") == 0) {
-      printf("usage: feasgate replay --store STORE CHECK_ID\n"
-             "Re-runs a logged check's request on its model version and "
-             "prints whether\nevery count is reproduced (exit 0) or not "
-             "(exit 1).\n");
-      return 0;
-    }
-    if (strcmp(argv[i], "--store") == 0 && i + 1 < argc) url = argv[++i];
-    else if (!id && argv[i][0] != '-') id = argv[i];
-    else id = NULL, url = NULL, i = argc;
-  }
-  if (!url || !id) {
-    fprintf(stderr,
-            "usage: feasgate replay --store STORE CHECK_ID\n"
-            "Re-runs a logged check's request on its model version and "
-            "prints whether\nevery count is reproduced (exit 0) or not "
-            "(exit 1).\n");
-    return 3;
-  }
-  fg_problem p;
-  fg_problem_init(&p);
-  fg_store *st = NULL;
-  if (fg_store_open(url, &st, &p) != FG_OK) {
-    char shown[4200];
-    fg_store_url_display(url, shown, sizeof shown);
-    print_problem(shown, &p);
-    return 3;
-  }
-  int rc = 3;
-  fg_store_check c;
-  memset(&c, 0, sizeof c);
-  fg_store_version v;
-  memset(&v, 0, sizeof v);
-  fg_model *m = NULL;
-  cJSON *body = NULL, *orig = NULL;
-  fg_check_request req;
-  bool have_req = false;
-  fg_check *chk = NULL;
-  if (fg_store_get_check(st, id, &c, &p) != FG_OK || !has_counts(&c, &p) ||
-      !(orig = cJSON_Parse(c.result))) {
-    if (!p.status) fg_problem_set(&p, FG_EINTERNAL, "unreadable result");
-    print_problem(id, &p);
-    goto out;
-  }
-  if (fg_store_get_version(st, c.model, c.version, &v, &p) != FG_OK ||
-      fg_model_compile(v.document, strlen(v.document), &m, &p) != FG_OK ||
-      fg_json_parse(c.request, strlen(c.request), &body, &p) != FG_OK) {
-    print_problem(id, &p);
-    goto out;
-  }
-  fg_request_limits lim;
-  replay_limits(&lim);
-  if (fg_request_parse(m, body, &lim, &req, &p) != FG_OK) {
-    print_problem(id, &p);
-    goto out;
-  }
-  have_req = true;
-  req.seed = c.seed;
-  req.seed_given = true;
-  long ncpu = sysconf(_SC_NPROCESSORS_ONLN);
-  int workers = ncpu < 1 ? 1 : ncpu > FG_WORKERS_MAX ? FG_WORKERS_MAX
-                                                     : (int)ncpu;
-  if (fg_check_run_sync(m, &req, workers, FG_CHUNK_DEFAULT, &chk, &p) !=
-      FG_OK) {
-    print_problem(id, &p);
-    goto out;
-  }
-  char now[32];
-  fg_time_now_rfc3339(now, sizeof now);
-  fg_check_meta meta = {.model_version = c.version,
-                        .created_at = now,
-                        .finished_at = now,
-                        .replay_of = c.id};
-  cJSON *res = answer(c.id, NULL, orig, fg_check_result_json(chk, &meta),
-                      true);
-  char *s = cJSON_Print(res);
-  if (s) puts(s);
-  free(s);
-  rc = cJSON_IsTrue(cJSON_GetObjectItem(res, "reproduced")) ? 0 : 1;
-  cJSON_Delete(res);
-out:
-  fg_check_unref(chk);
-  if (have_req) fg_request_free(&req);
-  cJSON_Delete(body);
-  cJSON_Delete(orig);
-  if (m) fg_model_unref(m);
-  fg_store_version_clear(&v);
-  fg_store_check_clear(&c);
-  fg_store_close(st);
-  return rc;
+  fg_replay_source_clear(&src);
 }

@@ -6,7 +6,8 @@
  * into r->params in order. A path that matches some route but not with
  * this method is a 405 with an Allow header listing the methods it has
  * (HEAD is allowed wherever GET is); a path that matches none is a 404.
- * New endpoints go into `routes` below and nowhere else.
+ * New endpoints go into `routes` below and nowhere else: each line
+ * carries the route's least role, so a route cannot exist without one.
  *
  * libmicrohttpd hands us the path already percent-decoded and without the
  * query string.
@@ -23,36 +24,51 @@ typedef struct fg_route_entry {
   const char *method;
   const char *pattern;
   fg_handler *handler;
+  fg_role role; /* the least role that may call it (keys.c enforces) */
 } fg_route_entry;
 
+/* Shorthands for the role column. Roles nest (keys.c): reader < checker
+ * < author < admin; OPEN needs no key at all. */
+#define OPEN FG_ROLE_NONE
+#define READER FG_ROLE_READER
+#define CHECKER FG_ROLE_CHECKER
+#define AUTHOR FG_ROLE_AUTHOR
+#define ADMIN FG_ROLE_ADMIN
+
+/* Every endpoint, once: method, pattern, handler and least role. */
 static const fg_route_entry routes[] = {
-    {"POST", "/v1/models", fg_h_models_register},
-    {"GET", "/v1/models", fg_h_models_list},
-    {"GET", "/v1/models/{name}", fg_h_model_get},
-    {"DELETE", "/v1/models/{name}", fg_h_model_retire},
-    {"GET", "/v1/models/{name}/versions/{n}", fg_h_model_version_get},
-    {"GET", "/v1/models/{name}/scenarios", fg_h_model_scenarios},
-    {"POST", "/v1/models/{name}/sample-models", fg_h_model_sample_models},
-    {"POST", "/v1/models/{name}/checks", fg_h_checks_create},
-    {"POST", "/v1/models/{name}/versions/{n}/checks", fg_h_checks_create},
-    {"POST", "/v1/models/{name}/comparisons", fg_h_comparisons_create},
-    {"GET", "/v1/comparisons/{id}", fg_h_comparison_get},
-    {"DELETE", "/v1/comparisons/{id}", fg_h_comparison_cancel},
-    {"GET", "/v1/checks", fg_h_checks_list},
-    {"GET", "/v1/checks/{id}", fg_h_check_get},
-    {"GET", "/v1/checks/{id}/scenarios/{index}", fg_h_check_scenario},
-    {"POST", "/v1/checks/{id}/replay", fg_h_check_replay},
-    {"DELETE", "/v1/checks/{id}", fg_h_check_cancel},
-    {"GET", "/v1/checks/{id}/request", fg_h_check_request},
-    {"GET", "/v1/health", fg_h_health},
-    {"GET", "/v1/ready", fg_h_ready},
-    {"GET", "/v1/limits", fg_h_limits},
-    {"GET", "/v1/openapi.json", fg_h_openapi},
-    {"GET", "/metrics", fg_h_metrics},
-    {"GET", "/v1/sample-size", fg_h_sample_size},
-    {"GET", "/", fg_h_page},
-    {"GET", "/page/app.js", fg_h_page_js},
-    {"GET", "/page/app.css", fg_h_page_css},
+    {"POST", "/v1/models", fg_h_models_register, AUTHOR},
+    {"GET", "/v1/models", fg_h_models_list, READER},
+    {"GET", "/v1/models/{name}", fg_h_model_get, READER},
+    {"DELETE", "/v1/models/{name}", fg_h_model_retire, AUTHOR},
+    {"GET", "/v1/models/{name}/versions/{n}", fg_h_model_version_get, READER},
+    {"GET", "/v1/models/{name}/scenarios", fg_h_model_scenarios, CHECKER},
+    {"POST", "/v1/models/{name}/sample-models", fg_h_model_sample_models,
+     CHECKER},
+    {"POST", "/v1/models/{name}/checks", fg_h_checks_create, CHECKER},
+    {"POST", "/v1/models/{name}/versions/{n}/checks", fg_h_checks_create,
+     CHECKER},
+    {"POST", "/v1/models/{name}/comparisons", fg_h_comparisons_create,
+     CHECKER},
+    {"GET", "/v1/comparisons/{id}", fg_h_comparison_get, READER},
+    {"DELETE", "/v1/comparisons/{id}", fg_h_comparison_cancel, CHECKER},
+    {"GET", "/v1/checks", fg_h_checks_list, READER},
+    {"GET", "/v1/checks/{id}", fg_h_check_get, READER},
+    {"GET", "/v1/checks/{id}/scenarios/{index}", fg_h_check_scenario, READER},
+    {"POST", "/v1/checks/{id}/replay", fg_h_check_replay, CHECKER},
+    {"DELETE", "/v1/checks/{id}", fg_h_check_cancel, CHECKER},
+    {"GET", "/v1/checks/{id}/request", fg_h_check_request, READER},
+    {"GET", "/v1/health", fg_h_health, OPEN},
+    {"GET", "/v1/ready", fg_h_ready, OPEN},
+    {"GET", "/v1/limits", fg_h_limits, READER},
+    {"GET", "/v1/openapi.json", fg_h_openapi, OPEN},
+    {"GET", "/metrics", fg_h_metrics, OPEN},
+    {"GET", "/v1/sample-size", fg_h_sample_size, READER},
+    /* the page: static text; the API calls it makes carry the key a
+     * person types in */
+    {"GET", "/", fg_h_page, OPEN},
+    {"GET", "/page/app.js", fg_h_page_js, OPEN},
+    {"GET", "/page/app.css", fg_h_page_css, OPEN},
 };
 
 #define NROUTES (sizeof routes / sizeof *routes)
@@ -112,6 +128,7 @@ fg_handler *fg_route(fg_req *r, fg_resp *out) {
     if (method_is(routes[i].method, r->method)) {
       match(routes[i].pattern, r->path, &r->nparams, r->params);
       r->route = routes[i].pattern;
+      r->role = routes[i].role;
       return routes[i].handler;
     }
     path_known = true;
@@ -142,4 +159,12 @@ fg_handler *fg_route(fg_req *r, fg_resp *out) {
   snprintf(p.detail, sizeof p.detail, "no resource at %.200s", r->path);
   fg_resp_problem(out, &p, 404);
   return NULL;
+}
+
+fg_role fg_route_role(const char *method, const char *route) {
+  for (size_t i = 0; i < NROUTES; i++)
+    if (method_is(routes[i].method, method) &&
+        strcmp(routes[i].pattern, route) == 0)
+      return routes[i].role;
+  return FG_ROLE_ADMIN; /* not a route: fail closed */
 }

@@ -106,7 +106,7 @@ void fg_h_model_scenarios(fg_req *r, fg_resp *out) {
                    "query parameter 'count': %llu scenarios exceed "
                    "max_scenarios = %llu",
                    (unsigned long long)sp.count, (unsigned long long)max);
-    p.limit_name = "max_scenarios";
+    p.limit_name = fg_limit_name(FG_LIMIT_MAX_SCENARIOS);
     p.limit_value = (double)max;
     fg_resp_problem(out, &p, 400);
     return;

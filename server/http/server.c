@@ -30,9 +30,9 @@
  *   The completion callback logs the request (method, route, status,
  *   duration_ms) and frees the fg_req.
  *
- *   We create the listening socket ourselves (so port 0 can be resolved to
- *   the bound address, which is the first log line) and hand it to
- *   libmicrohttpd with MHD_OPTION_LISTEN_SOCKET. A listener that is not
+ *   We create the listening socket ourselves (listen.c: so port 0 can be
+ *   resolved to the bound address, which is the first log line) and hand
+ *   it to libmicrohttpd with MHD_OPTION_LISTEN_SOCKET. A listener that is not
  *   loopback (127.0.0.0/8, ::1) is refused (exit 3) while the store holds
  *   no live key, unless --allow-keyless; without --allow-keyless it then
  *   also keeps requiring keys should every key be revoked later.
@@ -78,9 +78,6 @@
 
 
 /* ---- responses ---- */
-
-/* Bytes libmicrohttpd asks a streamed body for at once. */
-#define FG_HTTP_STREAM_BLOCK (32 * 1024)
 
 static void queue(fg_req *r, fg_resp *resp) {
   struct MHD_Response *mr;
@@ -143,7 +140,7 @@ static void log_request(const fg_req *r, int status) {
     cJSON_AddStringToObject(o, "key", r->key_name);
   else
     cJSON_AddNullToObject(o, "key");
-  double ms = (fg_http_now() - r->t0) * 1000.0;
+  double ms = (fg_time_monotonic() - r->t0) * 1000.0;
   cJSON_AddNumberToObject(o, "duration_ms", (double)(long)(ms * 1000) / 1000);
   fg_log_emit(status >= 500 ? FG_LOG_WARN : FG_LOG_INFO, o);
 }
@@ -157,9 +154,9 @@ static void respond(fg_req *r, fg_resp *resp) {
 static void refuse_too_large(fg_req *r, const char *how) {
   fg_problem p;
   fg_problem_init(&p);
-  fg_problem_limit(&p, "", "max_body", (double)r->srv->cfg.max_body,
-                   "request body %s the limit max_body = %" PRIu64 " bytes",
-                   how, r->srv->cfg.max_body);
+  fg_problem_limit(&p, "", FG_LIMIT_MAX_BODY, (double)r->srv->cfg.max_body,
+                   "request body %s the limit %s = %" PRIu64 " bytes", how,
+                   fg_limit_name(FG_LIMIT_MAX_BODY), r->srv->cfg.max_body);
   fg_resp resp = {0};
   fg_resp_problem(&resp, &p, 413);
   r->route = "(body too large)";
@@ -198,7 +195,7 @@ static enum MHD_Result on_request(void *cls, struct MHD_Connection *conn,
     if (!r) return MHD_NO; /* libmicrohttpd closes the connection */
     r->srv = srv;
     r->conn = conn;
-    r->t0 = fg_http_now();
+    r->t0 = fg_time_monotonic();
     snprintf(r->method, sizeof r->method, "%s", method);
     if (strlen(url) > FG_HTTP_PATH_MAX) r->path_too_long = true;
     snprintf(r->path, sizeof r->path, "%s", url);
@@ -347,137 +344,13 @@ static void on_mhd_log(void *cls, const char *fmt, va_list ap) {
   fg_log_msg(FG_LOG_WARN, "http_library", "%s", msg);
 }
 
-/* ---- listening socket ---- */
-
-static int bind_listener(const fg_http_config *cfg, char *addr, size_t cap,
-                         char *err, size_t errcap) {
-  struct addrinfo hints = {.ai_family = AF_UNSPEC,
-                           .ai_socktype = SOCK_STREAM,
-                           .ai_flags = AI_PASSIVE | AI_NUMERICSERV};
-  struct addrinfo *res = NULL;
-  char port[8];
-  snprintf(port, sizeof port, "%u", cfg->port);
-  int rc = getaddrinfo(cfg->host, port, &hints, &res);
-  if (rc != 0) {
-    snprintf(err, errcap, "--listen %s:%u: cannot resolve the host: %s",
-             cfg->host, cfg->port, gai_strerror(rc));
-    return -1;
-  }
-  int fd = -1, saved = 0;
-  for (struct addrinfo *ai = res; ai; ai = ai->ai_next) {
-    fd = socket(ai->ai_family, ai->ai_socktype | SOCK_CLOEXEC, ai->ai_protocol);
-    if (fd < 0) {
-      saved = errno;
-      continue;
-    }
-    int one = 1;
-    setsockopt(fd, SOL_SOCKET, SO_REUSEADDR, &one, sizeof one);
-    if (bind(fd, ai->ai_addr, ai->ai_addrlen) == 0 && listen(fd, 128) == 0)
-      break;
-    saved = errno;
-    close(fd);
-    fd = -1;
-  }
-  freeaddrinfo(res);
-  if (fd < 0) {
-    snprintf(err, errcap, "--listen %s:%u: cannot listen: %s", cfg->host,
-             cfg->port, strerror(saved));
-    return -1;
-  }
-  struct sockaddr_storage ss;
-  socklen_t len = sizeof ss;
-  char host[INET6_ADDRSTRLEN] = "?";
-  unsigned bound = 0;
-  if (getsockname(fd, (struct sockaddr *)&ss, &len) == 0) {
-    if (ss.ss_family == AF_INET) {
-      struct sockaddr_in *in = (struct sockaddr_in *)&ss;
-      inet_ntop(AF_INET, &in->sin_addr, host, sizeof host);
-      bound = ntohs(in->sin_port);
-      snprintf(addr, cap, "%s:%u", host, bound);
-    } else if (ss.ss_family == AF_INET6) {
-      struct sockaddr_in6 *in6 = (struct sockaddr_in6 *)&ss;
-      inet_ntop(AF_INET6, &in6->sin6_addr, host, sizeof host);
-      bound = ntohs(in6->sin6_port);
-      snprintf(addr, cap, "[%s]:%u", host, bound);
-    }
-  }
-  return fd;
-}
-
-/* True when the socket is bound to a loopback address (127.0.0.0/8, ::1,
- * or ::ffff:127.x.y.z). */
-static bool bound_to_loopback(int fd) {
-  struct sockaddr_storage ss;
-  socklen_t len = sizeof ss;
-  if (getsockname(fd, (struct sockaddr *)&ss, &len) != 0) return false;
-  if (ss.ss_family == AF_INET) {
-    const struct sockaddr_in *in = (const struct sockaddr_in *)&ss;
-    return (ntohl(in->sin_addr.s_addr) >> 24) == 127;
-  }
-  if (ss.ss_family == AF_INET6) {
-    const struct in6_addr *a = &((const struct sockaddr_in6 *)&ss)->sin6_addr;
-    if (IN6_IS_ADDR_LOOPBACK(a)) return true;
-    return IN6_IS_ADDR_V4MAPPED(a) && a->s6_addr[12] == 127;
-  }
-  return false;
-}
-
-/* A whole PEM file as a NUL-terminated string; NULL with err set. */
-static char *read_pem(const char *flag, const char *path, char *err,
-                      size_t errcap) {
-  FILE *f = fopen(path, "rb");
-  if (!f) {
-    snprintf(err, errcap, "%s %s: cannot read it: %s", flag, path,
-             strerror(errno));
-    return NULL;
-  }
-  char *buf = malloc(FG_HTTP_TLS_FILE_MAX + 1);
-  size_t n = buf ? fread(buf, 1, FG_HTTP_TLS_FILE_MAX + 1, f) : 0;
-  bool bad = ferror(f) != 0;
-  fclose(f);
-  if (!buf || bad || n == 0 || n > FG_HTTP_TLS_FILE_MAX) {
-    snprintf(err, errcap, "%s %s: %s", flag, path,
-             !buf  ? "out of memory"
-             : bad ? "read error"
-             : n == 0
-                 ? "the file is empty; expected PEM text"
-                 : "larger than FG_HTTP_TLS_FILE_MAX (1 MiB); expected PEM");
-    free(buf);
-    return NULL;
-  }
-  buf[n] = '\0';
-  if (!strstr(buf, "-----BEGIN ")) {
-    snprintf(err, errcap, "%s %s: no PEM block (-----BEGIN ...) in it",
-             flag, path);
-    free(buf);
-    return NULL;
-  }
-  return buf;
-}
-
-/* Free PEM text after wiping it (the key is a secret). */
-static void free_pem(char *pem) {
-  if (!pem) return;
-  volatile char *v = pem;
-  while (*v)
-    *v++ = '\0';
-  free(pem);
-}
-
 /* ---- the subcommand ---- */
 
 /* Wait up to `seconds` for the requests in flight; how many are left
  * (logged when `say` and some are). */
 static int wait_inflight(fg_server *srv, double seconds, bool say) {
   struct timespec ts;
-  clock_gettime(CLOCK_REALTIME, &ts);
-  double whole = floor(seconds);
-  ts.tv_sec += (time_t)whole;
-  ts.tv_nsec += (long)((seconds - whole) * 1e9);
-  if (ts.tv_nsec >= 1000000000L) {
-    ts.tv_sec++;
-    ts.tv_nsec -= 1000000000L;
-  }
+  fg_clock_abs_deadline(&ts, seconds);
   pthread_mutex_lock(&srv->inflight_lock);
   while (srv->inflight > 0) {
     if (pthread_cond_timedwait(&srv->inflight_cv, &srv->inflight_lock, &ts) ==
@@ -518,12 +391,14 @@ int fg_serve_command(int argc, char **argv) {
       free(srv);
       return 3;
     }
-    tls_cert = read_pem("--tls-cert", srv->cfg.tls_cert, err, sizeof err);
+    tls_cert =
+        fg_http_read_pem("--tls-cert", srv->cfg.tls_cert, err, sizeof err);
     if (tls_cert)
-      tls_key = read_pem("--tls-key", srv->cfg.tls_key, err, sizeof err);
+      tls_key =
+          fg_http_read_pem("--tls-key", srv->cfg.tls_key, err, sizeof err);
     if (!tls_key) {
       fprintf(stderr, "feasgate serve: %s\n", err);
-      free_pem(tls_cert);
+      fg_http_free_pem(tls_cert);
       free(srv);
       return 3;
     }
@@ -551,8 +426,8 @@ int fg_serve_command(int argc, char **argv) {
   fg_problem_init(&p);
   char address[INET6_ADDRSTRLEN + 16] = "";
 
-  listen_fd =
-      bind_listener(&srv->cfg, address, sizeof address, err, sizeof err);
+  listen_fd = fg_http_bind_listener(&srv->cfg, address, sizeof address, err,
+                                    sizeof err);
   if (listen_fd < 0) {
     fg_log_msg(FG_LOG_ERROR, "start_failed", "%s", err);
     goto cleanup;
@@ -577,7 +452,7 @@ int fg_serve_command(int argc, char **argv) {
     goto cleanup;
   }
   srv->keys_required =
-      !srv->cfg.allow_keyless && !bound_to_loopback(listen_fd);
+      !srv->cfg.allow_keyless && !fg_http_bound_to_loopback(listen_fd);
   if (srv->keys_required && fg_keyring_live(srv->keys) == 0) {
     fg_log_msg(FG_LOG_ERROR, "start_refused",
                "--listen %s is not a loopback address and the store %s holds "
@@ -713,8 +588,8 @@ cleanup:
   if (srv->cache) fg_model_cache_free(srv->cache);
   fg_keyring_free(srv->keys);
   fg_store_close(srv->store);
-  free_pem(tls_key);
-  free_pem(tls_cert);
+  fg_http_free_pem(tls_key);
+  fg_http_free_pem(tls_cert);
   if (status == 0) fg_log_msg(FG_LOG_INFO, "stopped", "clean stop");
   pthread_cond_destroy(&srv->inflight_cv);
   pthread_mutex_destroy(&srv->inflight_lock);

@@ -49,7 +49,7 @@ static void *waiter_loop(void *arg) {
   fg_waiter *w = &srv->waiter;
   pthread_mutex_lock(&w->lock);
   while (!w->stop) {
-    double now = fg_http_now();
+    double now = fg_time_monotonic();
     for (fg_req **pp = &w->head; *pp;) {
       fg_req *r = *pp;
       bool ready = r->pending.ready && r->pending.ready(r->pending.ctx);
@@ -66,10 +66,7 @@ static void *waiter_loop(void *arg) {
       }
     }
     struct timespec ts;
-    clock_gettime(CLOCK_REALTIME, &ts);
-    long ns = ts.tv_nsec + (long)FG_HTTP_WAITER_TICK_MS * 1000000L;
-    ts.tv_sec += ns / 1000000000L;
-    ts.tv_nsec = ns % 1000000000L;
+    fg_clock_abs_deadline(&ts, FG_HTTP_WAITER_TICK_MS / 1000.0);
     /* woken early by fg_waiter_add (a new request) and fg_waiter_stop */
     pthread_cond_timedwait(&w->wake, &w->lock, &ts);
   }

@@ -171,7 +171,7 @@ bool fg_model_validate_decisions(const cJSON *arr, fg_model_plan *pl,
     dims += pl->decisions[i].count;
   }
   if (ok && dims > FG_DECISION_DIMS_MAX) {
-    fg_model_limit(cx, "/decisions", "decision_dimensions",
+    fg_model_limit(cx, "/decisions", FG_LIMIT_DECISION_DIMENSIONS,
                    FG_DECISION_DIMS_MAX,
                    "decisions have %ld elements in all; the limit is %d", dims,
                    FG_DECISION_DIMS_MAX);
@@ -249,7 +249,7 @@ bool fg_model_validate_uncertain(const cJSON *arr, fg_model_plan *pl,
     }
   }
   if (ok && dims > FG_UNCERTAIN_DIMS_MAX) {
-    fg_model_limit(cx, "/uncertain", "uncertain_dimensions",
+    fg_model_limit(cx, "/uncertain", FG_LIMIT_UNCERTAIN_DIMENSIONS,
                    FG_UNCERTAIN_DIMS_MAX,
                    "random inputs have %ld dimensions in all; the limit is %d",
                    dims, FG_UNCERTAIN_DIMS_MAX);

@@ -472,7 +472,7 @@ fg_status fg_json_parse(const char *text, size_t len, cJSON **out,
   if (e.offset != SIZE_MAX) {
     if (p) p->byte_offset = (long long)e.offset;
     if (e.status == FG_ELIMIT)
-      return fg_problem_limit(p, "", "json_depth", FG_JSON_MAX_DEPTH,
+      return fg_problem_limit(p, "", FG_LIMIT_JSON_DEPTH, FG_JSON_MAX_DEPTH,
                               "%s at byte %zu", e.message, e.offset);
     return fg_problem_add(p, FG_EINVAL, "", 0, "malformed JSON at byte %zu: %s",
                           e.offset, e.message);

@@ -39,14 +39,14 @@ fg_status fg_model_error(fg_model_ctx *cx, const char *pointer, const char *fmt,
 }
 
 fg_status fg_model_limit(fg_model_ctx *cx, const char *pointer,
-                         const char *name, double value, const char *fmt, ...) {
+                         fg_limit which, double value, const char *fmt, ...) {
   char msg[FG_MESSAGE_MAX];
   va_list ap;
   va_start(ap, fmt);
   vsnprintf(msg, sizeof msg, fmt, ap);
   va_end(ap);
   fg_model_note(cx, FG_ELIMIT);
-  return fg_problem_limit(cx->p, pointer, name, value, "%s", msg);
+  return fg_problem_limit(cx->p, pointer, which, value, "%s", msg);
 }
 
 const char *fg_json_kind(const cJSON *v) {

@@ -38,7 +38,7 @@ void fg_model_note(fg_model_ctx *cx, fg_status st);
 fg_status fg_model_error(fg_model_ctx *cx, const char *pointer, const char *fmt,
                          ...) __attribute__((format(printf, 3, 4)));
 fg_status fg_model_limit(fg_model_ctx *cx, const char *pointer,
-                         const char *name, double value, const char *fmt, ...)
+                         fg_limit which, double value, const char *fmt, ...)
     __attribute__((format(printf, 5, 6)));
 
 /* "a string", "an array", "null", ... for messages ("found a string"). */

@@ -101,7 +101,7 @@ const char *fg_model_member_name(const cJSON *obj, const char *base,
   }
   fg_model_quote(q, sizeof q, n->valuestring);
   if (strlen(n->valuestring) > FG_NAME_MAX && is_alpha_(n->valuestring[0])) {
-    fg_model_limit(cx, ptr, "name_length", FG_NAME_MAX,
+    fg_model_limit(cx, ptr, FG_LIMIT_NAME_LENGTH, FG_NAME_MAX,
                    "name '%s' is %zu characters long; the limit is %d", q,
                    strlen(n->valuestring), FG_NAME_MAX);
     return NULL;
@@ -143,7 +143,7 @@ bool fg_model_member_size(const cJSON *obj, const char *base, int *size,
     return false;
   }
   if (v > FG_VECTOR_MAX) {
-    fg_model_limit(cx, ptr, "vector_length", FG_VECTOR_MAX,
+    fg_model_limit(cx, ptr, FG_LIMIT_VECTOR_LENGTH, FG_VECTOR_MAX,
                    "size %g exceeds the vector length limit %d", v,
                    FG_VECTOR_MAX);
     return false;
@@ -162,7 +162,7 @@ const char *fg_model_expression(const cJSON *v, const char *ptr,
   }
   size_t n = strlen(v->valuestring);
   if (n > FG_EXPR_MAX_LENGTH) {
-    fg_model_limit(cx, ptr, "expression_length", FG_EXPR_MAX_LENGTH,
+    fg_model_limit(cx, ptr, FG_LIMIT_EXPRESSION_LENGTH, FG_EXPR_MAX_LENGTH,
                    "expression is %zu characters long; the limit is %d", n,
                    FG_EXPR_MAX_LENGTH);
     return NULL;
@@ -181,7 +181,7 @@ bool fg_model_members_array(const cJSON *v, const char *ptr, const char *what,
   }
   int n = cJSON_GetArraySize(v);
   if (n > FG_MEMBERS_MAX) {
-    fg_model_limit(cx, ptr, "members", FG_MEMBERS_MAX,
+    fg_model_limit(cx, ptr, FG_LIMIT_MEMBERS, FG_MEMBERS_MAX,
                    "%d entries; the limit is %d", n, FG_MEMBERS_MAX);
     return false;
   }

@@ -80,7 +80,7 @@ static bool validate_definition(const cJSON *d, const char *base,
   }
   int n = cJSON_GetArraySize(elements);
   if (n > FG_VECTOR_MAX) {
-    fg_model_limit(cx, ptr, "vector_length", FG_VECTOR_MAX,
+    fg_model_limit(cx, ptr, FG_LIMIT_VECTOR_LENGTH, FG_VECTOR_MAX,
                    "%d elements; the limit is %d", n, FG_VECTOR_MAX);
     return false;
   }

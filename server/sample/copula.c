@@ -21,7 +21,7 @@
  *                   leading minor that fails. No matrix is stored.
  *   {"ar1": r}      r^|i-j|, factored by the recursion
  *                   x_0 = z_0, x_i = r x_{i-1} + sqrt(1 - r^2) z_i.
- * Members need an inverse CDF (has_icdf in the family table); an input
+ * Members need an inverse CDF (an icdf in the family table); an input
  * belongs to at most one entry.
  *
  * Thread use: parsing in the building thread; draws read only.
@@ -95,7 +95,7 @@ static fg_status parse_members(fg_copula *cop, int index, const cJSON *m,
       continue;
     }
     const fg_family_def *def = fg_family_find(in->family);
-    if (!def || !def->has_icdf) {
+    if (!def || !def->icdf) {
       st = fg_problem_add(p, FG_EINVAL, eptr, 0,
                           "expected a member whose family has an inverse "
                           "CDF, found '%.64s' of family '%s'",
@@ -179,7 +179,7 @@ static fg_status parse_full(fg_copula *cop, const cJSON *c, const char *ptr,
                             fg_problem *p) {
   int d = cop->d;
   if ((double)d * (double)d > FG_TABLE_CELLS_MAX)
-    return fg_problem_limit(p, ptr, "table_cells", FG_TABLE_CELLS_MAX,
+    return fg_problem_limit(p, ptr, FG_LIMIT_TABLE_CELLS, FG_TABLE_CELLS_MAX,
                             "expected a matrix of at most %d cells, found %d "
                             "x %d (use {\"equal\": r} or {\"ar1\": r})",
                             FG_TABLE_CELLS_MAX, d, d);

@@ -515,7 +515,7 @@ fg_status fg_sampler_design_check(const fg_sampler *s, fg_design d,
         in->kind == FG_FAM_SCENARIO_TABLE)
       continue;
     const fg_family_def *def = fg_family_find(in->family);
-    if (def && def->has_icdf) continue;
+    if (def && def->icdf) continue;
     char ptr[FG_POINTER_MAX];
     snprintf(ptr, sizeof ptr, "/uncertain/%d/distribution/family", i);
     st = fg_problem_add(p, FG_EUNSUPPORTED, ptr, 0,
@@ -526,7 +526,7 @@ fg_status fg_sampler_design_check(const fg_sampler *s, fg_design d,
   if (st != FG_OK) return st;
   int max = fg_design_sobol_max_dims();
   if (d == FG_DESIGN_SOBOL && coords > max)
-    return fg_problem_limit(p, "/sampling", "sobol_dimensions", max,
+    return fg_problem_limit(p, "/sampling", FG_LIMIT_SOBOL_DIMENSIONS, max,
                             "expected at most %d Sobol dimensions, found %ld "
                             "(one per uncertain element, one per scenario "
                             "table); use latin_hypercube",

@@ -198,7 +198,7 @@ fg_status fg_family_mvn_parse(fg_input *in, fg_params *c) {
   char mptr[FG_POINTER_MAX];
   fg_pointer_join(mptr, sizeof mptr, c->ptr, mname);
   if ((double)n * (double)n > FG_TABLE_CELLS_MAX) {
-    fg_problem_limit(c->p, mptr, "table_cells", FG_TABLE_CELLS_MAX,
+    fg_problem_limit(c->p, mptr, FG_LIMIT_TABLE_CELLS, FG_TABLE_CELLS_MAX,
                      "expected a matrix of at most %d cells, found %d x %d",
                      FG_TABLE_CELLS_MAX, n, n);
     return c->st = c->st ? c->st : FG_ELIMIT;

@@ -165,7 +165,7 @@ int fg_family_param_list(fg_params *c, const char *name, int required,
     return -1;
   }
   if (n > FG_TABLE_CELLS_MAX) {
-    fg_problem_limit(c->p, ptr, "table_cells", FG_TABLE_CELLS_MAX,
+    fg_problem_limit(c->p, ptr, FG_LIMIT_TABLE_CELLS, FG_TABLE_CELLS_MAX,
                      "expected at most %d values, found %d", FG_TABLE_CELLS_MAX,
                      n);
     if (c->st == FG_OK) c->st = FG_ELIMIT;

@@ -30,6 +30,7 @@
 #include <gsl/gsl_randist.h>
 #include <gsl/gsl_rng.h>
 
+#include <stdbool.h>
 #include <stddef.h>
 #include <stdint.h>
 
@@ -188,14 +189,67 @@ int fg_family_param_list(fg_params *c, const char *name, int required,
 /* Members other than "family" and the names in `allowed` are errors. */
 void fg_family_param_unknown(fg_params *c, const char *const *allowed);
 
-/* Families (family.c). */
+/* The checks of family_check.c: each reports every failing element of
+ * an array parameter, or a scalar once, naming the parameter. */
+int fg_param_is_array(const fg_params *c, const char *name);
+/* v[e] > 0 (strict) or >= 0 */
+void fg_param_positive(fg_params *c, const char *name, const double *v,
+                       int strict);
+/* lo[e] < hi[e] (strict) or <= */
+void fg_param_less(fg_params *c, const char *lo_name, const double *lo,
+                   const char *hi_name, const double *hi, int strict);
+void fg_param_at_most(fg_params *c, const char *name, const double *v,
+                      double max);
+void fg_param_integer(fg_params *c, const char *name, const double *v);
+/* lo <= v[e] <= hi, the message giving the range and `why` */
+void fg_param_range(fg_params *c, const char *name, const double *v,
+                    double lo, double hi, const char *why);
+/* |loc| + scale * qmax stays below a quarter of the largest double, qmax
+ * being the standard quantile at FG_ICDF_P_MIN for element e */
+void fg_param_finite_scale(fg_params *c, const char *name,
+                           const double *scale, const double *loc,
+                           const double *qmax);
+/* Whole and exactly representable. */
+int fg_param_integral(double v);
+/* fg_family_param_vec into in->par[slot]. */
+int fg_param_read(fg_params *c, fg_input *in, int slot, const char *name,
+                  int required, double dflt);
+/* Mark every element integer valued (or not). */
+void fg_param_set_integer(fg_input *in, int value);
+/* Why the shape parameters have their ranges (limits.h). */
+#define FG_PARAM_SHAPE_WHY                                                     \
+  "the range where draws and quantiles keep their accuracy"
+
+/* Families (family.c: the table and the dispatch; see its top comment). */
 typedef struct fg_family_def {
   const char *name;
   fg_family_kind kind;
   const char *const *params; /* NULL-terminated member names */
   int supported;
-  int has_icdf; /* may be a Gaussian copula member */
+  void (*parse)(fg_input *in, fg_params *c);
+  /* NULL: cannot be a Gaussian copula member */
+  double (*icdf)(const fg_input *in, int e, double u, double uc);
+  /* its own block path, or NULL; false: declined for this input */
+  bool (*block)(const fg_input *in, int e, uint32_t slot,
+                const fg_draw_ctx *dc, double *out);
+  /* one sample through GSL on the sub-stream r was reset to, or NULL */
+  double (*draw)(const fg_input *in, int e, gsl_rng *r);
 } fg_family_def;
+
+/* One entry: fg_family_<id> named "<id>", of kind FG_FAM_<KIND>, with
+ * parameter names p_<id> and parser parse_<id> (static in its file). */
+#define FG_FAMILY(id, KIND, icdf, block, draw)                                 \
+  const fg_family_def fg_family_##id = {#id, FG_FAM_##KIND, p_##id, 1,         \
+                                        parse_##id, icdf, block, draw}
+/* The entries (family_laws.c, family_tables.c, family.c). */
+extern const fg_family_def fg_family_normal, fg_family_lognormal,
+    fg_family_uniform, fg_family_triangular, fg_family_pert,
+    fg_family_exponential, fg_family_gamma, fg_family_beta,
+    fg_family_weibull, fg_family_student_t, fg_family_poisson,
+    fg_family_binomial, fg_family_discrete, fg_family_empirical,
+    fg_family_multivariate_normal, fg_family_scenario_table;
+/* Standard normal quantile from whichever tail is exact (uc = 1 - u). */
+double fg_family_std_quantile(double u, double uc);
 
 const fg_family_def *fg_family_find(const char *name);
 /* "normal, lognormal, ..." for error messages. */
@@ -214,7 +268,7 @@ void fg_family_draw_block(const fg_input *in, int e, uint32_t slot,
 void fg_family_from_normal(const fg_input *in, int e, const fg_draw_ctx *dc,
                            double *col);
 /* Inverse CDF of element e at u (uc = 1 - u, each exact in its own half);
- * families with has_icdf only. */
+ * families with an icdf only (NaN for the others). */
 double fg_family_icdf(const fg_input *in, int e, double u, double uc);
 /* Smallest index k of a cumulative table (cdf_lo / cdf_hi, nvalues
  * entries) with P(X <= v_k) >= u, read from whichever tail is exact. */

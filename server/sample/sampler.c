@@ -116,7 +116,7 @@ static fg_status parse_input(fg_input *in, const cJSON *u, const char *ptr,
                             fg_family_json_type(size));
     }
     if (v > FG_VECTOR_MAX)
-      return fg_problem_limit(p, mptr, "vector_length", FG_VECTOR_MAX,
+      return fg_problem_limit(p, mptr, FG_LIMIT_VECTOR_LENGTH, FG_VECTOR_MAX,
                               "expected a size of at most %d, found %.0f",
                               FG_VECTOR_MAX, v);
     in->size = (int)v;
@@ -124,7 +124,7 @@ static fg_status parse_input(fg_input *in, const cJSON *u, const char *ptr,
   }
   *dims += in->size;
   if (*dims > FG_UNCERTAIN_DIMS_MAX)
-    return fg_problem_limit(p, size ? mptr : ptr, "uncertain_dimensions",
+    return fg_problem_limit(p, size ? mptr : ptr, FG_LIMIT_UNCERTAIN_DIMENSIONS,
                             FG_UNCERTAIN_DIMS_MAX,
                             "expected at most %d uncertain dimensions in "
                             "all, found %ld by this input",

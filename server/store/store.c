@@ -8,6 +8,7 @@
  *
  * Thread use: any thread; the backends serialise their connections.
  */
+#include "feasgate/clock.h"
 #include "store/backend.h"
 
 #include <math.h>
@@ -23,11 +24,7 @@ struct fg_store {
 };
 
 void fg_store_now_rfc3339(char buf[32]) {
-  struct timespec ts;
-  struct tm tm;
-  clock_gettime(CLOCK_REALTIME, &ts);
-  gmtime_r(&ts.tv_sec, &tm);
-  strftime(buf, 32, "%Y-%m-%dT%H:%M:%SZ", &tm);
+  fg_time_now_rfc3339(buf, 32);
 }
 
 fg_status fg_store_open(const char *url, fg_store **out, fg_problem *p) {

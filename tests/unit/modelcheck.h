@@ -1,6 +1,6 @@
 /*
  * tests/unit/modelcheck.h -- what the engine-level unit tests share
- * (test_engine.c, test_compare.c): compiling the test's model document and
+ * (engine/test_check.c, engine/test_compare.c): compiling the test's model document and
  * looking for a JSON Pointer among the problems a request left.
  *
  * Header-only with static inline functions, like check.h, since every

@@ -1,5 +1,5 @@
 /*
- * http/remote.c -- the remote gate: `feasgate check --server URL ...`.
+ * cli/remote.c -- the remote gate: `feasgate check --server URL ...`.
  *
  *   feasgate check --server URL [--key KEY] [--timeout S] [--cacert FILE]
  *                  [--summary] [--rows N] MODEL_NAME REQUEST.json
@@ -29,11 +29,12 @@
  * Thread use: main thread (a command top level); libcurl's global state
  * is set up and torn down here.
  */
-#include "http/http_internal.h"
+#include "cli/cli.h"
 
 #include <curl/curl.h>
 #include <errno.h>
 #include <math.h>
+#include <cjson/cJSON.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>

@@ -1,5 +1,5 @@
 /*
- * tests/unit/test_model.c -- the model module: strict JSON parsing, the
+ * tests/unit/model/test_model.c -- the model module: strict JSON parsing, the
  * canonical text, SHA-256, document validation with JSON Pointers, the
  * end-to-end compile (with the real expr/ and sample/ modules), reference
  * counting and the digest cache.

@@ -1,5 +1,5 @@
 /*
- * http/summary.c -- what the command line shows a person: the
+ * cli/summary.c -- what the command line shows a person: the
  * `check --summary` table (offline and with --server) and the line and
  * column of a malformed JSON file.
  *
@@ -12,7 +12,7 @@
  *
  * Thread use: any thread; writes only to the FILE given.
  */
-#include "http/http.h"
+#include "cli/cli.h"
 
 #include <cjson/cJSON.h>
 #include <math.h>

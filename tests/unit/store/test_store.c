@@ -1,5 +1,5 @@
 /*
- * tests/unit/test_store.c -- the SQLite and PostgreSQL stores against
+ * tests/unit/store/test_store.c -- the SQLite and PostgreSQL stores against
  * store/store.h.
  *
  * Covers: opening (parent folders created), model versions (idempotent

@@ -1,5 +1,5 @@
 /*
- * tests/unit/test_sample.c -- the sample/ module: streams, families,
+ * tests/unit/sample/test_sample.c -- the sample/ module: streams, families,
  * multivariate normal, Gaussian copula, parameter errors.
  *
  * What is shown:

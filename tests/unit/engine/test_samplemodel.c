@@ -1,5 +1,5 @@
 /*
- * tests/unit/test_samplemodel.c -- the scenario model export
+ * tests/unit/engine/test_samplemodel.c -- the scenario model export
  * (engine/samplemodel.c, engine/mps.c, the decision forms of
  * expr/affine.c).
  *

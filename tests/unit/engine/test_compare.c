@@ -1,5 +1,5 @@
 /*
- * tests/unit/test_compare.c -- comparisons in the engine (engine/compare.c):
+ * tests/unit/engine/test_compare.c -- comparisons in the engine (engine/compare.c):
  * parsing with pointers under /candidates/i, common random numbers, pair
  * counts by popcount against the candidates' own counts, independence of
  * workers and chunk size, sample counts that are not whole words, and

@@ -1,5 +1,5 @@
 /*
- * tests/unit/test_engine.c -- the engine: request validation, determinism
+ * tests/unit/engine/test_check.c -- the engine: request validation, determinism
  * across workers and chunk sizes, pinned counts for fixed seeds,
  * deterministic problems, objective,
  * failing scenarios, cancellation and the result body.

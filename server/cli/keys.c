@@ -1,5 +1,5 @@
 /*
- * http/keys_cli.c -- `feasgate keys add|list|revoke`: API keys on a store.
+ * cli/keys.c -- `feasgate keys add|list|revoke`: API keys on a store.
  *
  *   feasgate keys add NAME --role reader|checker|author|admin [--store URL]
  *   feasgate keys list [--store URL]
@@ -17,8 +17,10 @@
  *
  * Thread use: main thread (a command top level).
  */
-#include "http/http_internal.h"
+#include "cli/cli.h"
+#include "store/store.h"
 
+#include <cjson/cJSON.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -165,7 +167,7 @@ int fg_keys_command(int argc, char **argv) {
                       "is required\n");
       return EXIT_USAGE;
     }
-    if (fg_role_parse(role) == FG_ROLE_NONE) {
+    if (!fg_key_role_valid(role)) {
       fprintf(stderr, "feasgate keys add: --role: expected reader, checker, "
                       "author or admin, found '%s'\n", role);
       return EXIT_USAGE;

@@ -1,5 +1,5 @@
 /*
- * tests/unit/test_estimate.c -- intervals, verdicts, histogram, tallies.
+ * tests/unit/estimate/test_estimate.c -- intervals, verdicts, histogram, tallies.
  *
  * Outside references here are closed forms; the full grid against
  * statsmodels lives in tests/reference/test_intervals.py.

@@ -1,5 +1,5 @@
 /*
- * tests/unit/test_expr.c -- the expression compiler and interpreter.
+ * tests/unit/expr/test_expr.c -- the expression compiler and interpreter.
  *
  * Every test builds a small model through the public interface of
  * expr/expr.h, runs the setup stream once and the block stream on a few

@@ -1,5 +1,5 @@
 /*
- * tests/unit/test_sizes.c -- sample sizes and the paired-difference
+ * tests/unit/estimate/test_sizes.c -- sample sizes and the paired-difference
  * interval (estimate/sizes.c, estimate/paired.c).
  *
  * References here are closed forms: the normal quantiles z_0.975 =
