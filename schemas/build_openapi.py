@@ -36,6 +36,8 @@ COMPONENTS = [
     ("comparison-request.schema.json", "ComparisonRequest"),
     ("comparison-result.schema.json", "ComparisonResult"),
     ("scenarios.schema.json", "Scenarios"),
+    ("sample-model-request.schema.json", "SampleModelRequest"),
+    ("sample-model.schema.json", "SampleModel"),
     ("explained-scenario.schema.json", "ExplainedScenario"),
     ("replay-result.schema.json", "ReplayResult"),
     ("sample-size.schema.json", "SampleSize"),
@@ -71,7 +73,7 @@ DESCRIPTION = (
     "offline. schemas/build_openapi.py regenerates the document from the "
     "files.\n\n"
     "Access: Authorization: Bearer <key>. Roles nest: reader (GET), checker "
-    "(+ checks, comparisons, scenarios), author (+ register and retire "
+    "(+ checks, comparisons, scenarios, sample models), author (+ register and retire "
     "models), admin (+ keys). x-feasgate-role names the least role of each "
     "operation. Missing or wrong key: 401; right key, wrong role: 403. "
     "/v1/health, /v1/ready, /metrics, /v1/openapi.json and the page (/, "
@@ -142,8 +144,9 @@ ERROR_TEXT = {
          "no new checks are accepted.",
     413: "The body exceeds the body-size limit (limit names it).",
     415: "The body is not application/json.",
-    422: "Understood but not possible for this check (for example a "
-         "scenario of a Latin hypercube or Sobol check).",
+    422: "Understood but not possible for this check or model (for "
+         "example a scenario of a Latin hypercube or Sobol check, or a "
+         "sample model of a row not affine in the decisions).",
     500: "An internal fault; nothing was half written.",
     503: "Overloaded (the work queue is full, or too many connections) or "
          "not ready; Retry-After says when to try again.",
@@ -413,6 +416,33 @@ def paths():
                       "design for building a sample model; validation to "
                       "inspect a check's failing scenario."),
             ],
+        ),
+    }
+    p["/v1/models/{name}/sample-models"] = {
+        "parameters": [name_p],
+        "post": op(
+            "createSampleModel", "The scenario program for a team's own solver",
+            "checker",
+            dict({"200": {"description": "The program as JSON with the MPS "
+                                         "text and the column map or, with "
+                                         "Accept: text/plain, the MPS text alone.",
+                          "content": {
+                              "application/json": {"schema": ref("SampleModel")},
+                              "text/plain": {"schema": {"type": "string"}}}}},
+                 **errors(400, 401, 403, 404, 410, 413, 415, 422, 500, 503)),
+            description="Writes the deterministic program over the design "
+                        "scenarios of the seed in free MPS: form indicator "
+                        "(one binary per scenario, each row switched off "
+                        "through the tightest big-M, the largest value of "
+                        "the row over the decisions' bounds in that "
+                        "scenario) or all (every scenario enforced, with the "
+                        "Campi-Garatti violation level). 422: a row not "
+                        "affine in the decisions (the row and its term "
+                        "named), a decision whose missing bound leaves a "
+                        "big-M infinite, or a model without decisions. Not "
+                        "logged; nothing is stored.",
+            requestBody={"required": True,
+                         "content": {"application/json": {"schema": ref("SampleModelRequest")}}},
         ),
     }
     prob = {"type": "number", "exclusiveMinimum": 0, "exclusiveMaximum": 1}

@@ -12,6 +12,8 @@
  *   feasgate scenarios MODEL.json [--count N]  a model's scenarios, JSON or
  *            [--seed S] [--start I] [--stream design|validation] [--csv]
  *            [--max M]                         CSV (engine/scenarios.c)
+ *   feasgate sample-model MODEL.json           the scenario program in free
+ *            --scenarios S [--seed N] [--form all]  MPS (cli/samplemodel.c)
  *   feasgate sample-size --half-width H ...    sample sizes (estimate/sizes.c)
  *   feasgate check --server URL [--key KEY]    the same gate run by a daemon
  *            MODEL_NAME REQUEST.json           (cli/remote.c)
@@ -48,6 +50,7 @@ static void usage(FILE *f) {
           "               (--store STORE ID)\n"
           "  register     add model documents to a store\n"
           "  scenarios    print a model's random scenarios (JSON or CSV)\n"
+          "  sample-model write the scenario program for a solver (free MPS)\n"
           "  sample-size  samples or scenarios needed for a question\n"
           "  keys         add, list or revoke API keys in a store\n"
           "  version      print the version\n\n"
@@ -82,6 +85,7 @@ static const struct {
     {"replay", fg_replay_command},
     {"register", fg_register_command},
     {"scenarios", fg_scenarios_command},
+    {"sample-model", fg_sample_model_command},
     {"sample-size", fg_sample_size_command},
     {"keys", fg_keys_command},
 };

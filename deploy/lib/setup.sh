@@ -19,7 +19,7 @@ FG_PKGS_RUN="curl sqlite3"
 FG_PKGS_TEST="python3 python3-scipy python3-numpy python3-statsmodels \
 r-cran-mvtnorm libopenblas0-pthread \
 python3-jsonschema python3-mpmath openssl clang libclang-rt-14-dev postgresql \
-nginx chromium python3-websocket"
+nginx chromium python3-websocket coinor-cbc glpk-utils"
 
 fg_missing_packages() {
   local missing=() p

@@ -230,6 +230,27 @@
 #define FG_T_DF_MIN 1.0
 #define FG_T_DF_MAX 1e12
 
+/* ---- the scenario model export (engine/samplemodel.c, engine/mps.c) ----
+ * The export runs on the request's own thread (like a scenarios answer),
+ * so everything it does is bounded here. */
+/* Scenarios of one export: the indicator form has one binary each, and
+ * mixed-integer solvers stall long before this many. */
+#define FG_SAMPLE_MODEL_SCENARIOS_MAX 100000
+/* Scenario rows of one export (scenarios x half-rows per scenario): the
+ * matrix is gathered in memory (about (decisions + 1) x 12 bytes per row)
+ * before it is written column by column. */
+#define FG_SAMPLE_MODEL_ROWS_MAX 1000000
+/* Bytes of MPS text of one export: the text is held whole and then sent
+ * in a JSON string (escaped once more), so a request stays near 200 MB. */
+#define FG_SAMPLE_MODEL_TEXT_MAX (64u * 1024 * 1024)
+/* Cells of the affine forms in the decisions (registers x (decision
+ * components + 1)), four copies kept: 1 Mi cells is 32 MiB. */
+#define FG_SAMPLE_MODEL_FORM_CELLS_MAX (1u * 1024 * 1024)
+/* Work of reading the coefficients out of the program, in cell updates:
+ * scenarios x (broadcast registers + block instructions) x (decision
+ * components + 1); 3e8 is about a second on one core of the test machine. */
+#define FG_SAMPLE_MODEL_WORK_MAX 300000000.0
+
 /* Largest poisson mean and binomial trials: draws are GSL unsigned ints,
  * and inverse-CDF searches stay short below this. */
 #define FG_COUNT_PARAM_MAX 1e9
@@ -269,6 +290,14 @@
   X(EXACT_FORM_WORK, "exact_form_work", FG_EXACT_FORM_WORK_MAX)                \
   X(SOBOL_DIMENSIONS, "sobol_dimensions", FG_SOBOL_DIMS_MAX)                   \
   X(SCENARIO_CELLS, "scenario_cells", FG_SCENARIO_CELLS_MAX)                   \
+  X(SAMPLE_MODEL_SCENARIOS, "sample_model_scenarios",                          \
+    FG_SAMPLE_MODEL_SCENARIOS_MAX)                                             \
+  X(SAMPLE_MODEL_ROWS, "sample_model_rows", FG_SAMPLE_MODEL_ROWS_MAX)          \
+  X(SAMPLE_MODEL_TEXT_BYTES, "sample_model_text_bytes",                        \
+    FG_SAMPLE_MODEL_TEXT_MAX)                                                  \
+  X(SAMPLE_MODEL_FORM_CELLS, "sample_model_form_cells",                        \
+    FG_SAMPLE_MODEL_FORM_CELLS_MAX)                                            \
+  X(SAMPLE_MODEL_WORK, "sample_model_work", FG_SAMPLE_MODEL_WORK_MAX)          \
   X(SAMPLES_DEFAULT, "samples_default", FG_SAMPLES_DEFAULT)                    \
   X(SEED_MAX, "seed_max", FG_SEED_MAX)                                         \
   X(LIST_LIMIT, "list_limit", FG_LIST_LIMIT_MAX)                               \

@@ -40,6 +40,9 @@ int fg_validate_command(int argc, char **argv);
 int fg_register_command(int argc, char **argv);
 /* `feasgate scenarios MODEL.json ...` (scenarios.c). */
 int fg_scenarios_command(int argc, char **argv);
+/* `feasgate sample-model MODEL.json --scenarios S ...` (samplemodel.c):
+ * 0 written, 3 usage, invalid input or a model that cannot be written. */
+int fg_sample_model_command(int argc, char **argv);
 /* `feasgate sample-size ...` (sizes.c). */
 int fg_sample_size_command(int argc, char **argv);
 /* `feasgate keys add|list|revoke` (keys.c): 0 done, 1 store or system

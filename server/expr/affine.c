@@ -3,7 +3,7 @@
  * inputs and in the decisions, and the coefficients of the rows affine in
  * the inputs at given decisions.
  *
- * API (expr.h; meant for the exact path and a later scenario-model export):
+ * API (expr.h; used by the exact path and the scenario-model export):
  *   fg_program_affine(prog, row)   structural flags of a row, computed once
  *                                  when the program is built:
  *     in_inputs     the row's excess is affine in the uncertain inputs,
@@ -18,6 +18,16 @@
  *                                  numeric coefficients at fixed decisions:
  *     every row as one or two half-rows  c + g . u <= 0  over the
  *     flattened uncertain vector u (register uncertain_base + j is u_j).
+ *   fg_decision_forms_new / _rows / _free
+ *                                  numeric coefficients in the decisions at
+ *     one scenario: every row as half-rows  c + g . x <= 0  over the
+ *     flattened decision vector x, and the objective's form. The setup
+ *     stream (no uncertain input) is walked once with the decisions as the
+ *     variables; each scenario then walks the block stream from the
+ *     registers broadcast from setup, with the scenario's uncertain values
+ *     as free values. A value that stops being affine remembers the
+ *     instruction where it did, so a row that is not affine is reported
+ *     with the JSON Pointer, column and operation of that term.
  *
  * Design: both analyses walk the finished instruction list in execution
  * order (setup stream, then block stream) -- the list fuse.c leaves
@@ -34,11 +44,12 @@
  * Numerically, operations on free values are run through the interpreter
  * (fg_expr_run on a four-register scratch), so they round exactly as the
  * simulation does; affine forms are combined coefficient by coefficient.
- * The forms are bounded by FG_EXACT_FORM_CELLS_MAX cells.
+ * The forms are bounded by FG_EXACT_FORM_CELLS_MAX cells (inputs) and
+ * FG_SAMPLE_MODEL_FORM_CELLS_MAX (decisions).
  *
  * Thread use: the structural pass runs once at build; halfrows reads the
  * immutable program and writes only caller memory, so any thread may call
- * it.
+ * it. An fg_decision_forms is scratch of one caller: one thread at a time.
  */
 #include "expr/expr_internal.h"
 
@@ -144,10 +155,14 @@ void fg_program_affine_counts(const fg_program *prog, int *in_inputs,
 /* ---- numeric forms ---- */
 
 typedef struct forms {
-  int w;             /* nu + 1 */
+  int w;             /* variables + 1 */
   double *f;         /* nregs x w: (c, g) */
   double *f2;        /* nregs x w: second half of a pair */
   unsigned char *t;  /* 0 free, 1 affine, 2 not, 3 pair of halves */
+  double *tmp;       /* w doubles */
+  int *why;          /* NULL, or per register the instruction (setup i, or
+                        nsetup + i of the block) where a value of tag 2 or
+                        3 stopped being affine */
 } forms;
 
 static double *F(const forms *s, int r) { return s->f + (size_t)r * s->w; }
@@ -166,13 +181,28 @@ static double eval_free(const forms *s, const fg_insn *in) {
   return regs[0];
 }
 
-static void step(forms *s, const fg_insn *in) {
+/* Instruction `id` gives a value that is not affine: its origin is the
+ * first operand's that is not, else this instruction. */
+static void mark_why(forms *s, const fg_insn *in, int id) {
+  if (!s->why) return;
+  int n = fg_opcode_table[in->op].nsrc, origin = id;
+  int ops[3] = {in->a, in->b, in->c};
+  for (int k = 0; k < n; k++)
+    if (s->t[ops[k]] >= 2) {
+      origin = s->why[ops[k]];
+      break;
+    }
+  s->why[in->d] = origin;
+}
+
+static void step(forms *s, const fg_insn *in, int id) {
   int w = s->w, n = fg_opcode_table[in->op].nsrc;
   int ta = n > 0 ? s->t[in->a] : 0, tb = n > 1 ? s->t[in->b] : 0,
       tc = n > 2 ? s->t[in->c] : 0;
-  double tmp[FG_EXACT_DIMS_MAX + 2];
+  double *tmp = s->tmp;
   double *d = F(s, in->d);
   if (ta == 3 || tb == 3 || tc == 3) {
+    mark_why(s, in, id);
     s->t[in->d] = 2;
     return;
   }
@@ -236,6 +266,8 @@ static void step(forms *s, const fg_insn *in) {
     break;
   default: break;
   }
+  if (r == 2) mark_why(s, in, id);
+  else if (r == 3 && s->why) s->why[in->d] = id;
   s->t[in->d] = (unsigned char)r;
   if (r != 2) memcpy(d, tmp, (size_t)w * sizeof *d);
 }
@@ -257,16 +289,17 @@ int fg_program_affine_halfrows(const fg_program *prog, const double *setup_regs,
     return -2;
   forms s = {w, calloc((size_t)in->nregs * (size_t)w, sizeof(double)),
              calloc((size_t)in->nregs * (size_t)w, sizeof(double)),
-             calloc((size_t)in->nregs, 1)};
+             calloc((size_t)in->nregs, 1), calloc((size_t)w, sizeof(double)),
+             NULL};
   int nh = -3;
-  if (!s.f || !s.f2 || !s.t) goto out;
+  if (!s.f || !s.f2 || !s.t || !s.tmp) goto out;
   for (int r = 0; r < in->nregs; r++) F(&s, r)[0] = setup_regs[r];
   for (int j = 0; j < nu; j++) {
     double *f = F(&s, in->uncertain_base + j);
     f[0] = 0, f[1 + j] = 1;
     s.t[in->uncertain_base + j] = 1;
   }
-  for (int i = 0; i < in->nblock_insns; i++) step(&s, &prog->block[i]);
+  for (int i = 0; i < in->nblock_insns; i++) step(&s, &prog->block[i], i);
   nh = 0;
   for (int k = 0; k < in->nrows; k++) {
     const fg_row *row = &prog->rows[k];
@@ -292,6 +325,154 @@ int fg_program_affine_halfrows(const fg_program *prog, const double *setup_regs,
     }
   }
 out:
-  free(s.f), free(s.f2), free(s.t);
+  free(s.f), free(s.f2), free(s.t), free(s.tmp);
+  return nh;
+}
+
+/* ---- forms in the decisions, scenario by scenario ---- */
+
+struct fg_decision_forms {
+  const fg_program *prog;
+  forms s;                /* the working state of one scenario */
+  double *base, *base2;   /* the state after setup: f, f2 ... */
+  unsigned char *base_t;  /* ... t ... */
+  int *base_why;          /* ... why */
+};
+
+void fg_decision_forms_free(fg_decision_forms *df) {
+  if (!df) return;
+  free(df->s.f), free(df->s.f2), free(df->s.t), free(df->s.tmp);
+  free(df->s.why);
+  free(df->base), free(df->base2), free(df->base_t), free(df->base_why);
+  free(df);
+}
+
+fg_decision_forms *fg_decision_forms_new(const fg_program *prog, int *err) {
+  const fg_program_info *in = &prog->info;
+  int w = in->ndecision + 1;
+  *err = 0;
+  if ((double)in->nregs * (double)w > (double)FG_SAMPLE_MODEL_FORM_CELLS_MAX) {
+    *err = -2;
+    return NULL;
+  }
+  *err = -3;
+  fg_decision_forms *df = calloc(1, sizeof *df);
+  if (!df) return NULL;
+  size_t cells = (size_t)in->nregs * (size_t)w, nr = (size_t)in->nregs + 1;
+  df->prog = prog;
+  df->s.w = w;
+  df->s.f = calloc(cells + 1, sizeof(double));
+  df->s.f2 = calloc(cells + 1, sizeof(double));
+  df->s.t = calloc(nr, 1);
+  df->s.tmp = calloc((size_t)w, sizeof(double));
+  df->s.why = calloc(nr, sizeof(int));
+  df->base = calloc(cells + 1, sizeof(double));
+  df->base2 = calloc(cells + 1, sizeof(double));
+  df->base_t = calloc(nr, 1);
+  df->base_why = calloc(nr, sizeof(int));
+  if (!df->s.f || !df->s.f2 || !df->s.t || !df->s.tmp || !df->s.why ||
+      !df->base || !df->base2 || !df->base_t || !df->base_why) {
+    fg_decision_forms_free(df);
+    return NULL;
+  }
+  forms *s = &df->s;
+  for (int j = 0; j < in->ndecision; j++) {
+    F(s, in->decision_base + j)[1 + j] = 1;
+    s->t[in->decision_base + j] = 1;
+  }
+  for (int i = 0; i < in->nsetup_insns; i++) step(s, &prog->setup[i], i);
+  memcpy(df->base, s->f, cells * sizeof(double));
+  memcpy(df->base2, s->f2, cells * sizeof(double));
+  memcpy(df->base_t, s->t, (size_t)in->nregs);
+  memcpy(df->base_why, s->why, (size_t)in->nregs * sizeof(int));
+  *err = 0;
+  return df;
+}
+
+/* The fault of a value of register reg in state (t, why), row `row`. */
+static void fault_at(const fg_program *prog, const unsigned char *t,
+                     const int *why, int reg, int row, bool nonfinite,
+                     fg_affine_fault *fault) {
+  fault->row = row;
+  fault->nonfinite = nonfinite;
+  fault->pointer = "";
+  fault->column = 0;
+  fault->op = NULL;
+  if (nonfinite || t[reg] < 2) return;
+  int id = why[reg], ns = prog->info.nsetup_insns;
+  if (id < 0 || id >= ns + prog->info.nblock_insns) return;
+  const fg_span *sp = id < ns ? &prog->setup_span[id] : &prog->block_span[id - ns];
+  const fg_insn *insn = id < ns ? &prog->setup[id] : &prog->block[id - ns];
+  if (sp->src >= 0 && sp->src < prog->npointers)
+    fault->pointer = prog->pointers[sp->src];
+  fault->column = sp->col;
+  fault->op = fg_opcode_table[insn->op].name;
+}
+
+int fg_decision_forms_rows(fg_decision_forms *df, const double *u,
+                           double *out, int *row_of, int cap, double *obj,
+                           int *obj_state, fg_affine_fault *fault) {
+  const fg_program *prog = df->prog;
+  const fg_program_info *in = &prog->info;
+  forms *s = &df->s;
+  int w = s->w;
+  size_t wb = (size_t)w * sizeof(double);
+  /* the block stream reads the registers broadcast from setup, the
+   * uncertain inputs and its own results */
+  for (int k = 0; k < prog->nbcast; k++) {
+    int r = prog->bcast[k];
+    memcpy(F(s, r), df->base + (size_t)r * w, wb);
+    if (df->base_t[r] == 3) memcpy(F2(s, r), df->base2 + (size_t)r * w, wb);
+    s->t[r] = df->base_t[r];
+    s->why[r] = df->base_why[r];
+  }
+  for (int j = 0; j < in->nuncertain; j++) {
+    double *f = F(s, in->uncertain_base + j);
+    memset(f, 0, wb);
+    f[0] = u[j];
+    s->t[in->uncertain_base + j] = 0;
+  }
+  for (int i = 0; i < in->nblock_insns; i++)
+    step(s, &prog->block[i], in->nsetup_insns + i);
+  *obj_state = 0;
+  if (in->objective_reg >= 0) {
+    int reg = in->objective_reg;
+    bool det = in->objective_deterministic;
+    const unsigned char *t = det ? df->base_t : s->t;
+    const double *f = det ? df->base + (size_t)reg * w : F(s, reg);
+    if (t[reg] <= 1 && finite_form(f, w)) {
+      memcpy(obj, f, wb);
+      *obj_state = 1;
+    } else {
+      *obj_state = 2;
+      fault_at(prog, t, det ? df->base_why : s->why, reg, -1, t[reg] <= 1,
+               fault);
+    }
+  }
+  int nh = 0;
+  for (int k = 0; k < in->nrows; k++) {
+    const fg_row *row = &prog->rows[k];
+    int reg = row->excess_reg;
+    bool det = row->deterministic;
+    const unsigned char *t = det ? df->base_t : s->t;
+    const int *why = det ? df->base_why : s->why;
+    int tag = t[reg];
+    bool two = tag == 3 && (row->kind == FG_ROW_RANGE || row->kind == FG_ROW_EQ);
+    if (tag == 2 || (tag == 3 && !two)) {
+      fault_at(prog, t, why, reg, k, false, fault);
+      return -1;
+    }
+    for (int h = 0; h < (two ? 2 : 1); h++) {
+      const double *f = det ? (h == 0 ? df->base : df->base2) + (size_t)reg * w
+                            : (h == 0 ? F(s, reg) : F2(s, reg));
+      if (!finite_form(f, w)) {
+        fault_at(prog, t, why, reg, k, true, fault);
+        return -1;
+      }
+      if (nh >= cap) return -2;
+      memcpy(out + (size_t)nh * w, f, wb);
+      row_of[nh++] = k;
+    }
+  }
   return nh;
 }

@@ -192,4 +192,31 @@ int fg_program_affine_origin(const fg_program *prog, int row,
                              const char **pointer, int *column,
                              const char **op);
 
+/* The rows in the decisions at one scenario (the scenario-model export):
+ * half-rows c + g . x <= 0 over the flattened decision vector x, (c, g)
+ * being ndecision + 1 doubles. fg_decision_forms_new walks the setup
+ * stream once (NULL with *err -2 beyond FG_SAMPLE_MODEL_FORM_CELLS_MAX
+ * cells, -3 out of memory); fg_decision_forms_rows then takes one
+ * scenario's nuncertain values u and writes every row's half-rows
+ * (deterministic rows too: the same at every scenario) to out (cap half-rows),
+ * row_of[h] the row of half-row h, and the objective's form to obj (w
+ * doubles) with *obj_state 0 (no objective), 1 (affine), 2 (not affine or
+ * not finite: *fault names it with row -1). Returns the number of
+ * half-rows; -1 when a row is not affine in the decisions or not finite
+ * in this scenario (*fault names the row and, when not affine, the term),
+ * -2 beyond cap. One thread at a time per fg_decision_forms. */
+typedef struct fg_affine_fault {
+  int row;             /* the row; -1 the objective */
+  bool nonfinite;      /* affine, but a coefficient is not finite */
+  const char *pointer; /* JSON Pointer of the term's source ("" unknown) */
+  int column;          /* 1-based column of the term there (0 unknown) */
+  const char *op;      /* the operation there ("mul", "max", ...); NULL */
+} fg_affine_fault;
+typedef struct fg_decision_forms fg_decision_forms;
+fg_decision_forms *fg_decision_forms_new(const fg_program *prog, int *err);
+int fg_decision_forms_rows(fg_decision_forms *df, const double *u,
+                           double *out, int *row_of, int cap, double *obj,
+                           int *obj_state, fg_affine_fault *fault);
+void fg_decision_forms_free(fg_decision_forms *df);
+
 #endif

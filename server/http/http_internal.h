@@ -261,6 +261,10 @@ bool fg_http_query_pairs(const char *const *keys, const char *const *values,
                          int npairs, const char *const *names,
                          const char **const *slots, int n,
                          char unknown[FG_HTTP_PARAM_NAME_MAX]);
+/* True when the Accept header prefers media type `type` (e.g. "text/csv")
+ * to JSON (RFC 9110 section 12.5.1: the highest q wins; JSON, any type and
+ * application/anything win ties, JSON being the default). */
+bool fg_http_accept_prefers(const char *accept, const char *type);
 /* 400: "query parameter 'NAME': <message>". */
 void fg_resp_bad_param(fg_resp *out, const char *name, const char *fmt, ...)
     __attribute__((format(printf, 3, 4)));
@@ -485,6 +489,8 @@ bool fg_auth_request(fg_req *r, bool routed, fg_resp *out);
 
 /* ---- scenarios.c ---- */
 void fg_h_model_scenarios(fg_req *r, fg_resp *out);
+/* samplemodels.c: POST /v1/models/{name}/sample-models */
+void fg_h_model_sample_models(fg_req *r, fg_resp *out);
 
 /* ---- ops.c ---- */
 void fg_h_health(fg_req *r, fg_resp *out);

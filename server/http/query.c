@@ -7,6 +7,8 @@
  * the slot of its name, the first occurrence winning, and the first name
  * not listed -- or a parameter with an empty name -- is reported, so the
  * handler answers 400 rather than ignoring a misspelt filter.
+ * fg_http_accept_prefers reads the Accept header for the handlers that
+ * answer in two media types (scenarios as CSV, a sample model as text).
  *
  * Thread use: libmicrohttpd's threads, each on its own request.
  */
@@ -14,7 +16,9 @@
 
 #include <stdarg.h>
 #include <stdio.h>
+#include <stdlib.h>
 #include <string.h>
+#include <strings.h>
 
 typedef struct query_walk {
   const char *const *names;
@@ -82,4 +86,54 @@ void fg_resp_bad_param(fg_resp *out, const char *name, const char *fmt, ...) {
   fg_problem_init(&p);
   fg_problem_set(&p, FG_EINVAL, "query parameter '%s': %s", name, msg);
   fg_resp_problem(out, &p, 400);
+}
+
+/* The q value of one media range's parameters ("; q=0.5"); 1 when absent,
+ * 0 when malformed. */
+static double quality(const char *params, size_t len) {
+  const char *t = params, *end = params + len;
+  while (t < end) {
+    const char *semi = memchr(t, ';', (size_t)(end - t));
+    const char *pe = semi ? semi : end;
+    while (t < pe && (*t == ' ' || *t == '\t')) t++;
+    if (pe - t >= 2 && (t[0] == 'q' || t[0] == 'Q') && t[1] == '=') {
+      char num[16];
+      size_t n = (size_t)(pe - t - 2);
+      if (n == 0 || n >= sizeof num) return 0;
+      memcpy(num, t + 2, n);
+      num[n] = '\0';
+      char *e = NULL;
+      double q = strtod(num, &e);
+      while (*e == ' ' || *e == '\t') e++;
+      return (*e || !(q >= 0 && q <= 1)) ? 0 : q;
+    }
+    t = semi ? semi + 1 : end;
+  }
+  return 1;
+}
+
+bool fg_http_accept_prefers(const char *accept, const char *type) {
+  if (!accept) return false;
+  size_t type_len = strlen(type);
+  double q_csv = -1, q_json = -1;
+  const char *t = accept;
+  while (*t) {
+    const char *comma = strchr(t, ',');
+    size_t len = comma ? (size_t)(comma - t) : strlen(t);
+    const char *s = t;
+    while (len && (*s == ' ' || *s == '\t')) s++, len--;
+    const char *semi = memchr(s, ';', len);
+    size_t tlen = semi ? (size_t)(semi - s) : len;
+    while (tlen && (s[tlen - 1] == ' ' || s[tlen - 1] == '\t')) tlen--;
+    double q = semi ? quality(semi + 1, len - (size_t)(semi + 1 - s)) : 1;
+    if (tlen == type_len && strncasecmp(s, type, type_len) == 0) {
+      if (q > q_csv) q_csv = q;
+    } else if ((tlen == 16 && strncasecmp(s, "application/json", 16) == 0) ||
+               (tlen == 3 && strncmp(s, "*/*", 3) == 0) ||
+               (tlen == 13 && strncasecmp(s, "application/*", 13) == 0)) {
+      if (q > q_json) q_json = q;
+    }
+    t = comma ? comma + 1 : t + strlen(t);
+  }
+  return q_csv > 0 && q_csv > q_json;
 }

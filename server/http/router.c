@@ -43,6 +43,8 @@ static const fg_route_entry routes[] = {
     {"DELETE", "/v1/models/{name}", fg_h_model_retire, AUTHOR},
     {"GET", "/v1/models/{name}/versions/{n}", fg_h_model_version_get, READER},
     {"GET", "/v1/models/{name}/scenarios", fg_h_model_scenarios, CHECKER},
+    {"POST", "/v1/models/{name}/sample-models", fg_h_model_sample_models,
+     CHECKER},
     {"POST", "/v1/models/{name}/checks", fg_h_checks_create, CHECKER},
     {"POST", "/v1/models/{name}/versions/{n}/checks", fg_h_checks_create,
      CHECKER},

@@ -57,57 +57,6 @@ static bool parse_whole(const char *s, uint64_t max, uint64_t *out) {
   return true;
 }
 
-/* The q value of one media range's parameters ("; q=0.5"); 1 when absent,
- * 0 when malformed. */
-static double quality(const char *params, size_t len) {
-  const char *t = params, *end = params + len;
-  while (t < end) {
-    const char *semi = memchr(t, ';', (size_t)(end - t));
-    const char *pe = semi ? semi : end;
-    while (t < pe && (*t == ' ' || *t == '\t')) t++;
-    if (pe - t >= 2 && (t[0] == 'q' || t[0] == 'Q') && t[1] == '=') {
-      char num[16];
-      size_t n = (size_t)(pe - t - 2);
-      if (n == 0 || n >= sizeof num) return 0;
-      memcpy(num, t + 2, n);
-      num[n] = '\0';
-      char *e = NULL;
-      double q = strtod(num, &e);
-      while (*e == ' ' || *e == '\t') e++;
-      return (*e || !(q >= 0 && q <= 1)) ? 0 : q;
-    }
-    t = semi ? semi + 1 : end;
-  }
-  return 1;
-}
-
-/* True when the Accept header prefers text/csv to JSON (RFC 9110 section
- * 12.5.1: the highest q wins; JSON wins ties, being the default). */
-static bool wants_csv(const char *accept) {
-  if (!accept) return false;
-  double q_csv = -1, q_json = -1;
-  const char *t = accept;
-  while (*t) {
-    const char *comma = strchr(t, ',');
-    size_t len = comma ? (size_t)(comma - t) : strlen(t);
-    const char *s = t;
-    while (len && (*s == ' ' || *s == '\t')) s++, len--;
-    const char *semi = memchr(s, ';', len);
-    size_t tlen = semi ? (size_t)(semi - s) : len;
-    while (tlen && (s[tlen - 1] == ' ' || s[tlen - 1] == '\t')) tlen--;
-    double q = semi ? quality(semi + 1, len - (size_t)(semi + 1 - s)) : 1;
-    if (tlen == 8 && strncasecmp(s, "text/csv", 8) == 0) {
-      if (q > q_csv) q_csv = q;
-    } else if ((tlen == 16 && strncasecmp(s, "application/json", 16) == 0) ||
-               (tlen == 3 && strncmp(s, "*/*", 3) == 0) ||
-               (tlen == 13 && strncasecmp(s, "application/*", 13) == 0)) {
-      if (q > q_json) q_json = q;
-    }
-    t = comma ? comma + 1 : t + strlen(t);
-  }
-  return q_csv > 0 && q_csv > q_json;
-}
-
 /* libmicrohttpd's pull of the body: rows are drawn and printed as the
  * connection takes them. */
 static ssize_t read_stream(void *cls, uint64_t pos, char *buf, size_t max) {
@@ -196,8 +145,9 @@ void fg_h_model_scenarios(fg_req *r, fg_resp *out) {
       return;
     }
   }
-  sp.csv = wants_csv(
-      MHD_lookup_connection_value(r->conn, MHD_HEADER_KIND, "Accept"));
+  sp.csv = fg_http_accept_prefers(
+      MHD_lookup_connection_value(r->conn, MHD_HEADER_KIND, "Accept"),
+      "text/csv");
 
   fg_problem p;
   fg_problem_init(&p);

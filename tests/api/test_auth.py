@@ -209,6 +209,8 @@ def test_matrix(d, store, keys):
          "reader"),
         ("GET", "/v1/models/%s/scenarios?count=2&seed=1" % name, None,
          "checker"),
+        ("POST", "/v1/models/%s/sample-models" % name, {"scenarios": 3, "form": "all"},
+         "checker"),
         ("POST", "/v1/models/%s/checks" % name, small, "checker"),
         ("POST", "/v1/models/%s/versions/1/checks" % name, small, "checker"),
         ("POST", "/v1/models/%s/comparisons" % name, pair, "checker"),

@@ -37,7 +37,8 @@ ROOT = Path(__file__).resolve().parents[2]
 DEMO = ROOT / "deploy" / "demo"
 TMP = tempfile.mkdtemp(prefix="fg-cli-")
 COMMANDS = ["serve", "check", "validate", "register", "scenarios",
-            "sample-size", "keys", "version", "explain", "replay"]
+            "sample-size", "keys", "version", "explain", "replay",
+            "sample-model"]
 
 
 def run(*args, env=None):

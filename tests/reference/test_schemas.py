@@ -35,6 +35,7 @@ SCHEMA_FILES = [
     "comparison-result.schema.json", "scenarios.schema.json",
     "sample-size.schema.json", "health.schema.json", "limits.schema.json",
     "explained-scenario.schema.json", "replay-result.schema.json",
+    "sample-model-request.schema.json", "sample-model.schema.json",
 ]
 
 passed = 0
@@ -687,6 +688,7 @@ EXPECTED_OPERATIONS = {
     ("/v1/comparisons/{id}", "get"),
     ("/v1/comparisons/{id}", "delete"),
     ("/v1/models/{name}/scenarios", "get"),
+    ("/v1/models/{name}/sample-models", "post"),
     ("/v1/sample-size", "get"),
     ("/v1/health", "get"), ("/v1/ready", "get"), ("/metrics", "get"),
     ("/v1/limits", "get"), ("/v1/openapi.json", "get"),
