@@ -46,11 +46,12 @@ typedef enum fg_sampling {
 } fg_sampling;
 
 /* The exact path (engine/exact.c): "auto" computes it beside the
- * simulation when the model qualifies, "off" never. */
+ * simulation when the model qualifies, "off" never, "only" instead of the
+ * simulation (the request is refused when the model does not qualify). */
 typedef enum fg_exact_mode {
   FG_EXACT_AUTO = 0,
   FG_EXACT_OFF,
-  FG_EXACT_ONLY /* reserved: not accepted by the request parser yet */
+  FG_EXACT_ONLY
 } fg_exact_mode;
 
 typedef enum fg_verdict {
@@ -117,6 +118,12 @@ fg_status fg_request_parse(const fg_model *m, const struct cJSON *body,
                            const fg_request_limits *lim, fg_check_request *out,
                            fg_problem *p);
 void fg_request_free(fg_check_request *r);
+/* For "exact": "only" (fg_request_parse calls it): members that need a
+ * simulation are refused, and so is a model that does not qualify at the
+ * request's decision -- a 400 whose item points into the model at the
+ * first term or input that does not qualify (a limit: at /exact). */
+fg_status fg_exact_request_check(const fg_model *m,
+                                 const fg_check_request *req, fg_problem *p);
 /* The request as it will be replayed (seed filled in), for the log. */
 struct cJSON *fg_request_json(const fg_model *m, const fg_check_request *r);
 

@@ -262,6 +262,10 @@
   X(FAILING_SCENARIOS_COUNT, "failing_scenarios_count",                        \
     FG_FAILING_SCENARIOS_MAX)                                                  \
   X(EXPLAIN_CELLS, "explain_cells", FG_EXPLAIN_CELLS_MAX)                      \
+  X(EXACT_ROWS, "exact_rows", FG_EXACT_ROWS_MAX)                               \
+  X(EXACT_DIMS, "exact_dims", FG_EXACT_DIMS_MAX)                               \
+  X(EXACT_FORM_CELLS, "exact_form_cells", FG_EXACT_FORM_CELLS_MAX)             \
+  X(EXACT_FORM_WORK, "exact_form_work", FG_EXACT_FORM_WORK_MAX)                \
   X(SOBOL_DIMENSIONS, "sobol_dimensions", FG_SOBOL_DIMS_MAX)                   \
   X(SCENARIO_CELLS, "scenario_cells", FG_SCENARIO_CELLS_MAX)                   \
   X(SAMPLES_DEFAULT, "samples_default", FG_SAMPLES_DEFAULT)                    \
@@ -474,13 +478,28 @@ const char *fg_limit_name(fg_limit which);
  * program (registers x (inputs + 1)): 4 Mi doubles, 32 MiB at most. */
 #define FG_EXACT_FORM_CELLS_MAX (4u * 1024 * 1024)
 
+/* Work of reading the coefficients out of the program: block instructions
+ * x (inputs + 1), each a pass over one affine form. It runs on the thread
+ * that starts the check (and again in the request's parse for exact
+ * "only", to answer 400), so it is held to about 0.1 s: 64e6 allows e.g.
+ * 125,000 instructions over 512 inputs. */
+#define FG_EXACT_FORM_WORK_MAX 64000000.0
+
 /* Work bound of one exact computation, in multiply-add units: lattice
  * points x (rows x rank + 30 x rank) over all rounds and shifts
  * (estimate/mvnprob.c). 3e8 units is about a second on one idle core of
- * the test machine: the exact path runs on the thread that starts
- * the check, so it must stay short; past the bound it answers with the
- * error it reached (converged false). */
+ * the test machine: the exact path is one task of its check on the
+ * worker pool (it holds one worker that long at most); past the bound it
+ * answers with the error it reached (converged false). */
 #define FG_EXACT_WORK_MAX 300000000.0
+
+/* Work units between two looks at the check's cancel flag and deadline
+ * during an exact computation (a run of lattice points, one pivot step of
+ * the reduction at most 6 x rows x dims, one half-row of the coefficient
+ * product): 1e6 units is about 3 ms on the test machine, so a DELETE or a
+ * deadline ends an exact computation within a few milliseconds plus the
+ * pool clock's round (FG_POOL_CLOCK_MS). */
+#define FG_EXACT_POLL_WORK 1000000.0
 
 /* Independent random shifts of the lattice; their spread gives the error
  * estimate (Genz 1992: a small number, 10 here, of randomisations). */
@@ -490,6 +509,11 @@ const char *fg_limit_name(fg_limit which);
  * them, at most FG_EXACT_ROUNDS_MAX rounds (so at most 1000 * 2^14
  * points per shift before the work bound). */
 #define FG_EXACT_POINTS_FIRST 1000
+/* The first round's points per shift at least, when FG_EXACT_POINTS_FIRST
+ * would pass FG_EXACT_WORK_MAX (512 half-rows of rank 512: 64 points,
+ * about 3.5e8 units): fewer would leave the shifts' spread too noisy to
+ * be an error estimate. */
+#define FG_EXACT_POINTS_MIN 64
 #define FG_EXACT_ROUNDS_MAX 15
 
 /* The error the exact path aims at (absolute, on the joint probability):
@@ -584,6 +608,42 @@ const char *fg_limit_name(fg_limit which);
 #define FG_HTTP_SIZE_QUERY_PARAMS_MAX 32
 /* Longest parameter name kept for a problem message. */
 #define FG_HTTP_PARAM_NAME_MAX 64
+
+/* ---- store: backends and replicas ---- */
+/* SQLite: how long a statement waits for a lock held by another
+ * connection before giving up with FG_EBUSY: long enough to ride out a
+ * checkpoint or a CLI reader, short enough that an HTTP request does not
+ * hang. */
+#define FG_SQLITE_BUSY_MS 5000
+/* Characters of a SQLite store path ("sqlite:" prefix removed). */
+#define FG_SQLITE_PATH_MAX 4096
+/* PostgreSQL connections per daemon: calls from several request threads
+ * run at once up to this many; the rest wait for one to be given back.
+ * Opened when first needed. */
+#define FG_PG_POOL 4
+/* Longest PostgreSQL store URL kept (libpq reads the URL itself). */
+#define FG_PG_URL_MAX 4096
+/* How long one statement, one wait for a row lock, and one connection
+ * attempt may take: a database that hangs must not hold a connection (and
+ * so, once all are taken, every request) for ever. A URL's own
+ * connect_timeout wins. */
+#define FG_PG_STATEMENT_TIMEOUT_MS 30000
+#define FG_PG_LOCK_TIMEOUT_MS 10000
+#define FG_PG_CONNECT_TIMEOUT_S "10"
+/* After a failed reconnection, calls on that connection fail at once for
+ * this long instead of each trying again (and waiting out the connect
+ * time-out). */
+#define FG_PG_RETRY_MS 1000
+/* How often a daemon on a shared store says it is alive, how often it
+ * looks for checks of replicas that stopped doing so, and how long a
+ * silent replica counts as alive: a few missed beats (a database
+ * failover, a long pause) must not interrupt a replica's checks, and a
+ * dead replica's checks should not stay `running` for long. */
+#define FG_REPLICA_HEARTBEAT_MS 2000
+#define FG_REPLICA_SWEEP_MS 5000
+#define FG_REPLICA_STALE_S 10
+/* Instance rows silent this long are removed by the sweep. */
+#define FG_REPLICA_KEEP_S 86400
 
 /* ---- the command line ---- */
 /* Parameters of one sample-size question at most (each --name value). */

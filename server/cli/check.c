@@ -21,8 +21,9 @@ static void check_usage(FILE *f) {
   fprintf(f,
           "usage: feasgate check MODEL.json REQUEST.json [--samples N] "
           "[--seed S]\n"
-          "                      [--workers N] [--chunk N] [--summary] "
-          "[--rows N]\n"
+          "                      [--exact auto|off|only] [--workers N] "
+          "[--chunk N]\n"
+          "                      [--summary] [--rows N]\n"
           "       feasgate check --server URL [--key KEY] [--timeout S] "
           "[--cacert FILE]\n"
           "                      [--summary] [--rows N] MODEL_NAME "
@@ -30,7 +31,9 @@ static void check_usage(FILE *f) {
           "Runs the check of REQUEST.json (the body of POST "
           "/v1/models/{name}/checks)\nagainst the model and prints the "
           "result as JSON, or with --summary as a\ntable (at most --rows N "
-          "rows, default %d). --samples and --seed override\nthe request's; "
+          "rows, default %d). --samples, --seed and --exact override\nthe "
+          "request's (--exact only: no simulation, the verdict from the exact "
+          "path);\n"
           "--workers defaults to the processors online, --chunk to %d\n"
           "(a multiple of %d from %d to %d). `feasgate check --server URL "
           "--help`\ndescribes the remote form. Exit status: 0 pass, 1 fail, "
@@ -45,6 +48,7 @@ int fg_check_command(int argc, char **argv) {
   uint64_t samples = 0, seed = 0, workers = 0, chunk = FG_CHUNK_DEFAULT;
   uint64_t rows = FG_SUMMARY_ROWS_DEFAULT;
   bool has_samples = false, has_seed = false, summary = false;
+  const char *exact = NULL;
   for (int i = 1; i < argc; i++) {
     const char *a = argv[i];
     if (strcmp(a, "--help") == 0 || strcmp(a, "-h") == 0) {
@@ -86,12 +90,20 @@ int fg_check_command(int argc, char **argv) {
                 FG_BLOCK, FG_CHUNK_MIN, FG_CHUNK_MAX, argv[i]);
         return FG_EXIT_USAGE;
       }
+    } else if (strcmp(a, "--exact") == 0 && i + 1 < argc) {
+      exact = argv[++i];
+      if (strcmp(exact, "auto") && strcmp(exact, "off") &&
+          strcmp(exact, "only")) {
+        fprintf(stderr, "feasgate check: --exact: expected auto, off or only, "
+                        "found '%s'\n", exact);
+        return FG_EXIT_USAGE;
+      }
     } else if (strcmp(a, "--summary") == 0) {
       summary = true;
     } else if (a[0] == '-' && a[1]) {
       bool known = !strcmp(a, "--samples") || !strcmp(a, "--seed") ||
                    !strcmp(a, "--workers") || !strcmp(a, "--chunk") ||
-                   !strcmp(a, "--rows");
+                   !strcmp(a, "--rows") || !strcmp(a, "--exact");
       fprintf(stderr, "feasgate check: %s: %s (see feasgate check --help)\n",
               a, known ? "expected a value after it" : "unknown option");
       return FG_EXIT_USAGE;
@@ -141,6 +153,10 @@ int fg_check_command(int argc, char **argv) {
   if (has_seed) {
     cJSON_DeleteItemFromObject(body, "seed");
     cJSON_AddNumberToObject(body, "seed", (double)seed);
+  }
+  if (exact && cJSON_IsObject(body)) {
+    cJSON_DeleteItemFromObject(body, "exact");
+    cJSON_AddStringToObject(body, "exact", exact);
   }
   if (fg_request_parse(m, body, &lim, &req, &p) != FG_OK) {
     fg_cli_print_problem(files[1], &p, NULL, 0);

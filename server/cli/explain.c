@@ -15,12 +15,11 @@
 #include <stdlib.h>
 #include <string.h>
 
-static void usage(FILE *f) {
-  fprintf(f, "usage: feasgate explain MODEL.json REQUEST.json --index I\n"
-          "Prints sample I of the check REQUEST.json describes (its "
-          "\"seed\" is needed):\nthe inputs drawn, the definitions and "
-          "every row's excess, as JSON.\n");
-}
+static const char usage_text[] =
+    "usage: feasgate explain MODEL.json REQUEST.json --index I\n"
+    "Prints sample I of the check REQUEST.json describes (its "
+    "\"seed\" is needed):\nthe inputs drawn, the definitions and "
+    "every row's excess, as JSON.\n";
 
 int fg_explain_command(int argc, char **argv) {
   const char *files[2] = {NULL, NULL};
@@ -28,7 +27,7 @@ int fg_explain_command(int argc, char **argv) {
   const char *index_text = NULL;
   for (int i = 1; i < argc; i++) {
     if (strcmp(argv[i], "--help") == 0) {
-      usage(stdout);
+      fputs(usage_text, stdout);
       return 0;
     }
     if (strcmp(argv[i], "--index") == 0 && i + 1 < argc) {
@@ -48,7 +47,7 @@ int fg_explain_command(int argc, char **argv) {
   uint64_t index = 0;
   if (nfiles != 2 || !index_text ||
       !fg_explain_parse_index(index_text, &index)) {
-    usage(stderr);
+    fputs(usage_text, stderr);
     return 3;
   }
   int rc = 3;

@@ -17,18 +17,17 @@
 #include <string.h>
 #include <unistd.h>
 
-static void usage(FILE *f) {
-  fprintf(f, "usage: feasgate replay --store STORE CHECK_ID\n"
-          "Re-runs a logged check's request on its model version and "
-          "prints whether\nevery count is reproduced (exit 0) or not "
-          "(exit 1).\n");
-}
+/* FEASGATE_STORE stands in for --store. */
+static const char usage_text[] =
+    "usage: feasgate replay --store STORE CHECK_ID\n"
+    "Re-runs a logged check's request on its model version and prints "
+    "whether\nevery count is reproduced (exit 0) or not (exit 1).\n";
 
 int fg_replay_command(int argc, char **argv) {
   const char *url = getenv("FEASGATE_STORE"), *id = NULL;
   for (int i = 1; i < argc; i++) {
     if (strcmp(argv[i], "--help") == 0) {
-      usage(stdout);
+      fputs(usage_text, stdout);
       return 0;
     }
     if (strcmp(argv[i], "--store") == 0 && i + 1 < argc) url = argv[++i];
@@ -36,7 +35,7 @@ int fg_replay_command(int argc, char **argv) {
     else id = NULL, url = NULL, i = argc;
   }
   if (!url || !id) {
-    usage(stderr);
+    fputs(usage_text, stderr);
     return 3;
   }
   fg_problem p;

@@ -77,6 +77,16 @@ void fg_summary_print(FILE *f, const cJSON *res, int max_rows) {
           cJSON_IsTrue(cJSON_GetObjectItem(res, "stopped_early"))
               ? ", stopped early"
               : "");
+  const cJSON *jx = cJSON_GetObjectItem(j, "exact");
+  if (cJSON_IsNumber(cJSON_GetObjectItem(jx, "probability")))
+    fprintf(f, "exact      %.6f +- %.2g (%s)%s\n", num(jx, "probability"),
+            num(jx, "error"), str(jx, "method"),
+            strcmp(str(res, "exact"), "only") == 0
+                ? ", the verdict's basis: no samples drawn"
+                : "");
+  else if (cJSON_GetStringValue(cJSON_GetObjectItem(jx, "not_applicable")))
+    fprintf(f, "exact      not applicable: %s\n",
+            str(jx, "not_applicable"));
   const cJSON *settle = cJSON_GetObjectItem(res, "samples_to_settle");
   if (cJSON_IsNumber(settle))
     fprintf(f, "settle     about %.0f samples in all would settle the "

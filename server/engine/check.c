@@ -4,9 +4,11 @@
  *
  * Life of a check: fg_check_start() copies the request, runs the setup
  * stream once (decision arithmetic, deterministic rows: no sampling),
- * records decision bound and integrality problems, and queues the check
- * on the pool (state QUEUED) with its in-sample evaluation, if asked, as
- * the first task. Workers move it to RUNNING and merge chunk tallies,
+ * records decision bound and integrality problems, prepares the exact
+ * path (exact.c), and queues the check on the pool (state QUEUED) with
+ * its exact computation (when the model qualifies) and its in-sample
+ * evaluation (if asked) as the first tasks. With "exact": "only" there are
+ * no chunks: the exact task alone makes the figures (finalize_exact_only). Workers move it to RUNNING and merge chunk tallies,
  * publishing a progress snapshot at each merge; when the last chunk is
  * merged, or the check was cancelled or ran out of time and no worker is
  * on it (or its worker is stuck, pool.c), the thread that ends it calls
@@ -317,6 +319,7 @@ void fg_check_free_internal(struct fg_check *c) {
   free(c->setup_regs);
   fg_rowplan_free(c->plan);
   fg_exact_result_free(&c->exact);
+  fg_exact_prep_free(&c->exact_prep);
   fg_request_free(&c->req);
   pthread_cond_destroy(&c->done_cv);
   pthread_mutex_destroy(&c->end_mu);
@@ -349,6 +352,9 @@ static fg_interval interval_of(fg_interval_method m, uint64_t k, uint64_t n,
 static int row_cmp(const void *pa, const void *pb) {
   const fg_row_result *a = pa, *b = pb;
   if (a->violated != b->violated) return a->violated > b->violated ? -1 : 1;
+  /* (exact only: no counts; the exact violation probability decides) */
+  if (a->probability > b->probability) return -1;
+  if (a->probability < b->probability) return 1;
   if (a->excess_mean != b->excess_mean)
     return a->excess_mean > b->excess_mean ? -1 : 1;
   return a->row - b->row;
@@ -409,9 +415,60 @@ static void drivers_of(const fg_tally *t, int slot, uint64_t nviol,
   }
 }
 
+/* Exact only: the figures come from the exact path. The joint
+ * probability is the exact one and the interval [p - error, p + error]
+ * (clipped to [0, 1]), so the verdict rule reads as stated for "only":
+ * pass when p - error >= target, fail when p + error < target (or a
+ * deterministic problem), else inconclusive. No sample, so no standard
+ * error, excess, slack or failing scenario. */
+static void finalize_exact_only(struct fg_check *c) {
+  const fg_exact_result *e = &c->exact;
+  bool have = e->qualifies && atomic_load(&c->exact_whole);
+  c->probability = have ? e->probability : NAN;
+  c->std_error = NAN;
+  /* without an answer (cancelled, timed out) the interval says nothing:
+   * [0, 1], as for a simulation that merged no sample */
+  c->interval.lower = have ? fmax(0.0, e->probability - e->error) : 0.0;
+  c->interval.upper = have ? fmin(1.0, e->probability + e->error) : 1.0;
+  if (c->ndet > 0)
+    c->verdict = FG_VERDICT_FAIL;
+  else if (!have)
+    c->verdict = FG_VERDICT_INCONCLUSIVE;
+  else
+    c->verdict = (fg_verdict)fg_verdict_rule(c->interval, c->req.target, false);
+  c->samples_to_settle = 0;
+  c->total.nfail = 0;
+  c->rows = calloc((size_t)c->info.nrows + 1, sizeof *c->rows);
+  if (c->rows) {
+    for (int r = 0; r < c->info.nrows; r++) {
+      fg_row_result *rr = &c->rows[r];
+      rr->row = r;
+      double p = have ? e->row_probability[r] : NAN;
+      double er = have ? e->row_error[r] : NAN;
+      rr->probability = p;
+      rr->interval.lower = fmax(0.0, p - er);
+      rr->interval.upper = fmin(1.0, p + er);
+      if (!have) rr->interval.lower = 0.0, rr->interval.upper = 1.0;
+      rr->excess_mean = rr->excess_mean_if_violated = NAN;
+      rr->excess_p95 = rr->excess_max = NAN;
+      rr->slack_to_target = NAN;
+    }
+    qsort(c->rows, (size_t)c->info.nrows, sizeof *c->rows, row_cmp);
+  }
+  c->has_objective = c->info.objective_reg >= 0;
+  c->objective = c->has_objective && c->info.objective_deterministic
+                     ? c->setup_regs[c->info.objective_reg]
+                     : NAN;
+}
+
 /* Under merge_mu, once the end is decided: the end-of-run figures. */
 static void finalize(struct fg_check *c) {
   fg_fault_slow_interval(c->req.seed);
+  if (c->req.exact == FG_EXACT_ONLY) {
+    c->elapsed_ms = (fg_time_monotonic() - c->t_start) * 1000.0;
+    finalize_exact_only(c);
+    return;
+  }
   const fg_tally *t = &c->total;
   uint64_t n = t->n, k = t->satisfied;
   c->elapsed_ms = (fg_time_monotonic() - c->t_start) * 1000.0;
@@ -478,7 +535,8 @@ static void finalize(struct fg_check *c) {
 void fg_check_finish(struct fg_check *c) {
   pthread_mutex_lock(&c->merge_mu);
   bool all = atomic_load(&c->merged_chunks) == c->nchunks &&
-             (!c->has_in_sample || atomic_load(&c->in_sample_whole));
+             (!c->has_in_sample || atomic_load(&c->in_sample_whole)) &&
+             (!c->has_exact || atomic_load(&c->exact_whole));
   fg_check_state end;
   if (all || atomic_load(&c->frozen))
     end = FG_CHECK_DONE;
@@ -509,7 +567,9 @@ bool fg_check_get_outcome(fg_check *c, fg_check_outcome *o) {
   o->probability = c->probability;
   o->lower = c->interval.lower;
   o->upper = c->interval.upper;
-  if (!(o->samples > 0)) o->lower = o->upper = NAN;
+  if (!(o->samples > 0) &&
+      !(c->req.exact == FG_EXACT_ONLY && isfinite(c->probability)))
+    o->lower = o->upper = NAN;
   o->elapsed_ms = c->elapsed_ms;
   o->stopped_early = atomic_load(&c->stopped_early);
   o->forced = c->forced;
@@ -538,6 +598,7 @@ fg_status fg_check_start(fg_pool *pool, fg_model *m,
   atomic_init(&c->in_sample_count, 0);
   atomic_init(&c->in_sample_satisfied, 0);
   atomic_init(&c->in_sample_whole, false);
+  atomic_init(&c->exact_whole, false);
   atomic_init(&c->state, FG_CHECK_QUEUED);
   pthread_cond_init(&c->done_cv, NULL);
   pthread_mutex_init(&c->end_mu, NULL);
@@ -560,6 +621,14 @@ fg_status fg_check_start(fg_pool *pool, fg_model *m,
   c->cs.upper = 1.0;
   c->design = (fg_design)req->sampling;
   c->samples_requested = req->samples;
+  if (req->exact == FG_EXACT_ONLY) {
+    /* no simulation: no chunks (fg_exact_request_check refused every
+     * member that would need one) */
+    c->req.samples = 0;
+    c->samples_requested = 0;
+    c->nchunks = 0;
+    c->req.keep_outcomes = false;
+  }
   if (c->design == FG_DESIGN_ANTITHETIC) {
     c->req.samples = req->samples & ~1ull; /* whole pairs */
     c->nchunks = (c->req.samples + (uint64_t)c->chunk - 1) / (uint64_t)c->chunk;
@@ -637,16 +706,22 @@ fg_status fg_check_start(fg_pool *pool, fg_model *m,
   fg_program_run_setup(m->program, c->setup_regs);
   check_decisions(c);
 
-  /* The exact path (exact.c): here, on the calling thread, before the
-   * check is queued or visible, so no lock is held; its work is bounded
-   * by FG_EXACT_WORK_MAX (about a second at most), not by the check's
-   * cancel flag or deadline. */
+  /* The exact path (exact.c): prepared here (half-rows, qualification,
+   * factor rows: bounded by the size limits), computed by the check's
+   * first task on the pool under its cancel flag and deadline. */
   c->exact.bad_row = -1;
   if (c->req.exact != FG_EXACT_OFF) {
-    double t0 = fg_time_monotonic();
-    if (fg_exact_compute(m, c->setup_regs, c->req.seed, &c->exact) != FG_OK)
+    if (fg_exact_prepare(m, c->setup_regs, &c->exact_prep, &c->exact) != FG_OK)
       goto oom;
-    c->exact.elapsed_ms = (fg_time_monotonic() - t0) * 1000.0;
+    if (c->exact.qualifies) {
+      c->has_exact = true;
+      c->exact_task = 1;
+    } else if (c->req.exact == FG_EXACT_ONLY) {
+      /* fg_request_parse refuses this first; a caller that skipped it */
+      fg_status st = fg_exact_refusal(m, &c->exact, p);
+      fg_check_free_internal(c);
+      return st;
+    }
   }
 
   /* The row plan (rowplan.c): affine rows in jointly normal inputs folded

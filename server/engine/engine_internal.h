@@ -69,8 +69,15 @@ typedef struct fg_row_result {
 
 /* exact.c: the exact path's answer for one check. */
 typedef struct fg_exact_result {
-  bool qualifies;       /* computed; otherwise `why` says why not */
-  char why[160];
+  bool qualifies;       /* the model qualifies here; with the task done,
+                           the figures below are set */
+  char why[320];        /* why not (or why no answer), else "" */
+  char where[FG_POINTER_MAX]; /* pointer into the model (or "/exact" for a
+                                 limit) of what does not qualify */
+  int where_col;        /* column in that expression; 0 none */
+  bool over_limit;      /* a size limit was passed: */
+  fg_limit limit;       /* which one */
+  double limit_value;
   int bad_row;          /* first non-qualifying row, or -1 */
   double probability, error;
   int rank, rounds;
@@ -79,19 +86,49 @@ typedef struct fg_exact_result {
   const char *method;
   double *row_probability; /* per row: exact violation probability */
   double *row_error;
-  double elapsed_ms; /* time the computation took (fg_check_start) */
+  double elapsed_ms; /* time the computation took (its pool task) */
 } fg_exact_result;
 
+/* What fg_exact_prepare leaves for the pool task: nh half-rows of
+ * (c, g) over nu inputs, their rows, the inputs' means and factor rows
+ * (nu x nu, row j: u_j's coefficients on e). */
+typedef struct fg_exact_prep {
+  int nh, nu;
+  double *form;
+  int *row_of;
+  double *mean, *L;
+} fg_exact_prep;
+
 const char *fg_exact_mode_name(fg_exact_mode m);
-/* Computes the exact path at the decisions behind setup_regs (see
- * exact.c). FG_OK also when the model does not qualify (qualifies false). */
-fg_status fg_exact_compute(const fg_model *m, const double *setup_regs,
-                           uint64_t seed, fg_exact_result *out);
+/* The calling thread's part (see exact.c): FG_OK also when the model does
+ * not qualify (out->qualifies false, why / where / limit set; prep left
+ * empty). */
+fg_status fg_exact_prepare(const fg_model *m, const double *setup_regs,
+                           fg_exact_prep *prep, fg_exact_result *out);
+void fg_exact_prep_free(fg_exact_prep *p);
+/* The computation from a prepared system into out's figures; FG_ECANCELLED
+ * when the poll stopped it. */
+fg_status fg_exact_run(const fg_model *m, const fg_exact_prep *prep,
+                       uint64_t seed, const fg_mvn_poll *poll,
+                       fg_exact_result *out);
+/* The check's exact task on the pool (no lock held): false when the
+ * check's cancel flag or deadline stopped it. */
+struct fg_check;
+bool fg_exact_task(struct fg_check *c);
+/* The 400 of "exact": "only" for a model that does not qualify. */
+fg_status fg_exact_refusal(const fg_model *m, const fg_exact_result *e,
+                           fg_problem *p);
 void fg_exact_result_free(fg_exact_result *r);
 
 struct fg_check {
-  fg_exact_result exact; /* with req.exact != off: set by fg_check_start */
-  fg_rowplan *plan;      /* rowplan.c; NULL: the block stream */
+  /* The exact path (exact.c): prepared by fg_check_start; the figures are
+   * written by its pool task under merge_mu (read once ended). */
+  fg_exact_result exact;
+  fg_exact_prep exact_prep;
+  bool has_exact;           /* the exact task exists (set before queueing) */
+  int exact_task;           /* (pool) 0 none, 1 waiting, 2 running, 3 ended */
+  atomic_bool exact_whole;  /* the task computed its answer */
+  fg_rowplan *plan;         /* rowplan.c; NULL: the block stream */
   atomic_int refs;
   struct fg_pool *pool;
   fg_model *model;

@@ -189,7 +189,8 @@ fg_status fg_explain_scenario(const fg_model *m, const fg_check_request *req,
                    fg_sampling_name(req->sampling));
     return FG_EUNSUPPORTED;
   }
-  uint64_t samples = req->samples;
+  /* exact only: nothing was drawn, so no index is a sample */
+  uint64_t samples = req->exact == FG_EXACT_ONLY ? 0 : req->samples;
   if (design == FG_DESIGN_ANTITHETIC) samples &= ~1ull;
   if (index >= samples) {
     fg_problem_add(p, FG_EINVAL, "/index", 0,

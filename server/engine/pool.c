@@ -4,8 +4,9 @@
  *
  * Design: N worker threads share one mutex (pool->mu) and one condition
  * variable. Checks wait in arrival order in a list; a worker takes the next
- * task of the first check that has one it may claim (its in-sample
- * evaluation first, then its chunks), runs it without any lock, merges it
+ * task of the first check that has one it may claim (its exact
+ * computation first (exact.c), then its in-sample evaluation, then its
+ * chunks), runs it without any lock, merges it
  * under the check's own merge_mu, and only then takes pool->mu again to
  * count itself out. A check's sample range is cut into chunks of
  * pool->chunk samples; chunk c covers samples [c*chunk, (c+1)*chunk).
@@ -33,7 +34,7 @@
  * check, and the pool's counters (atomics, so probes read them without
  * it); nothing is computed under it. A worker holds no lock while it
  * simulates; it tests the check's cancel and timeout flags (atomics) once
- * per block. Workers touch no HTTP or store state.
+ * per block (the exact task every FG_EXACT_POLL_WORK work units). Workers touch no HTTP or store state.
  *
  * Exit: fg_pool_free waits FG_POOL_EXIT_WAIT_S for the workers to leave;
  * a worker still stuck then is detached and the pool's memory is left to
@@ -167,7 +168,7 @@ bool fg_engine_run_range(const struct fg_check *c, fg_sample_scratch *w,
 static struct fg_check *next_claimable(fg_pool *pool) {
   for (struct fg_check *c = pool->head; c; c = c->next_in_pool) {
     if (c->stop) continue;
-    if (c->in_sample_task == 1) return c;
+    if (c->exact_task == 1 || c->in_sample_task == 1) return c;
     uint64_t merged = atomic_load(&c->merged_chunks);
     if (c->next_chunk < c->nchunks &&
         c->next_chunk < merged + (uint64_t)c->window)
@@ -202,7 +203,8 @@ static void set_stop(struct fg_check *c) {
 static bool claim_end(fg_pool *pool, struct fg_check *c, bool force) {
   if (atomic_load(&c->ending)) return false;
   bool all = atomic_load(&c->merged_chunks) == c->nchunks &&
-             (c->in_sample_task == 0 || c->in_sample_task == 3);
+             (c->in_sample_task == 0 || c->in_sample_task == 3) &&
+             (c->exact_task == 0 || c->exact_task == 3);
   bool frozen = atomic_load(&c->frozen);
   if (!force) {
     if (frozen && c->active > 0) return false; /* wait for the last workers */
@@ -283,9 +285,14 @@ static void *worker_main(void *arg) {
     while (!(c = next_claimable(pool)) && !pool->stopping)
       pthread_cond_wait(&pool->work_cv, &pool->mu);
     if (!c) break;
-    bool in_sample = c->in_sample_task == 1;
+    /* a check's exact task first, then its in-sample evaluation, then
+     * its chunks */
+    bool exact = c->exact_task == 1;
+    bool in_sample = !exact && c->in_sample_task == 1;
     uint64_t idx = 0;
-    if (in_sample)
+    if (exact)
+      c->exact_task = 2;
+    else if (in_sample)
       c->in_sample_task = 2;
     else
       idx = c->next_chunk++;
@@ -297,13 +304,15 @@ static void *worker_main(void *arg) {
     pthread_mutex_unlock(&pool->mu);
 
     bool ok = true;
-    if (cur != c) {
+    if (cur != c && !exact) {
       if (cur) fg_check_unref(cur);
       cur = c;
       atomic_fetch_add(&c->refs, 1);
       ok = fg_eval_ctx_prepare(&ctx, c) == FG_OK;
     }
-    if (in_sample) {
+    if (exact) {
+      ok = fg_exact_task(c); /* exact.c; no lock held */
+    } else if (in_sample) {
       if (ok) ok = run_in_sample(&ctx, c);
     } else {
       int slot = (int)(idx % (uint64_t)c->window);
@@ -331,6 +340,7 @@ static void *worker_main(void *arg) {
     atomic_fetch_sub(&pool->busy, 1);
     c->active--;
     if (in_sample) c->in_sample_task = 3;
+    if (exact) c->exact_task = 3;
     if (!ok || atomic_load(&c->frozen)) set_stop(c);
     bool fin = claim_end(pool, c, false);
     pthread_cond_broadcast(&pool->work_cv);

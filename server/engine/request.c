@@ -223,9 +223,10 @@ fg_status fg_request_parse(const fg_model *m, const cJSON *body,
     const char *s = cJSON_GetStringValue(v);
     if (s && strcmp(s, "auto") == 0) out->exact = FG_EXACT_AUTO;
     else if (s && strcmp(s, "off") == 0) out->exact = FG_EXACT_OFF;
+    else if (s && strcmp(s, "only") == 0) out->exact = FG_EXACT_ONLY;
     else
       fg_problem_add(p, FG_EINVAL, "/exact", 0,
-                     "exact must be one of auto, off");
+                     "exact must be one of auto, off, only");
   }
   if ((v = cJSON_GetObjectItemCaseSensitive(body, "stop_early"))) {
     if (!cJSON_IsBool(v))
@@ -354,6 +355,10 @@ fg_status fg_request_parse(const fg_model *m, const cJSON *body,
                    "least 4");
   }
   if (p->nitems > before || p->status != FG_OK) goto fail;
+  /* last, on an otherwise valid request: it runs the setup stream */
+  if (out->exact == FG_EXACT_ONLY &&
+      fg_exact_request_check(m, out, p) != FG_OK)
+    goto fail;
   return FG_OK;
 fail:
   fg_request_free(out);

@@ -71,6 +71,7 @@ static void add_running(cJSON *o, struct fg_check *c) {
  * for Monte Carlo, the confidence sequence when stopping early, Student-t
  * intervals for coupled designs. */
 static const char *method_of(const struct fg_check *c) {
+  if (c->req.exact == FG_EXACT_ONLY) return "exact_error_bound";
   if (c->req.stop_early) return "confidence_sequence";
   if (c->design == FG_DESIGN_ANTITHETIC) return "antithetic_pairs_t";
   if (c->design != FG_DESIGN_MONTE_CARLO) return "replicates_t";
@@ -78,13 +79,22 @@ static const char *method_of(const struct fg_check *c) {
 }
 
 /* joint.exact (exact.c): the exact joint probability, or why there is
- * none; absent with "exact": "off". */
+ * none (not_applicable: the model does not qualify here; stopped: the
+ * check ended before the computation did); absent with "exact": "off".
+ * Read once the check has ended (its task wrote it before the end). */
 static void add_exact(cJSON *j, struct fg_check *c) {
   if (c->req.exact == FG_EXACT_OFF) return;
   cJSON *e = cJSON_AddObjectToObject(j, "exact");
   if (!c->exact.qualifies) {
     cJSON_AddNullToObject(e, "probability");
     cJSON_AddStringToObject(e, "not_applicable", c->exact.why);
+    return;
+  }
+  if (!atomic_load(&c->exact_whole)) {
+    cJSON_AddNullToObject(e, "probability");
+    cJSON_AddStringToObject(e, "stopped",
+                            "the check ended before the exact computation "
+                            "finished");
     return;
   }
   add_num(e, "probability", c->exact.probability);
@@ -129,13 +139,13 @@ static void add_rows(cJSON *o, struct fg_check *c) {
     cJSON_AddNumberToObject(r, "violated", (double)rr->violated);
     add_num(r, "probability", rr->probability);
     cJSON_AddItemToObject(r, "interval", interval_json(rr->interval, method));
-    if (c->exact.qualifies) {
+    if (c->exact.qualifies && atomic_load(&c->exact_whole)) {
       cJSON *e = cJSON_AddObjectToObject(r, "exact");
       add_num(e, "probability", c->exact.row_probability[rr->row]);
       add_num(e, "error", c->exact.row_error[rr->row]);
     }
     cJSON *ex = cJSON_AddObjectToObject(r, "excess");
-    add_num(ex, "mean", rr->excess_mean);
+    add_num(ex, "mean", rr->excess_mean); /* null with exact only */
     /* Given violation: undefined (null) for a row never violated. The
      * 95th percentile comes from the log histogram, within
      * FG_HIST_REL_ERROR (1/128) relative; mean and maximum are exact. */
@@ -257,6 +267,7 @@ cJSON *fg_check_result_json(fg_check *c, const fg_check_meta *meta) {
   cJSON_AddNumberToObject(o, "confidence", c->req.confidence);
   add_u64(o, "seed", c->req.seed);
   cJSON_AddStringToObject(o, "sampling", fg_sampling_name(c->req.sampling));
+  cJSON_AddStringToObject(o, "exact", fg_exact_mode_name(c->req.exact));
   cJSON_AddNumberToObject(o, "samples_requested",
                           (double)(c->samples_requested ? c->samples_requested
                                                         : c->req.samples));

@@ -319,6 +319,20 @@ fg_status fg_mvn_probability(const double *H, const double *b, int m, int n,
                              double target_error, uint64_t seed,
                              fg_mvn_result *out);
 
+/* Asked between steps of at most FG_EXACT_POLL_WORK work units (one
+ * pivot of the reduction, a run of lattice points): true stops the
+ * computation, which then returns FG_ECANCELLED. The answer of a
+ * computation that is not stopped does not depend on the polling. */
+typedef struct fg_mvn_poll {
+  bool (*stop)(void *ctx);
+  void *ctx;
+} fg_mvn_poll;
+
+/* fg_mvn_probability with a stop poll (poll may be NULL). */
+fg_status fg_mvn_probability_poll(const double *H, const double *b, int m,
+                                  int n, double target_error, uint64_t seed,
+                                  const fg_mvn_poll *poll, fg_mvn_result *out);
+
 /* The sample-size answer (GET /v1/sample-size, `feasgate sample-size`)
  * for `n` parameters given by name and text: the inputs echoed, "method"
  * and "samples" or "scenarios"/"epsilon" (sizes_json.c). Unknown,

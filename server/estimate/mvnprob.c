@@ -35,7 +35,9 @@
  *      independent uniform shifts s (splitmix64 from the caller's seed).
  *      The estimate is the mean over shifts; the error is
  *      FG_EXACT_ERROR_FACTOR standard errors of that mean.
- *   5. Rounds: FG_EXACT_POINTS_FIRST points per shift, doubling each round
+ *   5. Rounds: FG_EXACT_POINTS_FIRST points per shift (fewer, down to
+ *      FG_EXACT_POINTS_MIN, when one round would pass the work bound),
+ *      doubling each round
  *      (fresh shifts each round) until half the previous round's error
  *      is at most the target, at most FG_EXACT_ROUNDS_MAX rounds, and
  *      never past FG_EXACT_WORK_MAX work units in all (see step_cost). The answer is
@@ -46,6 +48,12 @@
  *
  * Accuracy: residuals below FG_MVN_TOL (1e-10 of a unit row) are dropped,
  * which moves the probability by far less than the target error.
+ *
+ * Stopping from outside (fg_mvn_probability_poll): the caller's poll is
+ * asked before every pivot step of the reduction and every
+ * FG_EXACT_POLL_WORK work units of lattice points, so a cancel is seen
+ * within a few milliseconds whatever the size; a stopped computation
+ * returns FG_ECANCELLED and no figures.
  *
  * Thread use: pure function of its arguments; any thread.
  */
@@ -166,9 +174,15 @@ static void primes(int n, int *p) {
 }
 
 /* Reduce (steps 1-2). Returns 0 when the system is ready, 1 when the
- * probability is decided (*decided), -1 out of memory. */
+ * probability is decided (*decided), -1 out of memory, -2 stopped by the
+ * poll (asked once per pivot step: at most about 6 m n multiply-adds,
+ * 1.6e6 at the size limits). */
+static bool stopped(const fg_mvn_poll *poll) {
+  return poll && poll->stop && poll->stop(poll->ctx);
+}
+
 static int reduce(const double *H, const double *b, int m, int n,
-                  mvn_sys *s, double *decided) {
+                  mvn_sys *s, double *decided, const fg_mvn_poll *poll) {
   double maxnorm = 0;
   for (int i = 0; i < m; i++) {
     double q = 0;
@@ -205,6 +219,7 @@ static int reduce(const double *H, const double *b, int m, int n,
   if (mm == 0) { *decided = 1.0; rc = 1; goto out; }
   int r = 0;
   for (int k = 0; k < n; k++) {
+    if (stopped(poll)) { rc = -2; goto out; }
     int piv = -1;
     double best = INFINITY;
     for (int i = 0; i < mm; i++) {
@@ -282,16 +297,22 @@ out:
 fg_status fg_mvn_probability(const double *H, const double *b, int m, int n,
                              double target_error, uint64_t seed,
                              fg_mvn_result *out) {
+  return fg_mvn_probability_poll(H, b, m, n, target_error, seed, NULL, out);
+}
+
+fg_status fg_mvn_probability_poll(const double *H, const double *b, int m,
+                                  int n, double target_error, uint64_t seed,
+                                  const fg_mvn_poll *poll, fg_mvn_result *out) {
   memset(out, 0, sizeof *out);
   out->method = "genz_lattice";
   if (m < 0 || n < 0 || m > FG_EXACT_ROWS_MAX || n > FG_EXACT_DIMS_MAX)
     return FG_ELIMIT;
   mvn_sys s = {0};
   double decided = 0;
-  int rc = reduce(H, b, m, n, &s, &decided);
+  int rc = reduce(H, b, m, n, &s, &decided, poll);
   if (rc < 0) {
     free(s.C), free(s.b), free(s.start);
-    return FG_ENOMEM;
+    return rc == -2 ? FG_ECANCELLED : FG_ENOMEM;
   }
   if (rc == 1) {
     out->probability = decided;
@@ -321,9 +342,21 @@ fg_status fg_mvn_probability(const double *H, const double *b, int m, int n,
    * variables (m * r multiply-adds at most) and per variable two normal
    * CDFs and a quantile, counted as FG_MVN_PHI_COST each */
   double step_cost = (double)s.m * (double)s.r + FG_MVN_PHI_COST * (double)s.r;
+  /* lattice points (each used twice, with its antithetic) between polls */
+  double per = FG_EXACT_POLL_WORK / (2.0 * step_cost);
+  uint64_t poll_every = per < 1 ? 1 : (uint64_t)per;
   double work = 0;
   uint64_t rng = seed ^ UINT64_C(0x6a09e667f3bcc909);
+  /* The first round always runs; it is cut below FG_EXACT_POINTS_FIRST
+   * when that many points would pass the work bound (large systems), so
+   * the bound holds from the first round on, but never below
+   * FG_EXACT_POINTS_MIN points per shift. */
   uint64_t npts = FG_EXACT_POINTS_FIRST;
+  {
+    double fit = FG_EXACT_WORK_MAX / (2.0 * FG_EXACT_SHIFTS * step_cost);
+    if (fit < (double)npts)
+      npts = fit > FG_EXACT_POINTS_MIN ? (uint64_t)fit : FG_EXACT_POINTS_MIN;
+  }
   double prev_error = -1;
   for (int round = 0; round < FG_EXACT_ROUNDS_MAX; round++) {
     double round_work = (double)npts * 2.0 * FG_EXACT_SHIFTS * step_cost;
@@ -335,6 +368,10 @@ fg_status fg_mvn_probability(const double *H, const double *b, int m, int n,
         shift[j] = (double)(splitmix64(&rng) >> 11) * 0x1.0p-53;
       double sum = 0;
       for (uint64_t i = 1; i <= npts; i++) {
+        if (i % poll_every == 0 && stopped(poll)) {
+          st = FG_ECANCELLED;
+          goto done;
+        }
         for (int j = 0; j < dim; j++) {
           double x = fmod((double)i * alpha[j] + shift[j], 1.0);
           x = fabs(2.0 * x - 1.0);

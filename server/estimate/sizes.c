@@ -53,6 +53,29 @@ static bool open_unit(double x) {
   return x > 0 && x < 1;
 }
 
+/* The limit `which` (of value max) exceeded by parameter `param` = v. */
+static fg_status over_limit(fg_problem *pr, fg_limit which, const char *param,
+                            uint64_t v, uint64_t max) {
+  return fg_problem_limit(
+      pr, "", which, (double)max, "%s %llu exceeds %s = %llu", param,
+      (unsigned long long)v, fg_limit_name(which), (unsigned long long)max);
+}
+
+/* ceil(n), at least 1, or the sample_size_samples limit naming `what`. */
+static fg_status whole_samples(double n, const char *what, double *samples,
+                               fg_problem *pr) {
+  n = ceil(n);
+  if (n < 1) n = 1;
+  if (!(n <= (double)FG_SIZE_SAMPLES_MAX))
+    return fg_problem_limit(pr, "", FG_LIMIT_SAMPLE_SIZE_SAMPLES,
+                            (double)FG_SIZE_SAMPLES_MAX,
+                            "%s needs %.3g samples, more than %s = %.0f", what,
+                            n, fg_limit_name(FG_LIMIT_SAMPLE_SIZE_SAMPLES),
+                            (double)FG_SIZE_SAMPLES_MAX);
+  *samples = n;
+  return FG_OK;
+}
+
 fg_status fg_size_half_width(double h, double confidence, double p,
                              double *samples, fg_problem *pr) {
   *samples = NAN;
@@ -74,16 +97,9 @@ fg_status fg_size_half_width(double h, double confidence, double p,
                           "found %g",
                           p);
   double z = z_upper((1 - confidence) / 2);
-  double n = ceil(z * z * p * (1 - p) / (h * h));
-  if (n < 1) n = 1;
-  if (!(n <= (double)FG_SIZE_SAMPLES_MAX))
-    return fg_problem_limit(pr, "", FG_LIMIT_SAMPLE_SIZE_SAMPLES,
-                            (double)FG_SIZE_SAMPLES_MAX,
-                            "half_width %g needs %.3g samples, more than "
-                            "sample_size_samples = %.0f",
-                            h, n, (double)FG_SIZE_SAMPLES_MAX);
-  *samples = n;
-  return FG_OK;
+  char what[64];
+  snprintf(what, sizeof what, "half_width %g", h);
+  return whole_samples(z * z * p * (1 - p) / (h * h), what, samples, pr);
 }
 
 fg_status fg_size_power(double target, double p, double confidence,
@@ -111,16 +127,9 @@ fg_status fg_size_power(double target, double p, double confidence,
   double za = z_upper((1 - confidence) / 2), zp = z_upper(1 - power);
   double r = (za * sqrt(target * (1 - target)) + zp * sqrt(p * (1 - p))) /
              (p - target);
-  double n = ceil(r * r);
-  if (n < 1) n = 1;
-  if (!(n <= (double)FG_SIZE_SAMPLES_MAX))
-    return fg_problem_limit(pr, "", FG_LIMIT_SAMPLE_SIZE_SAMPLES,
-                            (double)FG_SIZE_SAMPLES_MAX,
-                            "probability %g against target %g needs %.3g "
-                            "samples, more than sample_size_samples = %.0f",
-                            p, target, n, (double)FG_SIZE_SAMPLES_MAX);
-  *samples = n;
-  return FG_OK;
+  char what[96];
+  snprintf(what, sizeof what, "probability %g against target %g", p, target);
+  return whole_samples(r * r, what, samples, pr);
 }
 
 /* ---- the scenario-approach bound ---- */
@@ -170,17 +179,11 @@ static fg_status check_scenario_inputs(double beta, uint64_t d, uint64_t k,
                           "decisions must be at least 1, found %llu",
                           (unsigned long long)d);
   if (d > FG_SIZE_DECISIONS_MAX)
-    return fg_problem_limit(
-        pr, "", FG_LIMIT_SAMPLE_SIZE_DECISIONS, (double)FG_SIZE_DECISIONS_MAX,
-        "decisions %llu exceeds sample_size_decisions = "
-        "%llu",
-        (unsigned long long)d, (unsigned long long)FG_SIZE_DECISIONS_MAX);
+    return over_limit(pr, FG_LIMIT_SAMPLE_SIZE_DECISIONS, "decisions", d,
+                      FG_SIZE_DECISIONS_MAX);
   if (k > FG_SIZE_DISCARDED_MAX)
-    return fg_problem_limit(
-        pr, "", FG_LIMIT_SAMPLE_SIZE_DISCARDED, (double)FG_SIZE_DISCARDED_MAX,
-        "discarded %llu exceeds sample_size_discarded = "
-        "%llu",
-        (unsigned long long)k, (unsigned long long)FG_SIZE_DISCARDED_MAX);
+    return over_limit(pr, FG_LIMIT_SAMPLE_SIZE_DISCARDED, "discarded", k,
+                      FG_SIZE_DISCARDED_MAX);
   return FG_OK;
 }
 
@@ -224,11 +227,8 @@ fg_status fg_scenario_epsilon(uint64_t n, double beta, uint64_t d, uint64_t k,
   fg_status st = check_scenario_inputs(beta, d, k, pr);
   if (st != FG_OK) return st;
   if (n > FG_SIZE_SCENARIOS_MAX)
-    return fg_problem_limit(
-        pr, "", FG_LIMIT_SAMPLE_SIZE_SCENARIOS, (double)FG_SIZE_SCENARIOS_MAX,
-        "scenarios %llu exceeds sample_size_scenarios = "
-        "%llu",
-        (unsigned long long)n, (unsigned long long)FG_SIZE_SCENARIOS_MAX);
+    return over_limit(pr, FG_LIMIT_SAMPLE_SIZE_SCENARIOS, "scenarios", n,
+                      FG_SIZE_SCENARIOS_MAX);
   if (n <= k + d - 1)
     return fg_problem_add(pr, FG_EINVAL, "", 0,
                           "scenarios must exceed decisions + discarded - 1 = "

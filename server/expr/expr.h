@@ -183,5 +183,13 @@ void fg_program_affine_counts(const fg_program *prog, int *in_inputs,
 int fg_program_affine_halfrows(const fg_program *prog, const double *setup_regs,
                                double *out, int *row_of, int cap,
                                int *bad_row);
+/* For a row that is not affine in the uncertain inputs: the operation
+ * where that starts (affine_why.c) -- the source pointer of its
+ * expression ("/constraints/0/require", "/definitions/2/value", ...), the
+ * 1-based column there and the opcode's name ("mul", "exp", ...).
+ * Returns 0 when the row is affine (or out of memory). */
+int fg_program_affine_origin(const fg_program *prog, int row,
+                             const char **pointer, int *column,
+                             const char **op);
 
 #endif

@@ -541,6 +541,20 @@ static bool normalise_time(const char *s, char out[32]) {
   return true;
 }
 
+/* A filter given as `value`: into *dst when `ok`, else a 400 naming the
+ * parameter, what was expected and what was found; true when absent. */
+static bool filter(fg_resp *out, const char *name, const char *value, bool ok,
+                   const char *expected, const char **dst) {
+  if (!value) return true;
+  if (!ok) {
+    fg_resp_bad_param(out, name, "expected %s, found '%.64s'", expected,
+                      value);
+    return false;
+  }
+  *dst = value;
+  return true;
+}
+
 void fg_h_checks_list(fg_req *r, fg_resp *out) {
   list_query q;
   static const char *const names[] = {"model", "verdict", "since", "label",
@@ -555,54 +569,26 @@ void fg_h_checks_list(fg_req *r, fg_resp *out) {
     return;
   }
   fg_check_filter f = {.limit = FG_LIST_LIMIT_DEFAULT};
-  if (q.model) {
-    if (!fg_model_is_model_name(q.model)) {
-      fg_resp_bad_param(out, "model",
-                "expected a model name ([a-z0-9][a-z0-9_.-]{0,63}), found "
-                "'%.64s'",
-                q.model);
-      return;
-    }
-    f.model = q.model;
-  }
-  if (q.verdict) {
-    if (strcmp(q.verdict, "pass") && strcmp(q.verdict, "fail") &&
-        strcmp(q.verdict, "inconclusive")) {
-      fg_resp_bad_param(out, "verdict",
-                "expected pass, fail or inconclusive, found '%.32s'",
-                q.verdict);
-      return;
-    }
-    f.verdict = q.verdict;
-  }
   char since[32];
-  if (q.since) {
-    if (!normalise_time(q.since, since)) {
-      fg_resp_bad_param(out, "since",
-                "expected an RFC 3339 date-time such as "
-                "2026-12-01T21:40:00Z, found '%.64s'",
-                q.since);
-      return;
-    }
-    f.since = since;
-  }
-  if (q.label) {
-    if (strlen(q.label) > FG_LABEL_MAX) {
-      fg_resp_bad_param(out, "label", "longer than label_length");
-      return;
-    }
-    f.label = q.label;
-  }
-  if (q.key) {
-    if (!fg_key_name_valid(q.key)) {
-      fg_resp_bad_param(out, "key",
-                "expected an API key's name (as `feasgate keys list` shows "
-                "it), found '%.64s'",
-                q.key);
-      return;
-    }
-    f.key = q.key;
-  }
+  bool verdict_ok = q.verdict && (!strcmp(q.verdict, "pass") ||
+                                  !strcmp(q.verdict, "fail") ||
+                                  !strcmp(q.verdict, "inconclusive"));
+  if (!filter(out, "model", q.model, q.model && fg_model_is_model_name(q.model),
+              "a model name ([a-z0-9][a-z0-9_.-]{0,63})", &f.model) ||
+      !filter(out, "verdict", q.verdict, verdict_ok,
+              "pass, fail or inconclusive", &f.verdict) ||
+      !filter(out, "since", q.since, q.since && normalise_time(q.since, since),
+              "an RFC 3339 date-time such as 2026-12-01T21:40:00Z",
+              &f.since) ||
+      !filter(out, "label", q.label, q.label && strlen(q.label) <= FG_LABEL_MAX,
+              "a label of at most label_length characters", &f.label) ||
+      !filter(out, "key", q.key, q.key && fg_key_name_valid(q.key),
+              "an API key's name (as `feasgate keys list` shows it)",
+              &f.key) ||
+      !filter(out, "after", q.after, q.after && fg_http_is_id("chk_", q.after),
+              "the id of the last check seen (chk_...)", &f.after))
+    return;
+  if (f.since) f.since = since;
   if (q.limit) {
     char *end = NULL;
     errno = 0;
@@ -614,16 +600,6 @@ void fg_h_checks_list(fg_req *r, fg_resp *out) {
       return;
     }
     f.limit = (int)lim;
-  }
-  if (q.after) {
-    if (!fg_http_is_id("chk_", q.after)) {
-      fg_resp_bad_param(out, "after",
-                "expected the id of the last check seen (chk_...), found "
-                "'%.40s'",
-                q.after);
-      return;
-    }
-    f.after = q.after;
   }
 
   fg_problem p;

@@ -517,6 +517,18 @@ static bool valid_id(const char *id, fg_resp *out) {
   return false;
 }
 
+/* The stored row of comparison `id`; false after answering the problem
+ * (404 for an unknown id). */
+static bool read_row(fg_req *r, const char *id, fg_store_comparison *row,
+                     fg_resp *out) {
+  fg_problem p;
+  fg_problem_init(&p);
+  if (fg_store_get_comparison(r->srv->store, id, row, &p) == FG_OK)
+    return true;
+  fg_resp_problem(out, &p, 0);
+  return false;
+}
+
 void fg_h_comparison_get(fg_req *r, fg_resp *out) {
   const char *id = r->params[0];
   if (!valid_id(id, out)) return;
@@ -526,26 +538,16 @@ void fg_h_comparison_get(fg_req *r, fg_resp *out) {
     fg_comparison_unref(c);
     return;
   }
-  fg_problem p;
-  fg_problem_init(&p);
   fg_store_comparison row;
-  if (fg_store_get_comparison(r->srv->store, id, &row, &p) != FG_OK) {
-    fg_resp_problem(out, &p, 0);
-    return;
-  }
+  if (!read_row(r, id, &row, out)) return;
   answer_stored(r, &row, out);
   fg_store_comparison_clear(&row);
 }
 
 /* Another replica's comparison, read from the store (fg_replica_look). */
 static bool look_comparison(fg_req *r, const char *id, fg_resp *out) {
-  fg_problem p;
-  fg_problem_init(&p);
   fg_store_comparison row;
-  if (fg_store_get_comparison(r->srv->store, id, &row, &p) != FG_OK) {
-    fg_resp_problem(out, &p, 0);
-    return true;
-  }
+  if (!read_row(r, id, &row, out)) return true;
   bool answered = fg_check_state_parse(row.status) != FG_CHECK_RUNNING;
   if (answered) answer_stored(r, &row, out);
   fg_store_comparison_clear(&row);
@@ -596,13 +598,8 @@ void fg_h_comparison_cancel(fg_req *r, fg_resp *out) {
                      .deadline = fg_time_monotonic() + FG_HTTP_CANCEL_WAIT_S};
     return;
   }
-  fg_problem p;
-  fg_problem_init(&p);
   fg_store_comparison row;
-  if (fg_store_get_comparison(r->srv->store, id, &row, &p) != FG_OK) {
-    fg_resp_problem(out, &p, 0);
-    return;
-  }
+  if (!read_row(r, id, &row, out)) return;
   fg_check_state state = fg_check_state_parse(row.status);
   if (state == FG_CHECK_RUNNING && fg_store_shared(r->srv->store)) {
     /* Runs in another replica: ask it to cancel every candidate, then
@@ -611,6 +608,7 @@ void fg_h_comparison_cancel(fg_req *r, fg_resp *out) {
     const cJSON *cid;
     cJSON_ArrayForEach(cid, ids) {
       if (!cJSON_IsString(cid)) continue;
+      fg_problem p; /* a candidate already ended: nothing to ask */
       fg_problem_init(&p);
       fg_store_request_cancel(r->srv->store, cid->valuestring, &p);
     }

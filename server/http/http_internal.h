@@ -426,6 +426,11 @@ void fg_h_page_css(fg_req *r, fg_resp *out);
 /* The Content-Security-Policy and other browser headers of the page's
  * files (set when fg_resp.page). */
 void fg_page_headers(struct MHD_Response *mr);
+/* 200 with a copy of an embedded document (libmicrohttpd frees the body
+ * it is given; the documents are fetched rarely); false after a 503 when
+ * the copy cannot be made (page.c). */
+bool fg_resp_embedded(fg_resp *out, const unsigned char *doc, size_t len,
+                      const char *type);
 
 /* ---- registry.c: what runs here, by id; the watcher ---- */
 fg_status fg_registry_new(fg_store *store, fg_registry **out, fg_problem *p);

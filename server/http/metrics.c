@@ -350,18 +350,6 @@ void fg_h_metrics(fg_req *r, fg_resp *out) {
 }
 
 void fg_h_openapi(fg_req *r, fg_resp *out) {
-  /* libmicrohttpd frees the body it is given, so the answer is a copy of
-   * the embedded document (about 0.1 MB; fetched rarely). */
-  char *body = malloc(fg_openapi_doc_len + 1);
-  if (!body) {
-    fg_resp_error(out, 503, FG_ENOMEM,
-                  "out of memory copying the OpenAPI document");
-    return;
-  }
-  memcpy(body, fg_openapi_doc, fg_openapi_doc_len);
-  body[fg_openapi_doc_len] = '\0';
-  out->status = 200;
-  out->body = body;
-  out->len = fg_openapi_doc_len;
-  out->content_type = FG_CT_JSON;
+  (void)r;
+  fg_resp_embedded(out, fg_openapi_doc, fg_openapi_doc_len, FG_CT_JSON);
 }

@@ -42,13 +42,12 @@ void fg_page_headers(struct MHD_Response *mr) {
   MHD_add_response_header(mr, "X-Frame-Options", "DENY");
 }
 
-/* libmicrohttpd frees the body it is given: answer a copy. */
-static void send_copy(fg_resp *out, const unsigned char *doc, size_t len,
+bool fg_resp_embedded(fg_resp *out, const unsigned char *doc, size_t len,
                       const char *type) {
   char *body = malloc(len + 1);
   if (!body) {
-    fg_resp_error(out, 503, FG_ENOMEM, "out of memory copying the page");
-    return;
+    fg_resp_error(out, 503, FG_ENOMEM, "out of memory copying a document");
+    return false;
   }
   memcpy(body, doc, len);
   body[len] = '\0';
@@ -56,7 +55,13 @@ static void send_copy(fg_resp *out, const unsigned char *doc, size_t len,
   out->body = body;
   out->len = len;
   out->content_type = type;
-  out->page = true;
+  return true;
+}
+
+/* The page's own files carry the browser headers (fg_page_headers). */
+static void send_copy(fg_resp *out, const unsigned char *doc, size_t len,
+                      const char *type) {
+  if (fg_resp_embedded(out, doc, len, type)) out->page = true;
 }
 
 void fg_h_page(fg_req *r, fg_resp *out) {

@@ -33,27 +33,28 @@
 #include <stdlib.h>
 #include <string.h>
 
+/* True for FG_OK; otherwise the status is noted in cx and false. */
+static bool noted(fg_model_ctx *cx, fg_status st) {
+  if (st == FG_OK) return true;
+  fg_model_note(cx, st);
+  return false;
+}
+
 static void compile_expressions(const fg_model_plan *pl, fg_expr_compiler *c,
                                 fg_model_ctx *cx) {
   char ptr[FG_POINTER_MAX];
   bool declared = true;
   for (int i = 0; i < pl->ndecisions; i++) {
     fg_pointer_index(ptr, sizeof ptr, "/decisions", i);
-    fg_status st = fg_expr_declare_decision(c, pl->decisions[i].name,
-                                            pl->decisions[i].size, ptr, cx->p);
-    if (st != FG_OK) {
-      fg_model_note(cx, st);
-      declared = false;
-    }
+    declared &= noted(cx, fg_expr_declare_decision(c, pl->decisions[i].name,
+                                                   pl->decisions[i].size, ptr,
+                                                   cx->p));
   }
   for (int i = 0; i < pl->nuncertain; i++) {
     fg_pointer_index(ptr, sizeof ptr, "/uncertain", i);
-    fg_status st = fg_expr_declare_uncertain(c, pl->inputs[i].name,
-                                             pl->inputs[i].size, ptr, cx->p);
-    if (st != FG_OK) {
-      fg_model_note(cx, st);
-      declared = false;
-    }
+    declared &= noted(cx, fg_expr_declare_uncertain(c, pl->inputs[i].name,
+                                                    pl->inputs[i].size, ptr,
+                                                    cx->p));
   }
   if (!declared) return;
 

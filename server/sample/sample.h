@@ -69,6 +69,15 @@ int fg_sampler_integer_valued(const fg_sampler *s, int j);
  * offered here (its factor lives in the copula). */
 int fg_sampler_gaussian(const fg_sampler *s, int j, double *mean, int *group,
                         int *gsize, const double **lrow);
+/* Dimension j as a coordinate of one jointly normal vector (gaussian.c):
+ * 1 when it is an element of an untruncated `normal` input (inside a
+ * Gaussian copula or not) or of a `multivariate_normal` input; then
+ * x_j = *mean + sum_k row[k] e_k, e_k the independent standard normal of
+ * sampler dimension k (row: fg_sampler_dims values, written whole). 0
+ * otherwise, with *input the input's index in the document (-1 when j is
+ * out of range) and *why a sentence saying why. */
+int fg_sampler_gaussian_row(const fg_sampler *s, int j, double *mean,
+                            double *row, int *input, const char **why);
 
 fg_sample_scratch *fg_sample_scratch_new(const fg_sampler *s);
 void fg_sample_scratch_free(fg_sample_scratch *w);

@@ -1,15 +1,21 @@
 /*
  * store/store.c -- the public store handle: picks the backend by the URL's
- * scheme and forwards each call of store/store.h to it.
+ * scheme, and the calls of store/store.h that are no database operation
+ * (URL display, ping, the fault seam, freeing result structs).
  *
  *   sqlite:PATH                 sqlite.c (embedded, one daemon per file)
  *   postgresql://... or
  *   postgres://...              pgsql.c (shared by several replicas)
  *
- * Thread use: any thread; the backends serialise their connections.
+ * Where the rest is: models.c (versions, retiring), checks.c (checks,
+ * paging, progress notes, comparisons), keys.c (API keys), replicas.c
+ * (interrupted checks, heartbeat, sweep, cancel requests), sql.c (every
+ * statement and the schema), db.c (the helpers they share).
+ *
+ * Thread use: any thread; the backends hand each call its own connection.
  */
 #include "feasgate/clock.h"
-#include "store/backend.h"
+#include "store/db.h"
 
 #include <math.h>
 #include <stdint.h>
@@ -18,33 +24,33 @@
 #include <string.h>
 #include <time.h>
 
-struct fg_store {
-  const fg_store_ops *ops;
-  void *impl;
-};
-
 void fg_store_now_rfc3339(char buf[32]) {
   fg_time_now_rfc3339(buf, 32);
 }
 
 fg_status fg_store_open(const char *url, fg_store **out, fg_problem *p) {
   *out = NULL;
-  const fg_store_ops *ops = NULL;
+  const fg_backend *b = NULL;
   if (url && strncmp(url, "sqlite:", 7) == 0)
-    ops = &fg_store_sqlite_ops;
+    b = &fg_store_sqlite_backend;
   else if (url && (strncmp(url, "postgresql://", 13) == 0 ||
                    strncmp(url, "postgres://", 11) == 0))
-    ops = &fg_store_pgsql_ops;
-  if (!ops)
+    b = &fg_store_pgsql_backend;
+  if (!b)
     return fg_problem_set(p, FG_EINVAL,
                           "store URL '%s': expected sqlite:PATH or "
                           "postgresql://[user[:password]@]host[:port]/database",
                           url ? url : "(null)");
   fg_store *s = calloc(1, sizeof *s);
   if (!s) return fg_problem_set(p, FG_ENOMEM, "store: out of memory");
-  s->ops = ops;
-  fg_status st = ops->open(url, &s->impl, p);
+  s->b = b;
+  pthread_mutex_init(&s->lock, NULL);
+  pthread_cond_init(&s->stop_cv, NULL);
+  fg_status st = b->shared ? fg_replica_init(s, p) : FG_OK;
+  if (st == FG_OK) st = b->open(url, &s->db, p);
   if (st != FG_OK) {
+    pthread_cond_destroy(&s->stop_cv);
+    pthread_mutex_destroy(&s->lock);
     free(s);
     return st;
   }
@@ -54,7 +60,10 @@ fg_status fg_store_open(const char *url, fg_store **out, fg_problem *p) {
 
 void fg_store_close(fg_store *s) {
   if (!s) return;
-  s->ops->close(s->impl);
+  fg_replica_stop(s);
+  s->b->close(s->db);
+  pthread_cond_destroy(&s->stop_cv);
+  pthread_mutex_destroy(&s->lock);
   free(s);
 }
 
@@ -97,151 +106,30 @@ void fg_store_url_display(const char *url, char *out, size_t cap) {
 }
 
 const char *fg_store_scheme(const fg_store *s) {
-  return s->ops->scheme;
-}
-
-fg_status fg_store_ping(fg_store *s, fg_problem *p) {
-  return s->ops->ping(s->impl, p);
-}
-
-fg_status fg_store_put_version(fg_store *s, const char *name,
-                               const char *digest, const char *canonical,
-                               const char *title, fg_store_version *out,
-                               bool *created, fg_problem *p) {
-  return s->ops->put_version(s->impl, name, digest, canonical, title, out,
-                             created, p);
-}
-
-fg_status fg_store_get_version(fg_store *s, const char *name, int version,
-                               fg_store_version *out, fg_problem *p) {
-  if (version < 0) {
-    memset(out, 0, sizeof *out);
-    return fg_problem_set(p, FG_ENOTFOUND, "model '%s' has no version %d", name,
-                          version);
-  }
-  return s->ops->get_version(s->impl, name, version, out, p);
-}
-
-fg_status fg_store_list_models(fg_store *s, fg_store_version **out, int *n,
-                               fg_problem *p) {
-  return s->ops->list_models(s->impl, out, n, p);
-}
-
-fg_status fg_store_retire_model(fg_store *s, const char *name, fg_problem *p) {
-  return s->ops->retire_model(s->impl, name, p);
-}
-
-fg_status fg_store_put_check(fg_store *s, const fg_store_check *c,
-                             fg_problem *p) {
-  /* both backends keep seeds as signed 64-bit integers */
-  if (c->seed > (uint64_t)INT64_MAX)
-    return fg_problem_set(p, FG_EINVAL, "store: seed %llu out of range",
-                          (unsigned long long)c->seed);
-  return s->ops->put_check(s->impl, c, p);
-}
-
-fg_status fg_store_finish_check(fg_store *s, const fg_store_check *c,
-                                fg_problem *p) {
-  return s->ops->finish_check(s->impl, c, p);
-}
-
-fg_status fg_store_get_check(fg_store *s, const char *id, fg_store_check *out,
-                             fg_problem *p) {
-  return s->ops->get_check(s->impl, id, out, p);
-}
-
-fg_status fg_store_note_progress(fg_store *s, const char *id, const char *body,
-                                 fg_problem *p) {
-  return s->ops->note_progress(s->impl, id, body, p);
-}
-
-void fg_store_comparison_clear(fg_store_comparison *c) {
-  if (!c) return;
-  free(c->checks);
-  free(c->result);
-  c->checks = c->result = NULL;
-}
-
-fg_status fg_store_put_comparison(fg_store *s, const fg_store_comparison *c,
-                                  fg_problem *p) {
-  return s->ops->put_comparison(s->impl, c, p);
-}
-
-fg_status fg_store_finish_comparison(fg_store *s,
-                                     const fg_store_comparison *c,
-                                     fg_problem *p) {
-  return s->ops->finish_comparison(s->impl, c, p);
-}
-
-fg_status fg_store_get_comparison(fg_store *s, const char *id,
-                                  fg_store_comparison *out, fg_problem *p) {
-  return s->ops->get_comparison(s->impl, id, out, p);
+  return s->b->scheme;
 }
 
 bool fg_store_shared(const fg_store *s) {
-  return s->ops->shared;
+  return s->b->shared;
 }
 
-fg_status fg_store_request_cancel(fg_store *s, const char *id, fg_problem *p) {
-  if (!s->ops->request_cancel)
-    return fg_problem_set(p, FG_EUNSUPPORTED,
-                          "store: the %s store has no other replicas to ask",
-                          s->ops->scheme);
-  return s->ops->request_cancel(s->impl, id, p);
-}
-
-fg_status fg_store_cancel_requests(fg_store *s, char (*ids)[40], int cap,
-                                   int *n, fg_problem *p) {
-  *n = 0;
-  if (!s->ops->cancel_requests) return FG_OK;
-  return s->ops->cancel_requests(s->impl, ids, cap, n, p);
-}
-
-fg_status fg_store_list_checks(fg_store *s, const fg_check_filter *f,
-                               fg_store_check **out, int *n, char next[40],
-                               fg_problem *p) {
-  *out = NULL;
-  *n = 0;
-  next[0] = '\0';
-  fg_check_filter g = *f;
-  if (g.limit <= 0) g.limit = FG_LIST_LIMIT_DEFAULT;
-  if (g.limit > FG_LIST_LIMIT_MAX) g.limit = FG_LIST_LIMIT_MAX;
-  fg_store_check *arr = NULL;
-  int count = 0;
-  fg_status st = s->ops->list_checks(s->impl, &g, &arr, &count, p);
-  if (st != FG_OK) return st;
-  /* the backend read one more than a page: it tells whether more remain */
-  if (count > g.limit) {
-    fg_store_check_clear(&arr[g.limit]);
-    count = g.limit;
-    snprintf(next, 40, "%s", arr[g.limit - 1].id);
-  }
-  *out = arr;
-  *n = count;
-  return FG_OK;
-}
-
-fg_status fg_store_mark_interrupted(fg_store *s, int *count, fg_problem *p) {
-  return s->ops->mark_interrupted(s->impl, count, p);
+fg_status fg_store_ping(fg_store *s, fg_problem *p) {
+  fg_conn *c;
+  fg_status res = fg_db_enter(s, &c, p);
+  if (res != FG_OK) return res;
+  bool row = false;
+  res = fg_db_first(c, SQL_PING, NULL, 0, "ping", &row, p);
+  fg_db_done(c);
+  if (res == FG_OK && !row)
+    res = fg_problem_set(p, FG_EIO, "store ping: no answer");
+  fg_db_leave(c);
+  return res;
 }
 
 void fg_store_inject_write_fault(fg_store *s, int nth) {
-  s->ops->inject_write_fault(s->impl, nth);
-}
-
-fg_status fg_store_put_key(fg_store *s, const fg_store_key *k, fg_problem *p) {
-  fg_store_key full = *k;
-  if (!full.created_at[0]) fg_store_now_rfc3339(full.created_at);
-  return s->ops->put_key(s->impl, &full, p);
-}
-
-fg_status fg_store_list_keys(fg_store *s, bool live_only, fg_store_key **out,
-                             int *n, fg_problem *p) {
-  return s->ops->list_keys(s->impl, live_only, out, n, p);
-}
-
-fg_status fg_store_revoke_key(fg_store *s, const char *name, fg_problem *p) {
-  return s->ops->revoke_key(s->impl, name, p);
+  pthread_mutex_lock(&s->lock);
+  s->fail_countdown = nth > 0 ? nth : 0;
+  pthread_mutex_unlock(&s->lock);
 }
 
 /* ---- result structs ---- */
@@ -273,4 +161,11 @@ void fg_store_checks_free(fg_store_check *c, int n) {
   for (int i = 0; i < n; i++)
     fg_store_check_clear(&c[i]);
   free(c);
+}
+
+void fg_store_comparison_clear(fg_store_comparison *c) {
+  if (!c) return;
+  free(c->checks);
+  free(c->result);
+  c->checks = c->result = NULL;
 }

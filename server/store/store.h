@@ -1,7 +1,9 @@
 /*
  * store/store.h -- the one storage interface (prefix fg_store_).
  *
- * Backends (store.c picks one by the URL's scheme):
+ * Backends (store.c picks one by the URL's scheme; each operation below is
+ * written once, in models.c, checks.c, keys.c and replicas.c, over the
+ * seam in backend.h):
  *   SQLite (sqlite.c, "sqlite:PATH", the embedded default; WAL, foreign
  *   keys on, every statement prepared, every write inside a transaction;
  *   one daemon per file);
@@ -23,8 +25,9 @@
  *                candidates' check ids (JSON array), result JSON,
  *                created_at, finished_at (each candidate is also a check)
  *
- * Thread use: one fg_store may be used by several threads; the backend
- * serialises access internally (one connection guarded by a mutex).
+ * Thread use: one fg_store may be used by several threads; each call holds
+ * a connection of its own for its duration (SQLite: the one connection,
+ * guarded by a mutex; PostgreSQL: one of a small pool).
  * Strings returned inside result structs are malloc'd and freed by the
  * matching _clear / _free function.
  */
@@ -179,7 +182,7 @@ void fg_store_checks_free(fg_store_check *c, int n);
  * that is gone become "interrupted"; *count says how many. SQLite: every
  * running check (one daemon per file). PostgreSQL: this registers the
  * daemon as an instance and starts its heartbeat; running checks of
- * instances silent for FG_PG_STALE_S (pgsql.c) are marked now and by a
+ * instances silent for FG_REPLICA_STALE_S (limits.h) are marked now and by a
  * sweep every few seconds for as long as the store is open. */
 fg_status fg_store_mark_interrupted(fg_store *s, int *count, fg_problem *p);
 

@@ -13,7 +13,7 @@ through the store, picked up by the owner within a second), and
 the other reports its progress (noted in the store every second). A
 detached check left running when its replica is killed (SIGKILL) is
 marked interrupted by the surviving replica's sweep within the stale window
-plus a sweep period (store/pgsql.c: 10 s + 5 s), and the survivor stays
+plus a sweep period (store/replicas.c: 10 s + 5 s), and the survivor stays
 ready throughout. When the database refuses the survivor, GET /v1/ready is
 503 naming the store, and a check that ends meanwhile is answered from
 memory; once the database accepts again the replica reconnects by itself,

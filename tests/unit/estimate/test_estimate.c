@@ -9,6 +9,7 @@
 
 #include <gsl/gsl_randist.h>
 #include <gsl/gsl_rng.h>
+#include <math.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -461,7 +462,58 @@ static void test_confidence_sequence(void) {
   gsl_rng_free(r);
 }
 
+/* The exact path's stop poll (mvnprob.c): a poll that never stops
+ * changes nothing (the same bits as without one); the polls come often
+ * enough that the lattice work per poll is at most FG_EXACT_POLL_WORK units
+ * on average (mvnprob.c bounds each stretch by construction); a poll that says stop ends the
+ * computation at that poll with FG_ECANCELLED. */
+typedef struct poll_count {
+  long calls, stop_at;
+} poll_count;
+
+static bool count_poll(void *ctx) {
+  poll_count *pc = ctx;
+  pc->calls++;
+  return pc->stop_at > 0 && pc->calls >= pc->stop_at;
+}
+
+static void test_mvn_poll(void) {
+  enum { M = 120, N = 40 };
+  static double H[M * N], b[M];
+  gsl_rng *r = gsl_rng_alloc(gsl_rng_mt19937);
+  gsl_rng_set(r, 17);
+  for (int i = 0; i < M; i++) {
+    for (int j = 0; j < N; j++) H[i * N + j] = gsl_ran_gaussian(r, 1.0);
+    b[i] = 3.0 * sqrt((double)N) * 0.5 + gsl_rng_uniform(r);
+  }
+  gsl_rng_free(r);
+  fg_mvn_result plain, polled, stopped;
+  CHECK(fg_mvn_probability(H, b, M, N, 2e-5, 99, &plain) == FG_OK);
+  poll_count pc = {0, 0};
+  fg_mvn_poll poll = {count_poll, &pc};
+  CHECK(fg_mvn_probability_poll(H, b, M, N, 2e-5, 99, &poll, &polled) ==
+        FG_OK);
+  CHECK(memcmp(&plain.probability, &polled.probability, sizeof(double)) == 0);
+  CHECK(memcmp(&plain.error, &polled.error, sizeof(double)) == 0);
+  CHECK(plain.points == polled.points && plain.rank == polled.rank);
+  /* work of the lattice rounds, as mvnprob.c counts it */
+  double step = (double)polled.rows * polled.rank + 30.0 * polled.rank;
+  double work = 0;
+  for (uint64_t pts = polled.points;
+       pts >= 2u * FG_EXACT_SHIFTS * FG_EXACT_POINTS_FIRST; pts /= 2)
+    work += (double)pts * step;
+  CHECK_MSG(work / (double)pc.calls <= FG_EXACT_POLL_WORK,
+            "%.3g work units per poll (%ld polls)", work / (double)pc.calls,
+            pc.calls);
+  poll_count stop = {0, 7};
+  fg_mvn_poll sp = {count_poll, &stop};
+  CHECK(fg_mvn_probability_poll(H, b, M, N, 2e-5, 99, &sp, &stopped) ==
+        FG_ECANCELLED);
+  CHECK(stop.calls == 7);
+}
+
 int main(void) {
+  test_mvn_poll();
   test_confidence_sequence();
   test_tally_numeric();
   test_cs_extreme();
