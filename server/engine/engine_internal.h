@@ -128,7 +128,7 @@ struct fg_check {
   bool has_exact;           /* the exact task exists (set before queueing) */
   int exact_task;           /* (pool) 0 none, 1 waiting, 2 running, 3 ended */
   atomic_bool exact_whole;  /* the task computed its answer */
-  fg_rowplan *plan;          /* rowplan.c; NULL: the block stream */
+  fg_rowplan *plan;         /* rowplan.c; NULL: the block stream */
   atomic_int refs;
   struct fg_pool *pool;
   fg_model *model;
