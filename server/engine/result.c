@@ -164,6 +164,20 @@ static void add_rows(cJSON *o, struct fg_check *c) {
   }
 }
 
+/* One numeric.problems entry for a non-finite draw of input `col`. */
+static void add_input_problem(cJSON *probs, const char *col,
+                              const char *stream, uint64_t first,
+                              uint64_t count, const char *msg) {
+  cJSON *pr = cJSON_CreateObject();
+  cJSON_AddStringToObject(pr, "name", col ? col : "?");
+  cJSON_AddStringToObject(pr, "kind", "input");
+  cJSON_AddStringToObject(pr, "stream", stream);
+  add_u64(pr, "index", first);
+  add_u64(pr, "count", count);
+  cJSON_AddStringToObject(pr, "message", msg);
+  cJSON_AddItemToArray(probs, pr);
+}
+
 /* "numeric": what IEEE arithmetic left undecided, in the style of
  * "deterministic": non-finite draws of an uncertain input (the first by
  * sample index, which does not depend on workers or chunk sizes), those of
@@ -189,14 +203,8 @@ static void add_numeric(cJSON *o, struct fg_check *c, bool ended) {
              "about the plan, so the verdict is inconclusive",
              col ? col : "?", (unsigned long long)t->bad_draw_first,
              (unsigned long long)t->bad_draws);
-    cJSON *pr = cJSON_CreateObject();
-    cJSON_AddStringToObject(pr, "name", col ? col : "?");
-    cJSON_AddStringToObject(pr, "kind", "input");
-    cJSON_AddStringToObject(pr, "stream", "validation");
-    add_u64(pr, "index", t->bad_draw_first);
-    add_u64(pr, "count", t->bad_draws);
-    cJSON_AddStringToObject(pr, "message", msg);
-    cJSON_AddItemToArray(probs, pr);
+    add_input_problem(probs, col, "validation", t->bad_draw_first,
+                      t->bad_draws, msg);
     listed++;
   }
   if (ended && c->in_sample_bad_draws > 0) {
@@ -208,14 +216,8 @@ static void add_numeric(cJSON *o, struct fg_check *c, bool ended) {
              "all); its in_sample figures say nothing about the plan",
              col ? col : "?", (unsigned long long)c->in_sample_bad_first,
              (unsigned long long)c->in_sample_bad_draws);
-    cJSON *pr = cJSON_CreateObject();
-    cJSON_AddStringToObject(pr, "name", col ? col : "?");
-    cJSON_AddStringToObject(pr, "kind", "input");
-    cJSON_AddStringToObject(pr, "stream", "design");
-    add_u64(pr, "index", c->in_sample_bad_first);
-    add_u64(pr, "count", c->in_sample_bad_draws);
-    cJSON_AddStringToObject(pr, "message", msg);
-    cJSON_AddItemToArray(probs, pr);
+    add_input_problem(probs, col, "design", c->in_sample_bad_first,
+                      c->in_sample_bad_draws, msg);
     listed++;
   }
   for (int r = 0; ended && r < t->nrows; r++) {
