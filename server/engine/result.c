@@ -195,29 +195,32 @@ static void add_numeric(cJSON *o, struct fg_check *c, bool ended) {
   cJSON *probs = cJSON_AddArrayToObject(num, "problems");
   int listed = 0, dropped = 0;
   char msg[320];
-  if (ended && t->bad_draws > 0) {
-    const char *col = fg_sampler_column(c->model->sampler, t->bad_draw_column);
+  /* Non-finite draws: the check's own samples, then the in-sample
+   * evaluation's design scenarios. */
+  const struct {
+    uint64_t count, first;
+    int column;
+    const char *stream, *where, *consequence;
+  } draws[] = {
+      {t->bad_draws, t->bad_draw_first, t->bad_draw_column, "validation",
+       "sample", "such samples say nothing about the plan, so the verdict "
+                 "is inconclusive"},
+      {c->in_sample_bad_draws, c->in_sample_bad_first,
+       c->in_sample_bad_column, "design", "design scenario",
+       "its in_sample figures say nothing about the plan"},
+  };
+  for (size_t d = 0; ended && d < sizeof draws / sizeof *draws; d++) {
+    if (draws[d].count == 0) continue;
+    const char *col = fg_sampler_column(c->model->sampler, draws[d].column);
     snprintf(msg, sizeof msg,
-             "uncertain input %s drew a non-finite value at sample %llu "
-             "(%llu non-finite values in all); such samples say nothing "
-             "about the plan, so the verdict is inconclusive",
-             col ? col : "?", (unsigned long long)t->bad_draw_first,
-             (unsigned long long)t->bad_draws);
-    add_input_problem(probs, col, "validation", t->bad_draw_first,
-                      t->bad_draws, msg);
-    listed++;
-  }
-  if (ended && c->in_sample_bad_draws > 0) {
-    const char *col =
-        fg_sampler_column(c->model->sampler, c->in_sample_bad_column);
-    snprintf(msg, sizeof msg,
-             "uncertain input %s drew a non-finite value at design scenario "
-             "%llu of the in-sample evaluation (%llu non-finite values in "
-             "all); its in_sample figures say nothing about the plan",
-             col ? col : "?", (unsigned long long)c->in_sample_bad_first,
-             (unsigned long long)c->in_sample_bad_draws);
-    add_input_problem(probs, col, "design", c->in_sample_bad_first,
-                      c->in_sample_bad_draws, msg);
+             "uncertain input %s drew a non-finite value at %s %llu%s (%llu "
+             "non-finite values in all); %s",
+             col ? col : "?", draws[d].where,
+             (unsigned long long)draws[d].first,
+             d == 1 ? " of the in-sample evaluation" : "",
+             (unsigned long long)draws[d].count, draws[d].consequence);
+    add_input_problem(probs, col, draws[d].stream, draws[d].first,
+                      draws[d].count, msg);
     listed++;
   }
   for (int r = 0; ended && r < t->nrows; r++) {

@@ -561,13 +561,7 @@ void fg_h_checks_list(fg_req *r, fg_resp *out) {
                                       "key",   "limit",   "after"};
   const char **const slots[] = {&q.model, &q.verdict, &q.since, &q.label,
                                 &q.key,   &q.limit,   &q.after};
-  char unknown[FG_HTTP_PARAM_NAME_MAX];
-  if (!fg_http_query_args(r, names, slots, 7, unknown)) {
-    fg_resp_bad_param(out, unknown,
-                      "unknown parameter; expected model, verdict, since, "
-                      "label, key, limit or after");
-    return;
-  }
+  if (!fg_http_query_args(r, names, slots, 7, out)) return;
   fg_check_filter f = {.limit = FG_LIST_LIMIT_DEFAULT};
   char since[32];
   bool verdict_ok = q.verdict && (!strcmp(q.verdict, "pass") ||

@@ -250,13 +250,17 @@ fg_role fg_route_role(const char *method, const char *route);
 
 /* ---- query.c ---- */
 /* Query parameters named names[i] into *slots[i] (first occurrence; NULL
- * when absent). False when a parameter has another name (or an empty
- * one): that name is in `unknown` ("" for the empty one). */
+ * when absent). False, with a 400 in *out naming the first parameter of
+ * another name (or an empty one) and listing the expected names, when
+ * there is one. */
 bool fg_http_query_args(fg_req *r, const char *const *names,
-                        const char **const *slots, int n,
-                        char unknown[FG_HTTP_PARAM_NAME_MAX]);
-/* The same over given pairs (keys[i] NULL: an empty name); the unit
- * tests' way in, and what fg_http_query_args does per parameter. */
+                        const char **const *slots, int n, fg_resp *out);
+/* "a, b or c" of the n names, for that message. */
+void fg_http_query_expected(const char *const *names, int n, char *buf,
+                            size_t cap);
+/* The slots over given pairs (keys[i] NULL: an empty name), the unknown
+ * name in `unknown` ("" for the empty one); the unit tests' way in, and
+ * what fg_http_query_args does per parameter. */
 bool fg_http_query_pairs(const char *const *keys, const char *const *values,
                          int npairs, const char *const *names,
                          const char **const *slots, int n,

@@ -57,13 +57,27 @@ static void walk_init(query_walk *w, const char *const *names,
   *w = (query_walk){.names = names, .slots = slots, .n = n, .unknown = unknown};
 }
 
+void fg_http_query_expected(const char *const *names, int n, char *buf,
+                            size_t cap) {
+  size_t len = 0;
+  if (cap) buf[0] = '\0';
+  for (int i = 0; i < n && len < cap; i++)
+    len += (size_t)snprintf(buf + len, cap - len, "%s%s",
+                            i == 0 ? "" : i == n - 1 ? " or " : ", ",
+                            names[i]);
+}
+
 bool fg_http_query_args(fg_req *r, const char *const *names,
-                        const char **const *slots, int n,
-                        char unknown[FG_HTTP_PARAM_NAME_MAX]) {
+                        const char **const *slots, int n, fg_resp *out) {
+  char unknown[FG_HTTP_PARAM_NAME_MAX];
   query_walk w;
   walk_init(&w, names, slots, n, unknown);
   MHD_get_connection_values(r->conn, MHD_GET_ARGUMENT_KIND, take, &w);
-  return !w.bad;
+  if (!w.bad) return true;
+  char expected[256];
+  fg_http_query_expected(names, n, expected, sizeof expected);
+  fg_resp_bad_param(out, unknown, "unknown parameter; expected %s", expected);
+  return false;
 }
 
 bool fg_http_query_pairs(const char *const *keys, const char *const *values,

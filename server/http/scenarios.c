@@ -79,13 +79,7 @@ void fg_h_model_scenarios(fg_req *r, fg_resp *out) {
   scen_query q;
   static const char *const names[] = {"count", "seed", "start", "stream"};
   const char **const slots[] = {&q.count, &q.seed, &q.start, &q.stream};
-  char unknown[FG_HTTP_PARAM_NAME_MAX];
-  if (!fg_http_query_args(r, names, slots, 4, unknown)) {
-    fg_resp_bad_param(out, unknown,
-                      "unknown parameter; expected count, seed, start or "
-                      "stream");
-    return;
-  }
+  if (!fg_http_query_args(r, names, slots, 4, out)) return;
   fg_scenarios_params sp = {0};
   char msg[FG_MESSAGE_MAX];
   uint64_t max = srv->cfg.limits.max_scenarios;

@@ -53,7 +53,23 @@ static void test_query(void) {
   CHECK_INT((long)strlen(unknown), FG_HTTP_PARAM_NAME_MAX - 1);
 }
 
+/* The list of expected names in the 400's message. */
+static void test_expected(void) {
+  const char *names[] = {"count", "seed", "start", "stream"};
+  char buf[64];
+  fg_http_query_expected(names, 4, buf, sizeof buf);
+  CHECK(strcmp(buf, "count, seed, start or stream") == 0);
+  fg_http_query_expected(names, 2, buf, sizeof buf);
+  CHECK(strcmp(buf, "count or seed") == 0);
+  fg_http_query_expected(names, 1, buf, sizeof buf);
+  CHECK(strcmp(buf, "count") == 0);
+  char tiny[8];
+  fg_http_query_expected(names, 4, tiny, sizeof tiny); /* cut, terminated */
+  CHECK(strlen(tiny) < sizeof tiny);
+}
+
 int main(void) {
   test_query();
+  test_expected();
   return fg_test_finish();
 }
