@@ -80,6 +80,11 @@ fg_status fg_problem_limit(fg_problem *p, const char *pointer, fg_limit which,
                            double value, const char *fmt, ...)
     __attribute__((format(printf, 5, 6)));
 
+/* 400 item at "/NAME" for an unknown top-level member `name` of a JSON
+ * object: "unknown member 'NAME' (known: KNOWN)". */
+fg_status fg_problem_unknown_member(fg_problem *p, const char *name,
+                                    const char *known);
+
 /* Set the status, title and detail without an item (whole-request faults:
  * not found, busy, I/O). */
 fg_status fg_problem_set(fg_problem *p, fg_status st, const char *fmt, ...)

@@ -147,3 +147,11 @@ void fg_pointer_index(char *buf, size_t cap, const char *base, long index) {
   snprintf(tok, sizeof tok, "%ld", index);
   fg_pointer_join(buf, cap, base, tok);
 }
+
+fg_status fg_problem_unknown_member(fg_problem *p, const char *name,
+                                    const char *known) {
+  char ptr[FG_POINTER_MAX];
+  fg_pointer_join(ptr, sizeof ptr, "", name);
+  return fg_problem_add(p, FG_EINVAL, ptr, 0, "unknown member '%s' (known: %s)",
+                        name, known);
+}

@@ -134,15 +134,11 @@ fg_status fg_compare_parse(const fg_model *m, const cJSON *body,
   for (const cJSON *it = body->child; it; it = it->next) {
     if (strcmp(it->string, "candidates") == 0 || is_shared(it->string))
       continue;
-    char ptr[FG_POINTER_MAX];
-    fg_pointer_join(ptr, sizeof ptr, "", it->string);
-    fg_problem_add(p, FG_EINVAL, ptr, 0,
-                   "unknown member '%s' (known: candidates, samples, seed, "
-                   "target, confidence, interval, sampling, stop_early, "
-                   "expect_digest, in_sample, wait_s, explain; labels and "
-                   "decisions "
-                   "go in each candidate)",
-                   it->string);
+    fg_problem_unknown_member(p, it->string,
+                              "candidates, samples, seed, target, "
+                              "confidence, interval, sampling, stop_early, "
+                              "expect_digest, in_sample, wait_s, explain; "
+                              "labels and decisions go in each candidate");
   }
   const cJSON *samples = cJSON_GetObjectItemCaseSensitive(body, "samples");
   if (cJSON_IsNumber(samples) &&

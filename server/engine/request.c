@@ -152,16 +152,12 @@ fg_status fg_request_parse(const fg_model *m, const cJSON *body,
   }
   int before = p->nitems;
   for (const cJSON *it = body->child; it; it = it->next) {
-    if (!is_known(it->string)) {
-      char ptr[FG_POINTER_MAX];
-      fg_pointer_join(ptr, sizeof ptr, "", it->string);
-      fg_problem_add(p, FG_EINVAL, ptr, 0,
-                     "unknown member '%s' (known: decision, samples, seed, "
-                     "target, confidence, interval, stop_early, sampling, "
-                     "expect_digest, in_sample, label, wait_s, "
-                     "failing_scenarios_count, explain, exact)",
-                     it->string);
-    }
+    if (!is_known(it->string))
+      fg_problem_unknown_member(p, it->string,
+                                "decision, samples, seed, target, "
+                                "confidence, interval, stop_early, sampling, "
+                                "expect_digest, in_sample, label, wait_s, "
+                                "failing_scenarios_count, explain, exact");
   }
   const cJSON *v;
   v = cJSON_GetObjectItemCaseSensitive(body, "decision");

@@ -60,6 +60,10 @@ int main(void) {
   CHECK_INT(fg_status_http(FG_ECONFLICT), 409);
   CHECK_INT(fg_status_http(FG_EGONE), 410);
   fg_problem_init(&p);
+  CHECK(fg_problem_unknown_member(&p, "a/b", "x, y") == FG_EINVAL);
+  CHECK_STR(p.items[0].pointer, "/a~1b");
+  CHECK_STR(p.items[0].message, "unknown member 'a/b' (known: x, y)");
+  fg_problem_init(&p);
   fg_problem_set(&p, FG_ENOTFOUND, "no model '%s'", "x");
   CHECK_STR(p.detail, "no model 'x'");
   CHECK_INT(p.nitems, 0);
