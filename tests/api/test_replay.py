@@ -31,7 +31,7 @@ import subprocess
 import sys
 import tempfile
 
-from apicommon import BIN, Daemon, Results
+from apicommon import BIN, Daemon, Results, psql
 
 results = Results()
 check = results.check
@@ -77,15 +77,6 @@ def pg_part():
     if not all(os.environ.get(k) for k in need):
         print("PostgreSQL part not run: %s not set" % ", ".join(need))
         return
-
-    def psql(sql, db="postgres"):
-        env = dict(os.environ, PGOPTIONS="-c client_min_messages=warning")
-        out = subprocess.run(["psql", "-q", "-At", "-v", "ON_ERROR_STOP=1", "-h",
-                              os.environ["FG_TEST_PG_HOST"], "-p",
-                              os.environ["FG_TEST_PG_PORT"], "-U",
-                              os.environ["FG_TEST_PG_USER"], "-d", db, "-c", sql],
-                             check=True, env=env, capture_output=True, text=True)
-        return out.stdout.strip()
 
     db = "fgreplay_%d" % os.getpid()
     psql("DROP DATABASE IF EXISTS %s" % db)

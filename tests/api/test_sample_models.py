@@ -18,7 +18,7 @@ registers invented models and checks:
     affine in the decisions (its pointer, column and term) and for a
     missing bound, 404, 405, 410; the limits listed by GET /v1/limits.
 
-Standard library plus apicommon. The last line is "N passed, N failed".
+Standard library plus apicommon and the reference tests' milp.py. The last line is "N passed, N failed".
 """
 import json
 import os
@@ -28,28 +28,13 @@ import tempfile
 
 from apicommon import BIN, Daemon, Results
 
+# The loop test's water model (tests/reference/milp.py), one copy.
+sys.path.insert(0, os.path.join(os.path.dirname(os.path.abspath(__file__)),
+                                "..", "reference"))
+from milp import WATER  # noqa: E402
+
 results = Results()
 check = results.check
-
-WATER = {
-    "format": 1, "name": "water-summer",
-    "title": "Summer supply of a small water utility (invented figures)",
-    "decisions": [
-        {"name": "draw", "size": 3, "lower": 0, "upper": [25, 30, 25]},
-        {"name": "tanker_days", "lower": 0, "upper": 10, "integer": True},
-    ],
-    "uncertain": [
-        {"name": "demand", "size": 2, "distribution": {"family": "normal", "mean": [50, 30], "sd": [6, 4]}},
-        {"name": "loss", "distribution": {"family": "uniform", "low": 0.05, "high": 0.15}},
-    ],
-    "constraints": [
-        {"name": "town", "require": "(1 - loss) * (draw[0] + draw[1]) + 2 * tanker_days >= demand[0]"},
-        {"name": "farms", "require": "draw[1] + draw[2] >= demand[1]"},
-        {"name": "licence", "require": "sum(draw) <= 70"},
-    ],
-    "objective": {"minimize": "1.0 * draw[0] + 1.4 * draw[1] + 0.8 * draw[2] + 5 * tanker_days"},
-    "target": {"probability": 0.95},
-}
 
 PUMPS = {
     "format": 1, "name": "pump-pair",
