@@ -9,7 +9,7 @@ double, the part of the exact value H cannot hold. Both come from Python's
 decimal module at 80 significant digits, far beyond the 2^-106 the pair
 needs. These are the values glibc's exp uses, so the lanes can agree with
 it bit for bit; libm_exp.c checks that against libm at start-up and
-tests/unit/sample/test_sample.c over millions of arguments.
+tests/unit/sample/test_exp.c over millions of arguments.
 
 Usage: gen_exp_table.py            print the header
        gen_exp_table.py --check F  exit 1 unless F is what would be printed

@@ -37,7 +37,7 @@
  * densely, the whole double range, both edges of the main path, the
  * special values); a libm whose exp is built differently (no FMA, another
  * algorithm, another table) fails that and the scalar entry is used, so
- * values are libm's in every case. tests/unit/sample/test_sample.c compares the
+ * values are libm's in every case. tests/unit/sample/test_exp.c compares the
  * kernels with `exp` over several million further arguments.
  *
  * The kernels' arithmetic is written as intrinsics, one operation each:
