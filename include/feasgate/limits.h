@@ -578,6 +578,12 @@ const char *fg_limit_name(fg_limit which);
  * holds less than this, so a refill is a few hundred rows of a narrow
  * model and at least one row of any width. */
 #define FG_SCENARIO_STAGE_BYTES 16384
+/* Tolerance of a decision's bounds and integrality (engine/check.c): 1e-6
+ * absolute or relative to the value, whichever is larger, so a solver's
+ * 2.9999999 is the integer 3 and a bound met to rounding is met (common
+ * practice: solvers' default feasibility and integrality tolerances are
+ * of this order). */
+#define FG_INTEGER_TOL 1e-6
 
 /* ---- estimate: the confidence sequence, sample sizes, tallies ---- */
 /* Strength, in pseudo-samples, of the confidence sequence's Beta prior
@@ -603,6 +609,51 @@ const char *fg_limit_name(fg_limit which);
 /* Violated rows kept per failing scenario: enough to show which rows a
  * scenario breaks; the scenario endpoint recomputes all of them. */
 #define FG_FAIL_ROWS_MAX 16
+/* The exact multivariate-normal path (estimate/mvnprob.c): a row whose
+ * residual falls below FG_MVN_TOL (of a unit row) after a reduction step
+ * depends on the columns so far and becomes a bound on that step's
+ * variable (the dropped residual moves the probability by far less than
+ * FG_EXACT_TARGET_ERROR); a coefficient smaller than FG_MVN_ZERO
+ * relative to 1 counts as zero (a few hundred ulps of 1, so rounding
+ * noise never decides a bound's sign). */
+#define FG_MVN_TOL 1e-10
+#define FG_MVN_ZERO 1e-13
+/* Work units of a normal CDF or quantile (erfc, GSL's inverse) against
+ * one multiply-add, from the measured cost of one lattice point (common
+ * practice: a rough, machine-dependent ratio; only the work bound
+ * FG_EXACT_WORK_MAX uses it). */
+#define FG_MVN_PHI_COST 30.0
+
+/* ---- expr: the interpreter's multiply-add chains and lane passes ---- */
+/* Chains shorter than this many multiply-adds stay in the plain
+ * instruction loop (expr/fuse.c): they gain too little to leave it. */
+#define FG_CHAIN_MIN 4
+/* How far ahead a chain term's destination's next use is looked for;
+ * beyond it the store is kept (a bound on compile time for huge
+ * programs). */
+#define FG_CHAIN_SCAN 4096
+/* Lanes per pass when a chain-heavy block stream runs in lane tiles
+ * (expr/interp.c): 32 lanes of a register are 256 bytes, so the inputs of
+ * a wide dense row (say 50 of them, 12.8 KiB) stay in L1 while every row
+ * reads them, where whole 2 KiB registers would be fetched from L2 once
+ * per row. Any value gives the same bits (no instruction reads another
+ * lane). */
+#define FG_LANE_PASS 32
+
+/* ---- core: the dense kernels ---- */
+/* Columns a dense tile copies into a contiguous buffer (core/dense.c,
+ * dense_tile.h): 128 columns x 16 lanes x 8 bytes = 16 KiB of stack at
+ * the widest path; wider maps read their columns in place. */
+#define FG_DENSE_PACK_COLS 128
+
+/* ---- sample: the exp kernels' start-up check ---- */
+/* Pseudo-random arguments a lane kernel of exp must agree on with libm,
+ * bit for bit, before it is used (sample/libm_exp.c): FG_EXP_PROBE_DENSE
+ * lognormal exponents in [-8, 16) and FG_EXP_PROBE_WIDE across the whole
+ * finite range [-750, 715), besides the special values; about 50,000 in
+ * all, a few milliseconds once per process. */
+#define FG_EXP_PROBE_DENSE 32768
+#define FG_EXP_PROBE_WIDE 16384
 
 /* ---- http: keys, registry, replicas, streaming, queries ---- */
 /* Seconds the cache of live keys is used before it is reloaded. */
@@ -678,5 +729,13 @@ const char *fg_limit_name(fg_limit which);
 /* ---- the command line ---- */
 /* Parameters of one sample-size question at most (each --name value). */
 #define FG_CLI_SIZE_ARGS_MAX 16
+/* The remote gate (feasgate check --server, cli/remote.c): the first
+ * pause between polls of a running check (growing to
+ * FG_REMOTE_POLL_MAX_S), how many polls in a row may fail for transport
+ * reasons or with 503 before it gives up, and the seconds to set up a
+ * connection. */
+#define FG_REMOTE_POLL_FIRST_S 0.2
+#define FG_REMOTE_POLL_RETRIES 5
+#define FG_REMOTE_CONNECT_S 10
 
 #endif

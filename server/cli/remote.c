@@ -41,10 +41,6 @@
 #include <time.h>
 
 #define EXIT_ERROR 3
-#define FG_REMOTE_POLL_FIRST_S 0.2
-#define FG_REMOTE_POLL_RETRIES 5
-/* Seconds to set up a connection. */
-#define FG_REMOTE_CONNECT_S 10
 
 typedef struct remote {
   CURL *curl;

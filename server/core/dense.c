@@ -31,6 +31,7 @@
  * before any kernel reads it, and by fg_dense_force only in tests.
  */
 #include "core/dense.h"
+#include "feasgate/limits.h"
 
 #if defined(__x86_64__) && defined(__GNUC__)
 #define FG_DENSE_X86 1
@@ -49,10 +50,6 @@ typedef struct dense_job {
   const double *const *in;
   double *const *out;
 } dense_job;
-
-/* Columns a tile copies into a contiguous buffer (dense_tile.h): 128
- * columns x 16 lanes x 8 bytes = 16 KiB of stack at the widest path. */
-#define DENSE_PACK_COLS 128
 
 /* The reference: lane by lane, rows from the last (for the in-place lower
  * map, row i reads columns k <= i, none written yet for this lane). */

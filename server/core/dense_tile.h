@@ -125,14 +125,14 @@ DT_ATTR static void DT_CAT(dt_row1, DT_SUF)(const dense_job *j,
 /* Columns are registers FG_BLOCK doubles apart, a power of two: a tile's
  * column pieces would all fall into two sets of a 64-set L1 and evict
  * each other between row blocks. So a tile's columns are first copied
- * into one contiguous buffer (when at most DENSE_PACK_COLS of them) and
+ * into one contiguous buffer (when at most FG_DENSE_PACK_COLS of them) and
  * every row block reads the copy; a copy changes no value. In the lower
  * map the copy also keeps the inputs while the rows are written. */
 DT_ATTR static int DT_CAT(tiles, DT_SUF)(const dense_job *j, int n) {
   int nc = j->lower ? j->nrows : j->ncols;
-  bool pack = nc <= DENSE_PACK_COLS;
-  double buf[DENSE_PACK_COLS * DT_TILE] __attribute__((aligned(64)));
-  const double *pk[DENSE_PACK_COLS];
+  bool pack = nc <= FG_DENSE_PACK_COLS;
+  double buf[FG_DENSE_PACK_COLS * DT_TILE] __attribute__((aligned(64)));
+  const double *pk[FG_DENSE_PACK_COLS];
   if (pack)
     for (int k = 0; k < nc; k++) pk[k] = buf + (size_t)k * DT_TILE;
   const double *const *in = pack ? pk : j->in;

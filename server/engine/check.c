@@ -41,8 +41,6 @@
 #include <string.h>
 #include <time.h>
 
-#define INTEGER_TOL 1e-6
-
 static bool is_end(fg_check_state s) {
   return s != FG_CHECK_QUEUED && s != FG_CHECK_RUNNING;
 }
@@ -110,9 +108,10 @@ static void add_det(struct fg_check *c, const char *name, const char *fmt,
   va_end(ap);
 }
 
-/* Tolerance: 1e-6 absolute or relative, whichever is larger. */
+/* Tolerance: FG_INTEGER_TOL (limits.h) absolute or relative, whichever is
+ * larger. */
 static double tol_of(double bound) {
-  return fmax(INTEGER_TOL, INTEGER_TOL * fabs(bound));
+  return fmax(FG_INTEGER_TOL, FG_INTEGER_TOL * fabs(bound));
 }
 
 static void check_decisions(struct fg_check *c) {

@@ -65,14 +65,6 @@
 #include <stdlib.h>
 #include <string.h>
 
-#define FG_MVN_TOL 1e-10
-/* Work units of a normal CDF or quantile (erfc, GSL's inverse) against
- * one multiply-add, from the measured cost of one lattice point (common
- * practice: a rough, machine-dependent ratio; only the bound uses it). */
-#define FG_MVN_PHI_COST 30.0
-/* A coefficient this small relative to 1 is treated as zero. */
-#define FG_MVN_ZERO 1e-13
-
 static double phi_cdf(double x) { return 0.5 * erfc(-x / M_SQRT2); }
 static double phi_sf(double x) { return 0.5 * erfc(x / M_SQRT2); }
 static double phi_pdf(double x) {

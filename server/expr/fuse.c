@@ -41,9 +41,6 @@
 #include <stdbool.h>
 #include <stdlib.h>
 
-/* Shorter chains gain too little to leave the plain loop. */
-#define FG_CHAIN_MIN 4
-
 /* Which factor of insn `in` is uniform (0 for a, 1 for b), or -1. */
 static int uniform_factor(const fg_insn *in, const bool *uniform, int prev_d) {
   if (in->op != FG_OP_MUL && in->op != FG_OP_MULADD) return -1;
@@ -58,10 +55,6 @@ static void fill_term(fg_chain_term *t, const fg_insn *in, int which) {
   t->d = in->d;
   t->store = true;
 }
-
-/* How far ahead a destination's next use is looked for; beyond it the
- * store is kept (a bound on compile time for huge programs). */
-#define FG_CHAIN_SCAN 4096
 
 /* Must term q's destination reach memory? Not when it is no root and the
  * next reference to its register after the chain's next term (which takes

@@ -286,12 +286,6 @@ static void run_chain(const fg_chain_term *terms, int count, int addend,
   }
 }
 
-/* Lanes per pass when a chain-heavy block stream runs in lane tiles: 32
- * lanes of a register are 256 bytes, so the inputs of a wide dense row
- * (say 50 of them, 12.8 KiB) stay in L1 while every row reads them, where
- * whole 2 KiB registers would be fetched from L2 once per row. */
-#define LANE_PASS 32
-
 void fg_program_run_block(const fg_program *prog, double *block_regs, int n) {
   if (n <= 0) return;
   if (n > FG_BLOCK) n = FG_BLOCK;
@@ -300,10 +294,10 @@ void fg_program_run_block(const fg_program *prog, double *block_regs, int n) {
     return;
   }
   /* Chain-heavy streams (fuse.c says so) run the whole stream pass by pass
-   * over LANE_PASS lanes, which is exact because no instruction reads
+   * over FG_LANE_PASS lanes, which is exact because no instruction reads
    * another lane; others run segment by segment over the whole block so
    * that plain instructions keep their long loops. */
-  int pass = prog->lane_tiled ? LANE_PASS : n;
+  int pass = prog->lane_tiled ? FG_LANE_PASS : n;
   for (int t0 = 0; t0 < n; t0 += pass) {
     int m = n - t0 < pass ? n - t0 : pass;
     double *regs = block_regs + t0;

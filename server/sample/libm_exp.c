@@ -249,9 +249,8 @@ static void run_kernel(int k, double *x, int n, exp_fn f, const double *mu,
 
 /* ---- the start-up check ---------------------------------------------- */
 
-#define PROBE_DENSE 32768 /* lognormal exponents, [-8, 16) */
-#define PROBE_WIDE 16384  /* the whole finite range, [-750, 715) */
-
+/* FG_EXP_PROBE_DENSE lognormal exponents in [-8, 16), FG_EXP_PROBE_WIDE
+ * across the whole finite range [-750, 715) (limits.h), then these. */
 static const double probe_special[] = {
     0.0,        -0.0,        1.0,         -1.0,      0.5,       1e-300,
     -1e-300,    709.78,      709.79,      710.0,     -708.4,    -745.13,
@@ -276,12 +275,13 @@ static int probes_agree(exp_fn f, int k) {
   double in[CH], out[CH];
   int nspecial = (int)(sizeof probe_special / sizeof probe_special[0]);
   uint64_t s = UINT64_C(0x9E3779B97F4A7C15);
-  for (int done = -nspecial; done < PROBE_DENSE + PROBE_WIDE; done += CH) {
+  const int nprobe = FG_EXP_PROBE_DENSE + FG_EXP_PROBE_WIDE;
+  for (int done = -nspecial; done < nprobe; done += CH) {
     int m = 0;
-    for (int i = done; i < done + CH && i < PROBE_DENSE + PROBE_WIDE; i++) {
+    for (int i = done; i < done + CH && i < nprobe; i++) {
       if (i < 0)
         in[m++] = probe_special[i + nspecial];
-      else if (i < PROBE_DENSE)
+      else if (i < FG_EXP_PROBE_DENSE)
         in[m++] = -8.0 + 24.0 * probe_u(&s);
       else
         in[m++] = -750.0 + 1465.0 * probe_u(&s);
