@@ -189,16 +189,15 @@ static void philox_sse2(uint32_t *w0, uint32_t *w1, uint32_t *w2, uint32_t *w3,
  * philox_avx2): the AVX2 form of PHILOX512_ROUND. */
 #define PHILOX256_ROUND(e0, e1, e2, e3, o0, o1, o2, o3, kk0, kk1)               \
   do {                                                                         \
+    /* the key enters off the multiplies' critical path */                    \
+    __m256i ke1 = _mm256_xor_si256(e1, kk0), ke3 = _mm256_xor_si256(e3, kk1);  \
+    __m256i ko1 = _mm256_xor_si256(o1, kk0), ko3 = _mm256_xor_si256(o3, kk1);  \
     __m256i pe0 = _mm256_mul_epu32(e0, m0), pe1 = _mm256_mul_epu32(e2, m1);    \
     __m256i po0 = _mm256_mul_epu32(o0, m0), po1 = _mm256_mul_epu32(o2, m1);    \
-    e0 = _mm256_xor_si256(_mm256_xor_si256(_mm256_srli_epi64(pe1, 32), e1),    \
-                          kk0);                                                \
-    e2 = _mm256_xor_si256(_mm256_xor_si256(_mm256_srli_epi64(pe0, 32), e3),    \
-                          kk1);                                                \
-    o0 = _mm256_xor_si256(_mm256_xor_si256(_mm256_srli_epi64(po1, 32), o1),    \
-                          kk0);                                                \
-    o2 = _mm256_xor_si256(_mm256_xor_si256(_mm256_srli_epi64(po0, 32), o3),    \
-                          kk1);                                                \
+    e0 = _mm256_xor_si256(_mm256_srli_epi64(pe1, 32), ke1);                    \
+    e2 = _mm256_xor_si256(_mm256_srli_epi64(pe0, 32), ke3);                    \
+    o0 = _mm256_xor_si256(_mm256_srli_epi64(po1, 32), ko1);                    \
+    o2 = _mm256_xor_si256(_mm256_srli_epi64(po0, 32), ko3);                    \
     e1 = pe1;                                                                  \
     e3 = pe0;                                                                  \
     o1 = po1;                                                                  \
