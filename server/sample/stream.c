@@ -51,8 +51,9 @@
  * the block serve one normal's attempts. Deliberately not done: packing
  * the normals of two slots into one block (halving the cipher work) would
  * make one dimension's fallback words depend on another's. (With the
- * row plans the cipher is the largest cost of affine models: 39% of a
- * worker, measured; a change of stream would be needed to cut it.)
+ * row plans the cipher is still the largest cost of affine models, about
+ * 36% of a worker with the AVX2 arrangement below, measured with perf; a
+ * change of stream would be needed to halve it.)
  * The fast path runs in 8 lanes with AVX-512F + DQ, 4 with AVX2 (an exact
  * 53-bit conversion in two halves) and per lane otherwise, each with the
  * scalar lane's operations, so every path gives the same normals.
