@@ -255,10 +255,7 @@ cJSON *fg_http_stored_check_body(const fg_store_check *c) {
  * result body. */
 static bool send_stored_result(fg_resp *out, fg_store_check *c) {
   if (!c->result) return false;
-  out->status = 200;
-  out->body = c->result;
-  out->len = strlen(c->result);
-  out->content_type = FG_CT_JSON;
+  fg_resp_json_text(out, 200, c->result);
   c->result = NULL;
   return true;
 }

@@ -282,14 +282,10 @@ void fg_comparison_answer(fg_comparison *c, int status, fg_resp *out) {
   pthread_mutex_lock(&c->mu);
   if (c->stage == CMP_STORED && c->final_text) text = strdup(c->final_text);
   pthread_mutex_unlock(&c->mu);
-  if (text) {
-    out->status = status;
-    out->body = text;
-    out->len = strlen(text);
-    out->content_type = FG_CT_JSON;
-    return;
-  }
-  fg_resp_json(out, status, body_of(c, FG_CHECK_RUNNING, NULL, NULL));
+  if (text)
+    fg_resp_json_text(out, status, text);
+  else
+    fg_resp_json(out, status, body_of(c, FG_CHECK_RUNNING, NULL, NULL));
 }
 
 static fg_check_state stored_status(fg_comparison *c) {
@@ -463,10 +459,7 @@ static void answer_stored(fg_req *r, const fg_store_comparison *row,
   if (row->result) {
     char *text = strdup(row->result);
     if (text) {
-      out->status = 200;
-      out->body = text;
-      out->len = strlen(text);
-      out->content_type = FG_CT_JSON;
+      fg_resp_json_text(out, 200, text);
       return;
     }
   }

@@ -280,6 +280,8 @@ void fg_resp_bad_param(fg_resp *out, const char *name, const char *fmt, ...)
 /* Print `body` as the JSON response (takes and frees `body`). A print that
  * fails for memory becomes a 503 problem. */
 void fg_resp_json(fg_resp *out, int status, cJSON *body);
+/* `text` (malloc'd JSON, not NULL) as the JSON response; takes it. */
+void fg_resp_json_text(fg_resp *out, int status, char *text);
 /* The problem document of `p`; http_status 0 = fg_status_http(p->status). */
 void fg_resp_problem(fg_resp *out, const fg_problem *p, int http_status);
 /* A whole-request problem in one call. */
