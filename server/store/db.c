@@ -191,33 +191,37 @@ bool fg_db_bytes(fg_conn *c, int col, uint8_t *dst, size_t n) {
   return c->b->bytes(c, col, dst, n);
 }
 
+#ifndef NDEBUG
+/* The member size of each kind that has one (text and bytes: any size). */
+static const size_t kind_size[FG_DB_BYTES + 1] = {
+    [FG_DB_INT] = sizeof(int),      [FG_DB_U64] = sizeof(uint64_t),
+    [FG_DB_REAL] = sizeof(double),  [FG_DB_FLAG] = sizeof(bool),
+    [FG_DB_DUP] = sizeof(char *),   [FG_DB_DUP_SET] = sizeof(char *)};
+#endif
+
 bool fg_db_read_columns(fg_conn *c, const fg_db_column *cols, int n,
                         void *out) {
   for (int i = 0; i < n; i++) {
     void *at = (char *)out + cols[i].offset;
+    assert(!kind_size[cols[i].kind] || kind_size[cols[i].kind] == cols[i].size);
     switch (cols[i].kind) {
     case FG_DB_TEXT:
       fg_db_copy(c, i, at, cols[i].size);
       break;
     case FG_DB_INT:
-      assert(cols[i].size == sizeof(int));
       *(int *)at = (int)fg_db_int(c, i);
       break;
     case FG_DB_U64:
-      assert(cols[i].size == sizeof(uint64_t));
       *(uint64_t *)at = (uint64_t)fg_db_int(c, i);
       break;
     case FG_DB_REAL:
-      assert(cols[i].size == sizeof(double));
       *(double *)at = fg_db_real(c, i);
       break;
     case FG_DB_FLAG:
-      assert(cols[i].size == sizeof(bool));
       *(bool *)at = fg_db_int(c, i) != 0;
       break;
     case FG_DB_DUP:
     case FG_DB_DUP_SET: {
-      assert(cols[i].size == sizeof(char *));
       char *s = fg_db_dup(c, i);
       *(char **)at = s;
       if (cols[i].kind == FG_DB_DUP_SET ? !s : fg_db_dup_failed(c, i, s))
