@@ -28,6 +28,7 @@
 #include "expr/expr_internal.h"
 
 #include <math.h>
+#include <stdint.h>
 #include <string.h>
 
 /* Compiled twice, for the baseline x86-64 and for AVX2, and chosen by the
@@ -199,9 +200,15 @@ void fg_expr_run(const fg_insn *insns, int count, double *regs, size_t stride,
       }
       break;
     case FG_OP_EXCESS:
+      /* a - b, and +0 where a == b (inf <= inf holds): the difference's
+       * bits masked, so the loop has no branch and vectorises (a - b is
+       * +0 already for equal finite operands) */
       for (int i = 0; i < n; i++) {
         double x = a[i] - b[i];
-        d[i] = a[i] == b[i] ? 0.0 : x;
+        uint64_t bits, keep = (uint64_t)0 - (uint64_t)(a[i] != b[i]);
+        memcpy(&bits, &x, sizeof bits);
+        bits &= keep;
+        memcpy(&d[i], &bits, sizeof bits);
       }
       break;
     case FG_OP_COUNT: break;
