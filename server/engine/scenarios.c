@@ -36,6 +36,7 @@
  * Thread use: any thread; the model is only read, and every stream draws
  * with its own scratch. One stream is used by one thread at a time.
  */
+#include "core/buf.h"
 #include "feasgate/engine.h"
 
 #include "sample/sample.h"
@@ -73,17 +74,10 @@ struct fg_scenarios_stream {
 static bool reserve(scen_text *t, size_t more) {
   if (t->failed) return false;
   if (t->len + more <= t->cap) return true;
-  size_t cap = t->cap ? t->cap : FG_SCENARIO_STAGE_BYTES;
-  while (cap < t->len + more)
-    cap *= 2;
-  char *b = realloc(t->buf, cap);
-  if (!b) {
-    t->failed = true;
-    return false;
-  }
-  t->buf = b;
-  t->cap = cap;
-  return true;
+  if (fg_buf_grow(&t->buf, &t->cap, t->len + more, FG_SCENARIO_STAGE_BYTES, 0))
+    return true;
+  t->failed = true;
+  return false;
 }
 
 static void put(scen_text *t, const char *s, size_t len) {
@@ -333,25 +327,8 @@ fg_status fg_scenarios_size_check(const fg_model *m, uint64_t count,
 
 /* ---- into one buffer ---- */
 
-typedef struct membuf {
-  char *data;
-  size_t len, cap;
-} membuf;
-
 static bool mem_sink(void *ctx, const char *text, size_t len) {
-  membuf *b = ctx;
-  if (b->len + len + 1 > b->cap) {
-    size_t cap = b->cap ? b->cap : 65536;
-    while (cap < b->len + len + 1) cap *= 2;
-    char *d = realloc(b->data, cap);
-    if (!d) return false;
-    b->data = d;
-    b->cap = cap;
-  }
-  memcpy(b->data + b->len, text, len);
-  b->len += len;
-  b->data[b->len] = '\0';
-  return true;
+  return fg_buf_append(ctx, text, len, 65536);
 }
 
 fg_status fg_scenarios_render(const fg_model *m, const fg_scenarios_params *q,
@@ -360,7 +337,7 @@ fg_status fg_scenarios_render(const fg_model *m, const fg_scenarios_params *q,
   *len = 0;
   fg_status sized = fg_scenarios_size_check(m, q->count, p);
   if (sized != FG_OK) return sized;
-  membuf b = {0};
+  fg_buf b = {0};
   fg_status st = fg_scenarios_write(m, q, mem_sink, &b, p);
   if (st == FG_EIO) {
     /* The only way the buffer sink fails. */

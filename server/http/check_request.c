@@ -31,10 +31,7 @@ void fg_h_check_request(fg_req *r, fg_resp *out) {
                   "check %s has no recorded request", r->params[0]);
     return;
   }
-  out->status = 200;
-  out->body = c.request;
-  out->len = strlen(c.request);
-  out->content_type = FG_CT_JSON;
+  fg_resp_json_text(out, 200, c.request);
   c.request = NULL; /* the response owns it now */
   fg_store_check_clear(&c);
 }

@@ -149,38 +149,28 @@ void fg_h_checks_create(fg_req *r, fg_resp *out) {
       return;
     }
   }
-  fg_problem p;
-  fg_problem_init(&p);
-  fg_store_version v;
-  fg_model *m = NULL;
-  cJSON *json = NULL;
+  fg_http_target t;
   fg_check_request req;
   memset(&req, 0, sizeof req);
   bool have_req = false;
   fg_job *job = NULL;
 
-  if (!fg_http_load_target(r, name, version, "check",
+  if (!fg_http_open_target(r, name, version, "check",
                            "a check request object with at least "
                            "\"decision\"",
-                           &v, &m, &p, out))
-    return;
-  if (fg_json_parse(r->body, r->len, &json, &p) != FG_OK) {
-    fg_resp_problem(out, &p, 0);
+                           &t, out))
     goto done;
-  }
   have_req = true;
-  if (fg_request_parse(m, json, &srv->cfg.limits, &req, &p) != FG_OK) {
-    fg_resp_problem(out, &p, 0);
+  if (fg_request_parse(t.m, t.body, &srv->cfg.limits, &req, &t.p) != FG_OK) {
+    fg_resp_problem(out, &t.p, 0);
     goto done;
   }
-  if (!fg_http_digest_agrees(&req, &v, &p, out)) goto done;
+  if (!fg_http_digest_agrees(&req, &t.v, &t.p, out)) goto done;
   if (!req.seed_given) {
     req.seed = fg_seed_draw();
     req.seed_given = true;
   }
-  if (req.wait_s > srv->cfg.limits.max_wait_s)
-    req.wait_s = srv->cfg.limits.max_wait_s;
-  if (!(req.wait_s >= 0)) req.wait_s = 0;
+  req.wait_s = fg_http_wait_bound(srv, req.wait_s);
 
   /* Refuse before recording when the queue is visibly full, so that a
    * 503 leaves no record; a burst that races past this is closed as
@@ -193,8 +183,9 @@ void fg_h_checks_create(fg_req *r, fg_resp *out) {
     goto done;
   }
   req.max_seconds = srv->cfg.max_check_s;
-  if (fg_job_start(srv, &v, m, &req, r->key_name, NULL, &job, &p) != FG_OK) {
-    fg_resp_problem(out, &p, 0);
+  if (fg_job_start(srv, &t.v, t.m, &req, r->key_name, NULL, &job, &t.p) !=
+      FG_OK) {
+    fg_resp_problem(out, &t.p, 0);
     goto done;
   }
   snprintf(out->location, sizeof out->location, "/v1/checks/%s",
@@ -215,9 +206,7 @@ void fg_h_checks_create(fg_req *r, fg_resp *out) {
 done:
   fg_job_unref(job);
   if (have_req) fg_request_free(&req);
-  cJSON_Delete(json);
-  fg_model_unref(m);
-  fg_store_version_clear(&v);
+  fg_http_target_clear(&t);
 }
 
 /* ---- GET /v1/checks/{id} ---- */
@@ -266,10 +255,7 @@ cJSON *fg_http_stored_check_body(const fg_store_check *c) {
  * result body. */
 static bool send_stored_result(fg_resp *out, fg_store_check *c) {
   if (!c->result) return false;
-  out->status = 200;
-  out->body = c->result;
-  out->len = strlen(c->result);
-  out->content_type = FG_CT_JSON;
+  fg_resp_json_text(out, 200, c->result);
   c->result = NULL;
   return true;
 }

@@ -282,14 +282,10 @@ void fg_comparison_answer(fg_comparison *c, int status, fg_resp *out) {
   pthread_mutex_lock(&c->mu);
   if (c->stage == CMP_STORED && c->final_text) text = strdup(c->final_text);
   pthread_mutex_unlock(&c->mu);
-  if (text) {
-    out->status = status;
-    out->body = text;
-    out->len = strlen(text);
-    out->content_type = FG_CT_JSON;
-    return;
-  }
-  fg_resp_json(out, status, body_of(c, FG_CHECK_RUNNING, NULL, NULL));
+  if (text)
+    fg_resp_json_text(out, status, text);
+  else
+    fg_resp_json(out, status, body_of(c, FG_CHECK_RUNNING, NULL, NULL));
 }
 
 static fg_check_state stored_status(fg_comparison *c) {
@@ -354,32 +350,27 @@ static void created_drop(void *ctx) {
 void fg_h_comparisons_create(fg_req *r, fg_resp *out) {
   fg_server *srv = r->srv;
   const char *name = r->params[0];
-  fg_problem p;
-  fg_problem_init(&p);
-  fg_store_version v;
-  fg_model *m = NULL;
-  cJSON *json = NULL;
+  fg_http_target t;
   fg_compare_request cr;
   memset(&cr, 0, sizeof cr);
   fg_comparison *c = NULL;
 
-  if (!fg_http_load_target(r, name, 0, "compare",
+  if (!fg_http_open_target(r, name, 0, "compare",
                            "a comparison request object with "
                            "\"candidates\"",
-                           &v, &m, &p, out))
-    return;
-  if (fg_json_parse(r->body, r->len, &json, &p) != FG_OK ||
-      fg_compare_parse(m, json, &srv->cfg.limits, &cr, &p) != FG_OK) {
-    fg_resp_problem(out, &p, 0);
+                           &t, out))
+    goto done;
+  fg_problem *p = &t.p;
+  const fg_store_version *v = &t.v;
+  if (fg_compare_parse(t.m, t.body, &srv->cfg.limits, &cr, p) != FG_OK) {
+    fg_resp_problem(out, p, 0);
     goto done;
   }
   int n = cr.ncandidates;
   const fg_check_request *first = &cr.candidates[0];
-  if (!fg_http_digest_agrees(first, &v, &p, out)) goto done;
+  if (!fg_http_digest_agrees(first, v, p, out)) goto done;
   if (!first->seed_given) fg_compare_set_seed(&cr, fg_seed_draw());
-  double wait_s = first->wait_s;
-  if (wait_s > srv->cfg.limits.max_wait_s) wait_s = srv->cfg.limits.max_wait_s;
-  if (!(wait_s >= 0)) wait_s = 0;
+  double wait_s = fg_http_wait_bound(srv, first->wait_s);
 
   int queued = fg_pool_queued(srv->pool);
   if (queued + n > srv->cfg.queue) {
@@ -400,9 +391,9 @@ void fg_h_comparisons_create(fg_req *r, fg_resp *out) {
   pthread_cond_init(&c->cv, NULL);
   c->srv = srv;
   fg_http_new_id("cmp_", c->rec.id);
-  snprintf(c->rec.model, sizeof c->rec.model, "%s", v.name);
-  c->rec.version = v.version;
-  snprintf(c->rec.digest, sizeof c->rec.digest, "%s", v.digest);
+  snprintf(c->rec.model, sizeof c->rec.model, "%s", v->name);
+  c->rec.version = v->version;
+  snprintf(c->rec.digest, sizeof c->rec.digest, "%s", v->digest);
   snprintf(c->rec.status, sizeof c->rec.status, "%s",
            fg_check_state_name(FG_CHECK_RUNNING));
   fg_time_now_rfc3339(c->rec.created_at, sizeof c->rec.created_at);
@@ -415,13 +406,13 @@ void fg_h_comparisons_create(fg_req *r, fg_resp *out) {
     cr.candidates[c->n].max_seconds = srv->cfg.max_check_s;
     snprintf(c->labels[c->n], sizeof c->labels[c->n], "%s",
              cr.candidates[c->n].label);
-    if (fg_job_start(srv, &v, m, &cr.candidates[c->n], r->key_name, c->rec.id,
-                     &c->jobs[c->n], &p) != FG_OK)
+    if (fg_job_start(srv, v, t.m, &cr.candidates[c->n], r->key_name, c->rec.id,
+                     &c->jobs[c->n], p) != FG_OK)
       break;
   }
   if (c->n < n) {
     abandon(c->jobs, c->n);
-    fg_resp_problem(out, &p, 0);
+    fg_resp_problem(out, p, 0);
     goto done;
   }
   cJSON *ids = cJSON_CreateArray();
@@ -431,13 +422,13 @@ void fg_h_comparisons_create(fg_req *r, fg_resp *out) {
   row.checks = ids ? cJSON_PrintUnformatted(ids) : NULL;
   row.result = NULL;
   cJSON_Delete(ids);
-  fg_status st = row.checks ? fg_store_put_comparison(srv->store, &row, &p)
-                            : fg_problem_set(&p, FG_ENOMEM, "out of memory");
+  fg_status st = row.checks ? fg_store_put_comparison(srv->store, &row, p)
+                            : fg_problem_set(p, FG_ENOMEM, "out of memory");
   free(row.checks);
-  if (st == FG_OK) st = fg_registry_add_comparison(srv->registry, c, &p);
+  if (st == FG_OK) st = fg_registry_add_comparison(srv->registry, c, p);
   if (st != FG_OK) {
     abandon(c->jobs, c->n);
-    fg_resp_problem(out, &p, 0);
+    fg_resp_problem(out, p, 0);
     goto done;
   }
   if (wait_s > 0 && !jobs_ended(c)) {
@@ -455,9 +446,7 @@ void fg_h_comparisons_create(fg_req *r, fg_resp *out) {
 done:
   fg_comparison_unref(c);
   fg_compare_request_free(&cr);
-  cJSON_Delete(json);
-  fg_model_unref(m);
-  fg_store_version_clear(&v);
+  fg_http_target_clear(&t);
 }
 
 /* ---- GET and DELETE ---- */
@@ -470,10 +459,7 @@ static void answer_stored(fg_req *r, const fg_store_comparison *row,
   if (row->result) {
     char *text = strdup(row->result);
     if (text) {
-      out->status = 200;
-      out->body = text;
-      out->len = strlen(text);
-      out->content_type = FG_CT_JSON;
+      fg_resp_json_text(out, 200, text);
       return;
     }
   }

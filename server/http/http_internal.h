@@ -280,6 +280,8 @@ void fg_resp_bad_param(fg_resp *out, const char *name, const char *fmt, ...)
 /* Print `body` as the JSON response (takes and frees `body`). A print that
  * fails for memory becomes a 503 problem. */
 void fg_resp_json(fg_resp *out, int status, cJSON *body);
+/* `text` (malloc'd JSON, not NULL) as the JSON response; takes it. */
+void fg_resp_json_text(fg_resp *out, int status, char *text);
 /* The problem document of `p`; http_status 0 = fg_status_http(p->status). */
 void fg_resp_problem(fg_resp *out, const fg_problem *p, int http_status);
 /* A whole-request problem in one call. */
@@ -336,21 +338,32 @@ cJSON *fg_http_stored_check_body(const fg_store_check *c);
 bool fg_http_is_id(const char *prefix, const char *s);
 
 /* ---- record.c ---- */
-/* The steps of POST .../checks and .../comparisons before the body is
- * parsed: 503 while the server shuts down; load version `version` of
- * `name` (0: the latest) into *v and *m; then turn away a retired model
- * (410: "register it again to <verb> candidates against it") and an empty
- * body (400: "expected <expected>, found an empty body"). False when it
- * has answered `out`; *v and *m then hold nothing to free. */
-bool fg_http_load_target(fg_req *r, const char *name, int version,
+/* What POST .../checks and .../comparisons hold while they start
+ * candidates: the model version named, its compiled model, the body as
+ * JSON, and the problem every step adds to. */
+typedef struct fg_http_target {
+  fg_problem p;
+  fg_store_version v;
+  fg_model *m; /* a reference */
+  cJSON *body;
+} fg_http_target;
+/* The steps of those requests before their own parsing: 503 while the
+ * server shuts down; load version `version` of `name` (0: the latest);
+ * then turn away a retired model (410: "register it again to <verb>
+ * candidates against it"), an empty body (400: "expected <expected>,
+ * found an empty body") and a body that is not JSON (400). False when it
+ * has answered `out`. fg_http_target_clear is due either way. */
+bool fg_http_open_target(fg_req *r, const char *name, int version,
                          const char *verb, const char *expected,
-                         fg_store_version *v, fg_model **m, fg_problem *p,
-                         fg_resp *out);
+                         fg_http_target *t, fg_resp *out);
+void fg_http_target_clear(fg_http_target *t);
 /* False, with a 409 problem answered, when `req` asks for a model digest
  * other than that of `v`. */
 bool fg_http_digest_agrees(const fg_check_request *req,
                            const fg_store_version *v, fg_problem *p,
                            fg_resp *out);
+/* A request's wait_s held to 0 .. --max-wait (NaN: 0). */
+double fg_http_wait_bound(const fg_server *srv, double wait_s);
 
 /* ---- lifecycle.c: the life of one check (see its top comment) ----
  * Locking rule: no lock that a reader, the metrics or the readiness probe

@@ -294,14 +294,10 @@ cJSON *fg_job_body(fg_job *j) {
 
 void fg_job_answer(fg_job *j, int status, fg_resp *out) {
   char *text = final_copy(j);
-  if (text) {
-    out->status = status;
-    out->body = text;
-    out->len = strlen(text);
-    out->content_type = FG_CT_JSON;
-    return;
-  }
-  fg_resp_json(out, status, live_body(j));
+  if (text)
+    fg_resp_json_text(out, status, text);
+  else
+    fg_resp_json(out, status, live_body(j));
 }
 
 /* ---- the end ---- */

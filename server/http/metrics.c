@@ -32,6 +32,7 @@
  * daemon's threads start.
  */
 #include "http/metrics.h"
+#include "core/buf.h"
 
 #include <math.h>
 #include <stdarg.h>
@@ -170,16 +171,10 @@ static void put(text *t, const char *fmt, ...) {
       t->len += (size_t)n;
       return;
     }
-    size_t cap = t->cap ? t->cap : 4096;
-    while (cap < t->len + (size_t)n + 1)
-      cap *= 2;
-    char *grown = realloc(t->s, cap);
-    if (!grown) {
+    if (!fg_buf_grow(&t->s, &t->cap, t->len + (size_t)n + 1, 4096, 0)) {
       t->failed = true;
       return;
     }
-    t->s = grown;
-    t->cap = cap;
   }
 }
 

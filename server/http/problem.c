@@ -128,6 +128,10 @@ void fg_resp_json(fg_resp *out, int status, cJSON *body) {
     set_fallback(out, 503);
     return;
   }
+  fg_resp_json_text(out, status, text);
+}
+
+void fg_resp_json_text(fg_resp *out, int status, char *text) {
   free(out->body);
   out->body = text;
   out->len = strlen(text);

@@ -1,13 +1,14 @@
 /*
  * http/record.c -- what the handlers that start checks (checks.c,
- * comparison.c) share: the steps before the body is parsed and the digest
- * check.
+ * comparison.c) share: the steps up to the parsed body (fg_http_target),
+ * the digest check and the bound on wait_s.
  *
- * Design: the first steps of the durability contract of checks.c in two
+ * Design: the first steps of the durability contract of checks.c in
  * helpers that answer the problem themselves (a server shutting down, a
- * retired model and an empty body turned away around loading the model
- * version; a request that names another digest turned away with 409), so
- * both handlers give the same statuses in the same order. The record of
+ * retired model, an empty body and one that is not JSON turned away
+ * around loading the model version; a request that names another digest
+ * turned away with 409), so both handlers give the same statuses in the
+ * same order. The record of
  * a check itself, from `running` to its end, is lifecycle.c's.
  *
  * Thread use: libmicrohttpd's threads; the store locks itself.
@@ -20,35 +21,46 @@
 #include <stdlib.h>
 #include <string.h>
 
-bool fg_http_load_target(fg_req *r, const char *name, int version,
+bool fg_http_open_target(fg_req *r, const char *name, int version,
                          const char *verb, const char *expected,
-                         fg_store_version *v, fg_model **m, fg_problem *p,
-                         fg_resp *out) {
-  *m = NULL;
+                         fg_http_target *t, fg_resp *out) {
+  memset(t, 0, sizeof *t);
+  fg_problem_init(&t->p);
   if (atomic_load(&r->srv->stopping)) {
     fg_resp_error(out, 503, FG_EBUSY, "the server is shutting down");
     return false;
   }
-  if (fg_http_load_model(r->srv, name, version, v, m, p) != FG_OK) {
-    fg_resp_problem(out, p, 0);
+  if (fg_http_load_model(r->srv, name, version, &t->v, &t->m, &t->p) !=
+      FG_OK) {
+    fg_resp_problem(out, &t->p, 0);
     return false;
   }
-  if (v->retired) {
+  if (t->v.retired) {
     fg_resp_error(out, 410, FG_EGONE,
                   "model '%s' is retired; register it again to %s "
                   "candidates against it",
-                  v->name, verb);
-  } else if (!r->body || r->len == 0) {
-    fg_problem_add(p, FG_EINVAL, "", 0, "expected %s, found an empty body",
-                   expected);
-    fg_resp_problem(out, p, 0);
-  } else {
-    return true;
+                  t->v.name, verb);
+    return false;
   }
-  fg_model_unref(*m);
-  *m = NULL;
-  fg_store_version_clear(v);
-  return false;
+  if (!r->body || r->len == 0) {
+    fg_problem_add(&t->p, FG_EINVAL, "", 0, "expected %s, found an empty body",
+                   expected);
+    fg_resp_problem(out, &t->p, 0);
+    return false;
+  }
+  if (fg_json_parse(r->body, r->len, &t->body, &t->p) != FG_OK) {
+    fg_resp_problem(out, &t->p, 0);
+    return false;
+  }
+  return true;
+}
+
+void fg_http_target_clear(fg_http_target *t) {
+  cJSON_Delete(t->body);
+  t->body = NULL;
+  fg_model_unref(t->m);
+  t->m = NULL;
+  fg_store_version_clear(&t->v);
 }
 
 bool fg_http_digest_agrees(const fg_check_request *req,
@@ -61,4 +73,9 @@ bool fg_http_digest_agrees(const fg_check_request *req,
                  req->expect_digest, v->name, v->version, v->digest);
   fg_resp_problem(out, p, 0);
   return false;
+}
+
+double fg_http_wait_bound(const fg_server *srv, double wait_s) {
+  if (wait_s > srv->cfg.limits.max_wait_s) wait_s = srv->cfg.limits.max_wait_s;
+  return wait_s >= 0 ? wait_s : 0;
 }

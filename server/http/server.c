@@ -60,6 +60,7 @@
  * Thread use: the access handler and completion callback run on
  * libmicrohttpd's pool threads; fg_serve_command on the main thread only.
  */
+#include "core/buf.h"
 #include "http/http_internal.h"
 #include "http/metrics.h"
 
@@ -259,21 +260,13 @@ static enum MHD_Result on_request(void *cls, struct MHD_Connection *conn,
       r->len = r->cap = 0;
       return MHD_YES;
     }
-    if (r->len + n + 1 > r->cap) {
-      size_t cap = r->cap ? r->cap : FG_HTTP_BODY_INITIAL;
-      while (cap < r->len + n + 1)
-        cap *= 2;
-      if (cap > srv->cfg.max_body + 1) cap = (size_t)srv->cfg.max_body + 1;
-      char *grown = realloc(r->body, cap);
-      if (!grown) {
-        /* No answer is possible mid-body: close the connection. */
-        fg_log_msg(FG_LOG_ERROR, "request_aborted",
-                   "%s %.200s: out of memory receiving %zu body bytes",
-                   r->method, r->path, r->len + n);
-        return MHD_NO;
-      }
-      r->body = grown;
-      r->cap = cap;
+    if (!fg_buf_grow(&r->body, &r->cap, r->len + n + 1, FG_HTTP_BODY_INITIAL,
+                     (size_t)srv->cfg.max_body + 1)) {
+      /* No answer is possible mid-body: close the connection. */
+      fg_log_msg(FG_LOG_ERROR, "request_aborted",
+                 "%s %.200s: out of memory receiving %zu body bytes",
+                 r->method, r->path, r->len + n);
+      return MHD_NO;
     }
     memcpy(r->body + r->len, upload, n);
     r->len += n;

@@ -24,6 +24,7 @@
  * Thread use: reentrant.
  */
 #include "model_internal.h"
+#include "core/buf.h"
 
 #include <cJSON.h>
 
@@ -33,28 +34,12 @@
 #include <string.h>
 
 typedef struct text_buf {
-  char *data;
-  size_t len, cap;
+  fg_buf text;
   bool oom;
 } text_buf;
 
 static void put_bytes(text_buf *b, const char *s, size_t n) {
-  if (b->oom) return;
-  if (b->len + n + 1 > b->cap) {
-    size_t cap = b->cap ? b->cap : 256;
-    while (b->len + n + 1 > cap)
-      cap *= 2;
-    char *d = realloc(b->data, cap);
-    if (!d) {
-      b->oom = true;
-      return;
-    }
-    b->data = d;
-    b->cap = cap;
-  }
-  memcpy(b->data + b->len, s, n);
-  b->len += n;
-  b->data[b->len] = '\0';
+  if (!b->oom && !fg_buf_append(&b->text, s, n, 256)) b->oom = true;
 }
 
 static void put_str(text_buf *b, const char *s) {
@@ -188,9 +173,9 @@ char *fg_json_canonical(const cJSON *v, size_t *len) {
   else
     put_str(&b, "null");
   if (b.oom) {
-    free(b.data);
+    free(b.text.data);
     return NULL;
   }
-  if (len) *len = b.len;
-  return b.data;
+  if (len) *len = b.text.len;
+  return b.text.data;
 }

@@ -75,19 +75,16 @@ static bool decision_bound(const cJSON *obj, const char *base, const char *key,
 
 static const char *const decision_members[] = {"name",  "size",    "lower",
                                                "upper", "integer", NULL};
+static const fg_model_object decision_object = {
+    "a decision object {\"name\", \"size\"?, \"lower\"?, \"upper\"?, "
+    "\"integer\"?}",
+    "a decision", decision_members, "name, size, lower, upper, integer"};
 
 static bool validate_decision(const cJSON *d, const char *base,
                               fg_decision *out, fg_model_ctx *cx) {
-  if (!cJSON_IsObject(d)) {
-    fg_model_error(cx, base,
-                   "expected a decision object {\"name\", "
-                   "\"size\"?, \"lower\"?, \"upper\"?, \"integer\"?}, "
-                   "found %s",
-                   fg_json_kind(d));
-    return false;
-  }
-  bool ok = fg_model_check_members(d, base, "a decision", decision_members,
-                                   "name, size, lower, upper, integer", cx);
+  fg_model_opened opened = fg_model_open_object(d, base, &decision_object, cx);
+  if (opened == FG_MODEL_NOT_OBJECT) return false;
+  bool ok = opened == FG_MODEL_OBJECT_OK;
   const char *name = fg_model_member_name(d, base, cx);
   if (name)
     snprintf(out->name, sizeof out->name, "%s", name);
@@ -186,6 +183,9 @@ bool fg_model_validate_decisions(const cJSON *arr, fg_model_plan *pl,
 
 static const char *const uncertain_members[] = {"name", "size", "distribution",
                                                 NULL};
+static const fg_model_object uncertain_object = {
+    "a random input object {\"name\", \"size\"?, \"distribution\"}",
+    "a random input", uncertain_members, "name, size, distribution"};
 
 bool fg_model_validate_uncertain(const cJSON *arr, fg_model_plan *pl,
                                  fg_model_ctx *cx) {
@@ -211,17 +211,10 @@ bool fg_model_validate_uncertain(const cJSON *arr, fg_model_plan *pl,
   for (const cJSON *u = arr->child; u; u = u->next, i++) {
     char base[FG_POINTER_MAX];
     fg_pointer_index(base, sizeof base, "/uncertain", i);
-    if (!cJSON_IsObject(u)) {
-      fg_model_error(cx, base,
-                     "expected a random input object {\"name\", "
-                     "\"size\"?, \"distribution\"}, found %s",
-                     fg_json_kind(u));
-      ok = false;
-      continue;
-    }
-    if (!fg_model_check_members(u, base, "a random input", uncertain_members,
-                                "name, size, distribution", cx))
-      ok = false;
+    fg_model_opened opened =
+        fg_model_open_object(u, base, &uncertain_object, cx);
+    if (opened != FG_MODEL_OBJECT_OK) ok = false;
+    if (opened == FG_MODEL_NOT_OBJECT) continue;
     pl->inputs[i].name = fg_model_member_name(u, base, cx);
     if (!pl->inputs[i].name) ok = false;
     int size;

@@ -102,9 +102,27 @@ typedef struct fg_model_plan {
 
 /* names.c: checks shared by every member. Each reports what it refuses
  * and returns false / NULL then. `base` is the member object's pointer. */
-bool fg_model_check_members(const struct cJSON *obj, const char *base,
-                            const char *what, const char *const *allowed,
-                            const char *expected, fg_model_ctx *cx);
+
+/* An object member of the document, as its opening check names it. */
+typedef struct fg_model_object {
+  const char *shape;          /* after "expected ": "a decision object {...}" */
+  const char *what;           /* in unknown-member messages: "a decision" */
+  const char *const *allowed; /* its member names, NULL-terminated */
+  const char *expected;       /* the same as listed: "name, size, ..." */
+} fg_model_object;
+
+typedef enum fg_model_opened {
+  FG_MODEL_NOT_OBJECT,      /* refused whole: read nothing from it */
+  FG_MODEL_UNKNOWN_MEMBERS, /* an object; each unknown member refused */
+  FG_MODEL_OBJECT_OK
+} fg_model_opened;
+
+/* The opening every object member shares: "expected <shape>, found <kind>"
+ * for a value that is not an object, else "unknown member ..." for each
+ * member not in `o->allowed`. */
+fg_model_opened fg_model_open_object(const struct cJSON *v, const char *base,
+                                     const fg_model_object *o,
+                                     fg_model_ctx *cx);
 void fg_model_missing(fg_model_ctx *cx, const char *base, const char *key,
                       const char *expected);
 const char *fg_model_member_name(const struct cJSON *obj, const char *base,

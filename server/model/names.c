@@ -1,6 +1,7 @@
 /*
- * model/names.c -- the checks every member of a document shares: unknown
- * members, required members, names, sizes, expression strings, member
+ * model/names.c -- the checks every member of a document shares: the
+ * opening of an object member (an object, no unknown members), required
+ * members, names, sizes, expression strings, member
  * arrays, and the one namespace of decisions, uncertain inputs, definitions
  * and constraints.
  *
@@ -29,21 +30,25 @@ static bool member_is_known(const char *key, const char *const *allowed) {
   return false;
 }
 
-/* Refuse members of obj not in `allowed` (NULL-terminated). */
-bool fg_model_check_members(const cJSON *obj, const char *base,
-                            const char *what, const char *const *allowed,
-                            const char *expected, fg_model_ctx *cx) {
-  bool ok = true;
-  for (const cJSON *c = obj->child; c; c = c->next) {
-    if (member_is_known(c->string, allowed)) continue;
+fg_model_opened fg_model_open_object(const cJSON *v, const char *base,
+                                     const fg_model_object *o,
+                                     fg_model_ctx *cx) {
+  if (!cJSON_IsObject(v)) {
+    fg_model_error(cx, base, "expected %s, found %s", o->shape,
+                   fg_json_kind(v));
+    return FG_MODEL_NOT_OBJECT;
+  }
+  fg_model_opened res = FG_MODEL_OBJECT_OK;
+  for (const cJSON *c = v->child; c; c = c->next) {
+    if (member_is_known(c->string, o->allowed)) continue;
     char ptr[FG_POINTER_MAX], q[64];
     fg_pointer_join(ptr, sizeof ptr, base, c->string);
     fg_model_quote(q, sizeof q, c->string);
-    fg_model_error(cx, ptr, "unknown member '%s' in %s (expected %s)", q, what,
-                   expected);
-    ok = false;
+    fg_model_error(cx, ptr, "unknown member '%s' in %s (expected %s)", q,
+                   o->what, o->expected);
+    res = FG_MODEL_UNKNOWN_MEMBERS;
   }
-  return ok;
+  return res;
 }
 
 static bool is_alpha_(char c) {

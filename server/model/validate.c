@@ -35,18 +35,16 @@
 
 static const char *const definition_members[] = {"name", "value", "elements",
                                                  NULL};
+static const fg_model_object definition_object = {
+    "a definition object {\"name\", \"value\"} or {\"name\", \"elements\"}",
+    "a definition", definition_members, "name and one of value, elements"};
 
 static bool validate_definition(const cJSON *d, const char *base,
                                 fg_plan_definition *out, fg_model_ctx *cx) {
-  if (!cJSON_IsObject(d)) {
-    fg_model_error(cx, base,
-                   "expected a definition object {\"name\", "
-                   "\"value\"} or {\"name\", \"elements\"}, found %s",
-                   fg_json_kind(d));
-    return false;
-  }
-  bool ok = fg_model_check_members(d, base, "a definition", definition_members,
-                                   "name and one of value, elements", cx);
+  fg_model_opened opened =
+      fg_model_open_object(d, base, &definition_object, cx);
+  if (opened == FG_MODEL_NOT_OBJECT) return false;
+  bool ok = opened == FG_MODEL_OBJECT_OK;
   out->name = fg_model_member_name(d, base, cx);
   if (!out->name) ok = false;
   const cJSON *value = cJSON_GetObjectItemCaseSensitive(d, "value");
@@ -101,18 +99,16 @@ static bool validate_definition(const cJSON *d, const char *base,
 }
 
 static const char *const constraint_members[] = {"name", "require", NULL};
+static const fg_model_object constraint_object = {
+    "a constraint object {\"name\", \"require\"}", "a constraint",
+    constraint_members, "name, require"};
 
 static bool validate_constraint(const cJSON *c, const char *base,
                                 fg_plan_constraint *out, fg_model_ctx *cx) {
-  if (!cJSON_IsObject(c)) {
-    fg_model_error(cx, base,
-                   "expected a constraint object {\"name\", "
-                   "\"require\"}, found %s",
-                   fg_json_kind(c));
-    return false;
-  }
-  bool ok = fg_model_check_members(c, base, "a constraint", constraint_members,
-                                   "name, require", cx);
+  fg_model_opened opened =
+      fg_model_open_object(c, base, &constraint_object, cx);
+  if (opened == FG_MODEL_NOT_OBJECT) return false;
+  bool ok = opened == FG_MODEL_OBJECT_OK;
   out->name = fg_model_member_name(c, base, cx);
   if (!out->name) ok = false;
   const cJSON *req = cJSON_GetObjectItemCaseSensitive(c, "require");
@@ -129,16 +125,13 @@ static bool validate_constraint(const cJSON *c, const char *base,
 static bool validate_objective(const cJSON *o, fg_model_plan *pl,
                                fg_model_ctx *cx) {
   static const char *const allowed[] = {"minimize", "maximize", NULL};
+  static const fg_model_object objective = {
+      "{\"minimize\": expression} or {\"maximize\": expression}",
+      "the objective", allowed, "minimize or maximize"};
   if (!o) return true;
-  if (!cJSON_IsObject(o)) {
-    fg_model_error(cx, "/objective",
-                   "expected {\"minimize\": expression} or "
-                   "{\"maximize\": expression}, found %s",
-                   fg_json_kind(o));
-    return false;
-  }
-  bool ok = fg_model_check_members(o, "/objective", "the objective", allowed,
-                                   "minimize or maximize", cx);
+  fg_model_opened opened = fg_model_open_object(o, "/objective", &objective, cx);
+  if (opened == FG_MODEL_NOT_OBJECT) return false;
+  bool ok = opened == FG_MODEL_OBJECT_OK;
   const cJSON *mn = cJSON_GetObjectItemCaseSensitive(o, "minimize");
   const cJSON *mx = cJSON_GetObjectItemCaseSensitive(o, "maximize");
   if (mn && mx) {
@@ -188,18 +181,14 @@ static bool target_value(const cJSON *t, const char *key, double *out,
 static void validate_target(const cJSON *t, fg_model_plan *pl,
                             fg_model_ctx *cx) {
   static const char *const allowed[] = {"probability", "confidence", NULL};
+  static const fg_model_object target = {
+      "an object {\"probability\"?, \"confidence\"?}", "the target", allowed,
+      "probability, confidence"};
   pl->probability = 0.9;
   pl->confidence = 0.95;
   if (!t) return;
-  if (!cJSON_IsObject(t)) {
-    fg_model_error(cx, "/target",
-                   "expected an object {\"probability\"?, "
-                   "\"confidence\"?}, found %s",
-                   fg_json_kind(t));
+  if (fg_model_open_object(t, "/target", &target, cx) == FG_MODEL_NOT_OBJECT)
     return;
-  }
-  fg_model_check_members(t, "/target", "the target", allowed,
-                         "probability, confidence", cx);
   target_value(t, "probability", &pl->probability, cx);
   target_value(t, "confidence", &pl->confidence, cx);
 }
@@ -210,6 +199,11 @@ static const char *const top_members[] = {
     "format",      "name",      "title",      "description",
     "decisions",   "uncertain", "dependence", "definitions",
     "constraints", "objective", "target",     NULL};
+static const fg_model_object document_object = {
+    "a model document (a JSON object with \"format\": 1)", "a model document",
+    top_members,
+    "format, name, title, description, decisions, uncertain, "
+    "dependence, definitions, constraints, objective, target"};
 
 static void validate_header(const cJSON *doc, fg_model_plan *pl,
                             fg_model_ctx *cx) {
@@ -263,18 +257,9 @@ fg_status fg_model_validate(const cJSON *doc, fg_model_plan *pl,
   memset(pl, 0, sizeof *pl);
   pl->probability = 0.9;
   pl->confidence = 0.95;
-  if (!cJSON_IsObject(doc)) {
-    fg_model_error(cx, "",
-                   "expected a model document (a JSON object with "
-                   "\"format\": 1), found %s",
-                   fg_json_kind(doc));
+  if (fg_model_open_object(doc, "", &document_object, cx) ==
+      FG_MODEL_NOT_OBJECT)
     return cx->first;
-  }
-  fg_model_check_members(
-      doc, "", "a model document", top_members,
-      "format, name, title, description, decisions, uncertain, "
-      "dependence, definitions, constraints, objective, target",
-      cx);
   validate_header(doc, pl, cx);
 
   bool names = true;

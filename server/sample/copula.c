@@ -216,10 +216,8 @@ fg_status fg_sampler_copula_parse(fg_copula *cop, int index, const cJSON *entry,
                                   int ninputs, fg_problem *p) {
   char mptr[FG_POINTER_MAX];
   memset(cop, 0, sizeof *cop);
-  if (!cJSON_IsObject(entry))
-    return fg_problem_add(p, FG_EINVAL, ptr, 0,
-                          "expected a dependence object, found %s",
-                          fg_family_json_type(entry));
+  fg_status st = fg_family_expect_object(entry, ptr, "a dependence object", p);
+  if (st != FG_OK) return st;
   const cJSON *kind = cJSON_GetObjectItemCaseSensitive(entry, "kind");
   fg_pointer_join(mptr, sizeof mptr, ptr, "kind");
   if (!kind)
@@ -236,7 +234,6 @@ fg_status fg_sampler_copula_parse(fg_copula *cop, int index, const cJSON *entry,
                           "unknown dependence kind '%.64s' (expected "
                           "gaussian_copula)",
                           kind->valuestring);
-  fg_status st = FG_OK;
   for (const cJSON *m = entry->child; m; m = m->next) {
     const char *k = m->string ? m->string : "";
     if (!strcmp(k, "kind") || !strcmp(k, "members") ||

@@ -33,6 +33,13 @@ const char *fg_family_json_type(const cJSON *v) {
   return "an invalid value";
 }
 
+fg_status fg_family_expect_object(const cJSON *v, const char *ptr,
+                                  const char *what, fg_problem *p) {
+  if (cJSON_IsObject(v)) return FG_OK;
+  return fg_problem_add(p, FG_EINVAL, ptr, 0, "expected %s, found %s", what,
+                        fg_family_json_type(v));
+}
+
 static const cJSON *member(const fg_params *c, const char *name) {
   return cJSON_GetObjectItemCaseSensitive(c->dist, name);
 }

@@ -169,6 +169,10 @@ typedef struct fg_params {
 } fg_params;
 
 const char *fg_family_json_type(const struct cJSON *v);
+/* FG_OK when v is an object, else FG_EINVAL with "expected <what>, found
+ * <its type>" at ptr. */
+fg_status fg_family_expect_object(const struct cJSON *v, const char *ptr,
+                                  const char *what, fg_problem *p);
 /* Pointer of parameter `name`, or of its element e when it was given as
  * an array (e < 0: the member itself). */
 void fg_family_param_pointer(const fg_params *c, const char *name, int e,

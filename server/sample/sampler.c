@@ -96,10 +96,9 @@ static fg_status parse_input(fg_input *in, const cJSON *u, const char *ptr,
                              long *dims, fg_problem *p) {
   char mptr[FG_POINTER_MAX];
   in->copula = -1;
-  if (!cJSON_IsObject(u))
-    return fg_problem_add(p, FG_EINVAL, ptr, 0,
-                          "expected an uncertain-input object, found %s",
-                          fg_family_json_type(u));
+  fg_status st =
+      fg_family_expect_object(u, ptr, "an uncertain-input object", p);
+  if (st != FG_OK) return st;
   const cJSON *name = cJSON_GetObjectItemCaseSensitive(u, "name");
   fg_pointer_join(mptr, sizeof mptr, ptr, "name");
   if (!cJSON_IsString(name) || !name->valuestring[0])
@@ -161,7 +160,7 @@ static fg_status parse_input(fg_input *in, const cJSON *u, const char *ptr,
   if (!def->supported)
     return fg_problem_add(p, FG_EUNSUPPORTED, fptr, 0,
                           "family '%s' is not yet supported", def->name);
-  fg_status st = fg_family_parse(in, def, dist, mptr, p);
+  st = fg_family_parse(in, def, dist, mptr, p);
   in->ok = st == FG_OK;
   return st;
 }

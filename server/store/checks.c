@@ -27,26 +27,34 @@
 #include <stdlib.h>
 #include <string.h>
 
-/* Columns CHECK_COLUMNS (sql.c, 0..15) into *out. */
-static void read_check_row(fg_conn *c, fg_store_check *out) {
-  memset(out, 0, sizeof *out);
-  fg_db_copy(c, 0, out->id, sizeof out->id);
-  fg_db_copy(c, 1, out->model, sizeof out->model);
-  out->version = (int)fg_db_int(c, 2);
-  fg_db_copy(c, 3, out->digest, sizeof out->digest);
-  fg_db_copy(c, 4, out->status, sizeof out->status);
-  fg_db_copy(c, 5, out->verdict, sizeof out->verdict);
-  out->seed = (uint64_t)fg_db_int(c, 6);
-  fg_db_copy(c, 7, out->created_at, sizeof out->created_at);
-  fg_db_copy(c, 8, out->finished_at, sizeof out->finished_at);
-  out->elapsed_ms = fg_db_real(c, 9);
-  fg_db_copy(c, 10, out->label, sizeof out->label);
-  fg_db_copy(c, 11, out->key, sizeof out->key);
-  out->probability = fg_db_real(c, 12);
-  out->lower = fg_db_real(c, 13);
-  out->upper = fg_db_real(c, 14);
-  fg_db_copy(c, 15, out->replay_of, sizeof out->replay_of);
-}
+/* The columns a check's and a comparison's rows both begin with: id,
+ * model, version, digest, status. */
+#define RUN_HEAD(type)                                                         \
+  FG_DB_COLUMN(FG_DB_TEXT, type, id), FG_DB_COLUMN(FG_DB_TEXT, type, model),   \
+      FG_DB_COLUMN(FG_DB_INT, type, version),                                  \
+      FG_DB_COLUMN(FG_DB_TEXT, type, digest),                                  \
+      FG_DB_COLUMN(FG_DB_TEXT, type, status)
+
+#define COL(kind, member) FG_DB_COLUMN(kind, fg_store_check, member)
+/* CHECK_COLUMNS (sql.c, 0..15), then SQL_CHECK_GET's request and result. */
+static const fg_db_column check_columns[] = {
+    RUN_HEAD(fg_store_check),     COL(FG_DB_TEXT, verdict),
+    COL(FG_DB_U64, seed),         COL(FG_DB_TEXT, created_at),
+    COL(FG_DB_TEXT, finished_at), COL(FG_DB_REAL, elapsed_ms),
+    COL(FG_DB_TEXT, label),       COL(FG_DB_TEXT, key),
+    COL(FG_DB_REAL, probability), COL(FG_DB_REAL, lower),
+    COL(FG_DB_REAL, upper),       COL(FG_DB_TEXT, replay_of),
+    COL(FG_DB_DUP_SET, request),  COL(FG_DB_DUP, result)};
+enum { CHECK_LISTED = 16 }; /* the columns of a list's rows */
+#undef COL
+
+#define COL(kind, member) FG_DB_COLUMN(kind, fg_store_comparison, member)
+/* SQL_CMP_GET's columns. */
+static const fg_db_column comparison_columns[] = {
+    RUN_HEAD(fg_store_comparison), COL(FG_DB_TEXT, created_at),
+    COL(FG_DB_TEXT, finished_at),  COL(FG_DB_TEXT, key),
+    COL(FG_DB_DUP_SET, checks),    COL(FG_DB_DUP, result)};
+#undef COL
 
 /* One write alone on a connection of its own. */
 static fg_status write_alone(fg_store *s, fg_sql id, const fg_arg *a, int n,
@@ -117,12 +125,9 @@ fg_status fg_store_note_progress(fg_store *s, const char *id, const char *body,
 
 /* A row of SQL_CHECK_GET: the listed columns, request and result. */
 static bool read_check_full(fg_conn *c, void *out) {
-  fg_store_check *k = out;
-  read_check_row(c, k);
-  k->request = fg_db_dup(c, 16);
-  k->result = fg_db_dup(c, 17);
-  if (k->request && !fg_db_dup_failed(c, 17, k->result)) return true;
-  fg_store_check_clear(k);
+  if (fg_db_read_columns(c, check_columns, FG_DB_NCOLS(check_columns), out))
+    return true;
+  fg_store_check_clear(out);
   return false;
 }
 
@@ -135,7 +140,7 @@ fg_status fg_store_get_check(fg_store *s, const char *id, fg_store_check *out,
 }
 
 static int read_listed_check(fg_conn *c, void *elem) {
-  read_check_row(c, elem);
+  fg_db_read_columns(c, check_columns, CHECK_LISTED, elem); /* no copies */
   return 1;
 }
 
@@ -219,19 +224,10 @@ fg_status fg_store_finish_comparison(fg_store *s, const fg_store_comparison *c,
 }
 
 static bool read_comparison(fg_conn *c, void *out) {
-  fg_store_comparison *k = out;
-  fg_db_copy(c, 0, k->id, sizeof k->id);
-  fg_db_copy(c, 1, k->model, sizeof k->model);
-  k->version = (int)fg_db_int(c, 2);
-  fg_db_copy(c, 3, k->digest, sizeof k->digest);
-  fg_db_copy(c, 4, k->status, sizeof k->status);
-  fg_db_copy(c, 5, k->created_at, sizeof k->created_at);
-  fg_db_copy(c, 6, k->finished_at, sizeof k->finished_at);
-  fg_db_copy(c, 7, k->key, sizeof k->key);
-  k->checks = fg_db_dup(c, 8);
-  k->result = fg_db_dup(c, 9);
-  if (k->checks && !fg_db_dup_failed(c, 9, k->result)) return true;
-  fg_store_comparison_clear(k);
+  if (fg_db_read_columns(c, comparison_columns, FG_DB_NCOLS(comparison_columns),
+                         out))
+    return true;
+  fg_store_comparison_clear(out);
   return false;
 }
 

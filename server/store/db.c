@@ -1,6 +1,7 @@
 /*
  * store/db.c -- the helpers every store operation runs through (db.h):
- * connections, transactions, writes with the fault seam, rows and columns.
+ * connections, transactions, writes with the fault seam, rows and columns
+ * (one column at a time, or a row by its table of columns).
  *
  * Design: thin forwarding to the backend (backend.h) plus the rules that
  * belong to the store rather than to a database:
@@ -17,6 +18,7 @@
  */
 #include "store/db.h"
 
+#include <assert.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -187,4 +189,49 @@ double fg_db_real(fg_conn *c, int col) {
 
 bool fg_db_bytes(fg_conn *c, int col, uint8_t *dst, size_t n) {
   return c->b->bytes(c, col, dst, n);
+}
+
+#ifndef NDEBUG
+/* The member size of each kind that has one (text and bytes: any size). */
+static const size_t kind_size[FG_DB_BYTES + 1] = {
+    [FG_DB_INT] = sizeof(int),      [FG_DB_U64] = sizeof(uint64_t),
+    [FG_DB_REAL] = sizeof(double),  [FG_DB_FLAG] = sizeof(bool),
+    [FG_DB_DUP] = sizeof(char *),   [FG_DB_DUP_SET] = sizeof(char *)};
+#endif
+
+bool fg_db_read_columns(fg_conn *c, const fg_db_column *cols, int n,
+                        void *out) {
+  for (int i = 0; i < n; i++) {
+    void *at = (char *)out + cols[i].offset;
+    assert(!kind_size[cols[i].kind] || kind_size[cols[i].kind] == cols[i].size);
+    switch (cols[i].kind) {
+    case FG_DB_TEXT:
+      fg_db_copy(c, i, at, cols[i].size);
+      break;
+    case FG_DB_INT:
+      *(int *)at = (int)fg_db_int(c, i);
+      break;
+    case FG_DB_U64:
+      *(uint64_t *)at = (uint64_t)fg_db_int(c, i);
+      break;
+    case FG_DB_REAL:
+      *(double *)at = fg_db_real(c, i);
+      break;
+    case FG_DB_FLAG:
+      *(bool *)at = fg_db_int(c, i) != 0;
+      break;
+    case FG_DB_DUP:
+    case FG_DB_DUP_SET: {
+      char *s = fg_db_dup(c, i);
+      *(char **)at = s;
+      if (cols[i].kind == FG_DB_DUP_SET ? !s : fg_db_dup_failed(c, i, s))
+        return false;
+      break;
+    }
+    case FG_DB_BYTES:
+      if (!fg_db_bytes(c, i, at, cols[i].size)) return false;
+      break;
+    }
+  }
+  return true;
 }

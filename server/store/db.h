@@ -9,7 +9,8 @@
  * no backend repeats: the write-fault test seam (every data write goes
  * through fg_db_write), a lone write wrapped in a transaction where the
  * backend needs one, "no row changed" as FG_ENOTFOUND, and reading
- * columns into fixed buffers or malloc'd strings.
+ * columns into fixed buffers or malloc'd strings, one by one or a whole
+ * row by a table of its columns (fg_db_read_columns).
  *
  * Thread use: a connection is the calling thread's between enter and
  * leave; the store's `lock` guards only the fault seam and the upkeep
@@ -22,6 +23,7 @@
 
 #include <math.h>
 #include <pthread.h>
+#include <stddef.h>
 
 struct fg_store {
   const fg_backend *b;
@@ -126,6 +128,36 @@ bool fg_db_dup_failed(fg_conn *c, int col, const char *got);
 long long fg_db_int(fg_conn *c, int col);
 double fg_db_real(fg_conn *c, int col);
 bool fg_db_bytes(fg_conn *c, int col, uint8_t *dst, size_t n);
+
+/* ---- a whole row into a struct ---- */
+
+/* What a column goes into. */
+typedef enum fg_db_kind {
+  FG_DB_TEXT,     /* char[size]: fg_db_copy ("" for NULL, cut to fit) */
+  FG_DB_INT,      /* int */
+  FG_DB_U64,      /* uint64_t, kept as a signed 64-bit integer */
+  FG_DB_REAL,     /* double */
+  FG_DB_FLAG,     /* bool: the integer is not 0 */
+  FG_DB_DUP,      /* char *: fg_db_dup (NULL for NULL) */
+  FG_DB_DUP_SET,  /* char *: fg_db_dup, and the column must not be NULL */
+  FG_DB_BYTES     /* uint8_t[size]: exactly size bytes (fg_db_bytes) */
+} fg_db_kind;
+
+typedef struct fg_db_column {
+  fg_db_kind kind;
+  size_t offset, size; /* of the member in the struct */
+} fg_db_column;
+
+#define FG_DB_COLUMN(kind, type, member)                                       \
+  {(kind), offsetof(type, member), sizeof(((type *)0)->member)}
+#define FG_DB_NCOLS(cols) (int)(sizeof(cols) / sizeof((cols)[0]))
+
+/* Column i of the current row into `out` as cols[i] says, for i = 0 ..
+ * n - 1, in order. Stops with false at the first column it cannot take:
+ * a copy out of memory, a NULL FG_DB_DUP_SET, FG_DB_BYTES of another
+ * size; copies made so far stay in *out for the caller's clear. */
+bool fg_db_read_columns(fg_conn *c, const fg_db_column *cols, int n,
+                        void *out);
 
 /* ---- replicas.c ---- */
 

@@ -62,15 +62,17 @@ fg_status fg_store_put_key(fg_store *s, const fg_store_key *k, fg_problem *p) {
   return res;
 }
 
+#define KEY_COL(kind, member) FG_DB_COLUMN(kind, fg_store_key, member)
+/* SQL_KEYS_LIST's columns. */
+static const fg_db_column key_columns[] = {
+    KEY_COL(FG_DB_TEXT, name),       KEY_COL(FG_DB_TEXT, role),
+    KEY_COL(FG_DB_BYTES, salt),      KEY_COL(FG_DB_BYTES, hash),
+    KEY_COL(FG_DB_TEXT, created_at), KEY_COL(FG_DB_TEXT, revoked_at)};
+#undef KEY_COL
+
 /* A damaged row (salt or hash of the wrong size) is left out. */
 static int read_key(fg_conn *c, void *elem) {
-  fg_store_key *k = elem;
-  fg_db_copy(c, 0, k->name, sizeof k->name);
-  fg_db_copy(c, 1, k->role, sizeof k->role);
-  fg_db_copy(c, 4, k->created_at, sizeof k->created_at);
-  fg_db_copy(c, 5, k->revoked_at, sizeof k->revoked_at);
-  return fg_db_bytes(c, 2, k->salt, sizeof k->salt) &&
-         fg_db_bytes(c, 3, k->hash, sizeof k->hash);
+  return fg_db_read_columns(c, key_columns, FG_DB_NCOLS(key_columns), elem);
 }
 
 fg_status fg_store_list_keys(fg_store *s, bool live_only, fg_store_key **out,

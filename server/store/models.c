@@ -22,23 +22,25 @@
 #include <stdlib.h>
 #include <string.h>
 
+#define VERSION_COL(kind, member) FG_DB_COLUMN(kind, fg_store_version, member)
+/* SQL_VERSION_GET's columns; SQL_MODELS_LIST has the first five. */
+static const fg_db_column version_columns[] = {
+    VERSION_COL(FG_DB_TEXT, name),         VERSION_COL(FG_DB_INT, version),
+    VERSION_COL(FG_DB_TEXT, digest),       VERSION_COL(FG_DB_TEXT, created_at),
+    VERSION_COL(FG_DB_DUP, title),         VERSION_COL(FG_DB_DUP_SET, document),
+    VERSION_COL(FG_DB_FLAG, retired)};
+enum { VERSION_LISTED = 5 };
+#undef VERSION_COL
+
 /* A row of SQL_VERSION_GET (with document and retired) or SQL_MODELS_LIST
  * into *out; false when out of memory. */
 static bool read_version_row(fg_conn *c, fg_store_version *out,
                              bool with_document) {
   memset(out, 0, sizeof *out);
-  fg_db_copy(c, 0, out->name, sizeof out->name);
-  out->version = (int)fg_db_int(c, 1);
-  fg_db_copy(c, 2, out->digest, sizeof out->digest);
-  fg_db_copy(c, 3, out->created_at, sizeof out->created_at);
-  out->title = fg_db_dup(c, 4);
-  if (fg_db_dup_failed(c, 4, out->title)) return false;
-  if (with_document) {
-    out->document = fg_db_dup(c, 5);
-    if (!out->document) return false;
-    out->retired = fg_db_int(c, 6) != 0;
-  }
-  return true;
+  return fg_db_read_columns(c, version_columns,
+                            with_document ? FG_DB_NCOLS(version_columns)
+                                          : VERSION_LISTED,
+                            out);
 }
 
 static bool read_version_full(fg_conn *c, void *out) {
