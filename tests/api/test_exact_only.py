@@ -314,10 +314,12 @@ def test_deadline(tmp, whole):
         el = time.monotonic() - t0
         # timed_out (not done) shows the deadline stopped the computation:
         # an exact task that ran to its end would end the check done; and
-        # promptly: within 0.8 s on an idle machine, within half the
-        # uncancelled run when the machine is busy
+        # promptly: within 1 s (0.3 s deadline plus the request and the
+        # task's next poll, with room for a machine shared with other
+        # jobs), or within 60% of the uncancelled run when the machine is
+        # busier still
         check(isinstance(b, dict) and b.get("status") == "timed_out"
-              and el < max(0.8, (whole or 0) / 2),
+              and el < max(1.0, 0.6 * (whole or 0)),
               "deadline ends the exact computation: %s %r after %.2f s "
               "(whole: %s s)" % (st, b.get("status") if isinstance(b, dict)
                                  else b, el, whole))
