@@ -17,7 +17,7 @@
  *
  * Paths: the scalar loop; SSE2 (the x86-64 baseline, 2 lanes a vector);
  * AVX2 and AVX-512F built with target attributes and chosen at first use
- * by __builtin_cpu_supports, as the Philox cipher (sample/stream.c) is.
+ * by __builtin_cpu_supports, as the Philox cipher (sample/cipher.c) is.
  * Every path performs, per lane and row, the same IEEE operations in the
  * same order (dense.h), so all give the same bits; fg_dense_force lets the
  * unit test compare them.

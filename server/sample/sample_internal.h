@@ -3,6 +3,8 @@
  * outside sample/ includes it (but its unit test, for design internals).
  *
  * How the module is divided:
+ *   cipher.c   the Philox4x32-10 cipher over a block's lanes (SSE2, AVX2,
+ *              AVX-512F, scalar), and one block for the slow paths.
  *   stream.c   Philox4x32-10 keys and counters, the GSL adaptor, uniforms
  *              and standard normals drawn from one (sample, slot) stream.
  *   param.c    reading distribution parameters from cJSON (scalar or
@@ -66,6 +68,13 @@ void fg_stream_init(void);
  * (the default), 1 at most AVX2, 2 only SSE2 and scalar code. Not
  * thread-safe. */
 void fg_stream_force_portable(int level);
+/* Picks the cipher's code path (cipher.c): level as for
+ * fg_stream_force_portable. Called by fg_stream_init. */
+void fg_cipher_select(int level);
+/* One block for one (sample, slot, draw): the scalar form, for the slow
+ * paths. */
+void fg_stream_philox_one(fg_stream_key key, uint64_t sample, uint32_t slot,
+                          uint32_t draw, uint32_t out[4]);
 /* Philox4x32-10 of counters {first + t, slot, draw}, t < n <= FG_BLOCK. */
 void fg_stream_philox(fg_stream_key key, uint64_t first, int n, uint32_t slot,
                       uint32_t draw, fg_stream_words *w);
