@@ -175,14 +175,20 @@ static double zig_build(double r) {
   return zig.x[ZIG_LAYERS - 1] * (1 - zig.f[ZIG_LAYERS - 1]) - v;
 }
 
-static void zig_init(void) {
-  fg_cipher_select(0);
+/* The cipher's and the ziggurat's code paths, widest first: level 0 the
+ * widest present, 1 at most AVX2, 2 only SSE2 and scalar code. */
+static void choose_paths(int level) {
+  fg_cipher_select(level);
 #if defined(FG_HAVE_AVX2_PATH)
   __builtin_cpu_init();
-  use_avx2 = __builtin_cpu_supports("avx2");
-  use_zig_avx512 = __builtin_cpu_supports("avx512f") &&
+  use_avx2 = level < 2 && __builtin_cpu_supports("avx2");
+  use_zig_avx512 = level < 1 && __builtin_cpu_supports("avx512f") &&
                    __builtin_cpu_supports("avx512dq");
 #endif
+}
+
+static void zig_init(void) {
+  choose_paths(0);
   double lo = 3.0, hi = 4.5; /* brackets r for 256 slabs */
   for (int it = 0; it < 200 && hi - lo > 0; it++) {
     double mid = 0.5 * (lo + hi);
@@ -208,14 +214,7 @@ void fg_stream_init(void) {
 
 void fg_stream_force_portable(int level) {
   fg_stream_init();
-  fg_cipher_select(level);
-#if defined(FG_HAVE_AVX2_PATH)
-  use_avx2 = level < 2 && __builtin_cpu_supports("avx2");
-  use_zig_avx512 = level < 1 && __builtin_cpu_supports("avx512f") &&
-                   __builtin_cpu_supports("avx512dq");
-#else
-  (void)level;
-#endif
+  choose_paths(level);
 }
 
 /* u in (0, 1) from the top 53 bits of a word. */
