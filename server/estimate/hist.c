@@ -106,13 +106,14 @@ static inline int bucket_flat(double x) {
 typedef double fg_v4d __attribute__((vector_size(32)));
 typedef int64_t fg_v4i __attribute__((vector_size(32)));
 
-/* The buckets and the touched range, in a loop the compiler vectorises
- * (also built for AVX2 where GCC's target_clones can); min / max four lanes
- * at a time with the scalar rule per lane (x < min ? x : min, so NaN never
- * enters), the lanes combined at the end by the same rule: the extremes by
- * `<` of all values, up to which of two equal zeros is kept (the caller
- * adds violations' finite excesses, which are > 0); then the counts.
- * Integer results and min / max do not depend on the build. */
+/* First min / max, four lanes at a time with the scalar rule per lane
+ * (x < min ? x : min, so NaN never enters), the lanes combined at the end
+ * by the same rule: the extremes by `<` of all values, up to which of two
+ * equal zeros is kept (the caller adds violations' finite excesses, which
+ * are > 0). Then per batch the buckets and the touched range, in a loop
+ * the compiler vectorises (also built for AVX2 where GCC's target_clones
+ * can), and the counts. Integer results and min / max do not depend on
+ * the build. */
 /* (not under ThreadSanitizer: the loader runs the clone resolver before
  * its runtime is set up) */
 #if defined(__x86_64__) && defined(__GNUC__) && !defined(__clang__) && \
