@@ -46,6 +46,10 @@ typedef struct fg_stream_key {
 } fg_stream_key;
 
 fg_stream_key fg_stream_key_make(uint64_t seed, fg_stream stream);
+/* Set in a counter's sample word (bit 63, bit 31 of word 1) for the
+ * blocks that hold two samples' first normal attempts (stream.c); sample
+ * indices stay below 2^53, so no sample's own counter has it. */
+#define FG_STREAM_PAIR (UINT64_C(1) << 63)
 /* A GSL generator backed by Philox; must be reset before each use. */
 gsl_rng *fg_stream_rng_new(void);
 /* Point r at the sub-stream of (sample, slot): draw counter 0. */

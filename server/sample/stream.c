@@ -80,6 +80,9 @@
 #include <pthread.h>
 #include <string.h>
 
+#if defined(__SSE2__)
+#include <emmintrin.h>
+#endif
 #if defined(__x86_64__) && defined(__GNUC__)
 #include <immintrin.h>
 #define FG_HAVE_AVX2_PATH 1
@@ -222,18 +225,19 @@ static inline double u53(uint64_t w) {
   return ((double)(int64_t)(w >> 11) + 0.5) * (1.0 / 9007199254740992.0);
 }
 
-/* The words after an attempt's first: w1 of draw 0, then draws 1, 2, ... */
+/* The words after a normal's first attempt: the sample's own blocks
+ * {sample, slot, draw} for draws 0, 1, 2, ..., two words each. */
 typedef struct zig_cursor {
   fg_stream_key key;
   uint64_t sample;
-  uint32_t slot, draw;
+  uint32_t slot, draw; /* draw: the next block to make */
   uint32_t buf[4];
   int half; /* next 64-bit half of buf to hand out; 2 = empty */
 } zig_cursor;
 
 static uint64_t zig_next(zig_cursor *c) {
   if (c->half == 2) {
-    fg_stream_philox_one(c->key, c->sample, c->slot, ++c->draw, c->buf);
+    fg_stream_philox_one(c->key, c->sample, c->slot, c->draw++, c->buf);
     c->half = 0;
   }
   int h = c->half++;
@@ -288,25 +292,21 @@ static inline int zig_fast(uint64_t a, double *out) {
  * test compares them). Slow lanes are listed in slow[]; returns how many
  * lanes were done (a multiple of 8). */
 __attribute__((target("avx512f,avx512dq"))) static int
-zig_fast_avx512(const fg_stream_words *w, int n, double *out, int *slow,
+zig_fast_avx512(const uint64_t *att, int n, double *out, int *slow,
                 int *nslow) {
   const __m512i signbit = _mm512_set1_epi64(ZIG_LAYERS);
   const __m512d half = _mm512_set1_pd(0.5);
   const __m512d scale = _mm512_set1_pd(1.0 / 9007199254740992.0);
   int t = 0, ns = *nslow;
   for (; t + 8 <= n; t += 8) {
-    __m512i lo = _mm512_cvtepu32_epi64(
-        _mm256_loadu_si256((const __m256i *)(const void *)(w->w[0] + t)));
-    __m512i hi = _mm512_cvtepu32_epi64(
-        _mm256_loadu_si256((const __m256i *)(const void *)(w->w[1] + t)));
-    __m512i a = _mm512_or_si512(lo, _mm512_slli_epi64(hi, 32));
+    __m512i a = _mm512_loadu_si512((const void *)(att + t));
     __m512d u = _mm512_mul_pd(
         _mm512_add_pd(_mm512_cvtepi64_pd(_mm512_srli_epi64(a, 11)), half),
         scale);
     /* each lane's {X_i, ratio_i} is one 16-byte load (faster than two
      * gathers here); even lanes fill one vector, odd lanes another, and
      * unpacking gives X and ratio in lane order */
-#define ZPAIR(j) _mm_loadu_pd(zig.pair[w->w[0][t + (j)] & (ZIG_LAYERS - 1)])
+#define ZPAIR(j) _mm_loadu_pd(zig.pair[att[t + (j)] & (ZIG_LAYERS - 1)])
     __m512d ev = _mm512_insertf64x4(
         _mm512_castpd256_pd512(
             _mm256_insertf128_pd(_mm256_castpd128_pd256(ZPAIR(0)), ZPAIR(2), 1)),
@@ -338,7 +338,7 @@ zig_fast_avx512(const fg_stream_words *w, int n, double *out, int *slow,
  * * X_i and the sign flip, each one IEEE rounding as in zig_fast: the same
  * bits (the unit test compares the paths). */
 __attribute__((target("avx2"))) static int
-zig_fast_avx2(const fg_stream_words *w, int n, double *out, int *slow,
+zig_fast_avx2(const uint64_t *att, int n, double *out, int *slow,
               int *nslow) {
   const __m256i signbit = _mm256_set1_epi64x(ZIG_LAYERS);
   const __m256i low32 = _mm256_set1_epi64x(0xffffffffLL);
@@ -350,11 +350,7 @@ zig_fast_avx2(const fg_stream_words *w, int n, double *out, int *slow,
   const __m256d scale = _mm256_set1_pd(1.0 / 9007199254740992.0);
   int t = 0, ns = *nslow;
   for (; t + 4 <= n; t += 4) {
-    __m256i lo = _mm256_cvtepu32_epi64(
-        _mm_loadu_si128((const __m128i *)(const void *)(w->w[0] + t)));
-    __m256i hi = _mm256_cvtepu32_epi64(
-        _mm_loadu_si128((const __m128i *)(const void *)(w->w[1] + t)));
-    __m256i a = _mm256_or_si256(lo, _mm256_slli_epi64(hi, 32));
+    __m256i a = _mm256_loadu_si256((const __m256i *)(const void *)(att + t));
     __m256i m = _mm256_srli_epi64(a, 11);
     __m256d dlo = _mm256_sub_pd(
         _mm256_castsi256_pd(_mm256_or_si256(_mm256_and_si256(m, low32), e52)),
@@ -364,7 +360,7 @@ zig_fast_avx2(const fg_stream_words *w, int n, double *out, int *slow,
         c84);
     __m256d u = _mm256_mul_pd(_mm256_add_pd(_mm256_add_pd(dhi, dlo), half),
                               scale);
-#define ZPAIR(j) _mm_loadu_pd(zig.pair[w->w[0][t + (j)] & (ZIG_LAYERS - 1)])
+#define ZPAIR(j) _mm_loadu_pd(zig.pair[att[t + (j)] & (ZIG_LAYERS - 1)])
     __m256d ev = _mm256_insertf128_pd(_mm256_castpd128_pd256(ZPAIR(0)),
                                       ZPAIR(2), 1);
     __m256d od = _mm256_insertf128_pd(_mm256_castpd128_pd256(ZPAIR(1)),
@@ -385,19 +381,56 @@ zig_fast_avx2(const fg_stream_words *w, int n, double *out, int *slow,
 }
 #endif
 
+/* The first attempts att[t] of samples first + t, t < n: sample i's is
+ * half (i & 1) of the pair block {(i >> 1) | FG_STREAM_PAIR, slot, 0}.
+ * The pair blocks are made for the pairs the samples touch; buf's word
+ * k belongs to sample (first & ~1) + k, so att starts one word in when
+ * first is odd. Returns att (inside buf). */
+static const uint64_t *first_attempts(fg_stream_key key, uint64_t first,
+                                      int n, uint32_t slot, fg_stream_words *w,
+                                      uint64_t buf[FG_BLOCK + 2]) {
+  int off = (int)(first & 1);
+  int m = (off + n + 1) >> 1;
+  fg_stream_philox(key, (first >> 1) | FG_STREAM_PAIR, m, slot, 0, w);
+  int p = 0;
+#if defined(__SSE2__)
+  /* buf's words in memory are the block's words transposed (word0 of
+   * pair p, word1, word2, word3, then pair p + 1): four pairs per step as
+   * a 4 x 4 transpose of 32-bit words */
+  for (; p + 4 <= m; p += 4) {
+    __m128i r0 = _mm_loadu_si128((const __m128i *)(const void *)(w->w[0] + p));
+    __m128i r1 = _mm_loadu_si128((const __m128i *)(const void *)(w->w[1] + p));
+    __m128i r2 = _mm_loadu_si128((const __m128i *)(const void *)(w->w[2] + p));
+    __m128i r3 = _mm_loadu_si128((const __m128i *)(const void *)(w->w[3] + p));
+    __m128i e01 = _mm_unpacklo_epi32(r0, r1), e23 = _mm_unpackhi_epi32(r0, r1);
+    __m128i o01 = _mm_unpacklo_epi32(r2, r3), o23 = _mm_unpackhi_epi32(r2, r3);
+    __m128i *dst = (__m128i *)(void *)(buf + 2 * p);
+    _mm_storeu_si128(dst, _mm_unpacklo_epi64(e01, o01));
+    _mm_storeu_si128(dst + 1, _mm_unpackhi_epi64(e01, o01));
+    _mm_storeu_si128(dst + 2, _mm_unpacklo_epi64(e23, o23));
+    _mm_storeu_si128(dst + 3, _mm_unpackhi_epi64(e23, o23));
+  }
+#endif
+  for (; p < m; p++) {
+    buf[2 * p] = (uint64_t)w->w[0][p] | ((uint64_t)w->w[1][p] << 32);
+    buf[2 * p + 1] = (uint64_t)w->w[2][p] | ((uint64_t)w->w[3][p] << 32);
+  }
+  return buf + off;
+}
+
 void fg_stream_normals(fg_stream_key key, uint64_t first, int n, uint32_t slot,
                        fg_stream_words *w, double *out) {
   fg_stream_init();
-  fg_stream_philox(key, first, n, slot, 0, w);
+  uint64_t buf[FG_BLOCK + 2];
+  const uint64_t *att = first_attempts(key, first, n, slot, w, buf);
   int slow[FG_BLOCK], nslow = 0, t = 0;
 #if defined(FG_HAVE_AVX2_PATH)
-  if (use_zig_avx512) t = zig_fast_avx512(w, n, out, slow, &nslow);
-  else if (use_avx2) t = zig_fast_avx2(w, n, out, slow, &nslow);
+  if (use_zig_avx512) t = zig_fast_avx512(att, n, out, slow, &nslow);
+  else if (use_avx2) t = zig_fast_avx2(att, n, out, slow, &nslow);
 #endif
   for (; t < n; t++) {
     slow[nslow] = t;
-    nslow += zig_fast((uint64_t)w->w[0][t] | ((uint64_t)w->w[1][t] << 32),
-                      &out[t]);
+    nslow += zig_fast(att[t], &out[t]);
   }
   for (int k = 0; k < nslow; k++) {
     int j = slow[k];
@@ -405,21 +438,17 @@ void fg_stream_normals(fg_stream_key key, uint64_t first, int n, uint32_t slot,
                     .sample = first + (uint64_t)j,
                     .slot = slot,
                     .draw = 0,
-                    .buf = {0, 0, w->w[2][j], w->w[3][j]},
-                    .half = 1};
-    out[j] = zig_slow(&c, (uint64_t)w->w[0][j] | ((uint64_t)w->w[1][j] << 32));
+                    .half = 2};
+    out[j] = zig_slow(&c, att[j]);
   }
 }
 
 double fg_stream_normal_one(fg_stream_key key, uint64_t sample, uint32_t slot) {
   fg_stream_init();
   uint32_t blk[4];
-  fg_stream_philox_one(key, sample, slot, 0, blk);
-  zig_cursor c = {.key = key,
-                  .sample = sample,
-                  .slot = slot,
-                  .draw = 0,
-                  .buf = {0, 0, blk[2], blk[3]},
-                  .half = 1};
-  return zig_slow(&c, (uint64_t)blk[0] | ((uint64_t)blk[1] << 32));
+  fg_stream_philox_one(key, (sample >> 1) | FG_STREAM_PAIR, slot, 0, blk);
+  int h = 2 * (int)(sample & 1);
+  zig_cursor c = {
+      .key = key, .sample = sample, .slot = slot, .draw = 0, .half = 2};
+  return zig_slow(&c, (uint64_t)blk[h] | ((uint64_t)blk[h + 1] << 32));
 }

@@ -229,11 +229,14 @@ static void test_slots(void) {
 static void test_block_streams(void) {
   fg_stream_key key = fg_stream_key_make(987654321987ull, FG_STREAM_VALIDATION);
   static fg_stream_words w;
-  const uint64_t firsts[2] = {12345, (UINT64_C(1) << 32) - 100};
+  /* the third: a pair block's counter (FG_STREAM_PAIR, bit 31 of the
+   * counter's second word) */
+  const uint64_t firsts[3] = {12345, (UINT64_C(1) << 32) - 100,
+                              FG_STREAM_PAIR | 6172};
   int same_cipher = 1;
   /* every code path (AVX-512F, AVX2 where present, SSE2, scalar), and
    * lane counts that leave lanes over for the narrower paths */
-  for (int f = 0; f < 12; f++) {
+  for (int f = 0; f < 18; f++) {
     fg_stream_force_portable(f % 3);
     int n = (f / 3) % 2 ? FG_BLOCK - 5 : FG_BLOCK;
     fg_stream_philox(key, firsts[f / 6], n, 77, 3, &w);
@@ -267,9 +270,44 @@ static void test_block_streams(void) {
   for (int t0 = 0; t0 < n; t0 += FG_BLOCK)
     fg_stream_normals(key, (uint64_t)t0, FG_BLOCK, 4, &w, z + t0);
   int alone = 1;
-  for (int i = 0; i < n; i += 9973)
+  for (int i = 0; i < n; i += 9973) /* odd and even samples */
     alone &= fg_stream_normal_one(key, (uint64_t)i, 4) == z[i];
   CHECK(alone);
+  /* a block may start at an odd sample (its first pair block is then half
+   * used): the same normals on the widest path too */
+  int odd_start = 1;
+  for (int t0 = 1; t0 + FG_BLOCK <= 64 * FG_BLOCK; t0 += 2 * FG_BLOCK + 1) {
+    static double zo[FG_BLOCK];
+    fg_stream_normals(key, (uint64_t)t0, FG_BLOCK - 1, 4, &w, zo);
+    odd_start &= memcmp(zo, z + t0, (size_t)(FG_BLOCK - 1) * sizeof *zo) == 0;
+  }
+  CHECK(odd_start);
+  /* The first attempt of sample i is half (i & 1) of the pair block
+   * {(i >> 1) | FG_STREAM_PAIR, slot, 0} (Random123's Philox here): a
+   * normal takes its sign from bit 8 of its first attempt's word unless
+   * that attempt is rejected in a wedge (about 1 in 100; a new attempt
+   * then draws its own sign), so at most 2% of 4096 normals differ in
+   * sign from that bit (the wrong block or half would give about half);
+   * and neighbours sharing a pair block are uncorrelated (the sample
+   * correlation of (z[2j], z[2j + 1]) within 5 / sqrt(pairs)) */
+  int sign_off = 0;
+  for (int i = 0; i < 4096; i++) {
+    uint64_t j = ((uint64_t)i >> 1) | FG_STREAM_PAIR;
+    philox4x32_ctr_t c = {{(uint32_t)j, (uint32_t)(j >> 32), 4, 0}};
+    philox4x32_key_t k = {{key.k0, key.k1}};
+    philox4x32_ctr_t r = philox4x32(c, k);
+    uint32_t lo = r.v[2 * (i & 1)];
+    sign_off += (z[i] < 0) != ((lo >> 8) & 1);
+  }
+  CHECK_MSG(sign_off <= 82, "%d of 4096 normals differ in sign from their "
+            "first attempt's bit", sign_off);
+  double sxy = 0, sxx = 0, syy = 0;
+  for (int i = 0; i + 1 < n; i += 2) {
+    sxy += z[i] * z[i + 1];
+    sxx += z[i] * z[i];
+    syy += z[i + 1] * z[i + 1];
+  }
+  CHECK_NEAR(sxy / sqrt(sxx * syy), 0.0, 5.0 / sqrt(n / 2.0));
   /* the ziggurat's vector fast path (AVX-512F + DQ) and the scalar lanes
    * give the same bits: the first 2^18 normals again on the narrower
    * paths, in blocks that leave lanes over */
