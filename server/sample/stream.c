@@ -45,16 +45,17 @@
  * exp, log, erfc and sqrt, like every other result of feasgate).
  * The method is exact: accepted points are uniform under the curve.
  *
- * Word order of a normal on (sample, slot): draw 0 gives w0 = word0 |
- * word1 << 32 (the first attempt) and w1 = word2 | word3 << 32; draws 1,
- * 2, ... give two more each. The fast path reads w0 only and the rare
- * slow path continues with w1, then the next draws, so all four words of
- * the block serve one normal's attempts. Deliberately not done: packing
- * the normals of two slots into one block (halving the cipher work) would
- * make one dimension's fallback words depend on another's. (With the
- * row plans the cipher is still the largest cost of affine models, about
- * 36% of a worker with the AVX2 arrangement below, measured with perf; a
- * change of stream would be needed to halve it.)
+ * Word order of a normal on (sample, slot): its first attempt is half of
+ * the pair block {(sample >> 1) | FG_STREAM_PAIR, slot, 0} -- words 0 and
+ * 1 (word0 | word1 << 32) for an even sample, words 2 and 3 for the odd
+ * one after it -- so one cipher block serves two samples' first attempts
+ * (the cipher was the largest cost of a normal). The rare slow path goes
+ * on with the sample's own blocks {sample, slot, draw}, draws 0, 1, ...,
+ * two words each, so no sample's later words depend on another's. The
+ * pair blocks are told apart from the own blocks by FG_STREAM_PAIR, bit
+ * 63 of the counter's sample (bit 31 of its second word), which a sample
+ * index below 2^53 never has; a block of samples starting at an odd
+ * index uses the second half of its first pair block only.
  * The fast path runs in 8 lanes with AVX-512F + DQ, 4 with AVX2 (an exact
  * 53-bit conversion in two halves) and per lane otherwise, each with the
  * scalar lane's operations, so every path gives the same normals.
