@@ -226,6 +226,11 @@ static inline double u53(uint64_t w) {
   return ((double)(int64_t)(w >> 11) + 0.5) * (1.0 / 9007199254740992.0);
 }
 
+/* One 64-bit attempt word from two cipher words (lo first). */
+static inline uint64_t word64(uint32_t lo, uint32_t hi) {
+  return (uint64_t)lo | ((uint64_t)hi << 32);
+}
+
 /* The words after a normal's first attempt: the sample's own blocks
  * {sample, slot, draw} for draws 0, 1, 2, ..., two words each. */
 typedef struct zig_cursor {
@@ -242,7 +247,7 @@ static uint64_t zig_next(zig_cursor *c) {
     c->half = 0;
   }
   int h = c->half++;
-  return (uint64_t)c->buf[2 * h] | ((uint64_t)c->buf[2 * h + 1] << 32);
+  return word64(c->buf[2 * h], c->buf[2 * h + 1]);
 }
 
 /* The rest of one normal whose first attempt (word a) missed the fast
@@ -268,6 +273,15 @@ static double zig_slow(zig_cursor *c, uint64_t a) {
     if (y < zig_f(x)) return sign * x;
     a = zig_next(c);
   }
+}
+
+/* The normal of (sample, slot) whose first attempt a missed the fast
+ * path: zig_slow with the sample's own blocks from draw 0. */
+static double zig_finish(fg_stream_key key, uint64_t sample, uint32_t slot,
+                         uint64_t a) {
+  zig_cursor c = {
+      .key = key, .sample = sample, .slot = slot, .draw = 0, .half = 2};
+  return zig_slow(&c, a);
 }
 
 /* The fast path of one lane: out = the candidate x with its sign; returns
@@ -413,8 +427,8 @@ static const uint64_t *first_attempts(fg_stream_key key, uint64_t first,
   }
 #endif
   for (; p < m; p++) {
-    buf[2 * p] = (uint64_t)w->w[0][p] | ((uint64_t)w->w[1][p] << 32);
-    buf[2 * p + 1] = (uint64_t)w->w[2][p] | ((uint64_t)w->w[3][p] << 32);
+    buf[2 * p] = word64(w->w[0][p], w->w[1][p]);
+    buf[2 * p + 1] = word64(w->w[2][p], w->w[3][p]);
   }
   return buf + off;
 }
@@ -435,12 +449,7 @@ void fg_stream_normals(fg_stream_key key, uint64_t first, int n, uint32_t slot,
   }
   for (int k = 0; k < nslow; k++) {
     int j = slow[k];
-    zig_cursor c = {.key = key,
-                    .sample = first + (uint64_t)j,
-                    .slot = slot,
-                    .draw = 0,
-                    .half = 2};
-    out[j] = zig_slow(&c, att[j]);
+    out[j] = zig_finish(key, first + (uint64_t)j, slot, att[j]);
   }
 }
 
@@ -449,7 +458,5 @@ double fg_stream_normal_one(fg_stream_key key, uint64_t sample, uint32_t slot) {
   uint32_t blk[4];
   fg_stream_philox_one(key, (sample >> 1) | FG_STREAM_PAIR, slot, 0, blk);
   int h = 2 * (int)(sample & 1);
-  zig_cursor c = {
-      .key = key, .sample = sample, .slot = slot, .draw = 0, .half = 2};
-  return zig_slow(&c, (uint64_t)blk[h] | ((uint64_t)blk[h + 1] << 32));
+  return zig_finish(key, sample, slot, word64(blk[h], blk[h + 1]));
 }

@@ -213,9 +213,15 @@ def explain_cost(binary, name, paths, samples):
 SECTIONS = ("throughput", "exact", "http", "explain")
 
 
+_blas_told = []
+
+
 def tell_blas(npres):
-    """Print which BLAS the NumPy side mapped (numpy_side.py reads its own
-    /proc/self/maps)."""
+    """Print once which BLAS the NumPy side mapped (numpy_side.py reads its
+    own /proc/self/maps)."""
+    if _blas_told:
+        return
+    _blas_told.append(True)
     blas = npres.get("blas") or ["(none mapped)"]
     kind = ("OpenBLAS" if any("openblas" in b for b in blas) else
             "reference BLAS" if any("/blas/" in b for b in blas) else "?")
@@ -259,13 +265,10 @@ def main():
             "workload", "workers", "samples", "feasgate", "setup", "numpy",
             "ratio", "2w/1w", "P f/np"))
     rates = {}
-    blas_told = False
     for name in (names if "throughput" in sections else []):
         s = SAMPLES[name] // scale
         npres = numpy_side(name, paths[name], NUMPY_SAMPLES[name] // scale)
-        if not blas_told:
-            tell_blas(npres)
-            blas_told = True
+        tell_blas(npres)
         np_rate = npres["samples"] / npres["seconds"]
         np_p = npres["joint"] / npres["samples"]
         one = None
@@ -314,9 +317,7 @@ def main():
                     if wall is None or w1 < wall:
                         res, wall = r1, w1
                 np_rate = npres["samples"] / npres["seconds"]
-                if not blas_told:
-                    tell_blas(npres)
-                    blas_told = True
+                tell_blas(npres)
                 print("http %-8s %d samples: %.3f s end to end (%s), "
                       "simulation %.3f s, %.1fx NumPy" % (
                           name, n, wall, fmt_rate(n / wall),
